@@ -1,0 +1,1 @@
+//! Case files: TOML schema -> validated case (being written).

@@ -1,0 +1,230 @@
+//! Lead self-energies Σ_α(E) of the two semi-infinite contacts.
+//!
+//! - b = 1 periodic leads: closed form Σ = |τ|² g_s with the surface Green's
+//!   function of a tight-binding chain (Economou, *Green's Functions in
+//!   Quantum Physics*, ch. 5).
+//! - b > 1 periodic leads: Sancho-Rubio decimation (M. P. López Sancho,
+//!   J. M. López Sancho, J. Rubio, J. Phys. F 15, 851 (1985)) with a small
+//!   positive imaginary energy η, iterated until the renormalised couplings
+//!   fall below a tolerance.
+//! - wide-band leads: Σ = −iΓ/2 with a constant matrix Γ.
+//!
+//! Conventions: a periodic lead is given by its cell block `onsite` and its
+//! coupling `hopping` = H_n,n+1 along +x. The same block couples the lead to
+//! the device, so Σ_left = τ† g_s τ and Σ_right = τ g_s τ†.
+
+use crate::C64;
+use faer::Mat;
+use faer::linalg::solvers::DenseSolveCore;
+
+/// Which contact.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Side {
+    /// Contact 1, attached to the first cell.
+    Left,
+    /// Contact 2, attached to the last cell.
+    Right,
+}
+
+/// A lead model.
+#[derive(Clone, Debug)]
+pub enum Lead {
+    /// Semi-infinite periodic lead.
+    Periodic {
+        /// Cell Hamiltonian of the lead (eV).
+        onsite: Mat<C64>,
+        /// Coupling H_n,n+1 along +x (eV); also couples lead and device.
+        hopping: Mat<C64>,
+    },
+    /// Energy-independent broadening Γ (eV): Σ = −iΓ/2.
+    WideBand {
+        /// Broadening matrix (Hermitian, positive semi-definite).
+        gamma: Mat<C64>,
+    },
+}
+
+/// Settings of the decimation.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct DecimationParams {
+    /// Positive imaginary part added to the energy (eV).
+    pub eta_ev: f64,
+    /// Stop when the renormalised couplings fall below this (eV).
+    pub tolerance_ev: f64,
+    /// Iteration limit.
+    pub max_iterations: usize,
+}
+
+impl Default for DecimationParams {
+    fn default() -> Self {
+        Self {
+            eta_ev: 1e-9,
+            tolerance_ev: 1e-13,
+            max_iterations: 200,
+        }
+    }
+}
+
+/// Lead errors: the numerical fact is in the error.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum LeadError {
+    /// Decimation did not converge.
+    #[error(
+        "{side:?} lead decimation did not converge at E = {energy_ev} eV: coupling norm {residual_ev:.3e} eV after {iterations} iterations"
+    )]
+    NotConverged {
+        /// Which lead.
+        side: Side,
+        /// Energy (eV).
+        energy_ev: f64,
+        /// Iterations done.
+        iterations: usize,
+        /// Norm of the remaining coupling (eV).
+        residual_ev: f64,
+    },
+    /// A singular or non-finite matrix appeared.
+    #[error("{side:?} lead self-energy is not finite at E = {energy_ev} eV")]
+    NotFinite {
+        /// Which lead.
+        side: Side,
+        /// Energy (eV).
+        energy_ev: f64,
+    },
+}
+
+/// Surface self-energy of a chain with on-site ε and coupling modulus |τ|
+/// (both eV), at real energy E: Σ = [x − i√(4τ² − x²)]/2 inside the band
+/// (Im Σ ≤ 0), [x − sgn(x)√(x² − 4τ²)]/2 outside (the decaying root).
+pub fn chain_self_energy(energy_ev: f64, onsite_ev: f64, coupling_ev: f64) -> C64 {
+    let x = energy_ev - onsite_ev;
+    let t2 = 4.0 * coupling_ev * coupling_ev;
+    if x * x < t2 {
+        C64::new(0.5 * x, -0.5 * (t2 - x * x).sqrt())
+    } else {
+        C64::new(0.5 * (x - x.signum() * (x * x - t2).sqrt()), 0.0)
+    }
+}
+
+fn frob(m: &Mat<C64>) -> f64 {
+    m.norm_l2()
+}
+
+fn all_finite(m: &Mat<C64>) -> bool {
+    (0..m.nrows())
+        .all(|r| (0..m.ncols()).all(|c| m[(r, c)].re.is_finite() && m[(r, c)].im.is_finite()))
+}
+
+/// Surface Green's function of a semi-infinite periodic lead with cell block
+/// `h00` and coupling `v` from the surface cell to its bulk neighbour, by
+/// Sancho-Rubio decimation at E + iη. Returns the surface g and the
+/// iteration count.
+pub fn surface_green_function(
+    energy_ev: f64,
+    h00: &Mat<C64>,
+    v: &Mat<C64>,
+    params: &DecimationParams,
+    side: Side,
+) -> Result<(Mat<C64>, usize), LeadError> {
+    let b = h00.nrows();
+    let z = C64::new(energy_ev, params.eta_ev);
+    let zi = Mat::<C64>::from_fn(b, b, |r, c| if r == c { z } else { C64::new(0.0, 0.0) });
+    let mut eps_s = h00.clone();
+    let mut eps = h00.clone();
+    let mut alpha = v.clone();
+    let mut beta = v.adjoint().to_owned();
+    let mut it = 0;
+    loop {
+        let g = (&zi - &eps).partial_piv_lu().inverse();
+        let ag = &alpha * &g;
+        let bg = &beta * &g;
+        let agb = &ag * &beta;
+        let bga = &bg * &alpha;
+        eps_s += &agb;
+        eps = &eps + &agb + &bga;
+        alpha = &ag * &alpha;
+        beta = &bg * &beta;
+        it += 1;
+        let res = frob(&alpha) + frob(&beta);
+        if !res.is_finite() {
+            return Err(LeadError::NotFinite { side, energy_ev });
+        }
+        if res < params.tolerance_ev {
+            break;
+        }
+        if it >= params.max_iterations {
+            return Err(LeadError::NotConverged {
+                side,
+                energy_ev,
+                iterations: it,
+                residual_ev: res,
+            });
+        }
+    }
+    let gs = (&zi - &eps_s).partial_piv_lu().inverse();
+    if !all_finite(&gs) {
+        return Err(LeadError::NotFinite { side, energy_ev });
+    }
+    Ok((gs, it))
+}
+
+impl Lead {
+    /// Orbitals per lead cell.
+    pub fn orbitals(&self) -> usize {
+        match self {
+            Lead::Periodic { onsite, .. } => onsite.nrows(),
+            Lead::WideBand { gamma } => gamma.nrows(),
+        }
+    }
+
+    /// Band range of the lead (eV); `None` for a wide-band lead.
+    pub fn band_range(&self) -> Option<(f64, f64)> {
+        match self {
+            Lead::Periodic { onsite, hopping } => Some(crate::device::band_range(onsite, hopping)),
+            Lead::WideBand { .. } => None,
+        }
+    }
+
+    /// Retarded self-energy Σ_α(E) on the end cell of the device (eV).
+    pub fn self_energy(
+        &self,
+        side: Side,
+        energy_ev: f64,
+        params: &DecimationParams,
+    ) -> Result<Mat<C64>, LeadError> {
+        match self {
+            Lead::WideBand { gamma } => Ok(Mat::from_fn(gamma.nrows(), gamma.ncols(), |r, c| {
+                gamma[(r, c)] * C64::new(0.0, -0.5)
+            })),
+            Lead::Periodic { onsite, hopping } if onsite.nrows() == 1 => {
+                let s = chain_self_energy(energy_ev, onsite[(0, 0)].re, hopping[(0, 0)].norm());
+                Ok(Mat::from_fn(1, 1, |_, _| s))
+            }
+            Lead::Periodic { onsite, hopping } => {
+                let (g, _) = match side {
+                    Side::Left => surface_green_function(
+                        energy_ev,
+                        onsite,
+                        &hopping.adjoint().to_owned(),
+                        params,
+                        side,
+                    )?,
+                    Side::Right => {
+                        surface_green_function(energy_ev, onsite, hopping, params, side)?
+                    }
+                };
+                Ok(match side {
+                    Side::Left => hopping.adjoint() * &g * hopping,
+                    Side::Right => hopping * &g * hopping.adjoint(),
+                })
+            }
+        }
+    }
+}
+
+/// Broadening Γ = i(Σ − Σ†).
+pub fn broadening(sigma: &Mat<C64>) -> Mat<C64> {
+    let b = sigma.nrows();
+    Mat::from_fn(b, b, |r, c| {
+        (sigma[(r, c)] - sigma[(c, r)].conj()) * C64::new(0.0, 1.0)
+    })
+}

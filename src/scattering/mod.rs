@@ -1,0 +1,203 @@
+//! Scattering self-energies inside the device (Σ0).
+//!
+//! All mechanisms are local: diagonal in the orbital basis (site i,
+//! orbital o). Index s = i·b + o runs over the N·b orbital sites.
+//!
+//! - Elastic dephasing: Σ^r_0 = d G^r, Σ^in_0 = d G^n (no energy exchange).
+//! - Einstein phonons in the self-consistent Born approximation, with
+//!   emission and absorption written so that scattering into E needs a filled
+//!   state at the source energy and scattering out of E needs an empty state
+//!   at the target energy (exclusion principle):
+//!   Σ^in(E) = Σ_m D_m [(N_m+1) G^n(E+ħω_m) + N_m G^n(E−ħω_m)],
+//!   Σ^out(E) = Σ_m D_m [(N_m+1) G^p(E−ħω_m) + N_m G^p(E+ħω_m)].
+//!   The retarded part is −iΓ0/2 plus, optionally, the Hermitian part from
+//!   the Hilbert transform of Γ0 over the grid.
+
+use crate::C64;
+
+mod hilbert;
+pub use hilbert::HilbertTransform;
+
+/// One Einstein phonon mode.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct PhononMode {
+    /// Energy asked for (eV).
+    pub requested_energy_ev: f64,
+    /// Energy snapped to a whole number of grid steps (eV).
+    pub energy_ev: f64,
+    /// ħω in grid steps.
+    pub steps: usize,
+    /// Coupling D_m on each orbital site (eV²), length N·b.
+    pub coupling_ev2: Vec<f64>,
+    /// Bath temperature (K).
+    pub bath_temperature_k: f64,
+}
+
+impl PhononMode {
+    /// Bose occupation N_m at the bath temperature.
+    pub fn occupation(&self) -> f64 {
+        crate::units::bose(self.energy_ev, self.bath_temperature_k)
+    }
+}
+
+/// What scatters electrons inside the device.
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
+pub struct Scattering {
+    /// Elastic dephasing strength on each orbital site (eV²), length N·b;
+    /// empty when there is none.
+    pub dephasing_ev2: Vec<f64>,
+    /// Phonon modes.
+    pub phonons: Vec<PhononMode>,
+    /// Include the Hermitian (principal-value) part of the phonon self-energy.
+    pub hermitian_part: bool,
+}
+
+impl Scattering {
+    /// True when nothing scatters (the coherent case).
+    pub fn is_coherent(&self) -> bool {
+        self.dephasing_ev2.iter().all(|&d| d == 0.0)
+            && self
+                .phonons
+                .iter()
+                .all(|m| m.coupling_ev2.iter().all(|&d| d == 0.0))
+    }
+
+    /// Largest phonon energy (eV), 0 without phonons.
+    pub fn max_phonon_energy(&self) -> f64 {
+        self.phonons.iter().map(|m| m.energy_ev).fold(0.0, f64::max)
+    }
+}
+
+/// Σ0 on every energy and orbital site, stored flat: index k·(N·b) + s.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ScatteringSelfEnergy {
+    /// Orbital sites per energy (N·b).
+    pub sites: usize,
+    /// Retarded Σ^r_0 (eV).
+    pub retarded: Vec<C64>,
+    /// In-scattering Σ^in_0 = −iΣ^< (eV), real on the diagonal.
+    pub inscatter: Vec<f64>,
+}
+
+impl ScatteringSelfEnergy {
+    /// All zero.
+    pub fn zeros(energies: usize, sites: usize) -> Self {
+        Self {
+            sites,
+            retarded: vec![C64::new(0.0, 0.0); energies * sites],
+            inscatter: vec![0.0; energies * sites],
+        }
+    }
+
+    /// Number of energies.
+    pub fn energies(&self) -> usize {
+        self.inscatter.len() / self.sites.max(1)
+    }
+
+    /// Broadening Γ0 = −2 Im Σ^r_0 at flat index.
+    #[inline]
+    pub fn gamma(&self, idx: usize) -> f64 {
+        -2.0 * self.retarded[idx].im
+    }
+
+    /// Out-scattering Σ^out_0 = Γ0 − Σ^in_0 at flat index.
+    #[inline]
+    pub fn outscatter(&self, idx: usize) -> f64 {
+        self.gamma(idx) - self.inscatter[idx]
+    }
+}
+
+/// Diagonal Green's functions on every energy and orbital site, stored flat
+/// (index k·(N·b) + s): what the local self-energies need.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LocalGreen {
+    /// Orbital sites per energy (N·b).
+    pub sites: usize,
+    /// Diagonal of G^r (1/eV).
+    pub retarded: Vec<C64>,
+    /// Diagonal of G^n = −iG^< (1/eV), real.
+    pub filled: Vec<f64>,
+}
+
+impl LocalGreen {
+    /// Spectral function A = −2 Im G^r at flat index.
+    #[inline]
+    pub fn spectral(&self, idx: usize) -> f64 {
+        -2.0 * self.retarded[idx].im
+    }
+
+    /// G^p = A − G^n at flat index.
+    #[inline]
+    pub fn empty(&self, idx: usize) -> f64 {
+        self.spectral(idx) - self.filled[idx]
+    }
+}
+
+impl Scattering {
+    /// Build Σ0 from the local Green's functions on the whole grid (the
+    /// "rebuild" step of the Born loop). Values of G at E ± ħω outside the
+    /// grid count as zero.
+    pub fn self_energy(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        hilbert: Option<&HilbertTransform>,
+    ) -> ScatteringSelfEnergy {
+        let ns = green.sites;
+        let mut out = ScatteringSelfEnergy::zeros(energies, ns);
+        // Phonon broadening per (k, s), accumulated separately so that its
+        // Hermitian part can be added by the Hilbert transform.
+        let mut gamma_ph = vec![0.0; energies * ns];
+        for mode in &self.phonons {
+            let n = mode.occupation();
+            let w = mode.steps;
+            for k in 0..energies {
+                let row = k * ns;
+                for s in 0..ns {
+                    let d = mode.coupling_ev2[s];
+                    if d == 0.0 {
+                        continue;
+                    }
+                    let mut sin = 0.0;
+                    let mut sout = 0.0;
+                    if k + w < energies {
+                        let up = (k + w) * ns + s;
+                        // emission into E from E + ħω; absorption out of E to E + ħω
+                        sin += (n + 1.0) * green.filled[up];
+                        sout += n * green.empty(up);
+                    }
+                    if k >= w {
+                        let down = (k - w) * ns + s;
+                        sin += n * green.filled[down];
+                        sout += (n + 1.0) * green.empty(down);
+                    }
+                    out.inscatter[row + s] += d * sin;
+                    gamma_ph[row + s] += d * (sin + sout);
+                }
+            }
+        }
+        for i in 0..energies * ns {
+            out.retarded[i] = C64::new(0.0, -0.5 * gamma_ph[i]);
+        }
+        if self.hermitian_part && !self.phonons.is_empty() {
+            let h = hilbert.expect("Hilbert transform plan when the Hermitian part is on");
+            let principal = h.apply_columns(&gamma_ph, energies, ns);
+            for i in 0..energies * ns {
+                out.retarded[i].re += principal[i];
+            }
+        }
+        if !self.dephasing_ev2.is_empty() {
+            for k in 0..energies {
+                let row = k * ns;
+                for s in 0..ns {
+                    let d = self.dephasing_ev2[s];
+                    if d != 0.0 {
+                        out.retarded[row + s] += green.retarded[row + s] * d;
+                        out.inscatter[row + s] += d * green.filled[row + s];
+                    }
+                }
+            }
+        }
+        out
+    }
+}

@@ -1,0 +1,4 @@
+//! The self-consistent Born loop.
+
+mod params;
+pub use params::{Mixing, ScbaParams};
