@@ -9,6 +9,7 @@ pub mod device;
 pub mod grid;
 pub mod leads;
 pub mod model;
+pub mod rgf;
 pub mod scattering;
 pub mod scba;
 pub mod units;

@@ -1,0 +1,80 @@
+//! Helpers shared by the integration tests: a seeded random generator and
+//! random block-tridiagonal problems.
+#![allow(dead_code)]
+
+use faer::Mat;
+use qheat::C64;
+
+/// xorshift64*: reproducible random numbers without a dependency.
+pub struct Rng(u64);
+
+impl Rng {
+    pub fn new(seed: u64) -> Self {
+        Self(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1)
+    }
+    pub fn next_u64(&mut self) -> u64 {
+        let mut x = self.0;
+        x ^= x >> 12;
+        x ^= x << 25;
+        x ^= x >> 27;
+        self.0 = x;
+        x.wrapping_mul(0x2545_F491_4F6C_DD1D)
+    }
+    /// Uniform in [-1, 1).
+    pub fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64 * 2.0 - 1.0
+    }
+    pub fn complex(&mut self) -> C64 {
+        C64::new(self.uniform(), self.uniform())
+    }
+}
+
+pub fn random_matrix(rng: &mut Rng, b: usize) -> Mat<C64> {
+    Mat::from_fn(b, b, |_, _| rng.complex())
+}
+
+pub fn random_hermitian(rng: &mut Rng, b: usize) -> Mat<C64> {
+    let a = random_matrix(rng, b);
+    Mat::from_fn(b, b, |r, c| (a[(r, c)] + a[(c, r)].conj()) * 0.5)
+}
+
+/// Positive semi-definite: X X† scaled.
+pub fn random_psd(rng: &mut Rng, b: usize, scale: f64) -> Mat<C64> {
+    let a = random_matrix(rng, b);
+    let p = &a * a.adjoint();
+    Mat::from_fn(b, b, |r, c| p[(r, c)] * scale)
+}
+
+/// A retarded self-energy: Hermitian part plus −iΓ/2 with Γ ≥ 0.
+pub fn random_self_energy(rng: &mut Rng, b: usize) -> Mat<C64> {
+    let h = random_hermitian(rng, b);
+    let g = random_psd(rng, b, 0.5);
+    Mat::from_fn(b, b, |r, c| {
+        h[(r, c)] * 0.3 + g[(r, c)] * C64::new(0.0, -0.5)
+    })
+}
+
+pub fn max_abs(m: &Mat<C64>) -> f64 {
+    let mut v: f64 = 0.0;
+    for r in 0..m.nrows() {
+        for c in 0..m.ncols() {
+            v = v.max(m[(r, c)].norm());
+        }
+    }
+    v
+}
+
+pub fn max_diff(a: &Mat<C64>, b: &Mat<C64>) -> f64 {
+    let mut v: f64 = 0.0;
+    for r in 0..a.nrows() {
+        for c in 0..a.ncols() {
+            v = v.max((a[(r, c)] - b[(r, c)]).norm());
+        }
+    }
+    v
+}
+
+/// Block (i, j) of a dense matrix of b×b blocks.
+pub fn block(m: &Mat<C64>, b: usize, i: usize, j: usize) -> Mat<C64> {
+    Mat::from_fn(b, b, |r, c| m[(i * b + r, j * b + c)])
+}
