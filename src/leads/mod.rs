@@ -3,7 +3,9 @@
 //! - b = 1 periodic leads: closed form Σ = |τ|² g_s with the surface Green's
 //!   function of a tight-binding chain (Economou, *Green's Functions in
 //!   Quantum Physics*, ch. 5).
-//! - b > 1 periodic leads: Sancho-Rubio decimation (M. P. López Sancho,
+//! - b > 1 periodic leads: the Bloch modes of the lead at real energy
+//!   (see [`mode_self_energy`]), checked against the matrix quadratic they
+//!   must satisfy; where that check fails, Sancho-Rubio decimation (M. P. López Sancho,
 //!   J. M. López Sancho, J. Rubio, J. Phys. F 15, 851 (1985)) with a small
 //!   positive imaginary energy η, iterated until the renormalised couplings
 //!   fall below a tolerance.
@@ -16,6 +18,9 @@
 use crate::C64;
 use faer::Mat;
 use faer::linalg::solvers::DenseSolveCore;
+
+mod modes;
+pub use modes::mode_self_energy;
 
 /// Which contact.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
@@ -58,7 +63,7 @@ pub struct DecimationParams {
 impl Default for DecimationParams {
     fn default() -> Self {
         Self {
-            eta_ev: 1e-9,
+            eta_ev: 1e-7,
             tolerance_ev: 1e-13,
             max_iterations: 200,
         }
@@ -66,7 +71,7 @@ impl Default for DecimationParams {
 }
 
 /// Lead errors: the numerical fact is in the error.
-#[derive(Debug, thiserror::Error, PartialEq)]
+#[derive(Debug, thiserror::Error, Clone, PartialEq)]
 pub enum LeadError {
     /// Decimation did not converge.
     #[error(
@@ -200,6 +205,9 @@ impl Lead {
                 Ok(Mat::from_fn(1, 1, |_, _| s))
             }
             Lead::Periodic { onsite, hopping } => {
+                if let Some(s) = mode_self_energy(energy_ev, onsite, hopping, side) {
+                    return Ok(s);
+                }
                 let (g, _) = match side {
                     Side::Left => surface_green_function(
                         energy_ev,

@@ -17,7 +17,6 @@ pub(super) fn solve_energy_scalar(
     let inr = input.inscatter_right[(0, 0)].re;
     let g = &mut ws.sg;
     let gn = &mut ws.sgn; // real values kept in the real part
-    let mut q = C64::new(0.0, 0.0);
 
     let mut prev_g = C64::new(0.0, 0.0);
     let mut prev_gn = 0.0;
@@ -54,7 +53,7 @@ pub(super) fn solve_energy_scalar(
     out.retarded[last] = g[last];
     out.filled[last] = gn[last].re;
     // G^r_1N for the transmission: G_iN = g_i τ_i G_i+1,N (left-connected g).
-    q = g[last];
+    let mut q = g[last];
     for i in (0..last).rev() {
         if input.want_transmission {
             q = g[i] * input.coupling[i][(0, 0)] * q;

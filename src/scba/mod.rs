@@ -1,4 +1,359 @@
-//! The self-consistent Born loop.
+//! The self-consistent Born loop (SCBA).
+//!
+//! 1. Start from Σ0 = 0 or a stored converged Σ0 (warm start).
+//! 2. For every energy (independent, in parallel): RGF → diagonals of G^r,
+//!    G^n, the bond flows and the terminal flows.
+//! 3. Rebuild Σ0 from the local Green's functions on all energies.
+//! 4. Mix (linear, or Anderson acceleration with a safeguard).
+//! 5. Stop when the relative change of Σ^in_0 and Σ^out_0 is below the
+//!    tolerance and each terminal current moved by less than
+//!    tol·|I_α| + floor. Reaching the iteration limit gives a result flagged
+//!    as not converged, never a silent answer.
+//!
+//! The returned [`Solution`] pairs the Green's functions with the Σ0 they
+//! were computed from, so that j_1 + j_2 + j_0 = 0 holds at every energy to
+//! rounding; the bath's own particle and energy balance then holds to the
+//! SCBA tolerance.
 
+mod mixing;
 mod params;
+
+pub use mixing::Mixer;
 pub use params::{Mixing, ScbaParams};
+
+use crate::C64;
+use crate::leads::{LeadError, Side};
+use crate::model::Problem;
+use crate::rgf::{self, EnergyInput, EnergyOutput, RgfError, TerminalFlows, Workspace};
+use crate::scattering::{HilbertTransform, LocalGreen, ScatteringSelfEnergy};
+use faer::Mat;
+use rayon::prelude::*;
+
+/// Why a solve could not produce Green's functions.
+#[derive(Debug, thiserror::Error, Clone, PartialEq)]
+pub enum SolveError {
+    /// A lead self-energy failed.
+    #[error(transparent)]
+    Lead(#[from] LeadError),
+    /// The recursion met a non-finite value.
+    #[error(transparent)]
+    Rgf(#[from] RgfError),
+    /// Inputs that do not fit together.
+    #[error("{0}")]
+    Invalid(String),
+}
+
+/// Lead self-energies on every grid energy (they do not change during the
+/// Born loop).
+#[derive(Clone, Debug)]
+pub struct LeadTable {
+    /// Σ_1(E_k).
+    pub left: Vec<Mat<C64>>,
+    /// Σ_2(E_k).
+    pub right: Vec<Mat<C64>>,
+}
+
+impl LeadTable {
+    /// Evaluate both leads on the grid of `problem`, in parallel.
+    pub fn new(problem: &Problem) -> Result<Self, SolveError> {
+        let b = problem.device.orbitals;
+        for (side, c) in [(Side::Left, &problem.left), (Side::Right, &problem.right)] {
+            if c.lead.orbitals() != b {
+                return Err(SolveError::Invalid(format!(
+                    "{side:?} lead has {} orbitals per cell, the device {b}",
+                    c.lead.orbitals()
+                )));
+            }
+        }
+        let grid = &problem.grid;
+        let pairs: Result<Vec<(Mat<C64>, Mat<C64>)>, LeadError> = (0..grid.count)
+            .into_par_iter()
+            .map(|k| {
+                let e = grid.energy(k);
+                Ok((
+                    problem
+                        .left
+                        .lead
+                        .self_energy(Side::Left, e, &problem.decimation)?,
+                    problem
+                        .right
+                        .lead
+                        .self_energy(Side::Right, e, &problem.decimation)?,
+                ))
+            })
+            .collect();
+        let (left, right) = pairs?.into_iter().unzip();
+        Ok(Self { left, right })
+    }
+}
+
+/// One pass of the recursion over all energies.
+#[derive(Clone, Debug)]
+pub struct Pass {
+    /// Diagonal G^r and G^n per energy and orbital site.
+    pub green: LocalGreen,
+    /// Bond flows per energy, (N − 1) per energy (see [`rgf::EnergyOutput`]).
+    pub bond: Vec<f64>,
+    /// Terminal flows per energy.
+    pub flows: Vec<TerminalFlows>,
+}
+
+/// Run the recursion at every energy with the scattering self-energy
+/// `sigma0`, in parallel over energies with one workspace per thread.
+pub fn pass(
+    problem: &Problem,
+    leads: &LeadTable,
+    sigma0: &ScatteringSelfEnergy,
+    want_transmission: bool,
+) -> Result<Pass, SolveError> {
+    let dev = &problem.device;
+    let n = dev.cells();
+    let b = dev.orbitals;
+    let ns = n * b;
+    let ne = problem.grid.count;
+    let nb = n.saturating_sub(1).max(1);
+    let mut green = LocalGreen {
+        sites: ns,
+        retarded: vec![C64::new(0.0, 0.0); ne * ns],
+        filled: vec![0.0; ne * ns],
+    };
+    let mut bond = vec![0.0; ne * nb];
+    let mut flows = vec![TerminalFlows::default(); ne];
+    green
+        .retarded
+        .par_chunks_mut(ns)
+        .zip(green.filled.par_chunks_mut(ns))
+        .zip(bond.par_chunks_mut(nb))
+        .zip(flows.par_iter_mut())
+        .enumerate()
+        .try_for_each_init(
+            || Workspace::new(n, b),
+            |ws, (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
+                let e = problem.grid.energy(k);
+                let sl = &leads.left[k];
+                let sr = &leads.right[k];
+                let fl_l = problem.left.occupation(e);
+                let fl_r = problem.right.occupation(e);
+                let gl = crate::leads::broadening(sl);
+                let grr = crate::leads::broadening(sr);
+                let inl = Mat::from_fn(b, b, |r, c| gl[(r, c)] * fl_l);
+                let inr = Mat::from_fn(b, b, |r, c| grr[(r, c)] * fl_r);
+                let input = EnergyInput {
+                    energy_ev: e,
+                    onsite: &dev.onsite,
+                    coupling: &dev.coupling,
+                    sigma_left: sl,
+                    sigma_right: sr,
+                    inscatter_left: &inl,
+                    inscatter_right: &inr,
+                    scatter_retarded: &sigma0.retarded[k * ns..(k + 1) * ns],
+                    scatter_in: &sigma0.inscatter[k * ns..(k + 1) * ns],
+                    want_transmission,
+                };
+                *fl = rgf::solve_energy(
+                    &input,
+                    ws,
+                    EnergyOutput {
+                        retarded: gr,
+                        filled: gn,
+                        bond: &mut bd[..n - 1],
+                        full: None,
+                    },
+                )?;
+                Ok(())
+            },
+        )?;
+    if n == 1 {
+        bond.clear();
+    }
+    Ok(Pass { green, bond, flows })
+}
+
+/// What one Born iteration did.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct IterationRecord {
+    /// Iteration number (1-based).
+    pub iteration: usize,
+    /// Relative change of (Σ^in_0, Σ^out_0) between input and output.
+    pub residual: f64,
+    /// Current from the left lead with the input Σ0 (A).
+    pub current_left_a: f64,
+    /// Current from the right lead with the input Σ0 (A).
+    pub current_right_a: f64,
+    /// Largest change of a terminal current since the last iteration,
+    /// relative to tol·|I| + floor (converged when ≤ 1).
+    pub current_change: f64,
+    /// Which update was used next ("linear", "anderson", "restart").
+    pub step: &'static str,
+}
+
+/// Sees each Born iteration (progress bars, logs). Solvers never print.
+pub trait Observer {
+    /// Called after every iteration.
+    fn iteration(&mut self, _record: &IterationRecord) {}
+}
+
+/// An observer that does nothing.
+pub struct Silent;
+impl Observer for Silent {}
+
+/// The convergence record of a solve.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct ScbaReport {
+    /// True when the tolerance was met (always true without scattering).
+    pub converged: bool,
+    /// Born iterations done (0 for a coherent device).
+    pub iterations: usize,
+    /// Every iteration.
+    pub history: Vec<IterationRecord>,
+    /// The settings used.
+    pub params: ScbaParams,
+    /// Hermitian part of the phonon self-energy included or neglected.
+    pub hermitian_part: bool,
+    /// Started from a stored Σ0.
+    pub warm_start: bool,
+}
+
+/// A solved operating point: the Green's functions and the Σ0 they were
+/// computed from.
+#[derive(Clone, Debug)]
+pub struct Solution {
+    /// The problem solved.
+    pub problem: Problem,
+    /// The last pass.
+    pub pass: Pass,
+    /// The scattering self-energy used in that pass.
+    pub sigma: ScatteringSelfEnergy,
+    /// Convergence record.
+    pub report: ScbaReport,
+}
+
+/// Electric currents (I_1, I_2) in A from terminal flows.
+pub fn terminal_currents(problem: &Problem, flows: &[TerminalFlows]) -> (f64, f64) {
+    let scale = -crate::units::ELEMENTARY_CHARGE * problem.spin_degeneracy
+        / crate::units::PLANCK_EV_S
+        * problem.grid.step_ev;
+    let (l, r) = flows
+        .iter()
+        .fold((0.0, 0.0), |(l, r), f| (l + f.left, r + f.right));
+    (l * scale, r * scale)
+}
+
+fn norm2(v: impl Iterator<Item = f64>) -> f64 {
+    v.map(|x| x * x).sum::<f64>().sqrt()
+}
+
+/// Relative change of (Σ^in, Σ^out) from `a` to `b`.
+pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f64 {
+    let n = a.inscatter.len();
+    let d_in = norm2((0..n).map(|i| b.inscatter[i] - a.inscatter[i]));
+    let d_out = norm2((0..n).map(|i| b.outscatter(i) - a.outscatter(i)));
+    let d_re = norm2((0..n).map(|i| b.retarded[i].re - a.retarded[i].re));
+    let s_in = norm2(b.inscatter.iter().copied());
+    let s_out = norm2((0..n).map(|i| b.outscatter(i)));
+    let s_re = norm2(b.retarded.iter().map(|z| z.re));
+    let scale = s_in + s_out + s_re;
+    if scale == 0.0 {
+        return 0.0;
+    }
+    (d_in + d_out + d_re) / scale
+}
+
+/// Solve one operating point: a single pass for a coherent device, the Born
+/// loop otherwise. `warm` is a Σ0 from a neighbouring operating point.
+pub fn solve(
+    problem: &Problem,
+    params: &ScbaParams,
+    warm: Option<&ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<Solution, SolveError> {
+    let leads = LeadTable::new(problem)?;
+    solve_with_leads(problem, &leads, params, warm, observer)
+}
+
+/// [`solve`] with lead self-energies already evaluated.
+pub fn solve_with_leads(
+    problem: &Problem,
+    leads: &LeadTable,
+    params: &ScbaParams,
+    warm: Option<&ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<Solution, SolveError> {
+    let ne = problem.grid.count;
+    let ns = problem.sites();
+    let scat = &problem.scattering;
+    let coherent = scat.is_coherent();
+    let mut report = ScbaReport {
+        converged: true,
+        iterations: 0,
+        history: Vec::new(),
+        params: *params,
+        hermitian_part: scat.hermitian_part && !scat.phonons.is_empty(),
+        warm_start: warm.is_some() && !coherent,
+    };
+    if coherent {
+        let sigma = ScatteringSelfEnergy::zeros(ne, ns);
+        let pass = pass(problem, leads, &sigma, true)?;
+        return Ok(Solution {
+            problem: problem.clone(),
+            pass,
+            sigma,
+            report,
+        });
+    }
+    let mut x = match warm {
+        Some(w) if w.sites == ns && w.energies() == ne => w.clone(),
+        Some(_) => {
+            return Err(SolveError::Invalid(
+                "warm-start self-energy does not match this grid and device".into(),
+            ));
+        }
+        None => ScatteringSelfEnergy::zeros(ne, ns),
+    };
+    let hilbert = report.hermitian_part.then(|| HilbertTransform::new(ne));
+    let mut mixer = Mixer::new(params.mixing);
+    let mut previous: Option<(f64, f64)> = None;
+    loop {
+        let p = pass(problem, leads, &x, false)?;
+        let (il, ir) = terminal_currents(problem, &p.flows);
+        let fx = scat.self_energy(&p.green, ne, hilbert.as_ref());
+        let residual = relative_change(&x, &fx);
+        let current_change = match previous {
+            None => f64::INFINITY,
+            Some((pl, pr)) => {
+                let rel = |now: f64, before: f64| {
+                    (now - before).abs() / (params.tolerance * now.abs() + params.current_floor_a)
+                };
+                rel(il, pl).max(rel(ir, pr))
+            }
+        };
+        previous = Some((il, ir));
+        report.iterations += 1;
+        let done = residual <= params.tolerance && current_change <= 1.0;
+        let out_of_budget = report.iterations >= params.max_iterations;
+        let step = if done || out_of_budget {
+            "final"
+        } else {
+            mixer.update(&mut x, &fx)
+        };
+        let record = IterationRecord {
+            iteration: report.iterations,
+            residual,
+            current_left_a: il,
+            current_right_a: ir,
+            current_change,
+            step,
+        };
+        observer.iteration(&record);
+        report.history.push(record);
+        if done || out_of_budget {
+            report.converged = done;
+            return Ok(Solution {
+                problem: problem.clone(),
+                pass: p,
+                sigma: x,
+                report,
+            });
+        }
+    }
+}

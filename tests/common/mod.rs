@@ -78,3 +78,66 @@ pub fn max_diff(a: &Mat<C64>, b: &Mat<C64>) -> f64 {
 pub fn block(m: &Mat<C64>, b: usize, i: usize, j: usize) -> Mat<C64> {
     Mat::from_fn(b, b, |r, c| m[(i * b + r, j * b + c)])
 }
+
+use qheat::device::Device;
+use qheat::grid::EnergyGrid;
+use qheat::leads::{DecimationParams, Lead};
+use qheat::model::{Contact, Problem};
+use qheat::scattering::Scattering;
+
+/// Periodic leads continuing the end cells of a device.
+pub fn continuation_leads(device: &Device) -> (Lead, Lead) {
+    let n = device.cells();
+    let hop = device
+        .coupling
+        .first()
+        .cloned()
+        .unwrap_or_else(|| Mat::zeros(device.orbitals, device.orbitals));
+    let hop_r = device
+        .coupling
+        .last()
+        .cloned()
+        .unwrap_or_else(|| hop.clone());
+    (
+        Lead::Periodic {
+            onsite: device.onsite[0].clone(),
+            hopping: hop,
+        },
+        Lead::Periodic {
+            onsite: device.onsite[n - 1].clone(),
+            hopping: hop_r,
+        },
+    )
+}
+
+/// A problem with continuation leads, no scattering.
+pub fn coherent_problem(
+    device: Device,
+    (mu_l, t_l): (f64, f64),
+    (mu_r, t_r): (f64, f64),
+    grid: EnergyGrid,
+) -> Problem {
+    let (ll, lr) = continuation_leads(&device);
+    Problem {
+        device,
+        left: Contact {
+            lead: ll,
+            fermi_level_ev: mu_l,
+            temperature_k: t_l,
+        },
+        right: Contact {
+            lead: lr,
+            fermi_level_ev: mu_r,
+            temperature_k: t_r,
+        },
+        scattering: Scattering::default(),
+        grid,
+        spin_degeneracy: 2.0,
+        decimation: DecimationParams::default(),
+    }
+}
+
+/// Relative difference |a − b|/|b|.
+pub fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b.abs()
+}

@@ -1,0 +1,103 @@
+//! Local electrochemical potential by density matching.
+//!
+//! µ_i is the Fermi level that, at the local temperature T_i, reproduces the
+//! electron number of cell i: Σ_k G^n_ii(E_k) = Σ_k A_ii(E_k) f(E_k; µ_i, T_i)
+//! (orbitals of the cell summed). The right side is monotone in µ_i, so
+//! bisection on a bracket wide enough to hold every occupation finds it.
+
+use crate::scba::Solution;
+use crate::units::{fermi, thermal_energy_ev};
+use rayon::prelude::*;
+
+/// Local Fermi levels and electron numbers per cell.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LocalFermiLevel {
+    /// µ_i (eV); NaN where the cell has no states in the energy window.
+    pub fermi_level_ev: Vec<f64>,
+    /// Electrons in the cell, g_s Σ_k G^n ΔE / 2π.
+    pub electrons: Vec<f64>,
+    /// Temperature used for the matching (K).
+    pub temperature_k: f64,
+}
+
+/// The lattice temperature: the first phonon bath temperature, or the mean
+/// of the contact temperatures without phonons.
+pub fn lattice_temperature(sol: &Solution) -> f64 {
+    let p = &sol.problem;
+    p.scattering
+        .phonons
+        .first()
+        .map(|m| m.bath_temperature_k)
+        .unwrap_or(0.5 * (p.left.temperature_k + p.right.temperature_k))
+}
+
+/// Solve Σ_k a_k f(E_k; µ, T) = target for µ by bisection.
+pub fn match_fermi_level(
+    energies: &[f64],
+    spectral: &[f64],
+    target: f64,
+    temperature_k: f64,
+) -> f64 {
+    let total: f64 = spectral.iter().sum();
+    if total <= 0.0 || !total.is_finite() {
+        return f64::NAN;
+    }
+    let kt = thermal_energy_ev(temperature_k);
+    let (emin, emax) = (energies[0], energies[energies.len() - 1]);
+    let mut lo = emin - 60.0 * kt;
+    let mut hi = emax + 60.0 * kt;
+    let count = |mu: f64| -> f64 {
+        energies
+            .iter()
+            .zip(spectral)
+            .map(|(&e, &a)| a * fermi(e, mu, temperature_k))
+            .sum()
+    };
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid == lo || mid == hi {
+            break;
+        }
+        if count(mid) < target {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
+/// Local Fermi level of every cell at the lattice temperature.
+pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
+    let p = &sol.problem;
+    let b = p.device.orbitals;
+    let n = p.device.cells();
+    let ne = p.grid.count;
+    let ns = n * b;
+    let energies = p.grid.energies();
+    let t = lattice_temperature(sol);
+    let green = &sol.pass.green;
+    let per_cell: Vec<(f64, f64)> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let mut a = vec![0.0; ne];
+            let mut filled = 0.0;
+            for (k, ak) in a.iter_mut().enumerate() {
+                for o in 0..b {
+                    let idx = k * ns + i * b + o;
+                    *ak += green.spectral(idx);
+                    filled += green.filled[idx];
+                }
+            }
+            let mu = match_fermi_level(&energies, &a, filled, t);
+            let electrons =
+                p.spin_degeneracy * filled * p.grid.step_ev / (2.0 * std::f64::consts::PI);
+            (mu, electrons)
+        })
+        .collect();
+    LocalFermiLevel {
+        fermi_level_ev: per_cell.iter().map(|x| x.0).collect(),
+        electrons: per_cell.iter().map(|x| x.1).collect(),
+        temperature_k: t,
+    }
+}

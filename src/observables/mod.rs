@@ -1,0 +1,271 @@
+//! Observables of a solved operating point (physics conventions of the
+//! crate manual):
+//!
+//! - particle flow per unit energy from contact α into the device,
+//!   j_α(E) = (g_s/h) Tr[Σ^in_α A − Γ_α G^n]; from the scattering bath at
+//!   each orbital site j_0 = (g_s/h)(Σ^in_0 A − Γ0 G^n);
+//! - electric current into the device I_α = −e ∫ j_α dE, energy current
+//!   J_E,α = ∫ E j_α dE, heat current J_Q,α = ∫ (E − µ_α) j_α dE;
+//! - lattice power at cell i, P_i = −∫ E j_0,i dE (positive: heated);
+//! - the conservation ledger; the local Fermi level by density matching;
+//!   the energy-resolved bond current.
+//!
+//! All energy integrals are plain sums Σ_k g(E_k) ΔE.
+
+mod fermi_level;
+pub use fermi_level::{LocalFermiLevel, local_fermi_levels};
+
+use crate::model::Problem;
+use crate::scba::Solution;
+use crate::units::{ELEMENTARY_CHARGE, PLANCK_EV_S};
+
+/// Particle flows per unit energy (1/(eV s)) for each energy.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Spectrum {
+    /// Energies (eV).
+    pub energy_ev: Vec<f64>,
+    /// j_1(E): electrons per second per eV entering from the left lead.
+    pub flow_left: Vec<f64>,
+    /// j_2(E): from the right lead.
+    pub flow_right: Vec<f64>,
+    /// j_0(E) summed over sites: from the scattering bath.
+    pub flow_bath: Vec<f64>,
+    /// Coherent transmission T(E); `None` with scattering.
+    pub transmission: Option<Vec<f64>>,
+}
+
+/// Conservation ledger: absolute residuals and residuals relative to the
+/// gross flows through the device.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Ledger {
+    /// I_1 + I_2 (A).
+    pub charge_a: f64,
+    /// |I_1 + I_2| / Σ_k (|j_1| + |j_2|) e ΔE.
+    pub charge_relative: f64,
+    /// J_E,1 + J_E,2 − Σ_i P_i (W).
+    pub energy_w: f64,
+    /// |J_E,1 + J_E,2 − Σ P_i| / Σ_k |E_k| (|j_1| + |j_2| + |j_0|) e ΔE.
+    pub energy_relative: f64,
+    /// Σ_i P_i − (I·V + J_Q,1 + J_Q,2) (W).
+    pub heat_w: f64,
+    /// |heat_w| / Σ_k (|E_k − µ_1||j_1| + |E_k − µ_2||j_2|) e ΔE + |I V|.
+    pub heat_relative: f64,
+}
+
+impl Ledger {
+    /// Largest relative residual.
+    pub fn worst_relative(&self) -> f64 {
+        self.charge_relative
+            .max(self.energy_relative)
+            .max(self.heat_relative)
+    }
+}
+
+/// Per-cell profile along the device.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct SiteProfile {
+    /// Cell positions (nm).
+    pub x_nm: Vec<f64>,
+    /// Local band bottom (eV).
+    pub band_edge_ev: Vec<f64>,
+    /// Local Fermi level µ_i (eV).
+    pub fermi_level_ev: Vec<f64>,
+    /// Lattice power P_i (W), positive = lattice heated.
+    pub lattice_power_w: Vec<f64>,
+    /// Electrons per nm along the device (spin included).
+    pub electron_density_per_nm: Vec<f64>,
+    /// Drop of the local Fermi level to the next cell, (µ_i − µ_i+1)/e (V);
+    /// the last cell carries the drop into the right contact, µ_N − µ_2.
+    pub voltage_drop_v: Vec<f64>,
+}
+
+/// Every scalar and profile of an operating point.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Observables {
+    /// V = V_1 − V_2 (V).
+    pub voltage_v: f64,
+    /// I = I_1 (A).
+    pub current_a: f64,
+    /// I_1 (A).
+    pub current_left_a: f64,
+    /// I_2 (A).
+    pub current_right_a: f64,
+    /// J_E,1 (W).
+    pub energy_current_left_w: f64,
+    /// J_E,2 (W).
+    pub energy_current_right_w: f64,
+    /// J_Q,1: heat current out of the left contact into the device (W).
+    pub heat_current_left_w: f64,
+    /// J_Q,2 (W).
+    pub heat_current_right_w: f64,
+    /// Σ_i P_i (W).
+    pub lattice_power_w: f64,
+    /// Power delivered by the contacts to the device, I·V (W).
+    pub electrical_power_w: f64,
+    /// Conductance I/V when V ≠ 0 (S).
+    pub conductance_s: Option<f64>,
+    /// Drop of the Fermi level from the left contact into the first cell
+    /// (µ_1 − µ_first)/e (V).
+    pub contact_drop_left_v: f64,
+    /// Conservation ledger.
+    pub ledger: Ledger,
+    /// Profiles per cell.
+    pub sites: SiteProfile,
+    /// Energy-resolved flows.
+    pub spectrum: Spectrum,
+}
+
+/// g_s/h in 1/(eV s).
+pub fn flow_scale(problem: &Problem) -> f64 {
+    problem.spin_degeneracy / PLANCK_EV_S
+}
+
+/// Bath particle flow per orbital site j_0 / (g_s/h) at energy index k.
+fn bath_trace(sol: &Solution, k: usize, s: usize) -> f64 {
+    let idx = k * sol.pass.green.sites + s;
+    let sin = sol.sigma.inscatter[idx];
+    let gamma = sol.sigma.gamma(idx);
+    sin * sol.pass.green.spectral(idx) - gamma * sol.pass.green.filled[idx]
+}
+
+/// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed.
+pub fn lattice_power(sol: &Solution) -> Vec<f64> {
+    let p = &sol.problem;
+    let b = p.device.orbitals;
+    let n = p.device.cells();
+    let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
+    (0..n)
+        .map(|i| {
+            let mut acc = 0.0;
+            for k in 0..p.grid.count {
+                let e = p.grid.energy(k);
+                let t: f64 = (0..b).map(|o| bath_trace(sol, k, i * b + o)).sum();
+                acc += e * t;
+            }
+            acc * scale
+        })
+        .collect()
+}
+
+/// Energy-resolved bond current as an electron flow per unit energy times e
+/// (A/eV), positive for electrons moving to +x: shape (cells − 1) × energies.
+pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
+    let p = &sol.problem;
+    let n = p.device.cells();
+    let ne = p.grid.count;
+    let pairs = n.saturating_sub(1);
+    let scale = ELEMENTARY_CHARGE * flow_scale(p);
+    ndarray::Array2::from_shape_fn((pairs, ne), |(i, k)| sol.pass.bond[k * pairs + i] * scale)
+}
+
+/// Compute every observable of a solution.
+pub fn observe(sol: &Solution) -> Observables {
+    let p = &sol.problem;
+    let grid = &p.grid;
+    let de = grid.step_ev;
+    let ns = p.sites();
+    let js = flow_scale(p);
+    let e_c = ELEMENTARY_CHARGE;
+    let (mu1, mu2) = (p.left.fermi_level_ev, p.right.fermi_level_ev);
+    let coherent = p.scattering.is_coherent();
+
+    let mut spectrum = Spectrum {
+        energy_ev: grid.energies(),
+        flow_left: Vec::with_capacity(grid.count),
+        flow_right: Vec::with_capacity(grid.count),
+        flow_bath: Vec::with_capacity(grid.count),
+        transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
+    };
+    let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
+    let (mut gross_n, mut gross_e, mut gross_q) = (0.0, 0.0, 0.0);
+    for (k, f) in sol.pass.flows.iter().enumerate() {
+        let e = grid.energy(k);
+        let j1 = js * f.left;
+        let j2 = js * f.right;
+        let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
+        spectrum.flow_left.push(j1);
+        spectrum.flow_right.push(j2);
+        spectrum.flow_bath.push(j0);
+        n1 += j1;
+        n2 += j2;
+        e1 += e * j1;
+        e2 += e * j2;
+        gross_n += j1.abs() + j2.abs();
+        gross_e += e.abs() * (j1.abs() + j2.abs() + j0.abs());
+        gross_q += (e - mu1).abs() * j1.abs() + (e - mu2).abs() * j2.abs();
+    }
+    let to_amp = -e_c * de;
+    let to_watt = e_c * de;
+    let current_left_a = n1 * to_amp;
+    let current_right_a = n2 * to_amp;
+    let energy_current_left_w = e1 * to_watt;
+    let energy_current_right_w = e2 * to_watt;
+    let heat_current_left_w = energy_current_left_w - mu1 * n1 * to_watt;
+    let heat_current_right_w = energy_current_right_w - mu2 * n2 * to_watt;
+    let lattice = lattice_power(sol);
+    let lattice_power_w: f64 = lattice.iter().sum();
+    let voltage_v = p.voltage_v();
+    let electrical_power_w = current_left_a * voltage_v;
+    let charge_a = current_left_a + current_right_a;
+    let energy_w = energy_current_left_w + energy_current_right_w - lattice_power_w;
+    let heat_w =
+        lattice_power_w - (electrical_power_w + heat_current_left_w + heat_current_right_w);
+    let rel = |x: f64, scale: f64| {
+        if scale > 0.0 {
+            x.abs() / scale
+        } else {
+            x.abs()
+        }
+    };
+    let ledger = Ledger {
+        charge_a,
+        charge_relative: rel(charge_a, gross_n * e_c * de),
+        energy_w,
+        energy_relative: rel(energy_w, gross_e * e_c * de),
+        heat_w,
+        heat_relative: rel(heat_w, gross_q * e_c * de + electrical_power_w.abs()),
+    };
+
+    let levels = local_fermi_levels(sol);
+    let n = p.device.cells();
+    let mut voltage_drop_v = Vec::with_capacity(n);
+    for i in 0..n {
+        let next = if i + 1 < n {
+            levels.fermi_level_ev[i + 1]
+        } else {
+            mu2
+        };
+        voltage_drop_v.push(levels.fermi_level_ev[i] - next);
+    }
+    let contact_drop_left_v = mu1 - levels.fermi_level_ev[0];
+    let sites = SiteProfile {
+        x_nm: p.device.x_nm.clone(),
+        band_edge_ev: p.device.band_edge_ev.clone(),
+        fermi_level_ev: levels.fermi_level_ev,
+        lattice_power_w: lattice,
+        electron_density_per_nm: levels
+            .electrons
+            .iter()
+            .map(|e| e / p.device.spacing_nm)
+            .collect(),
+        voltage_drop_v,
+    };
+    let conductance_s = (voltage_v != 0.0).then(|| current_left_a / voltage_v);
+    Observables {
+        voltage_v,
+        current_a: current_left_a,
+        current_left_a,
+        current_right_a,
+        energy_current_left_w,
+        energy_current_right_w,
+        heat_current_left_w,
+        heat_current_right_w,
+        lattice_power_w,
+        electrical_power_w,
+        conductance_s,
+        contact_drop_left_v,
+        ledger,
+        sites,
+        spectrum,
+    }
+}

@@ -1,0 +1,1 @@
+//! Linear response by finite differences (being written).
