@@ -133,3 +133,30 @@ pub fn from_transmission(
         "transmission moments",
     )
 }
+
+/// Coherent coefficients of a problem: one pass at the problem's grid,
+/// T(E) from it, moments around µ = (µ1 + µ2)/2 and T = (T1 + T2)/2. The
+/// problem should describe the device at zero bias.
+pub fn coherent_coefficients(
+    problem: &crate::model::Problem,
+    phonon_conductance_w_per_k: f64,
+) -> Result<Coefficients, crate::scba::SolveError> {
+    let sol = crate::scba::solve(
+        problem,
+        &crate::scba::ScbaParams::default(),
+        None,
+        &mut crate::scba::Silent,
+    )?;
+    let t: Vec<f64> = sol.pass.flows.iter().map(|f| f.transmission).collect();
+    let mu = 0.5 * (problem.left.fermi_level_ev + problem.right.fermi_level_ev);
+    let temp = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
+    Ok(from_transmission(
+        &problem.grid.energies(),
+        &t,
+        problem.grid.step_ev,
+        mu,
+        temp,
+        problem.spin_degeneracy,
+        phonon_conductance_w_per_k,
+    ))
+}
