@@ -2,6 +2,8 @@
 //! random block-tridiagonal problems.
 #![allow(dead_code)]
 
+pub mod dense_scba;
+
 use faer::Mat;
 use qheat::C64;
 
@@ -140,4 +142,35 @@ pub fn coherent_problem(
 /// Relative difference |a − b|/|b|.
 pub fn rel(a: f64, b: f64) -> f64 {
     (a - b).abs() / b.abs()
+}
+
+use qheat::scattering::PhononMode;
+
+/// A phonon mode of energy ≈ `energy` snapped to the grid, coupling `d` on
+/// the orbital sites where `mask` is true.
+pub fn phonon(grid: &EnergyGrid, energy: f64, d: f64, mask: &[bool], bath_k: f64) -> PhononMode {
+    let steps = grid.steps_for(energy);
+    PhononMode {
+        requested_energy_ev: energy,
+        energy_ev: steps as f64 * grid.step_ev,
+        steps,
+        coupling_ev2: mask.iter().map(|&m| if m { d } else { 0.0 }).collect(),
+        bath_temperature_k: bath_k,
+    }
+}
+
+/// Effective-mass chain with a barrier of `height` on cells [b0, b1).
+pub fn barrier_chain(
+    cells: usize,
+    spacing: f64,
+    mass: f64,
+    b0: usize,
+    b1: usize,
+    height: f64,
+) -> Device {
+    let t = qheat::units::hopping_ev(mass, spacing);
+    let u = (0..cells)
+        .map(|i| if i >= b0 && i < b1 { height } else { 0.0 })
+        .collect();
+    qheat::device::chain(spacing, t, 0.0, u)
 }
