@@ -10,6 +10,7 @@ pub mod grid;
 pub mod leads;
 pub mod model;
 pub mod observables;
+pub mod output;
 pub mod rgf;
 pub mod scattering;
 pub mod scba;

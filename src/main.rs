@@ -1,3 +1,5 @@
-fn main() {
-    println!("Hello, world!");
+//! The `qheat` command: a thin layer over the library.
+
+fn main() -> std::process::ExitCode {
+    qheat::cli::run()
 }

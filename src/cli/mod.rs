@@ -1,0 +1,201 @@
+//! Command line: argument definitions and the command handlers. This is the
+//! only part of the crate that prints.
+
+mod coefficients;
+mod format;
+mod progress;
+mod solve;
+
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Electro-thermal quantum transport: charge and heat currents,
+/// thermoelectric coefficients and where the lattice is heated or cooled.
+#[derive(Parser, Debug)]
+#[command(name = "qheat", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+    /// Worker threads for the energy loop (default: all cores).
+    #[arg(long, global = true)]
+    pub threads: Option<usize>,
+    /// Print nothing but errors (and the JSON summary with --json).
+    #[arg(long, global = true)]
+    pub quiet: bool,
+    /// Print the summary as JSON on stdout.
+    #[arg(long, global = true)]
+    pub json: bool,
+}
+
+/// The commands.
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Parse and validate a case; print the resolved case and warnings.
+    Check {
+        /// Case file (TOML).
+        case: PathBuf,
+    },
+    /// Solve one operating point: currents, heat currents, ledger,
+    /// lattice-power map, local Fermi level, spectra.
+    Solve {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// Result folder (default: runs/<case name>).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+        /// Start the Born loop from the self-energy stored in this result folder.
+        #[arg(long, value_name = "DIR")]
+        warm_start: Option<PathBuf>,
+    },
+    /// Linear response: G, S, Π, κe, Lorenz ratio, power factor, ZT and the
+    /// Onsager (Kelvin) residual.
+    Coefficients {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// Result folder (default: runs/<case name>-coefficients).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+    },
+}
+
+/// How a command failed; each kind has its exit code.
+#[derive(Debug)]
+pub enum Failure {
+    /// Bad input: exit 1.
+    BadInput(String),
+    /// The solver did not converge or met a numerical fault; results, if
+    /// any, are written and flagged: exit 2.
+    Solver(String),
+    /// Reading or writing files failed: exit 3.
+    Io(String),
+}
+
+impl Failure {
+    fn code(&self) -> u8 {
+        match self {
+            Failure::BadInput(_) => 1,
+            Failure::Solver(_) => 2,
+            Failure::Io(_) => 3,
+        }
+    }
+    fn message(&self) -> &str {
+        match self {
+            Failure::BadInput(m) | Failure::Solver(m) | Failure::Io(m) => m,
+        }
+    }
+}
+
+impl From<crate::case::CaseError> for Failure {
+    fn from(e: crate::case::CaseError) -> Self {
+        Failure::BadInput(e.to_string())
+    }
+}
+
+impl From<crate::output::OutputError> for Failure {
+    fn from(e: crate::output::OutputError) -> Self {
+        Failure::Io(e.to_string())
+    }
+}
+
+/// Options every command shares.
+#[derive(Clone, Copy, Debug)]
+pub struct Common {
+    /// Threads in the pool.
+    pub threads: usize,
+    /// Suppress progress and the human summary.
+    pub quiet: bool,
+    /// Print JSON on stdout.
+    pub json: bool,
+}
+
+/// Parse the command line, run, and map the outcome to an exit code.
+pub fn run() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 1 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    let threads = cli.threads.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+    if threads == 0 {
+        eprintln!("error: --threads must be at least 1");
+        return ExitCode::from(1);
+    }
+    // The global pool can be set once; tests run commands in fresh processes.
+    let _ = rayon::ThreadPoolBuilder::new().num_threads(threads).build_global();
+    let common = Common {
+        threads: rayon::current_num_threads(),
+        quiet: cli.quiet,
+        json: cli.json,
+    };
+    let outcome = match &cli.command {
+        Command::Check { case } => solve::check(case, &common),
+        Command::Solve { case, out, warm_start } => solve::solve(case, out.as_deref(), warm_start.as_deref(), &common),
+        Command::Coefficients { case, out } => coefficients::coefficients(case, out.as_deref(), &common),
+    };
+    match outcome {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(f) => {
+            eprintln!("error: {}", f.message());
+            ExitCode::from(f.code())
+        }
+    }
+}
+
+/// Default result folder: runs/<case name><suffix>.
+pub fn default_out(case_name: &str, suffix: &str) -> PathBuf {
+    let safe: String = case_name
+        .chars()
+        .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' { c } else { '_' })
+        .collect();
+    PathBuf::from("runs").join(format!("{safe}{suffix}"))
+}
+
+/// Print warnings and notes on stderr unless quiet.
+pub fn print_warnings(warnings: &[String], notes: &[String], common: &Common) {
+    if common.quiet {
+        return;
+    }
+    for w in warnings {
+        eprintln!("warning: {w}");
+    }
+    for n in notes {
+        eprintln!("note: {n}");
+    }
+}
+
+/// Refuse a case whose arrays would not fit in memory, with the estimate.
+pub fn check_memory(estimate_bytes: u64) -> Result<(), Failure> {
+    let available = available_memory_bytes();
+    if let Some(avail) = available
+        && estimate_bytes > avail / 10 * 8
+    {
+        return Err(Failure::BadInput(format!(
+            "this case needs about {:.1} GiB for its energy-resolved arrays but only {:.1} GiB are available; \
+             use a coarser grid.step_ev, a narrower grid window, fewer cells, or linear mixing (mixing = \"linear\") \
+             which keeps no history",
+            estimate_bytes as f64 / (1u64 << 30) as f64,
+            avail as f64 / (1u64 << 30) as f64
+        )));
+    }
+    Ok(())
+}
+
+/// MemAvailable from /proc/meminfo (Linux); `None` elsewhere.
+pub fn available_memory_bytes() -> Option<u64> {
+    if let Ok(v) = std::env::var("QHEAT_MEMORY_LIMIT_BYTES")
+        && let Ok(n) = v.parse::<u64>()
+    {
+        return Some(n);
+    }
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    text.lines()
+        .find(|l| l.starts_with("MemAvailable:"))
+        .and_then(|l| l.split_whitespace().nth(1))
+        .and_then(|kb| kb.parse::<u64>().ok())
+        .map(|kb| kb * 1024)
+}

@@ -1,0 +1,161 @@
+//! `qheat check` and `qheat solve`.
+
+use super::format::{residual, si};
+use super::progress::{BornProgress, enabled};
+use super::{Common, Failure, check_memory, default_out, print_warnings};
+use crate::case::{Case, Resolved};
+use crate::observables::{Observables, observe};
+use crate::output::Staging;
+use crate::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
+use crate::scba::{Solution, solve as born_solve};
+use std::path::Path;
+
+/// Load and resolve a case, printing its warnings.
+pub fn load(path: &Path, common: &Common) -> Result<(Case, Resolved), Failure> {
+    let case = Case::load(path)?;
+    let resolved = case.resolve()?;
+    print_warnings(&resolved.warnings, &resolved.notes, common);
+    Ok((case, resolved))
+}
+
+/// `qheat check CASE`.
+pub fn check(path: &Path, common: &Common) -> Result<(), Failure> {
+    let case = Case::load(path)?;
+    let resolved = case.resolve()?;
+    if common.json {
+        let v = serde_json::json!({
+            "case_name": case.name,
+            "cells": resolved.problem.device.cells(),
+            "orbitals_per_cell": resolved.problem.device.orbitals,
+            "grid": resolved.problem.grid,
+            "phonons": resolved.problem.scattering.phonons.iter().map(|m| serde_json::json!({
+                "requested_energy_ev": m.requested_energy_ev, "energy_ev": m.energy_ev, "grid_steps": m.steps,
+                "bath_temperature_k": m.bath_temperature_k})).collect::<Vec<_>>(),
+            "memory_estimate_bytes": resolved.memory_estimate_bytes(),
+            "warnings": resolved.warnings,
+            "notes": resolved.notes,
+        });
+        println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
+    } else if !common.quiet {
+        print!("{}", resolved.describe());
+    }
+    Ok(())
+}
+
+/// Human summary of one operating point.
+pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
+    let r = &sol.report;
+    println!("operating point   V = {}, T = {} K / {} K", si(o.voltage_v, "V", 4), sol.problem.left.temperature_k, sol.problem.right.temperature_k);
+    if sol.problem.scattering.is_coherent() {
+        println!("transport         coherent (no scattering inside the device)");
+    } else {
+        println!(
+            "Born loop         {} after {} iterations, residual {}{}",
+            if r.converged { "converged" } else { "NOT CONVERGED" },
+            r.iterations,
+            r.history.last().map(|h| residual(h.residual)).unwrap_or_default(),
+            if r.hermitian_part { ", Hermitian part included" } else { "" }
+        );
+    }
+    println!("current           I = {}", si(o.current_a, "A", 4));
+    if let Some(g) = o.conductance_s {
+        println!("conductance       G = I/V = {}", si(g, "S", 4));
+    }
+    println!("heat current      left {}  right {}  (out of each contact into the device)", si(o.heat_current_left_w, "W", 4), si(o.heat_current_right_w, "W", 4));
+    println!("electrical power  I·V = {}", si(o.electrical_power_w, "W", 4));
+    println!("lattice power     {} in total", si(o.lattice_power_w, "W", 4));
+    if !sol.problem.scattering.is_coherent() {
+        let p = &o.sites.lattice_power_w;
+        let (imax, pmax) = p.iter().enumerate().fold((0, f64::NEG_INFINITY), |a, (i, &v)| if v > a.1 { (i, v) } else { a });
+        let (imin, pmin) = p.iter().enumerate().fold((0, f64::INFINITY), |a, (i, &v)| if v < a.1 { (i, v) } else { a });
+        println!("  hottest cell    x = {:.2} nm: {}", o.sites.x_nm[imax], si(pmax, "W", 3));
+        println!("  coolest cell    x = {:.2} nm: {}", o.sites.x_nm[imin], si(pmin, "W", 3));
+    }
+    let drops = &o.sites.voltage_drop_v;
+    if let Some((i, d)) = drops.iter().enumerate().take(drops.len().saturating_sub(1)).max_by(|a, b| a.1.abs().total_cmp(&b.1.abs())) {
+        println!("largest drop      of the local Fermi level at x = {:.2} nm: {}", o.sites.x_nm[i], si(*d, "V", 3));
+    }
+    let l = &o.ledger;
+    println!(
+        "ledger            charge {}  energy {}  heat {}  (relative residuals)",
+        residual(l.charge_relative),
+        residual(l.energy_relative),
+        residual(l.heat_relative)
+    );
+    println!("results           {}", out.display());
+}
+
+/// `qheat solve CASE`.
+pub fn solve(path: &Path, out: Option<&Path>, warm_start: Option<&Path>, common: &Common) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let warm = match warm_start {
+        Some(dir) => Some(read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?),
+        None => None,
+    };
+    let out_dir = out.map(Path::to_path_buf).unwrap_or_else(|| default_out(&case.name, ""));
+    let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
+    let result = born_solve(&resolved.problem, &resolved.scba, warm.as_ref(), &mut bar);
+    bar.finish();
+    let case_toml = case.to_toml_string();
+    let info = RunInfo {
+        case_name: &case.name,
+        case_file: &path.display().to_string(),
+        case_toml: &case_toml,
+        warnings: &resolved.warnings,
+        notes: &resolved.notes,
+        threads: common.threads,
+    };
+    let sol = match result {
+        Ok(s) => s,
+        Err(e) => {
+            write_failure(&out_dir, &info, &e.to_string())?;
+            return Err(Failure::Solver(format!(
+                "{e}; nothing trustworthy was computed (summary.json in {} says so)",
+                out_dir.display()
+            )));
+        }
+    };
+    let o = observe(&sol);
+    let summary = solve_summary(&sol, &o, &info);
+    let stage = Staging::new(&out_dir)?;
+    write_solve_files(&stage, &sol, &o, &summary)?;
+    stage.commit()?;
+    if common.json {
+        println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));
+    } else if !common.quiet {
+        print_summary(&sol, &o, &out_dir);
+    }
+    if !sol.report.converged {
+        let last = sol.report.history.last();
+        return Err(Failure::Solver(format!(
+            "the Born loop did not converge in {} iterations (last residual {}, current change {:.2} of the allowance); \
+             results in {} are flagged as not converged",
+            sol.report.iterations,
+            last.map(|h| residual(h.residual)).unwrap_or_default(),
+            last.map(|h| h.current_change).unwrap_or(f64::NAN),
+            out_dir.display()
+        )));
+    }
+    Ok(())
+}
+
+/// A summary that says the run failed, so nobody mistakes old files for it.
+fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &str) -> Result<(), Failure> {
+    let v = serde_json::json!({
+        "program": crate::output::results::program(),
+        "kind": "solve",
+        "case_name": info.case_name,
+        "case_file": info.case_file,
+        "threads": info.threads,
+        "converged": false,
+        "trustworthy": false,
+        "error": error,
+        "warnings": info.warnings,
+        "resolved_case": info.case_toml,
+    });
+    let stage = Staging::new(out_dir)?;
+    stage.write("summary.json", serde_json::to_string_pretty(&v).expect("JSON").as_bytes())?;
+    stage.commit()?;
+    Ok(())
+}
