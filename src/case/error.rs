@@ -37,7 +37,7 @@ pub struct CaseError {
     /// The case file (or the origin given to [`super::Case::parse`]).
     pub origin: String,
     /// 1-based line and column (in characters) of the offending text.
-    pub location: Option<(usize, usize)>,
+    pub location: Option<(u32, u32)>,
     /// The dotted key path, e.g. `leads.left.temperature_k`.
     pub key: Option<String>,
     /// What was expected and what was found.
@@ -85,7 +85,13 @@ impl ErrorContext<'_> {
         message: impl Into<String>,
     ) -> CaseError {
         let location = match (self.text, span) {
-            (Some(text), Some(span)) => Some(line_column(text, span.start)),
+            (Some(text), Some(span)) => {
+                let (l, c) = line_column(text, span.start);
+                Some((
+                    u32::try_from(l).unwrap_or(u32::MAX),
+                    u32::try_from(c).unwrap_or(u32::MAX),
+                ))
+            }
             _ => None,
         };
         CaseError {
@@ -199,8 +205,9 @@ mod tests {
         let t = "a = 1\nµ = 2\n";
         assert_eq!(line_column(t, 0), (1, 1));
         assert_eq!(line_column(t, 6), (2, 1));
-        // 'µ' is two bytes; the '=' after it is the third character.
-        assert_eq!(line_column(t, 9), (2, 4));
+        // 'µ' takes bytes 6-7 and the space byte 8, so byte 9 is '=', the
+        // third character of line 2.
+        assert_eq!(line_column(t, 9), (2, 3));
         assert_eq!(line_column(t, 1000), (3, 1));
     }
 

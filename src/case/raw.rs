@@ -145,11 +145,19 @@ pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, C
             index
         }
         Err(e) => {
+            // Quote the offending text when it is short (a duplicate key's
+            // span is the key itself).
+            let near = e
+                .span()
+                .and_then(|s| text.get(s))
+                .filter(|t| !t.trim().is_empty() && t.len() <= 60 && !t.contains('\n'))
+                .map(|t| format!(" at `{}`", t.trim()))
+                .unwrap_or_default();
             return Err(ctx.error(
                 CaseErrorKind::Syntax,
                 e.span(),
                 None,
-                format!("invalid TOML: {}", e.message().trim()),
+                format!("invalid TOML: {}{near}", e.message().trim()),
             ));
         }
     };

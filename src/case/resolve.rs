@@ -343,7 +343,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
         .as_ref()
         .and_then(|m| m.span.clone())
         .or(spec.grid.min_ev.as_ref().and_then(|m| m.span.clone()));
-    if !(max_ev > min_ev) {
+    if max_ev <= min_ev || !max_ev.is_finite() || !min_ev.is_finite() {
         return Err(ctx.invalid(
             span_of_window,
             "grid.max_ev",

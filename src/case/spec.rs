@@ -149,8 +149,15 @@ pub(crate) struct Checker<'a> {
     pub ctx: ErrorContext<'a>,
 }
 
-fn show(x: f64) -> String {
-    format!("{x}")
+/// A number as people write it: plain for ordinary sizes, exponent form
+/// for very small or very large ones.
+pub(crate) fn show(x: f64) -> String {
+    let a = x.abs();
+    if a != 0.0 && a.is_finite() && !(1e-4..1e6).contains(&a) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
 }
 
 impl Checker<'_> {
@@ -561,8 +568,8 @@ pub(crate) fn validate(
                 ck.int(
                     &dev.width_sites,
                     "device.width_sites",
-                    "a width of at least 1 site",
-                    |w| w >= 1 && w <= 100_000,
+                    "a width from 1 to 1000 sites",
+                    |w| (1..=1000).contains(&w),
                 )?,
                 device_span.clone(),
                 "device.width_sites",
