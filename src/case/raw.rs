@@ -1,0 +1,330 @@
+//! The case file as written: serde structs that mirror the TOML, every value
+//! with its byte span, unknown keys refused. Nothing here is checked beyond
+//! TOML types; [`super::spec`] turns these into validated values.
+
+use super::error::{CaseError, CaseErrorKind, ErrorContext, close_matches};
+use serde::Deserialize;
+use std::ops::Range;
+use toml::Spanned;
+
+/// A spanned optional value.
+pub(crate) type Opt<T> = Option<Spanned<T>>;
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a case table")]
+pub(crate) struct RawCase {
+    pub name: Opt<String>,
+    pub spin_degeneracy: Opt<i64>,
+    pub device: Opt<RawDevice>,
+    pub leads: Opt<RawLeads>,
+    pub bias: Opt<RawBias>,
+    pub phonon: Option<Vec<Spanned<RawPhonon>>>,
+    pub dephasing: Opt<RawDephasing>,
+    pub grid: Opt<RawGrid>,
+    pub solver: Opt<RawSolver>,
+    pub response: Opt<RawResponse>,
+    pub thermal: Opt<RawThermal>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of device settings")]
+pub(crate) struct RawDevice {
+    pub builder: Opt<String>,
+    pub spacing_nm: Opt<f64>,
+    pub length_nm: Opt<f64>,
+    pub effective_mass: Opt<f64>,
+    pub band_edge_ev: Opt<f64>,
+    pub width_sites: Opt<i64>,
+    pub onsite_file: Opt<String>,
+    pub coupling_file: Opt<String>,
+    pub cells: Opt<i64>,
+    pub region: Option<Vec<Spanned<RawRegion>>>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with from_nm, to_nm and offset_ev or start_ev + end_ev"
+)]
+pub(crate) struct RawRegion {
+    pub from_nm: Opt<f64>,
+    pub to_nm: Opt<f64>,
+    pub offset_ev: Opt<f64>,
+    pub start_ev: Opt<f64>,
+    pub end_ev: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with [leads.left] and [leads.right]"
+)]
+pub(crate) struct RawLeads {
+    pub left: Opt<RawLead>,
+    pub right: Opt<RawLead>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of lead settings")]
+pub(crate) struct RawLead {
+    pub fermi_level_ev: Opt<f64>,
+    pub temperature_k: Opt<f64>,
+    pub band_edge_ev: Opt<f64>,
+    pub effective_mass: Opt<f64>,
+    pub wide_band_ev: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of bias settings")]
+pub(crate) struct RawBias {
+    pub voltage_v: Opt<f64>,
+    /// `"leads"` or `{ linear = { from_nm, to_nm } }`: read by hand for
+    /// clearer messages than an untagged enum gives.
+    pub drop: Opt<toml::Value>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of phonon settings")]
+pub(crate) struct RawPhonon {
+    pub energy_ev: Opt<f64>,
+    pub coupling_ev2: Opt<f64>,
+    pub from_nm: Opt<f64>,
+    pub to_nm: Opt<f64>,
+    pub bath_temperature_k: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of dephasing settings")]
+pub(crate) struct RawDephasing {
+    pub strength_ev2: Opt<f64>,
+    pub from_nm: Opt<f64>,
+    pub to_nm: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of energy grid settings")]
+pub(crate) struct RawGrid {
+    pub step_ev: Opt<f64>,
+    pub min_ev: Opt<f64>,
+    pub max_ev: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of solver settings")]
+pub(crate) struct RawSolver {
+    pub tolerance: Opt<f64>,
+    pub max_iterations: Opt<i64>,
+    pub mixing: Opt<String>,
+    pub mixing_factor: Opt<f64>,
+    pub anderson_depth: Opt<i64>,
+    pub anderson_damping: Opt<f64>,
+    pub hermitian_part: Opt<String>,
+    pub current_floor_a: Opt<f64>,
+    pub decimation_eta_ev: Opt<f64>,
+    pub decimation_tolerance_ev: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of response settings")]
+pub(crate) struct RawResponse {
+    pub split: Opt<String>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of thermal settings")]
+pub(crate) struct RawThermal {
+    pub phonon_conductance_w_per_k: Opt<f64>,
+}
+
+/// Parse the text: TOML syntax first (with positions), then the schema.
+pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, CaseError> {
+    let index = match toml::de::DeTable::parse(text) {
+        Ok(doc) => {
+            let mut index = SpanIndex::default();
+            index.walk_table(doc.get_ref(), "");
+            index
+        }
+        Err(e) => {
+            // Quote the offending text when it is short (a duplicate key's
+            // span is the key itself).
+            let near = e
+                .span()
+                .and_then(|s| text.get(s))
+                .filter(|t| !t.trim().is_empty() && t.len() <= 60 && !t.contains('\n'))
+                .map(|t| format!(" at `{}`", t.trim()))
+                .unwrap_or_default();
+            return Err(ctx.error(
+                CaseErrorKind::Syntax,
+                e.span(),
+                None,
+                format!("invalid TOML: {}{near}", e.message().trim()),
+            ));
+        }
+    };
+    toml::from_str::<RawCase>(text).map_err(|e| translate(&e, &index, ctx))
+}
+
+/// Dotted key paths of every key and value of the document, by span: lets
+/// a serde error (which carries only a span) name its key.
+#[derive(Default)]
+struct SpanIndex {
+    /// (span of the key, path)
+    keys: Vec<(Range<usize>, String)>,
+    /// (span of the value, path)
+    values: Vec<(Range<usize>, String)>,
+}
+
+impl SpanIndex {
+    fn walk_table(&mut self, table: &toml::de::DeTable<'_>, prefix: &str) {
+        for (k, v) in table {
+            let path = join(prefix, k.get_ref());
+            self.keys.push((k.span(), path.clone()));
+            self.walk_value(v, &path);
+        }
+    }
+
+    fn walk_value(&mut self, v: &Spanned<toml::de::DeValue<'_>>, path: &str) {
+        self.values.push((v.span(), path.to_string()));
+        match v.get_ref() {
+            toml::de::DeValue::Table(t) => self.walk_table(t, path),
+            toml::de::DeValue::Array(a) => {
+                for (i, item) in a.iter().enumerate() {
+                    self.walk_value(item, &format!("{path}.{i}"));
+                }
+            }
+            _ => {}
+        }
+    }
+
+    /// The key whose key text or value sits at `span`: an exact match first,
+    /// then the narrowest value containing it.
+    fn path_at(&self, span: &Range<usize>) -> Option<(bool, String)> {
+        if let Some((_, p)) = self.keys.iter().find(|(s, _)| s == span) {
+            return Some((true, p.clone()));
+        }
+        if let Some((_, p)) = self.values.iter().find(|(s, _)| s == span) {
+            return Some((false, p.clone()));
+        }
+        self.values
+            .iter()
+            .filter(|(s, _)| s.start <= span.start && span.end <= s.end)
+            .min_by_key(|(s, _)| s.end - s.start)
+            .map(|(_, p)| (false, p.clone()))
+    }
+}
+
+fn join(prefix: &str, key: &str) -> String {
+    if prefix.is_empty() {
+        key.to_string()
+    } else {
+        format!("{prefix}.{key}")
+    }
+}
+
+/// Words quoted in backticks, in order.
+fn backticked(s: &str) -> Vec<&str> {
+    s.split('`').skip(1).step_by(2).collect()
+}
+
+/// Plain words for serde's type names.
+fn plain_type(t: &str) -> String {
+    match t.trim() {
+        "f64" => "a number".into(),
+        "i64" => "an integer".into(),
+        "a sequence" => "an array".into(),
+        "a map" | "map" => "a table".into(),
+        other => other.to_string(),
+    }
+}
+
+fn plain_found(t: &str) -> String {
+    let t = t.trim();
+    if t == "map" {
+        "a table".into()
+    } else if t == "sequence" {
+        "an array".into()
+    } else {
+        t.replace(" as i128", "")
+    }
+}
+
+/// Turn a toml/serde error into a positioned, keyed [`CaseError`].
+fn translate(e: &toml::de::Error, index: &SpanIndex, ctx: &ErrorContext<'_>) -> CaseError {
+    let msg = e.message().trim().to_string();
+    let span = e.span();
+    let located = span.as_ref().and_then(|s| index.path_at(s));
+    if let Some(rest) = msg.strip_prefix("unknown field ") {
+        let names = backticked(rest);
+        let (found, valid) = names.split_first().map_or(("", &[][..]), |(f, v)| (*f, v));
+        let path = match &located {
+            Some((true, p)) => p.clone(),
+            _ => found.to_string(),
+        };
+        let suggestion = close_matches(found, valid.iter().copied())
+            .into_iter()
+            .next()
+            .map(|s| match path.rsplit_once('.') {
+                Some((parent, _)) => format!("{parent}.{s}"),
+                None => s,
+            });
+        let valid_list = if valid.is_empty() {
+            "no keys".to_string()
+        } else {
+            valid
+                .iter()
+                .map(|v| format!("`{v}`"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        return ctx
+            .error(
+                CaseErrorKind::UnknownKey,
+                span,
+                Some(&path),
+                format!("expected one of {valid_list}, found unknown key `{found}`"),
+            )
+            .with_suggestion(suggestion);
+    }
+    if let Some(rest) = msg.strip_prefix("missing field ") {
+        let field = backticked(rest).first().copied().unwrap_or("").to_string();
+        let path = match &located {
+            Some((_, p)) => join(p, &field),
+            None => field,
+        };
+        return ctx.error(
+            CaseErrorKind::Missing,
+            span,
+            Some(&path),
+            "expected a value, found nothing (the key is missing)",
+        );
+    }
+    if let Some(rest) = msg.strip_prefix("invalid type: ") {
+        let (found, expected) = rest
+            .split_once(", expected ")
+            .unwrap_or((rest, "another type"));
+        let path = located.map(|(_, p)| p);
+        let mut expected = plain_type(expected);
+        if path
+            .as_deref()
+            .is_some_and(|p| p == "phonon" || p.ends_with("region"))
+        {
+            expected = format!(
+                "{expected} of tables (write each entry as [[{}]])",
+                path.as_deref().unwrap_or("")
+            );
+        }
+        return ctx.error(
+            CaseErrorKind::WrongType,
+            span,
+            path.as_deref(),
+            format!("expected {expected}, found {}", plain_found(found)),
+        );
+    }
+    let path = located.map(|(_, p)| p);
+    let kind = if msg.contains("duplicate key") {
+        CaseErrorKind::Syntax
+    } else {
+        CaseErrorKind::Invalid
+    };
+    ctx.error(kind, span, path.as_deref(), msg)
+}
