@@ -1,5 +1,8 @@
-//! The `qheat` command: a thin layer over the library.
+//! The `qheat` command: a thin layer over the library (argument parsing,
+//! progress, printing, exit codes).
+
+mod cli;
 
 fn main() -> std::process::ExitCode {
-    qheat::cli::run()
+    cli::run()
 }

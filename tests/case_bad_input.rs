@@ -3,6 +3,8 @@
 //! (the dotted key, what was expected, what was found). Loading must fail
 //! with exactly such an error, never succeed and never panic.
 
+#![allow(clippy::needless_range_loop)]
+
 use qheat::case::Case;
 use std::path::Path;
 

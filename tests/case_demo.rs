@@ -1,6 +1,8 @@
 //! The demo cases load, stay small enough to solve in seconds, and raise no
 //! warnings (a demo that warns teaches the wrong habit).
 
+#![allow(clippy::needless_range_loop)]
+
 use qheat::case::Case;
 use std::path::Path;
 

@@ -1,6 +1,8 @@
 //! Random TOML-ish mutations of a valid case never panic in load/resolve:
 //! they either load or fail with a [`qheat::case::CaseError`].
 
+#![allow(clippy::needless_range_loop)]
+
 use proptest::prelude::*;
 use qheat::case::Case;
 use std::path::Path;

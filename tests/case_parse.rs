@@ -1,6 +1,8 @@
 //! Case files that should load: defaults, edits, snapping, warnings, and the
 //! blocks builder against the chain builder.
 
+#![allow(clippy::needless_range_loop)]
+
 use qheat::case::{Case, CaseErrorKind, Resolved, ResponseSplit};
 use qheat::device::{BiasDrop, strip_mode_energy};
 use qheat::leads::Lead;

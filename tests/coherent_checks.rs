@@ -1,6 +1,8 @@
 //! Coherent transport against closed forms and published values
 //! (values and sources as listed beside each check).
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 use common::*;
 use faer::Mat;

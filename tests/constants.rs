@@ -6,6 +6,8 @@
 //! so the last quoted digit alone may be off by up to 5e-12 relative (h/2e²
 //! is 3.7e-12 from its quoted value): tolerance rel 1e-11.
 
+#![allow(clippy::needless_range_loop)]
+
 use qheat::units::*;
 
 fn rel(a: f64, b: f64) -> f64 {

@@ -8,6 +8,8 @@
 //! multiple of ΔE, Born tolerance 1e-11) and 0.1 kT on the position (the
 //! extremum shifts by about (ΔG/G) kT with the coupling).
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 use common::*;
 use qheat::grid::EnergyGrid;

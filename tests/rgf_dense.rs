@@ -5,6 +5,8 @@
 //! LU and the recursion differ only by rounding, ~1e-14 at these sizes; 1e-10
 //! leaves room for the condition number of random blocks).
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 use common::*;
 use faer::Mat;

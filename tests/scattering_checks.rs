@@ -2,6 +2,8 @@
 //! elastic dephasing, the dense reference, the Peltier signature and
 //! Onsager reciprocity.
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 use common::dense_scba::dense_scba;
 use common::*;

@@ -1,6 +1,8 @@
 //! Coherent thermoelectric transport against closed forms (values from the
 //! reference list, each with its source beside the check).
 
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 use common::*;
 use faer::Mat;

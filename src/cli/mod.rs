@@ -87,14 +87,14 @@ impl Failure {
     }
 }
 
-impl From<crate::case::CaseError> for Failure {
-    fn from(e: crate::case::CaseError) -> Self {
+impl From<qheat::case::CaseError> for Failure {
+    fn from(e: qheat::case::CaseError) -> Self {
         Failure::BadInput(e.to_string())
     }
 }
 
-impl From<crate::output::OutputError> for Failure {
-    fn from(e: crate::output::OutputError) -> Self {
+impl From<qheat::output::OutputError> for Failure {
+    fn from(e: qheat::output::OutputError) -> Self {
         Failure::Io(e.to_string())
     }
 }
@@ -120,13 +120,19 @@ pub fn run() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let threads = cli.threads.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+    let threads = cli.threads.unwrap_or_else(|| {
+        std::thread::available_parallelism()
+            .map(|n| n.get())
+            .unwrap_or(1)
+    });
     if threads == 0 {
         eprintln!("error: --threads must be at least 1");
         return ExitCode::from(1);
     }
     // The global pool can be set once; tests run commands in fresh processes.
-    let _ = rayon::ThreadPoolBuilder::new().num_threads(threads).build_global();
+    let _ = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build_global();
     let common = Common {
         threads: rayon::current_num_threads(),
         quiet: cli.quiet,
@@ -134,8 +140,14 @@ pub fn run() -> ExitCode {
     };
     let outcome = match &cli.command {
         Command::Check { case } => solve::check(case, &common),
-        Command::Solve { case, out, warm_start } => solve::solve(case, out.as_deref(), warm_start.as_deref(), &common),
-        Command::Coefficients { case, out } => coefficients::coefficients(case, out.as_deref(), &common),
+        Command::Solve {
+            case,
+            out,
+            warm_start,
+        } => solve::solve(case, out.as_deref(), warm_start.as_deref(), &common),
+        Command::Coefficients { case, out } => {
+            coefficients::coefficients(case, out.as_deref(), &common)
+        }
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
@@ -150,7 +162,13 @@ pub fn run() -> ExitCode {
 pub fn default_out(case_name: &str, suffix: &str) -> PathBuf {
     let safe: String = case_name
         .chars()
-        .map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' { c } else { '_' })
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' {
+                c
+            } else {
+                '_'
+            }
+        })
         .collect();
     PathBuf::from("runs").join(format!("{safe}{suffix}"))
 }

@@ -1,8 +1,8 @@
 //! Progress on a terminal: a bar on stderr, nothing on a pipe or with
 //! `--quiet`.
 
-use crate::scba::{IterationRecord, Observer};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use qheat::scba::{IterationRecord, Observer};
 use std::io::IsTerminal;
 
 /// Whether progress may be drawn.
@@ -22,7 +22,10 @@ impl BornProgress {
     pub fn new(on: bool, tolerance: f64, label: &str) -> Self {
         let target_decades = (-tolerance.log10()).max(1.0);
         let bar = on.then(|| {
-            let b = ProgressBar::with_draw_target(Some((target_decades * 10.0) as u64), ProgressDrawTarget::stderr());
+            let b = ProgressBar::with_draw_target(
+                Some((target_decades * 10.0) as u64),
+                ProgressDrawTarget::stderr(),
+            );
             b.set_style(
                 ProgressStyle::with_template("{prefix} [{bar:30}] {msg} ({elapsed}, eta {eta})")
                     .expect("static template")
@@ -31,7 +34,10 @@ impl BornProgress {
             b.set_prefix(label.to_string());
             b
         });
-        Self { bar, target_decades }
+        Self {
+            bar,
+            target_decades,
+        }
     }
 
     /// Remove the bar.
@@ -47,7 +53,10 @@ impl Observer for BornProgress {
         if let Some(b) = &self.bar {
             let decades = (-r.residual.max(1e-300).log10()).clamp(0.0, self.target_decades);
             b.set_position((decades * 10.0) as u64);
-            b.set_message(format!("iteration {} residual {:.1e}", r.iteration, r.residual));
+            b.set_message(format!(
+                "iteration {} residual {:.1e}",
+                r.iteration, r.residual
+            ));
         }
     }
 }

@@ -3,11 +3,11 @@
 use super::format::{residual, si};
 use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, check_memory, default_out, print_warnings};
-use crate::case::{Case, Resolved};
-use crate::observables::{Observables, observe};
-use crate::output::Staging;
-use crate::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
-use crate::scba::{Solution, solve as born_solve};
+use qheat::case::{Case, Resolved};
+use qheat::observables::{Observables, observe};
+use qheat::output::Staging;
+use qheat::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
+use qheat::scba::{Solution, solve as born_solve};
 use std::path::Path;
 
 /// Load and resolve a case, printing its warnings.
@@ -45,35 +45,86 @@ pub fn check(path: &Path, common: &Common) -> Result<(), Failure> {
 /// Human summary of one operating point.
 pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
     let r = &sol.report;
-    println!("operating point   V = {}, T = {} K / {} K", si(o.voltage_v, "V", 4), sol.problem.left.temperature_k, sol.problem.right.temperature_k);
+    println!(
+        "operating point   V = {}, T = {} K / {} K",
+        si(o.voltage_v, "V", 4),
+        sol.problem.left.temperature_k,
+        sol.problem.right.temperature_k
+    );
     if sol.problem.scattering.is_coherent() {
         println!("transport         coherent (no scattering inside the device)");
     } else {
         println!(
             "Born loop         {} after {} iterations, residual {}{}",
-            if r.converged { "converged" } else { "NOT CONVERGED" },
+            if r.converged {
+                "converged"
+            } else {
+                "NOT CONVERGED"
+            },
             r.iterations,
-            r.history.last().map(|h| residual(h.residual)).unwrap_or_default(),
-            if r.hermitian_part { ", Hermitian part included" } else { "" }
+            r.history
+                .last()
+                .map(|h| residual(h.residual))
+                .unwrap_or_default(),
+            if r.hermitian_part {
+                ", Hermitian part included"
+            } else {
+                ""
+            }
         );
     }
     println!("current           I = {}", si(o.current_a, "A", 4));
     if let Some(g) = o.conductance_s {
         println!("conductance       G = I/V = {}", si(g, "S", 4));
     }
-    println!("heat current      left {}  right {}  (out of each contact into the device)", si(o.heat_current_left_w, "W", 4), si(o.heat_current_right_w, "W", 4));
-    println!("electrical power  I·V = {}", si(o.electrical_power_w, "W", 4));
-    println!("lattice power     {} in total", si(o.lattice_power_w, "W", 4));
+    println!(
+        "heat current      left {}  right {}  (out of each contact into the device)",
+        si(o.heat_current_left_w, "W", 4),
+        si(o.heat_current_right_w, "W", 4)
+    );
+    println!(
+        "electrical power  I·V = {}",
+        si(o.electrical_power_w, "W", 4)
+    );
+    println!(
+        "lattice power     {} in total",
+        si(o.lattice_power_w, "W", 4)
+    );
     if !sol.problem.scattering.is_coherent() {
         let p = &o.sites.lattice_power_w;
-        let (imax, pmax) = p.iter().enumerate().fold((0, f64::NEG_INFINITY), |a, (i, &v)| if v > a.1 { (i, v) } else { a });
-        let (imin, pmin) = p.iter().enumerate().fold((0, f64::INFINITY), |a, (i, &v)| if v < a.1 { (i, v) } else { a });
-        println!("  hottest cell    x = {:.2} nm: {}", o.sites.x_nm[imax], si(pmax, "W", 3));
-        println!("  coolest cell    x = {:.2} nm: {}", o.sites.x_nm[imin], si(pmin, "W", 3));
+        let (imax, pmax) =
+            p.iter().enumerate().fold(
+                (0, f64::NEG_INFINITY),
+                |a, (i, &v)| if v > a.1 { (i, v) } else { a },
+            );
+        let (imin, pmin) =
+            p.iter().enumerate().fold(
+                (0, f64::INFINITY),
+                |a, (i, &v)| if v < a.1 { (i, v) } else { a },
+            );
+        println!(
+            "  hottest cell    x = {:.2} nm: {}",
+            o.sites.x_nm[imax],
+            si(pmax, "W", 3)
+        );
+        println!(
+            "  coolest cell    x = {:.2} nm: {}",
+            o.sites.x_nm[imin],
+            si(pmin, "W", 3)
+        );
     }
     let drops = &o.sites.voltage_drop_v;
-    if let Some((i, d)) = drops.iter().enumerate().take(drops.len().saturating_sub(1)).max_by(|a, b| a.1.abs().total_cmp(&b.1.abs())) {
-        println!("largest drop      of the local Fermi level at x = {:.2} nm: {}", o.sites.x_nm[i], si(*d, "V", 3));
+    if let Some((i, d)) = drops
+        .iter()
+        .enumerate()
+        .take(drops.len().saturating_sub(1))
+        .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+    {
+        println!(
+            "largest drop      of the local Fermi level at x = {:.2} nm: {}",
+            o.sites.x_nm[i],
+            si(*d, "V", 3)
+        );
     }
     let l = &o.ledger;
     println!(
@@ -86,14 +137,23 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
 }
 
 /// `qheat solve CASE`.
-pub fn solve(path: &Path, out: Option<&Path>, warm_start: Option<&Path>, common: &Common) -> Result<(), Failure> {
+pub fn solve(
+    path: &Path,
+    out: Option<&Path>,
+    warm_start: Option<&Path>,
+    common: &Common,
+) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
     let warm = match warm_start {
-        Some(dir) => Some(read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?),
+        Some(dir) => {
+            Some(read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?)
+        }
         None => None,
     };
-    let out_dir = out.map(Path::to_path_buf).unwrap_or_else(|| default_out(&case.name, ""));
+    let out_dir = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, ""));
     let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
     let result = born_solve(&resolved.problem, &resolved.scba, warm.as_ref(), &mut bar);
     bar.finish();
@@ -143,7 +203,7 @@ pub fn solve(path: &Path, out: Option<&Path>, warm_start: Option<&Path>, common:
 /// A summary that says the run failed, so nobody mistakes old files for it.
 fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &str) -> Result<(), Failure> {
     let v = serde_json::json!({
-        "program": crate::output::results::program(),
+        "program": qheat::output::results::program(),
         "kind": "solve",
         "case_name": info.case_name,
         "case_file": info.case_file,
@@ -155,7 +215,10 @@ fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &str) -> Result<(), 
         "resolved_case": info.case_toml,
     });
     let stage = Staging::new(out_dir)?;
-    stage.write("summary.json", serde_json::to_string_pretty(&v).expect("JSON").as_bytes())?;
+    stage.write(
+        "summary.json",
+        serde_json::to_string_pretty(&v).expect("JSON").as_bytes(),
+    )?;
     stage.commit()?;
     Ok(())
 }

@@ -131,13 +131,13 @@ pub fn mode_self_energy(
     };
     let res = &ehm * &f - near * &f * &f - far;
     let scale = (norm(&ehm) + norm(v)) * (1.0 + norm(&f)) * (1.0 + norm(&f));
-    if !(norm(&res) <= 1e-9 * scale) {
+    if norm(&res).is_nan() || norm(&res) > 1e-9 * scale {
         return None;
     }
     let sigma = near * &f;
     // Γ must be positive semi-definite: its trace at least.
     let gamma_trace: f64 = (0..b).map(|i| -2.0 * sigma[(i, i)].im).sum();
-    if !(gamma_trace >= -1e-10 * norm(&sigma)) {
+    if gamma_trace.is_nan() || gamma_trace < -1e-10 * norm(&sigma) {
         return None;
     }
     Some(sigma)

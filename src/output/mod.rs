@@ -48,7 +48,10 @@ fn io<'a>(action: &'static str, path: &'a Path) -> impl FnOnce(std::io::Error) -
 /// Write `bytes` to `path` through a temporary file and a rename.
 pub fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
     let dir = path.parent().unwrap_or(Path::new("."));
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
     {
         let mut f = fs::File::create(&tmp).map_err(io("creating", &tmp))?;
@@ -71,11 +74,18 @@ pub fn csv_bytes(headers: &[&str], rows: impl IntoIterator<Item = Vec<f64>>) -> 
 
 /// Shortest text that reads back to the same f64.
 pub fn format_number(v: f64) -> String {
-    if v.is_finite() { format!("{v:e}") } else { v.to_string() }
+    if v.is_finite() {
+        format!("{v:e}")
+    } else {
+        v.to_string()
+    }
 }
 
 /// Serialize an array as .npy bytes.
-pub fn npy_bytes<A, D>(array: &ndarray::ArrayBase<A, D>, path: &Path) -> Result<Vec<u8>, OutputError>
+pub fn npy_bytes<A, D>(
+    array: &ndarray::ArrayBase<A, D>,
+    path: &Path,
+) -> Result<Vec<u8>, OutputError>
 where
     A: ndarray::Data,
     A::Elem: ndarray_npy::WritableElement,
@@ -99,9 +109,15 @@ pub struct Staging {
 impl Staging {
     /// Start assembling `final_dir` (its parent is created if missing).
     pub fn new(final_dir: &Path) -> Result<Self, OutputError> {
-        let parent = final_dir.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+        let parent = final_dir
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
         fs::create_dir_all(parent).map_err(io("creating", parent))?;
-        let name = final_dir.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "result".into());
+        let name = final_dir
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "result".into());
         let dir = parent.join(format!(".{name}.partial-{}", std::process::id()));
         if dir.exists() {
             fs::remove_dir_all(&dir).map_err(io("clearing", &dir))?;
@@ -127,14 +143,18 @@ impl Staging {
     pub fn commit(self) -> Result<PathBuf, OutputError> {
         let old = self.final_dir.with_file_name(format!(
             ".{}.old-{}",
-            self.final_dir.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default(),
+            self.final_dir
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default(),
             std::process::id()
         ));
         let had_old = self.final_dir.exists();
         if had_old {
             fs::rename(&self.final_dir, &old).map_err(io("moving aside", &self.final_dir))?;
         }
-        fs::rename(&self.dir, &self.final_dir).map_err(io("renaming into place", &self.final_dir))?;
+        fs::rename(&self.dir, &self.final_dir)
+            .map_err(io("renaming into place", &self.final_dir))?;
         if had_old {
             fs::remove_dir_all(&old).map_err(io("removing", &old))?;
         }

@@ -99,11 +99,18 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Val
 /// Write the files of a solve into a staging folder: summary.json,
 /// sites.csv, spectrum.csv, bond_current.npy, convergence.csv and, with
 /// scattering, the self-energy for warm starts.
-pub fn write_solve_files(stage: &Staging, sol: &Solution, o: &Observables, summary: &Value) -> Result<(), OutputError> {
+pub fn write_solve_files(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+    summary: &Value,
+) -> Result<(), OutputError> {
     let p = &sol.problem;
     stage.write(
         "summary.json",
-        serde_json::to_string_pretty(summary).expect("JSON of plain values").as_bytes(),
+        serde_json::to_string_pretty(summary)
+            .expect("JSON of plain values")
+            .as_bytes(),
     )?;
     let s = &o.sites;
     let potential = &p.device.potential_ev;
@@ -148,7 +155,12 @@ pub fn write_solve_files(stage: &Staging, sol: &Solution, o: &Observables, summa
         &csv_bytes(
             &headers,
             (0..sp.energy_ev.len()).map(|k| {
-                let mut row = vec![sp.energy_ev[k], e * sp.flow_left[k], e * sp.flow_right[k], e * sp.flow_bath[k]];
+                let mut row = vec![
+                    sp.energy_ev[k],
+                    e * sp.flow_left[k],
+                    e * sp.flow_right[k],
+                    e * sp.flow_bath[k],
+                ];
                 if let Some(t) = &sp.transmission {
                     row.push(t[k]);
                 }
@@ -157,11 +169,20 @@ pub fn write_solve_files(stage: &Staging, sol: &Solution, o: &Observables, summa
         ),
     )?;
     let map = bond_current_map(sol);
-    stage.write("bond_current.npy", &npy_bytes(&map, &stage.path("bond_current.npy"))?)?;
+    stage.write(
+        "bond_current.npy",
+        &npy_bytes(&map, &stage.path("bond_current.npy"))?,
+    )?;
     stage.write(
         "convergence.csv",
         &csv_bytes(
-            &["iteration", "residual", "current_left_a", "current_right_a", "current_change"],
+            &[
+                "iteration",
+                "residual",
+                "current_left_a",
+                "current_right_a",
+                "current_change",
+            ],
             sol.report.history.iter().map(|r| {
                 vec![
                     r.iteration as f64,
@@ -187,13 +208,21 @@ fn write_self_energy(stage: &Staging, sol: &Solution) -> Result<(), OutputError>
     let ne = sol.sigma.energies();
     let r = ndarray::Array2::from_shape_vec((ne, ns), sol.sigma.retarded.clone()).expect("shape");
     let i = ndarray::Array2::from_shape_vec((ne, ns), sol.sigma.inscatter.clone()).expect("shape");
-    stage.write(SELF_ENERGY_FILES[0], &npy_bytes(&r, &stage.path(SELF_ENERGY_FILES[0]))?)?;
-    stage.write(SELF_ENERGY_FILES[1], &npy_bytes(&i, &stage.path(SELF_ENERGY_FILES[1]))?)?;
+    stage.write(
+        SELF_ENERGY_FILES[0],
+        &npy_bytes(&r, &stage.path(SELF_ENERGY_FILES[0]))?,
+    )?;
+    stage.write(
+        SELF_ENERGY_FILES[1],
+        &npy_bytes(&i, &stage.path(SELF_ENERGY_FILES[1]))?,
+    )?;
     Ok(())
 }
 
 /// Read a stored scattering self-energy from a result folder.
-pub fn read_self_energy(dir: &std::path::Path) -> Result<crate::scattering::ScatteringSelfEnergy, OutputError> {
+pub fn read_self_energy(
+    dir: &std::path::Path,
+) -> Result<crate::scattering::ScatteringSelfEnergy, OutputError> {
     use ndarray_npy::read_npy;
     let rp = dir.join(SELF_ENERGY_FILES[0]);
     let ip = dir.join(SELF_ENERGY_FILES[1]);

@@ -109,16 +109,12 @@ mod tests {
             .collect();
         let h = HilbertTransform::new(n);
         let fast = h.apply(&g);
-        for k in 0..n {
+        for (k, f) in fast.iter().enumerate() {
             let direct: f64 = (0..n)
                 .map(|j| kernel(k as i64 - j as i64) * g[j])
                 .sum::<f64>()
                 / (2.0 * std::f64::consts::PI);
-            assert!(
-                (fast[k] - direct).abs() < 1e-13,
-                "{k}: {} vs {direct}",
-                fast[k]
-            );
+            assert!((f - direct).abs() < 1e-13, "{k}: {f} vs {direct}");
         }
     }
 }

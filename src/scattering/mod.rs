@@ -176,14 +176,14 @@ impl Scattering {
                 }
             }
         }
-        for i in 0..energies * ns {
-            out.retarded[i] = C64::new(0.0, -0.5 * gamma_ph[i]);
+        for (r, g) in out.retarded.iter_mut().zip(&gamma_ph) {
+            *r = C64::new(0.0, -0.5 * g);
         }
         if self.hermitian_part && !self.phonons.is_empty() {
             let h = hilbert.expect("Hilbert transform plan when the Hermitian part is on");
             let principal = h.apply_columns(&gamma_ph, energies, ns);
-            for i in 0..energies * ns {
-                out.retarded[i].re += principal[i];
+            for (r, p) in out.retarded.iter_mut().zip(&principal) {
+                r.re += p;
             }
         }
         if !self.dephasing_ev2.is_empty() {

@@ -66,7 +66,8 @@ impl LeadTable {
             }
         }
         let grid = &problem.grid;
-        let pairs: Result<Vec<(Mat<C64>, Mat<C64>)>, LeadError> = (0..grid.count)
+        type Pair = (Mat<C64>, Mat<C64>);
+        let pairs: Result<Vec<Pair>, LeadError> = (0..grid.count)
             .into_par_iter()
             .map(|k| {
                 let e = grid.energy(k);

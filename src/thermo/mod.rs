@@ -12,6 +12,7 @@
 //! central finite differences through converged Born solutions, see
 //! [`response`].
 
+pub mod of_case;
 pub mod response;
 
 use crate::units::{ELEMENTARY_CHARGE, LORENZ_NUMBER, PLANCK, fermi_window};

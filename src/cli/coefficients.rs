@@ -1,0 +1,92 @@
+//! `qheat coefficients`: linear-response thermoelectric coefficients.
+
+use super::format::si;
+use super::progress::enabled;
+use super::solve::load;
+use super::{Common, Failure, check_memory, default_out};
+use qheat::output::Staging;
+use qheat::output::results::program;
+use qheat::thermo::{Coefficients, of_case};
+use std::path::Path;
+
+/// Linear-response coefficients of a case, with a progress bar.
+pub fn case_coefficients(
+    case: &qheat::case::Case,
+    quiet: bool,
+) -> Result<(Coefficients, serde_json::Value), Failure> {
+    let tol = case.resolve()?.scba.tolerance.min(1e-12);
+    let mut progress = super::progress::BornProgress::new(enabled(quiet), tol, "linear response");
+    let (c, m) = of_case::case_coefficients(case, &mut progress).map_err(|e| match e {
+        of_case::CoefficientError::Case(e) => Failure::from(e),
+        other => Failure::Solver(other.to_string()),
+    })?;
+    progress.finish();
+    let detail = match m {
+        Some(m) => serde_json::to_value(&m).expect("JSON"),
+        None => serde_json::json!({ "method": "transmission moments" }),
+    };
+    Ok((c, detail))
+}
+
+/// Print coefficients for people.
+pub fn print_coefficients(c: &Coefficients) {
+    println!(
+        "around            µ = {:.4} eV, T = {} K ({})",
+        c.fermi_level_ev, c.temperature_k, c.method
+    );
+    println!("conductance       G  = {}", si(c.conductance_s, "S", 5));
+    println!("Seebeck           S  = {:.3} µV/K", c.seebeck_v_per_k * 1e6);
+    println!("Peltier           Π  = {:.4} mV", c.peltier_v * 1e3);
+    println!(
+        "thermal cond.     κe = {}",
+        si(c.thermal_conductance_w_per_k, "W/K", 5)
+    );
+    println!("Lorenz ratio      κe/(G T L0) = {:.5}", c.lorenz_ratio);
+    println!(
+        "power factor      S²G = {}",
+        si(c.power_factor_w_per_k2, "W/K²", 4)
+    );
+    println!(
+        "figure of merit   ZT = {:.4}  (κ_ph = {})",
+        c.zt,
+        si(c.phonon_conductance_w_per_k, "W/K", 3)
+    );
+    println!("Kelvin/Onsager    residual {:.1e}", c.kelvin_residual);
+}
+
+/// `qheat coefficients CASE`.
+pub fn coefficients(path: &Path, out: Option<&Path>, common: &Common) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let (c, detail) = case_coefficients(&case, common.quiet)?;
+    let out_dir = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-coefficients"));
+    let summary = serde_json::json!({
+        "program": program(),
+        "kind": "coefficients",
+        "case_name": case.name,
+        "case_file": path.display().to_string(),
+        "threads": common.threads,
+        "coefficients": c,
+        "response": detail,
+        "warnings": resolved.warnings,
+        "notes": resolved.notes,
+        "resolved_case": case.to_toml_string(),
+    });
+    let stage = Staging::new(&out_dir)?;
+    stage.write(
+        "summary.json",
+        serde_json::to_string_pretty(&summary)
+            .expect("JSON")
+            .as_bytes(),
+    )?;
+    stage.commit()?;
+    if common.json {
+        println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));
+    } else if !common.quiet {
+        print_coefficients(&c);
+        println!("results           {}", out_dir.display());
+    }
+    Ok(())
+}

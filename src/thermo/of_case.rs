@@ -1,0 +1,94 @@
+//! Coefficients of a case file: the coherent moments when nothing scatters,
+//! finite differences through converged Born solutions otherwise.
+
+use super::Coefficients;
+use super::response::{OperatingPoint, ResponseMatrix, Split, linear_response, operating_point};
+use crate::case::{Case, CaseError, ResponseSplit};
+use crate::scba::{Observer, SolveError};
+
+/// Why coefficients could not be computed.
+#[derive(Debug, thiserror::Error)]
+pub enum CoefficientError {
+    /// The case could not be set to an operating point.
+    #[error(transparent)]
+    Case(#[from] CaseError),
+    /// A solve failed.
+    #[error(transparent)]
+    Solve(#[from] SolveError),
+    /// A finite-difference run failed or did not converge.
+    #[error("{0}")]
+    Response(String),
+}
+
+/// The case at an operating point: the zero-bias Fermi levels and the bias
+/// chosen so that the biased levels are µ1 and µ2 (so a linear bias drop
+/// follows the voltage), lead and bath temperatures set explicitly.
+pub fn case_at(case: &Case, op: &OperatingPoint) -> Result<Case, CaseError> {
+    let v = op.voltage_v;
+    let mut c = case.with_value("bias.voltage_v", v)?;
+    c = c.with_value(
+        "leads.left.fermi_level_ev",
+        op.fermi_level_left_ev + 0.5 * v,
+    )?;
+    c = c.with_value(
+        "leads.right.fermi_level_ev",
+        op.fermi_level_right_ev - 0.5 * v,
+    )?;
+    c = c.with_value("leads.left.temperature_k", op.temperature_left_k)?;
+    c = c.with_value("leads.right.temperature_k", op.temperature_right_k)?;
+    let phonons = c.resolve()?.problem.scattering.phonons.len();
+    for i in 0..phonons {
+        c = c.with_value(
+            &format!("phonon.{i}.bath_temperature_k"),
+            op.bath_temperature_k,
+        )?;
+    }
+    Ok(c)
+}
+
+/// The reference point (µ, T) of a case: the mean zero-bias Fermi level and
+/// the mean lead temperature.
+pub fn reference_point(case: &Case) -> Result<(f64, f64), CaseError> {
+    let r = case.resolve()?;
+    let (mu_l, mu_r) = r.zero_bias_fermi_levels_ev;
+    let p = &r.problem;
+    Ok((
+        0.5 * (mu_l + mu_r),
+        0.5 * (p.left.temperature_k + p.right.temperature_k),
+    ))
+}
+
+/// Linear-response coefficients of a case around its reference point; the
+/// response matrix too when it was obtained by finite differences.
+pub fn case_coefficients(
+    case: &Case,
+    observer: &mut dyn Observer,
+) -> Result<(Coefficients, Option<ResponseMatrix>), CoefficientError> {
+    let resolved = case.resolve()?;
+    let (mu, t) = reference_point(case)?;
+    let kph = resolved.phonon_conductance_w_per_k;
+    if resolved.problem.scattering.is_coherent() {
+        let eq = case_at(case, &operating_point(mu, t, 0.0, 0.0, Split::Symmetric))?;
+        let c = super::coherent_coefficients(&eq.resolve()?.problem, kph)?;
+        return Ok((c, None));
+    }
+    let split = match resolved.response_split {
+        ResponseSplit::Symmetric => Split::Symmetric,
+        ResponseSplit::LeftOnly => Split::LeftOnly,
+    };
+    let build = |op: &OperatingPoint| -> Result<crate::model::Problem, String> {
+        case_at(case, op)
+            .and_then(|c| c.resolve())
+            .map(|r| r.problem)
+            .map_err(|e| e.to_string())
+    };
+    let (c, m, _) = linear_response(&build, mu, t, split, &resolved.scba, kph, observer)
+        .map_err(|e| CoefficientError::Response(e.to_string()))?;
+    if !m.converged {
+        return Err(CoefficientError::Response(format!(
+            "a linear-response run did not converge (Born iterations {:?}); coefficients not trustworthy",
+            m.iterations
+        )));
+    }
+    Ok((c, Some(m)))
+}
