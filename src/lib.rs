@@ -1,4 +1,66 @@
-//! qheat: electro-thermal quantum transport (manual expanded as layers land).
+//! # qheat: electro-thermal quantum transport in nanoscale devices
+//!
+//! qheat solves the non-equilibrium Green's function (NEGF) equations of a
+//! device between two leads, with elastic dephasing and inelastic phonon
+//! scattering in the self-consistent Born approximation, and reports charge
+//! and heat currents, a conservation ledger, where the lattice is heated or
+//! cooled beside where the electrochemical potential drops, energy-resolved
+//! current maps and thermoelectric coefficients.
+//!
+//! ## The model in brief
+//!
+//! The device is a chain of N cells with b orbitals each; its Hamiltonian is
+//! block tridiagonal (H_ii, H_i,i+1). Leads 1 (left) and 2 (right) enter
+//! through retarded self-energies Σ1, Σ2 on the end blocks, with broadenings
+//! Γ_α = i(Σ_α − Σ_α†) and in-scattering Σ^in_α = Γ_α f_α. Scattering inside
+//! the device adds local self-energies Σ0 (dephasing and Einstein phonons,
+//! [`scattering`]). With G^n = −iG^<, G^p = iG^>, A = G^n + G^p:
+//!
+//! ```text
+//! G^r = [E − H − Σ1 − Σ2 − Σ^r_0]⁻¹,   G^n = G^r (Σ^in_1 + Σ^in_2 + Σ^in_0) G^a
+//! j_α(E) = (g_s/h) Tr[Σ^in_α A − Γ_α G^n]          (particles into the device)
+//! I_α = −e ∫ j_α dE,  J_E,α = ∫ E j_α dE,  J_Q,α = ∫ (E − µ_α) j_α dE
+//! P_i = −∫ E j_0,i dE                              (power into the lattice)
+//! ```
+//!
+//! Conventions: e > 0; V = V_1 − V_2 = −(µ_1 − µ_2)/e; the reported current
+//! is I = I_1, so a passive device has I·V ≥ 0; S < 0 for transport above µ.
+//! Energies are in eV, lengths in nm, temperatures in K, currents in A,
+//! powers in W ([`units`]). Every energy integral is the plain sum
+//! Σ_k g(E_k) ΔE on a uniform grid ([`grid`]) with every ħω an integer number
+//! of steps, which makes the phonon exchange conserve particles and energy
+//! exactly on the grid; the ledger ([`observables::Ledger`]) checks
+//! I_1 + I_2 = 0, J_E,1 + J_E,2 = Σ_i P_i and Σ_i P_i = I·V + J_Q,1 + J_Q,2.
+//!
+//! ## Data flow and main types
+//!
+//! case file → [`case::Case`] → [`case::Resolved`] ([`model::Problem`]:
+//! [`device::Device`], [`model::Contact`] with a [`leads::Lead`],
+//! [`scattering::Scattering`], [`grid::EnergyGrid`]) → [`scba::solve`]
+//! (calls [`rgf::solve_energy`] for every energy, in parallel) →
+//! [`scba::Solution`] → [`observables::observe`] → [`output`].
+//! Thermoelectric coefficients: [`thermo`].
+//!
+//! ## References
+//!
+//! 1. R. Lake, G. Klimeck, R. C. Bowen, D. Jovanovic, J. Appl. Phys. 81,
+//!    7845 (1997): recursive Green's functions with scattering.
+//! 2. M. P. Anantram, M. S. Lundstrom, D. E. Nikonov, Proc. IEEE 96, 1511
+//!    (2008): NEGF for nanoscale devices.
+//! 3. M. P. López Sancho, J. M. López Sancho, J. Rubio, J. Phys. F 15, 851
+//!    (1985): decimation for lead surface Green's functions.
+//! 4. D. G. Anderson, J. ACM 12, 547 (1965); H. F. Walker, P. Ni, SIAM J.
+//!    Numer. Anal. 49, 1715 (2011): Anderson acceleration.
+//! 5. R. Lake, S. Datta, Phys. Rev. B 46, 4757 (1992): energy exchange and
+//!    conservation with inelastic scattering.
+//! 6. U. Sivan, Y. Imry, Phys. Rev. B 33, 551 (1986); P. N. Butcher, J. Phys.:
+//!    Condens. Matter 2, 4869 (1990): thermoelectric transport coefficients.
+//! 7. F. L. Curzon, B. Ahlborn, Am. J. Phys. 43, 22 (1975): efficiency at
+//!    maximum power.
+//!
+//! Results are model estimates: temperatures and currents that matter for
+//! safety or reliability must be confirmed by measurement and by the
+//! applicable standards and licensed practice.
 #![warn(missing_docs)]
 
 /// Complex double, the scalar of every Green's function.
