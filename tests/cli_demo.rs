@@ -122,3 +122,57 @@ fn coefficients_of_a_coherent_and_an_inelastic_demo() {
         assert!(c["kelvin_residual"].as_f64().unwrap() < 1e-4);
     }
 }
+
+/// A Born loop cut short is a flagged result with exit code 2, never a
+/// silent answer; a warm start from a stored result converges at once.
+#[test]
+fn non_convergence_is_flagged_and_warm_start_works() {
+    let tmp = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string("cases-demo/peltier-barrier.toml").unwrap();
+    let short = text.replace("[solver]", "[solver]\nmax_iterations = 2");
+    let case = tmp.path().join("short.toml");
+    std::fs::write(&case, short).unwrap();
+    let out = tmp.path().join("short");
+    let run = qheat()
+        .args(["solve", case.to_str().unwrap(), "-o"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(run.status.code(), Some(2));
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(stdout.contains("NOT CONVERGED"), "{stdout}");
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(v["converged"], false);
+    assert_eq!(v["trustworthy"], false);
+
+    let full = tmp.path().join("full");
+    let run = qheat()
+        .args(["solve", "cases-demo/peltier-barrier.toml", "--quiet", "-o"])
+        .arg(&full)
+        .output()
+        .unwrap();
+    assert!(run.status.success());
+    let warm = tmp.path().join("warm");
+    let run = qheat()
+        .args([
+            "solve",
+            "cases-demo/peltier-barrier.toml",
+            "--quiet",
+            "--warm-start",
+        ])
+        .arg(&full)
+        .arg("-o")
+        .arg(&warm)
+        .output()
+        .unwrap();
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(warm.join("summary.json")).unwrap()).unwrap();
+    assert!(v["scba"]["iterations"].as_u64().unwrap() <= 2);
+    assert_eq!(v["scba"]["warm_start"], true);
+}

@@ -386,3 +386,87 @@ fn onsager_reciprocity_with_phonons() {
     );
     let _ = BOLTZMANN_EV_PER_K;
 }
+
+/// Local resistances: the drops of the local Fermi level, with the drop from
+/// the left contact into the first cell, add up to V/I (identity, to
+/// rounding); the largest sits at the barrier.
+#[test]
+fn local_resistances_add_up_to_v_over_i() {
+    let p = barrier_with_phonons((0.08, 0.02), (300.0, 300.0), &[(0.04, 3e-3)]);
+    let (_, o) = solved(&p, &tight());
+    let r_contact = o.contact_drop_left_v / -o.current_a;
+    let total: f64 = o.sites.resistance_ohm.iter().sum::<f64>() + r_contact;
+    let v_over_i = o.voltage_v / o.current_a;
+    assert!(rel(total, v_over_i) < 1e-12, "{total} vs {v_over_i}");
+    let (imax, _) = o.sites.resistance_ohm[..59].iter().enumerate().fold(
+        (0, f64::NEG_INFINITY),
+        |a, (i, &r)| if r > a.1 { (i, r) } else { a },
+    );
+    assert!(
+        (22..=37).contains(&imax),
+        "largest local resistance at cell {imax}"
+    );
+}
+
+/// The local Fermi level and electron temperature fit recovers the
+/// parameters of a Fermi function it was given (identity; bisection to
+/// 1e-10 relative in T, tolerance 1e-6).
+#[test]
+fn electron_temperature_fit_recovers_a_fermi_function() {
+    let energies: Vec<f64> = (0..600).map(|k| -0.1 + k as f64 * 1e-3).collect();
+    let a: Vec<f64> = energies
+        .iter()
+        .map(|e| 1.0 + 0.5 * (e * 7.0).sin())
+        .collect();
+    let (mu, t) = (0.12, 355.0);
+    let n: f64 = energies
+        .iter()
+        .zip(&a)
+        .map(|(&e, &x)| x * qheat::units::fermi(e, mu, t))
+        .sum();
+    let u: f64 = energies
+        .iter()
+        .zip(&a)
+        .map(|(&e, &x)| e * x * qheat::units::fermi(e, mu, t))
+        .sum();
+    let (mu_fit, t_fit) = qheat::observables::fit_fermi_level_and_temperature(&energies, &a, n, u);
+    assert!((mu_fit - mu).abs() < 1e-6, "{mu_fit}");
+    assert!(rel(t_fit, t) < 1e-6, "{t_fit}");
+    // In equilibrium the fitted temperature of every cell is the lead temperature.
+    let p = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.04, 3e-3)]);
+    let sol = solve(
+        &p,
+        &ScbaParams {
+            tolerance: 1e-12,
+            ..tight()
+        },
+        None,
+        &mut Silent,
+    )
+    .unwrap();
+    let o = qheat::observables::observe_with(
+        &sol,
+        &qheat::observables::ObserveOptions {
+            electron_temperature: true,
+        },
+    );
+    for t in o.sites.electron_temperature_k.unwrap() {
+        assert!(rel(t, 300.0) < 1e-4, "T_e = {t}");
+    }
+}
+
+/// Warm start from a converged Σ0 converges at once to the same answer.
+#[test]
+fn warm_start_from_a_converged_self_energy() {
+    let p = barrier_with_phonons((0.08, 0.02), (300.0, 300.0), &[(0.04, 3e-3)]);
+    let (sol, o) = solved(&p, &tight());
+    let again = solve(&p, &tight(), Some(&sol.sigma), &mut Silent).unwrap();
+    assert!(
+        again.report.converged && again.report.iterations <= 2,
+        "{}",
+        again.report.iterations
+    );
+    assert!(again.report.warm_start);
+    let o2 = observe(&again);
+    assert!(rel(o2.current_a, o.current_a) < 1e-9);
+}

@@ -24,6 +24,7 @@ pub(crate) struct RawCase {
     pub solver: Opt<RawSolver>,
     pub response: Opt<RawResponse>,
     pub thermal: Opt<RawThermal>,
+    pub profile: Opt<RawProfile>,
 }
 
 #[derive(Deserialize, Debug)]
@@ -134,6 +135,12 @@ pub(crate) struct RawResponse {
 #[serde(deny_unknown_fields, expecting = "a table of thermal settings")]
 pub(crate) struct RawThermal {
     pub phonon_conductance_w_per_k: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug)]
+#[serde(deny_unknown_fields, expecting = "a table of profile settings")]
+pub(crate) struct RawProfile {
+    pub electron_temperature: Opt<String>,
 }
 
 /// Parse the text: TOML syntax first (with positions), then the schema.

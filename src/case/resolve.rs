@@ -45,6 +45,9 @@ pub struct Resolved {
     pub builder: &'static str,
     /// Hopping t = ħ²/(2 m* a²) of a chain or strip (eV); `None` for blocks.
     pub hopping_ev: Option<f64>,
+    /// Fit a local electron temperature per cell as well as the local Fermi
+    /// level (`profile.electron_temperature = "fit"`).
+    pub fit_electron_temperature: bool,
 }
 
 /// Periodic lead blocks (on-site, coupling along +x) for a chain or strip
@@ -502,6 +505,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
         voltage_v: v,
         zero_bias_fermi_levels_ev: (mu_l0, mu_r0),
         phonon_conductance_w_per_k: phonon_conductance,
+        fit_electron_temperature: spec.fit_electron_temperature,
         response_split: spec.response_split,
         bias_drop: spec.drop.clone(),
         warnings,

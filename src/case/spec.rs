@@ -139,6 +139,8 @@ pub(crate) struct CaseSpec {
     pub decimation_tolerance_ev: f64,
     pub response_split: ResponseSplit,
     pub phonon_conductance_w_per_k: Option<f64>,
+    /// Fit a local electron temperature per cell ([profile]).
+    pub fit_electron_temperature: bool,
     pub warnings: Vec<String>,
     /// Span of the [device] table, for errors about the device as a whole.
     pub device_span: Option<Range<usize>>,
@@ -1034,6 +1036,16 @@ pub(crate) fn validate(
             "a thermal conductance in W/K",
         )?,
     };
+    let fit_electron_temperature = match &raw.profile {
+        None => false,
+        Some(p) => {
+            ck.choice(
+                &p.get_ref().electron_temperature,
+                "profile.electron_temperature",
+                &["off", "fit"],
+            )? == Some("fit")
+        }
+    };
 
     Ok(CaseSpec {
         name,
@@ -1055,6 +1067,7 @@ pub(crate) fn validate(
         decimation_tolerance_ev: dec_tol,
         response_split,
         phonon_conductance_w_per_k,
+        fit_electron_temperature,
         warnings,
         device_span,
     })

@@ -4,7 +4,7 @@ use super::format::{residual, si};
 use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, check_memory, default_out, print_warnings};
 use qheat::case::{Case, Resolved};
-use qheat::observables::{Observables, observe};
+use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::Staging;
 use qheat::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
 use qheat::scba::{Solution, solve as born_solve};
@@ -176,7 +176,12 @@ pub fn solve(
             )));
         }
     };
-    let o = observe(&sol);
+    let o = observe_with(
+        &sol,
+        &ObserveOptions {
+            electron_temperature: resolved.fit_electron_temperature,
+        },
+    );
     let summary = solve_summary(&sol, &o, &info);
     let stage = Staging::new(&out_dir)?;
     write_solve_files(&stage, &sol, &o, &summary)?;

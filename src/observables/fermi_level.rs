@@ -101,3 +101,73 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
         temperature_k: t,
     }
 }
+
+/// Fit a local Fermi level and temperature to the number and the energy of
+/// the electrons in a cell: Σ a_k f(E_k; µ, T) = n and
+/// Σ E_k a_k f(E_k; µ, T) = u. For each T, µ(T) matches the number; the
+/// energy at fixed number grows with T, so T follows by bisection on
+/// [1 K, 10⁴ K]. Returns NaNs when no temperature in that range matches
+/// (a distribution far from any Fermi function).
+pub fn fit_fermi_level_and_temperature(
+    energies: &[f64],
+    spectral: &[f64],
+    number: f64,
+    energy: f64,
+) -> (f64, f64) {
+    let energy_at = |t: f64| -> (f64, f64) {
+        let mu = match_fermi_level(energies, spectral, number, t);
+        let u: f64 = energies
+            .iter()
+            .zip(spectral)
+            .map(|(&e, &a)| e * a * fermi(e, mu, t))
+            .sum();
+        (mu, u)
+    };
+    let (mut lo, mut hi) = (1.0f64, 1.0e4f64);
+    let (_, u_lo) = energy_at(lo);
+    let (_, u_hi) = energy_at(hi);
+    if !(u_lo <= energy && energy <= u_hi) {
+        return (f64::NAN, f64::NAN);
+    }
+    for _ in 0..60 {
+        let mid = (lo * hi).sqrt();
+        if energy_at(mid).1 < energy {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+        if hi / lo < 1.0 + 1e-10 {
+            break;
+        }
+    }
+    let t = (lo * hi).sqrt();
+    (energy_at(t).0, t)
+}
+
+/// Local electron temperature of every cell (K), NaN where no Fermi
+/// function matches.
+pub fn local_electron_temperatures(sol: &Solution) -> Vec<f64> {
+    let p = &sol.problem;
+    let b = p.device.orbitals;
+    let n = p.device.cells();
+    let ne = p.grid.count;
+    let ns = n * b;
+    let energies = p.grid.energies();
+    let green = &sol.pass.green;
+    (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let mut a = vec![0.0; ne];
+            let (mut number, mut energy) = (0.0, 0.0);
+            for (k, ak) in a.iter_mut().enumerate() {
+                for o in 0..b {
+                    let idx = k * ns + i * b + o;
+                    *ak += green.spectral(idx);
+                    number += green.filled[idx];
+                    energy += energies[k] * green.filled[idx];
+                }
+            }
+            fit_fermi_level_and_temperature(&energies, &a, number, energy).1
+        })
+        .collect()
+}

@@ -13,7 +13,10 @@
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
 mod fermi_level;
-pub use fermi_level::{LocalFermiLevel, local_fermi_levels};
+pub use fermi_level::{
+    LocalFermiLevel, fit_fermi_level_and_temperature, local_electron_temperatures,
+    local_fermi_levels,
+};
 
 use crate::model::Problem;
 use crate::scba::Solution;
@@ -77,6 +80,18 @@ pub struct SiteProfile {
     /// Drop of the local Fermi level to the next cell, (µ_i − µ_i+1)/e (V);
     /// the last cell carries the drop into the right contact, µ_N − µ_2.
     pub voltage_drop_v: Vec<f64>,
+    /// Local resistance R_i = (µ_i − µ_i+1)/(−e I) (Ω); with the drop from
+    /// the left contact into the first cell, the sum is V/I. NaN at I = 0.
+    pub resistance_ohm: Vec<f64>,
+    /// Local electron temperature (K) when asked for.
+    pub electron_temperature_k: Option<Vec<f64>>,
+}
+
+/// What to compute besides the always-present observables.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct ObserveOptions {
+    /// Fit a local electron temperature per cell.
+    pub electron_temperature: bool,
 }
 
 /// Every scalar and profile of an operating point.
@@ -160,6 +175,11 @@ pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
 
 /// Compute every observable of a solution.
 pub fn observe(sol: &Solution) -> Observables {
+    observe_with(sol, &ObserveOptions::default())
+}
+
+/// [`observe`] with options.
+pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let p = &sol.problem;
     let grid = &p.grid;
     let de = grid.step_ev;
@@ -248,7 +268,20 @@ pub fn observe(sol: &Solution) -> Observables {
             .iter()
             .map(|e| e / p.device.spacing_nm)
             .collect(),
+        resistance_ohm: voltage_drop_v
+            .iter()
+            .map(|d| {
+                if current_left_a != 0.0 {
+                    d / -current_left_a
+                } else {
+                    f64::NAN
+                }
+            })
+            .collect(),
         voltage_drop_v,
+        electron_temperature_k: options
+            .electron_temperature
+            .then(|| local_electron_temperatures(sol)),
     };
     let conductance_s = (voltage_v != 0.0).then(|| current_left_a / voltage_v);
     Observables {

@@ -114,20 +114,25 @@ pub fn write_solve_files(
     )?;
     let s = &o.sites;
     let potential = &p.device.potential_ev;
+    let mut headers = vec![
+        "x_nm",
+        "band_edge_ev",
+        "potential_ev",
+        "fermi_level_local_ev",
+        "lattice_power_w",
+        "electron_density_per_nm",
+        "voltage_drop_v",
+        "resistance_ohm",
+    ];
+    if s.electron_temperature_k.is_some() {
+        headers.push("electron_temperature_local_k");
+    }
     stage.write(
         "sites.csv",
         &csv_bytes(
-            &[
-                "x_nm",
-                "band_edge_ev",
-                "potential_ev",
-                "fermi_level_local_ev",
-                "lattice_power_w",
-                "electron_density_per_nm",
-                "voltage_drop_v",
-            ],
+            &headers,
             (0..s.x_nm.len()).map(|i| {
-                vec![
+                let mut row = vec![
                     s.x_nm[i],
                     s.band_edge_ev[i],
                     potential[i],
@@ -135,7 +140,12 @@ pub fn write_solve_files(
                     s.lattice_power_w[i],
                     s.electron_density_per_nm[i],
                     s.voltage_drop_v[i],
-                ]
+                    s.resistance_ohm[i],
+                ];
+                if let Some(t) = &s.electron_temperature_k {
+                    row.push(t[i]);
+                }
+                row
             }),
         ),
     )?;
