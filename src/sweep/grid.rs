@@ -76,15 +76,17 @@ impl Axis {
         self.keys.join("+")
     }
 
-    /// The i-th value: start + i (stop − start)/(count − 1), the end points
-    /// exact.
+    /// The i-th value: (start (n − i) + stop i)/n with n = count − 1, the end
+    /// points exact (symmetric grids come out symmetric).
     pub fn value(&self, i: usize) -> f64 {
         if self.count == 1 || i == 0 {
             self.start
         } else if i + 1 == self.count {
             self.stop
         } else {
-            self.start + (self.stop - self.start) * (i as f64) / ((self.count - 1) as f64)
+            let n = (self.count - 1) as f64;
+            let t = i as f64;
+            (self.start * (n - t) + self.stop * t) / n
         }
     }
 
