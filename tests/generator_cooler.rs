@@ -83,7 +83,7 @@ fn narrow_level_generator_in_linear_response() {
     let settings = GeneratorSettings {
         hot_k: 300.5,
         cold_k: 299.5,
-        points: 21,
+        points: 11,
     };
     let eta_c = carnot_efficiency(settings.hot_k, settings.cold_k);
     let eta_ca = curzon_ahlborn_efficiency(settings.hot_k, settings.cold_k);
@@ -173,7 +173,8 @@ fn thermionic_cooler_has_one_maximum() {
     let case = barrier();
     let r = cool(&case, 300.0, 300.0, ColdLead::Right);
     let q: Vec<f64> = r.curve.iter().map(|p| p.cooling_power_w).collect();
-    assert_eq!(r.curve[0].current_a.abs() < 1e-20, true);
+    // Zero bias, equal temperatures: zero current up to rounding.
+    assert!(r.curve[0].current_a.abs() <= 1e-12 * r.current_at_max_a.abs());
     assert!(q[0].abs() <= 1e-12 * r.max_cooling_power_w, "{}", q[0]);
     assert!(r.max_cooling_power_w > 0.0);
     let im = (0..q.len()).max_by(|&a, &b| q[a].total_cmp(&q[b])).unwrap();

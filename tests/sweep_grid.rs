@@ -134,7 +134,7 @@ fn grid_order_and_inputs() {
     }
     // A hot left lead drives a thermoelectric current at V = 0.
     let i = t.column("current_a").unwrap();
-    assert_eq!(t.rows[0][i].abs() < 1e-20, true, "{}", t.rows[0][i]);
+    assert!(t.rows[0][i].abs() < 1e-20, "{}", t.rows[0][i]);
     assert!(t.rows[3][i].abs() > 1e-10, "{}", t.rows[3][i]);
     // A bad key is bad input before anything runs.
     let bad = Grid::new(vec![Axis::parse("bias.voltage=0:1:2").unwrap()]).unwrap();

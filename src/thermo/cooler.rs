@@ -237,7 +237,7 @@ pub fn cooler(
         .unwrap_or(0);
     let lo = curve[im.saturating_sub(1)].voltage_v;
     let hi = curve[(im + 1).min(n - 1)].voltage_v;
-    let (_, _, refined) = golden_max(lo, hi, 40, &mut |v| {
+    let (_, _, refined) = golden_max(lo, hi, 30, &mut |v| {
         let p = q(&mut dev, v, "maximum cooling", observer)?;
         Ok((p.cooling_power_w, p))
     })?;

@@ -446,10 +446,11 @@ pub fn generator(
             curve[(i + 1).min(n - 1)].voltage_v,
         )
     };
-    // Each refinement shrinks a bracket of two curve steps by 0.618^40 ≈ 4e-9.
+    // Each refinement shrinks a bracket of two curve steps by 0.618^30 ≈ 5e-7 (the
+    // maximum's value is then exact to ~1e-13, being quadratic there).
     let ip = argmax(&|p| p.power_w);
     let (lo, hi) = bracket(ip);
-    let (_, _, best_p) = golden_max(lo, hi, 40, &mut |v| {
+    let (_, _, best_p) = golden_max(lo, hi, 30, &mut |v| {
         let p = LoadPoint::from(&dev.at(v, "maximum power", observer)?);
         Ok((p.power_w, p))
     })?;
@@ -460,7 +461,7 @@ pub fn generator(
     };
     let ie = argmax(&|p| p.efficiency);
     let (lo, hi) = bracket(ie);
-    let (_, _, best_e) = golden_max(lo, hi, 40, &mut |v| {
+    let (_, _, best_e) = golden_max(lo, hi, 30, &mut |v| {
         let p = LoadPoint::from(&dev.at(v, "maximum efficiency", observer)?);
         let e = if p.efficiency.is_finite() {
             p.efficiency
