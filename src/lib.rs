@@ -76,5 +76,6 @@ pub mod output;
 pub mod rgf;
 pub mod scattering;
 pub mod scba;
+pub mod sweep;
 pub mod thermo;
 pub mod units;

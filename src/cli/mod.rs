@@ -2,9 +2,12 @@
 //! only part of the crate that prints.
 
 mod coefficients;
+mod curves;
 mod format;
 mod progress;
+mod screen;
 mod solve;
+mod sweep;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -55,6 +58,81 @@ pub enum Command {
         /// Case file (TOML).
         case: PathBuf,
         /// Result folder (default: runs/<case name>-coefficients).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+    },
+    /// Any numeric case key over a grid (several --vary: row-major, last
+    /// fastest); resumable; one row per point in sweep.csv.
+    Sweep {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// KEY=START:STOP:COUNT (KEY1+KEY2 sets several keys together).
+        #[arg(long, required = true, value_name = "KEY=START:STOP:COUNT")]
+        vary: Vec<String>,
+        /// Result folder, also holding the finished points (default:
+        /// runs/<case name>-sweep).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+    },
+    /// Power and efficiency against load voltage with the left lead hot and
+    /// the right lead cold; maximum power, efficiency there, η_C, η_CA.
+    Generator {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// Hot (left) lead temperature (K).
+        #[arg(long, value_name = "K")]
+        hot: f64,
+        /// Cold (right) lead temperature (K).
+        #[arg(long, value_name = "K")]
+        cold: f64,
+        /// Load voltages from 0 to the open-circuit voltage.
+        #[arg(long, default_value_t = 41)]
+        points: usize,
+        /// Result folder (default: runs/<case name>-generator).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+    },
+    /// Cooling power and COP against current; maximum cooling power.
+    Cooler {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// Hot lead temperature (K).
+        #[arg(long, value_name = "K")]
+        hot: f64,
+        /// Cold lead temperature (K).
+        #[arg(long, value_name = "K")]
+        cold: f64,
+        /// Bias points on the curve.
+        #[arg(long, default_value_t = 41)]
+        points: usize,
+        /// Which lead is cooled.
+        #[arg(long, value_enum, default_value = "right")]
+        cold_lead: curves::Lead,
+        /// Result folder (default: runs/<case name>-cooler).
+        #[arg(short, long)]
+        out: Option<PathBuf>,
+    },
+    /// Figure-of-merit screening over a grid, ranked best first.
+    Screen {
+        /// Case file (TOML).
+        case: PathBuf,
+        /// KEY=START:STOP:COUNT (KEY1+KEY2 sets several keys together).
+        #[arg(long, required = true, value_name = "KEY=START:STOP:COUNT")]
+        vary: Vec<String>,
+        /// Ranking quantity.
+        #[arg(long, value_enum)]
+        rank: screen::RankBy,
+        /// Hot (left) lead temperature for --rank cooling (K).
+        #[arg(long, value_name = "K")]
+        hot: Option<f64>,
+        /// Cold (right) lead temperature for --rank cooling (K).
+        #[arg(long, value_name = "K")]
+        cold: Option<f64>,
+        /// Bias points per cooler curve for --rank cooling.
+        #[arg(long, default_value_t = 21)]
+        points: usize,
+        /// Result folder, also holding the finished points (default:
+        /// runs/<case name>-screen).
         #[arg(short, long)]
         out: Option<PathBuf>,
     },
@@ -148,6 +226,48 @@ pub fn run() -> ExitCode {
         Command::Coefficients { case, out } => {
             coefficients::coefficients(case, out.as_deref(), &common)
         }
+        Command::Sweep { case, vary, out } => sweep::sweep(case, vary, out.as_deref(), &common),
+        Command::Generator {
+            case,
+            hot,
+            cold,
+            points,
+            out,
+        } => curves::generator(case, *hot, *cold, *points, out.as_deref(), &common),
+        Command::Cooler {
+            case,
+            hot,
+            cold,
+            points,
+            cold_lead,
+            out,
+        } => curves::cooler(
+            case,
+            *hot,
+            *cold,
+            *points,
+            *cold_lead,
+            out.as_deref(),
+            &common,
+        ),
+        Command::Screen {
+            case,
+            vary,
+            rank,
+            hot,
+            cold,
+            points,
+            out,
+        } => screen::screen(
+            case,
+            vary,
+            *rank,
+            *hot,
+            *cold,
+            *points,
+            out.as_deref(),
+            &common,
+        ),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,

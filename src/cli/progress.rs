@@ -66,3 +66,121 @@ impl Drop for BornProgress {
         self.finish();
     }
 }
+
+/// A bar over the points of a sweep, with ETA; also the test hook
+/// `QHEAT_ABORT_AFTER_POINTS=k`, which ends the process with exit code 75
+/// once k points have been computed and stored in this run (the observer is
+/// called only after a point is durably stored).
+pub struct PointProgress {
+    bar: Option<ProgressBar>,
+    computed: std::sync::atomic::AtomicUsize,
+    abort_after: Option<usize>,
+}
+
+impl PointProgress {
+    /// A bar over `total` points, or nothing when `on` is false.
+    pub fn new(on: bool, total: usize, label: &str) -> Self {
+        let bar = on.then(|| {
+            let b = ProgressBar::with_draw_target(Some(total as u64), ProgressDrawTarget::stderr());
+            b.set_style(
+                ProgressStyle::with_template(
+                    "{prefix} [{bar:30}] {pos}/{len} points {msg} ({elapsed}, eta {eta})",
+                )
+                .expect("static template")
+                .progress_chars("=> "),
+            );
+            b.set_prefix(label.to_string());
+            b
+        });
+        let abort_after = std::env::var("QHEAT_ABORT_AFTER_POINTS")
+            .ok()
+            .and_then(|v| v.parse().ok());
+        Self {
+            bar,
+            computed: std::sync::atomic::AtomicUsize::new(0),
+            abort_after,
+        }
+    }
+
+    /// Remove the bar.
+    pub fn finish(&self) {
+        if let Some(b) = &self.bar {
+            b.finish_and_clear();
+        }
+    }
+}
+
+impl qheat::sweep::SweepObserver for PointProgress {
+    fn point_finished(&self, e: &qheat::sweep::PointEvent) {
+        if let Some(b) = &self.bar {
+            b.set_position(e.finished as u64);
+            if !e.converged {
+                b.set_message(format!("(point {} not converged)", e.index));
+            }
+        }
+        if e.computed {
+            let n = self
+                .computed
+                .fetch_add(1, std::sync::atomic::Ordering::SeqCst)
+                + 1;
+            if self.abort_after.is_some_and(|k| n >= k) {
+                std::process::exit(75);
+            }
+        }
+    }
+}
+
+impl Drop for PointProgress {
+    fn drop(&mut self) {
+        self.finish();
+    }
+}
+
+/// A spinner over the solves of a generator or cooler curve.
+pub struct CurveProgress {
+    bar: Option<ProgressBar>,
+    solves: usize,
+}
+
+impl CurveProgress {
+    /// A spinner, or nothing when `on` is false.
+    pub fn new(on: bool, label: &str) -> Self {
+        let bar = on.then(|| {
+            let b = ProgressBar::with_draw_target(None, ProgressDrawTarget::stderr());
+            b.set_style(
+                ProgressStyle::with_template("{prefix} {spinner} {msg} ({elapsed})")
+                    .expect("static template"),
+            );
+            b.set_prefix(label.to_string());
+            b
+        });
+        Self { bar, solves: 0 }
+    }
+
+    /// Remove the spinner.
+    pub fn finish(&self) {
+        if let Some(b) = &self.bar {
+            b.finish_and_clear();
+        }
+    }
+}
+
+impl qheat::thermo::generator::CurveObserver for CurveProgress {
+    fn solved(&mut self, stage: &'static str, voltage_v: f64) {
+        self.solves += 1;
+        if let Some(b) = &self.bar {
+            b.set_message(format!(
+                "{stage}: solve {} at V = {:.4} mV",
+                self.solves,
+                voltage_v * 1e3
+            ));
+            b.tick();
+        }
+    }
+}
+
+impl Drop for CurveProgress {
+    fn drop(&mut self) {
+        self.finish();
+    }
+}

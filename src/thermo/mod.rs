@@ -12,6 +12,8 @@
 //! central finite differences through converged Born solutions, see
 //! [`response`].
 
+pub mod cooler;
+pub mod generator;
 pub mod of_case;
 pub mod response;
 

@@ -1,0 +1,245 @@
+//! `qheat generator` and `qheat cooler`: power and efficiency against load
+//! voltage, cooling power and COP against current.
+
+use super::format::si;
+use super::progress::{CurveProgress, enabled};
+use super::solve::load;
+use super::{Common, Failure, check_memory, default_out};
+use qheat::output::results::program;
+use qheat::output::{Staging, csv_bytes};
+use qheat::thermo::cooler::{ColdLead, CoolerSettings, cooler as cooler_curve};
+use qheat::thermo::generator::{CurveError, GeneratorSettings, generator as generator_curve};
+use std::path::{Path, PathBuf};
+
+impl From<CurveError> for Failure {
+    fn from(e: CurveError) -> Self {
+        match e {
+            CurveError::Settings(_) | CurveError::Case(_) => Failure::BadInput(e.to_string()),
+            _ => Failure::Solver(e.to_string()),
+        }
+    }
+}
+
+/// The cold lead as given on the command line.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Lead {
+    /// Lead 1.
+    Left,
+    /// Lead 2.
+    Right,
+}
+
+fn write(out_dir: &Path, csv_name: &str, csv: Vec<u8>, summary: &str) -> Result<(), Failure> {
+    let stage = Staging::new(out_dir)?;
+    stage.write(csv_name, &csv)?;
+    stage.write("summary.json", summary.as_bytes())?;
+    stage.commit()?;
+    Ok(())
+}
+
+fn flag(converged: bool, out_dir: &Path) -> Result<(), Failure> {
+    if converged {
+        Ok(())
+    } else {
+        Err(Failure::Solver(format!(
+            "a Born loop did not converge; results in {} are flagged (converged = 0)",
+            out_dir.display()
+        )))
+    }
+}
+
+fn b(x: bool) -> f64 {
+    if x { 1.0 } else { 0.0 }
+}
+
+/// `qheat generator CASE --hot K --cold K`.
+pub fn generator(
+    path: &Path,
+    hot: f64,
+    cold: f64,
+    points: usize,
+    out: Option<&Path>,
+    common: &Common,
+) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let settings = GeneratorSettings {
+        hot_k: hot,
+        cold_k: cold,
+        points,
+    };
+    let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
+    let r = generator_curve(&case, &settings, &mut progress);
+    progress.finish();
+    let r = r?;
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-generator"));
+    let csv = csv_bytes(
+        &[
+            "voltage_v",
+            "current_a",
+            "power_w",
+            "heat_current_hot_w",
+            "efficiency",
+            "converged",
+        ],
+        r.curve.iter().map(|p| {
+            vec![
+                p.voltage_v,
+                p.current_a,
+                p.power_w,
+                p.heat_current_hot_w,
+                p.efficiency,
+                b(p.converged),
+            ]
+        }),
+    );
+    let mut summary = serde_json::to_value(&r).expect("JSON");
+    summary["program"] = program();
+    summary["kind"] = "generator".into();
+    summary["case_name"] = case.name.clone().into();
+    summary["case_file"] = path.display().to_string().into();
+    summary["conventions"] = "hot lead = left (lead 1) at T_hot, cold lead = right (lead 2) at T_cold; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; P = -I V delivered to the load; efficiency = P / J_Q,hot".into();
+    summary["resolved_case"] = case.to_toml_string().into();
+    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    write(&out_dir, "generator.csv", csv, &text)?;
+    if common.json {
+        println!("{text}");
+    } else if !common.quiet {
+        println!(
+            "generator         hot lead left at {hot} K, cold lead right at {cold} K, µ = {:.4} eV",
+            r.fermi_level_ev
+        );
+        println!(
+            "device            S = {:.3} µV/K, ZT = {:.4} at {} K (linear response)",
+            r.coefficients.seebeck_v_per_k * 1e6,
+            r.coefficients.zt,
+            0.5 * (hot + cold)
+        );
+        println!(
+            "open circuit      V_oc = {}  (linear estimate −SΔT = {}); short circuit I = {}",
+            si(r.open_circuit_voltage_v, "V", 5),
+            si(r.open_circuit_voltage_estimate_v, "V", 5),
+            si(r.short_circuit_current_a, "A", 4)
+        );
+        println!(
+            "maximum power     P = {} at V = {} (I = {})",
+            si(r.max_power_w, "W", 5),
+            si(r.voltage_at_max_power_v, "V", 5),
+            si(r.current_at_max_power_a, "A", 4)
+        );
+        println!(
+            "efficiency        at maximum power {:.6}  (linear response (η_C/2)ZT/(ZT+2) = {:.6})",
+            r.efficiency_at_max_power, r.efficiency_at_max_power_linear
+        );
+        println!(
+            "                  maximum {:.6} at V = {}  (Ioffe with this ZT {:.6})",
+            r.max_efficiency,
+            si(r.voltage_at_max_efficiency_v, "V", 5),
+            r.ioffe_max_efficiency
+        );
+        println!(
+            "bounds            Carnot η_C = {:.6}, Curzon-Ahlborn η_CA = {:.6}",
+            r.carnot_efficiency, r.curzon_ahlborn_efficiency
+        );
+        println!("results           {}", out_dir.display());
+    }
+    flag(r.converged, &out_dir)
+}
+
+/// `qheat cooler CASE --hot K --cold K`.
+pub fn cooler(
+    path: &Path,
+    hot: f64,
+    cold: f64,
+    points: usize,
+    cold_lead: Lead,
+    out: Option<&Path>,
+    common: &Common,
+) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let settings = CoolerSettings {
+        hot_k: hot,
+        cold_k: cold,
+        points,
+        cold_lead: match cold_lead {
+            Lead::Left => ColdLead::Left,
+            Lead::Right => ColdLead::Right,
+        },
+        figure_of_merit: true,
+    };
+    let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
+    let r = cooler_curve(&case, &settings, &mut progress);
+    progress.finish();
+    let r = r?;
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-cooler"));
+    let csv = csv_bytes(
+        &[
+            "voltage_v",
+            "current_a",
+            "cooling_power_w",
+            "input_power_w",
+            "heat_current_hot_w",
+            "cop",
+            "converged",
+        ],
+        r.curve.iter().map(|p| {
+            vec![
+                p.voltage_v,
+                p.current_a,
+                p.cooling_power_w,
+                p.input_power_w,
+                p.heat_current_hot_w,
+                p.cop,
+                b(p.converged),
+            ]
+        }),
+    );
+    let (cold_name, hot_name) = match cold_lead {
+        Lead::Left => ("left (lead 1)", "right (lead 2)"),
+        Lead::Right => ("right (lead 2)", "left (lead 1)"),
+    };
+    let mut summary = serde_json::to_value(&r).expect("JSON");
+    summary["program"] = program();
+    summary["kind"] = "cooler".into();
+    summary["case_name"] = case.name.clone().into();
+    summary["case_file"] = path.display().to_string().into();
+    summary["conventions"] = format!("cold lead = {cold_name} at T_cold, hot lead = {hot_name} at T_hot; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; cooling power = heat current out of the cold lead into the device; input power = I V; COP = cooling power / (I V), NaN where either is not positive").into();
+    summary["resolved_case"] = case.to_toml_string().into();
+    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    write(&out_dir, "cooler.csv", csv, &text)?;
+    if common.json {
+        println!("{text}");
+    } else if !common.quiet {
+        println!(
+            "cooler            cold lead {cold_name} at {cold} K, hot lead {hot_name} at {hot} K, µ = {:.4} eV",
+            r.fermi_level_ev
+        );
+        println!(
+            "maximum cooling   {} at V = {}, I = {}",
+            si(r.max_cooling_power_w, "W", 5),
+            si(r.voltage_at_max_v, "V", 5),
+            si(r.current_at_max_a, "A", 4)
+        );
+        println!(
+            "at zero bias      {} (heat leaking into the cold lead is negative)",
+            si(r.cooling_power_at_zero_bias_w, "W", 4)
+        );
+        println!(
+            "COP               {:.4} at maximum cooling, {:.4} at best; Carnot {:.4}{}",
+            r.cop_at_max,
+            r.max_cop,
+            r.carnot_cop,
+            match (r.ioffe_max_cop, &r.coefficients) {
+                (Some(i), Some(c)) => format!(", Ioffe {i:.4} with ZT = {:.4}", c.zt),
+                _ => String::new(),
+            }
+        );
+        println!("results           {}", out_dir.display());
+    }
+    flag(r.converged, &out_dir)
+}

@@ -1,0 +1,118 @@
+//! `qheat screen`: figure-of-merit screening over a grid, ranked.
+
+use super::format::si;
+use super::solve::load;
+use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
+use super::{Common, Failure, check_memory, default_out};
+use qheat::output::{atomic_write, csv_bytes};
+use qheat::sweep::screen::{Rank, ScreenTask, ranking, ranking_table};
+use std::path::{Path, PathBuf};
+
+/// The ranking quantity as given on the command line.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum RankBy {
+    /// Linear-response ZT.
+    Zt,
+    /// Power factor S²G.
+    PowerFactor,
+    /// Maximum cooling power (needs --hot and --cold).
+    Cooling,
+}
+
+/// `qheat screen CASE --vary ... --rank ...`.
+#[allow(clippy::too_many_arguments)]
+pub fn screen(
+    path: &Path,
+    vary: &[String],
+    rank: RankBy,
+    hot: Option<f64>,
+    cold: Option<f64>,
+    points: usize,
+    out: Option<&Path>,
+    common: &Common,
+) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let grid = parse_grid(&case, vary)?;
+    let rank = match rank {
+        RankBy::Zt => Rank::Zt,
+        RankBy::PowerFactor => Rank::PowerFactor,
+        RankBy::Cooling => match (hot, cold) {
+            (Some(hot_k), Some(cold_k)) => Rank::Cooling {
+                hot_k,
+                cold_k,
+                points,
+            },
+            _ => {
+                return Err(Failure::BadInput(
+                    "--rank cooling needs --hot K and --cold K (the right lead is the cold one)"
+                        .into(),
+                ));
+            }
+        },
+    };
+    if let Rank::Cooling { hot_k, cold_k, .. } = rank
+        && !(cold_k > 0.0 && hot_k >= cold_k && hot_k.is_finite())
+    {
+        return Err(Failure::BadInput(format!(
+            "expected --hot ≥ --cold > 0, found --hot {hot_k} --cold {cold_k}"
+        )));
+    }
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-screen"));
+    let task = ScreenTask { rank };
+    let table = run_grid(&case, &grid, &task, &out_dir, common, &case.name)?;
+    let order = ranking(&table, rank.column())?;
+    let (rcols, rrows) = ranking_table(&table, &order);
+    let rheaders: Vec<&str> = rcols.iter().map(String::as_str).collect();
+    atomic_write(&out_dir.join("screen.csv"), &table.csv())?;
+    atomic_write(&out_dir.join("ranking.csv"), &csv_bytes(&rheaders, rrows))?;
+    let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
+    summary["rank_by"] = serde_json::json!(rank);
+    summary["ranked_column"] = serde_json::json!(rank.column());
+    let c = table.column(rank.column()).expect("ranked column exists");
+    summary["best"] = serde_json::json!(order.iter().take(5).map(|&i| serde_json::json!({
+        "point": i,
+        "values": grid.names().iter().cloned().zip(table.rows[i].iter().copied()).collect::<std::collections::BTreeMap<_, _>>(),
+        rank.column(): table.rows[i][c],
+    })).collect::<Vec<_>>());
+    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    atomic_write(&out_dir.join("summary.json"), text.as_bytes())?;
+    if common.json {
+        println!("{text}");
+    } else if !common.quiet {
+        println!(
+            "screen            {} points over {}, ranked by {}",
+            grid.len(),
+            grid.names().join(" × "),
+            rank.column()
+        );
+        for (r, &i) in order.iter().take(5).enumerate() {
+            let vals: Vec<String> = grid
+                .names()
+                .iter()
+                .zip(&table.rows[i])
+                .map(|(k, v)| format!("{k} = {v}"))
+                .collect();
+            let score = table.rows[i][c];
+            let shown = match rank {
+                Rank::Zt => format!("ZT = {score:.4}"),
+                Rank::PowerFactor => format!("S²G = {}", si(score, "W/K²", 4)),
+                Rank::Cooling { .. } => format!("cooling power = {}", si(score, "W", 4)),
+            };
+            println!(
+                "  #{:<3} point {:<4} {}  ({})",
+                r + 1,
+                i,
+                shown,
+                vals.join(", ")
+            );
+        }
+        println!(
+            "results           {}",
+            out_dir.join("ranking.csv").display()
+        );
+    }
+    convergence_outcome(&table, &out_dir)
+}

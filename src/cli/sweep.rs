@@ -1,0 +1,161 @@
+//! `qheat sweep`: any numeric case key over a grid, resumable.
+//!
+//! The result folder is a working folder: `points/` keeps every finished
+//! point so that the same command started again recomputes only what is
+//! missing; `sweep.csv` and `summary.json` are (re)written atomically when
+//! the grid is complete.
+
+use super::progress::{PointProgress, enabled};
+use super::solve::load;
+use super::{Common, Failure, available_memory_bytes, check_memory, default_out};
+use qheat::case::Case;
+use qheat::output::atomic_write;
+use qheat::output::results::program;
+use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
+use std::path::{Path, PathBuf};
+
+impl From<SweepError> for Failure {
+    fn from(e: SweepError) -> Self {
+        match e {
+            SweepError::BadAxis { .. } | SweepError::Case { .. } => {
+                Failure::BadInput(e.to_string())
+            }
+            SweepError::Solve { .. } | SweepError::Task { .. } => Failure::Solver(e.to_string()),
+            SweepError::Store(_) => Failure::Io(e.to_string()),
+        }
+    }
+}
+
+/// Parse the --vary options into a grid, checking the keys against the case.
+pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
+    let axes = vary
+        .iter()
+        .map(|s| Axis::parse(s))
+        .collect::<Result<Vec<_>, _>>()?;
+    let grid = Grid::new(axes)?;
+    // One probe per key gives the close-match message for a typo before
+    // any point is checked.
+    for axis in &grid.axes {
+        for key in &axis.keys {
+            case.with_value(key, axis.start)?;
+        }
+    }
+    Ok(grid)
+}
+
+/// Run a grid with a progress bar into `out_dir` (points kept there).
+pub fn run_grid(
+    case: &Case,
+    grid: &Grid,
+    task: &dyn PointTask,
+    out_dir: &Path,
+    common: &Common,
+    label: &str,
+) -> Result<SweepTable, Failure> {
+    let progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
+    let options = SweepOptions {
+        max_parallel_lines: Some(common.threads),
+        memory_budget_bytes: available_memory_bytes().map(|b| b / 10 * 8),
+    };
+    let table = sweep::run(case, grid, task, out_dir, options, &progress);
+    progress.finish();
+    Ok(table?)
+}
+
+/// The common part of a grid summary.
+pub fn grid_summary(
+    kind: &str,
+    case: &Case,
+    path: &Path,
+    grid: &Grid,
+    table: &SweepTable,
+    common: &Common,
+) -> serde_json::Value {
+    serde_json::json!({
+        "program": program(),
+        "kind": kind,
+        "case_name": case.name,
+        "case_file": path.display().to_string(),
+        "threads": common.threads,
+        "axes": grid.axes,
+        "order": "row-major, last axis fastest",
+        "points": grid.len(),
+        "computed_this_run": table.computed,
+        "from_earlier_runs": grid.len() - table.computed,
+        "parallel_lines": table.parallel_lines,
+        "point_store": table.store_dir.display().to_string(),
+        "unconverged_points": table.unconverged(),
+        "converged": table.unconverged().is_empty(),
+        "columns": table.columns,
+        "resolved_case": case.to_toml_string(),
+    })
+}
+
+/// Exit code 2 when some point did not converge (results written, flagged).
+pub fn convergence_outcome(table: &SweepTable, out_dir: &Path) -> Result<(), Failure> {
+    let bad = table.unconverged();
+    if bad.is_empty() {
+        Ok(())
+    } else {
+        Err(Failure::Solver(format!(
+            "{} of {} points did not converge (first: point {}); they are flagged converged = 0 in {}",
+            bad.len(),
+            table.rows.len(),
+            bad[0],
+            out_dir.display()
+        )))
+    }
+}
+
+/// `qheat sweep CASE --vary KEY=START:STOP:COUNT ...`.
+pub fn sweep(
+    path: &Path,
+    vary: &[String],
+    out: Option<&Path>,
+    common: &Common,
+) -> Result<(), Failure> {
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let grid = parse_grid(&case, vary)?;
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-sweep"));
+    let table = run_grid(
+        &case,
+        &grid,
+        &sweep::ObservablesTask,
+        &out_dir,
+        common,
+        &case.name,
+    )?;
+    atomic_write(&out_dir.join("sweep.csv"), &table.csv())?;
+    let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
+    summary["warm_start"] = serde_json::json!(
+        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match"
+    );
+    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    atomic_write(&out_dir.join("summary.json"), text.as_bytes())?;
+    if common.json {
+        println!("{text}");
+    } else if !common.quiet {
+        println!(
+            "sweep             {} points over {} ({} computed now, {} from earlier runs, {} line(s) at once)",
+            grid.len(),
+            grid.names().join(" × "),
+            table.computed,
+            grid.len() - table.computed,
+            table.parallel_lines
+        );
+        let bad = table.unconverged();
+        println!(
+            "Born loop         {}",
+            if bad.is_empty() {
+                "converged at every point".to_string()
+            } else {
+                format!("NOT CONVERGED at {} point(s): {:?}", bad.len(), bad)
+            }
+        );
+        println!("results           {}", out_dir.join("sweep.csv").display());
+    }
+    convergence_outcome(&table, &out_dir)
+}

@@ -1,0 +1,207 @@
+//! Parameter grids: axes `KEY=START:STOP:COUNT`, row-major order with the
+//! last axis fastest.
+
+use super::SweepError;
+use crate::case::Case;
+
+/// One axis of a grid: a case key (or several keys moved together, joined
+/// by `+`) and its evenly spaced values.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Axis {
+    /// The keys set to each value (usually one).
+    pub keys: Vec<String>,
+    /// First value.
+    pub start: f64,
+    /// Last value.
+    pub stop: f64,
+    /// Number of values (≥ 1).
+    pub count: usize,
+}
+
+impl Axis {
+    /// Parse `KEY=START:STOP:COUNT`; `KEY` may be `KEY1+KEY2` to set several
+    /// keys to the same value (for example both lead Fermi levels).
+    pub fn parse(spec: &str) -> Result<Axis, SweepError> {
+        let bad = |why: &str| SweepError::BadAxis {
+            spec: spec.to_string(),
+            reason: why.to_string(),
+        };
+        let (key, range) = spec
+            .split_once('=')
+            .ok_or_else(|| bad("expected KEY=START:STOP:COUNT, found no `=`"))?;
+        let keys: Vec<String> = key.split('+').map(|k| k.trim().to_string()).collect();
+        if keys.iter().any(String::is_empty) {
+            return Err(bad("expected a case key before `=`, found an empty key"));
+        }
+        let parts: Vec<&str> = range.split(':').collect();
+        if parts.len() != 3 {
+            return Err(bad(&format!(
+                "expected START:STOP:COUNT, found {} field(s)",
+                parts.len()
+            )));
+        }
+        let num = |s: &str, what: &str| -> Result<f64, SweepError> {
+            s.trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| bad(&format!("expected a finite number for {what}, found `{s}`")))
+        };
+        let start = num(parts[0], "START")?;
+        let stop = num(parts[1], "STOP")?;
+        let count: usize = parts[2]
+            .trim()
+            .parse()
+            .ok()
+            .filter(|&c| c >= 1)
+            .ok_or_else(|| {
+                bad(&format!(
+                    "expected a whole number ≥ 1 for COUNT, found `{}`",
+                    parts[2]
+                ))
+            })?;
+        if count == 1 && start != stop {
+            return Err(bad("COUNT = 1 needs START = STOP"));
+        }
+        Ok(Axis {
+            keys,
+            start,
+            stop,
+            count,
+        })
+    }
+
+    /// Column name: the key, or the keys joined by `+`.
+    pub fn name(&self) -> String {
+        self.keys.join("+")
+    }
+
+    /// The i-th value: (start (n − i) + stop i)/n with n = count − 1, the end
+    /// points exact (symmetric grids come out symmetric).
+    pub fn value(&self, i: usize) -> f64 {
+        if self.count == 1 || i == 0 {
+            self.start
+        } else if i + 1 == self.count {
+            self.stop
+        } else {
+            let n = (self.count - 1) as f64;
+            let t = i as f64;
+            (self.start * (n - t) + self.stop * t) / n
+        }
+    }
+
+    /// The axis as it was given (for hashing and reports).
+    pub fn spec(&self) -> String {
+        format!(
+            "{}={}:{}:{}",
+            self.name(),
+            crate::output::format_number(self.start),
+            crate::output::format_number(self.stop),
+            self.count
+        )
+    }
+}
+
+/// A grid over one or more axes, row-major (last axis fastest).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Grid {
+    /// The axes, slowest first.
+    pub axes: Vec<Axis>,
+}
+
+impl Grid {
+    /// A grid from parsed axes (at least one).
+    pub fn new(axes: Vec<Axis>) -> Result<Grid, SweepError> {
+        if axes.is_empty() {
+            return Err(SweepError::BadAxis {
+                spec: String::new(),
+                reason: "expected at least one --vary KEY=START:STOP:COUNT".into(),
+            });
+        }
+        Ok(Grid { axes })
+    }
+
+    /// Number of points.
+    pub fn len(&self) -> usize {
+        self.axes.iter().map(|a| a.count).product()
+    }
+
+    /// Always false: every axis has at least one value.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Points along the fastest axis: one line of the grid.
+    pub fn line_length(&self) -> usize {
+        self.axes.last().map(|a| a.count).unwrap_or(1)
+    }
+
+    /// Number of lines (points / line length).
+    pub fn lines(&self) -> usize {
+        self.len() / self.line_length()
+    }
+
+    /// Axis indices of point `index` (row-major, last axis fastest).
+    pub fn indices(&self, mut index: usize) -> Vec<usize> {
+        let mut out = vec![0; self.axes.len()];
+        for (slot, axis) in out.iter_mut().zip(&self.axes).rev() {
+            *slot = index % axis.count;
+            index /= axis.count;
+        }
+        out
+    }
+
+    /// Axis values of point `index`.
+    pub fn values(&self, index: usize) -> Vec<f64> {
+        self.indices(index)
+            .iter()
+            .zip(&self.axes)
+            .map(|(&i, a)| a.value(i))
+            .collect()
+    }
+
+    /// Column names of the axes.
+    pub fn names(&self) -> Vec<String> {
+        self.axes.iter().map(Axis::name).collect()
+    }
+
+    /// The case at point `index`: every axis key set to its value.
+    pub fn case_at(&self, case: &Case, index: usize) -> Result<Case, SweepError> {
+        let mut c = case.clone();
+        for (axis, v) in self.axes.iter().zip(self.values(index)) {
+            for key in &axis.keys {
+                c = c.with_value(key, v).map_err(|e| SweepError::Case {
+                    point: index,
+                    source: Box::new(e),
+                })?;
+            }
+        }
+        Ok(c)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn parse_and_order() {
+        let g = Grid::new(vec![
+            Axis::parse("a=0:1:3").unwrap(),
+            Axis::parse("b+c=10:20:2").unwrap(),
+        ])
+        .unwrap();
+        assert_eq!(g.len(), 6);
+        assert_eq!(g.lines(), 3);
+        assert_eq!(g.values(0), vec![0.0, 10.0]);
+        assert_eq!(g.values(1), vec![0.0, 20.0]);
+        assert_eq!(g.values(3), vec![0.5, 20.0]);
+        assert_eq!(g.values(5), vec![1.0, 20.0]);
+        assert_eq!(g.names(), vec!["a".to_string(), "b+c".to_string()]);
+        assert!(Axis::parse("a=0:1").is_err());
+        assert!(Axis::parse("a=0:1:0").is_err());
+        assert!(Axis::parse("a=0:x:2").is_err());
+        assert!(Axis::parse("=0:1:2").is_err());
+        assert!(Axis::parse("a=0:1:1").is_err());
+    }
+}
