@@ -4,6 +4,7 @@
 mod coefficients;
 mod format;
 mod progress;
+mod report;
 mod solve;
 
 use clap::{Parser, Subcommand};
@@ -57,6 +58,12 @@ pub enum Command {
         /// Result folder (default: runs/<case name>-coefficients).
         #[arg(short, long)]
         out: Option<PathBuf>,
+    },
+    /// Write DIR/report.html: one self-contained page with the values,
+    /// figures and resolved case of a result folder.
+    Report {
+        /// Result folder.
+        dir: PathBuf,
     },
 }
 
@@ -148,6 +155,7 @@ pub fn run() -> ExitCode {
         Command::Coefficients { case, out } => {
             coefficients::coefficients(case, out.as_deref(), &common)
         }
+        Command::Report { dir } => report::report(dir, &common),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
