@@ -320,6 +320,9 @@ fn line_chart_draws_each_series_and_labelled_reference_lines() {
     // Few points: a marker on each.
     assert_eq!(count(&doc, "circle", "fill", style::SERIES[0]), 5);
     assert!(has_text(&doc, "η_C = 0.0645"), "{:?}", texts(&doc));
+    // Dashed: several short pieces per reference line.
+    assert!(count(&doc, "polyline", "stroke", style::REFERENCE[0]) > 5);
+    assert!(count(&doc, "polyline", "stroke", style::REFERENCE[1]) > 5);
     assert!(has_text(&doc, "η_CA = 0.0328"));
     assert!(has_text(&doc, "load voltage (mV)") && has_text(&doc, "power (nW)"));
 

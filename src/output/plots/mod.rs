@@ -253,8 +253,9 @@ pub(crate) fn raster_uri(
 }
 
 /// A line chart: one coloured line per series (markers too when a series
-/// has few points) and dashed horizontal reference lines with their labels
-/// (for example the Carnot and Curzon–Ahlborn efficiencies).
+/// has few points) and dashed horizontal reference lines named with their
+/// values in the legend (for example the Carnot and Curzon–Ahlborn
+/// efficiencies).
 pub fn line_chart_svg(
     title: &str,
     x_label: &str,
@@ -320,6 +321,20 @@ pub fn line_chart_svg(
     if entries.len() < 2 && reference_lines.is_empty() {
         entries.clear();
     }
+    // Reference lines are named in the legend: labels written at the lines
+    // collide when two references lie close together.
+    entries.extend(
+        reference_lines
+            .iter()
+            .enumerate()
+            .filter(|(_, r)| r.1.is_finite())
+            .map(|(k, (label, value))| {
+                (
+                    Mark::Line(REFERENCE[k % REFERENCE.len()], true),
+                    format!("{label} = {}", short(*value)),
+                )
+            }),
+    );
     let legend_h = legend_height(&entries, (MARGIN_LEFT + Y_AREA) as i32, width as i32);
     let height = 520 + legend_h;
     render(title, (width, height), |root, _| {
@@ -352,7 +367,7 @@ pub fn line_chart_svg(
             .light_line_style(WHITE.mix(0.0))
             .axis_style(INK)
             .draw()?;
-        for (k, (label, value)) in reference_lines.iter().enumerate() {
+        for (k, (_, value)) in reference_lines.iter().enumerate() {
             if !value.is_finite() {
                 continue;
             }
@@ -363,13 +378,6 @@ pub fn line_chart_svg(
                 5,
                 c.stroke_width(2),
             ))?;
-            chart.draw_series(std::iter::once(Text::new(
-                format!("{label} = {}", short(*value)),
-                (x1, *value),
-                tick_font()
-                    .color(&c)
-                    .pos(Pos::new(HPos::Right, VPos::Bottom)),
-            )))?;
         }
         for (i, s) in series.iter().enumerate() {
             let c = SERIES[i % SERIES.len()];
