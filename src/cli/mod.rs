@@ -5,6 +5,7 @@ mod coefficients;
 mod curves;
 mod format;
 mod progress;
+mod report;
 mod screen;
 mod solve;
 mod sweep;
@@ -135,6 +136,12 @@ pub enum Command {
         /// runs/<case name>-screen).
         #[arg(short, long)]
         out: Option<PathBuf>,
+    },
+    /// Write DIR/report.html: one self-contained page with the values,
+    /// figures and resolved case of a result folder.
+    Report {
+        /// Result folder.
+        dir: PathBuf,
     },
 }
 
@@ -268,6 +275,7 @@ pub fn run() -> ExitCode {
             out.as_deref(),
             &common,
         ),
+        Command::Report { dir } => report::report(dir, &common),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,

@@ -185,6 +185,7 @@ pub fn solve(
     let summary = solve_summary(&sol, &o, &info);
     let stage = Staging::new(&out_dir)?;
     write_solve_files(&stage, &sol, &o, &summary)?;
+    qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
     stage.commit()?;
     if common.json {
         println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));

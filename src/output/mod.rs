@@ -8,6 +8,8 @@
 //! the instant between the two renames, the old folder under a `.old-`
 //! name) and never a mix of old and new files.
 
+pub mod plots;
+pub mod report;
 pub mod results;
 
 use std::fs;
@@ -31,6 +33,22 @@ pub enum OutputError {
     #[error("encoding {path}: {message}")]
     Encode {
         /// The path.
+        path: PathBuf,
+        /// What went wrong.
+        message: String,
+    },
+    /// Drawing a figure failed or its data cannot be drawn.
+    #[error("figure {figure}: {message}")]
+    Plot {
+        /// The figure (file name or title).
+        figure: String,
+        /// What went wrong, with the numbers involved.
+        message: String,
+    },
+    /// A result folder cannot be reported on.
+    #[error("report of {path}: {message}")]
+    Report {
+        /// The folder.
         path: PathBuf,
         /// What went wrong.
         message: String,

@@ -1,0 +1,32 @@
+//! `qheat report DIR`.
+
+use super::{Common, Failure};
+use qheat::output::atomic_write;
+use qheat::output::report::build_report;
+use std::path::Path;
+
+/// Write DIR/report.html: one self-contained page with the folder's
+/// values, figures and resolved case; print its path.
+pub fn report(dir: &Path, common: &Common) -> Result<(), Failure> {
+    if !dir.is_dir() {
+        return Err(Failure::BadInput(format!(
+            "{} is not a result folder (no such directory)",
+            dir.display()
+        )));
+    }
+    let html = build_report(dir).map_err(|e| match e {
+        qheat::output::OutputError::Report { .. } => Failure::BadInput(e.to_string()),
+        other => Failure::from(other),
+    })?;
+    let path = dir.join("report.html");
+    atomic_write(&path, html.as_bytes())?;
+    if common.json {
+        println!(
+            "{}",
+            serde_json::json!({ "report": path.display().to_string(), "bytes": html.len() })
+        );
+    } else if !common.quiet {
+        println!("{}", path.display());
+    }
+    Ok(())
+}

@@ -1,0 +1,134 @@
+//! A small RGB image as a PNG data URI, so that a dense map is one `<image>`
+//! element in an SVG instead of tens of thousands of rectangles.
+//!
+//! The PNG is written uncompressed (deflate "stored" blocks): a map of a few
+//! hundred by a few hundred pixels stays well under a megabyte and the
+//! encoder needs no compression library. Format: W3C, Portable Network
+//! Graphics (PNG) Specification, 2nd ed. (2003); RFC 1950 (zlib) and
+//! RFC 1951 (deflate) for the stored blocks.
+
+fn crc32(bytes: &[u8]) -> u32 {
+    let mut table = [0u32; 256];
+    for (n, slot) in table.iter_mut().enumerate() {
+        let mut c = n as u32;
+        for _ in 0..8 {
+            c = if c & 1 != 0 {
+                0xedb8_8320 ^ (c >> 1)
+            } else {
+                c >> 1
+            };
+        }
+        *slot = c;
+    }
+    let mut c = 0xffff_ffffu32;
+    for &b in bytes {
+        c = table[((c ^ b as u32) & 0xff) as usize] ^ (c >> 8);
+    }
+    c ^ 0xffff_ffff
+}
+
+fn adler32(bytes: &[u8]) -> u32 {
+    let (mut a, mut b) = (1u32, 0u32);
+    for chunk in bytes.chunks(5552) {
+        for &x in chunk {
+            a += x as u32;
+            b += a;
+        }
+        a %= 65521;
+        b %= 65521;
+    }
+    (b << 16) | a
+}
+
+fn chunk(out: &mut Vec<u8>, kind: &[u8; 4], data: &[u8]) {
+    out.extend_from_slice(&(data.len() as u32).to_be_bytes());
+    let start = out.len();
+    out.extend_from_slice(kind);
+    out.extend_from_slice(data);
+    let crc = crc32(&out[start..]);
+    out.extend_from_slice(&crc.to_be_bytes());
+}
+
+/// PNG bytes of an 8-bit RGB image, rows top to bottom, `rgb.len() ==
+/// 3 * width * height`.
+pub fn png_rgb(width: usize, height: usize, rgb: &[u8]) -> Vec<u8> {
+    assert_eq!(rgb.len(), 3 * width * height, "RGB buffer size");
+    let mut raw = Vec::with_capacity((3 * width + 1) * height);
+    for row in rgb.chunks(3 * width.max(1)).take(height) {
+        raw.push(0); // filter: none
+        raw.extend_from_slice(row);
+    }
+    let mut z = vec![0x78, 0x01];
+    if raw.is_empty() {
+        z.extend_from_slice(&[1, 0, 0, 0xff, 0xff]);
+    }
+    let blocks = raw.chunks(65535).count();
+    for (i, block) in raw.chunks(65535).enumerate() {
+        z.push(u8::from(i + 1 == blocks));
+        let len = block.len() as u16;
+        z.extend_from_slice(&len.to_le_bytes());
+        z.extend_from_slice(&(!len).to_le_bytes());
+        z.extend_from_slice(block);
+    }
+    z.extend_from_slice(&adler32(&raw).to_be_bytes());
+
+    let mut out = vec![0x89, b'P', b'N', b'G', 0x0d, 0x0a, 0x1a, 0x0a];
+    let mut ihdr = Vec::with_capacity(13);
+    ihdr.extend_from_slice(&(width as u32).to_be_bytes());
+    ihdr.extend_from_slice(&(height as u32).to_be_bytes());
+    ihdr.extend_from_slice(&[8, 2, 0, 0, 0]); // 8 bit, RGB, deflate, no filter, no interlace
+    chunk(&mut out, b"IHDR", &ihdr);
+    chunk(&mut out, b"IDAT", &z);
+    chunk(&mut out, b"IEND", &[]);
+    out
+}
+
+/// Standard base64 (RFC 4648, with padding).
+pub fn base64(bytes: &[u8]) -> String {
+    const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut s = String::with_capacity(bytes.len().div_ceil(3) * 4);
+    for c in bytes.chunks(3) {
+        let n = (c[0] as u32) << 16
+            | (c.get(1).copied().unwrap_or(0) as u32) << 8
+            | c.get(2).copied().unwrap_or(0) as u32;
+        for k in 0..4 {
+            if k <= c.len() {
+                s.push(ALPHABET[((n >> (18 - 6 * k)) & 63) as usize] as char);
+            } else {
+                s.push('=');
+            }
+        }
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn checksums_match_published_values() {
+        // Check values from common practice: CRC-32 of "123456789" is
+        // 0xCBF43926; Adler-32 of "Wikipedia" is 0x11E60398 (RFC 1950 algorithm).
+        assert_eq!(crc32(b"123456789"), 0xcbf4_3926);
+        assert_eq!(adler32(b"Wikipedia"), 0x11e6_0398);
+    }
+
+    #[test]
+    fn base64_pads() {
+        // RFC 4648 section 10 test vectors.
+        assert_eq!(base64(b"f"), "Zg==");
+        assert_eq!(base64(b"fo"), "Zm8=");
+        assert_eq!(base64(b"foo"), "Zm9v");
+        assert_eq!(base64(b"foobar"), "Zm9vYmFy");
+    }
+
+    #[test]
+    fn png_has_signature_and_sizes() {
+        let png = png_rgb(2, 1, &[255, 0, 0, 0, 0, 255]);
+        assert_eq!(&png[..8], &[0x89, b'P', b'N', b'G', 0x0d, 0x0a, 0x1a, 0x0a]);
+        assert_eq!(&png[12..16], b"IHDR");
+        assert_eq!(u32::from_be_bytes(png[16..20].try_into().unwrap()), 2);
+        assert_eq!(u32::from_be_bytes(png[20..24].try_into().unwrap()), 1);
+    }
+}

@@ -1,0 +1,760 @@
+//! One self-contained HTML page for a result folder: the case name, a
+//! table of the recorded values with units, the conservation ledger, every
+//! figure (inline SVG, the headline figure first), tables of sweep files
+//! and the resolved case. No external resources: the page opens offline
+//! and can be mailed as one file.
+//!
+//! The page shows what the folder holds and nothing else, so that a folder
+//! with only a summary (coefficients) or only a sweep table and its figures
+//! reports as well as a full solve.
+
+use super::OutputError;
+use serde_json::{Map, Value};
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+/// Figures in the order a reader wants them; others follow by name.
+const FIGURE_ORDER: [&str; 4] = [
+    "device.svg",
+    "spectrum.svg",
+    "bond_current.svg",
+    "convergence.svg",
+];
+
+/// Data files of a solve, listed but not tabulated (they are long).
+const DATA_FILES: [(&str, &str); 7] = [
+    (
+        "sites.csv",
+        "per cell: position, band edge, local Fermi level, lattice power, density, drop",
+    ),
+    (
+        "spectrum.csv",
+        "per energy: flows from each lead and from the bath",
+    ),
+    (
+        "convergence.csv",
+        "per Born iteration: residual and terminal currents",
+    ),
+    (
+        "bond_current.npy",
+        "energy-resolved bond current, (cells − 1) × energies, A/eV",
+    ),
+    (
+        "self_energy_retarded.npy",
+        "scattering self-energy (retarded) for warm starts",
+    ),
+    (
+        "self_energy_in.npy",
+        "scattering in-scattering function for warm starts",
+    ),
+    (
+        "summary.json",
+        "every scalar result, the ledger and the resolved case",
+    ),
+];
+
+/// Rows of a tabulated CSV shown at most.
+const MAX_TABLE_ROWS: usize = 500;
+
+fn report_error(path: &Path, message: impl Into<String>) -> OutputError {
+    OutputError::Report {
+        path: path.to_path_buf(),
+        message: message.into(),
+    }
+}
+
+/// Escape text for HTML element content and attribute values.
+pub fn escape(text: &str) -> String {
+    let mut s = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => s.push_str("&amp;"),
+            '<' => s.push_str("&lt;"),
+            '>' => s.push_str("&gt;"),
+            '"' => s.push_str("&quot;"),
+            '\'' => s.push_str("&#39;"),
+            _ => s.push(c),
+        }
+    }
+    s
+}
+
+/// A number with an SI prefix and four significant figures.
+pub fn si(value: f64, unit: &str) -> String {
+    if value == 0.0 {
+        return format!("0 {unit}");
+    }
+    if !value.is_finite() {
+        return format!("{value} {unit}");
+    }
+    const PREFIXES: [(&str, f64); 11] = [
+        ("T", 1e12),
+        ("G", 1e9),
+        ("M", 1e6),
+        ("k", 1e3),
+        ("", 1.0),
+        ("m", 1e-3),
+        ("µ", 1e-6),
+        ("n", 1e-9),
+        ("p", 1e-12),
+        ("f", 1e-15),
+        ("a", 1e-18),
+    ];
+    let mag = value.abs();
+    let Some((p, scale)) = PREFIXES.iter().copied().find(|(_, s)| mag >= *s * 0.99995) else {
+        return format!("{value:.3e} {unit}");
+    };
+    let scaled = value / scale;
+    let int_digits = (scaled.abs().log10().floor() as i64 + 1).max(1) as usize;
+    let decimals = 4usize.saturating_sub(int_digits);
+    format!("{scaled:.decimals$} {p}{unit}")
+}
+
+/// Unit from the key's suffix (the project writes units into key names).
+fn unit_of(key: &str) -> Option<(&'static str, &str)> {
+    const SUFFIXES: [(&str, &str); 16] = [
+        ("_w_per_k2", "W/K²"),
+        ("_w_per_k", "W/K"),
+        ("_v_per_k", "V/K"),
+        ("_a_per_ev", "A/eV"),
+        ("_per_nm", "1/nm"),
+        ("_ev2", "eV²"),
+        ("_ev", "eV"),
+        ("_nm", "nm"),
+        ("_k", "K"),
+        ("_a", "A"),
+        ("_w", "W"),
+        ("_v", "V"),
+        ("_s", "S"),
+        ("_bytes", "B"),
+        ("_j", "J"),
+        ("_m", "m"),
+    ];
+    SUFFIXES
+        .iter()
+        .find(|(s, _)| key.ends_with(s) && key.len() > s.len())
+        .map(|(s, u)| (*u, &key[..key.len() - s.len()]))
+}
+
+/// Units shown with SI prefixes.
+const PREFIXED: [&str; 9] = ["A", "W", "V", "S", "W/K", "V/K", "W/K²", "A/eV", "eV"];
+
+/// Keys shown first, in this order; others follow alphabetically.
+const ORDER: [&str; 24] = [
+    "voltage_v",
+    "current_a",
+    "conductance_s",
+    "electrical_power_w",
+    "heat_current_left_w",
+    "heat_current_right_w",
+    "lattice_power_w",
+    "energy_current_left_w",
+    "energy_current_right_w",
+    "current_left_a",
+    "current_right_a",
+    "contact_drop_left_v",
+    "fermi_level_left_ev",
+    "fermi_level_right_ev",
+    "temperature_left_k",
+    "temperature_right_k",
+    "charge_a",
+    "charge_relative",
+    "energy_w",
+    "energy_relative",
+    "heat_w",
+    "heat_relative",
+    "conductance_s",
+    "seebeck_v_per_k",
+];
+
+fn ordered(obj: &Map<String, Value>) -> Vec<(&String, &Value)> {
+    let mut v: Vec<_> = obj.iter().collect();
+    v.sort_by_key(|(k, _)| {
+        (
+            ORDER.iter().position(|o| o == k).unwrap_or(ORDER.len()),
+            k.to_string(),
+        )
+    });
+    v
+}
+
+/// A reader's name for well-known keys.
+fn known_name(key: &str) -> Option<&'static str> {
+    Some(match key {
+        "voltage_v" => "applied voltage V",
+        "current_a" => "current I",
+        "current_left_a" => "current from the left contact I₁",
+        "current_right_a" => "current from the right contact I₂",
+        "energy_current_left_w" => "energy current from the left contact",
+        "energy_current_right_w" => "energy current from the right contact",
+        "heat_current_left_w" => "heat current out of the left contact",
+        "heat_current_right_w" => "heat current out of the right contact",
+        "lattice_power_w" => "lattice power, all cells",
+        "electrical_power_w" => "electrical power I·V",
+        "conductance_s" => "conductance G = I/V",
+        "contact_drop_left_v" => "Fermi-level drop into the left contact",
+        "charge_a" => "charge residual I₁ + I₂",
+        "charge_relative" => "charge residual, relative",
+        "energy_w" => "energy residual",
+        "energy_relative" => "energy residual, relative",
+        "heat_w" => "heat residual ΣP − (I·V + J_Q1 + J_Q2)",
+        "heat_relative" => "heat residual, relative",
+        "seebeck_v_per_k" => "Seebeck coefficient S",
+        "peltier_v" => "Peltier coefficient Π",
+        "thermal_conductance_w_per_k" => "electronic thermal conductance κe",
+        "lorenz_ratio" => "Lorenz ratio κe/(G T L₀)",
+        "power_factor_w_per_k2" => "power factor S²G",
+        "zt" => "figure of merit ZT",
+        "kelvin_residual" => "Kelvin (Onsager) residual",
+        "phonon_conductance_w_per_k" => "phonon thermal conductance κph",
+        "fermi_level_left_ev" => "left lead Fermi level µ₁",
+        "fermi_level_right_ev" => "right lead Fermi level µ₂",
+        "temperature_left_k" => "left lead temperature",
+        "temperature_right_k" => "right lead temperature",
+        _ => return None,
+    })
+}
+
+/// One table cell for a JSON value under `key`.
+fn show_value(key: &str, v: &Value) -> String {
+    match v {
+        Value::Null => "—".into(),
+        Value::Bool(b) => if *b { "yes" } else { "no" }.into(),
+        Value::String(s) => escape(s),
+        Value::Number(n) => {
+            let Some(x) = n.as_f64() else {
+                return escape(&n.to_string());
+            };
+            if n.is_i64() || n.is_u64() {
+                return match unit_of(key) {
+                    Some((u, _)) => format!("{n} {u}"),
+                    None => n.to_string(),
+                };
+            }
+            match unit_of(key) {
+                // Prefixes only where they read naturally (no "mnm", no
+                // "meV²" for 1e-3 eV²).
+                Some((u, _)) if PREFIXED.contains(&u) => escape(&si(x, u)),
+                Some((u, _)) => format!("{} {u}", trim(x)),
+                None if key.contains("relative") || key.contains("residual") => {
+                    format!("{x:.2e}")
+                }
+                None => trim(x),
+            }
+        }
+        Value::Array(a) => {
+            if a.len() <= 8 && a.iter().all(|x| !x.is_object() && !x.is_array()) {
+                a.iter()
+                    .map(|x| show_value(key, x))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            } else {
+                format!("[{} entries]", a.len())
+            }
+        }
+        Value::Object(o) => format!("{{{} entries}}", o.len()),
+    }
+}
+
+/// Plain number with up to six significant figures.
+fn trim(x: f64) -> String {
+    if x == 0.0 {
+        return "0".into();
+    }
+    let a = x.abs();
+    if (1e-3..1e6).contains(&a) {
+        let d = (5 - a.log10().floor() as i32).clamp(0, 9) as usize;
+        let s = format!("{x:.d$}");
+        if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        }
+    } else {
+        format!("{x:.4e}")
+    }
+}
+
+fn label_of(key: &str) -> String {
+    if let Some(n) = known_name(key) {
+        return n.to_string();
+    }
+    let base = unit_of(key).map(|(_, b)| b).unwrap_or(key);
+    base.replace('_', " ")
+}
+
+/// Rows (label, value) of an object, nested objects flattened with a
+/// "parent / child" label.
+fn rows_of(prefix: &str, obj: &Map<String, Value>, out: &mut Vec<(String, String)>) {
+    for (k, v) in ordered(obj) {
+        let label = if prefix.is_empty() {
+            label_of(k)
+        } else {
+            format!("{prefix} / {}", label_of(k))
+        };
+        match v {
+            Value::Object(inner) => rows_of(&label, inner, out),
+            Value::Array(items) if items.iter().all(Value::is_object) && !items.is_empty() => {
+                for (i, item) in items.iter().enumerate() {
+                    if let Value::Object(inner) = item {
+                        rows_of(&format!("{label} {}", i + 1), inner, out);
+                    }
+                }
+            }
+            _ => out.push((escape(&label), show_value(k, v))),
+        }
+    }
+}
+
+fn table(html: &mut String, rows: &[(String, String)]) {
+    html.push_str("<table class=\"values\"><tbody>\n");
+    for (k, v) in rows {
+        let _ = writeln!(html, "<tr><th>{k}</th><td>{v}</td></tr>");
+    }
+    html.push_str("</tbody></table>\n");
+}
+
+/// The convergence section of a solve summary.
+fn convergence_rows(summary: &Map<String, Value>) -> Vec<(String, String)> {
+    let mut rows = Vec::new();
+    if let Some(Value::Bool(c)) = summary.get("coherent") {
+        rows.push((
+            "transport".into(),
+            if *c {
+                "coherent (no scattering inside the device, no Born loop)".into()
+            } else {
+                "with scattering (self-consistent Born loop)".into()
+            },
+        ));
+    }
+    if let Some(Value::Bool(c)) = summary.get("converged") {
+        rows.push((
+            "converged".into(),
+            if *c {
+                "yes".into()
+            } else {
+                "<strong class=\"bad\">NO: results are flagged as not trustworthy</strong>".into()
+            },
+        ));
+    }
+    if let Some(Value::Object(scba)) = summary.get("scba") {
+        if let Some(n) = scba.get("iterations") {
+            rows.push(("Born iterations".into(), show_value("iterations", n)));
+        }
+        if let Some(Value::Array(h)) = scba.get("history")
+            && let Some(Value::Object(last)) = h.last()
+            && let Some(r) = last.get("residual")
+        {
+            rows.push(("last residual".into(), show_value("residual", r)));
+        }
+        if let Some(Value::Object(p)) = scba.get("params")
+            && let Some(t) = p.get("tolerance")
+        {
+            rows.push(("tolerance".into(), show_value("relative", t)));
+        }
+    }
+    if let Some(h) = summary.get("hermitian_part") {
+        rows.push((
+            "Hermitian part of the phonon self-energy".into(),
+            show_value("hermitian_part", h),
+        ));
+    }
+    rows
+}
+
+const CSS: &str = "
+body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;color:#22262e;margin:0;background:#fafaf7}
+main{max-width:1060px;margin:0 auto;padding:24px 28px 60px}
+h1{font-size:1.7em;margin:0.2em 0 0.1em}
+h2{font-size:1.25em;margin:1.6em 0 0.5em;border-bottom:2px solid #e4e6ea;padding-bottom:4px}
+p.meta{color:#5a606b;margin:0 0 1em}
+table{border-collapse:collapse;margin:0.4em 0;font-size:0.95em;background:#fff}
+table.values th{text-align:left;font-weight:normal;color:#3b475c;padding:4px 18px 4px 8px}
+table.values td{font-variant-numeric:tabular-nums;padding:4px 8px}
+table.values tr:nth-child(even){background:#f3f2ee}
+table.data th,table.data td{border:1px solid #e4e6ea;padding:3px 8px;text-align:right;font-variant-numeric:tabular-nums}
+table.data th{background:#f3f2ee}
+figure{margin:1.2em 0;background:#fff;border:1px solid #e4e6ea;padding:8px}
+figure svg{display:block;max-width:100%;height:auto}
+figcaption{color:#5a606b;font-size:0.9em;margin-bottom:6px}
+pre{background:#fff;border:1px solid #e4e6ea;padding:12px;overflow-x:auto;font-size:0.9em}
+.bad{color:#a02c2c}
+ul.notes li{margin:0.3em 0}
+.banner{background:#fbe9e4;border:1px solid #d9a89a;padding:10px 14px;margin:1em 0}
+";
+
+/// Build the HTML page of a result folder.
+///
+/// Errors when the folder cannot be read, holds nothing to show (no
+/// summary.json, figure or CSV table) or a file in it cannot be read.
+pub fn build_report(dir: &Path) -> Result<String, OutputError> {
+    let entries = std::fs::read_dir(dir).map_err(|source| OutputError::Io {
+        action: "listing",
+        path: dir.to_path_buf(),
+        source,
+    })?;
+    let mut files: Vec<PathBuf> = entries
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.is_file())
+        .filter(|p| {
+            p.file_name()
+                .and_then(|n| n.to_str())
+                .is_some_and(|n| !n.starts_with('.'))
+        })
+        .collect();
+    files.sort();
+    let name_of = |p: &Path| {
+        p.file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    };
+    let read = |p: &Path| {
+        std::fs::read_to_string(p).map_err(|source| OutputError::Io {
+            action: "reading",
+            path: p.to_path_buf(),
+            source,
+        })
+    };
+
+    let summary_path = dir.join("summary.json");
+    let mut summary_problem = None;
+    let summary: Option<Map<String, Value>> = if summary_path.is_file() {
+        match serde_json::from_str::<Value>(&read(&summary_path)?) {
+            Ok(Value::Object(m)) => Some(m),
+            Ok(_) => {
+                summary_problem = Some("summary.json does not hold a JSON object".to_string());
+                None
+            }
+            Err(e) => {
+                summary_problem = Some(format!("summary.json cannot be read as JSON: {e}"));
+                None
+            }
+        }
+    } else {
+        None
+    };
+
+    let mut figures: Vec<PathBuf> = files
+        .iter()
+        .filter(|p| p.extension().is_some_and(|e| e == "svg"))
+        .cloned()
+        .collect();
+    figures.sort_by_key(|p| {
+        let n = name_of(p);
+        (
+            FIGURE_ORDER
+                .iter()
+                .position(|f| *f == n)
+                .unwrap_or(FIGURE_ORDER.len()),
+            n,
+        )
+    });
+    let known_data = |n: &str| DATA_FILES.iter().any(|(f, _)| *f == n);
+    let tables: Vec<PathBuf> = files
+        .iter()
+        .filter(|p| p.extension().is_some_and(|e| e == "csv") && !known_data(&name_of(p)))
+        .cloned()
+        .collect();
+    if summary.is_none() && summary_problem.is_none() && figures.is_empty() && tables.is_empty() {
+        return Err(report_error(
+            dir,
+            "nothing to report: the folder has no summary.json, no .svg figure and no .csv table",
+        ));
+    }
+
+    let folder_name = dir
+        .canonicalize()
+        .ok()
+        .and_then(|p| p.file_name().map(|n| n.to_string_lossy().into_owned()))
+        .unwrap_or_else(|| dir.display().to_string());
+    let get_str = |k: &str| {
+        summary
+            .as_ref()
+            .and_then(|s| s.get(k))
+            .and_then(Value::as_str)
+            .map(str::to_string)
+    };
+    let case_name = get_str("case_name").unwrap_or_else(|| folder_name.clone());
+    let kind = get_str("kind");
+
+    let mut html = String::with_capacity(1 << 20);
+    let _ = write!(
+        html,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
+         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+         <title>{} — qheat report</title>\n<style>{CSS}</style>\n</head>\n<body>\n<main>\n",
+        escape(&case_name)
+    );
+    let _ = writeln!(html, "<h1>{}</h1>", escape(&case_name));
+    let mut meta = Vec::new();
+    if let Some(k) = &kind {
+        meta.push(format!("{} run", escape(k)));
+    }
+    if let Some(f) = get_str("case_file") {
+        meta.push(format!("case file <code>{}</code>", escape(&f)));
+    }
+    if let Some(Value::Object(p)) = summary.as_ref().and_then(|s| s.get("program")) {
+        meta.push(format!(
+            "{} {}",
+            escape(p.get("name").and_then(Value::as_str).unwrap_or("")),
+            escape(p.get("version").and_then(Value::as_str).unwrap_or(""))
+        ));
+    }
+    meta.push(format!("folder <code>{}</code>", escape(&folder_name)));
+    let _ = writeln!(html, "<p class=\"meta\">{}</p>", meta.join(" · "));
+
+    if let Some(problem) = &summary_problem {
+        let _ = writeln!(html, "<div class=\"banner\">{}</div>", escape(problem));
+    }
+    if let Some(s) = &summary {
+        if let Some(e) = s.get("error").and_then(Value::as_str) {
+            let _ = writeln!(
+                html,
+                "<div class=\"banner\"><strong>This run failed:</strong> {}</div>",
+                escape(e)
+            );
+        } else if s.get("trustworthy") == Some(&Value::Bool(false)) {
+            html.push_str(
+                "<div class=\"banner\"><strong>Not converged:</strong> the values below are \
+                 flagged as not trustworthy.</div>\n",
+            );
+        }
+        summary_sections(&mut html, s);
+    }
+
+    if !figures.is_empty() {
+        html.push_str("<h2>Figures</h2>\n");
+        for f in &figures {
+            let svg = read(f)?;
+            let body = match svg.find("<svg") {
+                Some(i) => &svg[i..],
+                None => {
+                    return Err(report_error(f, "not an SVG figure: no <svg> element found"));
+                }
+            };
+            let _ = writeln!(
+                html,
+                "<figure id=\"{}\"><figcaption>{}</figcaption>\n{}\n</figure>",
+                escape(&name_of(f)),
+                escape(&name_of(f)),
+                body.trim_end()
+            );
+        }
+    }
+
+    for t in &tables {
+        let _ = writeln!(html, "<h2>Table {}</h2>", escape(&name_of(t)));
+        csv_table(&mut html, t, &read(t)?)?;
+    }
+
+    let data: Vec<(String, &str, u64)> = DATA_FILES
+        .iter()
+        .filter_map(|(n, what)| {
+            let p = dir.join(n);
+            std::fs::metadata(&p)
+                .ok()
+                .filter(|m| m.is_file())
+                .map(|m| (n.to_string(), *what, m.len()))
+        })
+        .collect();
+    if !data.is_empty() {
+        html.push_str("<h2>Data files in this folder</h2>\n<table class=\"values\"><tbody>\n");
+        for (n, what, len) in &data {
+            let _ = writeln!(
+                html,
+                "<tr><th><code>{}</code></th><td>{}</td><td>{}</td></tr>",
+                escape(n),
+                escape(what),
+                escape(&si(*len as f64, "B"))
+            );
+        }
+        html.push_str("</tbody></table>\n");
+    }
+
+    if let Some(case) = get_str("resolved_case") {
+        html.push_str("<h2>Resolved case</h2>\n");
+        let _ = writeln!(html, "<pre>{}</pre>", escape(&case));
+    }
+    html.push_str("</main>\n</body>\n</html>\n");
+    Ok(html)
+}
+
+/// Tables of a summary: results, operating point, convergence, ledger,
+/// warnings and notes, then every other recorded object.
+fn summary_sections(html: &mut String, s: &Map<String, Value>) {
+    let mut shown: Vec<&str> = vec![
+        "program",
+        "kind",
+        "case_name",
+        "case_file",
+        "resolved_case",
+        "error",
+        "trustworthy",
+        "converged",
+        "coherent",
+        "hermitian_part",
+        "scba",
+        "warnings",
+        "notes",
+    ];
+    for (key, heading) in [
+        ("results", "Results"),
+        ("coefficients", "Coefficients"),
+        ("operating_point", "Operating point"),
+    ] {
+        if let Some(Value::Object(o)) = s.get(key) {
+            let _ = writeln!(html, "<h2>{heading}</h2>");
+            let mut rows = Vec::new();
+            rows_of("", o, &mut rows);
+            table(html, &rows);
+            shown.push(key);
+        }
+    }
+    let conv = convergence_rows(s);
+    if !conv.is_empty() {
+        html.push_str("<h2>Convergence</h2>\n");
+        table(html, &conv);
+    }
+    if let Some(Value::Object(l)) = s.get("ledger") {
+        html.push_str(
+            "<h2>Ledger</h2>\n<p>Conservation checks: charge (I₁ + I₂ = 0), energy \
+             (J_E1 + J_E2 = ΣP) and heat (ΣP = I·V + J_Q1 + J_Q2), absolute and relative to \
+             the gross flows.</p>\n",
+        );
+        let mut rows = Vec::new();
+        rows_of("", l, &mut rows);
+        table(html, &rows);
+        shown.push("ledger");
+    }
+    let list = |k: &str| -> Vec<String> {
+        s.get(k)
+            .and_then(Value::as_array)
+            .map(|a| {
+                a.iter()
+                    .map(|v| {
+                        v.as_str()
+                            .map(str::to_string)
+                            .unwrap_or_else(|| v.to_string())
+                    })
+                    .collect()
+            })
+            .unwrap_or_default()
+    };
+    let (warnings, notes) = (list("warnings"), list("notes"));
+    html.push_str("<h2>Warnings and notes</h2>\n");
+    if warnings.is_empty() && notes.is_empty() {
+        html.push_str("<p>None.</p>\n");
+    } else {
+        html.push_str("<ul class=\"notes\">\n");
+        for w in &warnings {
+            let _ = writeln!(
+                html,
+                "<li><strong class=\"bad\">warning:</strong> {}</li>",
+                escape(w)
+            );
+        }
+        for n in &notes {
+            let _ = writeln!(html, "<li>note: {}</li>", escape(n));
+        }
+        html.push_str("</ul>\n");
+    }
+    let mut rest = Vec::new();
+    for (k, v) in s {
+        if shown.contains(&k.as_str()) {
+            continue;
+        }
+        match v {
+            Value::Object(o) => rows_of(&label_of(k), o, &mut rest),
+            Value::Array(items) if items.iter().all(Value::is_object) && !items.is_empty() => {
+                for (i, item) in items.iter().enumerate() {
+                    if let Value::Object(o) = item {
+                        rows_of(&format!("{} {}", label_of(k), i + 1), o, &mut rest);
+                    }
+                }
+            }
+            Value::Array(items) if items.is_empty() => {}
+            _ => rest.push((escape(&label_of(k)), show_value(k, v))),
+        }
+    }
+    if !rest.is_empty() {
+        html.push_str("<h2>Other recorded values</h2>\n");
+        table(html, &rest);
+    }
+}
+
+/// A CSV file as an HTML table (header row, then at most
+/// [`MAX_TABLE_ROWS`] rows).
+fn csv_table(html: &mut String, path: &Path, text: &str) -> Result<(), OutputError> {
+    let mut r = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let headers = r
+        .headers()
+        .map_err(|e| report_error(path, format!("reading the CSV header: {e}")))?
+        .clone();
+    html.push_str("<table class=\"data\"><thead><tr>");
+    for h in &headers {
+        let _ = write!(html, "<th>{}</th>", escape(h));
+    }
+    html.push_str("</tr></thead><tbody>\n");
+    let mut total = 0usize;
+    for rec in r.records() {
+        let rec = rec.map_err(|e| report_error(path, format!("reading row {}: {e}", total + 1)))?;
+        total += 1;
+        if total > MAX_TABLE_ROWS {
+            continue;
+        }
+        html.push_str("<tr>");
+        for cell in &rec {
+            let shown = match cell.parse::<f64>() {
+                Ok(x) if cell.contains(['e', 'E', '.']) => trim(x),
+                _ => cell.to_string(),
+            };
+            let _ = write!(html, "<td>{}</td>", escape(&shown));
+        }
+        html.push_str("</tr>\n");
+    }
+    html.push_str("</tbody></table>\n");
+    if total > MAX_TABLE_ROWS {
+        let _ = writeln!(
+            html,
+            "<p>First {MAX_TABLE_ROWS} of {total} rows shown; the file holds them all.</p>"
+        );
+    } else {
+        let _ = writeln!(html, "<p>{total} rows.</p>");
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn units_come_from_key_suffixes() {
+        assert_eq!(
+            unit_of("heat_current_left_w"),
+            Some(("W", "heat_current_left"))
+        );
+        assert_eq!(unit_of("power_factor_w_per_k2").unwrap().0, "W/K²");
+        assert_eq!(unit_of("zt"), None);
+        assert_eq!(
+            show_value("current_a", &serde_json::json!(-2.434e-6)),
+            "-2.434 µA"
+        );
+        assert_eq!(
+            show_value("temperature_left_k", &serde_json::json!(300.0)),
+            "300 K"
+        );
+        assert_eq!(
+            show_value("charge_relative", &serde_json::json!(8.5e-13)),
+            "8.50e-13"
+        );
+    }
+
+    #[test]
+    fn escaping_covers_markup() {
+        assert_eq!(escape("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");
+    }
+}

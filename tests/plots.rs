@@ -1,0 +1,445 @@
+//! Figures of a solve and the generic charts: each SVG parses as XML and
+//! holds the series, labels and colour bar it promises, and the drawn marks
+//! agree with the numbers they stand for (one heating bar per heated cell,
+//! one residual marker per Born iteration, the map's extreme pixel in the
+//! right column).
+
+use plotters::style::RGBColor;
+use qheat::case::Case;
+use qheat::observables::{Observables, bond_current_map, observe};
+use qheat::output::Staging;
+use qheat::output::plots::{
+    self, Series, bar_chart_svg, heat_map_svg, line_chart_svg, style, write_solve_plots,
+};
+use qheat::output::results::{RunInfo, solve_summary, write_solve_files};
+use qheat::scba::{Silent, Solution, solve};
+use std::path::{Path, PathBuf};
+
+fn demo(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("cases-demo")
+        .join(format!("{name}.toml"))
+}
+
+/// Solve a demo case through the library and write its result folder.
+fn solve_into(name: &str, out: &Path) -> (Solution, Observables) {
+    let case = Case::load(&demo(name)).unwrap();
+    let resolved = case.resolve().unwrap();
+    let sol = solve(&resolved.problem, &resolved.scba, None, &mut Silent).unwrap();
+    let o = observe(&sol);
+    let toml = case.to_toml_string();
+    let info = RunInfo {
+        case_name: &case.name,
+        case_file: name,
+        case_toml: &toml,
+        warnings: &resolved.warnings,
+        notes: &resolved.notes,
+        threads: 1,
+    };
+    let summary = solve_summary(&sol, &o, &info);
+    let stage = Staging::new(out).unwrap();
+    write_solve_files(&stage, &sol, &o, &summary).unwrap();
+    write_solve_plots(&stage, &sol, &o).unwrap();
+    stage.commit().unwrap();
+    (sol, o)
+}
+
+fn hex(c: RGBColor) -> String {
+    style::hex(c)
+}
+
+/// Elements named `tag` whose attribute `attr` is the colour `c`.
+fn count(doc: &roxmltree::Document<'_>, tag: &str, attr: &str, c: RGBColor) -> usize {
+    let want = hex(c);
+    doc.descendants()
+        .filter(|n| n.has_tag_name(tag))
+        .filter(|n| {
+            n.attribute(attr)
+                .is_some_and(|v| v.eq_ignore_ascii_case(&want))
+        })
+        .count()
+}
+
+fn texts(doc: &roxmltree::Document<'_>) -> Vec<String> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .map(|n| n.text().unwrap_or("").to_string())
+        .collect()
+}
+
+fn has_text(doc: &roxmltree::Document<'_>, needle: &str) -> bool {
+    texts(doc).iter().any(|t| t.contains(needle))
+}
+
+fn read(dir: &Path, name: &str) -> String {
+    std::fs::read_to_string(dir.join(name)).unwrap_or_else(|e| panic!("{name}: {e}"))
+}
+
+#[test]
+fn phonon_demo_figures_show_heating_cooling_flows_map_and_convergence() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("peltier");
+    let (sol, o) = solve_into("peltier-barrier", &dir);
+
+    // device.svg: three panels, units on the axes, one bar per cell.
+    let text = read(&dir, "device.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    for label in [
+        "energy (meV)",
+        "Fermi-level drop (mV)",
+        "lattice power per cell (pW)",
+        "position x (nm)",
+        "band edge",
+        "local Fermi level",
+        "left lead Fermi level 90.0 meV",
+        "right lead Fermi level 10.0 meV",
+    ] {
+        assert!(
+            has_text(&doc, label),
+            "device.svg lacks {label:?}: {:?}",
+            texts(&doc)
+        );
+    }
+    let p = &o.sites.lattice_power_w;
+    let heated = p.iter().filter(|v| **v > 0.0).count();
+    let cooled = p.iter().filter(|v| **v < 0.0).count();
+    // The demo is built to show both (its case file says so).
+    assert!(heated > 0 && cooled > 0, "heated {heated}, cooled {cooled}");
+    // One bar per cell plus one legend swatch per colour.
+    assert_eq!(count(&doc, "rect", "fill", style::HEATING), heated + 1);
+    assert_eq!(count(&doc, "rect", "fill", style::COOLING), cooled + 1);
+    // Drop bars: every cell plus the left contact, and the legend swatch.
+    let drops = 1 + o.sites.voltage_drop_v.len();
+    assert_eq!(count(&doc, "rect", "fill", style::DROP), drops + 1);
+    assert!(
+        count(&doc, "polyline", "stroke", style::INK) >= 1,
+        "band edge"
+    );
+    assert!(
+        count(&doc, "polyline", "stroke", style::LOCAL_FERMI) >= 1,
+        "local Fermi level"
+    );
+
+    // spectrum.svg: three flows, the two Fermi windows, units.
+    let text = read(&dir, "spectrum.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    for c in [style::LEFT, style::RIGHT, style::BATH] {
+        assert!(
+            count(&doc, "polyline", "stroke", c) >= 2,
+            "line and legend of {}",
+            hex(c)
+        );
+    }
+    assert!(
+        has_text(&doc, "electron flow × e (µA/eV)"),
+        "{:?}",
+        texts(&doc)
+    );
+    assert!(has_text(&doc, "energy E (meV)"));
+    assert!(has_text(&doc, "from the scattering bath"));
+    assert!(
+        !has_text(&doc, "transmission"),
+        "no transmission with scattering"
+    );
+    let windows = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("rect") && n.attribute("opacity") == Some("0.13"))
+        .count();
+    assert_eq!(windows, 2, "one shaded Fermi window per lead");
+
+    // bond_current.svg: the map as one image, a diverging colour bar, band edge.
+    let text = read(&dir, "bond_current.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    assert!(has_text(
+        &doc,
+        "current density (µA/eV), + = electrons to +x"
+    ));
+    assert!(has_text(&doc, "position x (nm)"));
+    assert!(has_text(&doc, "energy E (meV)"));
+    assert!(
+        count(&doc, "polyline", "stroke", style::INK) >= 1,
+        "band edge over the map"
+    );
+    let ends = [
+        style::diverging(-1.0 + 1.0 / 96.0),
+        style::diverging(1.0 - 1.0 / 96.0),
+    ];
+    for c in ends {
+        assert_eq!(
+            count(&doc, "rect", "fill", c),
+            1,
+            "colour bar end {}",
+            hex(c)
+        );
+    }
+    let bar_rects = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("rect") && n.attribute("fill") != Some("none"))
+        .count();
+    assert!(bar_rects >= 96, "colour bar of 96 steps: {bar_rects} rects");
+    let image = doc
+        .descendants()
+        .find(|n| n.has_tag_name("image"))
+        .expect("map image");
+    let href = image.attribute("href").unwrap();
+    let b64 = href
+        .strip_prefix("data:image/png;base64,")
+        .expect("PNG data URI");
+    let png_bytes = decode_base64(b64);
+    let decoder = png::Decoder::new(std::io::Cursor::new(png_bytes));
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    let map = bond_current_map(&sol);
+    let (pairs, ne) = map.dim();
+    assert_eq!(info.width as usize, pairs, "one pixel column per bond");
+    assert!(info.height as usize > 10 && info.height as usize <= ne);
+    // The largest value maps to the end of the scale, in its own column.
+    let (mut best, mut at) = (0.0f64, 0usize);
+    for ((i, _), v) in map.indexed_iter() {
+        if v.abs() > best {
+            best = v.abs();
+            at = i;
+        }
+    }
+    let extreme = style::diverging(
+        map.iter()
+            .copied()
+            .fold(0.0, |m: f64, v| if v.abs() > m.abs() { v } else { m })
+            .signum(),
+    );
+    let w = info.width as usize;
+    let found: Vec<usize> = buf
+        .chunks(3)
+        .enumerate()
+        .filter(|(_, px)| px[0] == extreme.0 && px[1] == extreme.1 && px[2] == extreme.2)
+        .map(|(k, _)| k % w)
+        .collect();
+    assert!(
+        found.contains(&at),
+        "extreme colour in column {at}: found in {found:?}"
+    );
+
+    // convergence.svg: one marker per iteration on each curve.
+    let text = read(&dir, "convergence.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let residuals = sol
+        .report
+        .history
+        .iter()
+        .filter(|h| h.residual > 0.0)
+        .count();
+    assert_eq!(count(&doc, "circle", "fill", style::RESIDUAL), residuals);
+    assert!(residuals == sol.report.iterations && residuals > 1);
+    assert!(has_text(&doc, "Born iteration"));
+    assert!(has_text(&doc, "relative change (log scale)"));
+    assert!(has_text(&doc, "tolerance 1e-10"));
+}
+
+#[test]
+fn coherent_demo_has_transmission_no_lattice_power_and_no_convergence_figure() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("filter");
+    let (sol, o) = solve_into("resonant-filter", &dir);
+    assert!(sol.problem.scattering.is_coherent());
+    assert!(
+        !dir.join("convergence.svg").exists(),
+        "no Born loop, no figure"
+    );
+
+    let text = read(&dir, "spectrum.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    assert!(has_text(&doc, "transmission T(E)"));
+    assert!(count(&doc, "polyline", "stroke", style::TRANSMISSION) >= 1);
+    assert!(!has_text(&doc, "from the scattering bath"));
+
+    let text = read(&dir, "device.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    assert!(o.sites.lattice_power_w.iter().all(|p| *p == 0.0));
+    assert!(has_text(&doc, "coherent transport: no scattering"));
+    // Only the legend swatches carry the heating and cooling colours.
+    assert_eq!(count(&doc, "rect", "fill", style::HEATING), 1);
+    assert_eq!(count(&doc, "rect", "fill", style::COOLING), 1);
+    for name in ["device.svg", "spectrum.svg", "bond_current.svg"] {
+        roxmltree::Document::parse(&read(&dir, name)).unwrap();
+    }
+}
+
+fn decode_base64(s: &str) -> Vec<u8> {
+    let val = |c: u8| -> u32 {
+        match c {
+            b'A'..=b'Z' => (c - b'A') as u32,
+            b'a'..=b'z' => (c - b'a' + 26) as u32,
+            b'0'..=b'9' => (c - b'0' + 52) as u32,
+            b'+' => 62,
+            b'/' => 63,
+            _ => panic!("not base64: {c}"),
+        }
+    };
+    let mut out = Vec::new();
+    for chunk in s.as_bytes().chunks(4) {
+        let pad = chunk.iter().filter(|c| **c == b'=').count();
+        let n = chunk
+            .iter()
+            .map(|c| if *c == b'=' { 0 } else { val(*c) })
+            .fold(0u32, |a, v| (a << 6) | v);
+        let bytes = [(n >> 16) as u8, (n >> 8) as u8, n as u8];
+        out.extend_from_slice(&bytes[..3 - pad]);
+    }
+    out
+}
+
+#[test]
+fn line_chart_draws_each_series_and_labelled_reference_lines() {
+    let x = [0.0, 0.1, 0.2, 0.3, 0.4];
+    let p = [0.0, 1.5, 2.0, 1.5, 0.0];
+    let eta = [0.0, 0.02, 0.035, 0.04, 0.03];
+    let svg = line_chart_svg(
+        "Generator",
+        "load voltage (mV)",
+        "power (nW)",
+        &[
+            Series {
+                label: "power",
+                x: &x,
+                y: &p,
+            },
+            Series {
+                label: "efficiency",
+                x: &x,
+                y: &eta,
+            },
+        ],
+        &[("η_C", 0.0645), ("η_CA", 0.0328)],
+    )
+    .unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    // The line plus the legend mark.
+    assert_eq!(count(&doc, "polyline", "stroke", style::SERIES[0]), 2);
+    assert_eq!(count(&doc, "polyline", "stroke", style::SERIES[1]), 2);
+    // Few points: a marker on each.
+    assert_eq!(count(&doc, "circle", "fill", style::SERIES[0]), 5);
+    assert!(has_text(&doc, "η_C = 0.0645"), "{:?}", texts(&doc));
+    // Dashed: several short pieces per reference line.
+    assert!(count(&doc, "polyline", "stroke", style::REFERENCE[0]) > 5);
+    assert!(count(&doc, "polyline", "stroke", style::REFERENCE[1]) > 5);
+    assert!(has_text(&doc, "η_CA = 0.0328"));
+    assert!(has_text(&doc, "load voltage (mV)") && has_text(&doc, "power (nW)"));
+
+    let err = line_chart_svg(
+        "bad",
+        "x",
+        "y",
+        &[Series {
+            label: "a",
+            x: &x,
+            y: &p[..3],
+        }],
+        &[],
+    )
+    .unwrap_err()
+    .to_string();
+    assert!(err.contains("5 x values but 3 y values"), "{err}");
+
+    // No finite point: a frame that says so, not an empty plot.
+    let nan = [f64::NAN; 5];
+    let svg = line_chart_svg(
+        "empty",
+        "x",
+        "y",
+        &[Series {
+            label: "a",
+            x: &x,
+            y: &nan,
+        }],
+        &[],
+    )
+    .unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert!(has_text(&doc, "no finite values to show"));
+}
+
+#[test]
+fn heat_map_uses_cells_on_uneven_grids_and_an_image_on_even_ones() {
+    let x = [1.0, 2.0, 4.0];
+    let y = [10.0, 20.0];
+    let v = ndarray::array![[-1.0, 0.0, 1.0], [0.5, -0.5, 0.25]];
+    let svg = heat_map_svg("map", "x (nm)", "y (eV)", &x, &y, &v, "value (A/eV)", true).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert!(has_text(&doc, "value (A/eV)") && has_text(&doc, "x (nm)"));
+    assert_eq!(
+        count(&doc, "rect", "fill", style::diverging(1.0)),
+        1,
+        "the +1 cell"
+    );
+    assert_eq!(
+        count(&doc, "rect", "fill", style::diverging(-1.0)),
+        1,
+        "the −1 cell"
+    );
+    assert_eq!(
+        count(&doc, "rect", "fill", style::diverging(0.0)),
+        1,
+        "the 0 cell"
+    );
+    assert!(doc.descendants().all(|n| !n.has_tag_name("image")));
+
+    let xs: Vec<f64> = (0..40).map(|i| i as f64).collect();
+    let ys: Vec<f64> = (0..30).map(|i| 0.01 * i as f64).collect();
+    let big = ndarray::Array2::from_shape_fn((30, 40), |(r, c)| (r * c) as f64);
+    let svg = heat_map_svg("big", "x", "y", &xs, &ys, &big, "count", false).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert_eq!(
+        doc.descendants()
+            .filter(|n| n.has_tag_name("image"))
+            .count(),
+        1
+    );
+    assert!(has_text(&doc, "count"));
+
+    let err = heat_map_svg("bad", "x", "y", &x, &y, &big, "c", true)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        err.contains("30×40") && err.contains("2 y and 3 x"),
+        "{err}"
+    );
+}
+
+#[test]
+fn bar_chart_has_one_bar_per_label_signed_colours_and_labels() {
+    let labels: Vec<String> = ["barrier 0.10 eV", "barrier 0.15 eV", "well 5 nm"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    let svg = bar_chart_svg("ranking", &labels, &[0.8, 1.2, -0.3], "ZT").unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert_eq!(count(&doc, "rect", "fill", style::SERIES[0]), 2);
+    assert_eq!(count(&doc, "rect", "fill", style::SERIES[1]), 1);
+    for l in &labels {
+        assert!(has_text(&doc, l), "{l}");
+    }
+    assert!(has_text(&doc, "ZT") && has_text(&doc, "1.20") && has_text(&doc, "-0.300"));
+    assert!(bar_chart_svg("x", &labels, &[1.0], "v").is_err());
+}
+
+#[test]
+fn solve_figures_are_reachable_one_by_one() {
+    // The four figure functions are public for callers that write their
+    // own folders (sweeps write a device figure per point, for example).
+    let case = Case::load(&demo("thermionic-barrier")).unwrap();
+    let r = case.resolve().unwrap();
+    let sol = solve(&r.problem, &r.scba, None, &mut Silent).unwrap();
+    let o = observe(&sol);
+    for svg in [
+        plots::device_svg(&sol, &o).unwrap(),
+        plots::spectrum_svg(&sol, &o).unwrap(),
+        plots::bond_current_svg(&sol, &o).unwrap(),
+    ] {
+        let doc = roxmltree::Document::parse(&svg).unwrap();
+        let root = doc.root_element();
+        assert!(root.attribute("width").unwrap().parse::<u32>().unwrap() > 0);
+        assert!(root.attribute("height").unwrap().parse::<u32>().unwrap() > 0);
+    }
+    assert!(plots::convergence_svg(&sol).unwrap().is_none());
+}
