@@ -29,10 +29,19 @@ pub enum Lead {
     Right,
 }
 
-fn write(out_dir: &Path, csv_name: &str, csv: Vec<u8>, summary: &str) -> Result<(), Failure> {
+fn write(
+    out_dir: &Path,
+    csv_name: &str,
+    csv: Vec<u8>,
+    summary: &str,
+    figures: Vec<(&'static str, String)>,
+) -> Result<(), Failure> {
     let stage = Staging::new(out_dir)?;
     stage.write(csv_name, &csv)?;
     stage.write("summary.json", summary.as_bytes())?;
+    for (name, svg) in figures {
+        stage.write(name, svg.as_bytes())?;
+    }
     stage.commit()?;
     Ok(())
 }
@@ -103,7 +112,8 @@ pub fn generator(
     summary["conventions"] = "hot lead = left (lead 1) at T_hot, cold lead = right (lead 2) at T_cold; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; P = -I V delivered to the load; efficiency = P / J_Q,hot".into();
     summary["resolved_case"] = case.to_toml_string().into();
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
-    write(&out_dir, "generator.csv", csv, &text)?;
+    let figures = qheat::output::plots::generator_figures(&r)?;
+    write(&out_dir, "generator.csv", csv, &text, figures)?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {
@@ -211,7 +221,8 @@ pub fn cooler(
     summary["conventions"] = format!("cold lead = {cold_name} at T_cold, hot lead = {hot_name} at T_hot; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; cooling power = heat current out of the cold lead into the device; input power = I V; COP = cooling power / (I V), NaN where either is not positive").into();
     summary["resolved_case"] = case.to_toml_string().into();
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
-    write(&out_dir, "cooler.csv", csv, &text)?;
+    let figures = qheat::output::plots::cooler_figures(&r)?;
+    write(&out_dir, "cooler.csv", csv, &text, figures)?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {

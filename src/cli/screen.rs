@@ -68,6 +68,14 @@ pub fn screen(
     let rheaders: Vec<&str> = rcols.iter().map(String::as_str).collect();
     atomic_write(&out_dir.join("screen.csv"), &table.csv())?;
     atomic_write(&out_dir.join("ranking.csv"), &csv_bytes(&rheaders, rrows))?;
+    for (name, svg) in
+        qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
+    {
+        atomic_write(&out_dir.join(name), svg.as_bytes())?;
+    }
+    if let Some(svg) = qheat::output::plots::ranking_figure(&grid, &table, &order, rank.column())? {
+        atomic_write(&out_dir.join("ranking.svg"), svg.as_bytes())?;
+    }
     let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
     summary["rank_by"] = serde_json::json!(rank);
     summary["ranked_column"] = serde_json::json!(rank.column());

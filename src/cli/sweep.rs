@@ -129,6 +129,16 @@ pub fn sweep(
         &case.name,
     )?;
     atomic_write(&out_dir.join("sweep.csv"), &table.csv())?;
+    let quantities = [
+        "current_a",
+        "heat_current_left_w",
+        "heat_current_right_w",
+        "lattice_power_w",
+        "electrical_power_w",
+    ];
+    for (name, svg) in qheat::output::plots::grid_figures(&grid, &table, &quantities, "sweep")? {
+        atomic_write(&out_dir.join(name), svg.as_bytes())?;
+    }
     let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
     summary["warm_start"] = serde_json::json!(
         "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match"

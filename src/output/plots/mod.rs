@@ -13,10 +13,12 @@
 //! against orange stays distinguishable for the common forms of colour
 //! blindness.
 
+mod curves;
 mod figures;
 pub mod raster;
 pub mod style;
 
+pub use curves::{cooler_figures, generator_figures, grid_figures, ranking_figure};
 pub use figures::{bond_current_svg, convergence_svg, device_svg, spectrum_svg};
 
 use super::{OutputError, Staging};
