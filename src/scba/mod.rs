@@ -128,25 +128,29 @@ pub fn pass(
         .zip(flows.par_iter_mut())
         .enumerate()
         .try_for_each_init(
-            || Workspace::new(n, b),
-            |ws, (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
+            // Per thread: the RGF workspace and the two lead in-scattering
+            // blocks, filled in place at each energy (no allocation per energy).
+            || {
+                (
+                    Workspace::new(n, b),
+                    Mat::<C64>::zeros(b, b),
+                    Mat::<C64>::zeros(b, b),
+                )
+            },
+            |(ws, inl, inr), (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
                 let e = problem.grid.energy(k);
                 let sl = &leads.left[k];
                 let sr = &leads.right[k];
-                let fl_l = problem.left.occupation(e);
-                let fl_r = problem.right.occupation(e);
-                let gl = crate::leads::broadening(sl);
-                let grr = crate::leads::broadening(sr);
-                let inl = Mat::from_fn(b, b, |r, c| gl[(r, c)] * fl_l);
-                let inr = Mat::from_fn(b, b, |r, c| grr[(r, c)] * fl_r);
+                inscatter_into(sl, problem.left.occupation(e), inl);
+                inscatter_into(sr, problem.right.occupation(e), inr);
                 let input = EnergyInput {
                     energy_ev: e,
                     onsite: &dev.onsite,
                     coupling: &dev.coupling,
                     sigma_left: sl,
                     sigma_right: sr,
-                    inscatter_left: &inl,
-                    inscatter_right: &inr,
+                    inscatter_left: inl,
+                    inscatter_right: inr,
                     scatter_retarded: &sigma0.retarded[k * ns..(k + 1) * ns],
                     scatter_in: &sigma0.inscatter[k * ns..(k + 1) * ns],
                     want_transmission,
@@ -168,6 +172,21 @@ pub fn pass(
         bond.clear();
     }
     Ok(Pass { green, bond, flows })
+}
+
+/// Σ^in = Γ f with Γ = i(Σ − Σ†), written into `dst` (scalar for b = 1).
+fn inscatter_into(sigma: &Mat<C64>, f: f64, dst: &mut Mat<C64>) {
+    let b = sigma.nrows();
+    if b == 1 {
+        dst[(0, 0)] = C64::new(-2.0 * sigma[(0, 0)].im * f, 0.0);
+        return;
+    }
+    for c in 0..b {
+        for r in 0..b {
+            let d = sigma[(r, c)] - sigma[(c, r)].conj();
+            dst[(r, c)] = C64::new(-d.im, d.re) * f;
+        }
+    }
 }
 
 /// What one Born iteration did.
