@@ -9,7 +9,7 @@
 //!           S_i = Σ^in_ii + τ† (g^n_{i−1} τ);    g^n_i = (g_i S_i) g_i†;
 //!           X_i = g_i τ_i
 //! backward: G_ii   = g_i + X_i GW
-//!           G^n_ii = g^n_i + (X_i G^n_{i+1}) X_i† + Z + Z†
+//!           G^n_ii = g^n_i + X_i V + Z + Z†   (X_i V = X_i G^n_{i+1} X_i†)
 //!           G_{i+1,i} = GW,   G^n_{i+1,i} = P + V
 //! ```
 //!

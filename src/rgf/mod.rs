@@ -108,7 +108,7 @@ pub enum RgfError {
 /// Per-thread scratch space: left-connected blocks for every cell and the
 /// temporaries of one cell, allocated once and reused for every energy.
 ///
-/// Size: 3·N·b² + 7·b² complex numbers for b > 1 (g, g^n and g τ per cell),
+/// Size: 3·N·b² + 8·b² complex numbers for b > 1 (g, g^n and g τ per cell),
 /// 2·N complex numbers for b = 1.
 pub struct Workspace {
     g: Vec<Mat<C64>>,

@@ -14,6 +14,31 @@
 //! were computed from, so that j_1 + j_2 + j_0 = 0 holds at every energy to
 //! rounding; the bath's own particle and energy balance then holds to the
 //! SCBA tolerance.
+//!
+//! # Memory
+//!
+//! Only what the local self-energies need is kept across energies: the
+//! diagonals of G^r and G^n, never whole blocks. With E energies, N cells,
+//! b orbitals per cell, S = N·b orbital sites, T threads and Anderson depth
+//! m, the peak of a Born solve is
+//!
+//! ```text
+//! bytes ≈ E·S·(72 + 24·A + 8 + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+//! ```
+//!
+//! - 72 = 3 × 24: the input Σ0, its image F(Σ0) (Σ^r_0 complex + Σ^in_0
+//!   real) and the local G^r, G^n of the pass;
+//! - A = 2m + 3 vectors of (Re Σ^r, Im Σ^r, Σ^in) for Anderson mixing (last
+//!   input and residual, m differences of each, one residual buffer);
+//!   A = 0 for linear mixing, which keeps no history;
+//! - 8 + 16·h: the phonon broadening while Σ0 is rebuilt, plus two columns
+//!   buffers when the Hermitian part (h = 1) is on;
+//! - 8·E·(N − 1): the bond flows of the pass;
+//! - 2·E·(16·b² + 64): the lead self-energies on the grid;
+//! - w: the per-thread RGF workspace, 48·N·b² + 128·b² bytes for b > 1 and
+//!   24·N for b = 1.
+//!
+//! `Resolved::memory_estimate_bytes` evaluates this formula.
 
 mod mixing;
 mod params;
