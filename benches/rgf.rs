@@ -94,7 +94,9 @@ fn chain(c: &mut Criterion) {
     let mut g = c.benchmark_group("rgf_chain_b1");
     for n in [250, 1000, 4000] {
         let mut r = Runner::new(n, 1);
-        g.bench_with_input(BenchmarkId::from_parameter(n), &n, |bch, _| bch.iter(|| r.run()));
+        g.bench_with_input(BenchmarkId::from_parameter(n), &n, |bch, _| {
+            bch.iter(|| r.run())
+        });
     }
     g.finish();
 }
@@ -103,7 +105,9 @@ fn strip(c: &mut Criterion) {
     let mut g = c.benchmark_group("rgf_strip_b16");
     for n in [50, 200] {
         let mut r = Runner::new(n, 16);
-        g.bench_with_input(BenchmarkId::from_parameter(n), &n, |bch, _| bch.iter(|| r.run()));
+        g.bench_with_input(BenchmarkId::from_parameter(n), &n, |bch, _| {
+            bch.iter(|| r.run())
+        });
     }
     g.finish();
 }
@@ -120,7 +124,9 @@ fn wide(c: &mut Criterion) {
     for b in [64, 128] {
         let mut r = Runner::new(n, b);
         g.throughput(Throughput::Elements(rgf_flops(n, b)));
-        g.bench_with_input(BenchmarkId::new("rgf", b), &b, |bch, _| bch.iter(|| r.run()));
+        g.bench_with_input(BenchmarkId::new("rgf", b), &b, |bch, _| {
+            bch.iter(|| r.run())
+        });
         let mut rng = Rng::new(b as u64);
         let x = random_matrix(&mut rng, b);
         let y = random_matrix(&mut rng, b);

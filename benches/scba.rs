@@ -69,8 +69,8 @@ fn against_dense(c: &mut Criterion) {
             |b| {
                 b.iter(|| {
                     one.install(|| {
-                        let s = scba::solve_with_leads(&p, &leads, &params, None, &mut Silent)
-                            .unwrap();
+                        let s =
+                            scba::solve_with_leads(&p, &leads, &params, None, &mut Silent).unwrap();
                         assert_eq!(s.report.iterations, ITERATIONS);
                         black_box(s.pass.flows.len())
                     })

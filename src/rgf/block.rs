@@ -98,8 +98,10 @@ fn mul(dst: MatMut<'_, C64>, accum: Accum, lhs: Op<'_>, rhs: Op<'_>, alpha: C64)
     }
 }
 
-/// Largest block size handled by [`small_mul`].
-const SMALL: usize = 8;
+/// Largest block size handled by [`small_mul`]: measured in benches/rgf.rs
+/// (`small_product`), the plain loop wins at b = 2, ties at b = 4 and loses
+/// by 5× at b = 8.
+const SMALL: usize = 3;
 
 /// Plain product for small blocks.
 fn small_mul(mut dst: MatMut<'_, C64>, accum: Accum, lhs: Op<'_>, rhs: Op<'_>, alpha: C64) {
