@@ -110,10 +110,12 @@ fn memory_estimate_follows_its_formula() {
     let r = resolved("[[phonon]]\nenergy_ev = 0.03\ncoupling_ev2 = 1e-3\n");
     let e = r.problem.grid.count as u64;
     let n = 40u64;
-    // b = 1, Anderson depth 6: E·N·56 + E·N·8 + (6 + 2)·E·N·24
+    let t = rayon::current_num_threads() as u64;
+    // b = 1, Anderson depth 6 (A = 2·6 + 3), no Hermitian part (src/scba
+    // module doc): E·N·(72 + 24·A + 8) + 8·E·(N − 1) + 2·E·(16 + 64) + T·24·N
     assert_eq!(
         r.memory_estimate_bytes(),
-        e * n * 56 + e * n * 8 + 8 * e * n * 24
+        e * n * (72 + 24 * 15 + 8) + 8 * e * (n - 1) + 2 * e * 80 + t * 24 * n
     );
 }
 

@@ -530,29 +530,39 @@ fn lead_text(lead: &Lead) -> String {
 impl Resolved {
     /// Memory the solver needs for this problem, in bytes (an estimate).
     ///
-    /// With E energies, N cells, b orbitals per cell and Anderson depth m
-    /// (m = 0 for linear mixing):
+    /// The formula documented in [`crate::scba`] (section "Memory"): with
+    /// E energies, N cells, b orbitals per cell, S = N·b, Anderson depth m
+    /// and T threads,
     ///
-    /// bytes = E·N·b·(16 + 8 + 8 + 16 + 8) + E·N·8 + (m + 2)·E·N·b·(16 + 8)
+    /// bytes = E·S·(72 + 24·A + 8 + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
     ///
-    /// - 16 + 8 + 8 + 16 + 8 per energy and orbital site: the diagonal of
-    ///   G^r (complex), of G^n and of G^p (real), Σ^r_0 (complex) and
-    ///   Σ^in_0 (real);
-    /// - 8 per energy and cell: the energy-resolved bond currents;
-    /// - (m + 2) copies of Σ0 (Σ^r_0 complex + Σ^in_0 real) for the mixing
-    ///   history: m previous iterates plus the current input and output.
-    ///
-    /// Per-energy RGF work arrays (O(N·b²) per thread) are small next to
-    /// these for the usual b and are left out.
+    /// with A = 2m + 3 for Anderson mixing (0 for linear), h = 1 when the
+    /// Hermitian part of the phonon self-energy is on, and w the RGF
+    /// workspace of one thread (48·N·b² + 128·b² for b > 1, 24·N for b = 1).
+    /// A coherent device needs one pass only: E·S·24 + 8·E·(N − 1) plus the
+    /// leads and workspaces.
     pub fn memory_estimate_bytes(&self) -> u64 {
-        let e = self.problem.grid.count as u64;
-        let n = self.problem.device.cells() as u64;
-        let nb = n * self.problem.device.orbitals as u64;
-        let depth = match self.scba.mixing {
-            Mixing::Anderson { depth, .. } => depth as u64,
+        let p = &self.problem;
+        let e = p.grid.count as u64;
+        let n = p.device.cells() as u64;
+        let b = p.device.orbitals as u64;
+        let s = n * b;
+        let threads = rayon::current_num_threads() as u64;
+        let workspace = if b == 1 {
+            24 * n
+        } else {
+            48 * n * b * b + 128 * b * b
+        };
+        let fixed = 8 * e * n.saturating_sub(1) + 2 * e * (16 * b * b + 64) + threads * workspace;
+        if p.scattering.is_coherent() {
+            return e * s * 24 + fixed;
+        }
+        let a = match self.scba.mixing {
+            Mixing::Anderson { depth, .. } => 2 * depth as u64 + 3,
             Mixing::Linear { .. } => 0,
         };
-        e * nb * (16 + 8 + 8 + 16 + 8) + e * n * 8 + (depth + 2) * e * nb * (16 + 8)
+        let h = u64::from(p.scattering.hermitian_part && !p.scattering.phonons.is_empty());
+        e * s * (72 + 24 * a + 8 + 16 * h) + fixed
     }
 
     /// The resolved case as text for people (what `qheat check` prints).

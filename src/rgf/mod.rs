@@ -24,8 +24,8 @@
 
 use crate::C64;
 use faer::Mat;
-use faer::linalg::solvers::DenseSolveCore;
 
+mod block;
 mod scalar;
 
 /// Inputs of one energy point.
@@ -105,51 +105,48 @@ pub enum RgfError {
     },
 }
 
-/// Per-thread scratch space: left-connected blocks for every cell.
+/// Per-thread scratch space: left-connected blocks for every cell and the
+/// temporaries of one cell, allocated once and reused for every energy.
+///
+/// Size: 3·N·b² + 8·b² complex numbers for b > 1 (g, g^n and g τ per cell),
+/// 2·N complex numbers for b = 1.
 pub struct Workspace {
     g: Vec<Mat<C64>>,
     gn: Vec<Mat<C64>>,
+    block: Option<block::BlockScratch>,
     sg: Vec<C64>,
-    sgn: Vec<C64>,
+    sgn: Vec<f64>,
+    cells: usize,
 }
 
 impl Workspace {
     /// Scratch space for `cells` cells of `orbitals` orbitals.
     pub fn new(cells: usize, orbitals: usize) -> Self {
-        Self {
-            g: (0..cells).map(|_| Mat::zeros(orbitals, orbitals)).collect(),
-            gn: (0..cells).map(|_| Mat::zeros(orbitals, orbitals)).collect(),
-            sg: vec![C64::new(0.0, 0.0); if orbitals == 1 { cells } else { 0 }],
-            sgn: vec![C64::new(0.0, 0.0); if orbitals == 1 { cells } else { 0 }],
+        let mut ws = Self {
+            g: Vec::new(),
+            gn: Vec::new(),
+            block: None,
+            sg: Vec::new(),
+            sgn: Vec::new(),
+            cells,
+        };
+        if orbitals == 1 {
+            ws.sg = vec![C64::new(0.0, 0.0); cells];
+            ws.sgn = vec![0.0; cells];
+        } else {
+            ws.ensure_blocks(orbitals);
+        }
+        ws
+    }
+
+    fn ensure_blocks(&mut self, b: usize) {
+        let ok = self.block.is_some() && self.g.first().is_some_and(|m| m.nrows() == b);
+        if !ok {
+            self.g = (0..self.cells).map(|_| Mat::zeros(b, b)).collect();
+            self.gn = (0..self.cells).map(|_| Mat::zeros(b, b)).collect();
+            self.block = Some(block::BlockScratch::new(self.cells, b));
         }
     }
-}
-
-fn trace(m: &Mat<C64>) -> C64 {
-    (0..m.nrows()).map(|i| m[(i, i)]).sum()
-}
-
-/// Trace of a product Tr[X Y] without forming it.
-fn trace_product(x: &Mat<C64>, y: &Mat<C64>) -> C64 {
-    let mut t = C64::new(0.0, 0.0);
-    for r in 0..x.nrows() {
-        for c in 0..x.ncols() {
-            t += x[(r, c)] * y[(c, r)];
-        }
-    }
-    t
-}
-
-fn spectral(g: &Mat<C64>) -> Mat<C64> {
-    let b = g.nrows();
-    Mat::from_fn(b, b, |r, c| {
-        (g[(r, c)] - g[(c, r)].conj()) * C64::new(0.0, 1.0)
-    })
-}
-
-fn is_finite(m: &Mat<C64>) -> bool {
-    (0..m.nrows())
-        .all(|r| (0..m.ncols()).all(|c| m[(r, c)].re.is_finite() && m[(r, c)].im.is_finite()))
 }
 
 /// Solve one energy point. Dispatches to the scalar path when b = 1.
@@ -162,131 +159,6 @@ pub fn solve_energy(
     if b == 1 && out.full.is_none() {
         return scalar::solve_energy_scalar(input, ws, out);
     }
-    solve_energy_blocks(input, ws, out)
-}
-
-fn solve_energy_blocks(
-    input: &EnergyInput<'_>,
-    ws: &mut Workspace,
-    mut out: EnergyOutput<'_>,
-) -> Result<TerminalFlows, RgfError> {
-    let n = input.onsite.len();
-    let b = input.onsite[0].nrows();
-    if let Some(f) = out.full.as_deref_mut() {
-        f.retarded_diagonal = vec![Mat::zeros(b, b); n];
-        f.filled_diagonal = vec![Mat::zeros(b, b); n];
-        f.retarded_lower = vec![Mat::zeros(b, b); n.saturating_sub(1)];
-        f.filled_lower = vec![Mat::zeros(b, b); n.saturating_sub(1)];
-    }
-    let e = C64::new(input.energy_ev, 0.0);
-    let last = n - 1;
-
-    for i in 0..n {
-        let h = &input.onsite[i];
-        let mut m = Mat::from_fn(b, b, |r, c| -h[(r, c)]);
-        let mut sin = Mat::<C64>::zeros(b, b);
-        for o in 0..b {
-            m[(o, o)] += e - input.scatter_retarded[i * b + o];
-            sin[(o, o)] += C64::new(input.scatter_in[i * b + o], 0.0);
-        }
-        if i == 0 {
-            m -= input.sigma_left;
-            sin += input.inscatter_left;
-        }
-        if i == last {
-            m -= input.sigma_right;
-            sin += input.inscatter_right;
-        }
-        if i > 0 {
-            let tau = &input.coupling[i - 1];
-            let td = tau.adjoint();
-            m -= td * &ws.g[i - 1] * tau;
-            sin += td * &ws.gn[i - 1] * tau;
-        }
-        let g = m.partial_piv_lu().inverse();
-        if !is_finite(&g) {
-            return Err(RgfError::NotFinite {
-                energy_ev: input.energy_ev,
-                cell: i,
-            });
-        }
-        ws.gn[i] = &g * &sin * g.adjoint();
-        ws.g[i] = g;
-    }
-
-    // Backward sweep: ws.g / ws.gn are overwritten with the full G, G^n.
-    for o in 0..b {
-        out.retarded[last * b + o] = ws.g[last][(o, o)];
-        out.filled[last * b + o] = ws.gn[last][(o, o)].re;
-    }
-    // G^r_1N for the transmission: G_iN = g_i τ_i G_i+1,N (left-connected g).
-    let mut q: Option<Mat<C64>> = input.want_transmission.then(|| ws.g[last].clone());
-    for i in (0..last).rev() {
-        let tau = &input.coupling[i];
-        let td = tau.adjoint();
-        if let Some(r) = q.as_mut() {
-            *r = &ws.g[i] * tau * &*r;
-        }
-        let (lo, hi) = ws.g.split_at_mut(i + 1);
-        let (lon, hin) = ws.gn.split_at_mut(i + 1);
-        let g = &lo[i];
-        let gn = &lon[i];
-        let big = &hi[0];
-        let bign = &hin[0];
-        let gt = g * tau; // g_i τ
-        let tdg = td * g; // τ† g_i  (so G_{i+1,i} = G_{i+1} τ† g_i)
-        let gr_full = g + &gt * big * &tdg;
-        let gn_full = gn
-            + &gt * bign * gt.adjoint()
-            + &gt * big * td * gn
-            + gn * tau * big.adjoint() * gt.adjoint();
-        // G^n_{i+1,i} = G_{i+1} τ† g^n_i + G^n_{i+1} τ† g_i†
-        let gn_below = big * td * gn + bign * td * g.adjoint();
-        out.bond[i] = -2.0 * trace_product(tau, &gn_below).im;
-        if let Some(f) = out.full.as_deref_mut() {
-            f.retarded_lower[i] = big * &tdg;
-            f.filled_lower[i] = gn_below.clone();
-        }
-        for o in 0..b {
-            out.retarded[i * b + o] = gr_full[(o, o)];
-            out.filled[i * b + o] = gn_full[(o, o)].re;
-        }
-        if !is_finite(&gr_full) || !is_finite(&gn_full) {
-            return Err(RgfError::NotFinite {
-                energy_ev: input.energy_ev,
-                cell: i,
-            });
-        }
-        ws.g[i] = gr_full;
-        ws.gn[i] = gn_full;
-    }
-
-    if let Some(f) = out.full.as_deref_mut() {
-        f.retarded_diagonal.clone_from(&ws.g);
-        f.filled_diagonal.clone_from(&ws.gn);
-    }
-    let flow = |sigma: &Mat<C64>, sin: &Mat<C64>, g: &Mat<C64>, gn: &Mat<C64>| -> f64 {
-        let gamma = crate::leads::broadening(sigma);
-        (trace_product(sin, &spectral(g)) - trace_product(&gamma, gn)).re
-    };
-    let left = flow(input.sigma_left, input.inscatter_left, &ws.g[0], &ws.gn[0]);
-    let right = flow(
-        input.sigma_right,
-        input.inscatter_right,
-        &ws.g[last],
-        &ws.gn[last],
-    );
-    let transmission = match q {
-        Some(q) => {
-            let gl = crate::leads::broadening(input.sigma_left);
-            let gr = crate::leads::broadening(input.sigma_right);
-            trace(&(&gl * &q * &gr * q.adjoint())).re
-        }
-        None => 0.0,
-    };
-    Ok(TerminalFlows {
-        left,
-        right,
-        transmission,
-    })
+    ws.ensure_blocks(b);
+    block::solve_energy_blocks(input, ws, out)
 }

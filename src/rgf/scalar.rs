@@ -16,7 +16,7 @@ pub(super) fn solve_energy_scalar(
     let inl = input.inscatter_left[(0, 0)].re;
     let inr = input.inscatter_right[(0, 0)].re;
     let g = &mut ws.sg;
-    let gn = &mut ws.sgn; // real values kept in the real part
+    let gn = &mut ws.sgn;
 
     let mut prev_g = C64::new(0.0, 0.0);
     let mut prev_gn = 0.0;
@@ -45,13 +45,13 @@ pub(super) fn solve_energy_scalar(
         }
         let gni = gi.norm_sqr() * sin;
         g[i] = gi;
-        gn[i] = C64::new(gni, 0.0);
+        gn[i] = gni;
         prev_g = gi;
         prev_gn = gni;
     }
 
     out.retarded[last] = g[last];
-    out.filled[last] = gn[last].re;
+    out.filled[last] = gn[last];
     // G^r_1N for the transmission: G_iN = g_i τ_i G_i+1,N (left-connected g).
     let mut q = g[last];
     for i in (0..last).rev() {
@@ -60,9 +60,9 @@ pub(super) fn solve_energy_scalar(
         }
         let t2 = input.coupling[i][(0, 0)].norm_sqr();
         let gi = g[i];
-        let gni = gn[i].re;
+        let gni = gn[i];
         let big = g[i + 1];
-        let bign = gn[i + 1].re;
+        let bign = gn[i + 1];
         let gr_full = gi + gi * gi * big * t2;
         let gn_full = gni + gi.norm_sqr() * t2 * bign + 2.0 * t2 * gni * (gi * big).re;
         // −2 Im[τ G^n_{i+1,i}] with G^n_{i+1,i} = τ*(G_{i+1} g^n_i + G^n_{i+1} g_i*)
@@ -76,15 +76,15 @@ pub(super) fn solve_energy_scalar(
         out.retarded[i] = gr_full;
         out.filled[i] = gn_full;
         g[i] = gr_full;
-        gn[i] = C64::new(gn_full, 0.0);
+        gn[i] = gn_full;
     }
 
     let gamma_l = -2.0 * sl.im;
     let gamma_r = -2.0 * sr.im;
     let a0 = -2.0 * g[0].im;
     let an = -2.0 * g[last].im;
-    let left = inl * a0 - gamma_l * gn[0].re;
-    let right = inr * an - gamma_r * gn[last].re;
+    let left = inl * a0 - gamma_l * gn[0];
+    let right = inr * an - gamma_r * gn[last];
     let transmission = if input.want_transmission {
         gamma_l * gamma_r * q.norm_sqr()
     } else {

@@ -14,6 +14,31 @@
 //! were computed from, so that j_1 + j_2 + j_0 = 0 holds at every energy to
 //! rounding; the bath's own particle and energy balance then holds to the
 //! SCBA tolerance.
+//!
+//! # Memory
+//!
+//! Only what the local self-energies need is kept across energies: the
+//! diagonals of G^r and G^n, never whole blocks. With E energies, N cells,
+//! b orbitals per cell, S = N·b orbital sites, T threads and Anderson depth
+//! m, the peak of a Born solve is
+//!
+//! ```text
+//! bytes ≈ E·S·(72 + 24·A + 8 + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+//! ```
+//!
+//! - 72 = 3 × 24: the input Σ0, its image F(Σ0) (Σ^r_0 complex + Σ^in_0
+//!   real) and the local G^r, G^n of the pass;
+//! - A = 2m + 3 vectors of (Re Σ^r, Im Σ^r, Σ^in) for Anderson mixing (last
+//!   input and residual, m differences of each, one residual buffer);
+//!   A = 0 for linear mixing, which keeps no history;
+//! - 8 + 16·h: the phonon broadening while Σ0 is rebuilt, plus two columns
+//!   buffers when the Hermitian part (h = 1) is on;
+//! - 8·E·(N − 1): the bond flows of the pass;
+//! - 2·E·(16·b² + 64): the lead self-energies on the grid;
+//! - w: the per-thread RGF workspace, 48·N·b² + 128·b² bytes for b > 1 and
+//!   24·N for b = 1.
+//!
+//! `Resolved::memory_estimate_bytes` evaluates this formula.
 
 mod mixing;
 mod params;
@@ -128,25 +153,29 @@ pub fn pass(
         .zip(flows.par_iter_mut())
         .enumerate()
         .try_for_each_init(
-            || Workspace::new(n, b),
-            |ws, (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
+            // Per thread: the RGF workspace and the two lead in-scattering
+            // blocks, filled in place at each energy (no allocation per energy).
+            || {
+                (
+                    Workspace::new(n, b),
+                    Mat::<C64>::zeros(b, b),
+                    Mat::<C64>::zeros(b, b),
+                )
+            },
+            |(ws, inl, inr), (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
                 let e = problem.grid.energy(k);
                 let sl = &leads.left[k];
                 let sr = &leads.right[k];
-                let fl_l = problem.left.occupation(e);
-                let fl_r = problem.right.occupation(e);
-                let gl = crate::leads::broadening(sl);
-                let grr = crate::leads::broadening(sr);
-                let inl = Mat::from_fn(b, b, |r, c| gl[(r, c)] * fl_l);
-                let inr = Mat::from_fn(b, b, |r, c| grr[(r, c)] * fl_r);
+                inscatter_into(sl, problem.left.occupation(e), inl);
+                inscatter_into(sr, problem.right.occupation(e), inr);
                 let input = EnergyInput {
                     energy_ev: e,
                     onsite: &dev.onsite,
                     coupling: &dev.coupling,
                     sigma_left: sl,
                     sigma_right: sr,
-                    inscatter_left: &inl,
-                    inscatter_right: &inr,
+                    inscatter_left: inl,
+                    inscatter_right: inr,
                     scatter_retarded: &sigma0.retarded[k * ns..(k + 1) * ns],
                     scatter_in: &sigma0.inscatter[k * ns..(k + 1) * ns],
                     want_transmission,
@@ -168,6 +197,21 @@ pub fn pass(
         bond.clear();
     }
     Ok(Pass { green, bond, flows })
+}
+
+/// Σ^in = Γ f with Γ = i(Σ − Σ†), written into `dst` (scalar for b = 1).
+fn inscatter_into(sigma: &Mat<C64>, f: f64, dst: &mut Mat<C64>) {
+    let b = sigma.nrows();
+    if b == 1 {
+        dst[(0, 0)] = C64::new(-2.0 * sigma[(0, 0)].im * f, 0.0);
+        return;
+    }
+    for c in 0..b {
+        for r in 0..b {
+            let d = sigma[(r, c)] - sigma[(c, r)].conj();
+            dst[(r, c)] = C64::new(-d.im, d.re) * f;
+        }
+    }
 }
 
 /// What one Born iteration did.
