@@ -12,7 +12,6 @@ use qheat::rgf::{EnergyInput, EnergyOutput, Workspace, solve_energy};
 use std::hint::black_box;
 
 #[path = "../tests/common/mod.rs"]
-#[allow(dead_code)]
 mod common;
 use common::{Rng, random_hermitian, random_matrix, random_psd, random_self_energy};
 

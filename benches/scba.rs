@@ -17,7 +17,6 @@ use qheat::scba::{self, LeadTable, Mixing, ScbaParams, Silent};
 use std::hint::black_box;
 
 #[path = "../tests/common/mod.rs"]
-#[allow(dead_code)]
 mod common;
 
 /// Energies of the benchmark grid and the dense sample.

@@ -72,7 +72,7 @@ fn defaults_are_the_documented_ones() {
             damping: 0.8
         }
     );
-    assert_eq!(p.decimation.eta_ev, 1e-9);
+    assert_eq!(p.decimation.eta_ev, 1e-7);
     assert_eq!(p.decimation.tolerance_ev, 1e-13);
     // grid: step kT/10, from half a step above the band edge (0 here) to
     // the first point at or above µ + 20 kT.

@@ -9,6 +9,8 @@
 //! Safeguard: when the residual norm grows, the history is dropped and a
 //! damped linear step is taken.
 
+#![allow(clippy::needless_range_loop)] // small dense linear algebra reads best with indices
+
 use super::params::Mixing;
 use crate::C64;
 use crate::scattering::ScatteringSelfEnergy;

@@ -137,7 +137,8 @@ pub fn grid_figures(
     match grid.axes.len() {
         1 => {
             let x = column(table, &names[0]).unwrap_or_default();
-            let mut by_unit: Vec<(&str, Vec<(&str, Vec<f64>)>)> = Vec::new();
+            type Group<'q> = (&'static str, Vec<(&'q str, Vec<f64>)>);
+            let mut by_unit: Vec<Group<'_>> = Vec::new();
             for q in quantities {
                 let Some(y) = column(table, q) else { continue };
                 let u = unit_of(q);
