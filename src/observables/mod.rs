@@ -43,15 +43,16 @@ pub struct Spectrum {
 pub struct Ledger {
     /// I_1 + I_2 (A).
     pub charge_a: f64,
-    /// |I_1 + I_2| / Σ_k (|j_1| + |j_2|) e ΔE.
+    /// |I_1 + I_2| / Σ_k (g_1 + g_2) e ΔE, with g_α the gross exchange
+    /// (inflow plus outflow) of lead α: meaningful in equilibrium too.
     pub charge_relative: f64,
     /// J_E,1 + J_E,2 − Σ_i P_i (W).
     pub energy_w: f64,
-    /// |J_E,1 + J_E,2 − Σ P_i| / Σ_k |E_k| (|j_1| + |j_2| + |j_0|) e ΔE.
+    /// |J_E,1 + J_E,2 − Σ P_i| / Σ_k |E_k| (g_1 + g_2 + g_0) e ΔE.
     pub energy_relative: f64,
     /// Σ_i P_i − (I·V + J_Q,1 + J_Q,2) (W).
     pub heat_w: f64,
-    /// |heat_w| / Σ_k (|E_k − µ_1||j_1| + |E_k − µ_2||j_2|) e ΔE + |I V|.
+    /// |heat_w| / (Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I V|).
     pub heat_relative: f64,
 }
 
@@ -143,6 +144,14 @@ fn bath_trace(sol: &Solution, k: usize, s: usize) -> f64 {
     sin * sol.pass.green.spectral(idx) - gamma * sol.pass.green.filled[idx]
 }
 
+/// Inflow plus outflow of the bath at one orbital site, Σ^in_0 A + Γ0 G^n
+/// over g_s/h (the gross exchange).
+fn bath_gross(sol: &Solution, k: usize, s: usize) -> f64 {
+    let idx = k * sol.pass.green.sites + s;
+    (sol.sigma.inscatter[idx] * sol.pass.green.spectral(idx)).abs()
+        + (sol.sigma.gamma(idx) * sol.pass.green.filled[idx]).abs()
+}
+
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed.
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
     let p = &sol.problem;
@@ -203,6 +212,9 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         let j1 = js * f.left;
         let j2 = js * f.right;
         let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
+        let j0_gross: f64 = js * (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+        let g1 = js * f.left_gross;
+        let g2 = js * f.right_gross;
         spectrum.flow_left.push(j1);
         spectrum.flow_right.push(j2);
         spectrum.flow_bath.push(j0);
@@ -210,9 +222,9 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         n2 += j2;
         e1 += e * j1;
         e2 += e * j2;
-        gross_n += j1.abs() + j2.abs();
-        gross_e += e.abs() * (j1.abs() + j2.abs() + j0.abs());
-        gross_q += (e - mu1).abs() * j1.abs() + (e - mu2).abs() * j2.abs();
+        gross_n += g1 + g2;
+        gross_e += e.abs() * (g1 + g2 + j0_gross);
+        gross_q += (e - mu1).abs() * g1 + (e - mu2).abs() * g2;
     }
     let to_amp = -e_c * de;
     let to_watt = e_c * de;

@@ -149,18 +149,21 @@ fn broadening_into(sigma: &Mat<C64>, dst: &mut Mat<C64>) {
 }
 
 /// Tr[S A] − Tr[Γ G^n] with A = i(G − G†), Γ = i(Σ − Σ†), no temporaries.
-fn terminal_flow(sigma: &Mat<C64>, sin: &Mat<C64>, g: &Mat<C64>, gn: &Mat<C64>) -> f64 {
+/// (net, gross) = (Tr[Σin A − Γ G^n], Tr[Σin A] + Tr[Γ G^n]).
+fn terminal_flow(sigma: &Mat<C64>, sin: &Mat<C64>, g: &Mat<C64>, gn: &Mat<C64>) -> (f64, f64) {
     let b = g.nrows();
     let i = C64::new(0.0, 1.0);
-    let mut t = ZERO;
+    let mut inflow = ZERO;
+    let mut outflow = ZERO;
     for r in 0..b {
         for c in 0..b {
             let a_cr = (g[(c, r)] - g[(r, c)].conj()) * i;
             let gamma_rc = (sigma[(r, c)] - sigma[(c, r)].conj()) * i;
-            t += sin[(r, c)] * a_cr - gamma_rc * gn[(c, r)];
+            inflow += sin[(r, c)] * a_cr;
+            outflow += gamma_rc * gn[(c, r)];
         }
     }
-    t.re
+    (inflow.re - outflow.re, inflow.re + outflow.re)
 }
 
 pub(super) fn solve_energy_blocks(
@@ -384,9 +387,11 @@ pub(super) fn solve_energy_blocks(
         &gn[last],
     );
     Ok(TerminalFlows {
-        left,
-        right,
+        left: left.0,
+        right: right.0,
         transmission,
+        left_gross: left.1,
+        right_gross: right.1,
     })
 }
 

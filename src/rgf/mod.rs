@@ -90,6 +90,11 @@ pub struct TerminalFlows {
     pub right: f64,
     /// Tr[Γ1 G^r_1N Γ2 G^a_N1] when asked for, else 0.
     pub transmission: f64,
+    /// Tr[Σ^in_1 A_11] + Tr[Γ_1 G^n_11]: inflow plus outflow of the left
+    /// lead (the gross exchange, a scale for the net flow).
+    pub left_gross: f64,
+    /// The same for the right lead.
+    pub right_gross: f64,
 }
 
 /// A numerical fault, with where it happened.

@@ -94,5 +94,7 @@ pub(super) fn solve_energy_scalar(
         left,
         right,
         transmission,
+        left_gross: inl * a0 + gamma_l * gn[0],
+        right_gross: inr * an + gamma_r * gn[last],
     })
 }

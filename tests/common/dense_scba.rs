@@ -8,7 +8,7 @@
 use faer::Mat;
 use faer::linalg::solvers::DenseSolveCore;
 use qheat::C64;
-use qheat::leads::{Side, broadening};
+use qheat::leads::broadening;
 use qheat::model::Problem;
 use qheat::rgf::TerminalFlows;
 use qheat::scattering::{LocalGreen, ScatteringSelfEnergy};
@@ -82,29 +82,33 @@ fn dense_energy(
         bond.push((t * C64::new(0.0, 1.0)).re);
     }
     let flow = |off: usize, gamma: &Mat<C64>, f: f64| {
-        let mut acc = 0.0;
+        let (mut inflow, mut outflow) = (0.0, 0.0);
         for r in 0..b {
             for c in 0..b {
                 let a = (g[(off + c, off + r)] - g[(off + r, off + c)].conj()) * C64::new(0.0, 1.0);
-                acc += (gamma[(r, c)] * f * a - gamma[(r, c)] * gn[(off + c, off + r)]).re;
+                inflow += (gamma[(r, c)] * f * a).re;
+                outflow += (gamma[(r, c)] * gn[(off + c, off + r)]).re;
             }
         }
-        acc
+        (inflow - outflow, inflow + outflow)
     };
+    let (left, left_gross) = flow(0, &gl, fl);
+    let (right, right_gross) = flow(last, &gr, fr);
     let t1n = {
         let g1n = Mat::from_fn(b, b, |r, c| g[(r, last + c)]);
         let prod = &gl * &g1n * &gr * g1n.adjoint();
         (0..b).map(|i| prod[(i, i)].re).sum()
     };
-    let _ = Side::Left;
     (
         diag_r,
         diag_n,
         bond,
         TerminalFlows {
-            left: flow(0, &gl, fl),
-            right: flow(last, &gr, fr),
+            left,
+            right,
             transmission: t1n,
+            left_gross,
+            right_gross,
         },
     )
 }
