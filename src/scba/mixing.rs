@@ -33,6 +33,12 @@ pub struct Mixer {
     /// Current residual r_k (reused buffer).
     r: Vec<f64>,
     last_norm: f64,
+    /// Identity of each stored ΔR (for the Gram cache), oldest first.
+    ids: VecDeque<u64>,
+    next_id: u64,
+    /// ΔR_i·ΔR_j of stored differences, keyed by (older id, newer id): each
+    /// iteration adds one difference, so only its products are new.
+    gram: std::collections::HashMap<(u64, u64), f64>,
 }
 
 /// The mixed vector (Re Σ^r_0, Im Σ^r_0, Σ^in_0) element `i` of `s`.
@@ -53,8 +59,20 @@ fn flatten_into(s: &ScatteringSelfEnergy, v: &mut Vec<f64>) {
     v.extend_from_slice(&s.inscatter);
 }
 
+/// Dot product summed in fixed chunks (in parallel), then the chunk sums in
+/// order: the same number for any thread count.
 fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
+    use rayon::prelude::*;
+    const CHUNK: usize = 1 << 14;
+    if a.len() <= CHUNK {
+        return a.iter().zip(b).map(|(x, y)| x * y).sum();
+    }
+    let parts: Vec<f64> = a
+        .par_chunks(CHUNK)
+        .zip(b.par_chunks(CHUNK))
+        .map(|(x, y)| x.iter().zip(y).map(|(p, q)| p * q).sum())
+        .collect();
+    parts.iter().sum()
 }
 
 impl Mixer {
@@ -67,6 +85,9 @@ impl Mixer {
             dr: VecDeque::new(),
             r: Vec::new(),
             last_norm: f64::INFINITY,
+            ids: VecDeque::new(),
+            next_id: 0,
+            gram: std::collections::HashMap::new(),
         }
     }
 
@@ -94,18 +115,35 @@ impl Mixer {
         let len = 3 * n;
         let mut r = std::mem::take(&mut self.r);
         r.clear();
-        r.extend((0..len).map(|i| get(fx, i) - get(x, i)));
+        r.extend(
+            fx.retarded
+                .iter()
+                .zip(&x.retarded)
+                .map(|(f, v)| f.re - v.re),
+        );
+        r.extend(
+            fx.retarded
+                .iter()
+                .zip(&x.retarded)
+                .map(|(f, v)| f.im - v.im),
+        );
+        r.extend(fx.inscatter.iter().zip(&x.inscatter).map(|(f, v)| f - v));
+        debug_assert_eq!(r.len(), len);
         let norm = dot(&r, &r).sqrt();
         let grew = norm > self.last_norm;
         self.last_norm = norm;
         if grew {
             self.dx.clear();
             self.dr.clear();
+            self.ids.clear();
+            self.gram.clear();
         } else if let Some((xp, rp)) = self.prev.as_ref()
             && depth > 0
         {
             // Reuse the oldest difference buffers once the history is full.
             let (mut dxv, mut drv) = if self.dx.len() >= depth {
+                let gone = self.ids.pop_front().expect("non-empty");
+                self.gram.retain(|&(a, _), _| a != gone);
                 (
                     self.dx.pop_front().expect("non-empty"),
                     self.dr.pop_front().expect("non-empty"),
@@ -119,6 +157,8 @@ impl Mixer {
             drv.extend(r.iter().zip(rp).map(|(a, b)| a - b));
             self.dx.push_back(dxv);
             self.dr.push_back(drv);
+            self.ids.push_back(self.next_id);
+            self.next_id += 1;
         }
         // Least squares min ‖r − ΔR γ‖ by the normal equations with a
         // Cholesky factorisation that drops columns whose pivot falls below
@@ -129,7 +169,15 @@ impl Mixer {
             let mut a = vec![vec![0.0; m]; m];
             for i in 0..m {
                 for j in 0..=i {
-                    let v = dot(&self.dr[i], &self.dr[j]);
+                    let key = (self.ids[j], self.ids[i]);
+                    let v = match self.gram.get(&key) {
+                        Some(&v) => v,
+                        None => {
+                            let v = dot(&self.dr[i], &self.dr[j]);
+                            self.gram.insert(key, v);
+                            v
+                        }
+                    };
                     a[i][j] = v;
                     a[j][i] = v;
                 }
@@ -201,9 +249,16 @@ impl Mixer {
             }
             v
         };
-        for i in 0..n {
-            x.retarded[i] = C64::new(next(i), next(n + i));
-            x.inscatter[i] = next(2 * n + i);
+        {
+            use rayon::prelude::*;
+            x.retarded
+                .par_iter_mut()
+                .zip(x.inscatter.par_iter_mut())
+                .enumerate()
+                .for_each(|(i, (re, inn))| {
+                    *re = C64::new(next(i), next(n + i));
+                    *inn = next(2 * n + i);
+                });
         }
         self.prev = Some((xp, r));
         self.r = rp;
