@@ -190,8 +190,14 @@ fn bad_command_lines_are_usage_errors_with_exit_1() {
         (&["solve", c, "--no-such-option"], "unexpected argument"),
         (&["solve", c, "--threads", "many"], "invalid value"),
         (&["solve", c, "--threads=-3"], "invalid value"),
-        (&["check", c, "--threads", "0"], "--threads must be at least 1"),
-        (&["solve", c, "--threads", "0"], "--threads must be at least 1"),
+        (
+            &["check", c, "--threads", "0"],
+            "--threads must be at least 1",
+        ),
+        (
+            &["solve", c, "--threads", "0"],
+            "--threads must be at least 1",
+        ),
     ];
     for (args, fragment) in cases {
         let o = qheat(args);
@@ -223,7 +229,10 @@ fn a_case_too_large_for_memory_is_refused_up_front_with_the_estimate() {
     let e = stderr(&o);
     assert!(e.contains("GiB"), "gives the estimate: {e}");
     assert!(e.contains("needs about"), "{e}");
-    assert!(e.contains("coarser grid.step_ev"), "suggests a way out: {e}");
+    assert!(
+        e.contains("coarser grid.step_ev"),
+        "suggests a way out: {e}"
+    );
     assert!(!out.exists(), "nothing written before the refusal");
     // The same case runs under a generous limit.
     let o = Command::new(env!("CARGO_BIN_EXE_qheat"))

@@ -331,10 +331,13 @@ pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f6
     let s_out = norm2((0..n).map(|i| b.outscatter(i)));
     let s_re = norm2(b.retarded.iter().map(|z| z.re));
     let scale = s_in + s_out + s_re;
+    let change = d_in + d_out + d_re;
     if scale == 0.0 {
-        return 0.0;
+        // Against an all-zero output any change is infinitely large: a Σ0
+        // so large that G underflows to zero must not pass for converged.
+        return if change == 0.0 { 0.0 } else { f64::INFINITY };
     }
-    (d_in + d_out + d_re) / scale
+    change / scale
 }
 
 /// Solve one operating point: a single pass for a coherent device, the Born
