@@ -454,6 +454,7 @@ fn a_killed_solve_leaves_the_old_or_a_complete_new_result() {
             .collect();
         assert!(hidden.is_empty(), "left behind: {hidden:?}");
     }
+    println!("a whole run took {full:?}; {killed} of 8 runs were killed");
     assert!(
         killed >= 3,
         "only {killed} runs were killed (a run takes {full:?})"

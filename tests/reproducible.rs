@@ -76,7 +76,7 @@ fn compare(
     use serde_json::Value::*;
     match (a, b) {
         (Object(x), Object(y)) => {
-            let mut keys: Vec<&String> = x.keys().chain(y.keys()).collect();
+            let mut keys: Vec<&std::string::String> = x.keys().chain(y.keys()).collect();
             keys.sort();
             keys.dedup();
             for k in keys {
