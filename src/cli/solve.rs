@@ -7,7 +7,7 @@ use qheat::case::{Case, Resolved};
 use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::Staging;
 use qheat::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
-use qheat::scba::{Solution, solve as born_solve};
+use qheat::scba::{Solution, SolveError, solve as born_solve};
 use std::path::Path;
 
 /// Load and resolve a case, printing its warnings.
@@ -169,7 +169,7 @@ pub fn solve(
     let sol = match result {
         Ok(s) => s,
         Err(e) => {
-            write_failure(&out_dir, &info, &e.to_string())?;
+            write_failure(&out_dir, &info, &e)?;
             return Err(Failure::Solver(format!(
                 "{e}; nothing trustworthy was computed (summary.json in {} says so)",
                 out_dir.display()
@@ -207,7 +207,8 @@ pub fn solve(
 }
 
 /// A summary that says the run failed, so nobody mistakes old files for it.
-fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &str) -> Result<(), Failure> {
+fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &SolveError) -> Result<(), Failure> {
+    let location = error.location();
     let v = serde_json::json!({
         "program": qheat::output::results::program(),
         "kind": "solve",
@@ -216,7 +217,12 @@ fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &str) -> Result<(), 
         "threads": info.threads,
         "converged": false,
         "trustworthy": false,
-        "error": error,
+        "error": error.to_string(),
+        "fault": {
+            "kind": error.kind(),
+            "energy_ev": location.map(|l| l.0),
+            "cell": location.and_then(|l| l.1),
+        },
         "warnings": info.warnings,
         "resolved_case": info.case_toml,
     });

@@ -6,7 +6,9 @@
 //! folder is assembled in a staging folder beside its final place and
 //! swapped in at the end: an interrupted run leaves the old folder (or, in
 //! the instant between the two renames, the old folder under a `.old-`
-//! name) and never a mix of old and new files.
+//! name) and never a mix of old and new files. The next run into the same
+//! folder removes the `.partial-` folders of runs that are no longer
+//! running and puts a stranded `.old-` folder back.
 
 pub mod plots;
 pub mod report;
@@ -118,6 +120,70 @@ where
     Ok(buf)
 }
 
+/// True when a process with this id is running. Linux answers through
+/// /proc; elsewhere nothing can be told, and a folder counts as abandoned
+/// only by its age.
+fn process_alive(pid: u32) -> Option<bool> {
+    if !Path::new("/proc/self").exists() {
+        return None;
+    }
+    Some(Path::new("/proc").join(pid.to_string()).exists())
+}
+
+/// Staging folders older than this are abandoned where process ids cannot
+/// be checked.
+const ABANDONED_AFTER: std::time::Duration = std::time::Duration::from_secs(24 * 3600);
+
+/// Remove what killed runs left beside `final_dir`: `.NAME.partial-PID`
+/// folders (never complete, so never a result) and `.NAME.old-PID` folders.
+/// An `.old-` folder is the previous complete result, moved aside in the
+/// instant between the two renames of [`Staging::commit`]; if the final
+/// folder is missing it is put back rather than removed. Folders of a
+/// process that is still running are left alone.
+fn clean_abandoned(parent: &Path, name: &str, final_dir: &Path) -> Result<(), OutputError> {
+    let Ok(entries) = fs::read_dir(parent) else {
+        return Ok(());
+    };
+    let partial = format!(".{name}.partial-");
+    let old = format!(".{name}.old-");
+    let me = std::process::id();
+    for entry in entries.flatten() {
+        let file_name = entry.file_name().to_string_lossy().into_owned();
+        let (is_old, pid) = if let Some(p) = file_name.strip_prefix(&partial) {
+            (false, p)
+        } else if let Some(p) = file_name.strip_prefix(&old) {
+            (true, p)
+        } else {
+            continue;
+        };
+        let Ok(pid) = pid.parse::<u32>() else {
+            continue;
+        };
+        if pid == me {
+            continue;
+        }
+        let abandoned = match process_alive(pid) {
+            Some(alive) => !alive,
+            None => entry
+                .metadata()
+                .and_then(|m| m.modified())
+                .ok()
+                .and_then(|t| t.elapsed().ok())
+                .is_some_and(|age| age > ABANDONED_AFTER),
+        };
+        if !abandoned {
+            continue;
+        }
+        let path = entry.path();
+        if is_old && !final_dir.exists() {
+            fs::rename(&path, final_dir).map_err(io("restoring", final_dir))?;
+        } else {
+            fs::remove_dir_all(&path).map_err(io("removing abandoned", &path))?;
+        }
+    }
+    Ok(())
+}
+
 /// A result folder being assembled.
 pub struct Staging {
     final_dir: PathBuf,
@@ -136,6 +202,7 @@ impl Staging {
             .file_name()
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| "result".into());
+        clean_abandoned(parent, &name, final_dir)?;
         let dir = parent.join(format!(".{name}.partial-{}", std::process::id()));
         if dir.exists() {
             fs::remove_dir_all(&dir).map_err(io("clearing", &dir))?;

@@ -66,6 +66,83 @@ pub enum SolveError {
     /// Inputs that do not fit together.
     #[error("{0}")]
     Invalid(String),
+    /// The rebuilt scattering self-energy Σ0 held a non-finite value
+    /// (reported at the lowest energy, then the first site, where it did).
+    #[error(
+        "non-finite scattering self-energy {part} at E = {energy_ev} eV in cell {cell} (Born iteration {iteration})"
+    )]
+    SelfEnergyNotFinite {
+        /// Born iteration (1-based) whose output held it.
+        iteration: usize,
+        /// Energy (eV).
+        energy_ev: f64,
+        /// Cell index (0-based).
+        cell: usize,
+        /// Which part: "Σ^r_0" or "Σ^in_0".
+        part: &'static str,
+    },
+    /// The Born loop ran away: its residual or a terminal current stopped
+    /// being a finite number.
+    #[error(
+        "the Born loop diverged at iteration {iteration}: residual {residual:e}, currents {current_left_a:e} A / {current_right_a:e} A"
+    )]
+    Diverged {
+        /// Born iteration (1-based).
+        iteration: usize,
+        /// Relative change of Σ0 in that iteration.
+        residual: f64,
+        /// Current from the left lead (A).
+        current_left_a: f64,
+        /// Current from the right lead (A).
+        current_right_a: f64,
+    },
+}
+
+impl SolveError {
+    /// Where the fault appeared, when it has a place: (energy in eV, cell).
+    /// The cell is `None` for a lead fault, which belongs to a contact.
+    pub fn location(&self) -> Option<(f64, Option<usize>)> {
+        match self {
+            SolveError::Lead(
+                LeadError::NotConverged { energy_ev, .. } | LeadError::NotFinite { energy_ev, .. },
+            ) => Some((*energy_ev, None)),
+            SolveError::Rgf(RgfError::NotFinite { energy_ev, cell }) => {
+                Some((*energy_ev, Some(*cell)))
+            }
+            SolveError::SelfEnergyNotFinite {
+                energy_ev, cell, ..
+            } => Some((*energy_ev, Some(*cell))),
+            SolveError::Invalid(_) | SolveError::Diverged { .. } => None,
+        }
+    }
+
+    /// A short name of the kind of fault, for machine-readable summaries.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            SolveError::Lead(_) => "lead self-energy",
+            SolveError::Rgf(_) => "non-finite Green's function",
+            SolveError::SelfEnergyNotFinite { .. } => "non-finite scattering self-energy",
+            SolveError::Diverged { .. } => "diverged",
+            SolveError::Invalid(_) => "invalid input",
+        }
+    }
+}
+
+/// First (energy index, site, part) where Σ0 is not finite.
+fn first_non_finite(sigma: &ScatteringSelfEnergy) -> Option<(usize, usize, &'static str)> {
+    let ns = sigma.sites.max(1);
+    let bad_r = sigma
+        .retarded
+        .iter()
+        .position(|z| !(z.re.is_finite() && z.im.is_finite()));
+    let bad_in = sigma.inscatter.iter().position(|v| !v.is_finite());
+    let (idx, part) = match (bad_r, bad_in) {
+        (None, None) => return None,
+        (Some(r), Some(i)) if i < r => (i, "Σ^in_0"),
+        (Some(r), _) => (r, "Σ^r_0"),
+        (None, Some(i)) => (i, "Σ^in_0"),
+    };
+    Some((idx / ns, idx % ns, part))
 }
 
 /// Lead self-energies on every grid energy (they do not change during the
@@ -298,10 +375,13 @@ pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f6
     let s_out = norm2((0..n).map(|i| b.outscatter(i)));
     let s_re = norm2(b.retarded.iter().map(|z| z.re));
     let scale = s_in + s_out + s_re;
+    let change = d_in + d_out + d_re;
     if scale == 0.0 {
-        return 0.0;
+        // Against an all-zero output any change is infinitely large: a Σ0
+        // so large that G underflows to zero must not pass for converged.
+        return if change == 0.0 { 0.0 } else { f64::INFINITY };
     }
-    (d_in + d_out + d_re) / scale
+    change / scale
 }
 
 /// Solve one operating point: a single pass for a coherent device, the Born
@@ -362,7 +442,25 @@ pub fn solve_with_leads(
         let p = pass(problem, leads, &x, false)?;
         let (il, ir) = terminal_currents(problem, &p.flows);
         let fx = scat.self_energy(&p.green, ne, hilbert.as_ref());
+        // A non-finite Σ0 would poison the next pass (or, with finite but
+        // huge values, the mixer); stop here and say where it appeared.
+        if let Some((k, site, part)) = first_non_finite(&fx) {
+            return Err(SolveError::SelfEnergyNotFinite {
+                iteration: report.iterations + 1,
+                energy_ev: problem.grid.energy(k),
+                cell: site / problem.device.orbitals.max(1),
+                part,
+            });
+        }
         let residual = relative_change(&x, &fx);
+        if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
+            return Err(SolveError::Diverged {
+                iteration: report.iterations + 1,
+                residual,
+                current_left_a: il,
+                current_right_a: ir,
+            });
+        }
         let current_change = match previous {
             None => f64::INFINITY,
             Some((pl, pr)) => {
