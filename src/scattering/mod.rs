@@ -143,60 +143,69 @@ impl Scattering {
         energies: usize,
         hilbert: Option<&HilbertTransform>,
     ) -> ScatteringSelfEnergy {
+        use rayon::prelude::*;
         let ns = green.sites;
         let mut out = ScatteringSelfEnergy::zeros(energies, ns);
         // Phonon broadening per (k, s), accumulated separately so that its
-        // Hermitian part can be added by the Hilbert transform.
+        // Hermitian part can be added by the Hilbert transform. Rows (one
+        // energy each) are independent: built in parallel, each element
+        // summing the modes in the same order whatever the thread count.
         let mut gamma_ph = vec![0.0; energies * ns];
-        for mode in &self.phonons {
-            let n = mode.occupation();
-            let w = mode.steps;
-            for k in 0..energies {
-                let row = k * ns;
-                for s in 0..ns {
-                    let d = mode.coupling_ev2[s];
-                    if d == 0.0 {
-                        continue;
+        let occupations: Vec<f64> = self.phonons.iter().map(|m| m.occupation()).collect();
+        out.inscatter
+            .par_chunks_mut(ns.max(1))
+            .zip(gamma_ph.par_chunks_mut(ns.max(1)))
+            .enumerate()
+            .for_each(|(k, (sin_row, gamma_row))| {
+                for (mode, &n) in self.phonons.iter().zip(&occupations) {
+                    let w = mode.steps;
+                    for s in 0..ns {
+                        let d = mode.coupling_ev2[s];
+                        if d == 0.0 {
+                            continue;
+                        }
+                        let mut sin = 0.0;
+                        let mut sout = 0.0;
+                        if k + w < energies {
+                            let up = (k + w) * ns + s;
+                            // emission into E from E + ħω; absorption out of E to E + ħω
+                            sin += (n + 1.0) * green.filled[up];
+                            sout += n * green.empty(up);
+                        }
+                        if k >= w {
+                            let down = (k - w) * ns + s;
+                            sin += n * green.filled[down];
+                            sout += (n + 1.0) * green.empty(down);
+                        }
+                        sin_row[s] += d * sin;
+                        gamma_row[s] += d * (sin + sout);
                     }
-                    let mut sin = 0.0;
-                    let mut sout = 0.0;
-                    if k + w < energies {
-                        let up = (k + w) * ns + s;
-                        // emission into E from E + ħω; absorption out of E to E + ħω
-                        sin += (n + 1.0) * green.filled[up];
-                        sout += n * green.empty(up);
-                    }
-                    if k >= w {
-                        let down = (k - w) * ns + s;
-                        sin += n * green.filled[down];
-                        sout += (n + 1.0) * green.empty(down);
-                    }
-                    out.inscatter[row + s] += d * sin;
-                    gamma_ph[row + s] += d * (sin + sout);
                 }
-            }
-        }
-        for (r, g) in out.retarded.iter_mut().zip(&gamma_ph) {
-            *r = C64::new(0.0, -0.5 * g);
-        }
+            });
+        out.retarded
+            .par_iter_mut()
+            .zip(gamma_ph.par_iter())
+            .for_each(|(r, g)| *r = C64::new(0.0, -0.5 * g));
         if self.hermitian_part && !self.phonons.is_empty() {
             let h = hilbert.expect("Hilbert transform plan when the Hermitian part is on");
             let principal = h.apply_columns(&gamma_ph, energies, ns);
-            for (r, p) in out.retarded.iter_mut().zip(&principal) {
-                r.re += p;
-            }
+            out.retarded
+                .par_iter_mut()
+                .zip(principal.par_iter())
+                .for_each(|(r, p)| r.re += p);
         }
         if !self.dephasing_ev2.is_empty() {
-            for k in 0..energies {
-                let row = k * ns;
-                for s in 0..ns {
-                    let d = self.dephasing_ev2[s];
+            out.retarded
+                .par_iter_mut()
+                .zip(out.inscatter.par_iter_mut())
+                .enumerate()
+                .for_each(|(idx, (r, sin))| {
+                    let d = self.dephasing_ev2[idx % ns];
                     if d != 0.0 {
-                        out.retarded[row + s] += green.retarded[row + s] * d;
-                        out.inscatter[row + s] += d * green.filled[row + s];
+                        *r += green.retarded[idx] * d;
+                        *sin += d * green.filled[idx];
                     }
-                }
-            }
+                });
         }
         out
     }

@@ -361,19 +361,37 @@ pub fn terminal_currents(problem: &Problem, flows: &[TerminalFlows]) -> (f64, f6
     (l * scale, r * scale)
 }
 
-fn norm2(v: impl Iterator<Item = f64>) -> f64 {
-    v.map(|x| x * x).sum::<f64>().sqrt()
-}
-
 /// Relative change of (Σ^in, Σ^out) from `a` to `b`.
 pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f64 {
+    // Sums of squares in fixed chunks (in parallel), chunk sums added in
+    // order: the same number for any thread count.
+    const CHUNK: usize = 1 << 13;
     let n = a.inscatter.len();
-    let d_in = norm2((0..n).map(|i| b.inscatter[i] - a.inscatter[i]));
-    let d_out = norm2((0..n).map(|i| b.outscatter(i) - a.outscatter(i)));
-    let d_re = norm2((0..n).map(|i| b.retarded[i].re - a.retarded[i].re));
-    let s_in = norm2(b.inscatter.iter().copied());
-    let s_out = norm2((0..n).map(|i| b.outscatter(i)));
-    let s_re = norm2(b.retarded.iter().map(|z| z.re));
+    let parts: Vec<[f64; 6]> = (0..n.div_ceil(CHUNK))
+        .into_par_iter()
+        .map(|c| {
+            let mut acc = [0.0; 6];
+            for i in c * CHUNK..((c + 1) * CHUNK).min(n) {
+                let (bi, ai) = (b.inscatter[i], a.inscatter[i]);
+                let (bo, ao) = (b.outscatter(i), a.outscatter(i));
+                let (br, ar) = (b.retarded[i].re, a.retarded[i].re);
+                acc[0] += (bi - ai) * (bi - ai);
+                acc[1] += (bo - ao) * (bo - ao);
+                acc[2] += (br - ar) * (br - ar);
+                acc[3] += bi * bi;
+                acc[4] += bo * bo;
+                acc[5] += br * br;
+            }
+            acc
+        })
+        .collect();
+    let mut tot = [0.0; 6];
+    for p in &parts {
+        for (t, v) in tot.iter_mut().zip(p) {
+            *t += v;
+        }
+    }
+    let [d_in, d_out, d_re, s_in, s_out, s_re] = tot.map(f64::sqrt);
     let scale = s_in + s_out + s_re;
     let change = d_in + d_out + d_re;
     if scale == 0.0 {
