@@ -41,6 +41,41 @@
 //! [`scba::Solution`] → [`observables::observe`] → [`output`].
 //! Thermoelectric coefficients: [`thermo`].
 //!
+//! ## Example
+//!
+//! A uniform tight-binding chain between two leads that continue it
+//! transmits every electron in its band (T = 1), and one open channel
+//! conducts g_s e²/h when the Fermi level sits well inside the band:
+//!
+//! ```
+//! use qheat::device;
+//! use qheat::grid::EnergyGrid;
+//! use qheat::leads::{DecimationParams, Lead};
+//! use qheat::model::{Contact, Problem};
+//! use qheat::scattering::Scattering;
+//! use qheat::scba::{ScbaParams, Silent, solve};
+//!
+//! // Effective-mass chain: 20 cells of 0.25 nm, m* = 0.07, flat band edge.
+//! let t = qheat::units::hopping_ev(0.07, 0.25);
+//! let dev = device::chain(0.25, t, 0.0, vec![0.0; 20]);
+//! let lead = Lead::Periodic { onsite: dev.onsite[0].clone(), hopping: dev.coupling[0].clone() };
+//! let contact = |mu| Contact { lead: lead.clone(), fermi_level_ev: mu, temperature_k: 300.0 };
+//! let problem = Problem {
+//!     device: dev,
+//!     left: contact(0.3),
+//!     right: contact(0.3),
+//!     scattering: Scattering::default(),
+//!     grid: EnergyGrid::covering(0.001, 0.9, 0.002),
+//!     spin_degeneracy: 2.0,
+//!     decimation: DecimationParams::default(),
+//! };
+//! let sol = solve(&problem, &ScbaParams::default(), None, &mut Silent).unwrap();
+//! assert!(sol.pass.flows.iter().all(|f| (f.transmission - 1.0).abs() < 1e-9));
+//! let c = qheat::thermo::coherent_coefficients(&problem, 0.0).unwrap();
+//! let g0 = qheat::units::CONDUCTANCE_QUANTUM;
+//! assert!((c.conductance_s / g0 - 1.0).abs() < 1e-3);
+//! ```
+//!
 //! ## References
 //!
 //! 1. R. Lake, G. Klimeck, R. C. Bowen, D. Jovanovic, J. Appl. Phys. 81,
