@@ -92,6 +92,38 @@ pub fn csv_bytes(headers: &[&str], rows: impl IntoIterator<Item = Vec<f64>>) -> 
     w.into_inner().expect("in-memory CSV")
 }
 
+/// `value` with an SI prefix and `digits` significant figures, e.g.
+/// `-819.8 nA`; magnitudes below 1e-18 in scientific notation.
+pub fn format_si(value: f64, unit: &str, digits: usize) -> String {
+    if value == 0.0 {
+        return format!("0 {unit}");
+    }
+    if !value.is_finite() {
+        return format!("{value} {unit}");
+    }
+    const PREFIXES: [(&str, f64); 11] = [
+        ("T", 1e12),
+        ("G", 1e9),
+        ("M", 1e6),
+        ("k", 1e3),
+        ("", 1.0),
+        ("m", 1e-3),
+        ("µ", 1e-6),
+        ("n", 1e-9),
+        ("p", 1e-12),
+        ("f", 1e-15),
+        ("a", 1e-18),
+    ];
+    let mag = value.abs();
+    let Some((p, scale)) = PREFIXES.iter().copied().find(|(_, s)| mag >= *s * 0.9995) else {
+        return format!("{value:.3e} {unit}");
+    };
+    let scaled = value / scale;
+    let int_digits = (scaled.abs().log10().floor() as i64 + 1).max(1) as usize;
+    let decimals = digits.saturating_sub(int_digits);
+    format!("{scaled:.decimals$} {p}{unit}")
+}
+
 /// Shortest text that reads back to the same f64.
 pub fn format_number(v: f64) -> String {
     if v.is_finite() {

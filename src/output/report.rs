@@ -81,33 +81,7 @@ pub fn escape(text: &str) -> String {
 
 /// A number with an SI prefix and four significant figures.
 pub fn si(value: f64, unit: &str) -> String {
-    if value == 0.0 {
-        return format!("0 {unit}");
-    }
-    if !value.is_finite() {
-        return format!("{value} {unit}");
-    }
-    const PREFIXES: [(&str, f64); 11] = [
-        ("T", 1e12),
-        ("G", 1e9),
-        ("M", 1e6),
-        ("k", 1e3),
-        ("", 1.0),
-        ("m", 1e-3),
-        ("µ", 1e-6),
-        ("n", 1e-9),
-        ("p", 1e-12),
-        ("f", 1e-15),
-        ("a", 1e-18),
-    ];
-    let mag = value.abs();
-    let Some((p, scale)) = PREFIXES.iter().copied().find(|(_, s)| mag >= *s * 0.99995) else {
-        return format!("{value:.3e} {unit}");
-    };
-    let scaled = value / scale;
-    let int_digits = (scaled.abs().log10().floor() as i64 + 1).max(1) as usize;
-    let decimals = 4usize.saturating_sub(int_digits);
-    format!("{scaled:.decimals$} {p}{unit}")
+    super::format_si(value, unit, 4)
 }
 
 /// Unit from the key's suffix (the project writes units into key names).
