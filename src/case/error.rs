@@ -4,8 +4,9 @@
 use std::fmt;
 use std::ops::Range;
 
-/// What went wrong, coarsely: lets the command line choose an exit code
-/// (an unreadable case file is an I/O failure, everything else bad input).
+/// What went wrong, coarsely. The command line treats every kind as bad
+/// input (exit 1), an unreadable case file included: it is the input that
+/// is wrong, not the result folder.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum CaseErrorKind {
     /// The case file itself could not be read.
