@@ -157,6 +157,11 @@ fn a_non_finite_greens_function_exits_2_and_names_energy_and_cell() {
         !out.join("sites.csv").exists(),
         "old result files left beside a failure summary"
     );
+    // `check` warns about the zero couplings that isolate the level.
+    let o = qheat(&["check", case.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(text.contains("are not coupled"), "{text}");
 }
 
 #[test]

@@ -412,6 +412,14 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
         }
     }
 
+    // A zero coupling block cuts the device in two: nothing can pass.
+    if let Some(i) = dev.coupling.iter().position(|c| device::max_abs(c) == 0.0) {
+        warnings.push(format!(
+            "cells {i} and {} are not coupled (an all-zero coupling block): no current can pass, and a level isolated between zero couplings makes the Green's function singular at its energy",
+            i + 1
+        ));
+    }
+
     // ---- scattering ----
     let mut phonons = Vec::new();
     for (i, (p, &(steps, energy))) in spec.phonons.iter().zip(&snapped).enumerate() {
