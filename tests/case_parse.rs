@@ -429,7 +429,8 @@ fn energy_selective_and_wide_band_leads() {
 
 #[test]
 fn strip_band_bottom_is_the_first_transverse_mode() {
-    // Closed form: hard-wall strip modes 2t(1 − cos(nπ/(W+1))) above Ec.
+    // Closed form (common practice): hard-wall strip modes 2t(1 − cos(nπ/(W+1)))
+    // above Ec; tolerance 1e-15 because both sides evaluate the same formula.
     let text = BASE.replace(
         "builder = \"chain\"",
         "builder = \"strip\"\nwidth_sites = 5\nband_edge_ev = -0.1",

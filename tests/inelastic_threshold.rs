@@ -1,7 +1,7 @@
 //! Inelastic tunnelling threshold of a weakly coupled Einstein phonon in a
 //! ballistic chain: the second derivative d²I/dV² has an extremum at
 //! eV = ħω with the thermal full width at half maximum 5.4392 kB T
-//! (J. Lambe, R. C. Jaklevic, Phys. Rev. 165, 821 (1968)). For a ballistic
+//! (source: J. Lambe, R. C. Jaklevic, Phys. Rev. 165, 821 (1968)). For a ballistic
 //! chain the conductance falls above threshold (a dip), so |d²I/dV²| is
 //! measured and its half maximum is taken from zero. Tolerance ±2% on the
 //! width (intrinsic broadening ≪ kT, bias step kT/20, ΔE ≤ kT/2, ħω an exact
