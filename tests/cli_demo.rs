@@ -176,3 +176,35 @@ fn non_convergence_is_flagged_and_warm_start_works() {
     assert!(v["scba"]["iterations"].as_u64().unwrap() <= 2);
     assert_eq!(v["scba"]["warm_start"], true);
 }
+
+/// The printed summary says where the applied voltage drops: the contacts
+/// and the device interior add up to |V| (identity of the local Fermi level).
+#[test]
+fn summary_splits_the_voltage_between_contacts_and_device() {
+    let tmp = tempfile::tempdir().unwrap();
+    let run = qheat()
+        .args(["solve", "cases-demo/peltier-barrier.toml", "-o"])
+        .arg(tmp.path().join("p"))
+        .output()
+        .unwrap();
+    assert!(run.status.success());
+    let text = String::from_utf8_lossy(&run.stdout);
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("Fermi-level drop"))
+        .expect("drop line");
+    let mv: Vec<f64> = line
+        .split(',')
+        .map(|part| {
+            let w: Vec<&str> = part.split_whitespace().collect();
+            let (v, unit) = (w[w.len() - 2].parse::<f64>().unwrap(), w[w.len() - 1]);
+            assert_eq!(unit, "mV", "{line}");
+            v
+        })
+        .collect();
+    let total: f64 = mv.iter().sum();
+    assert!(
+        (total - 80.0).abs() < 0.3,
+        "{line}: sums to {total} mV, the demo applies 80 mV"
+    );
+}

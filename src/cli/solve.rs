@@ -126,6 +126,19 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
             si(*d, "V", 3)
         );
     }
+    if let (Some(first), Some(last)) = (
+        o.sites.fermi_level_ev.first(),
+        o.sites.fermi_level_ev.last(),
+    ) {
+        // Where the applied voltage goes: into the contacts (including the
+        // quantum contact resistance) or across the device itself.
+        println!(
+            "Fermi-level drop  left contact {}, inside the device {}, right contact {}",
+            si(o.contact_drop_left_v, "V", 3),
+            si(first - last, "V", 3),
+            si(drops.last().copied().unwrap_or(0.0), "V", 3)
+        );
+    }
     let l = &o.ledger;
     println!(
         "ledger            charge {}  energy {}  heat {}  (relative residuals)",
