@@ -69,9 +69,10 @@ fn defaults_are_the_documented_ones() {
         r.scba.mixing,
         Mixing::Anderson {
             depth: 6,
-            damping: 0.8
+            damping: 1.0
         }
     );
+    assert_eq!(r.scba.energy_order, qheat::scba::EnergyOrder::Auto);
     assert_eq!(p.decimation.eta_ev, 1e-7);
     assert_eq!(p.decimation.tolerance_ev, 1e-13);
     // grid: step kT/10, from half a step above the band edge (0 here) to

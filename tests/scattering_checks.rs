@@ -240,6 +240,7 @@ fn recursion_matches_dense_born_loop() {
             params,
             hermitian_part: false,
             warm_start: false,
+            energy_order: qheat::scba::EnergyOrder::Simultaneous,
         },
     };
     let od = observe(&dsol);

@@ -30,7 +30,7 @@
 //! | `[[phonon]]` `energy_ev`, `coupling_ev2`, `from_nm`, `to_nm`, `bath_temperature_k` | Einstein modes | bath: mean lead T |
 //! | `dephasing.strength_ev2`, `from_nm`, `to_nm` | elastic dephasing | none |
 //! | `grid.step_ev`, `min_ev`, `max_ev` | energy grid | see [`Resolved`] |
-//! | `solver.*` | `tolerance`, `max_iterations`, `mixing`, `mixing_factor`, `anderson_depth`, `anderson_damping`, `hermitian_part`, `current_floor_a`, `decimation_eta_ev`, `decimation_tolerance_ev` | 1e-7, 300, anderson, 0.5, 6, 0.8, neglect, 1e-18, 1e-7, 1e-13 |
+//! | `solver.*` | `tolerance`, `max_iterations`, `mixing`, `mixing_factor`, `anderson_depth`, `anderson_damping`, `hermitian_part`, `energy_order` (`auto`, `simultaneous`, `red-black`: see [`crate::scba::EnergyOrder`]), `current_floor_a`, `decimation_eta_ev`, `decimation_tolerance_ev` | 1e-7, 300, anderson, 0.5, 6, 1.0, neglect, auto, 1e-18, 1e-7, 1e-13 |
 //! | `response.split` | `"symmetric"` or `"left-only"` | symmetric |
 //! | `thermal.phonon_conductance_w_per_k` | κ_ph for ZT | 0 (noted) |
 //! | `profile.electron_temperature` | `"off"` or `"fit"`: also fit a local electron temperature per cell from the energy density | off |

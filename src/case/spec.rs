@@ -7,7 +7,7 @@ use super::error::{CaseError, CaseErrorKind, ErrorContext, closest};
 use super::raw::{Opt, RawCase, RawLead};
 use crate::C64;
 use crate::device::{BiasDrop, PotentialRegion};
-use crate::scba::{Mixing, ScbaParams};
+use crate::scba::{EnergyOrder, Mixing, ScbaParams};
 use faer::Mat;
 use std::ops::Range;
 use std::path::{Path, PathBuf};
@@ -984,7 +984,7 @@ pub(crate) fn validate(
             }
             Mixing::Anderson {
                 depth: depth.unwrap_or(6),
-                damping: damping.unwrap_or(0.8),
+                damping: damping.unwrap_or(1.0),
             }
         };
         hermitian_part = ck.choice(
@@ -992,6 +992,15 @@ pub(crate) fn validate(
             "solver.hermitian_part",
             &["neglect", "include"],
         )? == Some("include");
+        scba.energy_order = match ck.choice(
+            &s.energy_order,
+            "solver.energy_order",
+            &["auto", "simultaneous", "red-black"],
+        )? {
+            Some("simultaneous") => EnergyOrder::Simultaneous,
+            Some("red-black") => EnergyOrder::RedBlack,
+            _ => EnergyOrder::Auto,
+        };
         if let Some(f) = ck.non_negative(
             &s.current_floor_a,
             "solver.current_floor_a",

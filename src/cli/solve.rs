@@ -55,13 +55,17 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
         println!("transport         coherent (no scattering inside the device)");
     } else {
         println!(
-            "Born loop         {} after {} iterations, residual {}{}",
+            "Born loop         {} after {} iterations ({} energy order), residual {}{}",
             if r.converged {
                 "converged"
             } else {
                 "NOT CONVERGED"
             },
             r.iterations,
+            match r.energy_order {
+                qheat::scba::EnergyOrder::RedBlack => "red-black",
+                _ => "simultaneous",
+            },
             r.history
                 .last()
                 .map(|h| residual(h.residual))

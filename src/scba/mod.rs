@@ -10,6 +10,22 @@
 //!    tol·|I_α| + floor. Reaching the iteration limit gives a result flagged
 //!    as not converged, never a silent answer.
 //!
+//! # Energy order
+//!
+//! With phonons, step 2 is by default split in two halves (see
+//! [`EnergyOrder`]): the "red" energies are solved first, Σ0 is rebuilt on
+//! the "black" energies from those fresh Green's functions, and then the
+//! black energies are solved. A phonon of ħω = s·ΔE links E only to E ± ħω,
+//! which lie in the other colour, so the Jacobian of the simultaneous
+//! iteration has a spectrum symmetric about zero (±λ); red-black ordering
+//! turns it into λ². Measured on cases-demo/peltier-barrier.toml: the
+//! largest |λ| goes from 0.310 to 0.096 and linear mixing needs 10 instead
+//! of 17 iterations. Each iteration is still one pass over the grid and both
+//! halves run in parallel over their energies. Mixing acts on the whole Σ0;
+//! its black rows are replaced by the rebuilt ones before they are used,
+//! and the residual is that of the pair actually used, F(Σ0) − Σ0, so the
+//! stopping test means the same in both orders.
+//!
 //! The returned [`Solution`] pairs the Green's functions with the Σ0 they
 //! were computed from, so that j_1 + j_2 + j_0 = 0 holds at every energy to
 //! rounding; the bath's own particle and energy balance then holds to the
@@ -44,7 +60,7 @@ mod mixing;
 mod params;
 
 pub use mixing::Mixer;
-pub use params::{Mixing, ScbaParams};
+pub use params::{EnergyOrder, Mixing, ScbaParams};
 
 use crate::C64;
 use crate::leads::{LeadError, Side};
@@ -209,26 +225,68 @@ pub fn pass(
     sigma0: &ScatteringSelfEnergy,
     want_transmission: bool,
 ) -> Result<Pass, SolveError> {
+    let mut out = Pass::zeros(problem);
+    pass_rows(
+        problem,
+        leads,
+        sigma0,
+        want_transmission,
+        |_| true,
+        &mut out,
+    )?;
+    Ok(out)
+}
+
+impl Pass {
+    /// An all-zero pass shaped for `problem`.
+    fn zeros(problem: &Problem) -> Self {
+        let n = problem.device.cells();
+        let ns = problem.sites();
+        let ne = problem.grid.count;
+        let nb = n.saturating_sub(1);
+        Self {
+            green: LocalGreen {
+                sites: ns,
+                retarded: vec![C64::new(0.0, 0.0); ne * ns],
+                filled: vec![0.0; ne * ns],
+            },
+            bond: vec![0.0; ne * nb],
+            flows: vec![TerminalFlows::default(); ne],
+        }
+    }
+}
+
+/// Run the recursion at the energies `k` with `rows(k)` true, writing their
+/// rows of `out` (other rows are left as they are).
+fn pass_rows(
+    problem: &Problem,
+    leads: &LeadTable,
+    sigma0: &ScatteringSelfEnergy,
+    want_transmission: bool,
+    rows: impl Fn(usize) -> bool + Sync,
+    out: &mut Pass,
+) -> Result<(), SolveError> {
     let dev = &problem.device;
     let n = dev.cells();
     let b = dev.orbitals;
     let ns = n * b;
-    let ne = problem.grid.count;
-    let nb = n.saturating_sub(1).max(1);
-    let mut green = LocalGreen {
-        sites: ns,
-        retarded: vec![C64::new(0.0, 0.0); ne * ns],
-        filled: vec![0.0; ne * ns],
+    // A one-cell device has no bonds: give each energy an empty row.
+    let nb = n.saturating_sub(1);
+    let mut empty_bonds = vec![0.0; problem.grid.count];
+    let bond_rows: Vec<&mut [f64]> = if nb == 0 {
+        empty_bonds.chunks_mut(1).map(|c| &mut c[..0]).collect()
+    } else {
+        out.bond.chunks_mut(nb).collect()
     };
-    let mut bond = vec![0.0; ne * nb];
-    let mut flows = vec![TerminalFlows::default(); ne];
+    let green = &mut out.green;
     green
         .retarded
         .par_chunks_mut(ns)
         .zip(green.filled.par_chunks_mut(ns))
-        .zip(bond.par_chunks_mut(nb))
-        .zip(flows.par_iter_mut())
+        .zip(bond_rows.into_par_iter())
+        .zip(out.flows.par_iter_mut())
         .enumerate()
+        .filter(|(k, _)| rows(*k))
         .try_for_each_init(
             // Per thread: the RGF workspace and the two lead in-scattering
             // blocks, filled in place at each energy (no allocation per energy).
@@ -263,17 +321,13 @@ pub fn pass(
                     EnergyOutput {
                         retarded: gr,
                         filled: gn,
-                        bond: &mut bd[..n - 1],
+                        bond: bd,
                         full: None,
                     },
                 )?;
                 Ok(())
             },
-        )?;
-    if n == 1 {
-        bond.clear();
-    }
-    Ok(Pass { green, bond, flows })
+        )
 }
 
 /// Σ^in = Γ f with Γ = i(Σ − Σ†), written into `dst` (scalar for b = 1).
@@ -334,6 +388,8 @@ pub struct ScbaReport {
     pub hermitian_part: bool,
     /// Started from a stored Σ0.
     pub warm_start: bool,
+    /// The energy order used (`Simultaneous` for a coherent device).
+    pub energy_order: EnergyOrder,
 }
 
 /// A solved operating point: the Green's functions and the Σ0 they were
@@ -402,6 +458,35 @@ pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f6
     change / scale
 }
 
+/// The red-black colouring for these settings: the band width w in grid
+/// steps (energy k is red when ⌊k/w⌋ is even) and whether every phonon
+/// links only energies of opposite colours; None for the simultaneous
+/// order.
+///
+/// A mode of s steps flips the colour of every energy exactly when s/w is
+/// odd, so with `Auto` the colouring is used when all modes have the same
+/// power of two in their step count (w is then their greatest common
+/// divisor); `RedBlack` uses the greatest common divisor whenever there are
+/// phonons.
+pub fn red_black_colouring(problem: &Problem, order: EnergyOrder) -> Option<(usize, bool)> {
+    let steps: Vec<usize> = problem
+        .scattering
+        .phonons
+        .iter()
+        .map(|m| m.steps)
+        .filter(|&s| s > 0)
+        .collect();
+    if steps.is_empty() || order == EnergyOrder::Simultaneous {
+        return None;
+    }
+    fn gcd(a: usize, b: usize) -> usize {
+        if b == 0 { a } else { gcd(b, a % b) }
+    }
+    let w = steps.iter().fold(0, |g, &s| gcd(g, s));
+    let two_colours = steps.iter().all(|&s| (s / w) % 2 == 1);
+    (two_colours || order == EnergyOrder::RedBlack).then_some((w, two_colours))
+}
+
 /// Solve one operating point: a single pass for a coherent device, the Born
 /// loop otherwise. `warm` is a Σ0 from a neighbouring operating point.
 pub fn solve(
@@ -433,6 +518,7 @@ pub fn solve_with_leads(
         params: *params,
         hermitian_part: scat.hermitian_part && !scat.phonons.is_empty(),
         warm_start: warm.is_some() && !coherent,
+        energy_order: EnergyOrder::Simultaneous,
     };
     if coherent {
         let sigma = ScatteringSelfEnergy::zeros(ne, ns);
@@ -456,8 +542,48 @@ pub fn solve_with_leads(
     let hilbert = report.hermitian_part.then(|| HilbertTransform::new(ne));
     let mut mixer = Mixer::new(params.mixing);
     let mut previous: Option<(f64, f64)> = None;
+    let colouring = red_black_colouring(problem, params.energy_order);
+    report.energy_order = if colouring.is_some() {
+        EnergyOrder::RedBlack
+    } else {
+        EnergyOrder::Simultaneous
+    };
+    let colour = colouring.map(|(w, _)| w);
+    // Red-black: an iteration solves the red energies, rebuilds Σ0 on the
+    // black ones from every G at hand, then solves those. The first
+    // iteration has no G on the black energies yet; they count as zero,
+    // which loses nothing when the black Σ0 depends on red energies only
+    // (two-colouring phonons alone) or when Σ0 starts from zero. A warm
+    // start with dephasing or the Hermitian part would lose its black rows,
+    // so its first iteration solves every energy from the same Σ0 instead.
+    let black_needs_black = !scat.dephasing_ev2.iter().all(|&d| d == 0.0)
+        || report.hermitian_part
+        || !colouring.is_some_and(|(_, two)| two);
+    let mut last: Option<Pass> = match colour {
+        Some(_) if warm.is_none() || !black_needs_black => Some(Pass::zeros(problem)),
+        _ => None,
+    };
     loop {
-        let p = pass(problem, leads, &x, false)?;
+        let p = match (colour, last.take()) {
+            (Some(w), Some(mut p)) => {
+                let red = move |k: usize| (k / w).is_multiple_of(2);
+                pass_rows(problem, leads, &x, false, red, &mut p)?;
+                let fb = scat.self_energy(&p.green, ne, hilbert.as_ref());
+                if let Some((k, site, part)) = first_non_finite(&fb) {
+                    return Err(SolveError::SelfEnergyNotFinite {
+                        iteration: report.iterations + 1,
+                        energy_ev: problem.grid.energy(k),
+                        cell: site / problem.device.orbitals.max(1),
+                        part,
+                    });
+                }
+                copy_rows(&fb, &mut x, |k| !red(k));
+                drop(fb);
+                pass_rows(problem, leads, &x, false, |k| !red(k), &mut p)?;
+                p
+            }
+            _ => pass(problem, leads, &x, false)?,
+        };
         let (il, ir) = terminal_currents(problem, &p.flows);
         let fx = scat.self_energy(&p.green, ne, hilbert.as_ref());
         // A non-finite Σ0 would poison the next pass (or, with finite but
@@ -516,5 +642,26 @@ pub fn solve_with_leads(
                 report,
             });
         }
+        last = Some(p);
     }
+}
+
+/// Copy the energy rows `k` of `src` with `rows(k)` true into `dst`.
+fn copy_rows(
+    src: &ScatteringSelfEnergy,
+    dst: &mut ScatteringSelfEnergy,
+    rows: impl Fn(usize) -> bool + Sync,
+) {
+    let ns = src.sites.max(1);
+    dst.retarded
+        .par_chunks_mut(ns)
+        .zip(dst.inscatter.par_chunks_mut(ns))
+        .zip(src.retarded.par_chunks(ns))
+        .zip(src.inscatter.par_chunks(ns))
+        .enumerate()
+        .filter(|(k, _)| rows(*k))
+        .for_each(|(_, (((dr, di), sr), si))| {
+            dr.copy_from_slice(sr);
+            di.copy_from_slice(si);
+        });
 }
