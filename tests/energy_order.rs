@@ -136,8 +136,8 @@ fn both_orders(p: &Problem, mixing: Mixing, warm: bool) -> (usize, usize) {
 fn red_black_reaches_the_same_answer_in_fewer_iterations() {
     // One 36 meV mode. The simultaneous iteration's Jacobian has eigenvalue
     // pairs ±λ; red-black ordering squares them (D. M. Young, Iterative
-    // Solution of Large Linear Systems, 1971, ch. 5: for consistently
-    // ordered systems the Gauss–Seidel rate is the square of the Jacobi
+    // Solution of Large Linear Systems, Academic Press, 1971: for
+    // consistently ordered systems the Gauss–Seidel rate is the square of the Jacobi
     // rate), so plain iteration needs about half the steps. 0.7 leaves room
     // for the first steps, where the rate has not settled.
     let p = chain_with_modes(&[0.036], 0.0);

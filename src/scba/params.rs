@@ -41,7 +41,8 @@ impl Default for Mixing {
 /// iteration costs the same single pass over the grid as the simultaneous
 /// order, but carries the phonon coupling twice: for this coupling pattern
 /// the Jacobian's eigenvalues square (D. M. Young, Iterative Solution of
-/// Large Linear Systems, 1971, ch. 5, for consistently ordered systems).
+/// Large Linear Systems, Academic Press, 1971: for consistently ordered
+/// systems Gauss–Seidel eigenvalues are the squares of the Jacobi ones).
 /// The fixed point, and so the converged answer, is the same.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "kebab-case")]
