@@ -684,6 +684,19 @@ impl Resolved {
             "solver      tolerance {:e}, at most {} iterations, {mix}, current floor {:e} A",
             self.scba.tolerance, self.scba.max_iterations, self.scba.current_floor_a
         );
+        if !p.scattering.is_coherent() {
+            let order = match crate::scba::red_black_colouring(p, self.scba.energy_order) {
+                Some((w, true)) => {
+                    format!("red-black in bands of {w} grid steps (phonons link opposite colours)")
+                }
+                Some((w, false)) => format!(
+                    "red-black in bands of {w} grid steps (requested; some phonons link \
+                     equal colours, so it gains less)"
+                ),
+                None => "simultaneous (all energies from the same Σ0)".to_string(),
+            };
+            let _ = writeln!(s, "order       {order}");
+        }
         let _ = writeln!(s, "spin        g_s = {}", p.spin_degeneracy);
         let split = match self.response_split {
             ResponseSplit::Symmetric => "symmetric",
