@@ -144,8 +144,13 @@ impl SolveError {
     }
 }
 
-/// First (energy index, site, part) where Σ0 is not finite.
-fn first_non_finite(sigma: &ScatteringSelfEnergy) -> Option<(usize, usize, &'static str)> {
+/// Fails with the lowest energy, then the first site, where the rebuilt Σ0
+/// of Born iteration `iteration` is not finite.
+fn ensure_finite(
+    sigma: &ScatteringSelfEnergy,
+    problem: &Problem,
+    iteration: usize,
+) -> Result<(), SolveError> {
     let ns = sigma.sites.max(1);
     let bad_r = sigma
         .retarded
@@ -153,12 +158,17 @@ fn first_non_finite(sigma: &ScatteringSelfEnergy) -> Option<(usize, usize, &'sta
         .position(|z| !(z.re.is_finite() && z.im.is_finite()));
     let bad_in = sigma.inscatter.iter().position(|v| !v.is_finite());
     let (idx, part) = match (bad_r, bad_in) {
-        (None, None) => return None,
+        (None, None) => return Ok(()),
         (Some(r), Some(i)) if i < r => (i, "Σ^in_0"),
         (Some(r), _) => (r, "Σ^r_0"),
         (None, Some(i)) => (i, "Σ^in_0"),
     };
-    Some((idx / ns, idx % ns, part))
+    Err(SolveError::SelfEnergyNotFinite {
+        iteration,
+        energy_ev: problem.grid.energy(idx / ns),
+        cell: (idx % ns) / problem.device.orbitals.max(1),
+        part,
+    })
 }
 
 /// Lead self-energies on every grid energy (they do not change during the
@@ -569,14 +579,7 @@ pub fn solve_with_leads(
                 let red = move |k: usize| (k / w).is_multiple_of(2);
                 pass_rows(problem, leads, &x, false, red, &mut p)?;
                 let fb = scat.self_energy(&p.green, ne, hilbert.as_ref());
-                if let Some((k, site, part)) = first_non_finite(&fb) {
-                    return Err(SolveError::SelfEnergyNotFinite {
-                        iteration: report.iterations + 1,
-                        energy_ev: problem.grid.energy(k),
-                        cell: site / problem.device.orbitals.max(1),
-                        part,
-                    });
-                }
+                ensure_finite(&fb, problem, report.iterations + 1)?;
                 copy_rows(&fb, &mut x, |k| !red(k));
                 drop(fb);
                 pass_rows(problem, leads, &x, false, |k| !red(k), &mut p)?;
@@ -588,14 +591,7 @@ pub fn solve_with_leads(
         let fx = scat.self_energy(&p.green, ne, hilbert.as_ref());
         // A non-finite Σ0 would poison the next pass (or, with finite but
         // huge values, the mixer); stop here and say where it appeared.
-        if let Some((k, site, part)) = first_non_finite(&fx) {
-            return Err(SolveError::SelfEnergyNotFinite {
-                iteration: report.iterations + 1,
-                energy_ev: problem.grid.energy(k),
-                cell: site / problem.device.orbitals.max(1),
-                part,
-            });
-        }
+        ensure_finite(&fx, problem, report.iterations + 1)?;
         let residual = relative_change(&x, &fx);
         if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
             return Err(SolveError::Diverged {
