@@ -18,62 +18,35 @@ use std::collections::VecDeque;
 
 /// Mixing state across Born iterations.
 ///
-/// Memory: with L = 3·E·N·b mixed numbers and depth m, the Anderson state
-/// holds the last input and residual plus m differences ΔX and m
-/// differences ΔR: (2m + 2)·L f64, i.e. (2m + 2)·24 bytes per energy and
-/// orbital site; one more residual vector is reused for the current step.
+/// Internally a Σ0 is a vector of L = 3·E·N·b numbers, the three parts of
+/// each orbital site side by side (Re Σ^r_0, Im Σ^r_0, Σ^in_0).
+///
+/// Memory: the Anderson state holds the last input x and residual r, and
+/// for each of the m stored steps the residual difference ΔR_j and
+/// U_j = ΔX_j + β ΔR_j, plus one buffer for the next residual:
+/// (2m + 3)·L f64, i.e. (2m + 3)·24 bytes per energy and orbital site.
 /// Linear mixing keeps nothing.
+///
+/// Cost: each iteration reads and writes these vectors in two fused
+/// passes (residual, new differences and every inner product in the first;
+/// the update in the second), in parallel over fixed chunks whose partial
+/// sums are added in order, so any thread count gives the same numbers.
 pub struct Mixer {
     kind: Mixing,
-    /// Last input x_{k−1} and residual r_{k−1}, flat.
+    /// Last input x_{k−1} and residual r_{k−1}.
     prev: Option<(Vec<f64>, Vec<f64>)>,
-    /// ΔX_j = x_{j+1} − x_j and ΔR_j, oldest first.
-    dx: VecDeque<Vec<f64>>,
+    /// ΔR_j and U_j of the stored steps, oldest first.
     dr: VecDeque<Vec<f64>>,
-    /// Current residual r_k (reused buffer).
-    r: Vec<f64>,
+    u: VecDeque<Vec<f64>>,
+    /// Gram[i][j] = ΔR_i·ΔR_j of the stored steps (same order).
+    gram: VecDeque<VecDeque<f64>>,
+    /// Buffers no longer in use, reused before allocating.
+    spare: Vec<Vec<f64>>,
     last_norm: f64,
-    /// Identity of each stored ΔR (for the Gram cache), oldest first.
-    ids: VecDeque<u64>,
-    next_id: u64,
-    /// ΔR_i·ΔR_j of stored differences, keyed by (older id, newer id): each
-    /// iteration adds one difference, so only its products are new.
-    gram: std::collections::HashMap<(u64, u64), f64>,
 }
 
-/// The mixed vector (Re Σ^r_0, Im Σ^r_0, Σ^in_0) element `i` of `s`.
-#[inline]
-fn get(s: &ScatteringSelfEnergy, i: usize) -> f64 {
-    let n = s.inscatter.len();
-    match i / n {
-        0 => s.retarded[i].re,
-        1 => s.retarded[i - n].im,
-        _ => s.inscatter[i - 2 * n],
-    }
-}
-
-fn flatten_into(s: &ScatteringSelfEnergy, v: &mut Vec<f64>) {
-    v.clear();
-    v.extend(s.retarded.iter().map(|z| z.re));
-    v.extend(s.retarded.iter().map(|z| z.im));
-    v.extend_from_slice(&s.inscatter);
-}
-
-/// Dot product summed in fixed chunks (in parallel), then the chunk sums in
-/// order: the same number for any thread count.
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    use rayon::prelude::*;
-    const CHUNK: usize = 1 << 14;
-    if a.len() <= CHUNK {
-        return a.iter().zip(b).map(|(x, y)| x * y).sum();
-    }
-    let parts: Vec<f64> = a
-        .par_chunks(CHUNK)
-        .zip(b.par_chunks(CHUNK))
-        .map(|(x, y)| x.iter().zip(y).map(|(p, q)| p * q).sum())
-        .collect();
-    parts.iter().sum()
-}
+/// Orbital sites per parallel chunk (three numbers each).
+const CHUNK_SITES: usize = 1 << 12;
 
 impl Mixer {
     /// A fresh mixer.
@@ -81,14 +54,18 @@ impl Mixer {
         Self {
             kind,
             prev: None,
-            dx: VecDeque::new(),
             dr: VecDeque::new(),
-            r: Vec::new(),
+            u: VecDeque::new(),
+            gram: VecDeque::new(),
+            spare: Vec::new(),
             last_norm: f64::INFINITY,
-            ids: VecDeque::new(),
-            next_id: 0,
-            gram: std::collections::HashMap::new(),
         }
+    }
+
+    fn buffer(&mut self, len: usize) -> Vec<f64> {
+        let mut v = self.spare.pop().unwrap_or_default();
+        v.resize(len, 0.0);
+        v
     }
 
     /// Replace `x` by the next input given its image `fx`; returns which
@@ -99,169 +76,172 @@ impl Mixer {
         x: &mut ScatteringSelfEnergy,
         fx: &ScatteringSelfEnergy,
     ) -> &'static str {
-        let n = x.inscatter.len();
+        use rayon::prelude::*;
         let (depth, beta) = match self.kind {
             Mixing::Linear { factor } => {
-                for i in 0..n {
-                    let xi = x.retarded[i];
-                    x.retarded[i] = xi + (fx.retarded[i] - xi) * factor;
-                    let xi = x.inscatter[i];
-                    x.inscatter[i] = xi + factor * (fx.inscatter[i] - xi);
-                }
+                x.retarded
+                    .par_iter_mut()
+                    .zip(x.inscatter.par_iter_mut())
+                    .zip(fx.retarded.par_iter().zip(&fx.inscatter))
+                    .for_each(|((r, i), (fr, fi))| {
+                        *r += (fr - *r) * factor;
+                        *i += factor * (fi - *i);
+                    });
                 return "linear";
             }
             Mixing::Anderson { depth, damping } => (depth, damping),
         };
-        let len = 3 * n;
-        let mut r = std::mem::take(&mut self.r);
-        r.clear();
-        r.extend(
-            fx.retarded
-                .iter()
-                .zip(&x.retarded)
-                .map(|(f, v)| f.re - v.re),
-        );
-        r.extend(
-            fx.retarded
-                .iter()
-                .zip(&x.retarded)
-                .map(|(f, v)| f.im - v.im),
-        );
-        r.extend(fx.inscatter.iter().zip(&x.inscatter).map(|(f, v)| f - v));
-        debug_assert_eq!(r.len(), len);
-        let norm = dot(&r, &r).sqrt();
+        let len = 3 * x.inscatter.len();
+        let mut r = self.buffer(len);
+        let mut prev = self.prev.take();
+        let old = if prev.is_some() { self.dr.len() } else { 0 };
+        // Pass 1, per site chunk: r = F(x) − x; with a previous step also
+        // ΔR_new = r − r_prev (in r_prev's buffer) and U_new = x − x_prev +
+        // β ΔR_new (in x_prev's buffer). Sums: ‖r‖², ΔR_new·ΔR_new,
+        // ΔR_new·r, then ΔR_j·ΔR_new and ΔR_j·r for every stored j.
+        let width = 3 + 2 * old;
+        let sums = {
+            let dr = &self.dr;
+            let xr = &*x;
+            let cs = 3 * CHUNK_SITES;
+            let body = |c: usize, rc: &mut [f64], pair: Option<(&mut [f64], &mut [f64])>| {
+                let mut acc = vec![0.0; width];
+                let first = c * CHUNK_SITES;
+                let sites = first..first + rc.len() / 3;
+                for ((t, xs), fs) in rc
+                    .chunks_exact_mut(3)
+                    .zip(site_values(xr, sites.clone()))
+                    .zip(site_values(fx, sites.clone()))
+                {
+                    for p in 0..3 {
+                        t[p] = fs[p] - xs[p];
+                    }
+                }
+                acc[0] = dot(rc, rc);
+                if let Some((xp, rp)) = pair {
+                    for (t, xs) in xp.chunks_exact_mut(3).zip(site_values(xr, sites)) {
+                        for p in 0..3 {
+                            t[p] = xs[p] - t[p];
+                        }
+                    }
+                    for ((d, u), ri) in rp.iter_mut().zip(xp.iter_mut()).zip(rc.iter()) {
+                        *d = ri - *d;
+                        *u += beta * *d;
+                    }
+                    let (dd, dr_) = dot2(rp, rp, rc);
+                    acc[1] = dd;
+                    acc[2] = dr_;
+                    let g = c * cs..c * cs + rc.len();
+                    for (j, drj) in dr.iter().enumerate() {
+                        let (a, b) = dot2(&drj[g.clone()], rp, rc);
+                        acc[3 + 2 * j] = a;
+                        acc[4 + 2 * j] = b;
+                    }
+                }
+                acc
+            };
+            let parts: Vec<Vec<f64>> = match prev.as_mut() {
+                Some((xp, rp)) => r
+                    .par_chunks_mut(cs)
+                    .zip(xp.par_chunks_mut(cs).zip(rp.par_chunks_mut(cs)))
+                    .enumerate()
+                    .map(|(c, (rc, (xc, pc)))| body(c, rc, Some((xc, pc))))
+                    .collect(),
+                None => r
+                    .par_chunks_mut(cs)
+                    .enumerate()
+                    .map(|(c, rc)| body(c, rc, None))
+                    .collect(),
+            };
+            let mut tot = vec![0.0; width];
+            for part in &parts {
+                for (t, v) in tot.iter_mut().zip(part) {
+                    *t += v;
+                }
+            }
+            tot
+        };
+        let norm = sums[0].sqrt();
         let grew = norm > self.last_norm;
         self.last_norm = norm;
+        // ΔR_j·r for the steps kept for this update.
+        let mut rhs: Vec<f64> = (0..old).map(|j| sums[4 + 2 * j]).collect();
         if grew {
-            self.dx.clear();
-            self.dr.clear();
-            self.ids.clear();
+            // Drop the whole history, the step just formed included.
+            self.spare.extend(self.dr.drain(..));
+            self.spare.extend(self.u.drain(..));
             self.gram.clear();
-        } else if let Some((xp, rp)) = self.prev.as_ref()
-            && depth > 0
-        {
-            // Reuse the oldest difference buffers once the history is full.
-            let (mut dxv, mut drv) = if self.dx.len() >= depth {
-                let gone = self.ids.pop_front().expect("non-empty");
-                self.gram.retain(|&(a, _), _| a != gone);
-                (
-                    self.dx.pop_front().expect("non-empty"),
-                    self.dr.pop_front().expect("non-empty"),
-                )
+            rhs.clear();
+            if let Some((xp, rp)) = prev.take() {
+                self.spare.push(xp);
+                self.spare.push(rp);
+            }
+        } else if let Some((u_new, dr_new)) = prev.take() {
+            if depth > 0 {
+                for (j, row) in self.gram.iter_mut().enumerate() {
+                    row.push_back(sums[3 + 2 * j]);
+                }
+                let mut row: VecDeque<f64> = (0..old).map(|j| sums[3 + 2 * j]).collect();
+                row.push_back(sums[1]);
+                self.gram.push_back(row);
+                self.dr.push_back(dr_new);
+                self.u.push_back(u_new);
+                rhs.push(sums[2]);
+                if self.dr.len() > depth {
+                    self.spare.push(self.dr.pop_front().expect("non-empty"));
+                    self.spare.push(self.u.pop_front().expect("non-empty"));
+                    self.gram.pop_front();
+                    for row in &mut self.gram {
+                        row.pop_front();
+                    }
+                    rhs.remove(0);
+                }
             } else {
-                (Vec::with_capacity(len), Vec::with_capacity(len))
-            };
-            dxv.clear();
-            drv.clear();
-            dxv.extend((0..len).map(|i| get(x, i) - xp[i]));
-            drv.extend(r.iter().zip(rp).map(|(a, b)| a - b));
-            self.dx.push_back(dxv);
-            self.dr.push_back(drv);
-            self.ids.push_back(self.next_id);
-            self.next_id += 1;
+                self.spare.push(u_new);
+                self.spare.push(dr_new);
+            }
         }
-        // Least squares min ‖r − ΔR γ‖ by the normal equations with a
-        // Cholesky factorisation that drops columns whose pivot falls below
-        // 1e-14 of their squared norm (numerically dependent differences).
         let m = self.dr.len();
-        let mut gamma = vec![0.0; m];
-        if m > 0 {
-            let mut a = vec![vec![0.0; m]; m];
-            for i in 0..m {
-                for j in 0..=i {
-                    let key = (self.ids[j], self.ids[i]);
-                    let v = match self.gram.get(&key) {
-                        Some(&v) => v,
-                        None => {
-                            let v = dot(&self.dr[i], &self.dr[j]);
-                            self.gram.insert(key, v);
-                            v
-                        }
-                    };
-                    a[i][j] = v;
-                    a[j][i] = v;
-                }
-            }
-            let rhs: Vec<f64> = self.dr.iter().map(|d| dot(d, &r)).collect();
-            let mut l = vec![vec![0.0; m]; m];
-            let mut kept = vec![false; m];
-            for j in 0..m {
-                let mut d = a[j][j];
-                for k in 0..j {
-                    if kept[k] {
-                        d -= l[j][k] * l[j][k];
-                    }
-                }
-                if d <= 1e-14 * a[j][j] || d <= 0.0 {
-                    continue;
-                }
-                kept[j] = true;
-                let dj = d.sqrt();
-                l[j][j] = dj;
-                for i in j + 1..m {
-                    let mut s = a[i][j];
-                    for k in 0..j {
-                        if kept[k] {
-                            s -= l[i][k] * l[j][k];
-                        }
-                    }
-                    l[i][j] = s / dj;
-                }
-            }
-            let mut y = vec![0.0; m];
-            for i in 0..m {
-                if kept[i] {
-                    let mut s = rhs[i];
-                    for k in 0..i {
-                        if kept[k] {
-                            s -= l[i][k] * y[k];
-                        }
-                    }
-                    y[i] = s / l[i][i];
-                }
-            }
-            for i in (0..m).rev() {
-                if kept[i] {
-                    let mut s = y[i];
-                    for k in i + 1..m {
-                        if kept[k] {
-                            s -= l[k][i] * gamma[k];
-                        }
-                    }
-                    gamma[i] = s / l[i][i];
-                }
-            }
-        }
-        // Remember x_k and r_k before x is overwritten.
-        let (mut xp, rp) = self
-            .prev
-            .take()
-            .unwrap_or_else(|| (Vec::with_capacity(len), Vec::new()));
-        flatten_into(x, &mut xp);
+        let gamma = least_squares(&self.gram, &rhs);
+        // Pass 2: x_{k+1} = x_k + β r_k − Σ_j γ_j U_j, keeping x_k.
         let step = if m == 0 && grew { 0.5 * beta } else { beta };
-        // x_{k+1} = x_k + β r_k − Σ_j γ_j (ΔX_j + β ΔR_j), per element.
-        let next = |i: usize| {
-            let mut v = xp[i] + step * r[i];
-            for j in 0..m {
-                if gamma[j] != 0.0 {
-                    v -= gamma[j] * (self.dx[j][i] + beta * self.dr[j][i]);
-                }
-            }
-            v
-        };
+        let mut keep = self.buffer(len);
         {
-            use rayon::prelude::*;
+            let u = &self.u;
+            let r = &r;
+            let gamma = &gamma;
             x.retarded
-                .par_iter_mut()
-                .zip(x.inscatter.par_iter_mut())
+                .par_chunks_mut(CHUNK_SITES)
+                .zip(x.inscatter.par_chunks_mut(CHUNK_SITES))
+                .zip(keep.par_chunks_mut(3 * CHUNK_SITES))
                 .enumerate()
-                .for_each(|(i, (re, inn))| {
-                    *re = C64::new(next(i), next(n + i));
-                    *inn = next(2 * n + i);
+                .for_each(|(c, ((xr, xi), kc))| {
+                    let g = 3 * c * CHUNK_SITES..3 * c * CHUNK_SITES + kc.len();
+                    for ((t, zr), zi) in kc.chunks_exact_mut(3).zip(xr.iter()).zip(xi.iter()) {
+                        t[0] = zr.re;
+                        t[1] = zr.im;
+                        t[2] = *zi;
+                    }
+                    let mut next: Vec<f64> = kc
+                        .iter()
+                        .zip(&r[g.clone()])
+                        .map(|(x, r)| x + step * r)
+                        .collect();
+                    for (uj, &gj) in u.iter().zip(gamma) {
+                        if gj != 0.0 {
+                            for (v, w) in next.iter_mut().zip(&uj[g.clone()]) {
+                                *v -= gj * w;
+                            }
+                        }
+                    }
+                    for ((t, zr), zi) in next.chunks_exact(3).zip(xr.iter_mut()).zip(xi.iter_mut())
+                    {
+                        *zr = C64::new(t[0], t[1]);
+                        *zi = t[2];
+                    }
                 });
         }
-        self.prev = Some((xp, r));
-        self.r = rp;
+        self.prev = Some((keep, r));
         if m > 0 {
             "anderson"
         } else if grew {
@@ -270,6 +250,104 @@ impl Mixer {
             "linear"
         }
     }
+}
+
+/// (Re Σ^r_0, Im Σ^r_0, Σ^in_0) of the orbital sites `sites` of `s`.
+fn site_values(
+    s: &ScatteringSelfEnergy,
+    sites: std::ops::Range<usize>,
+) -> impl Iterator<Item = [f64; 3]> + '_ {
+    s.retarded[sites.clone()]
+        .iter()
+        .zip(&s.inscatter[sites])
+        .map(|(r, i)| [r.re, r.im, *i])
+}
+
+/// a·b with four partial sums (so that the loop vectorises), added in a
+/// fixed order.
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    dot2(a, b, b).0
+}
+
+/// (a·b, a·c) in one pass over a, with four partial sums each.
+fn dot2(a: &[f64], b: &[f64], c: &[f64]) -> (f64, f64) {
+    let mut s = [0.0; 4];
+    let mut t = [0.0; 4];
+    let n = a.len() / 4 * 4;
+    for ((x, y), z) in a[..n]
+        .chunks_exact(4)
+        .zip(b[..n].chunks_exact(4))
+        .zip(c[..n].chunks_exact(4))
+    {
+        for l in 0..4 {
+            s[l] += x[l] * y[l];
+            t[l] += x[l] * z[l];
+        }
+    }
+    let mut ab = (s[0] + s[1]) + (s[2] + s[3]);
+    let mut ac = (t[0] + t[1]) + (t[2] + t[3]);
+    for i in n..a.len() {
+        ab += a[i] * b[i];
+        ac += a[i] * c[i];
+    }
+    (ab, ac)
+}
+
+/// Least squares min ‖r − ΔR γ‖ from the Gram matrix and ΔR·r, by a
+/// Cholesky factorisation that drops columns whose pivot falls below 1e-14
+/// of their squared norm (numerically dependent differences).
+fn least_squares(gram: &VecDeque<VecDeque<f64>>, rhs: &[f64]) -> Vec<f64> {
+    let m = rhs.len();
+    let mut gamma = vec![0.0; m];
+    let mut l = vec![vec![0.0; m]; m];
+    let mut kept = vec![false; m];
+    for j in 0..m {
+        let mut d = gram[j][j];
+        for k in 0..j {
+            if kept[k] {
+                d -= l[j][k] * l[j][k];
+            }
+        }
+        if d <= 1e-14 * gram[j][j] || d <= 0.0 {
+            continue;
+        }
+        kept[j] = true;
+        let dj = d.sqrt();
+        l[j][j] = dj;
+        for i in j + 1..m {
+            let mut s = gram[i][j];
+            for k in 0..j {
+                if kept[k] {
+                    s -= l[i][k] * l[j][k];
+                }
+            }
+            l[i][j] = s / dj;
+        }
+    }
+    let mut y = vec![0.0; m];
+    for i in 0..m {
+        if kept[i] {
+            let mut s = rhs[i];
+            for k in 0..i {
+                if kept[k] {
+                    s -= l[i][k] * y[k];
+                }
+            }
+            y[i] = s / l[i][i];
+        }
+    }
+    for i in (0..m).rev() {
+        if kept[i] {
+            let mut s = y[i];
+            for k in i + 1..m {
+                if kept[k] {
+                    s -= l[k][i] * gamma[k];
+                }
+            }
+            gamma[i] = s / l[i][i];
+        }
+    }
+    gamma
 }
 
 #[cfg(test)]
@@ -292,8 +370,9 @@ mod tests {
     }
 
     fn flat(s: &ScatteringSelfEnergy) -> Vec<f64> {
-        let mut v = Vec::new();
-        flatten_into(s, &mut v);
+        let mut v: Vec<f64> = s.retarded.iter().map(|z| z.re).collect();
+        v.extend(s.retarded.iter().map(|z| z.im));
+        v.extend_from_slice(&s.inscatter);
         v
     }
 
