@@ -143,20 +143,37 @@ impl Scattering {
         energies: usize,
         hilbert: Option<&HilbertTransform>,
     ) -> ScatteringSelfEnergy {
+        let mut out = ScatteringSelfEnergy::zeros(0, green.sites);
+        self.self_energy_into(green, energies, hilbert, &mut out);
+        out
+    }
+
+    /// [`Scattering::self_energy`] written into `out`, whose storage is
+    /// reused (the Born loop rebuilds Σ0 every iteration).
+    pub fn self_energy_into(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        hilbert: Option<&HilbertTransform>,
+        out: &mut ScatteringSelfEnergy,
+    ) {
         use rayon::prelude::*;
         let ns = green.sites;
-        let mut out = ScatteringSelfEnergy::zeros(energies, ns);
-        // Phonon broadening per (k, s), accumulated separately so that its
-        // Hermitian part can be added by the Hilbert transform. Rows (one
-        // energy each) are independent: built in parallel, each element
-        // summing the modes in the same order whatever the thread count.
-        let mut gamma_ph = vec![0.0; energies * ns];
+        out.sites = ns;
+        out.retarded.resize(energies * ns, C64::new(0.0, 0.0));
+        out.inscatter.resize(energies * ns, 0.0);
+        // Rows (one energy each) are independent: built in parallel, each
+        // element summing the modes in the same order whatever the thread
+        // count. The phonon broadening Γ goes into Im Σ^r = −Γ/2 as it is
+        // summed (halving is exact, so this equals −(Σ Γ_mode)/2).
         let occupations: Vec<f64> = self.phonons.iter().map(|m| m.occupation()).collect();
         out.inscatter
             .par_chunks_mut(ns.max(1))
-            .zip(gamma_ph.par_chunks_mut(ns.max(1)))
+            .zip(out.retarded.par_chunks_mut(ns.max(1)))
             .enumerate()
-            .for_each(|(k, (sin_row, gamma_row))| {
+            .for_each(|(k, (sin_row, ret_row))| {
+                sin_row.fill(0.0);
+                ret_row.fill(C64::new(0.0, 0.0));
                 for (mode, &n) in self.phonons.iter().zip(&occupations) {
                     let w = mode.steps;
                     for s in 0..ns {
@@ -178,16 +195,13 @@ impl Scattering {
                             sout += (n + 1.0) * green.empty(down);
                         }
                         sin_row[s] += d * sin;
-                        gamma_row[s] += d * (sin + sout);
+                        ret_row[s].im -= 0.5 * (d * (sin + sout));
                     }
                 }
             });
-        out.retarded
-            .par_iter_mut()
-            .zip(gamma_ph.par_iter())
-            .for_each(|(r, g)| *r = C64::new(0.0, -0.5 * g));
         if self.hermitian_part && !self.phonons.is_empty() {
             let h = hilbert.expect("Hilbert transform plan when the Hermitian part is on");
+            let gamma_ph: Vec<f64> = out.retarded.par_iter().map(|r| -2.0 * r.im).collect();
             let principal = h.apply_columns(&gamma_ph, energies, ns);
             out.retarded
                 .par_iter_mut()
@@ -207,6 +221,5 @@ impl Scattering {
                     }
                 });
         }
-        out
     }
 }

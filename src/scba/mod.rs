@@ -569,26 +569,27 @@ pub fn solve_with_leads(
     let black_needs_black = !scat.dephasing_ev2.iter().all(|&d| d == 0.0)
         || report.hermitian_part
         || !colouring.is_some_and(|(_, two)| two);
-    let mut last: Option<Pass> = match colour {
-        Some(_) if warm.is_none() || !black_needs_black => Some(Pass::zeros(problem)),
-        _ => None,
-    };
+    // The Green's functions of the pass and the image F(Σ0) are rebuilt in
+    // place every iteration. `black_ready`: the black rows of `p` hold G
+    // from an earlier pass (or may count as zero, see above).
+    let mut p = Pass::zeros(problem);
+    let mut fx = ScatteringSelfEnergy::zeros(ne, ns);
+    let mut black_ready = warm.is_none() || !black_needs_black;
     loop {
-        let p = match (colour, last.take()) {
-            (Some(w), Some(mut p)) => {
+        match colour {
+            Some(w) if black_ready => {
                 let red = move |k: usize| (k / w).is_multiple_of(2);
                 pass_rows(problem, leads, &x, false, red, &mut p)?;
-                let fb = scat.self_energy(&p.green, ne, hilbert.as_ref());
-                ensure_finite(&fb, problem, report.iterations + 1)?;
-                copy_rows(&fb, &mut x, |k| !red(k));
-                drop(fb);
+                scat.self_energy_into(&p.green, ne, hilbert.as_ref(), &mut fx);
+                ensure_finite(&fx, problem, report.iterations + 1)?;
+                copy_rows(&fx, &mut x, |k| !red(k));
                 pass_rows(problem, leads, &x, false, |k| !red(k), &mut p)?;
-                p
             }
-            _ => pass(problem, leads, &x, false)?,
-        };
+            _ => pass_rows(problem, leads, &x, false, |_| true, &mut p)?,
+        }
+        black_ready = true;
         let (il, ir) = terminal_currents(problem, &p.flows);
-        let fx = scat.self_energy(&p.green, ne, hilbert.as_ref());
+        scat.self_energy_into(&p.green, ne, hilbert.as_ref(), &mut fx);
         // A non-finite Σ0 would poison the next pass (or, with finite but
         // huge values, the mixer); stop here and say where it appeared.
         ensure_finite(&fx, problem, report.iterations + 1)?;
@@ -638,7 +639,6 @@ pub fn solve_with_leads(
                 report,
             });
         }
-        last = Some(p);
     }
 }
 
