@@ -112,11 +112,20 @@ fn memory_estimate_follows_its_formula() {
     let e = r.problem.grid.count as u64;
     let n = 40u64;
     let t = rayon::current_num_threads() as u64;
-    // b = 1, Anderson depth 6 (A = 2·6 + 3), no Hermitian part (src/scba
-    // module doc): E·N·(72 + 24·A + 8) + 8·E·(N − 1) + 2·E·(16 + 64) + T·24·N
+    // b = 1, Anderson depth 6 (A = 2·6 + 3), no Hermitian part and no
+    // dephasing, so P = 2 numbers mixed per site (src/scba module doc):
+    // E·N·(72 + 8·2·A) + 8·E·(N − 1) + 2·E·(16 + 64) + T·24·N
+    let fixed = 8 * e * (n - 1) + 2 * e * 80 + t * 24 * n;
+    assert_eq!(r.memory_estimate_bytes(), e * n * (72 + 16 * 15) + fixed);
+    // With the Hermitian part Re Σ^r is mixed too (P = 3), and the rebuild
+    // holds the broadening and its transform (16 per site).
+    let r = resolved(
+        "[[phonon]]\nenergy_ev = 0.03\ncoupling_ev2 = 1e-3\n[solver]\nhermitian_part = \"include\"\n",
+    );
+    assert_eq!(r.problem.grid.count as u64, e);
     assert_eq!(
         r.memory_estimate_bytes(),
-        e * n * (72 + 24 * 15 + 8) + 8 * e * (n - 1) + 2 * e * 80 + t * 24 * n
+        e * n * (72 + 24 * 15 + 16) + fixed
     );
 }
 

@@ -542,10 +542,12 @@ impl Resolved {
     /// E energies, N cells, b orbitals per cell, S = N·b, Anderson depth m
     /// and T threads,
     ///
-    /// bytes = E·S·(72 + 24·A + 8 + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+    /// bytes = E·S·(72 + 8·P·A + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
     ///
-    /// with A = 2m + 3 for Anderson mixing (0 for linear), h = 1 when the
-    /// Hermitian part of the phonon self-energy is on, and w the RGF
+    /// with A = 2m + 3 for Anderson mixing (0 for linear), P = 3 numbers
+    /// mixed per site with dephasing or the Hermitian part and 2 otherwise,
+    /// h = 1 when the Hermitian part of the phonon self-energy is on, and
+    /// w the RGF
     /// workspace of one thread (48·N·b² + 128·b² for b > 1, 24·N for b = 1).
     /// A coherent device needs one pass only: E·S·24 + 8·E·(N − 1) plus the
     /// leads and workspaces.
@@ -570,7 +572,9 @@ impl Resolved {
             Mixing::Linear { .. } => 0,
         };
         let h = u64::from(p.scattering.hermitian_part && !p.scattering.phonons.is_empty());
-        e * s * (72 + 24 * a + 8 + 16 * h) + fixed
+        let real_part = h == 1 || p.scattering.dephasing_ev2.iter().any(|&d| d != 0.0);
+        let parts = if real_part { 3 } else { 2 };
+        e * s * (72 + 8 * parts * a + 16 * h) + fixed
     }
 
     /// The resolved case as text for people (what `qheat check` prints).

@@ -33,6 +33,9 @@ use std::collections::VecDeque;
 /// sums are added in order, so any thread count gives the same numbers.
 pub struct Mixer {
     kind: Mixing,
+    /// Numbers mixed per orbital site: 3, or 2 when Re Σ^r_0 is zero for
+    /// every input (no Hermitian part, no dephasing) and is left out.
+    parts: usize,
     /// Last input x_{k−1} and residual r_{k−1}.
     prev: Option<(Vec<f64>, Vec<f64>)>,
     /// ΔR_j and U_j of the stored steps, oldest first.
@@ -51,8 +54,16 @@ const CHUNK_SITES: usize = 1 << 12;
 impl Mixer {
     /// A fresh mixer.
     pub fn new(kind: Mixing) -> Self {
+        Self::with_real_part(kind, true)
+    }
+
+    /// A fresh mixer that mixes Re Σ^r_0 only when `real_part` is true;
+    /// otherwise the next input takes Re Σ^r_0 from the image F(x), which
+    /// must then be zero everywhere, and a third less memory is streamed.
+    pub fn with_real_part(kind: Mixing, real_part: bool) -> Self {
         Self {
             kind,
+            parts: if real_part { 3 } else { 2 },
             prev: None,
             dr: VecDeque::new(),
             u: VecDeque::new(),
@@ -91,7 +102,8 @@ impl Mixer {
             }
             Mixing::Anderson { depth, damping } => (depth, damping),
         };
-        let len = 3 * x.inscatter.len();
+        let parts = self.parts;
+        let len = parts * x.inscatter.len();
         let mut r = self.buffer(len);
         let mut prev = self.prev.take();
         let old = if prev.is_some() { self.dr.len() } else { 0 };
@@ -103,24 +115,27 @@ impl Mixer {
         let sums = {
             let dr = &self.dr;
             let xr = &*x;
-            let cs = 3 * CHUNK_SITES;
+            let cs = parts * CHUNK_SITES;
             let body = |c: usize, rc: &mut [f64], pair: Option<(&mut [f64], &mut [f64])>| {
                 let mut acc = vec![0.0; width];
                 let first = c * CHUNK_SITES;
-                let sites = first..first + rc.len() / 3;
+                let sites = first..first + rc.len() / parts;
                 for ((t, xs), fs) in rc
-                    .chunks_exact_mut(3)
-                    .zip(site_values(xr, sites.clone()))
-                    .zip(site_values(fx, sites.clone()))
+                    .chunks_exact_mut(parts)
+                    .zip(site_values(xr, sites.clone(), parts))
+                    .zip(site_values(fx, sites.clone(), parts))
                 {
-                    for p in 0..3 {
+                    for p in 0..parts {
                         t[p] = fs[p] - xs[p];
                     }
                 }
                 acc[0] = dot(rc, rc);
                 if let Some((xp, rp)) = pair {
-                    for (t, xs) in xp.chunks_exact_mut(3).zip(site_values(xr, sites)) {
-                        for p in 0..3 {
+                    for (t, xs) in xp
+                        .chunks_exact_mut(parts)
+                        .zip(site_values(xr, sites, parts))
+                    {
+                        for p in 0..parts {
                             t[p] = xs[p] - t[p];
                         }
                     }
@@ -213,14 +228,17 @@ impl Mixer {
             x.retarded
                 .par_chunks_mut(CHUNK_SITES)
                 .zip(x.inscatter.par_chunks_mut(CHUNK_SITES))
-                .zip(keep.par_chunks_mut(3 * CHUNK_SITES))
+                .zip(keep.par_chunks_mut(parts * CHUNK_SITES))
                 .enumerate()
                 .for_each(|(c, ((xr, xi), kc))| {
-                    let g = 3 * c * CHUNK_SITES..3 * c * CHUNK_SITES + kc.len();
-                    for ((t, zr), zi) in kc.chunks_exact_mut(3).zip(xr.iter()).zip(xi.iter()) {
-                        t[0] = zr.re;
-                        t[1] = zr.im;
-                        t[2] = *zi;
+                    let first = c * CHUNK_SITES;
+                    let g = parts * first..parts * first + kc.len();
+                    for ((t, zr), zi) in kc.chunks_exact_mut(parts).zip(xr.iter()).zip(xi.iter()) {
+                        if parts == 3 {
+                            t.copy_from_slice(&[zr.re, zr.im, *zi]);
+                        } else {
+                            t.copy_from_slice(&[zr.im, *zi]);
+                        }
                     }
                     let mut next: Vec<f64> = kc
                         .iter()
@@ -234,10 +252,19 @@ impl Mixer {
                             }
                         }
                     }
-                    for ((t, zr), zi) in next.chunks_exact(3).zip(xr.iter_mut()).zip(xi.iter_mut())
+                    for (s, ((t, zr), zi)) in next
+                        .chunks_exact(parts)
+                        .zip(xr.iter_mut())
+                        .zip(xi.iter_mut())
+                        .enumerate()
                     {
-                        *zr = C64::new(t[0], t[1]);
-                        *zi = t[2];
+                        if parts == 3 {
+                            *zr = C64::new(t[0], t[1]);
+                            *zi = t[2];
+                        } else {
+                            *zr = C64::new(fx.retarded[first + s].re, t[0]);
+                            *zi = t[1];
+                        }
                     }
                 });
         }
@@ -252,15 +279,23 @@ impl Mixer {
     }
 }
 
-/// (Re Σ^r_0, Im Σ^r_0, Σ^in_0) of the orbital sites `sites` of `s`.
+/// The mixed numbers of the orbital sites `sites` of `s`: (Re Σ^r_0,
+/// Im Σ^r_0, Σ^in_0) for 3 parts, (Im Σ^r_0, Σ^in_0, unused) for 2.
 fn site_values(
     s: &ScatteringSelfEnergy,
     sites: std::ops::Range<usize>,
+    parts: usize,
 ) -> impl Iterator<Item = [f64; 3]> + '_ {
     s.retarded[sites.clone()]
         .iter()
         .zip(&s.inscatter[sites])
-        .map(|(r, i)| [r.re, r.im, *i])
+        .map(move |(r, i)| {
+            if parts == 3 {
+                [r.re, r.im, *i]
+            } else {
+                [r.im, *i, 0.0]
+            }
+        })
 }
 
 /// a·b with four partial sums (so that the loop vectorises), added in a
@@ -434,5 +469,53 @@ mod tests {
             linear > 5 * anderson,
             "linear {linear} vs anderson {anderson}"
         );
+    }
+
+    /// With Re Σ^r_0 zero in every image, leaving it out of the mixed
+    /// vector changes nothing but rounding; a non-zero real part of the
+    /// start is replaced by the image's zero.
+    #[test]
+    fn leaving_out_a_zero_real_part_gives_the_same_iterates() {
+        // Sites: 4; F(x) = A x + c on (Im, in), Re part of F always zero.
+        let eig = [0.9, -0.6, 0.3, 0.7, -0.2, 0.5, 0.1, 0.8];
+        let c = [1.0, -2.0, 0.5, 3.0, 0.25, -1.0, 2.0, -0.5];
+        let f = |x: &[f64]| -> Vec<f64> {
+            let mut out = vec![0.0; 12];
+            for i in 0..8 {
+                out[4 + i] = eig[i] * x[4 + i] + c[i];
+            }
+            state(&out)
+                .retarded
+                .iter()
+                .for_each(|z| assert_eq!(z.re, 0.0));
+            out
+        };
+        let kind = Mixing::Anderson {
+            depth: 3,
+            damping: 1.0,
+        };
+        let mut three = Mixer::new(kind);
+        let mut two = Mixer::with_real_part(kind, false);
+        let mut x3 = state(&[0.0; 12]);
+        let mut x2 = state(&[0.0; 12]);
+        for _ in 0..12 {
+            let (f3, f2) = (f(&flat(&x3)), f(&flat(&x2)));
+            let s3 = three.update(&mut x3, &state(&f3));
+            let s2 = two.update(&mut x2, &state(&f2));
+            assert_eq!(s3, s2);
+            for (a, b) in flat(&x3).iter().zip(&flat(&x2)) {
+                assert!((a - b).abs() <= 1e-12 * (1.0 + a.abs()), "{a} vs {b}");
+            }
+        }
+        // A start with a real part (say, warm from a case with dephasing).
+        let mut two = Mixer::with_real_part(kind, false);
+        let mut start = vec![0.0; 12];
+        start[..4].copy_from_slice(&[0.5, -0.25, 1.0, 2.0]);
+        let mut x = state(&start);
+        for _ in 0..3 {
+            let fx = f(&flat(&x));
+            two.update(&mut x, &state(&fx));
+            assert!(flat(&x)[..4].iter().all(|&v| v == 0.0));
+        }
     }
 }

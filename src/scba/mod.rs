@@ -39,16 +39,18 @@
 //! m, the peak of a Born solve is
 //!
 //! ```text
-//! bytes ≈ E·S·(72 + 24·A + 8 + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+//! bytes ≈ E·S·(72 + 8·P·A + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
 //! ```
 //!
 //! - 72 = 3 × 24: the input Σ0, its image F(Σ0) (Σ^r_0 complex + Σ^in_0
 //!   real) and the local G^r, G^n of the pass;
-//! - A = 2m + 3 vectors of (Re Σ^r, Im Σ^r, Σ^in) for Anderson mixing (last
-//!   input and residual, m differences of each, one residual buffer);
-//!   A = 0 for linear mixing, which keeps no history;
-//! - 8 + 16·h: the phonon broadening while Σ0 is rebuilt, plus two columns
-//!   buffers when the Hermitian part (h = 1) is on;
+//! - A = 2m + 3 vectors of P numbers per site for Anderson mixing (last
+//!   input and residual, m residual differences and m update directions,
+//!   one residual buffer); P = 3 (Re Σ^r, Im Σ^r, Σ^in) with dephasing or
+//!   the Hermitian part, P = 2 otherwise, when Re Σ^r is zero and not
+//!   mixed; A = 0 for linear mixing, which keeps no history;
+//! - 16·h: the phonon broadening and its Hilbert transform while Σ0 is
+//!   rebuilt, when the Hermitian part (h = 1) is on;
 //! - 8·E·(N − 1): the bond flows of the pass;
 //! - 2·E·(16·b² + 64): the lead self-energies on the grid;
 //! - w: the per-thread RGF workspace, 48·N·b² + 128·b² bytes for b > 1 and
@@ -550,7 +552,10 @@ pub fn solve_with_leads(
         None => ScatteringSelfEnergy::zeros(ne, ns),
     };
     let hilbert = report.hermitian_part.then(|| HilbertTransform::new(ne));
-    let mut mixer = Mixer::new(params.mixing);
+    // Re Σ^r_0 stays zero unless the Hermitian part or dephasing (whose
+    // Σ^r is D·G^r) puts something there; then it need not be mixed.
+    let has_dephasing = scat.dephasing_ev2.iter().any(|&d| d != 0.0);
+    let mut mixer = Mixer::with_real_part(params.mixing, report.hermitian_part || has_dephasing);
     let mut previous: Option<(f64, f64)> = None;
     let colouring = red_black_colouring(problem, params.energy_order);
     report.energy_order = if colouring.is_some() {
@@ -566,9 +571,8 @@ pub fn solve_with_leads(
     // (two-colouring phonons alone) or when Σ0 starts from zero. A warm
     // start with dephasing or the Hermitian part would lose its black rows,
     // so its first iteration solves every energy from the same Σ0 instead.
-    let black_needs_black = !scat.dephasing_ev2.iter().all(|&d| d == 0.0)
-        || report.hermitian_part
-        || !colouring.is_some_and(|(_, two)| two);
+    let black_needs_black =
+        has_dephasing || report.hermitian_part || !colouring.is_some_and(|(_, two)| two);
     // The Green's functions of the pass and the image F(Σ0) are rebuilt in
     // place every iteration. `black_ready`: the black rows of `p` hold G
     // from an earlier pass (or may count as zero, see above).
