@@ -73,10 +73,17 @@ impl Mixer {
         }
     }
 
+    /// A buffer of `len` numbers whose contents will all be overwritten.
     fn buffer(&mut self, len: usize) -> Vec<f64> {
-        let mut v = self.spare.pop().unwrap_or_default();
-        v.resize(len, 0.0);
-        v
+        match self.spare.pop() {
+            Some(mut v) => {
+                v.resize(len, 0.0);
+                v
+            }
+            // Fresh zeroed memory from the allocator: no separate pass that
+            // writes zeros before the pass that writes the contents.
+            None => vec![0.0; len],
+        }
     }
 
     /// Replace `x` by the next input given its image `fx`; returns which
