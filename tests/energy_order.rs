@@ -113,19 +113,8 @@ fn both_orders(p: &Problem, mixing: Mixing, warm: bool) -> (usize, usize) {
         oa.current_a,
         ob.current_a
     );
-    let pmax = oa
-        .sites
-        .lattice_power_w
-        .iter()
-        .fold(0.0f64, |m, v| m.max(v.abs()));
-    for (x, y) in oa
-        .sites
-        .lattice_power_w
-        .iter()
-        .zip(&ob.sites.lattice_power_w)
-    {
-        assert!((x - y).abs() < 1e-8 * pmax);
-    }
+    let dp = profile_deviation(&ob.sites.lattice_power_w, &oa.sites.lattice_power_w);
+    assert!(dp < 1e-8, "lattice power per cell differs by {dp:e}");
     // The red-black solution is a solution in its own right: its ledger
     // closes as tightly as the simultaneous one's.
     assert!(ob.ledger.worst_relative() < 1e-8, "{:?}", ob.ledger);

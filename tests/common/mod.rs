@@ -144,6 +144,18 @@ pub fn rel(a: f64, b: f64) -> f64 {
     (a - b).abs() / b.abs()
 }
 
+/// Largest |a_i − b_i| relative to the largest |b_i|: profiles along the
+/// device (lattice power per cell) change sign, so entries near zero are
+/// compared on the scale of the whole profile.
+pub fn profile_deviation(a: &[f64], b: &[f64]) -> f64 {
+    assert_eq!(a.len(), b.len());
+    let scale = b.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    a.iter()
+        .zip(b)
+        .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()))
+        / scale
+}
+
 use qheat::scattering::PhononMode;
 
 /// A phonon mode of energy ≈ `energy` snapped to the grid, coupling `d` on
