@@ -2,9 +2,9 @@
 //! Σ0 of cases-demo/peltier-barrier.toml, in both energy orders, and what
 //! they allow a mixer to gain.
 //!
-//! The Jacobian J of Σ0 ↦ F(Σ0) is applied by finite differences (one pass
-//! over the grid per product, two in red-black order where the map is the
-//! whole red-then-black sweep) and its outer eigenvalues are estimated by
+//! The Jacobian J of Σ0 ↦ F(Σ0) (`scba::born_map`, the sweep the solver
+//! runs, red-then-black in red-black order) is applied by finite
+//! differences and its outer eigenvalues are estimated by
 //! 40 Arnoldi steps (Ritz values). Linear mixing with factor 1 contracts the
 //! error by the largest |λ| = ρ per iteration. Any Krylov-type mixer,
 //! Anderson included, cannot beat the best polynomial on the spectrum: on a
@@ -49,8 +49,6 @@ fn main() {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/peltier-barrier.toml");
     let r = Case::load(&path).unwrap().resolve().unwrap();
     let p = &r.problem;
-    let ne = p.grid.count;
-    let ns = p.sites();
     let params = ScbaParams {
         tolerance: 1e-13,
         max_iterations: 500,
@@ -59,27 +57,12 @@ fn main() {
     let fixed = scba::solve(p, &params, None, &mut Silent).unwrap();
     assert!(fixed.report.converged);
     let leads = LeadTable::new(p).unwrap();
-    let hilbert = p
-        .scattering
-        .hermitian_part
-        .then(|| qheat::scattering::HilbertTransform::new(ne));
     println!("case: {}", path.display());
     for order in [EnergyOrder::Simultaneous, EnergyOrder::RedBlack] {
-        let colour = scba::red_black_colouring(p, order).map(|(w, _)| w);
         let map = |v: &[f64]| -> Vec<f64> {
             let mut s = fixed.sigma.clone();
             unflatten(v, &mut s);
-            if let Some(w) = colour {
-                let first = scba::pass(p, &leads, &s, false).unwrap();
-                let fb = p.scattering.self_energy(&first.green, ne, hilbert.as_ref());
-                for k in (0..ne).filter(|k| (k / w) % 2 == 1) {
-                    let rows = k * ns..(k + 1) * ns;
-                    s.retarded[rows.clone()].copy_from_slice(&fb.retarded[rows.clone()]);
-                    s.inscatter[rows.clone()].copy_from_slice(&fb.inscatter[rows]);
-                }
-            }
-            let pass = scba::pass(p, &leads, &s, false).unwrap();
-            flatten(&p.scattering.self_energy(&pass.green, ne, hilbert.as_ref()))
+            flatten(&scba::born_map(p, &leads, &s, order).unwrap().1)
         };
         let x0 = flatten(&fixed.sigma);
         let f0 = map(&x0);

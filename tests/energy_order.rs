@@ -177,3 +177,34 @@ fn the_peltier_demo_converges_in_red_black_order_by_default() {
         .unwrap_err();
     assert!(e.to_string().contains("solver.energy_order"), "{e}");
 }
+
+#[test]
+fn the_born_map_fixes_the_converged_self_energy_in_both_orders() {
+    // scba::born_map is the sweep the solver runs: at a converged Σ0 its
+    // image (and the Σ0 it used) must return Σ0 to about the tolerance; a
+    // Σ0 away from the fixed point must move.
+    let p = chain_with_modes(&[0.036], 0.0);
+    let params = ScbaParams {
+        tolerance: 1e-12,
+        max_iterations: 500,
+        ..ScbaParams::default()
+    };
+    let sol = scba::solve(&p, &params, None, &mut Silent).unwrap();
+    assert!(sol.report.converged);
+    let leads = scba::LeadTable::new(&p).unwrap();
+    for order in [EnergyOrder::Simultaneous, EnergyOrder::RedBlack] {
+        let (used, image) = scba::born_map(&p, &leads, &sol.sigma, order).unwrap();
+        assert!(
+            scba::relative_change(&sol.sigma, &used) < 1e-10,
+            "{order:?}"
+        );
+        assert!(
+            scba::relative_change(&sol.sigma, &image) < 1e-10,
+            "{order:?}"
+        );
+        let mut away = sol.sigma.clone();
+        away.inscatter.iter_mut().for_each(|v| *v *= 1.5);
+        let (_, moved) = scba::born_map(&p, &leads, &away, order).unwrap();
+        assert!(scba::relative_change(&away, &moved) > 1e-3, "{order:?}");
+    }
+}

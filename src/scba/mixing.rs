@@ -308,7 +308,18 @@ fn site_values(
 /// a·b with four partial sums (so that the loop vectorises), added in a
 /// fixed order.
 fn dot(a: &[f64], b: &[f64]) -> f64 {
-    dot2(a, b, b).0
+    let mut s = [0.0; 4];
+    let n = a.len() / 4 * 4;
+    for (x, y) in a[..n].chunks_exact(4).zip(b[..n].chunks_exact(4)) {
+        for l in 0..4 {
+            s[l] += x[l] * y[l];
+        }
+    }
+    let mut ab = (s[0] + s[1]) + (s[2] + s[3]);
+    for i in n..a.len() {
+        ab += a[i] * b[i];
+    }
+    ab
 }
 
 /// (a·b, a·c) in one pass over a, with four partial sums each.

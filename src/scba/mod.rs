@@ -580,23 +580,19 @@ pub fn solve_with_leads(
     let mut fx = ScatteringSelfEnergy::zeros(ne, ns);
     let mut black_ready = warm.is_none() || !black_needs_black;
     loop {
-        match colour {
-            Some(w) if black_ready => {
-                let red = move |k: usize| (k / w).is_multiple_of(2);
-                pass_rows(problem, leads, &x, false, red, &mut p)?;
-                scat.self_energy_into(&p.green, ne, hilbert.as_ref(), &mut fx);
-                ensure_finite(&fx, problem, report.iterations + 1)?;
-                copy_rows(&fx, &mut x, |k| !red(k));
-                pass_rows(problem, leads, &x, false, |k| !red(k), &mut p)?;
-            }
-            _ => pass_rows(problem, leads, &x, false, |_| true, &mut p)?,
-        }
+        let order = colour.filter(|_| black_ready);
+        sweep(
+            problem,
+            leads,
+            hilbert.as_ref(),
+            order,
+            &mut x,
+            &mut p,
+            &mut fx,
+            report.iterations + 1,
+        )?;
         black_ready = true;
         let (il, ir) = terminal_currents(problem, &p.flows);
-        scat.self_energy_into(&p.green, ne, hilbert.as_ref(), &mut fx);
-        // A non-finite Σ0 would poison the next pass (or, with finite but
-        // huge values, the mixer); stop here and say where it appeared.
-        ensure_finite(&fx, problem, report.iterations + 1)?;
         let residual = relative_change(&x, &fx);
         if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
             return Err(SolveError::Diverged {
@@ -644,6 +640,72 @@ pub fn solve_with_leads(
             });
         }
     }
+}
+
+/// One Born iteration's passes: the Green's functions `p` of Σ0 = `x`
+/// and the image F(x) in `fx`. With `red_black = Some(w)` the red energies
+/// are solved first and the black rows of `x` are replaced by Σ0 rebuilt
+/// from every G at hand (the black rows of `p` are taken from the previous
+/// sweep) before the black energies are solved.
+#[allow(clippy::too_many_arguments)]
+fn sweep(
+    problem: &Problem,
+    leads: &LeadTable,
+    hilbert: Option<&HilbertTransform>,
+    red_black: Option<usize>,
+    x: &mut ScatteringSelfEnergy,
+    p: &mut Pass,
+    fx: &mut ScatteringSelfEnergy,
+    iteration: usize,
+) -> Result<(), SolveError> {
+    let scat = &problem.scattering;
+    let ne = problem.grid.count;
+    match red_black {
+        Some(w) => {
+            let red = move |k: usize| (k / w).is_multiple_of(2);
+            pass_rows(problem, leads, x, false, red, p)?;
+            scat.self_energy_into(&p.green, ne, hilbert, fx);
+            ensure_finite(fx, problem, iteration)?;
+            copy_rows(fx, x, |k| !red(k));
+            pass_rows(problem, leads, x, false, |k| !red(k), p)?;
+        }
+        None => pass_rows(problem, leads, x, false, |_| true, p)?,
+    }
+    scat.self_energy_into(&p.green, ne, hilbert, fx);
+    // A non-finite Σ0 would poison the next pass (or, with finite but huge
+    // values, the mixer); stop here and say where it appeared.
+    ensure_finite(fx, problem, iteration)
+}
+
+/// The Born map as the loop applies it in `order`, at Σ0 = `sigma`: the Σ0
+/// actually used (black rows rebuilt in red-black order) and its image
+/// F(Σ0). The black energies' previous Green's functions are those of
+/// `sigma` itself, as in a loop that has settled. For studying the
+/// iteration (e.g. its Jacobian); solves use [`solve`].
+pub fn born_map(
+    problem: &Problem,
+    leads: &LeadTable,
+    sigma: &ScatteringSelfEnergy,
+    order: EnergyOrder,
+) -> Result<(ScatteringSelfEnergy, ScatteringSelfEnergy), SolveError> {
+    let ne = problem.grid.count;
+    let hilbert = (problem.scattering.hermitian_part && !problem.scattering.phonons.is_empty())
+        .then(|| HilbertTransform::new(ne));
+    let mut x = sigma.clone();
+    let mut p = pass(problem, leads, &x, false)?;
+    let mut fx = ScatteringSelfEnergy::zeros(ne, problem.sites());
+    let colour = red_black_colouring(problem, order).map(|(w, _)| w);
+    sweep(
+        problem,
+        leads,
+        hilbert.as_ref(),
+        colour,
+        &mut x,
+        &mut p,
+        &mut fx,
+        1,
+    )?;
+    Ok((x, fx))
 }
 
 /// Copy the energy rows `k` of `src` with `rows(k)` true into `dst`.
