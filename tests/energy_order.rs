@@ -171,6 +171,20 @@ fn the_peltier_demo_converges_in_red_black_order_by_default() {
             .unwrap();
         assert_eq!(r.scba.energy_order, order);
     }
+    // Without phonons a requested red-black order cannot apply: say so.
+    let i = text.find("[[phonon]]").unwrap();
+    let j = text.find("[grid]").unwrap();
+    let t = format!("{}{}", &text[..i], &text[j..])
+        .replace("[solver]", "[solver]\nenergy_order = \"red-black\"");
+    let r = Case::parse(&t, "test", path.parent().unwrap())
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert!(
+        r.warnings.iter().any(|w| w.contains("solver.energy_order")),
+        "{:?}",
+        r.warnings
+    );
     let t = text.replace("[solver]", "[solver]\nenergy_order = \"gauss\"");
     let e = Case::parse(&t, "test", path.parent().unwrap())
         .and_then(|c| c.resolve())

@@ -466,6 +466,14 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     if spec.hermitian_part && scattering.phonons.is_empty() {
         warnings.push("solver.hermitian_part = \"include\" has no effect without phonons".into());
     }
+    if spec.scba.energy_order == crate::scba::EnergyOrder::RedBlack && scattering.phonons.is_empty()
+    {
+        warnings.push(
+            "solver.energy_order = \"red-black\" has no effect without phonons: \
+             the energies are solved simultaneously"
+                .into(),
+        );
+    }
 
     let phonon_conductance = match spec.phonon_conductance_w_per_k {
         Some(k) => k,
