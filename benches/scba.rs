@@ -88,7 +88,7 @@ fn against_dense(c: &mut Criterion) {
             |b| {
                 b.iter(|| {
                     one.install(|| {
-                        let r = common::dense_scba::dense_scba(&d, 0.0, 1);
+                        let r = common::dense_scba::dense_sweeps(&d, 1);
                         black_box(r.iterations)
                     })
                 })

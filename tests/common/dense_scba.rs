@@ -157,7 +157,20 @@ fn rebuild(p: &Problem, green: &LocalGreen) -> ScatteringSelfEnergy {
     s
 }
 
+/// Self-consistent Born loop to a relative change ≤ `tol` in Σ0. Panics when
+/// `max_iter` iterations do not reach it: a caller comparing against this
+/// reference must never receive an unconverged result.
 pub fn dense_scba(p: &Problem, tol: f64, max_iter: usize) -> DenseResult {
+    born_loop(p, tol, max_iter, true)
+}
+
+/// Exactly `sweeps` iterations of the same loop, with no claim of
+/// convergence (for timing one sweep in the benchmarks).
+pub fn dense_sweeps(p: &Problem, sweeps: usize) -> DenseResult {
+    born_loop(p, 0.0, sweeps, false)
+}
+
+fn born_loop(p: &Problem, tol: f64, max_iter: usize, must_converge: bool) -> DenseResult {
     assert!(
         !p.scattering.hermitian_part,
         "the dense reference neglects the Hermitian part"
@@ -198,13 +211,21 @@ pub fn dense_scba(p: &Problem, tol: f64, max_iter: usize) -> DenseResult {
                 .sum::<f64>();
         let scale: f64 = next.inscatter.iter().map(|a| a * a).sum::<f64>()
             + next.retarded.iter().map(|a| a.norm_sqr()).sum::<f64>();
-        if diff.sqrt() <= tol * scale.sqrt().max(1e-300) || iterations >= max_iter {
+        let residual = diff.sqrt() / scale.sqrt().max(1e-300);
+        if residual <= tol || (!must_converge && iterations >= max_iter) {
             return DenseResult {
                 pass: Pass { green, bond, flows },
                 sigma,
                 iterations,
             };
         }
+        // A reference that stopped short is no reference: never hand back an
+        // unconverged Σ0 as if it were the answer.
+        assert!(
+            iterations < max_iter,
+            "dense reference did not converge: relative change {residual:e} > {tol:e} \
+             after {iterations} iterations (raise max_iter or weaken the coupling)"
+        );
         for i in 0..ne * ns {
             sigma.inscatter[i] = 0.5 * (sigma.inscatter[i] + next.inscatter[i]);
             sigma.retarded[i] = (sigma.retarded[i] + next.retarded[i]) * 0.5;
