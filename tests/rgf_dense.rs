@@ -241,7 +241,17 @@ fn eight_orbital_blocks_match_dense() {
 }
 
 #[test]
-fn two_cells_and_one_cell() {
+fn two_cells() {
     check(5, 2, 2, true);
     check(6, 1, 2, false);
+}
+
+/// N = 1: both leads and the scattering self-energy act on the same block,
+/// there is no bond, and G_1N is G_11 (T = Tr[Γ1 G Γ2 G†]).
+#[test]
+fn one_cell_both_leads_on_the_same_block() {
+    check(21, 1, 1, true);
+    check(22, 1, 1, false);
+    check(23, 3, 1, true);
+    check(24, 3, 1, false);
 }
