@@ -144,7 +144,13 @@ fn dephased_chain(n: usize, d: f64) -> Problem {
 /// D = 0.01: 1.05, 1.10, 1.20, 1.40, 1.80 for N = 20 … 320). Model after
 /// R. Golizadeh-Mojarad, S. Datta, PRB 75, 081301(R) (2007), from memory.
 /// Tolerance: slope within 0.5 % (the relation is first order in D/4t²).
-/// Dephasing is elastic: zero lattice power (≤ 1e-12 of I·V).
+/// The Ohmic part needs only the band centre, so it runs on one energy.
+///
+/// Dephasing is elastic, so it must deposit no heat. That is checked on a
+/// real grid (±10 kT around a 0.1 V bias window, where electrons at many
+/// energies flow): P_i = −∫ E j_0,i dE = 0 on every site, and in the same
+/// test a phonon mode of the same strength (ħω = 20 meV) on the same chain
+/// does show P_i ≠ 0, so a dephasing model that exchanged energy would fail.
 #[test]
 fn dephasing_is_ohmic_and_deposits_no_heat() {
     let d = 0.01;
@@ -152,7 +158,7 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
     let mut inv_t = Vec::new();
     for &n in &ns {
         let p = dephased_chain(n, d);
-        let (sol, o) = solved(
+        let (sol, _) = solved(
             &p,
             &ScbaParams {
                 tolerance: 1e-13,
@@ -161,13 +167,6 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
         );
         let t_eff = sol.pass.flows[0].left;
         inv_t.push(1.0 / t_eff);
-        let iv = o.electrical_power_w.abs();
-        for pw in &o.sites.lattice_power_w {
-            assert!(
-                pw.abs() <= 1e-12 * iv,
-                "dephasing heated a site: {pw} vs I·V {iv}"
-            );
-        }
     }
     // Least-squares slope of 1/T against N.
     let nf: Vec<f64> = ns.iter().map(|&n| n as f64).collect();
@@ -188,6 +187,58 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
     for (got, want) in inv_t.iter().zip(listed) {
         assert!(rel(*got, want) < 0.005, "{got} vs {want}");
     }
+
+    // No heat on a real, biased grid.
+    let kt = BOLTZMANN_EV_PER_K * 300.0;
+    let n = 30;
+    let biased = |scattering: &dyn Fn(&mut Problem, &EnergyGrid)| {
+        let dev = qheat::device::chain(1.0, 1.0, -2.0, vec![0.0; n]);
+        let grid = EnergyGrid::covering(-0.05 - 10.0 * kt, 0.05 + 10.0 * kt, kt / 4.0);
+        let mut p = coherent_problem(dev, (0.05, 300.0), (-0.05, 300.0), grid.clone());
+        scattering(&mut p, &grid);
+        let params = ScbaParams {
+            tolerance: 1e-13,
+            ..tight()
+        };
+        solved(&p, &params).1
+    };
+    let o = biased(&|p: &mut Problem, _: &EnergyGrid| p.scattering.dephasing_ev2 = vec![d; n]);
+    let iv = o.electrical_power_w.abs();
+    assert!(iv > 1e-7, "the chain carries current: I·V = {iv}");
+    let worst = o
+        .sites
+        .lattice_power_w
+        .iter()
+        .fold(0.0f64, |m, p| m.max(p.abs()));
+    assert!(
+        worst <= 1e-12 * iv,
+        "dephasing heated a site: max |P_i| = {worst:e} vs I·V {iv:e}"
+    );
+    // Elastic: what enters from the left at energy E leaves on the right
+    // at the same E.
+    let gross = o
+        .spectrum
+        .flow_left
+        .iter()
+        .fold(0.0f64, |m, j| m.max(j.abs()));
+    for (j1, j2) in o.spectrum.flow_left.iter().zip(&o.spectrum.flow_right) {
+        assert!((j1 + j2).abs() <= 1e-10 * gross, "j1 {j1} j2 {j2}");
+    }
+    // The same check sees an inelastic mechanism of the same strength.
+    let o = biased(&|p: &mut Problem, grid: &EnergyGrid| {
+        p.scattering
+            .phonons
+            .push(phonon(grid, 0.02, d, &[true; 30], 300.0))
+    });
+    let worst = o
+        .sites
+        .lattice_power_w
+        .iter()
+        .fold(0.0f64, |m, p| m.max(p.abs()));
+    assert!(
+        worst > 1e-6 * o.electrical_power_w.abs(),
+        "phonons should exchange energy: max |P_i| = {worst:e}"
+    );
 }
 
 /// D → 0 recovers the coherent result (to 1e-8: the change is first order
@@ -311,33 +362,82 @@ fn peltier_cooling_before_and_heating_after_the_barrier() {
     assert!(balance.abs() < 1e-8 * o.electrical_power_w);
 }
 
-/// Onsager reciprocity M12 = M21 (Kelvin relation Π = T S) with an inelastic
-/// bath, symmetric split: residual ≤ 1e-4 (L. Onsager, Phys. Rev. 37, 405
-/// (1931), from memory; the residual measures finite-difference and Born
-/// convergence error). The finite-difference route also reproduces the
-/// transmission-moment coefficients for a coherent device to 1e-6.
+/// Onsager reciprocity M12 = M21 (Kelvin relation Π = T S) with an
+/// inelastic bath (L. Onsager, Phys. Rev. 37, 405 (1931), from memory). The
+/// device is asymmetric on purpose: the barrier sits left of centre and the
+/// phonons live only right of it, so the lattice takes up heat at first
+/// order in V. Then only the flux conjugate to the symmetric split,
+/// J_Q = (J_Q,1 − J_Q,2)/2, is reciprocal; J_Q,1 alone differs from it by
+/// half the lattice power and must fail. Both are computed here from the same
+/// four solves, and the library's response function must agree with the
+/// right one. Tolerance 1e-4 on the residual: finite-difference error
+/// (δ/kT)²/6 ≈ 2e-7 and the Born tolerance 1e-12 on currents whose
+/// differences are 1e-3 of them; the wrong flux must miss by more than 1 %.
+/// Perturbing lead 1 alone (lead 2 and the bath fixed) with its own heat
+/// flux J_Q,1 is reciprocal too (three-terminal Onsager relation).
 #[test]
 fn onsager_reciprocity_with_phonons() {
-    use qheat::thermo::response::{OperatingPoint, Split, linear_response};
-    let base = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.03, 2e-3)]);
+    use qheat::thermo::response::{OperatingPoint, Split, linear_response, operating_point};
+    let (mu, temp) = (0.05, 300.0);
+    let base = {
+        let d = barrier_chain(60, 0.5, 0.07, 15, 25, 0.1);
+        let step = 0.002;
+        let grid = EnergyGrid::covering(0.5 * step, 0.45, step);
+        let mut p = coherent_problem(d, (mu, temp), (mu, temp), grid.clone());
+        let mask: Vec<bool> = (0..60).map(|i| i >= 25).collect();
+        p.scattering
+            .phonons
+            .push(phonon(&grid, 0.03, 4e-3, &mask, temp));
+        p
+    };
+    let build = |op: &OperatingPoint| -> Result<Problem, String> {
+        let mut p = base.clone();
+        p.left.fermi_level_ev = op.fermi_level_left_ev;
+        p.right.fermi_level_ev = op.fermi_level_right_ev;
+        p.left.temperature_k = op.temperature_left_k;
+        p.right.temperature_k = op.temperature_right_k;
+        for m in &mut p.scattering.phonons {
+            m.bath_temperature_k = op.bath_temperature_k;
+        }
+        Ok(p)
+    };
+    // The four runs of the symmetric split, by hand.
+    let dv = 1e-3 * BOLTZMANN_EV_PER_K * temp;
+    let dt = 1e-3 * temp;
+    let params = ScbaParams {
+        tolerance: 1e-12,
+        ..tight()
+    };
+    let run = |v: f64, t: f64| {
+        let p = build(&operating_point(mu, temp, v, t, Split::Symmetric)).unwrap();
+        let (_, o) = solved(&p, &params);
+        (o.current_a, o.heat_current_left_w, o.heat_current_right_w)
+    };
+    let (vp, vm, tp, tm) = (run(dv, 0.0), run(-dv, 0.0), run(0.0, dt), run(0.0, -dt));
+    let m12 = temp * (tp.0 - tm.0) / (2.0 * dt);
+    let m21_right = (0.5 * (vp.1 - vp.2) - 0.5 * (vm.1 - vm.2)) / (2.0 * dv);
+    let m21_wrong = (vp.1 - vm.1) / (2.0 * dv);
+    let right = rel(m21_right, m12);
+    let wrong = rel(m21_wrong, m12);
+    assert!(right < 1e-4, "Onsager with (J_Q,1 − J_Q,2)/2: {right:e}");
+    assert!(
+        wrong > 1e-2 && wrong > 100.0 * right,
+        "J_Q,1 alone should break reciprocity here: {wrong:e} (right flux {right:e})"
+    );
     for split in [Split::Symmetric, Split::LeftOnly] {
-        let build = |op: &OperatingPoint| -> Result<Problem, String> {
-            let mut p = base.clone();
-            p.left.fermi_level_ev = op.fermi_level_left_ev;
-            p.right.fermi_level_ev = op.fermi_level_right_ev;
-            p.left.temperature_k = op.temperature_left_k;
-            p.right.temperature_k = op.temperature_right_k;
-            for m in &mut p.scattering.phonons {
-                m.bath_temperature_k = op.bath_temperature_k;
-            }
-            Ok(p)
-        };
         let (c, m, _) =
-            linear_response(&build, 0.05, 300.0, split, &tight(), 0.0, &mut Silent).unwrap();
+            linear_response(&build, mu, temp, split, &tight(), 0.0, &mut Silent).unwrap();
         assert!(m.converged);
+        assert!(
+            m.onsager_residual < 1e-4,
+            "{split:?}: Onsager {}",
+            m.onsager_residual
+        );
+        assert!((c.peltier_v - temp * c.seebeck_v_per_k).abs() < 1e-4 * c.peltier_v.abs());
         if split == Split::Symmetric {
-            assert!(m.onsager_residual < 1e-4, "Onsager {}", m.onsager_residual);
-            assert!((c.peltier_v - 300.0 * c.seebeck_v_per_k).abs() < 1e-4 * c.peltier_v.abs());
+            // Same operating points as the hand-made runs: same matrix.
+            assert!(rel(m.m12, m12) < 1e-6, "M12 {} vs {m12}", m.m12);
+            assert!(rel(m.m21, m21_right) < 1e-6, "M21 {} vs {m21_right}", m.m21);
         }
         assert!(
             c.conductance_s > 0.0 && c.seebeck_v_per_k < 0.0 && c.thermal_conductance_w_per_k > 0.0
@@ -377,7 +477,6 @@ fn onsager_reciprocity_with_phonons() {
             exact.thermal_conductance_w_per_k
         ) < 1e-5
     );
-    let _ = BOLTZMANN_EV_PER_K;
 }
 
 /// Local resistances: the drops of the local Fermi level, with the drop from
@@ -462,4 +561,139 @@ fn warm_start_from_a_converged_self_energy() {
     assert!(again.report.warm_start);
     let o2 = observe(&again);
     assert!(rel(o2.current_a, o.current_a) < 1e-9);
+}
+
+/// A biased barrier with two phonon modes and dephasing on some cells.
+fn busy_barrier() -> Problem {
+    let mut p = barrier_with_phonons((0.08, 0.02), (300.0, 300.0), &[(0.04, 3e-3), (0.012, 1e-3)]);
+    p.scattering.dephasing_ev2 = (0..60).map(|i| if i < 20 { 2e-3 } else { 0.0 }).collect();
+    p
+}
+
+/// Particle conservation at every energy: j_1(E) + j_2(E) + j_0(E) = 0,
+/// with j_0 the flow from the scattering bath summed over sites (each
+/// energy's G is the solution for the Σ0 it is reported with, so this is an
+/// identity, to rounding: 1e-10 of the gross exchange at that energy). The
+/// bath flow itself is not small: electrons change energy.
+#[test]
+fn particle_flows_balance_at_every_energy() {
+    let p = busy_barrier();
+    let (sol, o) = solved(&p, &tight());
+    let js = qheat::observables::flow_scale(&p);
+    let s = &o.spectrum;
+    let mut bath_max: f64 = 0.0;
+    for k in 0..p.grid.count {
+        let f = &sol.pass.flows[k];
+        let gross = (f.left_gross + f.right_gross) * js + s.flow_bath[k].abs();
+        let sum = s.flow_left[k] + s.flow_right[k] + s.flow_bath[k];
+        assert!(
+            sum.abs() <= 1e-12 * gross,
+            "E = {}: j1 {} + j2 {} + j0 {} = {sum:e}",
+            p.grid.energy(k),
+            s.flow_left[k],
+            s.flow_right[k],
+            s.flow_bath[k]
+        );
+        bath_max = bath_max.max(s.flow_bath[k].abs() / gross);
+    }
+    assert!(
+        bath_max > 1e-3,
+        "the bath must exchange electrons: {bath_max:e}"
+    );
+    // Summed over energy the bath hands back every electron it takes.
+    let i0: f64 = s.flow_bath.iter().sum::<f64>() * p.grid.step_ev;
+    let i1: f64 = s.flow_left.iter().sum::<f64>() * p.grid.step_ev;
+    assert!(i0.abs() < 1e-8 * i1.abs(), "net bath flow {i0:e} vs {i1:e}");
+}
+
+/// Current continuity along the chain: the energy-resolved bond current
+/// (electrons to +x, times e) summed over energy equals −I_1 on every bond
+/// (I_1 is the conventional current into the device from lead 1, so
+/// electrons entering from the left move to +x when I_1 < 0). At one energy
+/// it is not conserved where phonons act (electrons change energy there),
+/// which this also checks, so the sum is the real test. Tolerance 1e-8 of
+/// |I_1|: the per-site particle balance of the phonon exchange holds at
+/// self-consistency, here to the Born tolerance 1e-10.
+#[test]
+fn bond_current_summed_over_energy_is_the_terminal_current_on_every_bond() {
+    let p = busy_barrier();
+    let (sol, o) = solved(&p, &tight());
+    let map = qheat::observables::bond_current_map(&sol);
+    let (bonds, ne) = map.dim();
+    assert_eq!(bonds, 59);
+    let i1 = o.current_left_a;
+    assert!(i1 < 0.0, "electrons flow left to right: I_1 = {i1}");
+    for b in 0..bonds {
+        let total: f64 = (0..ne).map(|k| map[[b, k]]).sum::<f64>() * p.grid.step_ev;
+        assert!(
+            (total + i1).abs() <= 1e-8 * i1.abs(),
+            "bond {b}: ∫ j dE · e = {total:e} vs −I_1 = {:e}",
+            -i1
+        );
+    }
+    // Energy-resolved: the first and last bonds differ.
+    let peak = (0..ne).fold(0.0f64, |m, k| m.max(map[[0, k]].abs()));
+    let change = (0..ne).fold(0.0f64, |m, k| m.max((map[[0, k]] - map[[58, k]]).abs()));
+    assert!(
+        change > 1e-2 * peak,
+        "phonons move electrons in energy: {change:e} vs {peak:e}"
+    );
+}
+
+/// A one-cell device (both leads attached to the same cell) with a phonon
+/// mode and dephasing: the recursion against the dense reference, as for
+/// the longer device (1e-8 relative; both converged to 1e-12).
+#[test]
+fn one_cell_device_matches_dense_born_loop() {
+    let (ll, lr) = continuation_leads(&qheat::device::chain(1.0, 1.0, -2.0, vec![0.0; 2]));
+    let mut p = coherent_problem(
+        qheat::device::chain(1.0, 1.0, -2.0, vec![0.3]),
+        (0.2, 300.0),
+        (-0.2, 300.0),
+        EnergyGrid::covering(-1.9, 1.9, 0.02),
+    );
+    p.left.lead = ll;
+    p.right.lead = lr;
+    let grid = p.grid.clone();
+    p.scattering
+        .phonons
+        .push(phonon(&grid, 0.1, 0.05, &[true], 300.0));
+    p.scattering.dephasing_ev2 = vec![0.02];
+    let params = ScbaParams {
+        tolerance: 1e-12,
+        ..tight()
+    };
+    let (sol, o) = solved(&p, &params);
+    let dense = dense_scba(&p, 1e-13, 2000);
+    let dsol = Solution {
+        pass: dense.pass,
+        sigma: dense.sigma,
+        ..sol.clone()
+    };
+    let od = observe(&dsol);
+    assert!(o.current_a.abs() > 1e-7);
+    assert!(
+        rel(o.current_a, od.current_a) < 1e-8,
+        "{} vs {}",
+        o.current_a,
+        od.current_a
+    );
+    assert!(rel(o.heat_current_left_w, od.heat_current_left_w) < 1e-8);
+    assert!(rel(o.heat_current_right_w, od.heat_current_right_w) < 1e-8);
+    assert!(rel(o.lattice_power_w, od.lattice_power_w) < 1e-8);
+    for k in 0..grid.count {
+        let (a, b) = (sol.pass.green.retarded[k], dsol.pass.green.retarded[k]);
+        assert!(
+            (a - b).norm() <= 1e-8 * b.norm(),
+            "G^r at k = {k}: {a} vs {b}"
+        );
+    }
+}
+
+/// The dense reference refuses to hand back a result it did not converge.
+#[test]
+#[should_panic(expected = "dense reference did not converge")]
+fn dense_reference_fails_loudly_at_its_iteration_limit() {
+    let p = busy_barrier();
+    let _ = dense_scba(&p, 1e-13, 3);
 }
