@@ -280,15 +280,16 @@ fn continuum_resonance() -> f64 {
     0.3 + qheat::units::hbar2_over_2m0_ev_nm2() / 0.067 * (std::f64::consts::PI / 5.0).powi(2)
 }
 
-/// Rectangular barrier (reference list §3): V0 = 0.3 eV, w = 5 nm,
+/// Rectangular barrier: V0 = 0.3 eV, w = 5 nm,
 /// m* = 0.067 (GaAs; I. Vurgaftman, J. R. Meyer, L. R. Ram-Mohan, J. Appl.
 /// Phys. 89, 5815 (2001), from memory). First the closed form above must
-/// give the listed continuum values (computed at 30 digits with the exact
+/// give these continuum values (computed at 30 digits with the exact
 /// constants; rel 1e-9, the digits quoted): T(0.1) = 9.408748098e-3,
 /// T(0.2) = 0.05242290412, T(0.3) = 0.2327064454, T(0.4) = 0.7038645142,
 /// T(0.5) = 0.9931228817, resonance 0.5244956195 eV. Then the lattice must
 /// approach it as a²: within 2 % at a = 0.25 nm and 0.5 % at a = 0.1 nm
-/// (the list's tolerance; measured errors are at most 0.8 % and 0.13 %, at
+/// (the O(a²) lattice error with room for its prefactor; measured errors
+/// are at most 0.8 % and 0.13 %, at
 /// 0.1 eV), with the error shrinking from the coarse to the fine lattice.
 #[test]
 fn barrier_continuum_limit() {
@@ -325,7 +326,7 @@ fn barrier_continuum_limit() {
 /// symmetric barrier transmits fully at resonance; common practice), and
 /// the peak's height above the barrier, E − V0, approaches the continuum's
 /// 0.2244956195 eV as a²: within 2 % at a = 0.25 nm and 0.5 % at 0.1 nm
-/// (reference list §3 tolerances; measured 0.21 % and 0.033 %). The peak is
+/// (as for the barrier above; measured 0.21 % and 0.033 %). The peak is
 /// found by golden-section search to 1e-9 eV; T at the peak is 1 to 1e-9.
 #[test]
 fn barrier_first_over_barrier_resonance() {
@@ -357,11 +358,12 @@ fn barrier_first_over_barrier_resonance() {
     assert!(errors[1] < errors[0], "{errors:?}");
 }
 
-/// Dispersion of the effective-mass chain (reference list §2): with
+/// Dispersion of the effective-mass chain: with
 /// t = ħ²/(2m* a²) the lattice band is E(k) = 2t(1 − cos ka) against the
 /// continuum ħ²k²/2m* = t (ka)², a relative error −(ka)²/12 + (ka)⁴/360 − …
 /// (Taylor series; common practice). At a = 0.25 nm, m* = 0.067 and the k of
-/// a continuum electron at E = 0.1 eV the list gives −9.156e-4. The lattice
+/// a continuum electron at E = 0.1 eV this is −9.156e-4 (computed at 30
+/// digits, quoted to 4). The lattice
 /// energy at that k is read from the product's lead: the Bloch phase of its
 /// self-energy, Σ = −t e^{ika}, is inverted by bisection. Tolerance 5e-8:
 /// half a unit in the last quoted digit; the leading term alone,
@@ -396,8 +398,8 @@ fn lattice_dispersion_error_at_a_quarter_nanometre() {
 
 /// Effective-mass mapping t = ħ²/(2 m* a²): m* = 0.067, a = 0.25 nm →
 /// 9.098464755 eV with the exact h and the CODATA 2018 electron mass
-/// (reference list §2; an earlier copy of the list carried 9.098464743,
-/// which the formula does not give, so the formula is trusted). Tolerance
+/// (an earlier quoted value, 9.098464743, is not what the formula gives;
+/// the formula is trusted). Tolerance
 /// 1e-10: half a unit in the tenth digit; ħ²/(2 m0) itself is checked to
 /// 1e-10 in the constants test.
 #[test]
