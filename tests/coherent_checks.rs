@@ -153,8 +153,8 @@ fn strip_lead_modes_agree_with_decimation() {
     }
 }
 
-/// Uniform 10-site chain, t = 1: T = 1 in band, 0 outside (checks.md §2;
-/// Caroli et al., J. Phys. C 4, 916 (1971), from memory). Abs 1e-10.
+/// Uniform 10-site chain, t = 1: T = 1 in band, 0 outside
+/// (Caroli et al., J. Phys. C 4, 916 (1971), from memory). Abs 1e-10.
 #[test]
 fn ballistic_chain_transmission() {
     let d = device::chain(1.0, 1.0, -2.0, vec![0.0; 10]); // on-site 0, hopping 1
@@ -173,7 +173,7 @@ fn ballistic_chain_transmission() {
 }
 
 /// Single impurity U in an infinite chain: T = (4t² − E²)/(4t² − E² + U²)
-/// (checks.md §2; Economou ch. 5, from memory). t = 1, U = 0.5, E = 0.5 →
+/// (Economou ch. 5, from memory). t = 1, U = 0.5, E = 0.5 →
 /// 0.9375. Abs 1e-10: closed form, no discretisation.
 #[test]
 fn single_impurity() {
@@ -236,7 +236,7 @@ fn barrier_transmission(spacing: f64, energies: &[f64]) -> Vec<f64> {
 }
 
 /// Rectangular barrier V0 = 0.3 eV, w = 5 nm, m* = 0.067: lattice values of
-/// checks.md §3 (exact lattice, computed at 30 digits), rel 1e-6 (the table
+/// the exact lattice recursion (computed at 30 digits), rel 1e-6 (the table
 /// carries 6 digits).
 #[test]
 fn barrier_lattice_table() {

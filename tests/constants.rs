@@ -42,7 +42,7 @@ fn thermal_voltage_and_kinetic_constant() {
 
 /// Bose occupation and detailed balance: ħω = 50 meV at 300 K gives
 /// N = 0.1689839773 and N/(N+1) = e^(−ħω/kT) = 0.1445562818; 10 meV gives
-/// N = 2.11735465 (reference list §7, computed at 30 digits). rel 1e-9 at
+/// N = 2.11735465 (computed at 30 digits). rel 1e-9 at
 /// the digits quoted.
 #[test]
 fn bose_occupation() {

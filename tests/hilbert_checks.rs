@@ -16,8 +16,9 @@
 //!                     + Σ_{m≥1} ∫_{bin m} [φ(u) − φ(mh)]/u du.
 //!
 //! The central term is at most 2 M1 · h/2 = M1 h (|φ(u)/u| ≤ 2 M1 with M1 =
-//! max|Γ'|). In bin m, Taylor's theorem gives φ(u) − φ(mh) = φ'(mh)(u − mh)
-//! + R with |R| ≤ M2 (u − mh)² (|φ''| ≤ 2 M2, M2 = max|Γ''|). The linear part
+//! max|Γ'|). In bin m, Taylor's theorem gives
+//! φ(u) − φ(mh) = φ'(mh)(u − mh) + R with |R| ≤ M2 (u − mh)²
+//! (|φ''| ≤ 2 M2, M2 = max|Γ''|). The linear part
 //! integrates to −φ'(mh) h (m K(m) − 1), and
 //! m K(m) − 1 = Σ_j x^{2j}/(2j + 1) ≤ x²/(3(1 − x²)) = 1/(3(4m² − 1)) with
 //! x = 1/(2m), whose sum over m ≥ 1 is 1/6 (telescoping); so all bins
@@ -29,6 +30,8 @@
 //! first order in h (the error of the central bin does not cancel).
 //! Σ_{m=1}^{n} 1/(m − ½) ≤ 2 + ln(2n − 1). For a Γ constant on every bin
 //! the transform is exact (bound 0), which the box check uses.
+
+#![allow(clippy::needless_range_loop)]
 
 use qheat::C64;
 use qheat::grid::EnergyGrid;

@@ -106,7 +106,7 @@ fn equilibrium_detailed_balance() {
 }
 
 /// Ledger after convergence at tolerance 1e-10: charge and energy residuals
-/// ≤ 1e-8 relative (reference list §9; Lake & Datta 1992, from memory), for
+/// ≤ 1e-8 relative (Lake & Datta 1992, from memory), for
 /// a biased barrier with two modes and for a thermally biased one, with the
 /// Hermitian part of Σ0 neglected and included.
 #[test]

@@ -1,5 +1,5 @@
-//! Coherent thermoelectric transport against closed forms (values from the
-//! reference list, each with its source beside the check).
+//! Coherent thermoelectric transport against closed forms (values computed
+//! at 30 digits, each with its source beside the check).
 
 #![allow(clippy::needless_range_loop)]
 
@@ -169,7 +169,7 @@ fn resonant_level(gamma: f64, step: f64) -> qheat::model::Problem {
 
 /// Breit-Wigner level, ε − µ = 0.1 eV, 300 K, Γ_L = Γ_R = Γ/2:
 /// T(E) = Γ_LΓ_R/((E − ε)² + Γ²/4), and the table of G, S, κ_e/(L0 G T),
-/// ZT_el (reference list §4, computed at 30 digits; narrow-level limit after
+/// ZT_el (computed at 30 digits; narrow-level limit after
 /// G. D. Mahan, J. O. Sofo, PNAS 93, 7436 (1996)). Tolerance rel 1e-6 with
 /// ΔE = Γ/20 over ±40 kT: the plain sum of a Lorentzian is exponentially
 /// accurate once the step resolves Γ.
