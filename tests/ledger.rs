@@ -59,7 +59,10 @@ fn early_stop_shows_in_the_ledger_and_convergence_closes_it() {
     let p = biased_barrier(&[(0.04, 4e-3)]);
     let (early, o) = solved_with(&p, 1e-3, Mixing::Linear { factor: 0.5 });
     let l = &o.ledger;
-    eprintln!("early stop after {} iterations: {l:?}", early.report.iterations);
+    eprintln!(
+        "early stop after {} iterations: {l:?}",
+        early.report.iterations
+    );
     assert!(early.report.iterations < 30, "{}", early.report.iterations);
     assert!(l.worst_relative() > 1e-6, "{l:?}");
     assert!(l.charge_relative > 1e-6, "{l:?}");
@@ -79,6 +82,11 @@ fn early_stop_shows_in_the_ledger_and_convergence_closes_it() {
         assert!(r < 1e-8, "{name} = {r:e} after convergence: {l:?}");
     }
     assert!(l.worst_relative() < 1e-8);
+    // summary.json says what every entry compares.
+    let j = qheat::output::results::ledger_json(l);
+    for (name, _) in l.relative_entries() {
+        assert!(j["compares"][name].is_string(), "{name}: {j}");
+    }
 }
 
 /// Phonon-side lattice power of two modes, from the final Green's functions
@@ -177,13 +185,50 @@ fn fermi_level_below_the_search_interval_is_flagged() {
         "{:?}",
         s.fermi_level_status
     );
-    assert!(s.fermi_level_ev.iter().all(|m| m.is_nan()), "{:?}", s.fermi_level_ev);
+    assert!(
+        s.fermi_level_ev.iter().all(|m| m.is_nan()),
+        "{:?}",
+        s.fermi_level_ev
+    );
+    let j = qheat::output::results::fermi_level_json(&o);
+    assert_eq!(j["outside_interval"], 12, "{j}");
+    assert_eq!(j["cells_below_interval"].as_array().unwrap().len(), 12);
 
     let p = coherent_problem(d, (0.03, 4.0), (0.03, 4.0), grid);
     let sol = solve(&p, &ScbaParams::default(), None, &mut Silent).unwrap();
     let s = observe(&sol).sites;
-    for (i, (m, f)) in s.fermi_level_ev.iter().zip(&s.fermi_level_status).enumerate() {
+    for (i, (m, f)) in s
+        .fermi_level_ev
+        .iter()
+        .zip(&s.fermi_level_status)
+        .enumerate()
+    {
         assert_eq!(*f, FermiLevelStatus::Matched, "cell {i}");
         assert!((m - 0.03).abs() < 1e-3, "cell {i}: µ = {m}");
+    }
+}
+
+/// Elastic dephasing exchanges no energy: with dephasing alone the
+/// phonon side is exactly zero and the electron side vanishes at
+/// convergence; with dephasing and a phonon the two sides still agree to
+/// 1e-8 relative at tolerance 1e-10 (same bound as above).
+#[test]
+fn dephasing_leaves_the_lattice_comparison_intact() {
+    let mut p = biased_barrier(&[]);
+    p.scattering.dephasing_ev2 = vec![2e-3; 30];
+    let (_, o) = solved(&p, 1e-10);
+    assert!(o.phonon_modes.is_empty());
+    assert_eq!(o.lattice_power_phonon_side_w, 0.0);
+    let l = &o.ledger;
+    assert!(l.lattice_relative < 1e-8, "{l:?}");
+    assert!(l.worst_relative() < 1e-8, "{l:?}");
+
+    let mut p = biased_barrier(&[(0.04, 3e-3)]);
+    p.scattering.dephasing_ev2 = vec![2e-3; 30];
+    let (_, o) = solved(&p, 1e-10);
+    let l = &o.ledger;
+    assert!(o.lattice_power_phonon_side_w > 0.0);
+    for (name, r) in l.relative_entries() {
+        assert!(r < 1e-8, "{name} = {r:e}: {l:?}");
     }
 }

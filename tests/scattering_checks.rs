@@ -102,7 +102,11 @@ fn equilibrium_detailed_balance() {
     // entries (measured against gross exchanges) to 1e-10.
     let l = &o.ledger;
     assert!(l.charge_a.abs() < 1e-10 * i_scale, "{l:?}");
-    for r in [l.lattice_relative, l.leads_lattice_relative, l.heat_relative] {
+    for r in [
+        l.lattice_relative,
+        l.leads_lattice_relative,
+        l.heat_relative,
+    ] {
         assert!(r < 1e-10, "{l:?}");
     }
     // The local Fermi level is flat and equal to the contacts'.

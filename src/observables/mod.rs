@@ -17,15 +17,15 @@ mod fermi_level;
 mod ledger;
 pub use fermi_level::{
     FermiLevelStatus, FermiMatch, LocalFermiLevel, fermi_search_interval,
-    match_fermi_level_checked, fit_fermi_level_and_temperature, local_electron_temperatures,
-    local_fermi_levels,
+    fit_fermi_level_and_temperature, local_electron_temperatures, local_fermi_levels,
+    match_fermi_level_checked,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
 
 use crate::model::Problem;
-use ledger::relative;
 use crate::scba::Solution;
 use crate::units::{ELEMENTARY_CHARGE, PLANCK_EV_S};
+use ledger::relative;
 
 /// Particle flows per unit energy (1/(eV s)) for each energy.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
