@@ -103,7 +103,8 @@ pub fn match_fermi_level(
     match_fermi_level_checked(energies, spectral, target, temperature_k).fermi_level_ev
 }
 
-/// [`match_fermi_level`] with the way the match ended.
+/// Density match with the way it ended: µ (NaN unless matched) and its
+/// [`FermiLevelStatus`].
 pub fn match_fermi_level_checked(
     energies: &[f64],
     spectral: &[f64],
