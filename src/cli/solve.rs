@@ -90,10 +90,19 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
         "electrical power  I·V = {}",
         si(o.electrical_power_w, "W", 4)
     );
-    println!(
-        "lattice power     {} in total",
-        si(o.lattice_power_w, "W", 4)
-    );
+    if sol.problem.scattering.phonons.is_empty() {
+        println!(
+            "lattice power     {} in total (electron side)",
+            si(o.lattice_power_w, "W", 4)
+        );
+    } else {
+        // The two routes agree at the fixed point of the Born loop.
+        println!(
+            "lattice power     electron side {}  phonon side {}",
+            si(o.lattice_power_w, "W", 4),
+            si(o.lattice_power_phonon_side_w, "W", 4)
+        );
+    }
     if !sol.problem.scattering.is_coherent() {
         let p = &o.sites.lattice_power_w;
         let (imax, pmax) =
@@ -143,12 +152,37 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
             si(drops.last().copied().unwrap_or(0.0), "V", 3)
         );
     }
+    use qheat::observables::FermiLevelStatus;
+    let st = &o.sites.fermi_level_status;
+    let outside: Vec<String> = st
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| {
+            matches!(
+                f,
+                FermiLevelStatus::BelowInterval | FermiLevelStatus::AboveInterval
+            )
+        })
+        .map(|(i, _)| i.to_string())
+        .collect();
+    if !outside.is_empty() {
+        let (lo, hi) = o.sites.fermi_level_interval_ev;
+        println!(
+            "local Fermi level outside [{lo:.3}, {hi:.3}] eV in {} cell(s): {} (written as NaN, \
+             flagged in sites.csv)",
+            outside.len(),
+            outside.join(", ")
+        );
+    }
     let l = &o.ledger;
     println!(
-        "ledger            charge {}  energy {}  heat {}  (relative residuals)",
+        "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
+         energy identity {})",
         residual(l.charge_relative),
-        residual(l.energy_relative),
-        residual(l.heat_relative)
+        residual(l.lattice_relative),
+        residual(l.leads_lattice_relative),
+        residual(l.heat_relative),
+        residual(l.energy_relative)
     );
     println!("results           {}", out.display());
 }

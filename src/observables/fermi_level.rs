@@ -3,17 +3,77 @@
 //! µ_i is the Fermi level that, at the local temperature T_i, reproduces the
 //! electron number of cell i: Σ_k G^n_ii(E_k) = Σ_k A_ii(E_k) f(E_k; µ_i, T_i)
 //! (orbitals of the cell summed). The right side is monotone in µ_i, so
-//! bisection on a bracket wide enough to hold every occupation finds it.
+//! bisection on the search interval [E_min − 60 k_B T, E_max + 60 k_B T]
+//! (E_min, E_max: ends of the energy grid) finds it whenever it lies there.
+//!
+//! A cell whose electron number needs a µ_i outside that interval (for
+//! example a cell whose states all sit far above a non-degenerate lead's
+//! Fermi level at low temperature, or one whose in-window states are all
+//! filled to rounding) is not clamped to the interval end: its µ_i is NaN
+//! and its [`FermiLevelStatus`] says on which side the match lies.
 
 use crate::scba::Solution;
 use crate::units::{fermi, thermal_energy_ev};
 use rayon::prelude::*;
 
+/// How the density match of one cell ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum FermiLevelStatus {
+    /// µ_i found inside the search interval.
+    Matched,
+    /// Even the lowest µ of the interval puts more electrons in the cell
+    /// than it holds: the match lies below the interval (µ_i is NaN).
+    BelowInterval,
+    /// Even the highest µ of the interval puts no more electrons in the
+    /// cell than it holds: the match lies above the interval (µ_i is NaN).
+    AboveInterval,
+    /// The cell has no states in the energy window (µ_i is NaN).
+    NoStates,
+}
+
+impl FermiLevelStatus {
+    /// Code written in sites.csv: 0 matched, −1 below the interval, +1
+    /// above it, 2 no states in the window.
+    pub fn code(self) -> f64 {
+        match self {
+            Self::Matched => 0.0,
+            Self::BelowInterval => -1.0,
+            Self::AboveInterval => 1.0,
+            Self::NoStates => 2.0,
+        }
+    }
+}
+
+/// The result of one density match.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FermiMatch {
+    /// µ (eV); NaN unless `status` is [`FermiLevelStatus::Matched`].
+    pub fermi_level_ev: f64,
+    /// How the match ended.
+    pub status: FermiLevelStatus,
+}
+
+/// The interval searched for a local Fermi level (eV): the grid widened by
+/// 60 k_B T on both sides.
+pub fn fermi_search_interval(energies: &[f64], temperature_k: f64) -> (f64, f64) {
+    let kt = thermal_energy_ev(temperature_k);
+    (
+        energies.first().copied().unwrap_or(0.0) - 60.0 * kt,
+        energies.last().copied().unwrap_or(0.0) + 60.0 * kt,
+    )
+}
+
 /// Local Fermi levels and electron numbers per cell.
 #[derive(Clone, Debug, PartialEq)]
 pub struct LocalFermiLevel {
-    /// µ_i (eV); NaN where the cell has no states in the energy window.
+    /// µ_i (eV); NaN where the cell has no states in the energy window or
+    /// its match lies outside the search interval (see `status`).
     pub fermi_level_ev: Vec<f64>,
+    /// How the match of each cell ended.
+    pub status: Vec<FermiLevelStatus>,
+    /// The search interval (eV).
+    pub interval_ev: (f64, f64),
     /// Electrons in the cell, g_s Σ_k G^n ΔE / 2π.
     pub electrons: Vec<f64>,
     /// Temperature used for the matching (K).
@@ -31,21 +91,34 @@ pub fn lattice_temperature(sol: &Solution) -> f64 {
         .unwrap_or(0.5 * (p.left.temperature_k + p.right.temperature_k))
 }
 
-/// Solve Σ_k a_k f(E_k; µ, T) = target for µ by bisection.
+/// Solve Σ_k a_k f(E_k; µ, T) = target for µ by bisection on
+/// [`fermi_search_interval`]; NaN when there are no states or the match
+/// lies outside the interval ([`match_fermi_level_checked`] says which).
 pub fn match_fermi_level(
     energies: &[f64],
     spectral: &[f64],
     target: f64,
     temperature_k: f64,
 ) -> f64 {
+    match_fermi_level_checked(energies, spectral, target, temperature_k).fermi_level_ev
+}
+
+/// Density match with the way it ended: µ (NaN unless matched) and its
+/// [`FermiLevelStatus`].
+pub fn match_fermi_level_checked(
+    energies: &[f64],
+    spectral: &[f64],
+    target: f64,
+    temperature_k: f64,
+) -> FermiMatch {
     let total: f64 = spectral.iter().sum();
     if total <= 0.0 || !total.is_finite() {
-        return f64::NAN;
+        return FermiMatch {
+            fermi_level_ev: f64::NAN,
+            status: FermiLevelStatus::NoStates,
+        };
     }
-    let kt = thermal_energy_ev(temperature_k);
-    let (emin, emax) = (energies[0], energies[energies.len() - 1]);
-    let mut lo = emin - 60.0 * kt;
-    let mut hi = emax + 60.0 * kt;
+    let (mut lo, mut hi) = fermi_search_interval(energies, temperature_k);
     let count = |mu: f64| -> f64 {
         energies
             .iter()
@@ -53,6 +126,22 @@ pub fn match_fermi_level(
             .map(|(&e, &a)| a * fermi(e, mu, temperature_k))
             .sum()
     };
+    // The bisection below keeps lo at count < target and hi at
+    // count ≥ target; if an end already violates that, the answer is not
+    // inside and bisection would only walk to that end.
+    let outside = if count(lo) >= target {
+        Some(FermiLevelStatus::BelowInterval)
+    } else if count(hi) < target {
+        Some(FermiLevelStatus::AboveInterval)
+    } else {
+        None
+    };
+    if let Some(status) = outside {
+        return FermiMatch {
+            fermi_level_ev: f64::NAN,
+            status,
+        };
+    }
     for _ in 0..200 {
         let mid = 0.5 * (lo + hi);
         if mid == lo || mid == hi {
@@ -64,7 +153,10 @@ pub fn match_fermi_level(
             hi = mid;
         }
     }
-    0.5 * (lo + hi)
+    FermiMatch {
+        fermi_level_ev: 0.5 * (lo + hi),
+        status: FermiLevelStatus::Matched,
+    }
 }
 
 /// Local Fermi level of every cell at the lattice temperature.
@@ -77,7 +169,7 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let energies = p.grid.energies();
     let t = lattice_temperature(sol);
     let green = &sol.pass.green;
-    let per_cell: Vec<(f64, f64)> = (0..n)
+    let per_cell: Vec<(FermiMatch, f64)> = (0..n)
         .into_par_iter()
         .map(|i| {
             let mut a = vec![0.0; ne];
@@ -89,14 +181,16 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
                     filled += green.filled[idx];
                 }
             }
-            let mu = match_fermi_level(&energies, &a, filled, t);
+            let mu = match_fermi_level_checked(&energies, &a, filled, t);
             let electrons =
                 p.spin_degeneracy * filled * p.grid.step_ev / (2.0 * std::f64::consts::PI);
             (mu, electrons)
         })
         .collect();
     LocalFermiLevel {
-        fermi_level_ev: per_cell.iter().map(|x| x.0).collect(),
+        fermi_level_ev: per_cell.iter().map(|x| x.0.fermi_level_ev).collect(),
+        status: per_cell.iter().map(|x| x.0.status).collect(),
+        interval_ev: fermi_search_interval(&energies, t),
         electrons: per_cell.iter().map(|x| x.1).collect(),
         temperature_k: t,
     }

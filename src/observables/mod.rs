@@ -6,21 +6,26 @@
 //!   each orbital site j_0 = (g_s/h)(Σ^in_0 A − Γ0 G^n);
 //! - electric current into the device I_α = −e ∫ j_α dE, energy current
 //!   J_E,α = ∫ E j_α dE, heat current J_Q,α = ∫ (E − µ_α) j_α dE;
-//! - lattice power at cell i, P_i = −∫ E j_0,i dE (positive: heated);
+//! - lattice power at cell i, P_i = −∫ E j_0,i dE (positive: heated), and
+//!   the same power seen from the phonons, mode by mode (see [`ModePower`]);
 //! - the conservation ledger; the local Fermi level by density matching;
 //!   the energy-resolved bond current.
 //!
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
 mod fermi_level;
+mod ledger;
 pub use fermi_level::{
-    LocalFermiLevel, fit_fermi_level_and_temperature, local_electron_temperatures,
-    local_fermi_levels,
+    FermiLevelStatus, FermiMatch, LocalFermiLevel, fermi_search_interval,
+    fit_fermi_level_and_temperature, local_electron_temperatures, local_fermi_levels,
+    match_fermi_level_checked,
 };
+pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
 
 use crate::model::Problem;
 use crate::scba::Solution;
 use crate::units::{ELEMENTARY_CHARGE, PLANCK_EV_S};
+use ledger::relative;
 
 /// Particle flows per unit energy (1/(eV s)) for each energy.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
@@ -37,34 +42,6 @@ pub struct Spectrum {
     pub transmission: Option<Vec<f64>>,
 }
 
-/// Conservation ledger: absolute residuals and residuals relative to the
-/// gross flows through the device.
-#[derive(Clone, Debug, PartialEq, serde::Serialize)]
-pub struct Ledger {
-    /// I_1 + I_2 (A).
-    pub charge_a: f64,
-    /// |I_1 + I_2| / Σ_k (g_1 + g_2) e ΔE, with g_α the gross exchange
-    /// (inflow plus outflow) of lead α: meaningful in equilibrium too.
-    pub charge_relative: f64,
-    /// J_E,1 + J_E,2 − Σ_i P_i (W).
-    pub energy_w: f64,
-    /// |J_E,1 + J_E,2 − Σ P_i| / Σ_k |E_k| (g_1 + g_2 + g_0) e ΔE.
-    pub energy_relative: f64,
-    /// Σ_i P_i − (I·V + J_Q,1 + J_Q,2) (W).
-    pub heat_w: f64,
-    /// |heat_w| / (Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I V|).
-    pub heat_relative: f64,
-}
-
-impl Ledger {
-    /// Largest relative residual.
-    pub fn worst_relative(&self) -> f64 {
-        self.charge_relative
-            .max(self.energy_relative)
-            .max(self.heat_relative)
-    }
-}
-
 /// Per-cell profile along the device.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct SiteProfile {
@@ -72,8 +49,14 @@ pub struct SiteProfile {
     pub x_nm: Vec<f64>,
     /// Local band bottom (eV).
     pub band_edge_ev: Vec<f64>,
-    /// Local Fermi level µ_i (eV).
+    /// Local Fermi level µ_i (eV); NaN where `fermi_level_status` is not
+    /// [`FermiLevelStatus::Matched`] (never clamped to the search interval).
     pub fermi_level_ev: Vec<f64>,
+    /// How the density match of each cell ended.
+    pub fermi_level_status: Vec<FermiLevelStatus>,
+    /// The interval searched for µ_i (eV): the energy grid widened by
+    /// 60 k_B T on each side.
+    pub fermi_level_interval_ev: (f64, f64),
     /// Lattice power P_i (W), positive = lattice heated.
     pub lattice_power_w: Vec<f64>,
     /// Electrons per nm along the device (spin included).
@@ -114,8 +97,15 @@ pub struct Observables {
     pub heat_current_left_w: f64,
     /// J_Q,2 (W).
     pub heat_current_right_w: f64,
-    /// Σ_i P_i (W).
+    /// Σ_i P_i (W): lattice power from the electron side (the bath flow of
+    /// the last pass).
     pub lattice_power_w: f64,
+    /// Σ_m P_m (W): lattice power from the phonon side (emission minus
+    /// absorption from the final Green's functions); equals
+    /// `lattice_power_w` at the fixed point of the Born loop.
+    pub lattice_power_phonon_side_w: f64,
+    /// Emission, absorption and power of each phonon mode.
+    pub phonon_modes: Vec<ModePower>,
     /// Power delivered by the contacts to the device, I·V (W).
     pub electrical_power_w: f64,
     /// Conductance I/V when V ≠ 0 (S).
@@ -206,7 +196,7 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
     };
     let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
-    let (mut gross_n, mut gross_e, mut gross_q) = (0.0, 0.0, 0.0);
+    let (mut gross_e, mut gross_q) = (0.0, 0.0);
     for (k, f) in sol.pass.flows.iter().enumerate() {
         let e = grid.energy(k);
         let j1 = js * f.left;
@@ -222,7 +212,6 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         n2 += j2;
         e1 += e * j1;
         e2 += e * j2;
-        gross_n += g1 + g2;
         gross_e += e.abs() * (g1 + g2 + j0_gross);
         gross_q += (e - mu1).abs() * g1 + (e - mu2).abs() * g2;
     }
@@ -242,20 +231,28 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let energy_w = energy_current_left_w + energy_current_right_w - lattice_power_w;
     let heat_w =
         lattice_power_w - (electrical_power_w + heat_current_left_w + heat_current_right_w);
-    let rel = |x: f64, scale: f64| {
-        if scale > 0.0 {
-            x.abs() / scale
-        } else {
-            x.abs()
-        }
-    };
+    let phonon_modes = phonon_side_power(sol);
+    let lattice_power_phonon_side_w: f64 = phonon_modes.iter().map(|m| m.power_w).sum();
+    let gross_phonon_w: f64 = phonon_modes.iter().map(ModePower::gross_w).sum();
+    let heat_scale_w = gross_q * e_c * de + electrical_power_w.abs();
+    let power_scale_w = gross_phonon_w + heat_scale_w;
+    let charge_scale_a = current_left_a.abs().max(sol.report.params.current_floor_a);
+    let lattice_w = lattice_power_phonon_side_w - lattice_power_w;
+    let leads_lattice_w =
+        energy_current_left_w + energy_current_right_w - lattice_power_phonon_side_w;
     let ledger = Ledger {
         charge_a,
-        charge_relative: rel(charge_a, gross_n * e_c * de),
+        charge_scale_a,
+        charge_relative: relative(charge_a, charge_scale_a),
         energy_w,
-        energy_relative: rel(energy_w, gross_e * e_c * de),
+        energy_relative: relative(energy_w, gross_e * e_c * de),
+        lattice_w,
+        lattice_relative: relative(lattice_w, power_scale_w),
+        leads_lattice_w,
+        leads_lattice_relative: relative(leads_lattice_w, power_scale_w),
+        power_scale_w,
         heat_w,
-        heat_relative: rel(heat_w, gross_q * e_c * de + electrical_power_w.abs()),
+        heat_relative: relative(heat_w, heat_scale_w),
     };
 
     let levels = local_fermi_levels(sol);
@@ -274,6 +271,8 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         x_nm: p.device.x_nm.clone(),
         band_edge_ev: p.device.band_edge_ev.clone(),
         fermi_level_ev: levels.fermi_level_ev,
+        fermi_level_status: levels.status,
+        fermi_level_interval_ev: levels.interval_ev,
         lattice_power_w: lattice,
         electron_density_per_nm: levels
             .electrons
@@ -306,6 +305,8 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         heat_current_left_w,
         heat_current_right_w,
         lattice_power_w,
+        lattice_power_phonon_side_w,
+        phonon_modes,
         electrical_power_w,
         conductance_s,
         contact_drop_left_v,

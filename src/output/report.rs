@@ -25,7 +25,7 @@ const FIGURE_ORDER: [&str; 4] = [
 const DATA_FILES: [(&str, &str); 7] = [
     (
         "sites.csv",
-        "per cell: position, band edge, local Fermi level, lattice power, density, drop",
+        "per cell: position, band edge, local Fermi level and its status, lattice power, density, drop",
     ),
     (
         "spectrum.csv",
@@ -114,7 +114,7 @@ fn unit_of(key: &str) -> Option<(&'static str, &str)> {
 const PREFIXED: [&str; 9] = ["A", "W", "V", "S", "W/K", "V/K", "W/K²", "A/eV", "eV"];
 
 /// Keys shown first, in this order; others follow alphabetically.
-const ORDER: [&str; 24] = [
+const ORDER: [&str; 32] = [
     "voltage_v",
     "current_a",
     "conductance_s",
@@ -122,6 +122,7 @@ const ORDER: [&str; 24] = [
     "heat_current_left_w",
     "heat_current_right_w",
     "lattice_power_w",
+    "lattice_power_phonon_side_w",
     "energy_current_left_w",
     "energy_current_right_w",
     "current_left_a",
@@ -131,12 +132,19 @@ const ORDER: [&str; 24] = [
     "fermi_level_right_ev",
     "temperature_left_k",
     "temperature_right_k",
+    "worst_relative",
     "charge_a",
+    "charge_scale_a",
     "charge_relative",
-    "energy_w",
-    "energy_relative",
+    "lattice_w",
+    "lattice_relative",
+    "leads_lattice_w",
+    "leads_lattice_relative",
+    "power_scale_w",
     "heat_w",
     "heat_relative",
+    "energy_w",
+    "energy_relative",
     "conductance_s",
     "seebeck_v_per_k",
 ];
@@ -163,14 +171,22 @@ fn known_name(key: &str) -> Option<&'static str> {
         "energy_current_right_w" => "energy current from the right contact",
         "heat_current_left_w" => "heat current out of the left contact",
         "heat_current_right_w" => "heat current out of the right contact",
-        "lattice_power_w" => "lattice power, all cells",
+        "lattice_power_w" => "lattice power, all cells (electron side ΣP_i)",
+        "lattice_power_phonon_side_w" => "lattice power, all modes (phonon side ΣP_m)",
         "electrical_power_w" => "electrical power I·V",
         "conductance_s" => "conductance G = I/V",
         "contact_drop_left_v" => "Fermi-level drop into the left contact",
         "charge_a" => "charge residual I₁ + I₂",
+        "charge_scale_a" => "charge scale max(|I₁|, current floor)",
         "charge_relative" => "charge residual, relative",
-        "energy_w" => "energy residual",
-        "energy_relative" => "energy residual, relative",
+        "energy_w" => "energy identity J_E1 + J_E2 − ΣP_i",
+        "energy_relative" => "energy identity, relative",
+        "lattice_w" => "lattice residual ΣP_m − ΣP_i",
+        "lattice_relative" => "lattice residual, relative",
+        "leads_lattice_w" => "leads vs lattice residual J_E1 + J_E2 − ΣP_m",
+        "leads_lattice_relative" => "leads vs lattice residual, relative",
+        "power_scale_w" => "power scale of the lattice residuals",
+        "worst_relative" => "worst relative residual (physics entries)",
         "heat_w" => "heat residual ΣP − (I·V + J_Q1 + J_Q2)",
         "heat_relative" => "heat residual, relative",
         "seebeck_v_per_k" => "Seebeck coefficient S",
@@ -591,9 +607,14 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>) {
     }
     if let Some(Value::Object(l)) = s.get("ledger") {
         html.push_str(
-            "<h2>Ledger</h2>\n<p>Conservation checks: charge (I₁ + I₂ = 0), energy \
-             (J_E1 + J_E2 = ΣP) and heat (ΣP = I·V + J_Q1 + J_Q2), absolute and relative to \
-             the gross flows.</p>\n",
+            "<h2>Ledger</h2>\n<p>Conservation checks, each an absolute residual, its \
+             scale and their ratio: charge (I₁ + I₂ = 0, against the current), lattice \
+             (phonon-side ΣP_m from the final Green's functions against electron-side ΣP_i \
+             from the bath flow), leads against lattice (J_E1 + J_E2 = ΣP_m) and heat \
+             (ΣP_i = I·V + J_Q1 + J_Q2). These vanish at the fixed point of the Born loop. \
+             The energy entry (J_E1 + J_E2 = ΣP_i) holds in every pass by construction and \
+             checks only the bookkeeping. The table's <code>compares</code> rows say what \
+             each entry compares and relative to what.</p>\n",
         );
         let mut rows = Vec::new();
         rows_of("", l, &mut rows);

@@ -1,7 +1,9 @@
 //! The files of a solved operating point.
 
 use super::{OutputError, Staging, csv_bytes, npy_bytes};
-use crate::observables::{Observables, bond_current_map};
+use crate::observables::{
+    FermiLevelStatus, LEDGER_COMPARES, Ledger, Observables, POWER_SCALE, bond_current_map,
+};
 use crate::scba::Solution;
 use crate::units::ELEMENTARY_CHARGE;
 use serde_json::{Value, json};
@@ -39,9 +41,50 @@ pub fn scalars(o: &Observables) -> Value {
         "heat_current_left_w": o.heat_current_left_w,
         "heat_current_right_w": o.heat_current_right_w,
         "lattice_power_w": o.lattice_power_w,
+        "lattice_power_phonon_side_w": o.lattice_power_phonon_side_w,
         "electrical_power_w": o.electrical_power_w,
         "conductance_s": o.conductance_s,
         "contact_drop_left_v": o.contact_drop_left_v,
+    })
+}
+
+/// The ledger as JSON: every entry's residual, scale and ratio (the
+/// fields of [`Ledger`]), what each entry compares, and the worst ratio of
+/// the physics entries.
+pub fn ledger_json(l: &Ledger) -> Value {
+    let mut v = serde_json::to_value(l).expect("JSON of plain values");
+    let compares: serde_json::Map<String, Value> = LEDGER_COMPARES
+        .iter()
+        .map(|(k, c)| (k.to_string(), Value::from(*c)))
+        .collect();
+    v["compares"] = Value::Object(compares);
+    v["power_scale"] = Value::from(POWER_SCALE);
+    v["worst_relative"] = Value::from(l.worst_relative());
+    v["worst_relative_of"] = Value::from("charge, lattice, leads_lattice, heat");
+    v
+}
+
+/// The local Fermi level's search interval and the cells whose match lies
+/// outside it or that have no states (their µ_i is NaN, never clamped).
+pub fn fermi_level_json(o: &Observables) -> Value {
+    let s = &o.sites;
+    let cells = |want: FermiLevelStatus| -> Vec<usize> {
+        s.fermi_level_status
+            .iter()
+            .enumerate()
+            .filter(|(_, f)| **f == want)
+            .map(|(i, _)| i)
+            .collect()
+    };
+    let below = cells(FermiLevelStatus::BelowInterval);
+    let above = cells(FermiLevelStatus::AboveInterval);
+    json!({
+        "search_interval_ev": [s.fermi_level_interval_ev.0, s.fermi_level_interval_ev.1],
+        "outside_interval": below.len() + above.len(),
+        "cells_below_interval": below,
+        "cells_above_interval": above,
+        "cells_without_states": cells(FermiLevelStatus::NoStates),
+        "flagged_value": "NaN",
     })
 }
 
@@ -88,7 +131,9 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Val
         "grid": p.grid,
         "phonons": phonons,
         "results": scalars(o),
-        "ledger": o.ledger,
+        "phonon_modes": o.phonon_modes,
+        "ledger": ledger_json(&o.ledger),
+        "local_fermi_level": fermi_level_json(o),
         "scba": sol.report,
         "warnings": info.warnings,
         "notes": info.notes,
@@ -119,6 +164,7 @@ pub fn write_solve_files(
         "band_edge_ev",
         "potential_ev",
         "fermi_level_local_ev",
+        "fermi_level_status",
         "lattice_power_w",
         "electron_density_per_nm",
         "voltage_drop_v",
@@ -137,6 +183,7 @@ pub fn write_solve_files(
                     s.band_edge_ev[i],
                     potential[i],
                     s.fermi_level_ev[i],
+                    s.fermi_level_status[i].code(),
                     s.lattice_power_w[i],
                     s.electron_density_per_nm[i],
                     s.voltage_drop_v[i],

@@ -279,13 +279,20 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
             steps(&s.x_nm, &s.band_edge_ev, a, ef),
             INK.stroke_width(3),
         ))?;
-        chart.draw_series(LineSeries::new(
-            s.x_nm
-                .iter()
-                .zip(&s.fermi_level_ev)
-                .map(|(xi, m)| (*xi, m * ef)),
-            LOCAL_FERMI.stroke_width(2),
-        ))?;
+        // Cells without a local Fermi level (NaN: no states, or a match
+        // outside the search interval) break the line instead of being
+        // joined across.
+        let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+        for (xi, m) in s.x_nm.iter().zip(&s.fermi_level_ev) {
+            if m.is_finite() {
+                runs.last_mut().expect("a run").push((*xi, m * ef));
+            } else if !runs.last().expect("a run").is_empty() {
+                runs.push(Vec::new());
+            }
+        }
+        for run in runs.into_iter().filter(|r| !r.is_empty()) {
+            chart.draw_series(LineSeries::new(run, LOCAL_FERMI.stroke_width(2)))?;
+        }
 
         let mut chart = panel(
             &mid,

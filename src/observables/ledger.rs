@@ -1,0 +1,204 @@
+//! The conservation ledger and the lattice power seen from the phonons.
+//!
+//! Two routes lead to the power the electrons hand to the lattice:
+//!
+//! - the electron side, P_i = −∫ E j_0,i dE, with j_0 the particle flow
+//!   from the scattering bath computed with the Σ0 that went into the last
+//!   pass. Because j_1 + j_2 + j_0 = 0 holds at every energy of any pass,
+//!   J_E,1 + J_E,2 = Σ_i P_i is an identity, true before convergence too;
+//! - the phonon side, mode by mode, from the final Green's functions alone:
+//!   P_m = ħω_m (emission rate − absorption rate) with
+//!   emission rate  = (g_s/h) Σ_s D_m,s (N_m + 1) Σ_k G^n_s(E_k) G^p_s(E_k − ħω_m) ΔE,
+//!   absorption rate = (g_s/h) Σ_s D_m,s N_m Σ_k G^n_s(E_k) G^p_s(E_k + ħω_m) ΔE,
+//!   values outside the grid counted as zero.
+//!
+//! Where the second comes from: rebuild Σ^in_0 and Σ^out_0 of the phonons
+//! from the final G (an electron reaches E by emission from E + ħω, with
+//! weight N + 1, or by absorption from E − ħω, with weight N; it leaves E
+//! likewise into empty states G^p at E ∓ ħω) and put them in
+//! −∫ E (Σ^in G^p − Σ^out G^n) dE. Shifting the summation index by the
+//! whole number of grid steps of ħω pairs every in-term with an out-term of
+//! the same transition; the pair differs only in the energy E at which it
+//! is counted, by exactly ħω, which leaves ħω × rate. Elastic dephasing
+//! gives Σ^in G^p − Σ^out G^n = d (G^n G^p − G^p G^n) = 0 at every energy,
+//! so its phonon-side power is exactly zero. At the fixed point of the Born
+//! loop the rebuilt Σ0 equals the one fed in, so Σ_m P_m = Σ_i P_i; before
+//! it they differ by an amount set by how far the loop is from its fixed
+//! point. The same rebuilt Σ0 conserves particles exactly, so the charge
+//! residual I_1 + I_2 also measures the distance from the fixed point.
+
+use super::flow_scale;
+use crate::scba::Solution;
+use crate::units::ELEMENTARY_CHARGE;
+
+/// Emission and absorption of one phonon mode, from the final Green's
+/// functions.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct ModePower {
+    /// ħω_m (eV), on the grid.
+    pub energy_ev: f64,
+    /// Phonons emitted per second, all sites.
+    pub emission_per_s: f64,
+    /// Phonons absorbed per second, all sites.
+    pub absorption_per_s: f64,
+    /// P_m = ħω_m (emission − absorption) (W), positive: lattice heated.
+    pub power_w: f64,
+}
+
+impl ModePower {
+    /// Gross power exchanged with the mode, ħω_m (emission + absorption) (W).
+    pub fn gross_w(&self) -> f64 {
+        self.energy_ev * ELEMENTARY_CHARGE * (self.emission_per_s + self.absorption_per_s)
+    }
+}
+
+/// Emission, absorption and lattice power of every phonon mode, computed
+/// from the Green's functions of the last pass alone (module docs).
+pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
+    let p = &sol.problem;
+    let g = &sol.pass.green;
+    let ns = g.sites;
+    let ne = p.grid.count;
+    let rate = flow_scale(p) * p.grid.step_ev;
+    p.scattering
+        .phonons
+        .iter()
+        .map(|m| {
+            let n = m.occupation();
+            let w = m.steps;
+            let (mut emit, mut absorb) = (0.0, 0.0);
+            for s in 0..ns {
+                let d = m.coupling_ev2[s];
+                if d == 0.0 {
+                    continue;
+                }
+                let (mut e_s, mut a_s) = (0.0, 0.0);
+                for k in 0..ne {
+                    let filled = g.filled[k * ns + s];
+                    if k >= w {
+                        e_s += filled * g.empty((k - w) * ns + s);
+                    }
+                    if k + w < ne {
+                        a_s += filled * g.empty((k + w) * ns + s);
+                    }
+                }
+                emit += d * (n + 1.0) * e_s;
+                absorb += d * n * a_s;
+            }
+            let (emission_per_s, absorption_per_s) = (emit * rate, absorb * rate);
+            ModePower {
+                energy_ev: m.energy_ev,
+                emission_per_s,
+                absorption_per_s,
+                power_w: m.energy_ev * ELEMENTARY_CHARGE * (emission_per_s - absorption_per_s),
+            }
+        })
+        .collect()
+}
+
+/// What a ledger entry compares and relative to what; the same words go
+/// into summary.json and the report.
+pub const LEDGER_COMPARES: [(&str, &str); 5] = [
+    (
+        "charge",
+        "I_1 + I_2 (current into the device from both contacts), relative to \
+         max(|I_1|, the solver's current floor): zero at the fixed point of the Born loop",
+    ),
+    (
+        "energy",
+        "J_E,1 + J_E,2 − Σ_i P_i (leads' energy loss against the electron-side lattice \
+         power), relative to the gross energy exchange Σ_k |E_k| (inflow + outflow of \
+         leads and bath) e ΔE: an identity of every pass, not a convergence check",
+    ),
+    (
+        "lattice",
+        "Σ_m P_m − Σ_i P_i (phonon-side lattice power from the final Green's functions \
+         against the electron-side one from the Σ0 fed into the last pass), relative to \
+         the power scale",
+    ),
+    (
+        "leads_lattice",
+        "J_E,1 + J_E,2 − Σ_m P_m (leads' energy loss against the phonon-side lattice \
+         power), relative to the power scale",
+    ),
+    (
+        "heat",
+        "Σ_i P_i − (I·V + J_Q,1 + J_Q,2), relative to the gross heat exchange \
+         Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I·V| (g_α: inflow plus outflow \
+         of lead α)",
+    ),
+];
+
+/// The power scale of the lattice entries, in words.
+pub const POWER_SCALE: &str = "gross phonon exchange Σ_m ħω_m (emission + absorption) plus \
+     the gross heat exchange of the leads Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I·V|";
+
+/// Conservation ledger: each entry an absolute residual (A or W), the scale
+/// it is measured against and the ratio. [`LEDGER_COMPARES`] says in words
+/// what each entry compares.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Ledger {
+    /// I_1 + I_2 (A).
+    pub charge_a: f64,
+    /// max(|I_1|, current floor of the solver settings) (A).
+    pub charge_scale_a: f64,
+    /// |I_1 + I_2| / `charge_scale_a`.
+    pub charge_relative: f64,
+    /// J_E,1 + J_E,2 − Σ_i P_i (W). An identity: j_1 + j_2 + j_0 = 0 holds
+    /// at every energy of every pass, so this stays at rounding level even
+    /// far from convergence. Kept as a check of the bookkeeping, not of the
+    /// physics; it does not enter [`Ledger::worst_relative`].
+    pub energy_w: f64,
+    /// |energy_w| / Σ_k |E_k| (g_1 + g_2 + g_0) e ΔE (gross exchange with
+    /// leads and bath).
+    pub energy_relative: f64,
+    /// Σ_m P_m − Σ_i P_i (W): phonon-side against electron-side lattice power.
+    pub lattice_w: f64,
+    /// |lattice_w| / `power_scale_w`.
+    pub lattice_relative: f64,
+    /// J_E,1 + J_E,2 − Σ_m P_m (W): the leads' energy loss against the
+    /// phonon-side lattice power.
+    pub leads_lattice_w: f64,
+    /// |leads_lattice_w| / `power_scale_w`.
+    pub leads_lattice_relative: f64,
+    /// Scale of the lattice entries (W): Σ_m ħω_m (emission + absorption)
+    /// plus the gross heat exchange of the leads (see [`POWER_SCALE`]).
+    pub power_scale_w: f64,
+    /// Σ_i P_i − (I·V + J_Q,1 + J_Q,2) (W).
+    pub heat_w: f64,
+    /// |heat_w| / (Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I V|).
+    pub heat_relative: f64,
+}
+
+impl Ledger {
+    /// Largest relative residual of the entries that test the physics:
+    /// charge, lattice, leads_lattice and heat (the energy identity is left
+    /// out).
+    pub fn worst_relative(&self) -> f64 {
+        self.charge_relative
+            .max(self.lattice_relative)
+            .max(self.leads_lattice_relative)
+            .max(self.heat_relative)
+    }
+
+    /// (name, relative residual) of every entry, in the order of
+    /// [`LEDGER_COMPARES`].
+    pub fn relative_entries(&self) -> [(&'static str, f64); 5] {
+        [
+            ("charge", self.charge_relative),
+            ("energy", self.energy_relative),
+            ("lattice", self.lattice_relative),
+            ("leads_lattice", self.leads_lattice_relative),
+            ("heat", self.heat_relative),
+        ]
+    }
+}
+
+/// |x| / scale, or |x| when the scale is zero.
+pub(super) fn relative(x: f64, scale: f64) -> f64 {
+    if scale > 0.0 {
+        x.abs() / scale
+    } else {
+        x.abs()
+    }
+}
