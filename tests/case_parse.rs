@@ -281,6 +281,124 @@ fn phonon_snapping_is_reported() {
 }
 
 #[test]
+fn a_coarse_phonon_snap_is_an_error_unless_allowed() {
+    // 3 meV on a 2 meV grid: 1.5 steps round to 2, so ħω becomes 4 meV
+    // (+33 %). The limit is 5 %: beyond it the phonon is another phonon.
+    let phonon = "[[phonon]]\nenergy_ev = 0.003\ncoupling_ev2 = 1e-3\n";
+    let text = format!("{BASE}[grid]\nstep_ev = 0.002\n{phonon}");
+    let err = Case::parse(&text, "test.toml", Path::new(".")).unwrap_err();
+    assert_eq!(err.key.as_deref(), Some("phonon.0.energy_ev"), "{err}");
+    assert!(err.location.is_some(), "{err}");
+    let shown = err.to_string();
+    for part in [
+        "3.0000 meV",
+        "snaps to 4.0000 meV",
+        "step 2.0000 meV",
+        "finer grid.step_ev",
+        "allow_coarse_phonon_snap = true",
+    ] {
+        assert!(shown.contains(part), "`{part}` missing: {shown}");
+    }
+    // Asked for explicitly: accepted, with a warning, and `check` says so.
+    let r = resolved(&format!(
+        "[grid]\nstep_ev = 0.002\nallow_coarse_phonon_snap = true\n{phonon}"
+    ));
+    let m = &r.problem.scattering.phonons[0];
+    assert_eq!(m.steps, 2);
+    assert!(
+        r.warnings
+            .iter()
+            .any(|w| w.contains("phonon.0") && w.contains("allow_coarse_phonon_snap")),
+        "{:?}",
+        r.warnings
+    );
+    let shown = r.describe();
+    assert!(
+        shown.contains("moved by at most 33.33 %")
+            && shown.contains("grid.allow_coarse_phonon_snap = true"),
+        "{shown}"
+    );
+    // Without a coarse snap `check` states the limit and the key.
+    let r =
+        resolved("[grid]\nstep_ev = 0.002\n[[phonon]]\nenergy_ev = 0.036\ncoupling_ev2 = 1e-3\n");
+    assert!(
+        r.describe()
+            .contains("at most 5 % allowed (grid.allow_coarse_phonon_snap = true accepts more)"),
+        "{}",
+        r.describe()
+    );
+    // 21 meV on a 2 meV grid becomes 22 meV (+4.8 %): under the limit, a warning.
+    let r =
+        resolved("[grid]\nstep_ev = 0.002\n[[phonon]]\nenergy_ev = 0.021\ncoupling_ev2 = 1e-3\n");
+    assert!(
+        r.warnings.iter().any(|w| w.contains("snapped")),
+        "{:?}",
+        r.warnings
+    );
+}
+
+#[test]
+fn grid_keys_set_by_with_value_keep_the_snap_rules() {
+    // Linear-response runs set the grid explicitly through with_value: the
+    // permission key survives the regenerated document, and without it the
+    // same edit is refused with the key named.
+    let phonon = "[[phonon]]\nenergy_ev = 0.036\ncoupling_ev2 = 1e-3\n";
+    let strict = with(&format!("[grid]\nstep_ev = 0.002\n{phonon}"));
+    for (k, v) in [
+        ("grid.min_ev", -0.05),
+        ("grid.max_ev", 0.6),
+        ("grid.step_ev", 0.004),
+    ] {
+        strict
+            .with_value(k, v)
+            .unwrap_or_else(|e| panic!("{k}: {e}"));
+    }
+    // 36 meV on a 10 meV grid: 4 steps = 40 meV, +11 %.
+    let err = strict.with_value("grid.step_ev", 0.01).unwrap_err();
+    assert_eq!(err.key.as_deref(), Some("phonon.0.energy_ev"), "{err}");
+    assert!(
+        err.to_string().contains("after setting `grid.step_ev`"),
+        "{err}"
+    );
+    let allowed = with(&format!(
+        "[grid]\nstep_ev = 0.002\nallow_coarse_phonon_snap = true\n{phonon}"
+    ));
+    let r = allowed
+        .with_value("grid.step_ev", 0.01)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert_eq!(r.problem.scattering.phonons[0].steps, 4);
+}
+
+#[test]
+fn phonon_energies_beyond_lattices_or_the_window_are_refused() {
+    // No lattice vibrates above about 0.2 eV; 0.5 eV is the limit so that a
+    // value in meV written as eV cannot pass.
+    let err = Case::parse(
+        &format!("{BASE}[[phonon]]\nenergy_ev = 0.55\ncoupling_ev2 = 1e-3\n"),
+        "test.toml",
+        Path::new("."),
+    )
+    .unwrap_err();
+    assert_eq!(err.key.as_deref(), Some("phonon.0.energy_ev"), "{err}");
+    assert!(err.to_string().contains("≤ 0.5"), "{err}");
+    assert!(err.to_string().contains("found 0.55 eV"), "{err}");
+    // An explicit window 0.2 eV wide cannot hold a 0.25 eV phonon.
+    let err = Case::parse(
+        &format!(
+            "{BASE}[grid]\nmin_ev = 0.0\nmax_ev = 0.2\n[[phonon]]\nenergy_ev = 0.25\ncoupling_ev2 = 1e-3\n"
+        ),
+        "test.toml",
+        Path::new("."),
+    )
+    .unwrap_err();
+    assert_eq!(err.key.as_deref(), Some("phonon.0.energy_ev"), "{err}");
+    assert!(err.to_string().contains("0 < ħω <"), "{err}");
+    assert!(err.to_string().contains("found 0.25 eV"), "{err}");
+}
+
+#[test]
 fn phonon_and_dephasing_regions_cover_cells_from_le_x_lt_to() {
     let r = resolved(
         "[[phonon]]\nenergy_ev = 0.03\ncoupling_ev2 = 1e-3\nfrom_nm = 5.0\nto_nm = 7.0\nbath_temperature_k = 77.0\n[dephasing]\nstrength_ev2 = 2e-3\nfrom_nm = 0.0\nto_nm = 1.0\n",

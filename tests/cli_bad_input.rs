@@ -54,7 +54,7 @@ fn expectations(text: &str) -> Vec<String> {
 #[test]
 fn every_bad_case_exits_1_with_file_position_and_expected_fragments() {
     let files = bad_cases();
-    assert!(files.len() >= 60, "only {} bad cases", files.len());
+    assert!(files.len() >= 94, "only {} bad cases", files.len());
     let tmp = tempfile::tempdir().unwrap();
     let mut failures = Vec::new();
     for path in &files {
@@ -248,4 +248,400 @@ fn a_case_too_large_for_memory_is_refused_up_front_with_the_estimate() {
         .unwrap();
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert!(out.join("summary.json").exists());
+}
+
+/// One command line that must be refused: its exit code and fragments of
+/// the message (the option, what was expected, what was found).
+struct BadLine {
+    args: Vec<String>,
+    code: i32,
+    expect: &'static [&'static str],
+}
+
+#[test]
+fn bad_options_are_refused_with_the_option_expected_and_found() {
+    let tmp = tempfile::tempdir().unwrap();
+    let case = good_case(tmp.path());
+    let c = case.to_str().unwrap().to_string();
+    let blocker = tmp.path().join("a-file");
+    std::fs::write(&blocker, "keep me").unwrap();
+    let under_file = blocker.join("results").to_str().unwrap().to_string();
+    let b = blocker.to_str().unwrap().to_string();
+    // A folder of someone else's files must not be replaced by results.
+    let foreign = tmp.path().join("notes");
+    std::fs::create_dir(&foreign).unwrap();
+    std::fs::write(foreign.join("thesis.txt"), "keep me").unwrap();
+    let f = foreign.to_str().unwrap().to_string();
+    let out = |name: &str| tmp.path().join(name).to_str().unwrap().to_string();
+    let line = |cmd: &[&str], code: i32, expect: &'static [&'static str]| BadLine {
+        args: cmd.iter().map(|a| a.replace("CASE", &c)).collect(),
+        code,
+        expect,
+    };
+    let vary = |spec: &str, expect: &'static [&'static str]| BadLine {
+        args: vec![
+            "sweep".into(),
+            c.clone(),
+            "--vary".into(),
+            spec.into(),
+            "-o".into(),
+            out("sweep"),
+        ],
+        code: 1,
+        expect,
+    };
+    let cases = vec![
+        // --vary strings
+        vary(
+            "bias.voltage_v",
+            &["--vary `bias.voltage_v`", "found no `=`"],
+        ),
+        vary(
+            "bias.voltage_v=0:1",
+            &["START:STOP:COUNT", "found 2 field(s)"],
+        ),
+        vary("=0:1:3", &["expected a case key", "empty key"]),
+        vary(
+            "bias.voltge_v=0:0.1:3",
+            &[
+                "--vary `bias.voltge_v=0:0.1:3`",
+                "did you mean `bias.voltage_v`",
+            ],
+        ),
+        vary("bias.voltage_v=0:0.1:0", &["COUNT", "found `0`"]),
+        vary(
+            "bias.voltage_v=0:0.1:2.5",
+            &["whole number ≥ 1 for COUNT", "found `2.5`"],
+        ),
+        vary(
+            "bias.voltage_v=nan:0.1:3",
+            &["finite number for START", "found `nan`"],
+        ),
+        vary(
+            "bias.voltage_v=0:1e400:3",
+            &["finite number for STOP", "found `1e400`"],
+        ),
+        vary(
+            "bias.voltage_v=0.05:0.05:3",
+            &[
+                "STOP different from START",
+                "START = STOP = 0.05",
+                "COUNT = 1",
+            ],
+        ),
+        vary(
+            "name=0:1:3",
+            &[
+                "--vary `name=0:1:3`",
+                "expected a numeric case key",
+                "numeric keys of this case: spin_degeneracy",
+            ],
+        ),
+        vary(
+            "device.builder=0:1:3",
+            &["key `device.builder`", "expected a numeric case key"],
+        ),
+        vary(
+            "leads.left.temperature_k=300:-1:3",
+            &[
+                "--vary `leads.left.temperature_k=300:-1:3`",
+                "K > 0, found -1",
+            ],
+        ),
+        vary(
+            "spin_degeneracy=1:2:3",
+            &["grid point 1", "whole number, found 1.5"],
+        ),
+        vary(
+            "phonon.0.energy_ev=0.01:0.02:3",
+            &[
+                "key `phonon.0.energy_ev`",
+                "existing [[phonon]] entry, found none",
+            ],
+        ),
+        line(
+            &[
+                "sweep",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.1:2",
+                "--vary",
+                "leads.left.temperature_k+bias.voltage_v=290:300:2",
+            ],
+            1,
+            &["found `bias.voltage_v` twice", "one --vary per key"],
+        ),
+        line(
+            &[
+                "sweep",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.1:400",
+                "--vary",
+                "leads.left.temperature_k=290:300:400",
+            ],
+            1,
+            &["at most 100000 grid points", "found 160000"],
+        ),
+        // generator and cooler
+        line(
+            &["generator", "CASE", "--hot", "300", "--cold", "300"],
+            1,
+            &["--hot 300 --cold 300", "expected --hot > --cold"],
+        ),
+        line(
+            &["generator", "CASE", "--hot", "200", "--cold", "300"],
+            1,
+            &["expected --hot > --cold", "swap the two values"],
+        ),
+        line(
+            &["generator", "CASE", "--hot", "nan", "--cold", "300"],
+            1,
+            &["--hot: expected a lead temperature in K > 0, found NaN"],
+        ),
+        line(
+            &["generator", "CASE", "--hot", "310", "--cold", "-5"],
+            1,
+            &["--cold: expected a lead temperature in K > 0, found -5"],
+        ),
+        line(
+            &[
+                "generator",
+                "CASE",
+                "--hot",
+                "310",
+                "--cold",
+                "300",
+                "--points",
+                "2",
+            ],
+            1,
+            &["--points: expected 3 to 10000", "found 2"],
+        ),
+        line(
+            &["cooler", "CASE", "--hot", "300", "--cold", "310"],
+            1,
+            &["expected --hot ≥ --cold", "found --hot < --cold"],
+        ),
+        line(
+            &["cooler", "CASE", "--hot", "310", "--cold", "0"],
+            1,
+            &["--cold: expected a lead temperature in K > 0, found 0"],
+        ),
+        line(
+            &["cooler", "CASE", "--hot", "inf", "--cold", "300"],
+            1,
+            &["--hot: expected a lead temperature in K > 0, found inf"],
+        ),
+        line(
+            &[
+                "cooler", "CASE", "--hot", "310", "--cold", "300", "--points", "10001",
+            ],
+            1,
+            &["--points: expected 3 to 10000", "found 10001"],
+        ),
+        line(
+            &[
+                "cooler",
+                "CASE",
+                "--hot",
+                "310",
+                "--cold",
+                "300",
+                "--cold-lead",
+                "middle",
+            ],
+            1,
+            &["invalid value 'middle'", "left, right"],
+        ),
+        // screen
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "best",
+            ],
+            1,
+            &["invalid value 'best'", "zt, power-factor, cooling"],
+        ),
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "cooling",
+            ],
+            1,
+            &["--rank cooling needs --hot K and --cold K"],
+        ),
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "zt",
+                "--hot",
+                "310",
+                "--cold",
+                "300",
+            ],
+            1,
+            &["--hot, --cold: expected only with --rank cooling"],
+        ),
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "cooling",
+                "--hot",
+                "310",
+                "--cold",
+                "300",
+                "--points",
+                "2",
+            ],
+            1,
+            &["--points: expected 3 to 10000", "found 2"],
+        ),
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "cooling",
+                "--hot",
+                "290",
+                "--cold",
+                "300",
+            ],
+            1,
+            &["expected --hot ≥ --cold"],
+        ),
+        line(
+            &["solve", "CASE", "--threads", "100000"],
+            1,
+            &["--threads must be at most 1024, found 100000"],
+        ),
+        // result folders that cannot be written (a regular file in the way
+        // stops root too)
+        line(
+            &["solve", "CASE", "-o", &b],
+            3,
+            &["is a regular file, not a folder"],
+        ),
+        line(
+            &["coefficients", "CASE", "-o", &under_file],
+            3,
+            &["a-file` above it is a regular file"],
+        ),
+        line(
+            &[
+                "sweep",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "-o",
+                &under_file,
+            ],
+            3,
+            &["a-file` above it is a regular file"],
+        ),
+        line(
+            &[
+                "generator",
+                "CASE",
+                "--hot",
+                "310",
+                "--cold",
+                "300",
+                "-o",
+                &under_file,
+            ],
+            3,
+            &["a-file` above it is a regular file"],
+        ),
+        line(
+            &[
+                "screen",
+                "CASE",
+                "--vary",
+                "bias.voltage_v=0:0.01:2",
+                "--rank",
+                "zt",
+                "-o",
+                &under_file,
+            ],
+            3,
+            &["a-file` above it is a regular file"],
+        ),
+        line(
+            &["solve", "CASE", "-o", &f],
+            1,
+            &[
+                "found a folder with other files",
+                "choose another -o folder",
+            ],
+        ),
+        line(
+            &["solve", "CASE", "--warm-start", &out("no-such-run")],
+            1,
+            &["--warm-start", "found no such folder"],
+        ),
+        line(
+            &["solve", "CASE", "--warm-start", &f],
+            1,
+            &["--warm-start", "self_energy_retarded.npy", "found none"],
+        ),
+    ];
+    assert!(cases.len() >= 40, "{} command lines", cases.len());
+    let mut failures = Vec::new();
+    for (i, case) in cases.iter().enumerate() {
+        // Never the default folder under the working directory.
+        let unused = out(&format!("unused-{i}"));
+        let mut args: Vec<&str> = case.args.iter().map(String::as_str).collect();
+        if !args.contains(&"-o") {
+            args.extend(["-o", unused.as_str()]);
+        }
+        // Notes about the case are not part of the answer.
+        args.push("--quiet");
+        let o = qheat(&args);
+        let what = format!("qheat {}", args.join(" "));
+        assert_no_panic(&o, &what);
+        let e = stderr(&o);
+        if o.status.code() != Some(case.code) {
+            failures.push(format!(
+                "{what}: exit {:?}, not {}\n{e}",
+                o.status.code(),
+                case.code
+            ));
+        }
+        for fragment in case.expect {
+            if !e.contains(fragment) {
+                failures.push(format!("{what}: `{fragment}` missing in\n{e}"));
+            }
+        }
+        if !e.starts_with("error: ") {
+            failures.push(format!("{what}: stderr does not start with `error: `\n{e}"));
+        }
+    }
+    // Nothing was moved, replaced or written where it was refused.
+    assert_eq!(std::fs::read_to_string(&blocker).unwrap(), "keep me");
+    assert_eq!(
+        std::fs::read_to_string(foreign.join("thesis.txt")).unwrap(),
+        "keep me"
+    );
+    assert!(!tmp.path().join("sweep").exists(), "a refused sweep wrote");
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
 }

@@ -109,7 +109,6 @@ fn read_npy(path: &Path) -> Result<BlockFile, String> {
     }
 }
 
-#[derive(serde::Deserialize)]
 struct Element {
     cell: usize,
     row: usize,
@@ -122,6 +121,7 @@ fn read_csv(path: &Path) -> Result<BlockFile, String> {
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
+        .flexible(true)
         .from_path(path)
         .map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
     let header: Vec<String> = reader
@@ -140,18 +140,55 @@ fn read_csv(path: &Path) -> Result<BlockFile, String> {
         ));
     }
     let mut elements = Vec::new();
-    for (i, rec) in reader.deserialize::<Element>().enumerate() {
-        // line i + 2: the header is line 1 (comment lines shift this; the
-        // csv reader reports its own position in the message)
-        let el = rec.map_err(|e| format!("file `{}`: {e}", path.display()))?;
-        if !el.re_ev.is_finite() || !el.im_ev.is_finite() {
-            return Err(format!(
-                "file `{}` record {}: non-finite value (NaN or infinity)",
+    for rec in reader.records() {
+        let rec = rec.map_err(|e| format!("file `{}`: {e}", path.display()))?;
+        let line = rec.position().map_or(0, |p| p.line());
+        let at = |col: usize| {
+            format!(
+                "file `{}` line {line}, column `{}`",
                 path.display(),
-                i + 1
+                want[col]
+            )
+        };
+        if rec.len() != want.len() {
+            return Err(format!(
+                "file `{}` line {line}: expected {} fields ({}), found {}",
+                path.display(),
+                want.len(),
+                want.join(","),
+                rec.len()
             ));
         }
-        elements.push(el);
+        let index = |col: usize| -> Result<usize, String> {
+            rec[col].parse::<usize>().map_err(|_| {
+                format!(
+                    "{}: expected a whole number ≥ 0, found `{}`",
+                    at(col),
+                    &rec[col]
+                )
+            })
+        };
+        let value = |col: usize| -> Result<f64, String> {
+            match rec[col].parse::<f64>() {
+                Ok(x) if x.is_finite() => Ok(x),
+                Ok(x) => Err(format!(
+                    "{}: expected a finite number, found a non-finite value (NaN or infinity) `{x}`",
+                    at(col)
+                )),
+                Err(_) => Err(format!(
+                    "{}: expected a number in eV, found `{}`",
+                    at(col),
+                    &rec[col]
+                )),
+            }
+        };
+        elements.push(Element {
+            cell: index(0)?,
+            row: index(1)?,
+            col: index(2)?,
+            re_ev: value(3)?,
+            im_ev: value(4)?,
+        });
         if elements.len() > MAX_ELEMENTS {
             return Err(format!("file `{}` has too many records", path.display()));
         }

@@ -30,6 +30,7 @@
 //! | `[[phonon]]` `energy_ev`, `coupling_ev2`, `from_nm`, `to_nm`, `bath_temperature_k` | Einstein modes | bath: mean lead T |
 //! | `dephasing.strength_ev2`, `from_nm`, `to_nm` | elastic dephasing | none |
 //! | `grid.step_ev`, `min_ev`, `max_ev` | energy grid | see [`Resolved`] |
+//! | `grid.allow_coarse_phonon_snap` | `true` accepts a phonon energy moved by more than 5 % when snapped to the grid | false |
 //! | `solver.*` | `tolerance`, `max_iterations`, `mixing`, `mixing_factor`, `anderson_depth`, `anderson_damping`, `hermitian_part`, `energy_order` (`auto`, `simultaneous`, `red-black`: see [`crate::scba::EnergyOrder`]), `current_floor_a`, `decimation_eta_ev`, `decimation_tolerance_ev` | 1e-7, 300, anderson, 0.5, 6, 1.0, neglect, auto, 1e-18, 1e-7, 1e-13 |
 //! | `response.split` | `"symmetric"` or `"left-only"` | symmetric |
 //! | `thermal.phonon_conductance_w_per_k` | κ_ph for ZT | 0 (noted) |
@@ -56,8 +57,14 @@
 //!   the lowest device level and the lower Fermi level.
 //! - max: max(µL, µR) + 20·kB·T_max + the largest snapped ħω.
 //!
-//! Phonon energies are snapped to a whole number of grid steps; a change
-//! of more than 1 % is a warning.
+//! Phonon energies (0 < ħω ≤ 0.5 eV, and below the width of the energy
+//! window) are snapped to a whole number of grid steps; a change of more
+//! than 1 % is a warning, of more than 5 % an error unless
+//! `grid.allow_coarse_phonon_snap = true`.
+//!
+//! `[[phonon]]` and `[[device.region]]` hold one table per entry (double
+//! brackets); every other section is a single `[table]`. Writing one form
+//! for the other is an error that names the header to write.
 
 mod blocks_file;
 mod error;

@@ -108,6 +108,8 @@ pub(crate) struct RawGrid {
     pub step_ev: Opt<f64>,
     pub min_ev: Opt<f64>,
     pub max_ev: Opt<f64>,
+    /// Accept phonon energies moved by more than the snap limit.
+    pub allow_coarse_phonon_snap: Opt<bool>,
 }
 
 #[derive(Deserialize, Debug)]
@@ -148,6 +150,7 @@ pub(crate) struct RawProfile {
 pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, CaseError> {
     let index = match toml::de::DeTable::parse(text) {
         Ok(doc) => {
+            check_brackets(doc.get_ref(), text, ctx)?;
             let mut index = SpanIndex::default();
             index.walk_table(doc.get_ref(), "");
             index
@@ -170,6 +173,100 @@ pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, C
         }
     };
     toml::from_str::<RawCase>(text).map_err(|e| translate(&e, &index, ctx))
+}
+
+/// Keys that hold one table, written `[key]` (or `key = { … }`).
+const TABLE_KEYS: &[&str] = &[
+    "device",
+    "leads",
+    "leads.left",
+    "leads.right",
+    "bias",
+    "dephasing",
+    "grid",
+    "solver",
+    "response",
+    "thermal",
+    "profile",
+];
+
+/// Keys that hold a list of tables, each entry written under its own
+/// `[[key]]` header.
+const ARRAY_KEYS: &[&str] = &["phonon", "device.region"];
+
+/// The value at a dotted path and the span of its key.
+fn lookup<'t, 'a>(
+    table: &'t toml::de::DeTable<'a>,
+    path: &str,
+) -> Option<(&'t Spanned<toml::de::DeValue<'a>>, Range<usize>)> {
+    let (first, rest) = match path.split_once('.') {
+        Some((f, r)) => (f, Some(r)),
+        None => (path, None),
+    };
+    let (k, v) = table.iter().find(|(k, _)| {
+        let k: &str = k.get_ref();
+        k == first
+    })?;
+    match (rest, v.get_ref()) {
+        (None, _) => Some((v, k.span())),
+        (Some(r), toml::de::DeValue::Table(t)) => lookup(t, r),
+        _ => None,
+    }
+}
+
+/// Single against double brackets: `[phonon]` where each phonon needs its
+/// own `[[phonon]]` header, or `[[grid]]` where one `[grid]` table belongs.
+/// Serde would only say that the TOML type is wrong; this says which
+/// header to write.
+fn check_brackets(
+    doc: &toml::de::DeTable<'_>,
+    text: &str,
+    ctx: &ErrorContext<'_>,
+) -> Result<(), CaseError> {
+    // The header line itself is the clearest place to point at.
+    let at = |value: &Range<usize>, key: &Range<usize>| -> Range<usize> {
+        let line_start = text[..key.start.min(text.len())]
+            .rfind('\n')
+            .map_or(0, |p| p + 1);
+        if text[line_start..].trim_start().starts_with('[') {
+            line_start..key.end
+        } else {
+            value.clone()
+        }
+    };
+    for key in ARRAY_KEYS {
+        if let Some((v, kspan)) = lookup(doc, key)
+            && let toml::de::DeValue::Table(_) = v.get_ref()
+        {
+            return Err(ctx.error(
+                CaseErrorKind::WrongType,
+                Some(at(&v.span(), &kspan)),
+                Some(key),
+                format!(
+                    "expected a list of tables, each entry under its own `[[{key}]]` header \
+                     (double brackets), found a single table (`[{key}]` or `{key} = {{ … }}`); \
+                     hint: it must be written `[[{key}]]`"
+                ),
+            ));
+        }
+    }
+    for key in TABLE_KEYS {
+        if let Some((v, kspan)) = lookup(doc, key)
+            && let toml::de::DeValue::Array(_) = v.get_ref()
+        {
+            return Err(ctx.error(
+                CaseErrorKind::WrongType,
+                Some(at(&v.span(), &kspan)),
+                Some(key),
+                format!(
+                    "expected one table under a `[{key}]` header (single brackets), \
+                     found a list (`[[{key}]]` or `{key} = [ … ]`); \
+                     hint: it must be written `[{key}]`, once"
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Dotted key paths of every key and value of the document, by span: lets

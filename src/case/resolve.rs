@@ -18,6 +18,10 @@ use std::fmt::Write as _;
 /// tiny next to the window.
 const MAX_ENERGIES: usize = 2_000_000;
 
+/// Largest relative change of a phonon energy by snapping it to the grid
+/// that is accepted without `grid.allow_coarse_phonon_snap = true`.
+pub(crate) const MAX_SNAP: f64 = 0.05;
+
 /// A case resolved into the numbers the solver needs.
 #[derive(Clone, Debug)]
 pub struct Resolved {
@@ -48,6 +52,9 @@ pub struct Resolved {
     /// Fit a local electron temperature per cell as well as the local Fermi
     /// level (`profile.electron_temperature = "fit"`).
     pub fit_electron_temperature: bool,
+    /// `grid.allow_coarse_phonon_snap`: phonon energies may move by more
+    /// than 5 % when snapped to the grid.
+    pub allow_coarse_phonon_snap: bool,
 }
 
 /// Periodic lead blocks (on-site, coupling along +x) for a chain or strip
@@ -423,20 +430,61 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     // ---- scattering ----
     let mut phonons = Vec::new();
     for (i, (p, &(steps, energy))) in spec.phonons.iter().zip(&snapped).enumerate() {
+        let key = format!("phonon.{i}.energy_ev");
         if p.energy_ev >= width || energy >= width {
+            let hint = if spec.grid.min_ev.is_some() || spec.grid.max_ev.is_some() {
+                "; hint: widen grid.min_ev … grid.max_ev, or leave them out so the window follows the phonons"
+            } else {
+                ""
+            };
             return Err(ctx.invalid(
                 p.energy_span.clone(),
-                &format!("phonon.{i}.energy_ev"),
-                &format!("a phonon energy below the energy window width {width:.4} eV"),
-                format!("{} eV", p.energy_ev),
+                &key,
+                &format!(
+                    "a phonon energy 0 < ħω < {width:.4} eV, the width of the energy window \
+                     [{:.4}, {:.4}] eV (otherwise no E ± ħω lands on the grid)",
+                    grid.min_ev,
+                    grid.max_ev()
+                ),
+                format!("{} eV{hint}", p.energy_ev),
             ));
         }
-        if (energy - p.energy_ev).abs() > 0.01 * p.energy_ev {
+        let change = (energy - p.energy_ev) / p.energy_ev;
+        if change.abs() > MAX_SNAP && !spec.grid.allow_coarse_snap {
+            // The step that represents ħω exactly with no more than the
+            // current step size.
+            let k = (p.energy_ev / step).ceil().max(1.0);
+            return Err(ctx.invalid(
+                p.energy_span.clone(),
+                &key,
+                &format!(
+                    "a phonon energy that the grid step {:.4} meV represents within {:.0} % \
+                     (ħω is snapped to a whole number of steps)",
+                    step * 1e3,
+                    MAX_SNAP * 100.0
+                ),
+                format!(
+                    "{:.4} meV, which snaps to {:.4} meV ({steps} step(s)), a change of {:+.1} %; \
+                     hint: a finer grid.step_ev (ħω/{k} = {:.6e} eV makes it exact), or \
+                     `allow_coarse_phonon_snap = true` under [grid] to accept the snapped energy",
+                    p.energy_ev * 1e3,
+                    energy * 1e3,
+                    100.0 * change,
+                    p.energy_ev / k
+                ),
+            ));
+        }
+        if change.abs() > 0.01 {
+            let allowed = if change.abs() > MAX_SNAP {
+                " (accepted because grid.allow_coarse_phonon_snap = true)"
+            } else {
+                ""
+            };
             warnings.push(format!(
-                "phonon.{i}.energy_ev = {:.3} meV was snapped to {:.3} meV ({steps} grid steps), a change of {:.1} %: use a finer grid.step_ev",
+                "phonon.{i}.energy_ev = {:.3} meV was snapped to {:.3} meV ({steps} grid steps), a change of {:.1} %{allowed}: use a finer grid.step_ev",
                 p.energy_ev * 1e3,
                 energy * 1e3,
-                100.0 * (energy - p.energy_ev) / p.energy_ev
+                100.0 * change
             ));
         }
         let coupling = site_vector(&dev, p.from_nm, p.to_nm, p.coupling_ev2);
@@ -522,6 +570,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
         zero_bias_fermi_levels_ev: (mu_l0, mu_r0),
         phonon_conductance_w_per_k: phonon_conductance,
         fit_electron_temperature: spec.fit_electron_temperature,
+        allow_coarse_phonon_snap: spec.grid.allow_coarse_snap,
         response_split: spec.response_split,
         bias_drop: spec.drop.clone(),
         warnings,
@@ -661,6 +710,27 @@ impl Resolved {
                 m.steps,
                 m.bath_temperature_k,
                 m.occupation()
+            );
+        }
+        if !p.scattering.phonons.is_empty() {
+            let worst = p
+                .scattering
+                .phonons
+                .iter()
+                .map(|m| (m.energy_ev / m.requested_energy_ev - 1.0).abs())
+                .fold(0.0, f64::max);
+            let rule = if self.allow_coarse_phonon_snap {
+                "any change accepted (grid.allow_coarse_phonon_snap = true)".to_string()
+            } else {
+                format!(
+                    "at most {:.0} % allowed (grid.allow_coarse_phonon_snap = true accepts more)",
+                    MAX_SNAP * 100.0
+                )
+            };
+            let _ = writeln!(
+                s,
+                "snapping    ħω moved by at most {:.2} %; {rule}",
+                100.0 * worst
             );
         }
         let deph = &p.scattering.dephasing_ev2;

@@ -16,6 +16,10 @@ use toml::Spanned;
 /// Energies in eV (given or derived) beyond this size are refused: no band
 /// structure this engine models comes near, and it keeps every sum finite.
 pub(crate) const MAX_ENERGY_EV: f64 = 1e6;
+/// Largest phonon energy accepted (eV): the stiffest lattice vibrations
+/// (light atoms, strong bonds) stay well below this, so a larger value is a
+/// unit slip (meV for eV) or a typo.
+pub(crate) const MAX_PHONON_EV: f64 = 0.5;
 /// Lengths and spacings beyond this (1 m) are refused for the same reason.
 const MAX_LENGTH_NM: f64 = 1e9;
 /// Largest device: cells, and complex elements N·b² of the on-site blocks.
@@ -115,6 +119,9 @@ pub(crate) struct GridSpec {
     pub step_ev: Option<At<f64>>,
     pub min_ev: Option<At<f64>>,
     pub max_ev: Option<At<f64>>,
+    /// `grid.allow_coarse_phonon_snap`: accept phonon energies moved by
+    /// more than [`super::resolve::MAX_SNAP`] when snapped to the grid.
+    pub allow_coarse_snap: bool,
 }
 
 /// A validated case.
@@ -803,12 +810,15 @@ pub(crate) fn validate(
             &format!("{prefix}.energy_ev"),
             "the phonon energy ħω in eV (> 0)",
         )?;
-        if e.value <= 0.0 || e.value > MAX_ENERGY_EV {
+        if e.value <= 0.0 || e.value > MAX_PHONON_EV {
             return Err(ck.ctx.invalid(
                 e.span,
                 &format!("{prefix}.energy_ev"),
-                "a phonon energy ħω in eV > 0",
-                show(e.value),
+                &format!(
+                    "a phonon energy ħω in eV > 0 and ≤ {MAX_PHONON_EV} \
+                     (lattice vibrations stay well below that; is the value in eV, not meV?)"
+                ),
+                format!("{} eV", show(e.value)),
             ));
         }
         let coupling = ck.required(
@@ -878,6 +888,7 @@ pub(crate) fn validate(
             step_ev: None,
             min_ev: None,
             max_ev: None,
+            allow_coarse_snap: false,
         },
         Some(g) => {
             let g = g.get_ref();
@@ -920,6 +931,10 @@ pub(crate) fn validate(
                 step_ev: step,
                 min_ev: min,
                 max_ev: max,
+                allow_coarse_snap: g
+                    .allow_coarse_phonon_snap
+                    .as_ref()
+                    .is_some_and(|b| *b.get_ref()),
             }
         }
     };

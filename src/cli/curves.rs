@@ -61,6 +61,51 @@ fn b(x: bool) -> f64 {
     if x { 1.0 } else { 0.0 }
 }
 
+/// Most points on one curve: each is a full solve, and curves this fine
+/// show nothing a coarser one does not.
+pub const MAX_CURVE_POINTS: usize = 10_000;
+
+/// Check --hot, --cold and --points before any work. `strict`: the hot lead
+/// must be strictly hotter (a generator needs a temperature difference; a
+/// cooler may also pump at ΔT = 0).
+pub fn check_curve_options(
+    hot: f64,
+    cold: f64,
+    points: usize,
+    strict: bool,
+) -> Result<(), Failure> {
+    for (name, t) in [("--hot", hot), ("--cold", cold)] {
+        if !(t.is_finite() && t > 0.0) {
+            return Err(Failure::BadInput(format!(
+                "{name}: expected a lead temperature in K > 0, found {t}"
+            )));
+        }
+    }
+    if strict && hot <= cold {
+        let hint = if hot == cold {
+            "a generator needs the hot lead hotter than the cold one"
+        } else {
+            "swap the two values"
+        };
+        return Err(Failure::BadInput(format!(
+            "--hot {hot} --cold {cold}: expected --hot > --cold (the hot lead drives the generator), \
+             found --hot ≤ --cold; hint: {hint}"
+        )));
+    }
+    if !strict && hot < cold {
+        return Err(Failure::BadInput(format!(
+            "--hot {hot} --cold {cold}: expected --hot ≥ --cold (the cooler pumps heat from the cold \
+             lead to the hot one), found --hot < --cold; hint: swap the two values"
+        )));
+    }
+    if !(3..=MAX_CURVE_POINTS).contains(&points) {
+        return Err(Failure::BadInput(format!(
+            "--points: expected 3 to {MAX_CURVE_POINTS} points on the curve, found {points}"
+        )));
+    }
+    Ok(())
+}
+
 /// `qheat generator CASE --hot K --cold K`.
 pub fn generator(
     path: &Path,
@@ -70,6 +115,7 @@ pub fn generator(
     out: Option<&Path>,
     common: &Common,
 ) -> Result<(), Failure> {
+    check_curve_options(hot, cold, points, true)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
     let settings = GeneratorSettings {
@@ -168,6 +214,7 @@ pub fn cooler(
     out: Option<&Path>,
     common: &Common,
 ) -> Result<(), Failure> {
+    check_curve_options(hot, cold, points, false)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
     let settings = CoolerSettings {

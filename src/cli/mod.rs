@@ -11,7 +11,7 @@ mod solve;
 mod sweep;
 
 use clap::{Parser, Subcommand};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 /// Electro-thermal quantum transport: charge and heat currents,
@@ -81,10 +81,10 @@ pub enum Command {
         /// Case file (TOML).
         case: PathBuf,
         /// Hot (left) lead temperature (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         hot: f64,
         /// Cold (right) lead temperature (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         cold: f64,
         /// Load voltages from 0 to the open-circuit voltage.
         #[arg(long, default_value_t = 41)]
@@ -98,10 +98,10 @@ pub enum Command {
         /// Case file (TOML).
         case: PathBuf,
         /// Hot lead temperature (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         hot: f64,
         /// Cold lead temperature (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         cold: f64,
         /// Bias points on the curve.
         #[arg(long, default_value_t = 41)]
@@ -124,14 +124,14 @@ pub enum Command {
         #[arg(long, value_enum)]
         rank: screen::RankBy,
         /// Hot (left) lead temperature for --rank cooling (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         hot: Option<f64>,
         /// Cold (right) lead temperature for --rank cooling (K).
-        #[arg(long, value_name = "K")]
+        #[arg(long, value_name = "K", allow_negative_numbers = true)]
         cold: Option<f64>,
-        /// Bias points per cooler curve for --rank cooling.
-        #[arg(long, default_value_t = 21)]
-        points: usize,
+        /// Bias points per cooler curve for --rank cooling [default: 21].
+        #[arg(long)]
+        points: Option<usize>,
         /// Result folder, also holding the finished points (default:
         /// runs/<case name>-screen).
         #[arg(short, long)]
@@ -214,6 +214,17 @@ pub fn run() -> ExitCode {
         eprintln!("error: --threads must be at least 1");
         return ExitCode::from(1);
     }
+    if threads > MAX_THREADS {
+        eprintln!(
+            "error: --threads must be at most {MAX_THREADS}, found {threads}; \
+             hint: one thread per core is the fastest (leave --threads out to use all cores)"
+        );
+        return ExitCode::from(1);
+    }
+    if let Err(f) = check_paths(&cli.command) {
+        eprintln!("error: {}", f.message());
+        return ExitCode::from(f.code());
+    }
     // The global pool can be set once; tests run commands in fresh processes.
     let _ = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -271,7 +282,7 @@ pub fn run() -> ExitCode {
             *rank,
             *hot,
             *cold,
-            *points,
+            points.as_ref().copied(),
             out.as_deref(),
             &common,
         ),
@@ -283,6 +294,85 @@ pub fn run() -> ExitCode {
             eprintln!("error: {}", f.message());
             ExitCode::from(f.code())
         }
+    }
+}
+
+/// Most worker threads accepted: far beyond any core count, and each
+/// thread reserves its own stack.
+const MAX_THREADS: usize = 1024;
+
+/// The first existing ancestor of `path` (itself included), if any.
+fn existing_ancestor(path: &Path) -> Option<&Path> {
+    path.ancestors()
+        .find(|a| !a.as_os_str().is_empty() && std::fs::symlink_metadata(a).is_ok())
+}
+
+/// Check a given result folder before any work: a regular file in its
+/// place or above it cannot hold results (I/O failure, exit 3, for root
+/// too); an existing folder that is not a result folder is not replaced
+/// when `replaces` (the command swaps in a new folder as a whole).
+pub fn check_out_dir(out: &Path, replaces: bool) -> Result<(), Failure> {
+    let shown = out.display();
+    if let Some(a) = existing_ancestor(out)
+        && !a.is_dir()
+    {
+        let what = if a == out {
+            format!("`{shown}` is a regular file, not a folder")
+        } else {
+            format!("`{}` above it is a regular file, not a folder", a.display())
+        };
+        return Err(Failure::Io(format!(
+            "-o {shown}: expected a result folder that can be created, found that {what}; \
+             hint: choose another -o folder"
+        )));
+    }
+    if replaces && out.is_dir() {
+        let mut entries = std::fs::read_dir(out)
+            .map_err(|e| Failure::Io(format!("-o {shown}: cannot read the folder: {e}")))?;
+        let empty = entries.next().is_none();
+        if !empty && !out.join("summary.json").is_file() {
+            return Err(Failure::BadInput(format!(
+                "-o {shown}: expected a new folder, an empty one or an earlier result folder \
+                 (with summary.json), found a folder with other files, which the results would \
+                 replace; hint: choose another -o folder"
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// Options that name files and folders, checked before any case is read.
+fn check_paths(command: &Command) -> Result<(), Failure> {
+    match command {
+        Command::Solve {
+            out, warm_start, ..
+        } => {
+            if let Some(dir) = warm_start {
+                let shown = dir.display();
+                if !dir.is_dir() {
+                    return Err(Failure::BadInput(format!(
+                        "--warm-start {shown}: expected the result folder of an earlier solve, \
+                         found no such folder"
+                    )));
+                }
+                let needed = qheat::output::results::SELF_ENERGY_FILES[0];
+                if !dir.join(needed).is_file() {
+                    return Err(Failure::BadInput(format!(
+                        "--warm-start {shown}: expected a result folder with {needed} \
+                         (written by a solve with scattering), found none; \
+                         hint: leave --warm-start out to start from the coherent solution"
+                    )));
+                }
+            }
+            out.as_deref().map_or(Ok(()), |o| check_out_dir(o, true))
+        }
+        Command::Coefficients { out, .. }
+        | Command::Generator { out, .. }
+        | Command::Cooler { out, .. } => out.as_deref().map_or(Ok(()), |o| check_out_dir(o, true)),
+        Command::Sweep { out, .. } | Command::Screen { out, .. } => {
+            out.as_deref().map_or(Ok(()), |o| check_out_dir(o, false))
+        }
+        Command::Check { .. } | Command::Report { .. } => Ok(()),
     }
 }
 

@@ -1,5 +1,6 @@
 //! `qheat screen`: figure-of-merit screening over a grid, ranked.
 
+use super::curves::check_curve_options;
 use super::format::si;
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
@@ -27,10 +28,32 @@ pub fn screen(
     rank: RankBy,
     hot: Option<f64>,
     cold: Option<f64>,
-    points: usize,
+    points: Option<usize>,
     out: Option<&Path>,
     common: &Common,
 ) -> Result<(), Failure> {
+    if rank != RankBy::Cooling {
+        let given: Vec<&str> = [
+            ("--hot", hot.is_some()),
+            ("--cold", cold.is_some()),
+            ("--points", points.is_some()),
+        ]
+        .iter()
+        .filter(|(_, g)| *g)
+        .map(|(n, _)| *n)
+        .collect();
+        if !given.is_empty() {
+            return Err(Failure::BadInput(format!(
+                "{}: expected only with --rank cooling (they set up its cooler curves), \
+                 found with another --rank; hint: leave them out or use --rank cooling",
+                given.join(", ")
+            )));
+        }
+    }
+    let points = points.unwrap_or(21);
+    if let (RankBy::Cooling, Some(h), Some(c)) = (rank, hot, cold) {
+        check_curve_options(h, c, points, false)?;
+    }
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
     let grid = parse_grid(&case, vary)?;

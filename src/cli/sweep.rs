@@ -26,6 +26,10 @@ impl From<SweepError> for Failure {
     }
 }
 
+/// Most points in one grid: each is a full solve, and every point is
+/// checked before the first is computed.
+pub const MAX_GRID_POINTS: usize = 100_000;
+
 /// Parse the --vary options into a grid, checking the keys against the case.
 pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
     let axes = vary
@@ -33,11 +37,57 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
         .map(|s| Axis::parse(s))
         .collect::<Result<Vec<_>, _>>()?;
     let grid = Grid::new(axes)?;
-    // One probe per key gives the close-match message for a typo before
-    // any point is checked.
-    for axis in &grid.axes {
+    let mut seen: Vec<&str> = Vec::new();
+    let mut points: usize = 1;
+    for (axis, spec) in grid.axes.iter().zip(vary) {
+        if axis.count > 1 && axis.start == axis.stop {
+            return Err(Failure::BadInput(format!(
+                "--vary `{spec}`: expected STOP different from START when COUNT > 1, found \
+                 START = STOP = {} (all {} points would be the same); hint: COUNT = 1 for one value",
+                axis.start, axis.count
+            )));
+        }
         for key in &axis.keys {
-            case.with_value(key, axis.start)?;
+            if seen.contains(&key.as_str()) {
+                return Err(Failure::BadInput(format!(
+                    "--vary `{spec}`: expected each key on one axis only, found `{key}` twice \
+                     (the later value would overwrite the earlier); hint: one --vary per key"
+                )));
+            }
+            seen.push(key);
+        }
+        points = points.saturating_mul(axis.count);
+    }
+    if points > MAX_GRID_POINTS {
+        return Err(Failure::BadInput(format!(
+            "--vary: expected at most {MAX_GRID_POINTS} grid points (each is a full solve), found {}; \
+             hint: smaller COUNT values",
+            if points == usize::MAX {
+                "more than can be counted".to_string()
+            } else {
+                points.to_string()
+            }
+        )));
+    }
+    // One probe per key and end gives the close-match message for a typo
+    // and a bad end value before any point is checked.
+    for (axis, spec) in grid.axes.iter().zip(vary) {
+        for key in &axis.keys {
+            for value in [axis.start, axis.stop] {
+                case.with_value(key, value).map_err(|e| {
+                    let listing = if e.suggestion.is_none()
+                        && e.kind == qheat::case::CaseErrorKind::UnknownKey
+                    {
+                        format!(
+                            "; numeric keys of this case: {}",
+                            case.numeric_keys().join(", ")
+                        )
+                    } else {
+                        String::new()
+                    };
+                    Failure::BadInput(format!("--vary `{spec}`: {e}{listing}"))
+                })?;
+            }
         }
     }
     Ok(grid)
