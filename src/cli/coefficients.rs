@@ -3,9 +3,9 @@
 use super::format::si;
 use super::progress::enabled;
 use super::solve::load;
-use super::{Common, Failure, check_memory, default_out};
-use qheat::output::Staging;
+use super::{Common, Failure, check_memory, default_out, folder};
 use qheat::output::results::program;
+use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::thermo::{Coefficients, of_case};
 use std::path::Path;
 
@@ -55,13 +55,20 @@ pub fn print_coefficients(c: &Coefficients) {
 }
 
 /// `qheat coefficients CASE`.
-pub fn coefficients(path: &Path, out: Option<&Path>, common: &Common) -> Result<(), Failure> {
+pub fn coefficients(
+    path: &Path,
+    out: Option<&Path>,
+    other_files: OtherFiles,
+    common: &Common,
+) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
-    let (c, detail) = case_coefficients(&case, common.quiet)?;
     let out_dir = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-coefficients"));
+    let options = folder("coefficients", other_files);
+    check_folder(&out_dir, &options)?;
+    let (c, detail) = case_coefficients(&case, common.quiet)?;
     let summary = serde_json::json!({
         "program": program(),
         "kind": "coefficients",
@@ -74,7 +81,7 @@ pub fn coefficients(path: &Path, out: Option<&Path>, common: &Common) -> Result<
         "notes": resolved.notes,
         "resolved_case": case.to_toml_string(),
     });
-    let stage = Staging::new(&out_dir)?;
+    let stage = Staging::with_options(&out_dir, &options)?;
     stage.write(
         "summary.json",
         serde_json::to_string_pretty(&summary)

@@ -4,9 +4,10 @@
 use super::format::si;
 use super::progress::{CurveProgress, enabled};
 use super::solve::load;
-use super::{Common, Failure, check_memory, default_out};
+use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::output::manifest::check_folder;
 use qheat::output::results::program;
-use qheat::output::{Staging, csv_bytes};
+use qheat::output::{FolderOptions, OtherFiles, Staging, csv_bytes};
 use qheat::thermo::cooler::{ColdLead, CoolerSettings, cooler as cooler_curve};
 use qheat::thermo::generator::{CurveError, GeneratorSettings, generator as generator_curve};
 use std::path::{Path, PathBuf};
@@ -31,12 +32,13 @@ pub enum Lead {
 
 fn write(
     out_dir: &Path,
+    options: &FolderOptions,
     csv_name: &str,
     csv: Vec<u8>,
     summary: &str,
     figures: Vec<(&'static str, String)>,
 ) -> Result<(), Failure> {
-    let stage = Staging::new(out_dir)?;
+    let stage = Staging::with_options(out_dir, options)?;
     stage.write(csv_name, &csv)?;
     stage.write("summary.json", summary.as_bytes())?;
     for (name, svg) in figures {
@@ -113,6 +115,7 @@ pub fn generator(
     cold: f64,
     points: usize,
     out: Option<&Path>,
+    other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
     check_curve_options(hot, cold, points, true)?;
@@ -123,13 +126,15 @@ pub fn generator(
         cold_k: cold,
         points,
     };
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-generator"));
+    let options = folder("generator", other_files);
+    check_folder(&out_dir, &options)?;
     let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
     let r = generator_curve(&case, &settings, &mut progress);
     progress.finish();
     let r = r?;
-    let out_dir: PathBuf = out
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-generator"));
     let csv = csv_bytes(
         &[
             "voltage_v",
@@ -159,7 +164,7 @@ pub fn generator(
     summary["resolved_case"] = case.to_toml_string().into();
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
     let figures = qheat::output::plots::generator_figures(&r)?;
-    write(&out_dir, "generator.csv", csv, &text, figures)?;
+    write(&out_dir, &options, "generator.csv", csv, &text, figures)?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {
@@ -205,6 +210,7 @@ pub fn generator(
 }
 
 /// `qheat cooler CASE --hot K --cold K`.
+#[allow(clippy::too_many_arguments)]
 pub fn cooler(
     path: &Path,
     hot: f64,
@@ -212,6 +218,7 @@ pub fn cooler(
     points: usize,
     cold_lead: Lead,
     out: Option<&Path>,
+    other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
     check_curve_options(hot, cold, points, false)?;
@@ -227,13 +234,15 @@ pub fn cooler(
         },
         figure_of_merit: true,
     };
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-cooler"));
+    let options = folder("cooler", other_files);
+    check_folder(&out_dir, &options)?;
     let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
     let r = cooler_curve(&case, &settings, &mut progress);
     progress.finish();
     let r = r?;
-    let out_dir: PathBuf = out
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-cooler"));
     let csv = csv_bytes(
         &[
             "voltage_v",
@@ -269,7 +278,7 @@ pub fn cooler(
     summary["resolved_case"] = case.to_toml_string().into();
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
     let figures = qheat::output::plots::cooler_figures(&r)?;
-    write(&out_dir, "cooler.csv", csv, &text, figures)?;
+    write(&out_dir, &options, "cooler.csv", csv, &text, figures)?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {

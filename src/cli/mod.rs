@@ -49,6 +49,11 @@ pub enum Command {
         /// Result folder (default: runs/<case name>).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
         /// Start the Born loop from the self-energy stored in this result folder.
         #[arg(long, value_name = "DIR")]
         warm_start: Option<PathBuf>,
@@ -61,6 +66,11 @@ pub enum Command {
         /// Result folder (default: runs/<case name>-coefficients).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Any numeric case key over a grid (several --vary: row-major, last
     /// fastest); resumable; one row per point in sweep.csv.
@@ -74,6 +84,11 @@ pub enum Command {
         /// runs/<case name>-sweep).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Power and efficiency against load voltage with the left lead hot and
     /// the right lead cold; maximum power, efficiency there, η_C, η_CA.
@@ -92,6 +107,11 @@ pub enum Command {
         /// Result folder (default: runs/<case name>-generator).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Cooling power and COP against current; maximum cooling power.
     Cooler {
@@ -112,6 +132,11 @@ pub enum Command {
         /// Result folder (default: runs/<case name>-cooler).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Figure-of-merit screening over a grid, ranked best first.
     Screen {
@@ -136,6 +161,11 @@ pub enum Command {
         /// runs/<case name>-screen).
         #[arg(short, long)]
         out: Option<PathBuf>,
+        /// Write into a result folder that also holds files qheat did not
+        /// write: they are kept, and only those with the same name as a file
+        /// of this result (such as summary.json) are overwritten.
+        #[arg(long)]
+        overwrite: bool,
     },
     /// Write DIR/report.html: one self-contained page with the values,
     /// figures and resolved case of a result folder.
@@ -180,8 +210,38 @@ impl From<qheat::case::CaseError> for Failure {
 
 impl From<qheat::output::OutputError> for Failure {
     fn from(e: qheat::output::OutputError) -> Self {
-        Failure::Io(e.to_string())
+        use qheat::output::OutputError as E;
+        match e {
+            E::InTheWay { .. } => Failure::BadInput(format!(
+                "{e}\nhint: choose another folder with -o DIR, or pass --overwrite to write qheat's files \
+                 beside them (only files with the same name as one of this result's, such as summary.json, \
+                 are then overwritten)"
+            )),
+            E::StoreInTheWay { .. } => Failure::BadInput(format!(
+                "{e}\nhint: choose another folder with -o DIR; a sweep or screen started again into this \
+                 folder resumes from the store"
+            )),
+            E::Busy { .. } => Failure::BadInput(format!(
+                "{e}\nhint: wait for that run to finish, or choose another folder with -o DIR"
+            )),
+            other => Failure::Io(other.to_string()),
+        }
     }
+}
+
+/// What `--overwrite` says about files in the result folder that qheat did
+/// not write.
+fn others(overwrite: bool) -> qheat::output::OtherFiles {
+    if overwrite {
+        qheat::output::OtherFiles::KeepBeside
+    } else {
+        qheat::output::OtherFiles::Refuse
+    }
+}
+
+/// How a result of `kind` goes into its folder.
+pub fn folder(kind: &str, other_files: qheat::output::OtherFiles) -> qheat::output::FolderOptions {
+    qheat::output::FolderOptions::new(kind).other_files(other_files)
 }
 
 /// Options every command shares.
@@ -239,19 +299,42 @@ pub fn run() -> ExitCode {
         Command::Solve {
             case,
             out,
+            overwrite,
             warm_start,
-        } => solve::solve(case, out.as_deref(), warm_start.as_deref(), &common),
-        Command::Coefficients { case, out } => {
-            coefficients::coefficients(case, out.as_deref(), &common)
-        }
-        Command::Sweep { case, vary, out } => sweep::sweep(case, vary, out.as_deref(), &common),
+        } => solve::solve(
+            case,
+            out.as_deref(),
+            others(*overwrite),
+            warm_start.as_deref(),
+            &common,
+        ),
+        Command::Coefficients {
+            case,
+            out,
+            overwrite,
+        } => coefficients::coefficients(case, out.as_deref(), others(*overwrite), &common),
+        Command::Sweep {
+            case,
+            vary,
+            out,
+            overwrite,
+        } => sweep::sweep(case, vary, out.as_deref(), others(*overwrite), &common),
         Command::Generator {
             case,
             hot,
             cold,
             points,
             out,
-        } => curves::generator(case, *hot, *cold, *points, out.as_deref(), &common),
+            overwrite,
+        } => curves::generator(
+            case,
+            *hot,
+            *cold,
+            *points,
+            out.as_deref(),
+            others(*overwrite),
+            &common,
+        ),
         Command::Cooler {
             case,
             hot,
@@ -259,6 +342,7 @@ pub fn run() -> ExitCode {
             points,
             cold_lead,
             out,
+            overwrite,
         } => curves::cooler(
             case,
             *hot,
@@ -266,6 +350,7 @@ pub fn run() -> ExitCode {
             *points,
             *cold_lead,
             out.as_deref(),
+            others(*overwrite),
             &common,
         ),
         Command::Screen {
@@ -276,6 +361,7 @@ pub fn run() -> ExitCode {
             cold,
             points,
             out,
+            overwrite,
         } => screen::screen(
             case,
             vary,
@@ -284,6 +370,7 @@ pub fn run() -> ExitCode {
             *cold,
             points.as_ref().copied(),
             out.as_deref(),
+            others(*overwrite),
             &common,
         ),
         Command::Report { dir } => report::report(dir, &common),

@@ -1,12 +1,13 @@
 //! `qheat report DIR`.
 
 use super::{Common, Failure};
-use qheat::output::atomic_write;
+use qheat::output::manifest::add_file;
 use qheat::output::report::build_report;
 use std::path::Path;
 
 /// Write DIR/report.html: one self-contained page with the folder's
-/// values, figures and resolved case; print its path.
+/// values, figures and resolved case, recorded in the folder's manifest;
+/// print its path. A report.html that qheat did not write is left alone.
 pub fn report(dir: &Path, common: &Common) -> Result<(), Failure> {
     if !dir.is_dir() {
         return Err(Failure::BadInput(format!(
@@ -18,8 +19,12 @@ pub fn report(dir: &Path, common: &Common) -> Result<(), Failure> {
         qheat::output::OutputError::Report { .. } => Failure::BadInput(e.to_string()),
         other => Failure::from(other),
     })?;
-    let path = dir.join("report.html");
-    atomic_write(&path, html.as_bytes())?;
+    let path = add_file(dir, "report.html", html.as_bytes()).map_err(|e| match e {
+        qheat::output::OutputError::InTheWay { .. } => Failure::BadInput(format!(
+            "{e}\nhint: move or rename that report.html, then run the report again"
+        )),
+        other => Failure::from(other),
+    })?;
     if common.json {
         println!(
             "{}",

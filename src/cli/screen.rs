@@ -4,8 +4,8 @@ use super::curves::check_curve_options;
 use super::format::si;
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
-use super::{Common, Failure, check_memory, default_out};
-use qheat::output::{atomic_write, csv_bytes};
+use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::output::{OtherFiles, Staging, csv_bytes};
 use qheat::sweep::screen::{Rank, ScreenTask, ranking, ranking_table};
 use std::path::{Path, PathBuf};
 
@@ -30,6 +30,7 @@ pub fn screen(
     cold: Option<f64>,
     points: Option<usize>,
     out: Option<&Path>,
+    other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
     if rank != RankBy::Cooling {
@@ -85,19 +86,21 @@ pub fn screen(
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-screen"));
     let task = ScreenTask { rank };
-    let table = run_grid(&case, &grid, &task, &out_dir, common, &case.name)?;
+    let options = folder("screen", other_files).keeping_store();
+    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
     let order = ranking(&table, rank.column())?;
     let (rcols, rrows) = ranking_table(&table, &order);
     let rheaders: Vec<&str> = rcols.iter().map(String::as_str).collect();
-    atomic_write(&out_dir.join("screen.csv"), &table.csv())?;
-    atomic_write(&out_dir.join("ranking.csv"), &csv_bytes(&rheaders, rrows))?;
+    let stage = Staging::with_options(&out_dir, &options)?;
+    stage.write("screen.csv", &table.csv())?;
+    stage.write("ranking.csv", &csv_bytes(&rheaders, rrows))?;
     for (name, svg) in
         qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
     {
-        atomic_write(&out_dir.join(name), svg.as_bytes())?;
+        stage.write(&name, svg.as_bytes())?;
     }
     if let Some(svg) = qheat::output::plots::ranking_figure(&grid, &table, &order, rank.column())? {
-        atomic_write(&out_dir.join("ranking.svg"), svg.as_bytes())?;
+        stage.write("ranking.svg", svg.as_bytes())?;
     }
     let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
     summary["rank_by"] = serde_json::json!(rank);
@@ -109,7 +112,8 @@ pub fn screen(
         rank.column(): table.rows[i][c],
     })).collect::<Vec<_>>());
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
-    atomic_write(&out_dir.join("summary.json"), text.as_bytes())?;
+    stage.write("summary.json", text.as_bytes())?;
+    stage.commit()?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {

@@ -2,11 +2,11 @@
 
 use super::format::{residual, si};
 use super::progress::{BornProgress, enabled};
-use super::{Common, Failure, check_memory, default_out, print_warnings};
+use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
 use qheat::observables::{Observables, ObserveOptions, observe_with};
-use qheat::output::Staging;
 use qheat::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
+use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::scba::{Solution, SolveError, solve as born_solve};
 use std::path::Path;
 
@@ -191,20 +191,23 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
 pub fn solve(
     path: &Path,
     out: Option<&Path>,
+    other_files: OtherFiles,
     warm_start: Option<&Path>,
     common: &Common,
 ) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
+    let out_dir = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, ""));
+    // Refused before the work rather than after it.
+    check_folder(&out_dir, &folder("solve", other_files))?;
     let warm = match warm_start {
         Some(dir) => {
             Some(read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?)
         }
         None => None,
     };
-    let out_dir = out
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, ""));
     let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
     let result = born_solve(&resolved.problem, &resolved.scba, warm.as_ref(), &mut bar);
     bar.finish();
@@ -220,7 +223,7 @@ pub fn solve(
     let sol = match result {
         Ok(s) => s,
         Err(e) => {
-            write_failure(&out_dir, &info, &e)?;
+            write_failure(&out_dir, other_files, &info, &e)?;
             return Err(Failure::Solver(format!(
                 "{e}; nothing trustworthy was computed (summary.json in {} says so)",
                 out_dir.display()
@@ -234,7 +237,7 @@ pub fn solve(
         },
     );
     let summary = solve_summary(&sol, &o, &info);
-    let stage = Staging::new(&out_dir)?;
+    let stage = Staging::with_options(&out_dir, &folder("solve", other_files))?;
     write_solve_files(&stage, &sol, &o, &summary)?;
     qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
     stage.commit()?;
@@ -258,7 +261,12 @@ pub fn solve(
 }
 
 /// A summary that says the run failed, so nobody mistakes old files for it.
-fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &SolveError) -> Result<(), Failure> {
+fn write_failure(
+    out_dir: &Path,
+    other_files: OtherFiles,
+    info: &RunInfo<'_>,
+    error: &SolveError,
+) -> Result<(), Failure> {
     let location = error.location();
     let v = serde_json::json!({
         "program": qheat::output::results::program(),
@@ -277,7 +285,7 @@ fn write_failure(out_dir: &Path, info: &RunInfo<'_>, error: &SolveError) -> Resu
         "warnings": info.warnings,
         "resolved_case": info.case_toml,
     });
-    let stage = Staging::new(out_dir)?;
+    let stage = Staging::with_options(out_dir, &folder("failed-solve", other_files))?;
     stage.write(
         "summary.json",
         serde_json::to_string_pretty(&v).expect("JSON").as_bytes(),

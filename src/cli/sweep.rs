@@ -2,15 +2,18 @@
 //!
 //! The result folder is a working folder: `points/` keeps every finished
 //! point so that the same command started again recomputes only what is
-//! missing; `sweep.csv` and `summary.json` are (re)written atomically when
-//! the grid is complete.
+//! missing. The folder's manifest lists the store before the first point is
+//! written; `sweep.csv`, the figures and `summary.json` are staged and put
+//! in place together when the grid is complete, replacing those of the
+//! previous result and keeping the store.
 
 use super::progress::{PointProgress, enabled};
 use super::solve::load;
-use super::{Common, Failure, available_memory_bytes, check_memory, default_out};
+use super::{Common, Failure, available_memory_bytes, check_memory, default_out, folder};
 use qheat::case::Case;
-use qheat::output::atomic_write;
+use qheat::output::manifest::claim_store;
 use qheat::output::results::program;
+use qheat::output::{FolderOptions, OtherFiles, Staging};
 use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
 use std::path::{Path, PathBuf};
 
@@ -93,15 +96,18 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
     Ok(grid)
 }
 
-/// Run a grid with a progress bar into `out_dir` (points kept there).
+/// Run a grid with a progress bar into `out_dir` (points kept there, the
+/// store first recorded in the folder's manifest).
 pub fn run_grid(
     case: &Case,
     grid: &Grid,
     task: &dyn PointTask,
     out_dir: &Path,
+    options: &FolderOptions,
     common: &Common,
     label: &str,
 ) -> Result<SweepTable, Failure> {
+    claim_store(out_dir, options)?;
     let progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
     let options = SweepOptions {
         max_parallel_lines: Some(common.threads),
@@ -162,6 +168,7 @@ pub fn sweep(
     path: &Path,
     vary: &[String],
     out: Option<&Path>,
+    other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
@@ -170,15 +177,18 @@ pub fn sweep(
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-sweep"));
+    let options = folder("sweep", other_files).keeping_store();
     let table = run_grid(
         &case,
         &grid,
         &sweep::ObservablesTask,
         &out_dir,
+        &options,
         common,
         &case.name,
     )?;
-    atomic_write(&out_dir.join("sweep.csv"), &table.csv())?;
+    let stage = Staging::with_options(&out_dir, &options)?;
+    stage.write("sweep.csv", &table.csv())?;
     let quantities = [
         "current_a",
         "heat_current_left_w",
@@ -187,14 +197,15 @@ pub fn sweep(
         "electrical_power_w",
     ];
     for (name, svg) in qheat::output::plots::grid_figures(&grid, &table, &quantities, "sweep")? {
-        atomic_write(&out_dir.join(name), svg.as_bytes())?;
+        stage.write(&name, svg.as_bytes())?;
     }
     let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
     summary["warm_start"] = serde_json::json!(
         "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match"
     );
     let text = serde_json::to_string_pretty(&summary).expect("JSON");
-    atomic_write(&out_dir.join("summary.json"), text.as_bytes())?;
+    stage.write("summary.json", text.as_bytes())?;
+    stage.commit()?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {

@@ -1,15 +1,13 @@
-//! Result files: atomic writers for CSV, JSON and .npy, and the staging of
-//! whole result folders.
+//! Result files: atomic writers for CSV, JSON and .npy, and the result
+//! folders they go into.
 //!
 //! Every file is written to a temporary name in the same folder and renamed,
-//! so a crash never leaves a half-written file that looks whole. A result
-//! folder is assembled in a staging folder beside its final place and
-//! swapped in at the end: an interrupted run leaves the old folder (or, in
-//! the instant between the two renames, the old folder under a `.old-`
-//! name) and never a mix of old and new files. The next run into the same
-//! folder removes the `.partial-` folders of runs that are no longer
-//! running and puts a stranded `.old-` folder back.
+//! so a crash never leaves a half-written file that looks whole. How a
+//! result replaces the previous one in its folder, what qheat may and may
+//! not remove there, and what an interrupted run leaves is described in
+//! [`manifest`].
 
+pub mod manifest;
 pub mod plots;
 pub mod report;
 pub mod results;
@@ -17,6 +15,8 @@ pub mod results;
 use std::fs;
 use std::io::Write;
 use std::path::{Path, PathBuf};
+
+pub use manifest::{FolderOptions, OtherFiles, Staging};
 
 /// I/O errors with the path involved.
 #[derive(Debug, thiserror::Error)]
@@ -47,6 +47,45 @@ pub enum OutputError {
         /// What went wrong, with the numbers involved.
         message: String,
     },
+    /// The result folder holds entries qheat did not write (and the caller
+    /// did not allow writing beside them).
+    #[error(
+        "{}; qheat never removes or overwrites files it did not write",
+        manifest::in_the_way_message(dir, entries)
+    )]
+    InTheWay {
+        /// The result folder.
+        dir: PathBuf,
+        /// The entries in the way, sorted.
+        entries: Vec<String>,
+    },
+    /// The result folder holds a sweep's point store, which this kind of
+    /// result would replace.
+    #[error(
+        "the result folder {} holds the point store {} of a sweep or screen; a {kind} result would replace it, and the store is removed by no command",
+        dir.display(),
+        store.display()
+    )]
+    StoreInTheWay {
+        /// The result folder.
+        dir: PathBuf,
+        /// The point store.
+        store: PathBuf,
+        /// The kind of result that was to be written.
+        kind: String,
+    },
+    /// Another run is writing into the result folder.
+    #[error(
+        "another qheat run (process {pid}) is writing into {}; if no qheat is running any more, remove {}",
+        dir.display(),
+        dir.join(format!(".qheat-partial-{pid}")).display()
+    )]
+    Busy {
+        /// The result folder.
+        dir: PathBuf,
+        /// Process id of the other run.
+        pid: u32,
+    },
     /// A result folder cannot be reported on.
     #[error("report of {path}: {message}")]
     Report {
@@ -57,7 +96,10 @@ pub enum OutputError {
     },
 }
 
-fn io<'a>(action: &'static str, path: &'a Path) -> impl FnOnce(std::io::Error) -> OutputError + 'a {
+pub(crate) fn io<'a>(
+    action: &'static str,
+    path: &'a Path,
+) -> impl FnOnce(std::io::Error) -> OutputError + 'a {
     move |source| OutputError::Io {
         action,
         path: path.to_path_buf(),
@@ -150,139 +192,4 @@ where
         message: e.to_string(),
     })?;
     Ok(buf)
-}
-
-/// True when a process with this id is running. Linux answers through
-/// /proc; elsewhere nothing can be told, and a folder counts as abandoned
-/// only by its age.
-fn process_alive(pid: u32) -> Option<bool> {
-    if !Path::new("/proc/self").exists() {
-        return None;
-    }
-    Some(Path::new("/proc").join(pid.to_string()).exists())
-}
-
-/// Staging folders older than this are abandoned where process ids cannot
-/// be checked.
-const ABANDONED_AFTER: std::time::Duration = std::time::Duration::from_secs(24 * 3600);
-
-/// Remove what killed runs left beside `final_dir`: `.NAME.partial-PID`
-/// folders (never complete, so never a result) and `.NAME.old-PID` folders.
-/// An `.old-` folder is the previous complete result, moved aside in the
-/// instant between the two renames of [`Staging::commit`]; if the final
-/// folder is missing it is put back rather than removed. Folders of a
-/// process that is still running are left alone.
-fn clean_abandoned(parent: &Path, name: &str, final_dir: &Path) -> Result<(), OutputError> {
-    let Ok(entries) = fs::read_dir(parent) else {
-        return Ok(());
-    };
-    let partial = format!(".{name}.partial-");
-    let old = format!(".{name}.old-");
-    let me = std::process::id();
-    for entry in entries.flatten() {
-        let file_name = entry.file_name().to_string_lossy().into_owned();
-        let (is_old, pid) = if let Some(p) = file_name.strip_prefix(&partial) {
-            (false, p)
-        } else if let Some(p) = file_name.strip_prefix(&old) {
-            (true, p)
-        } else {
-            continue;
-        };
-        let Ok(pid) = pid.parse::<u32>() else {
-            continue;
-        };
-        if pid == me {
-            continue;
-        }
-        let abandoned = match process_alive(pid) {
-            Some(alive) => !alive,
-            None => entry
-                .metadata()
-                .and_then(|m| m.modified())
-                .ok()
-                .and_then(|t| t.elapsed().ok())
-                .is_some_and(|age| age > ABANDONED_AFTER),
-        };
-        if !abandoned {
-            continue;
-        }
-        let path = entry.path();
-        if is_old && !final_dir.exists() {
-            fs::rename(&path, final_dir).map_err(io("restoring", final_dir))?;
-        } else {
-            fs::remove_dir_all(&path).map_err(io("removing abandoned", &path))?;
-        }
-    }
-    Ok(())
-}
-
-/// A result folder being assembled.
-pub struct Staging {
-    final_dir: PathBuf,
-    dir: PathBuf,
-}
-
-impl Staging {
-    /// Start assembling `final_dir` (its parent is created if missing).
-    pub fn new(final_dir: &Path) -> Result<Self, OutputError> {
-        let parent = final_dir
-            .parent()
-            .filter(|p| !p.as_os_str().is_empty())
-            .unwrap_or(Path::new("."));
-        fs::create_dir_all(parent).map_err(io("creating", parent))?;
-        let name = final_dir
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_else(|| "result".into());
-        clean_abandoned(parent, &name, final_dir)?;
-        let dir = parent.join(format!(".{name}.partial-{}", std::process::id()));
-        if dir.exists() {
-            fs::remove_dir_all(&dir).map_err(io("clearing", &dir))?;
-        }
-        fs::create_dir_all(&dir).map_err(io("creating", &dir))?;
-        Ok(Self {
-            final_dir: final_dir.to_path_buf(),
-            dir,
-        })
-    }
-
-    /// Path of a file inside the staging folder.
-    pub fn path(&self, name: &str) -> PathBuf {
-        self.dir.join(name)
-    }
-
-    /// Write one file into the staging folder.
-    pub fn write(&self, name: &str, bytes: &[u8]) -> Result<(), OutputError> {
-        atomic_write(&self.path(name), bytes)
-    }
-
-    /// Swap the staged folder into place.
-    pub fn commit(self) -> Result<PathBuf, OutputError> {
-        let old = self.final_dir.with_file_name(format!(
-            ".{}.old-{}",
-            self.final_dir
-                .file_name()
-                .map(|n| n.to_string_lossy().into_owned())
-                .unwrap_or_default(),
-            std::process::id()
-        ));
-        let had_old = self.final_dir.exists();
-        if had_old {
-            fs::rename(&self.final_dir, &old).map_err(io("moving aside", &self.final_dir))?;
-        }
-        fs::rename(&self.dir, &self.final_dir)
-            .map_err(io("renaming into place", &self.final_dir))?;
-        if had_old {
-            fs::remove_dir_all(&old).map_err(io("removing", &old))?;
-        }
-        Ok(self.final_dir.clone())
-    }
-}
-
-impl Drop for Staging {
-    fn drop(&mut self) {
-        // An abandoned staging folder (error path) is removed; after commit
-        // it no longer exists.
-        let _ = fs::remove_dir_all(&self.dir);
-    }
 }

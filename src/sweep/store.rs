@@ -9,6 +9,10 @@
 //! ([`crate::output::atomic_write`]), so a file that exists is whole. The
 //! fingerprint hashes the case text, the grid and the task, so a changed
 //! command never mixes its results with an old one.
+//!
+//! The result folder's manifest lists the store before its first point is
+//! written ([`crate::output::manifest::claim_store`]), so no other command
+//! takes it for somebody else's files or removes it.
 
 use crate::C64;
 use crate::output::{OutputError, atomic_write, format_number};
@@ -29,6 +33,9 @@ pub fn fingerprint(parts: &[&str]) -> u64 {
     h
 }
 
+/// Name of the folder holding the point stores inside a result folder.
+pub const STORE_FOLDER: &str = "points";
+
 /// The stored points of one sweep.
 #[derive(Clone, Debug)]
 pub struct PointStore {
@@ -39,7 +46,7 @@ impl PointStore {
     /// Open (creating) the store of sweep `fingerprint` below `result_dir`.
     pub fn open(result_dir: &Path, fingerprint: u64) -> Result<Self, OutputError> {
         let dir = result_dir
-            .join("points")
+            .join(STORE_FOLDER)
             .join(format!("{fingerprint:016x}"));
         std::fs::create_dir_all(&dir).map_err(|source| OutputError::Io {
             action: "creating",
