@@ -124,7 +124,9 @@ fn case_text(s: &Spec) -> String {
     let kt_max = BOLTZMANN_EV_PER_K * s.temperature_k.0.max(s.temperature_k.1);
     let max_ev = mu_max + 12.0 * kt_max + phonon_ev + STEP_EV;
     t += &format!(
-        "[grid]\nstep_ev = {STEP_EV:?}\nmax_ev = {max_ev:?}\n\
+        // Random phonon energies land anywhere between grid points; the
+        // ledger must close for the snapped energy, so coarse snaps are allowed.
+        "[grid]\nstep_ev = {STEP_EV:?}\nmax_ev = {max_ev:?}\nallow_coarse_phonon_snap = true\n\
          [solver]\ntolerance = 1e-9\nmax_iterations = 300\nmixing = \"{}\"\n",
         if s.anderson { "anderson" } else { "linear" }
     );
