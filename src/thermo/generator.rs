@@ -623,7 +623,7 @@ pub fn generator(
         coefficients,
         curve,
         energy_grid: dev.grid().clone(),
-        coefficient_grid: coefficient_grid,
+        coefficient_grid,
         converged: dev.all_converged,
         solves: dev.solves,
     })
