@@ -296,3 +296,100 @@ fn cli_generator_and_cooler() {
         .unwrap();
     assert_eq!(o.status.code(), Some(1), "T_hot < T_cold is bad input");
 }
+
+/// The cooler's maxima do not depend on the number of curve points: the
+/// thermionic barrier demo between 300 K and 290 K with 5, 11 and 41 points
+/// gives the same maximum cooling power, best COP and voltages of each to
+/// 1e-6 relative. Both maxima are refined on one common energy grid down to
+/// 1e-9 of the voltage range; on a flat maximum the voltage is then fixed to
+/// about 1e-8 and the value to rounding, so 1e-6 leaves margin (the task's
+/// stated requirement; before the refinement of the COP the best COP was
+/// 0.82, 2.38 and 3.73 for these point counts).
+#[test]
+fn cooler_maxima_do_not_depend_on_the_number_of_points() {
+    let case = barrier();
+    let run = |points: usize| {
+        cooler(
+            &case,
+            &CoolerSettings {
+                hot_k: 300.0,
+                cold_k: 290.0,
+                points,
+                cold_lead: ColdLead::Right,
+                figure_of_merit: false,
+            },
+            &mut NoProgress,
+        )
+        .unwrap()
+    };
+    let reference = run(41);
+    assert!(reference.max_cop.is_finite() && reference.max_cop > 0.0);
+    assert!(reference.max_cop < reference.carnot_cop);
+    for points in [5, 11] {
+        let r = run(points);
+        for (name, a, b) in [
+            (
+                "max cooling power",
+                r.max_cooling_power_w,
+                reference.max_cooling_power_w,
+            ),
+            (
+                "V at max cooling",
+                r.voltage_at_max_v,
+                reference.voltage_at_max_v,
+            ),
+            ("best COP", r.max_cop, reference.max_cop),
+            (
+                "V at best COP",
+                r.voltage_at_max_cop_v,
+                reference.voltage_at_max_cop_v,
+            ),
+        ] {
+            assert!(
+                rel(a, b) < 1e-6,
+                "{name}: {a:e} with {points} points, {b:e} with 41"
+            );
+        }
+        assert_eq!(r.energy_grid, reference.energy_grid);
+    }
+}
+
+/// The generator's maxima likewise: the resonant level (coherent, so every
+/// solve is deterministic) with 3, 7 and 25 load points gives the same
+/// maximum power, maximum efficiency and their voltages to 1e-6 relative
+/// (same reasoning as for the cooler).
+#[test]
+fn generator_maxima_do_not_depend_on_the_number_of_points() {
+    let case = resonant_level(1e-2);
+    let run = |points: usize| {
+        let settings = GeneratorSettings {
+            hot_k: 330.0,
+            cold_k: 300.0,
+            points,
+        };
+        generator(&case, &settings, &mut NoProgress).unwrap()
+    };
+    let reference = run(25);
+    for points in [3, 7] {
+        let r = run(points);
+        for (name, a, b) in [
+            ("max power", r.max_power_w, reference.max_power_w),
+            (
+                "V at max power",
+                r.voltage_at_max_power_v,
+                reference.voltage_at_max_power_v,
+            ),
+            ("max efficiency", r.max_efficiency, reference.max_efficiency),
+            (
+                "V at max efficiency",
+                r.voltage_at_max_efficiency_v,
+                reference.voltage_at_max_efficiency_v,
+            ),
+        ] {
+            assert!(
+                rel(a, b) < 1e-6,
+                "{name}: {a:e} with {points} points, {b:e} with 25"
+            );
+        }
+    }
+}

@@ -51,7 +51,7 @@ fn ranking_equals_pointwise_coefficients() {
             .unwrap()
             .with_value("leads.right.fermi_level_ev", mu)
             .unwrap();
-        let (k, _) = case_coefficients(&c, &mut Silent).unwrap();
+        let k = case_coefficients(&c, &mut Silent).unwrap().coefficients;
         assert_eq!(table.rows[i][table.column("zt").unwrap()], k.zt);
         assert_eq!(
             table.rows[i][table.column("fermi_level_ev").unwrap()],

@@ -6,26 +6,38 @@ use super::solve::load;
 use super::{Common, Failure, check_memory, default_out, folder};
 use qheat::output::results::program;
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
+use qheat::thermo::common_grid::CommonGrid;
 use qheat::thermo::{Coefficients, of_case};
 use std::path::Path;
 
-/// Linear-response coefficients of a case, with a progress bar.
+/// Linear-response coefficients of a case, with a progress bar: the
+/// coefficients, how they were obtained (as JSON) and the energy grid the
+/// runs shared.
 pub fn case_coefficients(
     case: &qheat::case::Case,
     quiet: bool,
-) -> Result<(Coefficients, serde_json::Value), Failure> {
+) -> Result<(Coefficients, serde_json::Value, CommonGrid), Failure> {
     let tol = case.resolve()?.scba.tolerance.min(1e-12);
     let mut progress = super::progress::BornProgress::new(enabled(quiet), tol, "linear response");
-    let (c, m) = of_case::case_coefficients(case, &mut progress).map_err(|e| match e {
+    let set = of_case::case_coefficients(case, &mut progress).map_err(|e| match e {
         of_case::CoefficientError::Case(e) => Failure::from(e),
         other => Failure::Solver(other.to_string()),
     })?;
     progress.finish();
-    let detail = match m {
-        Some(m) => serde_json::to_value(&m).expect("JSON"),
+    let detail = match &set.response {
+        Some(m) => serde_json::to_value(m).expect("JSON"),
         None => serde_json::json!({ "method": "transmission moments" }),
     };
-    Ok((c, detail))
+    Ok((set.coefficients, detail, set.grid))
+}
+
+/// "common energy grid for the 4 runs: …" (or "for the run" with one).
+pub fn grid_line(grid: &CommonGrid) -> String {
+    let runs = match grid.operating_points {
+        1 => "the run".to_string(),
+        n => format!("the {n} runs"),
+    };
+    format!("common energy grid for {runs}: {}", grid.describe())
 }
 
 /// Print coefficients for people.
@@ -68,7 +80,7 @@ pub fn coefficients(
         .unwrap_or_else(|| default_out(&case.name, "-coefficients"));
     let options = folder("coefficients", other_files);
     check_folder(&out_dir, &options)?;
-    let (c, detail) = case_coefficients(&case, common.quiet)?;
+    let (c, detail, grid) = case_coefficients(&case, common.quiet)?;
     let summary = serde_json::json!({
         "program": program(),
         "kind": "coefficients",
@@ -77,6 +89,7 @@ pub fn coefficients(
         "threads": common.threads,
         "coefficients": c,
         "response": detail,
+        "energy_grid": grid,
         "warnings": resolved.warnings,
         "notes": resolved.notes,
         "resolved_case": case.to_toml_string(),
@@ -93,6 +106,7 @@ pub fn coefficients(
         println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));
     } else if !common.quiet {
         print_coefficients(&c);
+        println!("energy grid       {}", grid_line(&grid));
         println!("results           {}", out_dir.display());
     }
     Ok(())

@@ -204,6 +204,11 @@ pub fn generator(
             "bounds            Carnot η_C = {:.6}, Curzon-Ahlborn η_CA = {:.6}",
             r.carnot_efficiency, r.curzon_ahlborn_efficiency
         );
+        println!("energy grid       curve: {}", r.energy_grid.describe());
+        println!(
+            "                  linear response: {}",
+            r.coefficient_grid.describe()
+        );
         println!("results           {}", out_dir.display());
     }
     flag(r.converged, &out_dir)
@@ -297,15 +302,20 @@ pub fn cooler(
             si(r.cooling_power_at_zero_bias_w, "W", 4)
         );
         println!(
-            "COP               {:.4} at maximum cooling, {:.4} at best; Carnot {:.4}{}",
+            "COP               {:.4} at maximum cooling, {:.4} at best (V = {}); Carnot {:.4}{}",
             r.cop_at_max,
             r.max_cop,
+            si(r.voltage_at_max_cop_v, "V", 5),
             r.carnot_cop,
             match (r.ioffe_max_cop, &r.coefficients) {
                 (Some(i), Some(c)) => format!(", Ioffe {i:.4} with ZT = {:.4}", c.zt),
                 _ => String::new(),
             }
         );
+        println!("energy grid       curve: {}", r.energy_grid.describe());
+        if let Some(g) = &r.coefficient_grid {
+            println!("                  linear response: {}", g.describe());
+        }
         println!("results           {}", out_dir.display());
     }
     flag(r.converged, &out_dir)

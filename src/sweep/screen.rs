@@ -96,17 +96,20 @@ impl PointTask for ScreenTask {
     ) -> Result<PointOutcome, SweepError> {
         let values = match self.rank {
             Rank::Zt | Rank::PowerFactor => match case_coefficients(case, &mut Silent) {
-                Ok((c, _)) => vec![
-                    c.fermi_level_ev,
-                    c.temperature_k,
-                    c.conductance_s,
-                    c.seebeck_v_per_k,
-                    c.thermal_conductance_w_per_k,
-                    c.power_factor_w_per_k2,
-                    c.zt,
-                    c.kelvin_residual,
-                    1.0,
-                ],
+                Ok(set) => {
+                    let c = set.coefficients;
+                    vec![
+                        c.fermi_level_ev,
+                        c.temperature_k,
+                        c.conductance_s,
+                        c.seebeck_v_per_k,
+                        c.thermal_conductance_w_per_k,
+                        c.power_factor_w_per_k2,
+                        c.zt,
+                        c.kelvin_residual,
+                        1.0,
+                    ]
+                }
                 // A point whose finite-difference runs did not converge is
                 // kept in the table, flagged, and ranked last.
                 Err(CoefficientError::Response(_)) => {

@@ -20,13 +20,17 @@
 //! The bias polarity that cools is found by trying both; the range runs from
 //! V = 0 past the maximum of the cooling power until it has fallen back by
 //! half of its rise, in steps of kT/e, and the curve is then resolved on
-//! `points` voltages over that range with a golden-section refinement of
-//! the maximum.
+//! `points` voltages over that range. The maximum cooling power and the
+//! best COP are each refined by a golden-section search bracketed by the
+//! best curve point and its neighbours, down to 1e-9 of the range, so they
+//! do not depend on the number of points; the curve and the refinements
+//! share one energy grid.
 
 use super::Coefficients;
+use super::common_grid::CommonGrid;
 use super::generator::{
-    BiasedCase, CurveError, CurveObserver, LeadTemperatures, Solved, carnot_cop, golden_max,
-    ioffe_max_cop,
+    BiasedCase, CurveError, CurveObserver, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved,
+    carnot_cop, ioffe_max_cop, refine_max,
 };
 use super::of_case::{case_coefficients, reference_point};
 use crate::case::Case;
@@ -119,8 +123,10 @@ pub struct CoolerReport {
     pub current_at_max_a: f64,
     /// COP at maximum cooling power (NaN when not cooling there).
     pub cop_at_max: f64,
-    /// Largest COP on the curve (NaN when no point cools).
+    /// Best COP, refined between curve points (NaN when nothing cools).
     pub max_cop: f64,
+    /// Bias at the best COP (V; NaN when nothing cools).
+    pub voltage_at_max_cop_v: f64,
     /// Carnot COP T_c/(T_h − T_c) (infinite at equal temperatures).
     pub carnot_cop: f64,
     /// Linear-response coefficients at (µ, (T_h + T_c)/2), if asked for.
@@ -129,6 +135,12 @@ pub struct CoolerReport {
     pub ioffe_max_cop: Option<f64>,
     /// The curve, V from 0 to the end of the range.
     pub curve: Vec<CoolerPoint>,
+    /// The energy grid every solve of the curve and of its refinements ran
+    /// on (the march that finds the range may have grown it; the points it
+    /// kept were solved again on the final one).
+    pub energy_grid: CommonGrid,
+    /// The energy grid of the linear-response runs, if asked for.
+    pub coefficient_grid: Option<CommonGrid>,
     /// Every Born loop converged.
     pub converged: bool,
     /// Solves done.
@@ -167,7 +179,7 @@ pub fn cooler(
         },
     };
     let tm = 0.5 * (th + tc);
-    let coefficients = if settings.figure_of_merit {
+    let (coefficients, coefficient_grid) = if settings.figure_of_merit {
         let mean = BiasedCase::new(
             case,
             mu,
@@ -176,9 +188,10 @@ pub fn cooler(
                 right_k: tm,
             },
         )?;
-        Some(case_coefficients(mean.case(), &mut Silent)?.0)
+        let set = case_coefficients(mean.case(), &mut Silent)?;
+        (Some(set.coefficients), Some(set.grid))
     } else {
-        None
+        (None, None)
     };
     let mut dev = BiasedCase::new(case, mu, temps)?;
     let q = |dev: &mut BiasedCase,
@@ -188,7 +201,8 @@ pub fn cooler(
      -> Result<CoolerPoint, CurveError> {
         Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
     };
-    let zero = q(&mut dev, 0.0, "zero bias", observer)?;
+    let zero_solved = dev.at(0.0, "zero bias", observer)?;
+    let zero = CoolerPoint::from(&zero_solved, cold);
     let h = crate::units::thermal_energy_ev(tm);
     let up = q(&mut dev, h, "polarity", observer)?;
     let down = q(&mut dev, -h, "polarity", observer)?;
@@ -218,6 +232,11 @@ pub fn cooler(
         }
         k += 1;
     };
+    // The curve and the refinements run on the grid that covers the range
+    // the march reached; the zero-bias point is solved again if the grid
+    // grew since.
+    let zero = CoolerPoint::from(&dev.current(zero_solved, "zero bias", observer)?, cold);
+    let q0 = zero.cooling_power_w;
     let n = settings.points;
     let mut curve = Vec::with_capacity(n);
     for i in 0..n {
@@ -228,29 +247,30 @@ pub fn cooler(
             q(&mut dev, v, "curve", observer)?
         });
     }
-    let im = (0..n)
-        .max_by(|&i, &j| {
-            curve[i]
-                .cooling_power_w
-                .total_cmp(&curve[j].cooling_power_w)
-        })
-        .unwrap_or(0);
-    let lo = curve[im.saturating_sub(1)].voltage_v;
-    let hi = curve[(im + 1).min(n - 1)].voltage_v;
-    let (_, _, refined) = golden_max(lo, hi, 30, &mut |v| {
-        let p = q(&mut dev, v, "maximum cooling", observer)?;
-        Ok((p.cooling_power_w, p))
-    })?;
-    let at_max = if refined.cooling_power_w >= curve[im].cooling_power_w {
-        refined
-    } else {
-        curve[im]
-    };
-    let max_cop = curve
-        .iter()
-        .map(|p| p.cop)
-        .filter(|c| c.is_finite())
-        .fold(f64::NAN, f64::max);
+    let tol = REFINE_RELATIVE_WIDTH * end.abs();
+    let mut sorted = curve.clone();
+    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    let at_max = refine_max(
+        &sorted,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cooling_power_w,
+        tol,
+        &mut |v| q(&mut dev, v, "maximum cooling", observer),
+    )?
+    .unwrap_or(zero);
+    // The best COP: the curve and the point of maximum cooling (which lies
+    // in the cooling range whenever anything cools) give the bracket.
+    let mut samples = sorted;
+    samples.push(at_max);
+    samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
+    let best_cop = refine_max(
+        &samples,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cop,
+        tol,
+        &mut |v| q(&mut dev, v, "best COP", observer),
+    )?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     Ok(CoolerReport {
         settings: *settings,
@@ -260,11 +280,14 @@ pub fn cooler(
         voltage_at_max_v: at_max.voltage_v,
         current_at_max_a: at_max.current_a,
         cop_at_max: at_max.cop,
-        max_cop,
+        max_cop: best_cop.map_or(f64::NAN, |p| p.cop),
+        voltage_at_max_cop_v: best_cop.map_or(f64::NAN, |p| p.voltage_v),
         carnot_cop: carnot_cop(th, tc),
         coefficients,
         ioffe_max_cop: ioffe,
         curve,
+        energy_grid: dev.grid().clone(),
+        coefficient_grid,
         converged: dev.all_converged,
         solves: dev.solves,
     })

@@ -23,6 +23,7 @@
 //!   (C. Van den Broeck, Phys. Rev. Lett. 95, 190602 (2005)).
 
 use super::Coefficients;
+use super::common_grid::CommonGrid;
 use super::of_case::{CoefficientError, case_coefficients};
 use crate::case::{Case, CaseError};
 use crate::observables::{Observables, observe};
@@ -134,12 +135,29 @@ pub(crate) struct Solved {
     pub voltage_v: f64,
     pub obs: Observables,
     pub converged: bool,
+    /// Which grid of the curve it was solved on (see [`BiasedCase`]).
+    pub generation: usize,
 }
 
 /// Solves a case at voltages around µ with fixed lead temperatures,
 /// warm-starting each Born loop from the previous one.
+///
+/// Every solve runs on one common energy grid: the envelope of the grids
+/// the case would give at V = −W, 0 and +W, with W the largest |V| asked for
+/// so far. The grid's step depends on the temperatures alone, and over an
+/// interval of voltages the lowest band edge is a concave and the higher
+/// Fermi level a convex function of V, so the ends of the interval bound
+/// the window. When a voltage beyond W is asked for, W grows to at least
+/// twice its value (so a search that marches outwards rebuilds the grid a
+/// logarithmic number of times) and the generation counter steps; a
+/// result kept from an earlier generation must be solved again before it
+/// is compared with newer ones.
 pub(crate) struct BiasedCase {
     base: Case,
+    fixed: Case,
+    grid: CommonGrid,
+    covered_v: f64,
+    pub generation: usize,
     warm: Option<ScatteringSelfEnergy>,
     pub all_converged: bool,
     pub solves: usize,
@@ -154,8 +172,14 @@ impl BiasedCase {
             .with_value("leads.right.fermi_level_ev", mu_ev)?
             .with_value("leads.left.temperature_k", t.left_k)?
             .with_value("leads.right.temperature_k", t.right_k)?;
+        let zero = base.with_value("bias.voltage_v", 0.0)?;
+        let grid = CommonGrid::choose(std::slice::from_ref(&zero))?;
         Ok(Self {
+            fixed: grid.apply(&base)?,
             base,
+            grid,
+            covered_v: 0.0,
+            generation: 0,
             warm: None,
             all_converged: true,
             solves: 0,
@@ -167,6 +191,32 @@ impl BiasedCase {
         &self.base
     }
 
+    /// The grid the solves run on now.
+    pub fn grid(&self) -> &CommonGrid {
+        &self.grid
+    }
+
+    /// Make the grid cover |V| ≤ `v_abs`.
+    pub fn cover(&mut self, v_abs: f64) -> Result<(), CaseError> {
+        if v_abs <= self.covered_v {
+            return Ok(());
+        }
+        let w = v_abs.max(2.0 * self.covered_v);
+        let ends = [-w, 0.0, w]
+            .iter()
+            .map(|&v| self.base.with_value("bias.voltage_v", v))
+            .collect::<Result<Vec<_>, _>>()?;
+        let grid = CommonGrid::choose(&ends)?;
+        if grid.grid != self.grid.grid || grid.phonon_energies_ev != self.grid.phonon_energies_ev {
+            self.fixed = grid.apply(&self.base)?;
+            self.generation += 1;
+            self.warm = None;
+        }
+        self.grid = grid;
+        self.covered_v = w;
+        Ok(())
+    }
+
     /// Solve at voltage `v`.
     pub fn at(
         &mut self,
@@ -174,8 +224,15 @@ impl BiasedCase {
         stage: &'static str,
         observer: &mut dyn CurveObserver,
     ) -> Result<Solved, CurveError> {
-        let c = self.base.with_value("bias.voltage_v", v)?;
+        self.cover(v.abs())?;
+        let c = self.fixed.with_value("bias.voltage_v", v)?;
         let r = c.resolve()?;
+        if !self.grid.matches(&r.problem) {
+            return Err(CurveError::Settings(format!(
+                "internal: the solve at V = {v:e} V left the common grid ({}); please report this with the case file",
+                self.grid.describe()
+            )));
+        }
         let warm = self
             .warm
             .as_ref()
@@ -197,42 +254,115 @@ impl BiasedCase {
             voltage_v: v,
             obs,
             converged,
+            generation: self.generation,
         })
+    }
+
+    /// `s` itself when it was solved on the present grid, else solved again.
+    pub fn current(
+        &mut self,
+        s: Solved,
+        stage: &'static str,
+        observer: &mut dyn CurveObserver,
+    ) -> Result<Solved, CurveError> {
+        if s.generation == self.generation {
+            Ok(s)
+        } else {
+            self.at(s.voltage_v, stage, observer)
+        }
     }
 }
 
-/// Golden-section search for the maximum of `f` on [a, b]; returns the best
-/// point seen. `iterations` steps shrink the bracket by 0.618^iterations.
+/// Golden-section search for a maximum bracketed by a < m < b with
+/// f(m) ≥ f(a), f(b) (`fm` and `tm` are f's value and payload at m). Each
+/// step probes the larger of [a, m] and [m, b] at the golden ratio and keeps
+/// a bracket around the best point seen, so the bracket always holds the
+/// best point and, for a function with one maximum in [a, b], the maximum
+/// itself. It stops when b − a ≤ `x_tolerance` (or after 200 steps);
+/// returns the best point, its value and payload. Values that are not
+/// numbers count as −∞.
 pub(crate) fn golden_max<T>(
     mut a: f64,
+    mut m: f64,
     mut b: f64,
-    iterations: usize,
+    fm: f64,
+    tm: T,
+    x_tolerance: f64,
     f: &mut dyn FnMut(f64) -> Result<(f64, T), CurveError>,
 ) -> Result<(f64, f64, T), CurveError> {
-    let r = 0.5 * (5f64.sqrt() - 1.0);
-    let mut x1 = b - r * (b - a);
-    let mut x2 = a + r * (b - a);
-    let (mut f1, mut t1) = f(x1)?;
-    let (mut f2, mut t2) = f(x2)?;
-    for _ in 0..iterations {
-        if f1 >= f2 {
-            b = x2;
-            x2 = x1;
-            f2 = f1;
-            t2 = t1;
-            x1 = b - r * (b - a);
-            (f1, t1) = f(x1)?;
+    let c = 0.5 * (3.0 - 5f64.sqrt());
+    let key = |v: f64| if v.is_nan() { f64::NEG_INFINITY } else { v };
+    let (mut fm, mut tm) = (key(fm), tm);
+    for _ in 0..200 {
+        if b - a <= x_tolerance {
+            break;
+        }
+        let x = if b - m > m - a {
+            m + c * (b - m)
         } else {
-            a = x1;
-            x1 = x2;
-            f1 = f2;
-            t1 = t2;
-            x2 = a + r * (b - a);
-            (f2, t2) = f(x2)?;
+            m - c * (m - a)
+        };
+        let (fx, tx) = f(x)?;
+        let fx = key(fx);
+        if fx > fm {
+            if x > m {
+                a = m;
+            } else {
+                b = m;
+            }
+            m = x;
+            fm = fx;
+            tm = tx;
+        } else if x > m {
+            b = x;
+        } else {
+            a = x;
         }
     }
-    Ok(if f1 >= f2 { (x1, f1, t1) } else { (x2, f2, t2) })
+    Ok((m, fm, tm))
 }
+
+/// Refine the maximum of `key` over the sampled `points` (sorted by
+/// voltage): the best sample and its neighbours bracket a golden-section
+/// search down to `x_tolerance` (V). A best sample at either end of the
+/// samples is returned as it is (the maximum is then at the end of the
+/// range). Samples whose key is not a number are never best.
+pub(crate) fn refine_max<P: Copy>(
+    points: &[P],
+    voltage: &dyn Fn(&P) -> f64,
+    key: &dyn Fn(&P) -> f64,
+    x_tolerance: f64,
+    solve_at: &mut dyn FnMut(f64) -> Result<P, CurveError>,
+) -> Result<Option<P>, CurveError> {
+    let Some(i) = (0..points.len())
+        .filter(|&i| key(&points[i]).is_finite())
+        .max_by(|&i, &j| key(&points[i]).total_cmp(&key(&points[j])))
+    else {
+        return Ok(None);
+    };
+    if i == 0 || i + 1 == points.len() {
+        return Ok(Some(points[i]));
+    }
+    let (_, _, best) = golden_max(
+        voltage(&points[i - 1]),
+        voltage(&points[i]),
+        voltage(&points[i + 1]),
+        key(&points[i]),
+        points[i],
+        x_tolerance,
+        &mut |v| {
+            let p = solve_at(v)?;
+            Ok((key(&p), p))
+        },
+    )?;
+    Ok(Some(best))
+}
+
+/// Relative width, against the voltage range of a curve, to which its
+/// maxima are located: 1e-9, so the voltages at the maxima agree to about
+/// 1e-8 of their value whatever the number of curve points (the values
+/// themselves, being flat there, to far better).
+pub(crate) const REFINE_RELATIVE_WIDTH: f64 = 1e-9;
 
 /// Settings of a generator curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -316,9 +446,15 @@ pub struct GeneratorReport {
     pub efficiency_at_max_power_linear: f64,
     /// The load curve, V from 0 to V_oc.
     pub curve: Vec<LoadPoint>,
+    /// The energy grid every solve of the curve (root search, curve,
+    /// refinements) ran on; the search for V_oc may have grown it, and the
+    /// points it kept were solved again on the final one.
+    pub energy_grid: CommonGrid,
+    /// The energy grid of the four linear-response runs.
+    pub coefficient_grid: CommonGrid,
     /// Every Born loop converged.
     pub converged: bool,
-    /// Solves done (curve, root search, refinement).
+    /// Solves done (root search, curve, refinements).
     pub solves: usize,
 }
 
@@ -351,7 +487,8 @@ pub fn generator(
             right_k: tm,
         },
     )?;
-    let (coefficients, _) = case_coefficients(mean.case(), &mut Silent)?;
+    let set = case_coefficients(mean.case(), &mut Silent)?;
+    let (coefficients, coefficient_grid) = (set.coefficients, set.grid);
     let mut dev = BiasedCase::new(
         case,
         mu,
@@ -423,6 +560,10 @@ pub fn generator(
         voc = if fa.abs() < fb.abs() { a } else { b };
     }
 
+    // Everything from here on runs on the grid that covers [0, b] ⊇ [0, V_oc]:
+    // the short-circuit point is solved again if the grid grew since.
+    let zero = dev.current(zero, "short circuit", observer)?;
+    let i0 = zero.obs.current_a;
     let n = settings.points;
     let mut curve = Vec::with_capacity(n);
     for k in 0..n {
@@ -434,47 +575,33 @@ pub fn generator(
         };
         curve.push(LoadPoint::from(&s));
     }
-    let argmax = |key: &dyn Fn(&LoadPoint) -> f64| {
-        (0..n)
-            .filter(|&i| key(&curve[i]).is_finite())
-            .max_by(|&i, &j| key(&curve[i]).total_cmp(&key(&curve[j])))
-            .unwrap_or(0)
-    };
-    let bracket = |i: usize| {
-        (
-            curve[i.saturating_sub(1)].voltage_v,
-            curve[(i + 1).min(n - 1)].voltage_v,
-        )
-    };
-    // Each refinement shrinks a bracket of two curve steps by 0.618^30 ≈ 5e-7 (the
-    // maximum's value is then exact to ~1e-13, being quadratic there).
-    let ip = argmax(&|p| p.power_w);
-    let (lo, hi) = bracket(ip);
-    let (_, _, best_p) = golden_max(lo, hi, 30, &mut |v| {
-        let p = LoadPoint::from(&dev.at(v, "maximum power", observer)?);
-        Ok((p.power_w, p))
-    })?;
-    let best_p = if best_p.power_w >= curve[ip].power_w {
-        best_p
-    } else {
-        curve[ip]
-    };
-    let ie = argmax(&|p| p.efficiency);
-    let (lo, hi) = bracket(ie);
-    let (_, _, best_e) = golden_max(lo, hi, 30, &mut |v| {
-        let p = LoadPoint::from(&dev.at(v, "maximum efficiency", observer)?);
-        let e = if p.efficiency.is_finite() {
-            p.efficiency
-        } else {
-            f64::NEG_INFINITY
-        };
-        Ok((e, p))
-    })?;
-    let best_e = if best_e.efficiency >= curve[ie].efficiency || !curve[ie].efficiency.is_finite() {
-        best_e
-    } else {
-        curve[ie]
-    };
+    let tol = REFINE_RELATIVE_WIDTH * voc.abs();
+    // The curve runs from 0 towards V_oc, whose sign may be negative: sort
+    // by voltage for the brackets.
+    let mut sorted = curve.clone();
+    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    let best_p = refine_max(
+        &sorted,
+        &|p: &LoadPoint| p.voltage_v,
+        &|p: &LoadPoint| p.power_w,
+        tol,
+        &mut |v| Ok(LoadPoint::from(&dev.at(v, "maximum power", observer)?)),
+    )?
+    .unwrap_or(curve[0]);
+    let best_e = refine_max(
+        &sorted,
+        &|p: &LoadPoint| p.voltage_v,
+        &|p: &LoadPoint| p.efficiency,
+        tol,
+        &mut |v| {
+            Ok(LoadPoint::from(&dev.at(
+                v,
+                "maximum efficiency",
+                observer,
+            )?))
+        },
+    )?
+    .unwrap_or(curve[0]);
     let zt = coefficients.zt;
     Ok(GeneratorReport {
         settings: *settings,
@@ -495,6 +622,8 @@ pub fn generator(
         efficiency_at_max_power_linear: efficiency_at_max_power_linear(zt, th, tc),
         coefficients,
         curve,
+        energy_grid: dev.grid().clone(),
+        coefficient_grid,
         converged: dev.all_converged,
         solves: dev.solves,
     })
@@ -506,9 +635,40 @@ mod tests {
 
     #[test]
     fn golden_section_finds_a_parabola_top() {
+        let f = |x: f64| -(x - 1.3) * (x - 1.3);
         let (x, fx, _) =
-            golden_max(0.0, 3.0, 60, &mut |x| Ok((-(x - 1.3) * (x - 1.3), ()))).unwrap();
+            golden_max(0.0, 1.5, 3.0, f(1.5), (), 1e-10, &mut |x| Ok((f(x), ()))).unwrap();
         assert!((x - 1.3).abs() < 1e-8, "{x}");
         assert!(fx <= 0.0);
+    }
+
+    /// A maximum in a narrow window of finite values (NaN elsewhere, as a
+    /// COP outside the cooling range): the search keeps the best point and
+    /// so cannot lose the window.
+    #[test]
+    fn golden_section_keeps_a_narrow_finite_window() {
+        let f = |x: f64| {
+            if (0.45..0.6).contains(&x) {
+                1.0 - (x - 0.52) * (x - 0.52)
+            } else {
+                f64::NAN
+            }
+        };
+        let (x, _, _) =
+            golden_max(0.0, 0.5, 1.0, f(0.5), (), 1e-10, &mut |x| Ok((f(x), ()))).unwrap();
+        assert!((x - 0.52).abs() < 1e-8, "{x}");
+    }
+
+    #[test]
+    fn refinement_leaves_a_maximum_at_the_end_alone() {
+        let pts = [(0.0, 0.0), (0.5, 1.0), (1.0, 2.0)];
+        let mut calls = 0;
+        let best = refine_max(&pts, &|p| p.0, &|p| p.1, 1e-9, &mut |v| {
+            calls += 1;
+            Ok((v, v))
+        })
+        .unwrap();
+        assert_eq!(best, Some((1.0, 2.0)));
+        assert_eq!(calls, 0);
     }
 }

@@ -1,8 +1,13 @@
 //! Coefficients of a case file: the coherent moments when nothing scatters,
-//! finite differences through converged Born solutions otherwise.
+//! finite differences through converged Born solutions otherwise. The four
+//! finite-difference runs share one energy grid, the envelope of the grids
+//! the case would give each of them (see [`super::common_grid`]).
 
 use super::Coefficients;
-use super::response::{OperatingPoint, ResponseMatrix, Split, linear_response, operating_point};
+use super::common_grid::CommonGrid;
+use super::response::{
+    OperatingPoint, ResponseMatrix, Split, difference_points, linear_response, operating_point,
+};
 use crate::case::{Case, CaseError, ResponseSplit};
 use crate::scba::{Observer, SolveError};
 
@@ -58,26 +63,49 @@ pub fn reference_point(case: &Case) -> Result<(f64, f64), CaseError> {
     ))
 }
 
+/// Coefficients of a case and how they were obtained.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct CaseCoefficients {
+    /// The coefficients.
+    pub coefficients: Coefficients,
+    /// The response matrix, when it was obtained by finite differences.
+    pub response: Option<ResponseMatrix>,
+    /// The energy grid every run shared (one run for a coherent device).
+    pub grid: CommonGrid,
+}
+
 /// Linear-response coefficients of a case around its reference point; the
-/// response matrix too when it was obtained by finite differences.
+/// response matrix too when it was obtained by finite differences, and the
+/// energy grid the runs shared.
 pub fn case_coefficients(
     case: &Case,
     observer: &mut dyn Observer,
-) -> Result<(Coefficients, Option<ResponseMatrix>), CoefficientError> {
+) -> Result<CaseCoefficients, CoefficientError> {
     let resolved = case.resolve()?;
     let (mu, t) = reference_point(case)?;
     let kph = resolved.phonon_conductance_w_per_k;
     if resolved.problem.scattering.is_coherent() {
         let eq = case_at(case, &operating_point(mu, t, 0.0, 0.0, Split::Symmetric))?;
+        let grid = CommonGrid::choose(std::slice::from_ref(&eq))?;
         let c = super::coherent_coefficients(&eq.resolve()?.problem, kph)?;
-        return Ok((c, None));
+        return Ok(CaseCoefficients {
+            coefficients: c,
+            response: None,
+            grid,
+        });
     }
     let split = match resolved.response_split {
         ResponseSplit::Symmetric => Split::Symmetric,
         ResponseSplit::LeftOnly => Split::LeftOnly,
     };
+    let runs = difference_points(mu, t, split)
+        .iter()
+        .map(|op| case_at(case, op))
+        .collect::<Result<Vec<_>, _>>()?;
+    let grid = CommonGrid::choose(&runs)?;
+    let fixed = grid.apply(case)?;
     let build = |op: &OperatingPoint| -> Result<crate::model::Problem, String> {
-        case_at(case, op)
+        case_at(&fixed, op)
             .and_then(|c| c.resolve())
             .map(|r| r.problem)
             .map_err(|e| e.to_string())
@@ -90,5 +118,9 @@ pub fn case_coefficients(
             m.iterations
         )));
     }
-    Ok((c, Some(m)))
+    Ok(CaseCoefficients {
+        coefficients: c,
+        response: Some(m),
+        grid,
+    })
 }

@@ -17,6 +17,7 @@
 //! runs (V = ±δV, ΔT = 0 and ΔT = ±δT, V = 0) is a full converged solve.
 
 use super::Coefficients;
+use crate::grid::EnergyGrid;
 use crate::model::Problem;
 use crate::observables::observe;
 use crate::scba::{Observer, ScbaParams, ScbaReport, SolveError, solve};
@@ -73,6 +74,10 @@ pub struct ResponseMatrix {
     pub converged: bool,
     /// Born iterations of the four runs.
     pub iterations: Vec<usize>,
+    /// The energy grid all four runs shared.
+    pub grid: EnergyGrid,
+    /// The phonon energies, snapped to that grid, all four runs shared (eV).
+    pub phonon_energies_ev: Vec<f64>,
 }
 
 /// Operating point for (V, ΔT) around (µ, T) with a split.
@@ -97,6 +102,22 @@ pub fn operating_point(mu_ev: f64, t_k: f64, v: f64, dt: f64, split: Split) -> O
     }
 }
 
+/// The steps δV = 1e-3 kT/e (V) and δT = 1e-3 T (K) around temperature T.
+pub fn difference_steps(temperature_k: f64) -> (f64, f64) {
+    (
+        1e-3 * thermal_energy_ev(temperature_k),
+        1e-3 * temperature_k,
+    )
+}
+
+/// The operating points of the four runs in the order they are solved:
+/// V = +δV, −δV (ΔT = 0), then ΔT = +δT, −δT (V = 0).
+pub fn difference_points(mu_ev: f64, temperature_k: f64, split: Split) -> [OperatingPoint; 4] {
+    let (dv, dt) = difference_steps(temperature_k);
+    [(dv, 0.0), (-dv, 0.0), (0.0, dt), (0.0, -dt)]
+        .map(|(v, d)| operating_point(mu_ev, temperature_k, v, d, split))
+}
+
 /// Errors of the response calculation.
 #[derive(Debug, thiserror::Error)]
 pub enum ResponseError {
@@ -106,6 +127,36 @@ pub enum ResponseError {
     /// A solve failed.
     #[error(transparent)]
     Solve(#[from] SolveError),
+    /// Two runs were built on different energy grids (or with differently
+    /// snapped phonon energies): their difference would mix the change of
+    /// grid into the response.
+    #[error(
+        "the finite-difference runs must share one energy grid, found {first} in the first run and {other} in run {run}: give grid.step_ev, grid.min_ev and grid.max_ev explicitly, or build every run on one grid"
+    )]
+    GridMoved {
+        /// The first run's grid, in words.
+        first: String,
+        /// The differing run's grid, in words.
+        other: String,
+        /// Which run (1-based).
+        run: usize,
+    },
+}
+
+fn grid_words(p: &Problem) -> String {
+    let ph: Vec<String> = p
+        .scattering
+        .phonons
+        .iter()
+        .map(|m| format!("{:e}", m.energy_ev))
+        .collect();
+    format!(
+        "step {:e} eV from {:e} eV, {} points, phonon energies [{}] eV",
+        p.grid.step_ev,
+        p.grid.min_ev,
+        p.grid.count,
+        ph.join(", ")
+    )
 }
 
 /// Linear-response coefficients by finite differences. `build` returns the
@@ -113,7 +164,10 @@ pub enum ResponseError {
 /// potential as the case prescribes). δV = 1e-3 kT/e and δT = 1e-3 T keep
 /// the central-difference error, (δ/kT)²/6 ≈ 2e-7, below 1e-6; the Born
 /// tolerance is tightened to 1e-12 for the same reason, because the
-/// differences are a 1e-3 part of the currents.
+/// differences are a 1e-3 part of the currents. All four problems must
+/// share one energy grid and one set of snapped phonon energies
+/// ([`ResponseError::GridMoved`] otherwise); see
+/// [`super::common_grid::CommonGrid`] for choosing one.
 pub fn linear_response(
     build: &dyn Fn(&OperatingPoint) -> Result<Problem, String>,
     mu_ev: f64,
@@ -123,17 +177,35 @@ pub fn linear_response(
     phonon_conductance_w_per_k: f64,
     observer: &mut dyn Observer,
 ) -> Result<(Coefficients, ResponseMatrix, Vec<ScbaReport>), ResponseError> {
-    let dv = 1e-3 * thermal_energy_ev(temperature_k);
-    let dt = 1e-3 * temperature_k;
+    let (dv, dt) = difference_steps(temperature_k);
+    let points = difference_points(mu_ev, temperature_k, split);
     let mut tight = *params;
     tight.tolerance = params.tolerance.min(1e-12);
     tight.current_floor_a = params.current_floor_a.min(1e-24);
     tight.max_iterations = params.max_iterations.max(100);
     let mut warm = None;
     let mut reports = Vec::new();
-    let mut run = |v: f64, d: f64| -> Result<(f64, f64), ResponseError> {
-        let op = operating_point(mu_ev, temperature_k, v, d, split);
-        let problem = build(&op).map_err(ResponseError::Build)?;
+    let mut first: Option<Problem> = None;
+    let mut run = |op: &OperatingPoint| -> Result<(f64, f64), ResponseError> {
+        let problem = build(op).map_err(ResponseError::Build)?;
+        match &first {
+            None => first = Some(problem.clone()),
+            Some(f) => {
+                let same_phonons = f.scattering.phonons.len() == problem.scattering.phonons.len()
+                    && f.scattering
+                        .phonons
+                        .iter()
+                        .zip(&problem.scattering.phonons)
+                        .all(|(a, b)| a.energy_ev == b.energy_ev && a.steps == b.steps);
+                if f.grid != problem.grid || !same_phonons {
+                    return Err(ResponseError::GridMoved {
+                        first: grid_words(f),
+                        other: grid_words(&problem),
+                        run: reports.len() + 1,
+                    });
+                }
+            }
+        }
         let sol = solve(&problem, &tight, warm.as_ref(), observer)?;
         let o = observe(&sol);
         let jq = match split {
@@ -146,10 +218,11 @@ pub fn linear_response(
         reports.push(sol.report);
         Ok((o.current_a, jq))
     };
-    let (ip, qp) = run(dv, 0.0)?;
-    let (im, qm) = run(-dv, 0.0)?;
-    let (it_, qt) = run(0.0, dt)?;
-    let (itm, qtm) = run(0.0, -dt)?;
+    let (ip, qp) = run(&points[0])?;
+    let (im, qm) = run(&points[1])?;
+    let (it_, qt) = run(&points[2])?;
+    let (itm, qtm) = run(&points[3])?;
+    let shared = first.expect("four runs were built");
     let m11 = (ip - im) / (2.0 * dv);
     let m21 = (qp - qm) / (2.0 * dv);
     let m12 = temperature_k * (it_ - itm) / (2.0 * dt);
@@ -166,6 +239,13 @@ pub fn linear_response(
         onsager_residual: onsager,
         converged: reports.iter().all(|r| r.converged),
         iterations: reports.iter().map(|r| r.iterations).collect(),
+        grid: shared.grid.clone(),
+        phonon_energies_ev: shared
+            .scattering
+            .phonons
+            .iter()
+            .map(|m| m.energy_ev)
+            .collect(),
     };
     let g = m11;
     let s = m12 / (temperature_k * m11);
