@@ -396,9 +396,9 @@ fn existing_ancestor(path: &Path) -> Option<&Path> {
 
 /// Check a given result folder before any work: a regular file in its
 /// place or above it cannot hold results (I/O failure, exit 3, for root
-/// too); an existing folder that is not a result folder is not replaced
-/// when `replaces` (the command swaps in a new folder as a whole).
-pub fn check_out_dir(out: &Path, replaces: bool) -> Result<(), Failure> {
+/// too). Whether an existing folder may take the results is decided by
+/// its manifest when the results are staged (`qheat::output`).
+pub fn check_out_dir(out: &Path) -> Result<(), Failure> {
     let shown = out.display();
     if let Some(a) = existing_ancestor(out)
         && !a.is_dir()
@@ -412,18 +412,6 @@ pub fn check_out_dir(out: &Path, replaces: bool) -> Result<(), Failure> {
             "-o {shown}: expected a result folder that can be created, found that {what}; \
              hint: choose another -o folder"
         )));
-    }
-    if replaces && out.is_dir() {
-        let mut entries = std::fs::read_dir(out)
-            .map_err(|e| Failure::Io(format!("-o {shown}: cannot read the folder: {e}")))?;
-        let empty = entries.next().is_none();
-        if !empty && !out.join("summary.json").is_file() {
-            return Err(Failure::BadInput(format!(
-                "-o {shown}: expected a new folder, an empty one or an earlier result folder \
-                 (with summary.json), found a folder with other files, which the results would \
-                 replace; hint: choose another -o folder"
-            )));
-        }
     }
     Ok(())
 }
@@ -451,13 +439,13 @@ fn check_paths(command: &Command) -> Result<(), Failure> {
                     )));
                 }
             }
-            out.as_deref().map_or(Ok(()), |o| check_out_dir(o, true))
+            out.as_deref().map_or(Ok(()), |o| check_out_dir(o))
         }
         Command::Coefficients { out, .. }
         | Command::Generator { out, .. }
-        | Command::Cooler { out, .. } => out.as_deref().map_or(Ok(()), |o| check_out_dir(o, true)),
+        | Command::Cooler { out, .. } => out.as_deref().map_or(Ok(()), |o| check_out_dir(o)),
         Command::Sweep { out, .. } | Command::Screen { out, .. } => {
-            out.as_deref().map_or(Ok(()), |o| check_out_dir(o, false))
+            out.as_deref().map_or(Ok(()), |o| check_out_dir(o))
         }
         Command::Check { .. } | Command::Report { .. } => Ok(()),
     }

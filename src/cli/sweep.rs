@@ -72,11 +72,14 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
             }
         )));
     }
-    // One probe per key and end gives the close-match message for a typo
-    // and a bad end value before any point is checked.
+    // Every value of every axis, one key at a time, before the folder is
+    // claimed: a typo gets its close-match message and a value the key
+    // cannot take (a fractional count, a negative temperature) is refused
+    // before anything is written. Combinations of axes are checked by the
+    // sweep itself.
     for (axis, spec) in grid.axes.iter().zip(vary) {
         for key in &axis.keys {
-            for value in [axis.start, axis.stop] {
+            for value in (0..axis.count).map(|i| axis.value(i)) {
                 case.with_value(key, value).map_err(|e| {
                     let listing = if e.suggestion.is_none()
                         && e.kind == qheat::case::CaseErrorKind::UnknownKey
