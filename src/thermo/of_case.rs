@@ -103,9 +103,12 @@ pub fn case_coefficients(
         .map(|op| case_at(case, op))
         .collect::<Result<Vec<_>, _>>()?;
     let grid = CommonGrid::choose(&runs)?;
-    let fixed = grid.apply(case)?;
+    // The grid goes into each run's case after its temperatures are set:
+    // the case as written may have a colder lead than any run, and its
+    // own validation would refuse the common step.
     let build = |op: &OperatingPoint| -> Result<crate::model::Problem, String> {
-        case_at(&fixed, op)
+        case_at(case, op)
+            .and_then(|c| grid.apply(&c))
             .and_then(|c| c.resolve())
             .map(|r| r.problem)
             .map_err(|e| e.to_string())
