@@ -726,3 +726,32 @@ fn blocks_two_orbitals_from_csv() {
     );
     assert_eq!(r.hopping_ev, None);
 }
+
+/// Without grid.step_ev the step is the largest one at most kB·T_min/10
+/// that puts every phonon energy on whole steps to 1 %: at 300 K
+/// kT/10 = 2.585 meV would snap a 10 meV phonon to 4 steps (10.34 meV,
+/// +3.4 %) and a 7 meV one to 3 steps (7.76 meV, +11 %).
+#[test]
+fn default_step_keeps_phonon_energies_on_the_grid() {
+    let r = resolved(
+        "[[phonon]]\nenergy_ev = 0.010\ncoupling_ev2 = 1e-3\n\
+         [[phonon]]\nenergy_ev = 0.007\ncoupling_ev2 = 1e-3\n",
+    );
+    let step = r.problem.grid.step_ev;
+    assert!(step <= thermal_energy_ev(300.0) / 10.0, "step {step}");
+    for m in &r.problem.scattering.phonons {
+        let change = (m.energy_ev - m.requested_energy_ev).abs() / m.requested_energy_ev;
+        assert!(
+            change <= 0.01,
+            "{} eV snapped to {} eV",
+            m.requested_energy_ev,
+            m.energy_ev
+        );
+    }
+    // The largest energy is exact, so the step is 10 meV over whole steps.
+    let n = 0.010 / step;
+    assert!((n - n.round()).abs() < 1e-9, "10 meV is {n} steps");
+    // Without phonons the thermal step stands.
+    let plain = resolved("");
+    assert_eq!(plain.problem.grid.step_ev, thermal_energy_ev(300.0) / 10.0);
+}
