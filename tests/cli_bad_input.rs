@@ -348,10 +348,7 @@ fn bad_options_are_refused_with_the_option_expected_and_found() {
                 "K > 0, found -1",
             ],
         ),
-        vary(
-            "spin_degeneracy=1:2:3",
-            &["whole number, found 1.5"],
-        ),
+        vary("spin_degeneracy=1:2:3", &["whole number, found 1.5"]),
         vary(
             "phonon.0.energy_ev=0.01:0.02:3",
             &[

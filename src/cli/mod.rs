@@ -439,13 +439,13 @@ fn check_paths(command: &Command) -> Result<(), Failure> {
                     )));
                 }
             }
-            out.as_deref().map_or(Ok(()), |o| check_out_dir(o))
+            out.as_deref().map_or(Ok(()), check_out_dir)
         }
         Command::Coefficients { out, .. }
         | Command::Generator { out, .. }
-        | Command::Cooler { out, .. } => out.as_deref().map_or(Ok(()), |o| check_out_dir(o)),
+        | Command::Cooler { out, .. } => out.as_deref().map_or(Ok(()), check_out_dir),
         Command::Sweep { out, .. } | Command::Screen { out, .. } => {
-            out.as_deref().map_or(Ok(()), |o| check_out_dir(o))
+            out.as_deref().map_or(Ok(()), check_out_dir)
         }
         Command::Check { .. } | Command::Report { .. } => Ok(()),
     }
