@@ -29,8 +29,12 @@
 //! powers in W ([`units`]). Every energy integral is the plain sum
 //! Σ_k g(E_k) ΔE on a uniform grid ([`grid`]) with every ħω an integer number
 //! of steps, which makes the phonon exchange conserve particles and energy
-//! exactly on the grid; the ledger ([`observables::Ledger`]) checks
-//! I_1 + I_2 = 0, J_E,1 + J_E,2 = Σ_i P_i and Σ_i P_i = I·V + J_Q,1 + J_Q,2.
+//! exactly on the grid. The ledger ([`observables::Ledger`]) checks
+//! I_1 + I_2 = 0, that the lattice power computed mode by mode from the
+//! phonon side (ħω × (emission − absorption) from the final G^n and G^p)
+//! equals the electron side Σ_i P_i and the leads' energy loss
+//! J_E,1 + J_E,2, and Σ_i P_i = I·V + J_Q,1 + J_Q,2; these hold only at the
+//! fixed point of the Born loop, so an unconverged solve shows in them.
 //!
 //! ## Data flow and main types
 //!
