@@ -509,10 +509,13 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
                  flagged as not trustworthy.</div>\n",
             );
         }
-        summary_sections(&mut html, s);
     }
-
+    // The figures come right after the headline values: the page answers
+    // where the heat goes and where the resistance sits before it turns to
+    // convergence, the ledger and the other recorded values.
+    let mut figure_html = String::new();
     if !figures.is_empty() {
+        let html = &mut figure_html;
         html.push_str("<h2>Figures</h2>\n");
         for f in &figures {
             let svg = read(f)?;
@@ -530,6 +533,10 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
                 body.trim_end()
             );
         }
+    }
+    match summary.as_ref() {
+        Some(s) => summary_sections(&mut html, s, &figure_html),
+        None => html.push_str(&figure_html),
     }
 
     for t in &tables {
@@ -571,7 +578,9 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
 
 /// Tables of a summary: results, operating point, convergence, ledger,
 /// warnings and notes, then every other recorded object.
-fn summary_sections(html: &mut String, s: &Map<String, Value>) {
+/// The sections of a summary, with `figures` (ready HTML) placed after the
+/// headline values.
+fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
     let mut shown: Vec<&str> = vec![
         "program",
         "kind",
@@ -600,6 +609,7 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>) {
             shown.push(key);
         }
     }
+    html.push_str(figures);
     let conv = convergence_rows(s);
     if !conv.is_empty() {
         html.push_str("<h2>Convergence</h2>\n");
