@@ -3,7 +3,7 @@
 //! and a case too large for memory. Each must end with its exit code and a
 //! message that says what is wrong, never with a panic.
 //!
-//! Exit codes (interface.md): 0 ok, 1 bad input, 2 solver fault, 3 I/O.
+//! Exit codes (the CLI's contract, README): 0 ok, 1 bad input, 2 solver fault, 3 I/O.
 //! A case file that cannot be read (missing, a folder, no permission) is
 //! bad input (1): the user named the wrong thing. Only failing to write
 //! results is an I/O failure (3).

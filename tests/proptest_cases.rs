@@ -1,7 +1,9 @@
 //! Random valid small cases run end to end (text → load → resolve → solve →
 //! observe) without a panic, and every converged one closes its ledger.
 //!
-//! The ledger (physics.md §6; checks.md §9): charge I_1 + I_2 = 0 and
+//! The ledger (conservation in the self-consistent Born approximation with
+//! in/out-scattering; Lake & Datta, Phys. Rev. B 46, 4757 (1992), from
+//! memory): charge I_1 + I_2 = 0 and
 //! energy J_E,1 + J_E,2 = Σ P_i hold at every energy to rounding with the
 //! pass's own Σ0, and for the phonon bath to the SCBA tolerance. At a loop
 //! tolerance of 1e-9 the relative residuals stay far below 1e-6; the bound

@@ -1,7 +1,7 @@
 //! The device as a Peltier cooler: cooling power and coefficient of
 //! performance against the driving current.
 //!
-//! Conventions (physics.md §6): V = V1 − V2 = −(µ1 − µ2)/e applied as
+//! Conventions (the crate manual's): V = V1 − V2 = −(µ1 − µ2)/e applied as
 //! µ1 = µ − eV/2, µ2 = µ + eV/2 around the case's mean zero-bias Fermi level
 //! µ; I = I_1 (conventional current into the device from lead 1). The cold
 //! lead is lead 2 (right) unless [`ColdLead::Left`] is chosen; the other lead

@@ -1,7 +1,7 @@
 //! The device as a thermoelectric generator: power and efficiency against
 //! load voltage between a hot and a cold lead.
 //!
-//! Conventions (physics.md §6): V = V1 − V2 = −(µ1 − µ2)/e, applied as
+//! Conventions (the crate manual's): V = V1 − V2 = −(µ1 − µ2)/e, applied as
 //! µ1 = µ − eV/2, µ2 = µ + eV/2 around the case's mean zero-bias Fermi
 //! level µ; I = I_1 is the conventional current into the device from lead 1.
 //! The hot lead is lead 1 (left) at T_hot, the cold lead is lead 2 (right)
