@@ -82,7 +82,7 @@ fn positions_point_at_the_offending_line() {
     // (the rest of the case is valid so that validation reaches it)
     let text = "name = \"p\"\n[leads.left]\ntemperature_k = -1.0\nfermi_level_ev = 0.0\n\
                 [leads.right]\ntemperature_k = 300.0\nfermi_level_ev = 0.0\n\
-                [device]\nbuilder = \"chain\"\nspacing_nm = 0.5\nlength_nm = 5.0\neffective_mass = 0.1\n";
+                [device]\nkind = \"chain\"\nspacing_nm = 0.5\nlength_nm = 5.0\neffective_mass = 0.1\n";
     let err = Case::parse(text, "mem.toml", Path::new(".")).unwrap_err();
     assert_eq!(err.location, Some((3, 17)), "{err}");
     assert!(

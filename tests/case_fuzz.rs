@@ -10,7 +10,7 @@ use std::path::Path;
 const VALID: &str = r#"name = "fuzz"
 spin_degeneracy = 2
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 10.0
 effective_mass = 0.1
@@ -41,7 +41,7 @@ mixing_factor = 0.5
 "#;
 
 /// Replacement tokens that stress parsing and validation: extreme and
-/// special numbers, wrong types, other builders, structural characters.
+/// special numbers, wrong types, other device kinds, structural characters.
 const TOKENS: &[&str] = &[
     "0",
     "-1",

@@ -1,5 +1,5 @@
 //! Case files that should load: defaults, edits, snapping, warnings, and the
-//! blocks builder against the chain builder.
+//! blocks device kind against the chain kind.
 
 #![allow(clippy::needless_range_loop)]
 
@@ -13,7 +13,7 @@ use std::path::Path;
 const BASE: &str = r#"
 name = "base"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 20.0
 effective_mass = 0.1
@@ -560,8 +560,8 @@ fn strip_band_bottom_is_the_first_transverse_mode() {
     // Closed form (common practice): hard-wall strip modes 2t(1 − cos(nπ/(W+1)))
     // above Ec; tolerance 1e-15 because both sides evaluate the same formula.
     let text = BASE.replace(
-        "builder = \"chain\"",
-        "builder = \"strip\"\nwidth_sites = 5\nband_edge_ev = -0.1",
+        "kind = \"chain\"",
+        "kind = \"strip\"\nwidth_sites = 5\nband_edge_ev = -0.1",
     );
     let r = parse(&text).resolve().unwrap();
     let t = hopping_ev(0.1, 0.5);
@@ -588,7 +588,7 @@ fn blocks_text(files: (&str, &str), extra: &str) -> String {
     format!(
         r#"name = "blocks"
 [device]
-builder = "blocks"
+kind = "blocks"
 spacing_nm = 0.5
 onsite_file = "{}"
 coupling_file = "{}"
@@ -679,7 +679,7 @@ fn blocks_from_npy_and_csv_equal_the_chain() {
     .unwrap();
     let case = Case::parse(&blocks_text(("on.csv", "co.csv"), ""), "b.toml", dir.path()).unwrap();
     assert_same_problem(&chain, &case.resolve().unwrap());
-    assert_eq!(case.resolve().unwrap().builder, "blocks");
+    assert_eq!(case.resolve().unwrap().device_kind, "blocks");
 
     // load() resolves file names against the case file's folder
     std::fs::write(

@@ -134,7 +134,7 @@ fn good_case(dir: &Path) -> PathBuf {
         &path,
         r#"name = "tiny"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 5.0
 effective_mass = 0.1
@@ -338,8 +338,8 @@ fn bad_options_are_refused_with_the_option_expected_and_found() {
             ],
         ),
         vary(
-            "device.builder=0:1:3",
-            &["key `device.builder`", "expected a numeric case key"],
+            "device.kind=0:1:3",
+            &["key `device.kind`", "expected a numeric case key"],
         ),
         vary(
             "leads.left.temperature_k=300:-1:3",

@@ -44,7 +44,7 @@ fn chain_case(name: &str, length_nm: f64, coupling_ev2: f64, extra: &str) -> Str
     format!(
         r#"name = "{name}"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = {length_nm:.1}
 effective_mass = 0.1
@@ -97,7 +97,7 @@ fn isolated_level_case(dir: &Path) -> PathBuf {
         "isolated.toml",
         r#"name = "isolated"
 [device]
-builder = "blocks"
+kind = "blocks"
 spacing_nm = 0.5
 onsite_file = "onsite.csv"
 coupling_file = "coupling.csv"

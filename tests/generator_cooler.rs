@@ -42,7 +42,7 @@ fn resonant_level(gamma: f64) -> Case {
             r#"
 name = "level"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 1.0
 length_nm = 1.0
 effective_mass = 1.0

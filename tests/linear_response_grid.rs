@@ -38,7 +38,7 @@ fn chain(tl: f64, tr: f64, scatter: Scatter, split: &str) -> String {
         r#"
 name = "grid-chain"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 12.0
 effective_mass = 0.07
@@ -218,7 +218,7 @@ fn generator_between_different_temperatures_with_phonons() {
     let text = r#"
 name = "peltier-small"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 15.0
 effective_mass = 0.07

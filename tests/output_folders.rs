@@ -21,7 +21,7 @@ fn chain_case(name: &str, phonons: bool) -> String {
     format!(
         r#"name = "{name}"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 5.0
 effective_mass = 0.1

@@ -94,7 +94,7 @@ fn spec() -> impl Strategy<Value = Spec> {
 fn case_text(s: &Spec) -> String {
     let length = s.cells as f64 * SPACING_NM;
     let mut t = format!(
-        "name = \"random\"\n[device]\nbuilder = \"chain\"\nspacing_nm = {SPACING_NM:?}\n\
+        "name = \"random\"\n[device]\nkind = \"chain\"\nspacing_nm = {SPACING_NM:?}\n\
          length_nm = {length:?}\neffective_mass = {:?}\n",
         s.mass
     );

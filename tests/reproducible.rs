@@ -14,7 +14,7 @@ use std::process::Command;
 
 const CASE: &str = r#"name = "repeat"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.5
 length_nm = 15.0
 effective_mass = 0.1

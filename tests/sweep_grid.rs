@@ -13,7 +13,7 @@ fn symmetric_case(phonons: bool) -> Case {
         r#"
 name = "mirror"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.25
 length_nm = 5.0
 effective_mass = 0.1

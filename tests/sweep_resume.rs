@@ -13,7 +13,7 @@ fn phonon_case(length_nm: f64) -> String {
         r#"
 name = "resume-phonon"
 [device]
-builder = "chain"
+kind = "chain"
 spacing_nm = 0.25
 length_nm = {length_nm}
 effective_mass = 0.1

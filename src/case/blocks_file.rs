@@ -1,4 +1,4 @@
-//! Hamiltonian blocks read from files for `builder = "blocks"`.
+//! Hamiltonian blocks read from files for `kind = "blocks"`.
 //!
 //! Formats:
 //! - `.npy`: float64 or complex128, shape (N, b, b) (one block per cell or

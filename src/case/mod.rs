@@ -13,7 +13,7 @@
 //! |---|---|---|
 //! | `name` | case name | required |
 //! | `spin_degeneracy` | 1 or 2 | 2 |
-//! | `device.builder` | `"chain"`, `"strip"` or `"blocks"` | required |
+//! | `device.kind` | `"chain"`, `"strip"` or `"blocks"` | required |
 //! | `device.spacing_nm` | cell spacing a | required |
 //! | `device.length_nm` | chain/strip: N·a (N = length/spacing must be whole) | required |
 //! | `device.effective_mass` | chain/strip: m*/m0; t = ħ²/(2 m* a²) | required |

@@ -30,7 +30,9 @@ pub(crate) struct RawCase {
 #[derive(Deserialize, Debug)]
 #[serde(deny_unknown_fields, expecting = "a table of device settings")]
 pub(crate) struct RawDevice {
-    pub builder: Opt<String>,
+    pub kind: Opt<String>,
+    /// The key of earlier versions, refused with a message naming `kind`.
+    pub builder: Opt<toml::Value>,
     pub spacing_nm: Opt<f64>,
     pub length_nm: Opt<f64>,
     pub effective_mass: Opt<f64>,

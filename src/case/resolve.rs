@@ -2,7 +2,7 @@
 //! scattering and the energy grid (with phonon energies snapped to it).
 
 use super::error::{CaseError, CaseErrorKind, ErrorContext};
-use super::spec::{BuilderSpec, CaseSpec, LeadModel, LeadSpec, MAX_ENERGY_EV, ResponseSplit};
+use super::spec::{CaseSpec, DeviceKind, LeadModel, LeadSpec, MAX_ENERGY_EV, ResponseSplit};
 use crate::C64;
 use crate::device::{self, BiasDrop, Device, DeviceError};
 use crate::grid::EnergyGrid;
@@ -45,8 +45,8 @@ pub struct Resolved {
     pub warnings: Vec<String>,
     /// Defaults that matter for the results (e.g. κ_ph = 0).
     pub notes: Vec<String>,
-    /// Device builder: "chain", "strip" or "blocks".
-    pub builder: &'static str,
+    /// Device kind: "chain", "strip" or "blocks".
+    pub device_kind: &'static str,
     /// Hopping t = ħ²/(2 m* a²) of a chain or strip (eV); `None` for blocks.
     pub hopping_ev: Option<f64>,
     /// Fit a local electron temperature per cell as well as the local Fermi
@@ -98,9 +98,9 @@ fn default_step(largest: f64, phonon_energies_ev: &[f64]) -> f64 {
     largest
 }
 
-fn lattice_lead(builder: &BuilderSpec, edge: f64, t: f64) -> Lead {
-    match builder {
-        BuilderSpec::Strip { width, .. } => Lead::Periodic {
+fn lattice_lead(kind: &DeviceKind, edge: f64, t: f64) -> Lead {
+    match kind {
+        DeviceKind::Strip { width, .. } => Lead::Periodic {
             onsite: device::strip_onsite(*width, t, edge),
             hopping: device::strip_coupling(*width, t),
         },
@@ -128,19 +128,19 @@ fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, value: f64) -> Vec<f64> {
 }
 
 fn device_error(ctx: &ErrorContext<'_>, spec: &CaseSpec, e: DeviceError) -> CaseError {
-    let (key, path) = match (&spec.builder, &e) {
+    let (key, path) = match (&spec.kind, &e) {
         (
-            BuilderSpec::Blocks { coupling_path, .. },
+            DeviceKind::Blocks { coupling_path, .. },
             DeviceError::BlockShape {
                 what: "coupling", ..
             },
         ) => ("device.coupling_file", coupling_path.display().to_string()),
-        (BuilderSpec::Blocks { coupling_path, .. }, DeviceError::Invalid(m))
+        (DeviceKind::Blocks { coupling_path, .. }, DeviceError::Invalid(m))
             if m.contains("coupling") =>
         {
             ("device.coupling_file", coupling_path.display().to_string())
         }
-        (BuilderSpec::Blocks { onsite_path, .. }, _) => {
+        (DeviceKind::Blocks { onsite_path, .. }, _) => {
             ("device.onsite_file", onsite_path.display().to_string())
         }
         _ => ("device", String::new()),
@@ -173,8 +173,8 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     let bias_only = device::potential_profile(&x, &[], &spec.drop, mu_l, mu_r);
     let n = spec.cells;
 
-    let (dev, hopping, lead_couplings) = match &spec.builder {
-        BuilderSpec::Chain {
+    let (dev, hopping, lead_couplings) = match &spec.kind {
+        DeviceKind::Chain {
             effective_mass,
             band_edge_ev,
         } => {
@@ -185,7 +185,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                 None,
             )
         }
-        BuilderSpec::Strip {
+        DeviceKind::Strip {
             effective_mass,
             band_edge_ev,
             width,
@@ -197,7 +197,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                 None,
             )
         }
-        BuilderSpec::Blocks {
+        DeviceKind::Blocks {
             onsite, coupling, ..
         } => {
             let ends = (coupling.first().cloned(), coupling.last().cloned());
@@ -248,22 +248,22 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                 band_edge_ev,
                 effective_mass,
             } => {
-                let (device_edge, device_mass) = match &spec.builder {
-                    BuilderSpec::Chain {
+                let (device_edge, device_mass) = match &spec.kind {
+                    DeviceKind::Chain {
                         effective_mass,
                         band_edge_ev,
                     }
-                    | BuilderSpec::Strip {
+                    | DeviceKind::Strip {
                         effective_mass,
                         band_edge_ev,
                         ..
                     } => (*band_edge_ev, *effective_mass),
-                    BuilderSpec::Blocks { .. } => {
+                    DeviceKind::Blocks { .. } => {
                         return Err(ctx.invalid(
                             spec.device_span.clone(),
                             &format!("leads.{side}.band_edge_ev"),
-                            "an energy-selective lead only with builder = \"chain\" or \"strip\"",
-                            "builder = \"blocks\"",
+                            "an energy-selective lead only with kind = \"chain\" or \"strip\"",
+                            "kind = \"blocks\"",
                         ));
                     }
                 };
@@ -278,7 +278,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                     effective_mass.unwrap_or(device_mass),
                     spec.spacing_nm,
                 );
-                Ok(lattice_lead(&spec.builder, edge, t))
+                Ok(lattice_lead(&spec.kind, edge, t))
             }
         }
     };
@@ -442,8 +442,8 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     // Lattice dispersion against the effective-mass parabola.
     if let (
         Some(t),
-        BuilderSpec::Chain { band_edge_ev, .. } | BuilderSpec::Strip { band_edge_ev, .. },
-    ) = (hopping, &spec.builder)
+        DeviceKind::Chain { band_edge_ev, .. } | DeviceKind::Strip { band_edge_ev, .. },
+    ) = (hopping, &spec.kind)
     {
         let ec_min = band_edge_ev
             + dev
@@ -626,7 +626,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
         bias_drop: spec.drop.clone(),
         warnings,
         notes,
-        builder: spec.builder.name(),
+        device_kind: spec.kind.name(),
         hopping_ev: hopping,
     })
 }
@@ -693,8 +693,8 @@ impl Resolved {
         let mut s = String::new();
         let _ = writeln!(
             s,
-            "device      {} builder, {} cells × {} orbital(s) per cell, spacing {} nm, length {:.4} nm",
-            self.builder,
+            "device      {}, {} cells × {} orbital(s) per cell, spacing {} nm, length {:.4} nm",
+            self.device_kind,
             d.cells(),
             d.orbitals,
             d.spacing_nm,

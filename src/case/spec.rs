@@ -39,9 +39,9 @@ pub enum ResponseSplit {
     LeftOnly,
 }
 
-/// The device builder with its own settings.
+/// The device kind with its own settings.
 #[derive(Clone, Debug)]
-pub(crate) enum BuilderSpec {
+pub(crate) enum DeviceKind {
     Chain {
         effective_mass: f64,
         band_edge_ev: f64,
@@ -59,12 +59,12 @@ pub(crate) enum BuilderSpec {
     },
 }
 
-impl BuilderSpec {
+impl DeviceKind {
     pub fn name(&self) -> &'static str {
         match self {
-            BuilderSpec::Chain { .. } => "chain",
-            BuilderSpec::Strip { .. } => "strip",
-            BuilderSpec::Blocks { .. } => "blocks",
+            DeviceKind::Chain { .. } => "chain",
+            DeviceKind::Strip { .. } => "strip",
+            DeviceKind::Blocks { .. } => "blocks",
         }
     }
 }
@@ -129,7 +129,7 @@ pub(crate) struct GridSpec {
 pub(crate) struct CaseSpec {
     pub name: String,
     pub spin_degeneracy: u8,
-    pub builder: BuilderSpec,
+    pub kind: DeviceKind,
     pub spacing_nm: f64,
     pub cells: usize,
     pub regions: Vec<PotentialRegion>,
@@ -272,7 +272,7 @@ impl Checker<'_> {
         }
     }
 
-    /// A key that the chosen builder or model does not use.
+    /// A key that the chosen device kind or model does not use.
     fn unused<T>(&self, v: &Opt<T>, key: &str, why: &str) -> Result<(), CaseError> {
         match v {
             None => Ok(()),
@@ -384,15 +384,24 @@ pub(crate) fn validate(
             return Err(ck.ctx.missing(Some(0..0), "device", "a [device] table"));
         }
     };
-    let builder = ck
+    if let Some(old) = &dev.builder {
+        return Err(ck
+            .ctx
+            .error(
+                CaseErrorKind::UnknownKey,
+                Some(old.span()),
+                Some("device.builder"),
+                "expected `kind` (the key `builder` was renamed: write \
+                 `kind = \"chain\"`, `\"strip\"` or `\"blocks\"`), found `builder`"
+                    .to_string(),
+            )
+            .with_suggestion(Some("kind".to_string())));
+    }
+    let kind = ck
         .required(
-            ck.choice(
-                &dev.builder,
-                "device.builder",
-                &["chain", "strip", "blocks"],
-            )?,
+            ck.choice(&dev.kind, "device.kind", &["chain", "strip", "blocks"])?,
             device_span.clone(),
-            "device.builder",
+            "device.kind",
             "\"chain\", \"strip\" or \"blocks\"",
         )?
         .to_string();
@@ -408,8 +417,8 @@ pub(crate) fn validate(
         "the cell spacing in nm",
     )?;
 
-    let (builder_spec, cells) = if builder == "blocks" {
-        let why = "with builder = \"blocks\"";
+    let (kind_spec, cells) = if kind == "blocks" {
+        let why = "with kind = \"blocks\"";
         ck.unused(&dev.length_nm, "device.length_nm", why)?;
         ck.unused(&dev.effective_mass, "device.effective_mass", why)?;
         ck.unused(&dev.band_edge_ev, "device.band_edge_ev", why)?;
@@ -499,7 +508,7 @@ pub(crate) fn validate(
             }
         };
         (
-            BuilderSpec::Blocks {
+            DeviceKind::Blocks {
                 onsite,
                 coupling: co.blocks,
                 onsite_path: on_path,
@@ -508,7 +517,7 @@ pub(crate) fn validate(
             cells,
         )
     } else {
-        let why = "with builder = \"chain\" or \"strip\" (only for \"blocks\")";
+        let why = "with kind = \"chain\" or \"strip\" (only for \"blocks\")";
         ck.unused(&dev.onsite_file, "device.onsite_file", why)?;
         ck.unused(&dev.coupling_file, "device.coupling_file", why)?;
         ck.unused(
@@ -572,7 +581,7 @@ pub(crate) fn validate(
             .energy(&dev.band_edge_ev, "device.band_edge_ev")?
             .unwrap_or(0.0);
         let cells = n as usize;
-        if builder == "strip" {
+        if kind == "strip" {
             let w = ck.required(
                 ck.int(
                     &dev.width_sites,
@@ -593,7 +602,7 @@ pub(crate) fn validate(
                 ));
             }
             (
-                BuilderSpec::Strip {
+                DeviceKind::Strip {
                     effective_mass: mass,
                     band_edge_ev,
                     width: w,
@@ -604,10 +613,10 @@ pub(crate) fn validate(
             ck.unused(
                 &dev.width_sites,
                 "device.width_sites",
-                "with builder = \"chain\" (only for \"strip\")",
+                "with kind = \"chain\" (only for \"strip\")",
             )?;
             (
-                BuilderSpec::Chain {
+                DeviceKind::Chain {
                     effective_mass: mass,
                     band_edge_ev,
                 },
@@ -690,7 +699,7 @@ pub(crate) fn validate(
             ));
         }
     };
-    let is_blocks = matches!(builder_spec, BuilderSpec::Blocks { .. });
+    let is_blocks = matches!(kind_spec, DeviceKind::Blocks { .. });
     let lead = |l: &Opt<RawLead>, side: &str| -> Result<LeadSpec, CaseError> {
         let p = format!("leads.{side}");
         let span = span_of(l);
@@ -757,7 +766,7 @@ pub(crate) fn validate(
                 return Err(ck.ctx.invalid(
                     s,
                     &format!("{p}.{k}"),
-                    "no such key with builder = \"blocks\" (only for chain/strip leads)",
+                    "no such key with kind = \"blocks\" (only for chain/strip leads)",
                     "it set",
                 ));
             }
@@ -1074,7 +1083,7 @@ pub(crate) fn validate(
     Ok(CaseSpec {
         name,
         spin_degeneracy,
-        builder: builder_spec,
+        kind: kind_spec,
         spacing_nm,
         cells,
         regions,

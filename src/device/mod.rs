@@ -2,7 +2,7 @@
 //!
 //! A device is a chain of `cells` cells with `orbitals` orbitals each. The
 //! Hamiltonian has on-site blocks H_ii (Hermitian) and couplings H_i,i+1;
-//! H_i+1,i = H_i,i+1†. All builders (chain, strip, user blocks) produce this
+//! H_i+1,i = H_i,i+1†. All device kinds (chain, strip, user blocks) produce this
 //! one form, with the potential profile U(x) added to the on-site energies.
 
 use crate::C64;
@@ -30,7 +30,7 @@ pub struct Device {
     pub band_edge_ev: Vec<f64>,
 }
 
-/// Errors from the device builders.
+/// Errors from building a device.
 #[derive(Debug, thiserror::Error, PartialEq)]
 pub enum DeviceError {
     /// A block has the wrong shape.
