@@ -387,7 +387,8 @@ fn peltier_cooling_before_and_heating_after_the_barrier() {
 /// flux J_Q,1 is reciprocal too (three-terminal Onsager relation).
 #[test]
 fn onsager_reciprocity_with_phonons() {
-    use qheat::thermo::response::{OperatingPoint, Split, linear_response, operating_point};
+    use qheat::case::ResponseSplit;
+    use qheat::thermo::response::{OperatingPoint, linear_response, operating_point};
     let (mu, temp) = (0.05, 300.0);
     let base = {
         let d = barrier_chain(60, 0.5, 0.07, 15, 25, 0.1);
@@ -419,7 +420,7 @@ fn onsager_reciprocity_with_phonons() {
         ..tight()
     };
     let run = |v: f64, t: f64| {
-        let p = build(&operating_point(mu, temp, v, t, Split::Symmetric)).unwrap();
+        let p = build(&operating_point(mu, temp, v, t, ResponseSplit::Symmetric)).unwrap();
         let (_, o) = solved(&p, &params);
         (o.current_a, o.heat_current_left_w, o.heat_current_right_w)
     };
@@ -434,7 +435,7 @@ fn onsager_reciprocity_with_phonons() {
         wrong > 1e-2 && wrong > 100.0 * right,
         "J_Q,1 alone should break reciprocity here: {wrong:e} (right flux {right:e})"
     );
-    for split in [Split::Symmetric, Split::LeftOnly] {
+    for split in [ResponseSplit::Symmetric, ResponseSplit::LeftOnly] {
         let (c, m, _) =
             linear_response(&build, mu, temp, split, &tight(), 0.0, &mut Silent).unwrap();
         assert!(m.converged);
@@ -444,7 +445,7 @@ fn onsager_reciprocity_with_phonons() {
             m.onsager_residual
         );
         assert!((c.peltier_v - temp * c.seebeck_v_per_k).abs() < 1e-4 * c.peltier_v.abs());
-        if split == Split::Symmetric {
+        if split == ResponseSplit::Symmetric {
             // Same operating points as the hand-made runs: same matrix.
             assert!(rel(m.m12, m12) < 1e-6, "M12 {} vs {m12}", m.m12);
             assert!(rel(m.m21, m21_right) < 1e-6, "M21 {} vs {m21_right}", m.m21);
@@ -467,7 +468,7 @@ fn onsager_reciprocity_with_phonons() {
         &build,
         0.05,
         300.0,
-        Split::Symmetric,
+        ResponseSplit::Symmetric,
         &tight(),
         0.0,
         &mut Silent,

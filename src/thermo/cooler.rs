@@ -4,7 +4,7 @@
 //! Conventions (the crate manual's): V = V1 − V2 = −(µ1 − µ2)/e applied as
 //! µ1 = µ − eV/2, µ2 = µ + eV/2 around the case's mean zero-bias Fermi level
 //! µ; I = I_1 (conventional current into the device from lead 1). The cold
-//! lead is lead 2 (right) unless [`ColdLead::Left`] is chosen; the other lead
+//! lead is lead 2 (right) unless [`Side::Left`] is chosen; the other lead
 //! is hot. The phonon bath keeps the case's setting (by default the mean of
 //! the lead temperatures).
 //!
@@ -29,23 +29,13 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::generator::{
-    BiasedCase, CurveError, CurveObserver, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved,
-    carnot_cop, ioffe_max_cop, refine_max,
+    BiasedCase, CurveError, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved, carnot_cop,
+    ioffe_max_cop, refine_max,
 };
 use super::of_case::{case_coefficients, reference_point};
 use crate::case::Case;
-use crate::scba::Silent;
-
-/// Which lead is cooled.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Default, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum ColdLead {
-    /// Lead 1.
-    Left,
-    /// Lead 2 (the default).
-    #[default]
-    Right,
-}
+use crate::leads::Side;
+use crate::progress::{Observer, Silent};
 
 /// Settings of a cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -56,8 +46,8 @@ pub struct CoolerSettings {
     pub cold_k: f64,
     /// Voltages on the curve (≥ 3).
     pub points: usize,
-    /// Which lead is cold.
-    pub cold_lead: ColdLead,
+    /// Which lead is cold (the other is hot); usually [`Side::Right`].
+    pub cold_lead: Side,
     /// Also compute the linear-response ZT and Ioffe's maximum COP (four
     /// more solves with scattering, one without).
     pub figure_of_merit: bool,
@@ -83,10 +73,10 @@ pub struct CoolerPoint {
 }
 
 impl CoolerPoint {
-    fn from(s: &Solved, cold: ColdLead) -> Self {
+    fn from(s: &Solved, cold: Side) -> Self {
         let (qc, qh) = match cold {
-            ColdLead::Right => (s.obs.heat_current_right_w, s.obs.heat_current_left_w),
-            ColdLead::Left => (s.obs.heat_current_left_w, s.obs.heat_current_right_w),
+            Side::Right => (s.obs.heat_current_right_w, s.obs.heat_current_left_w),
+            Side::Left => (s.obs.heat_current_left_w, s.obs.heat_current_right_w),
         };
         let pin = s.obs.current_a * s.voltage_v;
         Self {
@@ -152,7 +142,7 @@ pub struct CoolerReport {
 pub fn cooler(
     case: &Case,
     settings: &CoolerSettings,
-    observer: &mut dyn CurveObserver,
+    observer: &mut dyn Observer,
 ) -> Result<CoolerReport, CurveError> {
     let (th, tc) = (settings.hot_k, settings.cold_k);
     if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th >= tc) {
@@ -169,11 +159,11 @@ pub fn cooler(
     let cold = settings.cold_lead;
     let (mu, _) = reference_point(case)?;
     let temps = match cold {
-        ColdLead::Right => LeadTemperatures {
+        Side::Right => LeadTemperatures {
             left_k: th,
             right_k: tc,
         },
-        ColdLead::Left => LeadTemperatures {
+        Side::Left => LeadTemperatures {
             left_k: tc,
             right_k: th,
         },
@@ -197,7 +187,7 @@ pub fn cooler(
     let q = |dev: &mut BiasedCase,
              v: f64,
              stage: &'static str,
-             observer: &mut dyn CurveObserver|
+             observer: &mut dyn Observer|
      -> Result<CoolerPoint, CurveError> {
         Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
     };

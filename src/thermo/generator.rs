@@ -26,9 +26,11 @@ use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::of_case::{CoefficientError, case_coefficients};
 use crate::case::{Case, CaseError};
+use crate::leads::Side;
 use crate::observables::{Observables, observe};
+use crate::progress::{Observer, Silent};
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::{Silent, SolveError, solve};
+use crate::scba::{SolveError, solve};
 
 /// Carnot efficiency 1 − T_c/T_h.
 pub fn carnot_efficiency(hot_k: f64, cold_k: f64) -> f64 {
@@ -109,16 +111,6 @@ pub enum CurveError {
         current_a: f64,
     },
 }
-
-/// Sees each solve of a curve (for progress).
-pub trait CurveObserver {
-    /// A solve at `voltage_v` finished; `stage` says what for.
-    fn solved(&mut self, _stage: &'static str, _voltage_v: f64) {}
-}
-
-/// A curve observer that does nothing.
-pub struct NoProgress;
-impl CurveObserver for NoProgress {}
 
 /// Which lead is which, and the reference Fermi level.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -222,7 +214,7 @@ impl BiasedCase {
         &mut self,
         v: f64,
         stage: &'static str,
-        observer: &mut dyn CurveObserver,
+        observer: &mut dyn Observer,
     ) -> Result<Solved, CurveError> {
         self.cover(v.abs())?;
         let c = self.fixed.with_value("bias.voltage_v", v)?;
@@ -249,7 +241,7 @@ impl BiasedCase {
         if !sol.problem.scattering.is_coherent() {
             self.warm = Some(sol.sigma);
         }
-        observer.solved(stage, v);
+        observer.curve_solved(stage, v);
         Ok(Solved {
             voltage_v: v,
             obs,
@@ -263,7 +255,7 @@ impl BiasedCase {
         &mut self,
         s: Solved,
         stage: &'static str,
-        observer: &mut dyn CurveObserver,
+        observer: &mut dyn Observer,
     ) -> Result<Solved, CurveError> {
         if s.generation == self.generation {
             Ok(s)
@@ -413,7 +405,7 @@ pub struct GeneratorReport {
     /// Settings used.
     pub settings: GeneratorSettings,
     /// Which lead is hot.
-    pub hot_lead: &'static str,
+    pub hot_lead: Side,
     /// Reference Fermi level µ (eV).
     pub fermi_level_ev: f64,
     /// Linear-response coefficients at (µ, (T_h + T_c)/2).
@@ -463,7 +455,7 @@ pub struct GeneratorReport {
 pub fn generator(
     case: &Case,
     settings: &GeneratorSettings,
-    observer: &mut dyn CurveObserver,
+    observer: &mut dyn Observer,
 ) -> Result<GeneratorReport, CurveError> {
     let (th, tc) = (settings.hot_k, settings.cold_k);
     if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th > tc) {
@@ -605,7 +597,7 @@ pub fn generator(
     let zt = coefficients.zt;
     Ok(GeneratorReport {
         settings: *settings,
-        hot_lead: "left",
+        hot_lead: Side::Left,
         fermi_level_ev: mu,
         open_circuit_voltage_estimate_v: estimate,
         open_circuit_voltage_v: voc,

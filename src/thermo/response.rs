@@ -12,27 +12,17 @@
 //!
 //! J_Q is the flux conjugate to the symmetric split; with a bath (a third
 //! reservoir) J_Q,1 alone is not, and M12 ≠ M21 by several percent for an
-//! asymmetric device. The option [`Split::LeftOnly`] perturbs lead 1 alone
+//! asymmetric device. The option [`ResponseSplit::LeftOnly`] perturbs lead 1 alone
 //! (lead 2 and the bath at (µ, T)) and uses J_Q = J_Q,1. Each of the four
 //! runs (V = ±δV, ΔT = 0 and ΔT = ±δT, V = 0) is a full converged solve.
 
 use super::Coefficients;
+use crate::case::ResponseSplit;
 use crate::grid::EnergyGrid;
 use crate::model::Problem;
 use crate::observables::observe;
 use crate::scba::{Observer, ScbaParams, ScbaReport, SolveError, solve};
 use crate::units::thermal_energy_ev;
-
-/// How the perturbation is shared between the leads.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, Default)]
-#[serde(rename_all = "kebab-case")]
-pub enum Split {
-    /// µ1,2 = µ ∓ eV/2, T1,2 = T ± ΔT/2; J_Q = (J_Q,1 − J_Q,2)/2.
-    #[default]
-    Symmetric,
-    /// Only lead 1 moves: µ1 = µ − eV, T1 = T + ΔT; J_Q = J_Q,1.
-    LeftOnly,
-}
 
 /// The operating point of one finite-difference run.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -67,7 +57,7 @@ pub struct ResponseMatrix {
     /// Temperature step δT (K).
     pub delta_t_k: f64,
     /// Split used.
-    pub split: Split,
+    pub split: ResponseSplit,
     /// |M12 − M21|/|M12|.
     pub onsager_residual: f64,
     /// True when all four runs converged.
@@ -81,9 +71,15 @@ pub struct ResponseMatrix {
 }
 
 /// Operating point for (V, ΔT) around (µ, T) with a split.
-pub fn operating_point(mu_ev: f64, t_k: f64, v: f64, dt: f64, split: Split) -> OperatingPoint {
+pub fn operating_point(
+    mu_ev: f64,
+    t_k: f64,
+    v: f64,
+    dt: f64,
+    split: ResponseSplit,
+) -> OperatingPoint {
     match split {
-        Split::Symmetric => OperatingPoint {
+        ResponseSplit::Symmetric => OperatingPoint {
             fermi_level_left_ev: mu_ev - 0.5 * v,
             fermi_level_right_ev: mu_ev + 0.5 * v,
             temperature_left_k: t_k + 0.5 * dt,
@@ -91,7 +87,7 @@ pub fn operating_point(mu_ev: f64, t_k: f64, v: f64, dt: f64, split: Split) -> O
             bath_temperature_k: t_k,
             voltage_v: v,
         },
-        Split::LeftOnly => OperatingPoint {
+        ResponseSplit::LeftOnly => OperatingPoint {
             fermi_level_left_ev: mu_ev - v,
             fermi_level_right_ev: mu_ev,
             temperature_left_k: t_k + dt,
@@ -112,7 +108,11 @@ pub fn difference_steps(temperature_k: f64) -> (f64, f64) {
 
 /// The operating points of the four runs in the order they are solved:
 /// V = +δV, −δV (ΔT = 0), then ΔT = +δT, −δT (V = 0).
-pub fn difference_points(mu_ev: f64, temperature_k: f64, split: Split) -> [OperatingPoint; 4] {
+pub fn difference_points(
+    mu_ev: f64,
+    temperature_k: f64,
+    split: ResponseSplit,
+) -> [OperatingPoint; 4] {
     let (dv, dt) = difference_steps(temperature_k);
     [(dv, 0.0), (-dv, 0.0), (0.0, dt), (0.0, -dt)]
         .map(|(v, d)| operating_point(mu_ev, temperature_k, v, d, split))
@@ -172,7 +172,7 @@ pub fn linear_response(
     build: &dyn Fn(&OperatingPoint) -> Result<Problem, String>,
     mu_ev: f64,
     temperature_k: f64,
-    split: Split,
+    split: ResponseSplit,
     params: &ScbaParams,
     phonon_conductance_w_per_k: f64,
     observer: &mut dyn Observer,
@@ -209,8 +209,8 @@ pub fn linear_response(
         let sol = solve(&problem, &tight, warm.as_ref(), observer)?;
         let o = observe(&sol);
         let jq = match split {
-            Split::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
-            Split::LeftOnly => o.heat_current_left_w,
+            ResponseSplit::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
+            ResponseSplit::LeftOnly => o.heat_current_left_w,
         };
         if !problem.scattering.is_coherent() {
             warm = Some(sol.sigma.clone());
@@ -261,8 +261,8 @@ pub fn linear_response(
         phonon_conductance_w_per_k,
         onsager,
         match split {
-            Split::Symmetric => "finite differences, symmetric split",
-            Split::LeftOnly => "finite differences, lead 1 only",
+            ResponseSplit::Symmetric => "finite differences, symmetric split",
+            ResponseSplit::LeftOnly => "finite differences, lead 1 only",
         },
     );
     Ok((c, matrix, reports))
