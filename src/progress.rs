@@ -9,6 +9,7 @@
 
 /// What one Born iteration did.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct IterationRecord {
     /// Iteration number (1-based).
     pub iteration: usize,
@@ -27,6 +28,7 @@ pub struct IterationRecord {
 
 /// A finished point of a sweep, reported after the point is stored.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[non_exhaustive]
 pub struct PointEvent {
     /// Grid index of the point.
     pub index: usize,

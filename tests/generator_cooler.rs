@@ -82,11 +82,7 @@ step_ev = {step}
 ///   linear response and ΔT/T = 0.3 % bounds the nonlinear correction.
 #[test]
 fn narrow_level_generator_in_linear_response() {
-    let settings = GeneratorSettings {
-        hot_k: 300.5,
-        cold_k: 299.5,
-        points: 11,
-    };
+    let settings = GeneratorSettings::new(300.5, 299.5, 11);
     let eta_c = carnot_efficiency(settings.hot_k, settings.cold_k);
     let eta_ca = curzon_ahlborn_efficiency(settings.hot_k, settings.cold_k);
     let mut ratios = Vec::new();
@@ -133,11 +129,7 @@ fn narrow_level_generator_in_linear_response() {
 /// Far from linear response (310 K / 300 K) the bounds still hold.
 #[test]
 fn narrow_level_generator_bounds_at_larger_difference() {
-    let settings = GeneratorSettings {
-        hot_k: 310.0,
-        cold_k: 300.0,
-        points: 21,
-    };
+    let settings = GeneratorSettings::new(310.0, 300.0, 21);
     let eta_c = carnot_efficiency(310.0, 300.0);
     let eta_ca = curzon_ahlborn_efficiency(310.0, 300.0);
     let r = generator(&resonant_level(1e-3), &settings, &mut Silent).unwrap();
@@ -154,13 +146,9 @@ fn barrier() -> Case {
 fn cool(case: &Case, hot: f64, cold: f64, lead: Side) -> CoolerReport {
     cooler(
         case,
-        &CoolerSettings {
-            hot_k: hot,
-            cold_k: cold,
-            points: 31,
-            cold_lead: lead,
-            figure_of_merit: false,
-        },
+        &CoolerSettings::new(hot, cold, 31)
+            .with_cold_lead(lead)
+            .with_figure_of_merit(false),
         &mut Silent,
     )
     .unwrap()
@@ -313,13 +301,9 @@ fn cooler_maxima_do_not_depend_on_the_number_of_points() {
     let run = |points: usize| {
         cooler(
             &case,
-            &CoolerSettings {
-                hot_k: 300.0,
-                cold_k: 290.0,
-                points,
-                cold_lead: Side::Right,
-                figure_of_merit: false,
-            },
+            &CoolerSettings::new(300.0, 290.0, points)
+                .with_cold_lead(Side::Right)
+                .with_figure_of_merit(false),
             &mut Silent,
         )
         .unwrap()
@@ -364,11 +348,7 @@ fn cooler_maxima_do_not_depend_on_the_number_of_points() {
 fn generator_maxima_do_not_depend_on_the_number_of_points() {
     let case = resonant_level(1e-2);
     let run = |points: usize| {
-        let settings = GeneratorSettings {
-            hot_k: 330.0,
-            cold_k: 300.0,
-            points,
-        };
+        let settings = GeneratorSettings::new(330.0, 300.0, points);
         generator(&case, &settings, &mut Silent).unwrap()
     };
     let reference = run(25);

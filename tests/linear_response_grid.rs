@@ -241,11 +241,7 @@ step_ev = 0.002
 tolerance = 1e-10
 "#;
     let case = Case::parse(text, "peltier-small.toml", Path::new(".")).unwrap();
-    let settings = GeneratorSettings {
-        hot_k: 330.0,
-        cold_k: 300.0,
-        points: 5,
-    };
+    let settings = GeneratorSettings::new(330.0, 300.0, 5);
     let r = generator(&case, &settings, &mut Silent).unwrap();
     assert!(r.converged);
     assert!(r.open_circuit_voltage_v.is_finite() && r.open_circuit_voltage_v != 0.0);

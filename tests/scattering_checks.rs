@@ -14,11 +14,9 @@ use qheat::scba::{ScbaParams, Silent, Solution, solve};
 use qheat::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE, PLANCK_EV_S};
 
 fn tight() -> ScbaParams {
-    ScbaParams {
-        tolerance: 1e-10,
-        max_iterations: 200,
-        ..ScbaParams::default()
-    }
+    ScbaParams::default()
+        .with_tolerance(1e-10)
+        .with_max_iterations(200)
 }
 
 fn solved(p: &Problem, params: &ScbaParams) -> (Solution, Observables) {
@@ -80,10 +78,7 @@ fn gross_emission_power(sol: &Solution) -> f64 {
 #[test]
 fn equilibrium_detailed_balance() {
     let p = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.04, 3e-3), (0.012, 1e-3)]);
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let gross = gross_emission_power(&sol);
     assert!(gross > 0.0);
@@ -168,13 +163,7 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
     let mut inv_t = Vec::new();
     for &n in &ns {
         let p = dephased_chain(n, d);
-        let (sol, _) = solved(
-            &p,
-            &ScbaParams {
-                tolerance: 1e-13,
-                ..tight()
-            },
-        );
+        let (sol, _) = solved(&p, &tight().with_tolerance(1e-13));
         let t_eff = sol.pass.flows[0].left;
         inv_t.push(1.0 / t_eff);
     }
@@ -206,10 +195,7 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
         let grid = EnergyGrid::covering(-0.05 - 10.0 * kt, 0.05 + 10.0 * kt, kt / 4.0);
         let mut p = coherent_problem(dev, (0.05, 300.0), (-0.05, 300.0), grid.clone());
         scattering(&mut p, &grid);
-        let params = ScbaParams {
-            tolerance: 1e-13,
-            ..tight()
-        };
+        let params = tight().with_tolerance(1e-13);
         solved(&p, &params).1
     };
     let o = biased(&|p: &mut Problem, _: &EnergyGrid| p.scattering.dephasing_ev2 = vec![d; n]);
@@ -284,10 +270,7 @@ fn recursion_matches_dense_born_loop() {
         .phonons
         .push(phonon(&grid, 0.012, 2e-3, &mask, 310.0));
     p.scattering.dephasing_ev2 = (0..n).map(|i| if i < 8 { 1e-3 } else { 0.0 }).collect();
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let dense = dense_scba(&p, 1e-13, 2000);
     let dsol = Solution {
@@ -415,10 +398,7 @@ fn onsager_reciprocity_with_phonons() {
     // The four runs of the symmetric split, by hand.
     let dv = 1e-3 * BOLTZMANN_EV_PER_K * temp;
     let dt = 1e-3 * temp;
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let run = |v: f64, t: f64| {
         let p = build(&operating_point(mu, temp, v, t, ResponseSplit::Symmetric)).unwrap();
         let (_, o) = solved(&p, &params);
@@ -537,16 +517,7 @@ fn electron_temperature_fit_recovers_a_fermi_function() {
     assert!(rel(t_fit, t) < 1e-6, "{t_fit}");
     // In equilibrium the fitted temperature of every cell is the lead temperature.
     let p = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.04, 3e-3)]);
-    let sol = solve(
-        &p,
-        &ScbaParams {
-            tolerance: 1e-12,
-            ..tight()
-        },
-        None,
-        &mut Silent,
-    )
-    .unwrap();
+    let sol = solve(&p, &tight().with_tolerance(1e-12), None, &mut Silent).unwrap();
     let o = qheat::observables::observe_with(
         &sol,
         &qheat::observables::ObserveOptions {
@@ -670,10 +641,7 @@ fn one_cell_device_matches_dense_born_loop() {
         .phonons
         .push(phonon(&grid, 0.1, 0.05, &[true], 300.0));
     p.scattering.dephasing_ev2 = vec![0.02];
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let dense = dense_scba(&p, 1e-13, 2000);
     let dsol = Solution {

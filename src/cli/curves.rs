@@ -124,11 +124,7 @@ pub fn generator(
     check_curve_options(hot, cold, points, true)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
-    let settings = GeneratorSettings {
-        hot_k: hot,
-        cold_k: cold,
-        points,
-    };
+    let settings = GeneratorSettings::new(hot, cold, points);
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-generator"));
@@ -232,13 +228,9 @@ pub fn cooler(
     check_curve_options(hot, cold, points, false)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
-    let settings = CoolerSettings {
-        hot_k: hot,
-        cold_k: cold,
-        points,
-        cold_lead,
-        figure_of_merit: true,
-    };
+    let settings = CoolerSettings::new(hot, cold, points)
+        .with_cold_lead(cold_lead)
+        .with_figure_of_merit(true);
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-cooler"));

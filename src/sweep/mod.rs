@@ -112,6 +112,7 @@ pub struct SweepOptions {
 
 /// The finished table.
 #[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
 pub struct SweepTable {
     /// Column names: the axes, then the task's columns.
     pub columns: Vec<String>,

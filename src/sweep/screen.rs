@@ -196,13 +196,9 @@ impl PointTask for ScreenTask {
                 cold_k,
                 points,
             }) => {
-                let settings = CoolerSettings {
-                    hot_k,
-                    cold_k,
-                    points,
-                    cold_lead: Side::Right,
-                    figure_of_merit: false,
-                };
+                let settings = CoolerSettings::new(hot_k, cold_k, points)
+                    .with_cold_lead(Side::Right)
+                    .with_figure_of_merit(false);
                 let r = cooler(case, &settings, &mut Silent).map_err(|e| SweepError::Task {
                     point: index,
                     message: e.to_string(),

@@ -39,6 +39,7 @@ use crate::progress::{Observer, Silent};
 
 /// Settings of a cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerSettings {
     /// Hot lead temperature (K).
     pub hot_k: f64,
@@ -53,8 +54,37 @@ pub struct CoolerSettings {
     pub figure_of_merit: bool,
 }
 
+impl CoolerSettings {
+    /// A curve of `points` voltages between a hot lead at `hot_k` and a
+    /// cold lead at `cold_k` (K); the right lead is the cold one and the
+    /// figure of merit is computed unless changed with the `with_…` methods.
+    pub fn new(hot_k: f64, cold_k: f64, points: usize) -> Self {
+        Self {
+            hot_k,
+            cold_k,
+            points,
+            cold_lead: Side::Right,
+            figure_of_merit: true,
+        }
+    }
+
+    /// These settings with `cold_lead` cold (the other lead is hot).
+    pub fn with_cold_lead(self, cold_lead: Side) -> Self {
+        Self { cold_lead, ..self }
+    }
+
+    /// These settings with or without the linear-response figure of merit.
+    pub fn with_figure_of_merit(self, figure_of_merit: bool) -> Self {
+        Self {
+            figure_of_merit,
+            ..self
+        }
+    }
+}
+
 /// One point of the cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerPoint {
     /// Bias V (V).
     pub voltage_v: f64,
@@ -97,6 +127,7 @@ impl CoolerPoint {
 
 /// The cooler's performance.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerReport {
     /// Settings used.
     pub settings: CoolerSettings,

@@ -358,6 +358,7 @@ pub(crate) const REFINE_RELATIVE_WIDTH: f64 = 1e-9;
 
 /// Settings of a generator curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct GeneratorSettings {
     /// Hot lead (lead 1, left) temperature (K).
     pub hot_k: f64,
@@ -367,8 +368,21 @@ pub struct GeneratorSettings {
     pub points: usize,
 }
 
+impl GeneratorSettings {
+    /// A curve of `points` load voltages between a hot lead 1 at `hot_k`
+    /// and a cold lead 2 at `cold_k` (K).
+    pub fn new(hot_k: f64, cold_k: f64, points: usize) -> Self {
+        Self {
+            hot_k,
+            cold_k,
+            points,
+        }
+    }
+}
+
 /// One load point.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct LoadPoint {
     /// Load voltage V (V).
     pub voltage_v: f64,
@@ -401,6 +415,7 @@ impl LoadPoint {
 
 /// The generator's performance.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct GeneratorReport {
     /// Settings used.
     pub settings: GeneratorSettings,

@@ -26,6 +26,7 @@ use crate::units::thermal_energy_ev;
 
 /// The operating point of one finite-difference run.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[non_exhaustive]
 pub struct OperatingPoint {
     /// Fermi level of lead 1 (eV).
     pub fermi_level_left_ev: f64,
@@ -43,6 +44,7 @@ pub struct OperatingPoint {
 
 /// The response matrix and how it was obtained.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct ResponseMatrix {
     /// ∂I/∂V (S).
     pub m11: f64,
