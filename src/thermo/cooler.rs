@@ -168,13 +168,8 @@ pub struct CoolerReport {
     pub solves: usize,
 }
 
-/// Cooling power and COP of the device between a hot and a cold lead; see
-/// the module notes for conventions.
-pub fn cooler(
-    case: &Case,
-    settings: &CoolerSettings,
-    observer: &mut dyn Observer,
-) -> Result<CoolerReport, CurveError> {
+/// Refuse temperatures and point counts no cooler curve can use.
+fn check_settings(settings: &CoolerSettings) -> Result<(), CurveError> {
     let (th, tc) = (settings.hot_k, settings.cold_k);
     if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th >= tc) {
         return Err(CurveError::Settings(format!(
@@ -187,6 +182,116 @@ pub fn cooler(
             settings.points
         )));
     }
+    Ok(())
+}
+
+/// The cooler point at voltage `v` with `cold` the cold lead.
+fn cooler_point(
+    dev: &mut BiasedCase,
+    v: f64,
+    stage: &'static str,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<CoolerPoint, CurveError> {
+    Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
+}
+
+/// The end of the cooler's voltage range: the polarity that cools (±`h`
+/// tried, `h` = kT/e), then steps of `h` out past the maximum of the
+/// cooling power until it has fallen back by half of its rise above the
+/// zero-bias value `q0` (at least 4 and at most 400 steps).
+fn march_end(
+    dev: &mut BiasedCase,
+    q0: f64,
+    h: f64,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<f64, CurveError> {
+    let up = cooler_point(dev, h, "polarity", cold, observer)?;
+    let down = cooler_point(dev, -h, "polarity", cold, observer)?;
+    let direction = if up.cooling_power_w >= down.cooling_power_w {
+        1.0
+    } else {
+        -1.0
+    };
+    // March out past the maximum.
+    let mut best = q0;
+    let mut best_k = 0usize;
+    let mut k = 1usize;
+    Ok(loop {
+        let p = if k == 1 {
+            if direction > 0.0 { up } else { down }
+        } else {
+            cooler_point(dev, direction * h * k as f64, "range", cold, observer)?
+        };
+        if p.cooling_power_w > best {
+            best = p.cooling_power_w;
+            best_k = k;
+        }
+        let fallen = p.cooling_power_w < best - 0.5 * (best - q0);
+        if (k >= 4 && k > best_k && fallen) || k >= 400 {
+            break direction * h * k as f64;
+        }
+        k += 1;
+    })
+}
+
+/// The cooler curve of `n` voltages from 0 (the solved `zero`) to `end`,
+/// its point of maximum cooling power and its best COP (if anything
+/// cools), each refined between curve points.
+fn cooler_curve(
+    dev: &mut BiasedCase,
+    zero: CoolerPoint,
+    end: f64,
+    n: usize,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<(Vec<CoolerPoint>, CoolerPoint, Option<CoolerPoint>), CurveError> {
+    let mut curve = Vec::with_capacity(n);
+    for i in 0..n {
+        let v = end * i as f64 / (n - 1) as f64;
+        curve.push(if i == 0 {
+            zero
+        } else {
+            cooler_point(dev, v, "curve", cold, observer)?
+        });
+    }
+    let tol = REFINE_RELATIVE_WIDTH * end.abs();
+    let mut sorted = curve.clone();
+    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    let at_max = refine_max(
+        &sorted,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cooling_power_w,
+        tol,
+        &mut |v| cooler_point(dev, v, "maximum cooling", cold, observer),
+    )?
+    .unwrap_or(zero);
+    // The best COP: the curve and the point of maximum cooling (which lies
+    // in the cooling range whenever anything cools) give the bracket.
+    let mut samples = sorted;
+    samples.push(at_max);
+    samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
+    let best_cop = refine_max(
+        &samples,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cop,
+        tol,
+        &mut |v| cooler_point(dev, v, "best COP", cold, observer),
+    )?;
+    Ok((curve, at_max, best_cop))
+}
+
+/// Cooling power and COP of the device between a hot and a cold lead; see
+/// the module notes for conventions.
+pub fn cooler(
+    case: &Case,
+    settings: &CoolerSettings,
+    observer: &mut dyn Observer,
+) -> Result<CoolerReport, CurveError> {
+    check_settings(settings)?;
+    let (th, tc) = (settings.hot_k, settings.cold_k);
     let cold = settings.cold_lead;
     let (mu, _) = reference_point(case)?;
     let temps = match cold {
@@ -215,83 +320,17 @@ pub fn cooler(
         (None, None)
     };
     let mut dev = BiasedCase::new(case, mu, temps)?;
-    let q = |dev: &mut BiasedCase,
-             v: f64,
-             stage: &'static str,
-             observer: &mut dyn Observer|
-     -> Result<CoolerPoint, CurveError> {
-        Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
-    };
     let zero_solved = dev.at(0.0, "zero bias", observer)?;
     let zero = CoolerPoint::from(&zero_solved, cold);
     let h = crate::units::thermal_energy_ev(tm);
-    let up = q(&mut dev, h, "polarity", observer)?;
-    let down = q(&mut dev, -h, "polarity", observer)?;
-    let direction = if up.cooling_power_w >= down.cooling_power_w {
-        1.0
-    } else {
-        -1.0
-    };
-    // March out past the maximum.
-    let q0 = zero.cooling_power_w;
-    let mut best = q0;
-    let mut best_k = 0usize;
-    let mut k = 1usize;
-    let end = loop {
-        let p = if k == 1 {
-            if direction > 0.0 { up } else { down }
-        } else {
-            q(&mut dev, direction * h * k as f64, "range", observer)?
-        };
-        if p.cooling_power_w > best {
-            best = p.cooling_power_w;
-            best_k = k;
-        }
-        let fallen = p.cooling_power_w < best - 0.5 * (best - q0);
-        if (k >= 4 && k > best_k && fallen) || k >= 400 {
-            break direction * h * k as f64;
-        }
-        k += 1;
-    };
+    let end = march_end(&mut dev, zero.cooling_power_w, h, cold, observer)?;
     // The curve and the refinements run on the grid that covers the range
     // the march reached; the zero-bias point is solved again if the grid
     // grew since.
     let zero = CoolerPoint::from(&dev.current(zero_solved, "zero bias", observer)?, cold);
     let q0 = zero.cooling_power_w;
-    let n = settings.points;
-    let mut curve = Vec::with_capacity(n);
-    for i in 0..n {
-        let v = end * i as f64 / (n - 1) as f64;
-        curve.push(if i == 0 {
-            zero
-        } else {
-            q(&mut dev, v, "curve", observer)?
-        });
-    }
-    let tol = REFINE_RELATIVE_WIDTH * end.abs();
-    let mut sorted = curve.clone();
-    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
-    let at_max = refine_max(
-        &sorted,
-        &|p: &CoolerPoint| p.voltage_v,
-        &|p: &CoolerPoint| p.cooling_power_w,
-        tol,
-        &mut |v| q(&mut dev, v, "maximum cooling", observer),
-    )?
-    .unwrap_or(zero);
-    // The best COP: the curve and the point of maximum cooling (which lies
-    // in the cooling range whenever anything cools) give the bracket.
-    let mut samples = sorted;
-    samples.push(at_max);
-    samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
-    samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
-    let best_cop = refine_max(
-        &samples,
-        &|p: &CoolerPoint| p.voltage_v,
-        &|p: &CoolerPoint| p.cop,
-        tol,
-        &mut |v| q(&mut dev, v, "best COP", observer),
-    )?;
+    let (curve, at_max, best_cop) =
+        cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     Ok(CoolerReport {
         settings: *settings,
