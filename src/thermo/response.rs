@@ -161,6 +161,55 @@ fn grid_words(p: &Problem) -> String {
     )
 }
 
+/// Run `run` of a linear response must share the first run's energy grid
+/// and snapped phonon energies.
+fn same_grid(first: &Problem, problem: &Problem, run: usize) -> Result<(), ResponseError> {
+    let same_phonons = first.scattering.phonons.len() == problem.scattering.phonons.len()
+        && first
+            .scattering
+            .phonons
+            .iter()
+            .zip(&problem.scattering.phonons)
+            .all(|(a, b)| a.energy_ev == b.energy_ev && a.steps == b.steps);
+    if first.grid != problem.grid || !same_phonons {
+        return Err(ResponseError::GridMoved {
+            first: grid_words(first),
+            other: grid_words(problem),
+            run,
+        });
+    }
+    Ok(())
+}
+
+/// G, S, Π and κ_e from the response matrix: G = M11, S = M12/(T M11),
+/// Π = M21/M11, κ_e = (M22 − M12 M21/M11)/T.
+fn coefficients_of(
+    matrix: &ResponseMatrix,
+    mu_ev: f64,
+    temperature_k: f64,
+    phonon_conductance_w_per_k: f64,
+) -> Coefficients {
+    let (m11, m12, m21, m22) = (matrix.m11, matrix.m12, matrix.m21, matrix.m22);
+    let g = m11;
+    let s = m12 / (temperature_k * m11);
+    let pi = m21 / m11;
+    let kappa = (m22 - m12 * m21 / m11) / temperature_k;
+    Coefficients::from_parts(
+        mu_ev,
+        temperature_k,
+        g,
+        s,
+        pi,
+        kappa,
+        phonon_conductance_w_per_k,
+        matrix.onsager_residual,
+        match matrix.split {
+            ResponseSplit::Symmetric => "finite differences, symmetric split",
+            ResponseSplit::LeftOnly => "finite differences, lead 1 only",
+        },
+    )
+}
+
 /// Linear-response coefficients by finite differences. `build` returns the
 /// problem at an operating point (it must apply the voltage to the device
 /// potential as the case prescribes). δV = 1e-3 kT/e and δT = 1e-3 T keep
@@ -192,21 +241,7 @@ pub fn linear_response(
         let problem = build(op).map_err(ResponseError::Build)?;
         match &first {
             None => first = Some(problem.clone()),
-            Some(f) => {
-                let same_phonons = f.scattering.phonons.len() == problem.scattering.phonons.len()
-                    && f.scattering
-                        .phonons
-                        .iter()
-                        .zip(&problem.scattering.phonons)
-                        .all(|(a, b)| a.energy_ev == b.energy_ev && a.steps == b.steps);
-                if f.grid != problem.grid || !same_phonons {
-                    return Err(ResponseError::GridMoved {
-                        first: grid_words(f),
-                        other: grid_words(&problem),
-                        run: reports.len() + 1,
-                    });
-                }
-            }
+            Some(f) => same_grid(f, &problem, reports.len() + 1)?,
         }
         let sol = solve(&problem, &tight, warm.as_ref(), observer)?;
         let o = observe(&sol);
@@ -249,23 +284,6 @@ pub fn linear_response(
             .map(|m| m.energy_ev)
             .collect(),
     };
-    let g = m11;
-    let s = m12 / (temperature_k * m11);
-    let pi = m21 / m11;
-    let kappa = (m22 - m12 * m21 / m11) / temperature_k;
-    let c = Coefficients::from_parts(
-        mu_ev,
-        temperature_k,
-        g,
-        s,
-        pi,
-        kappa,
-        phonon_conductance_w_per_k,
-        onsager,
-        match split {
-            ResponseSplit::Symmetric => "finite differences, symmetric split",
-            ResponseSplit::LeftOnly => "finite differences, lead 1 only",
-        },
-    );
+    let c = coefficients_of(&matrix, mu_ev, temperature_k, phonon_conductance_w_per_k);
     Ok((c, matrix, reports))
 }
