@@ -21,7 +21,7 @@ use faer::Mat;
 use qheat::C64;
 use qheat::case::Case;
 use qheat::scattering::ScatteringSelfEnergy;
-use qheat::scba::{self, EnergyOrder, LeadTable, ScbaParams, Silent};
+use qheat::scba::{self, EnergyOrder, LeadTable, Silent};
 use std::path::Path;
 
 const ARNOLDI_STEPS: usize = 40;
@@ -49,11 +49,7 @@ fn main() {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/peltier-barrier.toml");
     let r = Case::load(&path).unwrap().resolve().unwrap();
     let p = &r.problem;
-    let params = ScbaParams {
-        tolerance: 1e-13,
-        max_iterations: 500,
-        ..r.scba
-    };
+    let params = r.scba.with_tolerance(1e-13).with_max_iterations(500);
     let fixed = scba::solve(p, &params, None, &mut Silent).unwrap();
     assert!(fixed.report.converged);
     let leads = LeadTable::new(p).unwrap();

@@ -9,7 +9,7 @@
 //! Run: `cargo bench --bench mixing`
 
 use qheat::case::Case;
-use qheat::scba::{self, EnergyOrder, Mixing, ScbaParams, Silent};
+use qheat::scba::{self, EnergyOrder, Mixing, Silent};
 use std::path::Path;
 
 fn main() {
@@ -23,10 +23,7 @@ fn main() {
 
 fn table(case: &Case) {
     let r = case.resolve().unwrap();
-    let base = ScbaParams {
-        max_iterations: 2000,
-        ..r.scba
-    };
+    let base = r.scba.with_max_iterations(2000);
     println!("tolerance {:e}", base.tolerance);
     // The reference answer: the case's own settings.
     let reference = scba::solve(&r.problem, &base, None, &mut Silent).unwrap();
@@ -40,11 +37,7 @@ fn table(case: &Case) {
         }));
         let mut best: Option<(f64, usize)> = None;
         for mixing in kinds {
-            let p = ScbaParams {
-                mixing,
-                energy_order: order,
-                ..base
-            };
+            let p = base.with_mixing(mixing).with_energy_order(order);
             let s = scba::solve(&r.problem, &p, None, &mut Silent).unwrap();
             let (l, _) = scba::terminal_currents(&r.problem, &s.pass.flows);
             let label = match mixing {

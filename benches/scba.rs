@@ -40,16 +40,15 @@ fn problem(cells: usize, energies: usize, first: usize) -> Problem {
 }
 
 fn fixed_iterations() -> ScbaParams {
-    ScbaParams {
-        tolerance: 0.0,
-        current_floor_a: 0.0,
-        max_iterations: ITERATIONS,
-        mixing: Mixing::default(),
+    ScbaParams::default()
+        .with_tolerance(0.0)
+        .with_current_floor_a(0.0)
+        .with_max_iterations(ITERATIONS)
+        .with_mixing(Mixing::default())
         // The default: red-black for this one-phonon chain. An iteration is
         // one pass over the grid in either order; this one also rebuilds Σ0
         // on half the grid in between.
-        energy_order: EnergyOrder::Auto,
-    }
+        .with_energy_order(EnergyOrder::Auto)
 }
 
 fn pool(threads: usize) -> rayon::ThreadPool {

@@ -112,6 +112,7 @@ pub mod leads;
 pub mod model;
 pub mod observables;
 pub mod output;
+pub mod progress;
 pub mod rgf;
 pub mod scattering;
 pub mod scba;

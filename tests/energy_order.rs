@@ -69,12 +69,12 @@ fn the_colouring_follows_the_phonon_steps() {
 /// red-black) after checking they agree.
 fn both_orders(p: &Problem, mixing: Mixing, warm: bool) -> (usize, usize) {
     let tol = 1e-10;
-    let params = |order| ScbaParams {
-        tolerance: tol,
-        max_iterations: 500,
-        mixing,
-        energy_order: order,
-        ..ScbaParams::default()
+    let params = |order| {
+        ScbaParams::default()
+            .with_tolerance(tol)
+            .with_max_iterations(500)
+            .with_mixing(mixing)
+            .with_energy_order(order)
     };
     let start = warm.then(|| {
         // A neighbouring operating point: the same device 5 mV further biased.
@@ -198,11 +198,9 @@ fn the_born_map_fixes_the_converged_self_energy_in_both_orders() {
     // image (and the Σ0 it used) must return Σ0 to about the tolerance; a
     // Σ0 away from the fixed point must move.
     let p = chain_with_modes(&[0.036], 0.0);
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        max_iterations: 500,
-        ..ScbaParams::default()
-    };
+    let params = ScbaParams::default()
+        .with_tolerance(1e-12)
+        .with_max_iterations(500);
     let sol = scba::solve(&p, &params, None, &mut Silent).unwrap();
     assert!(sol.report.converged);
     let leads = scba::LeadTable::new(&p).unwrap();

@@ -2,9 +2,11 @@
 //! level in linear response, and a thermionic barrier as a cooler.
 
 use qheat::case::Case;
-use qheat::thermo::cooler::{ColdLead, CoolerReport, CoolerSettings, cooler};
+use qheat::leads::Side;
+use qheat::progress::Silent;
+use qheat::thermo::cooler::{CoolerReport, CoolerSettings, cooler};
 use qheat::thermo::generator::{
-    GeneratorSettings, NoProgress, carnot_cop, carnot_efficiency, curzon_ahlborn_efficiency,
+    GeneratorSettings, carnot_cop, carnot_efficiency, curzon_ahlborn_efficiency,
     efficiency_at_max_power_linear, generator, ioffe_max_cop, ioffe_max_efficiency,
 };
 use std::path::Path;
@@ -80,16 +82,12 @@ step_ev = {step}
 ///   linear response and ΔT/T = 0.3 % bounds the nonlinear correction.
 #[test]
 fn narrow_level_generator_in_linear_response() {
-    let settings = GeneratorSettings {
-        hot_k: 300.5,
-        cold_k: 299.5,
-        points: 11,
-    };
+    let settings = GeneratorSettings::new(300.5, 299.5, 11);
     let eta_c = carnot_efficiency(settings.hot_k, settings.cold_k);
     let eta_ca = curzon_ahlborn_efficiency(settings.hot_k, settings.cold_k);
     let mut ratios = Vec::new();
     for gamma in [1e-2, 1e-3, 1e-4] {
-        let r = generator(&resonant_level(gamma), &settings, &mut NoProgress).unwrap();
+        let r = generator(&resonant_level(gamma), &settings, &mut Silent).unwrap();
         assert!(r.converged);
         let zt = r.coefficients.zt;
         let law = efficiency_at_max_power_linear(zt, settings.hot_k, settings.cold_k);
@@ -131,14 +129,10 @@ fn narrow_level_generator_in_linear_response() {
 /// Far from linear response (310 K / 300 K) the bounds still hold.
 #[test]
 fn narrow_level_generator_bounds_at_larger_difference() {
-    let settings = GeneratorSettings {
-        hot_k: 310.0,
-        cold_k: 300.0,
-        points: 21,
-    };
+    let settings = GeneratorSettings::new(310.0, 300.0, 21);
     let eta_c = carnot_efficiency(310.0, 300.0);
     let eta_ca = curzon_ahlborn_efficiency(310.0, 300.0);
-    let r = generator(&resonant_level(1e-3), &settings, &mut NoProgress).unwrap();
+    let r = generator(&resonant_level(1e-3), &settings, &mut Silent).unwrap();
     assert!(r.max_efficiency <= eta_c, "{}", r.max_efficiency);
     assert!(r.efficiency_at_max_power <= eta_ca + eta_c * eta_c / 8.0);
     assert!(r.efficiency_at_max_power > 0.4 * eta_c);
@@ -149,17 +143,13 @@ fn barrier() -> Case {
         .unwrap()
 }
 
-fn cool(case: &Case, hot: f64, cold: f64, lead: ColdLead) -> CoolerReport {
+fn cool(case: &Case, hot: f64, cold: f64, lead: Side) -> CoolerReport {
     cooler(
         case,
-        &CoolerSettings {
-            hot_k: hot,
-            cold_k: cold,
-            points: 31,
-            cold_lead: lead,
-            figure_of_merit: false,
-        },
-        &mut NoProgress,
+        &CoolerSettings::new(hot, cold, 31)
+            .with_cold_lead(lead)
+            .with_figure_of_merit(false),
+        &mut Silent,
     )
     .unwrap()
 }
@@ -171,7 +161,7 @@ fn cool(case: &Case, hot: f64, cold: f64, lead: ColdLead) -> CoolerReport {
 #[test]
 fn thermionic_cooler_has_one_maximum() {
     let case = barrier();
-    let r = cool(&case, 300.0, 300.0, ColdLead::Right);
+    let r = cool(&case, 300.0, 300.0, Side::Right);
     let q: Vec<f64> = r.curve.iter().map(|p| p.cooling_power_w).collect();
     // Zero bias, equal temperatures: zero current up to rounding.
     assert!(r.curve[0].current_a.abs() <= 1e-12 * r.current_at_max_a.abs());
@@ -188,7 +178,7 @@ fn thermionic_cooler_has_one_maximum() {
     }
     assert!(r.max_cooling_power_w >= q[im]);
     assert!(r.current_at_max_a * r.voltage_at_max_v > 0.0);
-    let l = cool(&case, 300.0, 300.0, ColdLead::Left);
+    let l = cool(&case, 300.0, 300.0, Side::Left);
     assert!(rel(l.max_cooling_power_w, r.max_cooling_power_w) < 1e-9);
     assert!(rel(l.voltage_at_max_v, -r.voltage_at_max_v) < 1e-6);
 }
@@ -211,7 +201,7 @@ fn cooler_cop_never_beats_carnot() {
     let phonon = Case::parse(&text, "phonon.toml", Path::new(".")).unwrap();
     for case in [barrier(), phonon] {
         for (th, tc) in [(305.0, 300.0), (330.0, 300.0)] {
-            let r = cool(&case, th, tc, ColdLead::Right);
+            let r = cool(&case, th, tc, Side::Right);
             assert!(r.converged);
             let carnot = carnot_cop(th, tc);
             let mut cooled = 0;
@@ -311,14 +301,10 @@ fn cooler_maxima_do_not_depend_on_the_number_of_points() {
     let run = |points: usize| {
         cooler(
             &case,
-            &CoolerSettings {
-                hot_k: 300.0,
-                cold_k: 290.0,
-                points,
-                cold_lead: ColdLead::Right,
-                figure_of_merit: false,
-            },
-            &mut NoProgress,
+            &CoolerSettings::new(300.0, 290.0, points)
+                .with_cold_lead(Side::Right)
+                .with_figure_of_merit(false),
+            &mut Silent,
         )
         .unwrap()
     };
@@ -362,12 +348,8 @@ fn cooler_maxima_do_not_depend_on_the_number_of_points() {
 fn generator_maxima_do_not_depend_on_the_number_of_points() {
     let case = resonant_level(1e-2);
     let run = |points: usize| {
-        let settings = GeneratorSettings {
-            hot_k: 330.0,
-            cold_k: 300.0,
-            points,
-        };
-        generator(&case, &settings, &mut NoProgress).unwrap()
+        let settings = GeneratorSettings::new(330.0, 300.0, points);
+        generator(&case, &settings, &mut Silent).unwrap()
     };
     let reference = run(25);
     for points in [3, 7] {

@@ -35,12 +35,10 @@ fn threshold_width_is_thermal() {
     let dv = kt / 20.0;
     let v0 = hw - 10.0 * kt;
     let count = ((20.0 * kt) / dv).round() as usize + 1;
-    let params = ScbaParams {
-        tolerance: 1e-11,
-        current_floor_a: 1e-22,
-        max_iterations: 200,
-        ..ScbaParams::default()
-    };
+    let params = ScbaParams::default()
+        .with_tolerance(1e-11)
+        .with_current_floor_a(1e-22)
+        .with_max_iterations(200);
     let mut warm = None;
     let mut volts = Vec::with_capacity(count);
     let mut current = Vec::with_capacity(count);

@@ -34,12 +34,10 @@ fn solved(p: &Problem, tolerance: f64) -> (Solution, Observables) {
 }
 
 fn solved_with(p: &Problem, tolerance: f64, mixing: Mixing) -> (Solution, Observables) {
-    let params = ScbaParams {
-        tolerance,
-        max_iterations: 300,
-        mixing,
-        ..ScbaParams::default()
-    };
+    let params = ScbaParams::default()
+        .with_tolerance(tolerance)
+        .with_max_iterations(300)
+        .with_mixing(mixing);
     let sol = solve(p, &params, None, &mut Silent).unwrap();
     assert!(sol.report.converged, "{:?}", sol.report.history.last());
     let o = observe(&sol);

@@ -11,7 +11,7 @@ use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, TestRng, TestRunner};
 use qheat::case::Case;
 use qheat::scba::Silent;
-use qheat::thermo::generator::{GeneratorSettings, NoProgress, carnot_efficiency, generator};
+use qheat::thermo::generator::{GeneratorSettings, carnot_efficiency, generator};
 use qheat::thermo::of_case::{CaseCoefficients, case_coefficients};
 use qheat::thermo::response::difference_steps;
 use qheat::units::thermal_energy_ev;
@@ -241,12 +241,8 @@ step_ev = 0.002
 tolerance = 1e-10
 "#;
     let case = Case::parse(text, "peltier-small.toml", Path::new(".")).unwrap();
-    let settings = GeneratorSettings {
-        hot_k: 330.0,
-        cold_k: 300.0,
-        points: 5,
-    };
-    let r = generator(&case, &settings, &mut NoProgress).unwrap();
+    let settings = GeneratorSettings::new(330.0, 300.0, 5);
+    let r = generator(&case, &settings, &mut Silent).unwrap();
     assert!(r.converged);
     assert!(r.open_circuit_voltage_v.is_finite() && r.open_circuit_voltage_v != 0.0);
     assert!(r.max_power_w > 0.0, "{}", r.max_power_w);

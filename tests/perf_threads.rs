@@ -145,10 +145,7 @@ fn anderson_needs_fewer_iterations_than_linear_half() {
     let case = demo("peltier-barrier");
     let r = case.resolve().unwrap();
     let anderson = scba::solve(&r.problem, &r.scba, None, &mut Silent).unwrap();
-    let linear_params = ScbaParams {
-        mixing: Mixing::Linear { factor: 0.5 },
-        ..r.scba
-    };
+    let linear_params = r.scba.with_mixing(Mixing::Linear { factor: 0.5 });
     let linear = scba::solve(&r.problem, &linear_params, None, &mut Silent).unwrap();
     assert!(anderson.report.converged && linear.report.converged);
     assert!(

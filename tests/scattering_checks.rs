@@ -14,11 +14,9 @@ use qheat::scba::{ScbaParams, Silent, Solution, solve};
 use qheat::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE, PLANCK_EV_S};
 
 fn tight() -> ScbaParams {
-    ScbaParams {
-        tolerance: 1e-10,
-        max_iterations: 200,
-        ..ScbaParams::default()
-    }
+    ScbaParams::default()
+        .with_tolerance(1e-10)
+        .with_max_iterations(200)
 }
 
 fn solved(p: &Problem, params: &ScbaParams) -> (Solution, Observables) {
@@ -80,10 +78,7 @@ fn gross_emission_power(sol: &Solution) -> f64 {
 #[test]
 fn equilibrium_detailed_balance() {
     let p = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.04, 3e-3), (0.012, 1e-3)]);
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let gross = gross_emission_power(&sol);
     assert!(gross > 0.0);
@@ -168,13 +163,7 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
     let mut inv_t = Vec::new();
     for &n in &ns {
         let p = dephased_chain(n, d);
-        let (sol, _) = solved(
-            &p,
-            &ScbaParams {
-                tolerance: 1e-13,
-                ..tight()
-            },
-        );
+        let (sol, _) = solved(&p, &tight().with_tolerance(1e-13));
         let t_eff = sol.pass.flows[0].left;
         inv_t.push(1.0 / t_eff);
     }
@@ -206,10 +195,7 @@ fn dephasing_is_ohmic_and_deposits_no_heat() {
         let grid = EnergyGrid::covering(-0.05 - 10.0 * kt, 0.05 + 10.0 * kt, kt / 4.0);
         let mut p = coherent_problem(dev, (0.05, 300.0), (-0.05, 300.0), grid.clone());
         scattering(&mut p, &grid);
-        let params = ScbaParams {
-            tolerance: 1e-13,
-            ..tight()
-        };
+        let params = tight().with_tolerance(1e-13);
         solved(&p, &params).1
     };
     let o = biased(&|p: &mut Problem, _: &EnergyGrid| p.scattering.dephasing_ev2 = vec![d; n]);
@@ -284,10 +270,7 @@ fn recursion_matches_dense_born_loop() {
         .phonons
         .push(phonon(&grid, 0.012, 2e-3, &mask, 310.0));
     p.scattering.dephasing_ev2 = (0..n).map(|i| if i < 8 { 1e-3 } else { 0.0 }).collect();
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let dense = dense_scba(&p, 1e-13, 2000);
     let dsol = Solution {
@@ -387,7 +370,8 @@ fn peltier_cooling_before_and_heating_after_the_barrier() {
 /// flux J_Q,1 is reciprocal too (three-terminal Onsager relation).
 #[test]
 fn onsager_reciprocity_with_phonons() {
-    use qheat::thermo::response::{OperatingPoint, Split, linear_response, operating_point};
+    use qheat::case::ResponseSplit;
+    use qheat::thermo::response::{OperatingPoint, linear_response, operating_point};
     let (mu, temp) = (0.05, 300.0);
     let base = {
         let d = barrier_chain(60, 0.5, 0.07, 15, 25, 0.1);
@@ -414,12 +398,9 @@ fn onsager_reciprocity_with_phonons() {
     // The four runs of the symmetric split, by hand.
     let dv = 1e-3 * BOLTZMANN_EV_PER_K * temp;
     let dt = 1e-3 * temp;
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let run = |v: f64, t: f64| {
-        let p = build(&operating_point(mu, temp, v, t, Split::Symmetric)).unwrap();
+        let p = build(&operating_point(mu, temp, v, t, ResponseSplit::Symmetric)).unwrap();
         let (_, o) = solved(&p, &params);
         (o.current_a, o.heat_current_left_w, o.heat_current_right_w)
     };
@@ -434,7 +415,7 @@ fn onsager_reciprocity_with_phonons() {
         wrong > 1e-2 && wrong > 100.0 * right,
         "J_Q,1 alone should break reciprocity here: {wrong:e} (right flux {right:e})"
     );
-    for split in [Split::Symmetric, Split::LeftOnly] {
+    for split in [ResponseSplit::Symmetric, ResponseSplit::LeftOnly] {
         let (c, m, _) =
             linear_response(&build, mu, temp, split, &tight(), 0.0, &mut Silent).unwrap();
         assert!(m.converged);
@@ -444,7 +425,7 @@ fn onsager_reciprocity_with_phonons() {
             m.onsager_residual
         );
         assert!((c.peltier_v - temp * c.seebeck_v_per_k).abs() < 1e-4 * c.peltier_v.abs());
-        if split == Split::Symmetric {
+        if split == ResponseSplit::Symmetric {
             // Same operating points as the hand-made runs: same matrix.
             assert!(rel(m.m12, m12) < 1e-6, "M12 {} vs {m12}", m.m12);
             assert!(rel(m.m21, m21_right) < 1e-6, "M21 {} vs {m21_right}", m.m21);
@@ -467,7 +448,7 @@ fn onsager_reciprocity_with_phonons() {
         &build,
         0.05,
         300.0,
-        Split::Symmetric,
+        ResponseSplit::Symmetric,
         &tight(),
         0.0,
         &mut Silent,
@@ -536,16 +517,7 @@ fn electron_temperature_fit_recovers_a_fermi_function() {
     assert!(rel(t_fit, t) < 1e-6, "{t_fit}");
     // In equilibrium the fitted temperature of every cell is the lead temperature.
     let p = barrier_with_phonons((0.05, 0.05), (300.0, 300.0), &[(0.04, 3e-3)]);
-    let sol = solve(
-        &p,
-        &ScbaParams {
-            tolerance: 1e-12,
-            ..tight()
-        },
-        None,
-        &mut Silent,
-    )
-    .unwrap();
+    let sol = solve(&p, &tight().with_tolerance(1e-12), None, &mut Silent).unwrap();
     let o = qheat::observables::observe_with(
         &sol,
         &qheat::observables::ObserveOptions {
@@ -669,10 +641,7 @@ fn one_cell_device_matches_dense_born_loop() {
         .phonons
         .push(phonon(&grid, 0.1, 0.05, &[true], 300.0));
     p.scattering.dephasing_ev2 = vec![0.02];
-    let params = ScbaParams {
-        tolerance: 1e-12,
-        ..tight()
-    };
+    let params = tight().with_tolerance(1e-12);
     let (sol, o) = solved(&p, &params);
     let dense = dense_scba(&p, 1e-13, 2000);
     let dsol = Solution {

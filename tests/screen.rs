@@ -4,7 +4,7 @@
 use qheat::case::Case;
 use qheat::scba::Silent;
 use qheat::sweep::screen::{Rank, ScreenTask, ranking};
-use qheat::sweep::{Axis, Grid, Quiet, SweepOptions, run};
+use qheat::sweep::{Axis, Grid, MemoryStore, SweepOptions, run};
 use qheat::thermo::of_case::case_coefficients;
 use std::path::Path;
 
@@ -27,14 +27,13 @@ fn ranking_equals_pointwise_coefficients() {
         Axis::parse(FERMI).unwrap(),
     ])
     .unwrap();
-    let tmp = tempfile::tempdir().unwrap();
     let table = run(
         &case,
         &grid,
-        &ScreenTask { rank: Rank::Zt },
-        tmp.path(),
+        &ScreenTask::new(Rank::Zt, None).unwrap(),
+        &MemoryStore::new(),
         SweepOptions::default(),
-        &Quiet,
+        &mut Silent,
     )
     .unwrap();
     assert_eq!(table.rows.len(), 9);

@@ -3,7 +3,8 @@
 //! warm starts, and the CLI end to end.
 
 use qheat::case::Case;
-use qheat::sweep::{Axis, Grid, ObservablesTask, Quiet, SweepOptions, run};
+use qheat::progress::Silent;
+use qheat::sweep::{Axis, Grid, MemoryStore, ObservablesTask, SweepOptions, run};
 use std::path::Path;
 
 /// A mirror-symmetric chain: a barrier in the middle, optional phonons
@@ -52,14 +53,13 @@ fn current_is_odd_in_voltage_and_zero_at_zero_bias() {
     for (phonons, tol) in [(false, 1e-12), (true, 1e-8)] {
         let case = symmetric_case(phonons);
         let grid = Grid::new(vec![Axis::parse("bias.voltage_v=-0.04:0.04:9").unwrap()]).unwrap();
-        let tmp = tempfile::tempdir().unwrap();
         let t = run(
             &case,
             &grid,
             &ObservablesTask,
-            tmp.path(),
+            &MemoryStore::new(),
             SweepOptions::default(),
-            &Quiet,
+            &mut Silent,
         )
         .unwrap();
         let i = t.column("current_a").unwrap();
@@ -103,17 +103,16 @@ fn grid_order_and_inputs() {
         Axis::parse("bias.voltage_v=0:0.02:3").unwrap(),
     ])
     .unwrap();
-    let tmp = tempfile::tempdir().unwrap();
     let t = run(
         &case,
         &grid,
         &ObservablesTask,
-        tmp.path(),
+        &MemoryStore::new(),
         SweepOptions {
             max_parallel_lines: Some(2),
             memory_budget_bytes: None,
         },
-        &Quiet,
+        &mut Silent,
     )
     .unwrap();
     assert_eq!(t.columns[0], "leads.left.temperature_k");
@@ -142,9 +141,9 @@ fn grid_order_and_inputs() {
         &case,
         &bad,
         &ObservablesTask,
-        tmp.path(),
+        &MemoryStore::new(),
         SweepOptions::default(),
-        &Quiet,
+        &mut Silent,
     )
     .unwrap_err();
     assert!(e.to_string().contains("bias.voltage_v"), "{e}");

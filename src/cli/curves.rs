@@ -5,10 +5,11 @@ use super::format::si;
 use super::progress::{CurveProgress, enabled};
 use super::solve::load;
 use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::leads::Side;
 use qheat::output::manifest::check_folder;
 use qheat::output::results::program;
 use qheat::output::{FolderOptions, OtherFiles, Staging, csv_bytes};
-use qheat::thermo::cooler::{ColdLead, CoolerSettings, cooler as cooler_curve};
+use qheat::thermo::cooler::{CoolerSettings, cooler as cooler_curve};
 use qheat::thermo::generator::{CurveError, GeneratorSettings, generator as generator_curve};
 use std::path::{Path, PathBuf};
 
@@ -21,13 +22,15 @@ impl From<CurveError> for Failure {
     }
 }
 
-/// The cold lead as given on the command line.
-#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Lead {
-    /// Lead 1.
-    Left,
-    /// Lead 2.
-    Right,
+/// `--cold-lead`: the library's sides, by their names.
+pub fn side_parser() -> impl clap::builder::TypedValueParser<Value = Side> {
+    use clap::builder::{PossibleValue, PossibleValuesParser, TypedValueParser};
+    let help = |s: Side| match s {
+        Side::Left => "Lead 1",
+        Side::Right => "Lead 2",
+    };
+    PossibleValuesParser::new(Side::ALL.map(|s| PossibleValue::new(s.name()).help(help(s))))
+        .try_map(|s| s.parse::<Side>())
 }
 
 fn write(
@@ -121,11 +124,7 @@ pub fn generator(
     check_curve_options(hot, cold, points, true)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
-    let settings = GeneratorSettings {
-        hot_k: hot,
-        cold_k: cold,
-        points,
-    };
+    let settings = GeneratorSettings::new(hot, cold, points);
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-generator"));
@@ -221,7 +220,7 @@ pub fn cooler(
     hot: f64,
     cold: f64,
     points: usize,
-    cold_lead: Lead,
+    cold_lead: Side,
     out: Option<&Path>,
     other_files: OtherFiles,
     common: &Common,
@@ -229,16 +228,9 @@ pub fn cooler(
     check_curve_options(hot, cold, points, false)?;
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
-    let settings = CoolerSettings {
-        hot_k: hot,
-        cold_k: cold,
-        points,
-        cold_lead: match cold_lead {
-            Lead::Left => ColdLead::Left,
-            Lead::Right => ColdLead::Right,
-        },
-        figure_of_merit: true,
-    };
+    let settings = CoolerSettings::new(hot, cold, points)
+        .with_cold_lead(cold_lead)
+        .with_figure_of_merit(true);
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-cooler"));
@@ -271,8 +263,8 @@ pub fn cooler(
         }),
     );
     let (cold_name, hot_name) = match cold_lead {
-        Lead::Left => ("left (lead 1)", "right (lead 2)"),
-        Lead::Right => ("right (lead 2)", "left (lead 1)"),
+        Side::Left => ("left (lead 1)", "right (lead 2)"),
+        Side::Right => ("right (lead 2)", "left (lead 1)"),
     };
     let mut summary = serde_json::to_value(&r).expect("JSON");
     summary["program"] = program();

@@ -127,8 +127,8 @@ pub enum Command {
         #[arg(long, default_value_t = 41)]
         points: usize,
         /// Which lead is cooled.
-        #[arg(long, value_enum, default_value = "right")]
-        cold_lead: curves::Lead,
+        #[arg(long, value_parser = curves::side_parser(), default_value = "right")]
+        cold_lead: qheat::leads::Side,
         /// Result folder (default: runs/<case name>-cooler).
         #[arg(short, long)]
         out: Option<PathBuf>,
@@ -146,8 +146,8 @@ pub enum Command {
         #[arg(long, required = true, value_name = "KEY=START:STOP:COUNT")]
         vary: Vec<String>,
         /// Ranking quantity.
-        #[arg(long, value_enum)]
-        rank: screen::RankBy,
+        #[arg(long, value_parser = screen::rank_parser())]
+        rank: qheat::sweep::screen::Rank,
         /// Hot (left) lead temperature for --rank cooling (K).
         #[arg(long, value_name = "K", allow_negative_numbers = true)]
         hot: Option<f64>,

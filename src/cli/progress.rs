@@ -2,7 +2,7 @@
 //! `--quiet`.
 
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
-use qheat::scba::{IterationRecord, Observer};
+use qheat::progress::{IterationRecord, Observer, PointEvent};
 use std::io::IsTerminal;
 
 /// Whether progress may be drawn.
@@ -73,7 +73,7 @@ impl Drop for BornProgress {
 /// called only after a point is durably stored).
 pub struct PointProgress {
     bar: Option<ProgressBar>,
-    computed: std::sync::atomic::AtomicUsize,
+    computed: usize,
     abort_after: Option<usize>,
 }
 
@@ -97,7 +97,7 @@ impl PointProgress {
             .and_then(|v| v.parse().ok());
         Self {
             bar,
-            computed: std::sync::atomic::AtomicUsize::new(0),
+            computed: 0,
             abort_after,
         }
     }
@@ -110,8 +110,8 @@ impl PointProgress {
     }
 }
 
-impl qheat::sweep::SweepObserver for PointProgress {
-    fn point_finished(&self, e: &qheat::sweep::PointEvent) {
+impl Observer for PointProgress {
+    fn point_finished(&mut self, e: &PointEvent) {
         if let Some(b) = &self.bar {
             b.set_position(e.finished as u64);
             if !e.converged {
@@ -119,11 +119,8 @@ impl qheat::sweep::SweepObserver for PointProgress {
             }
         }
         if e.computed {
-            let n = self
-                .computed
-                .fetch_add(1, std::sync::atomic::Ordering::SeqCst)
-                + 1;
-            if self.abort_after.is_some_and(|k| n >= k) {
+            self.computed += 1;
+            if self.abort_after.is_some_and(|k| self.computed >= k) {
                 std::process::exit(75);
             }
         }
@@ -165,8 +162,8 @@ impl CurveProgress {
     }
 }
 
-impl qheat::thermo::generator::CurveObserver for CurveProgress {
-    fn solved(&mut self, stage: &'static str, voltage_v: f64) {
+impl Observer for CurveProgress {
+    fn curve_solved(&mut self, stage: &'static str, voltage_v: f64) {
         self.solves += 1;
         if let Some(b) = &self.bar {
             b.set_message(format!(

@@ -5,19 +5,21 @@ use super::format::si;
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
 use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::output::sweep::table_csv;
 use qheat::output::{OtherFiles, Staging, csv_bytes};
-use qheat::sweep::screen::{Rank, ScreenTask, ranking, ranking_table};
+use qheat::sweep::screen::{CoolingCurve, Rank, ScreenTask, ranking, ranking_table};
 use std::path::{Path, PathBuf};
 
-/// The ranking quantity as given on the command line.
-#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
-pub enum RankBy {
-    /// Linear-response ZT.
-    Zt,
-    /// Power factor S²G.
-    PowerFactor,
-    /// Maximum cooling power (needs --hot and --cold).
-    Cooling,
+/// `--rank`: the library's ranking quantities, by their names.
+pub fn rank_parser() -> impl clap::builder::TypedValueParser<Value = Rank> {
+    use clap::builder::{PossibleValue, PossibleValuesParser, TypedValueParser};
+    let help = |r: Rank| match r {
+        Rank::Zt => "Linear-response ZT",
+        Rank::PowerFactor => "Power factor S²G",
+        Rank::Cooling => "Maximum cooling power (needs --hot and --cold)",
+    };
+    PossibleValuesParser::new(Rank::ALL.map(|r| PossibleValue::new(r.name()).help(help(r))))
+        .try_map(|s| s.parse::<Rank>())
 }
 
 /// `qheat screen CASE --vary ... --rank ...`.
@@ -25,7 +27,7 @@ pub enum RankBy {
 pub fn screen(
     path: &Path,
     vary: &[String],
-    rank: RankBy,
+    rank: Rank,
     hot: Option<f64>,
     cold: Option<f64>,
     points: Option<usize>,
@@ -33,7 +35,7 @@ pub fn screen(
     other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
-    if rank != RankBy::Cooling {
+    if rank != Rank::Cooling {
         let given: Vec<&str> = [
             ("--hot", hot.is_some()),
             ("--cold", cold.is_some()),
@@ -52,30 +54,26 @@ pub fn screen(
         }
     }
     let points = points.unwrap_or(21);
-    if let (RankBy::Cooling, Some(h), Some(c)) = (rank, hot, cold) {
+    if let (Rank::Cooling, Some(h), Some(c)) = (rank, hot, cold) {
         check_curve_options(h, c, points, false)?;
     }
     let (case, resolved) = load(path, common)?;
     check_memory(resolved.memory_estimate_bytes())?;
     let grid = parse_grid(&case, vary)?;
-    let rank = match rank {
-        RankBy::Zt => Rank::Zt,
-        RankBy::PowerFactor => Rank::PowerFactor,
-        RankBy::Cooling => match (hot, cold) {
-            (Some(hot_k), Some(cold_k)) => Rank::Cooling {
-                hot_k,
-                cold_k,
-                points,
-            },
-            _ => {
-                return Err(Failure::BadInput(
-                    "--rank cooling needs --hot K and --cold K (the right lead is the cold one)"
-                        .into(),
-                ));
-            }
-        },
+    let cooling = match (rank, hot, cold) {
+        (Rank::Cooling, Some(hot_k), Some(cold_k)) => Some(CoolingCurve {
+            hot_k,
+            cold_k,
+            points,
+        }),
+        (Rank::Cooling, _, _) => {
+            return Err(Failure::BadInput(
+                "--rank cooling needs --hot K and --cold K (the right lead is the cold one)".into(),
+            ));
+        }
+        _ => None,
     };
-    if let Rank::Cooling { hot_k, cold_k, .. } = rank
+    if let Some(CoolingCurve { hot_k, cold_k, .. }) = cooling
         && !(cold_k > 0.0 && hot_k >= cold_k && hot_k.is_finite())
     {
         return Err(Failure::BadInput(format!(
@@ -85,14 +83,14 @@ pub fn screen(
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-screen"));
-    let task = ScreenTask { rank };
+    let task = ScreenTask::new(rank, cooling).expect("a cooler curve exactly for --rank cooling");
     let options = folder("screen", other_files).keeping_store();
     let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
     let order = ranking(&table, rank.column())?;
     let (rcols, rrows) = ranking_table(&table, &order);
     let rheaders: Vec<&str> = rcols.iter().map(String::as_str).collect();
     let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("screen.csv", &table.csv())?;
+    stage.write("screen.csv", &table_csv(&table))?;
     stage.write("ranking.csv", &csv_bytes(&rheaders, rrows))?;
     for (name, svg) in
         qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
@@ -103,7 +101,7 @@ pub fn screen(
         stage.write("ranking.svg", svg.as_bytes())?;
     }
     let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
-    summary["rank_by"] = serde_json::json!(rank);
+    summary["rank_by"] = serde_json::json!(task);
     summary["ranked_column"] = serde_json::json!(rank.column());
     let c = table.column(rank.column()).expect("ranked column exists");
     summary["best"] = serde_json::json!(order.iter().take(5).map(|&i| serde_json::json!({
@@ -134,7 +132,7 @@ pub fn screen(
             let shown = match rank {
                 Rank::Zt => format!("ZT = {score:.4}"),
                 Rank::PowerFactor => format!("S²G = {}", si(score, "W/K²", 4)),
-                Rank::Cooling { .. } => format!("cooling power = {}", si(score, "W", 4)),
+                Rank::Cooling => format!("cooling power = {}", si(score, "W", 4)),
             };
             println!(
                 "  #{:<3} point {:<4} {}  ({})",

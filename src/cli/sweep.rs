@@ -13,6 +13,7 @@ use super::{Common, Failure, available_memory_bytes, check_memory, default_out, 
 use qheat::case::Case;
 use qheat::output::manifest::claim_store;
 use qheat::output::results::program;
+use qheat::output::sweep::{PointFolder, table_csv};
 use qheat::output::{FolderOptions, OtherFiles, Staging};
 use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
 use std::path::{Path, PathBuf};
@@ -111,12 +112,13 @@ pub fn run_grid(
     label: &str,
 ) -> Result<SweepTable, Failure> {
     claim_store(out_dir, options)?;
-    let progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
+    let store = PointFolder::open(out_dir, sweep::sweep_fingerprint(case, grid, task))?;
+    let mut progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
     let options = SweepOptions {
         max_parallel_lines: Some(common.threads),
         memory_budget_bytes: available_memory_bytes().map(|b| b / 10 * 8),
     };
-    let table = sweep::run(case, grid, task, out_dir, options, &progress);
+    let table = sweep::run(case, grid, task, &store, options, &mut progress);
     progress.finish();
     Ok(table?)
 }
@@ -142,7 +144,7 @@ pub fn grid_summary(
         "computed_this_run": table.computed,
         "from_earlier_runs": grid.len() - table.computed,
         "parallel_lines": table.parallel_lines,
-        "point_store": table.store_dir.display().to_string(),
+        "point_store": table.store,
         "unconverged_points": table.unconverged(),
         "converged": table.unconverged().is_empty(),
         "columns": table.columns,
@@ -191,7 +193,7 @@ pub fn sweep(
         &case.name,
     )?;
     let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("sweep.csv", &table.csv())?;
+    stage.write("sweep.csv", &table_csv(&table))?;
     let quantities = [
         "current_a",
         "heat_current_left_w",

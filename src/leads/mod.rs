@@ -22,7 +22,9 @@ use faer::linalg::solvers::DenseSolveCore;
 mod modes;
 pub use modes::mode_self_energy;
 
-/// Which contact.
+/// Which contact: the one name of a side everywhere (lead self-energies,
+/// the cooled lead of a cooler, the hot lead of a generator, the command
+/// line), written `left` / `right` in text and JSON.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Side {
@@ -30,6 +32,38 @@ pub enum Side {
     Left,
     /// Contact 2, attached to the last cell.
     Right,
+}
+
+impl Side {
+    /// Both sides, in the order of [`Side::NAMES`].
+    pub const ALL: [Side; 2] = [Side::Left, Side::Right];
+    /// The names of the sides as written in text and JSON.
+    pub const NAMES: [&'static str; 2] = ["left", "right"];
+
+    /// The side's name as written in text and JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Side::Left => "left",
+            Side::Right => "right",
+        }
+    }
+}
+
+impl std::fmt::Display for Side {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl std::str::FromStr for Side {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Side::ALL
+            .into_iter()
+            .find(|side| side.name() == s)
+            .ok_or_else(|| format!("expected `left` or `right`, found `{s}`"))
+    }
 }
 
 /// A lead model.
@@ -235,4 +269,22 @@ pub fn broadening(sigma: &Mat<C64>) -> Mat<C64> {
     Mat::from_fn(b, b, |r, c| {
         (sigma[(r, c)] - sigma[(c, r)].conj()) * C64::new(0.0, 1.0)
     })
+}
+
+#[cfg(test)]
+mod side_tests {
+    use super::Side;
+
+    /// Text, JSON and the parser agree on every side's name, so a side
+    /// reads back as itself wherever it was written.
+    #[test]
+    fn side_names_agree_everywhere() {
+        for (side, name) in Side::ALL.into_iter().zip(Side::NAMES) {
+            assert_eq!(side.name(), name);
+            assert_eq!(side.to_string(), name);
+            assert_eq!(serde_json::to_string(&side).unwrap(), format!("\"{name}\""));
+            assert_eq!(name.parse::<Side>(), Ok(side));
+        }
+        assert!("middle".parse::<Side>().unwrap_err().contains("middle"));
+    }
 }

@@ -69,7 +69,7 @@ pub const MANIFEST: &str = ".qheat-manifest.json";
 const PARTIAL: &str = ".qheat-partial-";
 
 /// The folder of a sweep's point store inside its result folder.
-pub const STORE: &str = crate::sweep::store::STORE_FOLDER;
+pub const STORE: &str = super::sweep::STORE_FOLDER;
 
 /// How many entries in the way an error names before giving a count.
 const LISTED: usize = 10;

@@ -11,6 +11,7 @@ pub mod manifest;
 pub mod plots;
 pub mod report;
 pub mod results;
+pub mod sweep;
 
 use std::fs;
 use std::io::Write;

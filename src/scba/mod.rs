@@ -67,6 +67,7 @@ pub use params::{EnergyOrder, Mixing, ScbaParams};
 use crate::C64;
 use crate::leads::{LeadError, Side};
 use crate::model::Problem;
+pub use crate::progress::{IterationRecord, Observer, Silent};
 use crate::rgf::{self, EnergyInput, EnergyOutput, RgfError, TerminalFlows, Workspace};
 use crate::scattering::{HilbertTransform, LocalGreen, ScatteringSelfEnergy};
 use faer::Mat;
@@ -356,34 +357,6 @@ fn inscatter_into(sigma: &Mat<C64>, f: f64, dst: &mut Mat<C64>) {
         }
     }
 }
-
-/// What one Born iteration did.
-#[derive(Clone, Debug, PartialEq, serde::Serialize)]
-pub struct IterationRecord {
-    /// Iteration number (1-based).
-    pub iteration: usize,
-    /// Relative change of (Σ^in_0, Σ^out_0) between input and output.
-    pub residual: f64,
-    /// Current from the left lead with the input Σ0 (A).
-    pub current_left_a: f64,
-    /// Current from the right lead with the input Σ0 (A).
-    pub current_right_a: f64,
-    /// Largest change of a terminal current since the last iteration,
-    /// relative to tol·|I| + floor (converged when ≤ 1).
-    pub current_change: f64,
-    /// Which update was used next ("linear", "anderson", "restart").
-    pub step: &'static str,
-}
-
-/// Sees each Born iteration (progress bars, logs). Solvers never print.
-pub trait Observer {
-    /// Called after every iteration.
-    fn iteration(&mut self, _record: &IterationRecord) {}
-}
-
-/// An observer that does nothing.
-pub struct Silent;
-impl Observer for Silent {}
 
 /// The convergence record of a solve.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]

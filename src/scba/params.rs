@@ -59,8 +59,11 @@ pub enum EnergyOrder {
     RedBlack,
 }
 
-/// Parameters of the SCBA loop.
+/// Parameters of the SCBA loop. Start from [`ScbaParams::default`] and
+/// change what differs with the `with_…` methods (the struct may gain
+/// settings, so it is not built field by field outside the crate).
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct ScbaParams {
     /// Relative tolerance on Σ^in_0 and Σ^out_0 and on the terminal currents.
     pub tolerance: f64,
@@ -83,6 +86,42 @@ impl Default for ScbaParams {
             max_iterations: 300,
             mixing: Mixing::default(),
             energy_order: EnergyOrder::Auto,
+        }
+    }
+}
+
+impl ScbaParams {
+    /// These settings with relative tolerance `tolerance`.
+    pub fn with_tolerance(self, tolerance: f64) -> Self {
+        Self { tolerance, ..self }
+    }
+
+    /// These settings with absolute current floor `current_floor_a` (A).
+    pub fn with_current_floor_a(self, current_floor_a: f64) -> Self {
+        Self {
+            current_floor_a,
+            ..self
+        }
+    }
+
+    /// These settings with iteration limit `max_iterations`.
+    pub fn with_max_iterations(self, max_iterations: usize) -> Self {
+        Self {
+            max_iterations,
+            ..self
+        }
+    }
+
+    /// These settings with mixing scheme `mixing`.
+    pub fn with_mixing(self, mixing: Mixing) -> Self {
+        Self { mixing, ..self }
+    }
+
+    /// These settings with energy order `energy_order`.
+    pub fn with_energy_order(self, energy_order: EnergyOrder) -> Self {
+        Self {
+            energy_order,
+            ..self
         }
     }
 }

@@ -95,8 +95,8 @@ impl Axis {
         format!(
             "{}={}:{}:{}",
             self.name(),
-            crate::output::format_number(self.start),
-            crate::output::format_number(self.stop),
+            super::store::exact_text(self.start),
+            super::store::exact_text(self.stop),
             self.count
         )
     }

@@ -9,7 +9,7 @@
 //! line run in order, each Born loop starting from the converged Σ0 of its
 //! predecessor when the energy grid and device size match.
 //!
-//! Every finished point is stored durably ([`store`]) before it is
+//! Every finished point is stored durably in a [`PointStore`] before it is
 //! reported, and a point's warm start is read back from the stored Σ0 of its
 //! predecessor when that predecessor was computed in an earlier run. A
 //! point's inputs are therefore the same whether or not the sweep was
@@ -23,14 +23,13 @@ pub mod screen;
 pub mod store;
 
 pub use grid::{Axis, Grid};
-pub use store::PointStore;
+pub use store::{MemoryStore, PointStore, StoreError};
 
 use crate::case::{Case, CaseError};
 use crate::observables::observe;
-use crate::output::OutputError;
+use crate::progress::{Observer, PointEvent, Silent};
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::{Silent, SolveError, solve};
-use std::path::Path;
+use crate::scba::{SolveError, solve};
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
@@ -69,9 +68,9 @@ pub enum SweepError {
         /// What went wrong.
         message: String,
     },
-    /// Storing or reading points failed.
+    /// Storing a point failed.
     #[error(transparent)]
-    Store(#[from] OutputError),
+    Store(StoreError),
 }
 
 /// What a task computed at one point.
@@ -100,31 +99,6 @@ pub trait PointTask: Sync {
     ) -> Result<PointOutcome, SweepError>;
 }
 
-/// Per-point progress, reported after the point is stored.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct PointEvent {
-    /// Grid index of the point.
-    pub index: usize,
-    /// Points finished so far (this run and earlier runs).
-    pub finished: usize,
-    /// Points in the grid.
-    pub total: usize,
-    /// True when computed in this run, false when found in the store.
-    pub computed: bool,
-    /// Whether the point's Born loop converged.
-    pub converged: bool,
-}
-
-/// Sees each finished point. Called from worker threads.
-pub trait SweepObserver: Sync {
-    /// A point is stored.
-    fn point_finished(&self, _event: &PointEvent) {}
-}
-
-/// An observer that does nothing.
-pub struct Quiet;
-impl SweepObserver for Quiet {}
-
 /// How a sweep may use the machine.
 #[derive(Clone, Copy, Debug, Default)]
 pub struct SweepOptions {
@@ -138,6 +112,7 @@ pub struct SweepOptions {
 
 /// The finished table.
 #[derive(Clone, Debug, PartialEq)]
+#[non_exhaustive]
 pub struct SweepTable {
     /// Column names: the axes, then the task's columns.
     pub columns: Vec<String>,
@@ -147,8 +122,8 @@ pub struct SweepTable {
     pub computed: usize,
     /// Lines run at once.
     pub parallel_lines: usize,
-    /// The store folder.
-    pub store_dir: std::path::PathBuf,
+    /// Where the points are kept ([`PointStore::location`]).
+    pub store: String,
 }
 
 impl SweepTable {
@@ -166,13 +141,6 @@ impl SweepTable {
             None => Vec::new(),
         }
     }
-
-    /// The table as CSV bytes (shortest round-trip numbers: exact and
-    /// byte-stable).
-    pub fn csv(&self) -> Vec<u8> {
-        let headers: Vec<&str> = self.columns.iter().map(String::as_str).collect();
-        crate::output::csv_bytes(&headers, self.rows.iter().cloned())
-    }
 }
 
 /// The fingerprint of a sweep: case text, grid, task and program version.
@@ -188,33 +156,23 @@ pub fn sweep_fingerprint(case: &Case, grid: &Grid, task: &dyn PointTask) -> u64 
     ])
 }
 
-/// Run (or resume) a sweep: every point of `grid` through `task`, points
-/// stored under `result_dir/points/`. Points already stored by an earlier
-/// run of the same sweep are read, not recomputed.
+/// Run (or resume) a sweep: every point of `grid` through `task`, each
+/// finished point kept in `store` before `observer` hears of it. Points
+/// already in the store (from an earlier run of the same sweep: open the
+/// store by [`sweep_fingerprint`]) are read, not recomputed.
 pub fn run(
     case: &Case,
     grid: &Grid,
     task: &dyn PointTask,
-    result_dir: &Path,
+    store: &dyn PointStore,
     options: SweepOptions,
-    observer: &dyn SweepObserver,
+    observer: &mut (dyn Observer + Send),
 ) -> Result<SweepTable, SweepError> {
-    let total = grid.len();
     // Check every point before computing any: a bad value is bad input,
     // not a failure halfway through a long run.
-    let mut largest = 0u64;
-    for i in 0..total {
-        let c = grid.case_at(case, i)?;
-        let r = c.resolve().map_err(|e| SweepError::Case {
-            point: i,
-            source: Box::new(e),
-        })?;
-        largest = largest.max(r.memory_estimate_bytes());
-    }
-    let store = PointStore::open(result_dir, sweep_fingerprint(case, grid, task))?;
+    let largest = check_points(case, grid)?;
     let mut columns = grid.names();
     columns.extend(task.columns());
-    let width = columns.len();
     let converged_col = columns
         .iter()
         .position(|c| c == "converged")
@@ -222,143 +180,211 @@ pub fn run(
             point: 0,
             message: "the task has no `converged` column".into(),
         })?;
-
     let lines = grid.lines();
-    let line_len = grid.line_length();
+    let parallel = parallel_lines(&options, lines, largest);
+    let runner = LineRunner {
+        case,
+        grid,
+        task,
+        store,
+        width: columns.len(),
+        converged_col,
+        finished: AtomicUsize::new(0),
+        computed: AtomicUsize::new(0),
+        stop: AtomicBool::new(false),
+        observer: Mutex::new(observer),
+    };
+    runner.run_lines(lines, parallel)?;
+    let rows = (0..grid.len())
+        .map(|index| {
+            store
+                .row(index, columns.len())
+                .ok_or_else(|| SweepError::Task {
+                    point: index,
+                    message: format!(
+                        "the stored row is missing or unreadable in {}",
+                        store.location()
+                    ),
+                })
+        })
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(SweepTable {
+        columns,
+        rows,
+        computed: runner.computed.into_inner(),
+        parallel_lines: parallel,
+        store: store.location(),
+    })
+}
+
+/// Resolve every point of the grid; the largest memory estimate of a point.
+fn check_points(case: &Case, grid: &Grid) -> Result<u64, SweepError> {
+    let mut largest = 0u64;
+    for i in 0..grid.len() {
+        let c = grid.case_at(case, i)?;
+        let r = c.resolve().map_err(|e| SweepError::Case {
+            point: i,
+            source: Box::new(e),
+        })?;
+        largest = largest.max(r.memory_estimate_bytes());
+    }
+    Ok(largest)
+}
+
+/// Lines run at once: the thread pool's width (or the option), at most the
+/// lines there are and what the memory budget holds.
+fn parallel_lines(options: &SweepOptions, lines: usize, largest_point_bytes: u64) -> usize {
     let threads = rayon::current_num_threads().max(1);
     let mut parallel = options
         .max_parallel_lines
         .unwrap_or(threads)
         .clamp(1, lines.max(1));
     if let Some(budget) = options.memory_budget_bytes {
-        let fit = (budget / largest.max(1)).max(1) as usize;
+        let fit = (budget / largest_point_bytes.max(1)).max(1) as usize;
         parallel = parallel.min(fit);
     }
+    parallel
+}
 
-    let next_line = AtomicUsize::new(0);
-    let finished = AtomicUsize::new(0);
-    let computed = AtomicUsize::new(0);
-    let stop = AtomicBool::new(false);
-    let failure: Mutex<Option<SweepError>> = Mutex::new(None);
+/// The shared state of the worker threads of one sweep.
+struct LineRunner<'a, 'o> {
+    case: &'a Case,
+    grid: &'a Grid,
+    task: &'a dyn PointTask,
+    store: &'a dyn PointStore,
+    width: usize,
+    converged_col: usize,
+    finished: AtomicUsize,
+    computed: AtomicUsize,
+    stop: AtomicBool,
+    /// Events go to the observer one at a time.
+    observer: Mutex<&'o mut (dyn Observer + Send)>,
+}
 
-    let work_line = |line: usize| -> Result<(), SweepError> {
+impl LineRunner<'_, '_> {
+    /// Work through the lines on `parallel` workers; the first error stops
+    /// every worker after its current point.
+    fn run_lines(&self, lines: usize, parallel: usize) -> Result<(), SweepError> {
+        let next_line = AtomicUsize::new(0);
+        let failure: Mutex<Option<SweepError>> = Mutex::new(None);
+        let worker = || {
+            loop {
+                if self.stop.load(Ordering::Relaxed) {
+                    return;
+                }
+                let line = next_line.fetch_add(1, Ordering::SeqCst);
+                if line >= lines {
+                    return;
+                }
+                if let Err(e) = self.work_line(line) {
+                    self.stop.store(true, Ordering::SeqCst);
+                    let mut slot = failure.lock().unwrap_or_else(|p| p.into_inner());
+                    if slot.is_none() {
+                        *slot = Some(e);
+                    }
+                    return;
+                }
+            }
+        };
+        if parallel == 1 {
+            worker();
+        } else {
+            rayon::scope(|s| {
+                for _ in 0..parallel {
+                    s.spawn(|_| worker());
+                }
+            });
+        }
+        match failure.into_inner().unwrap_or_else(|p| p.into_inner()) {
+            Some(e) => Err(e),
+            None => Ok(()),
+        }
+    }
+
+    /// The points of one line in order, each warm-started from its
+    /// predecessor's Σ0 (kept in memory, or read back from the store when
+    /// the predecessor finished in an earlier run).
+    fn work_line(&self, line: usize) -> Result<(), SweepError> {
+        let line_len = self.grid.line_length();
         let first = line * line_len;
         let mut warm: Option<ScatteringSelfEnergy> = None;
         for index in first..first + line_len {
-            if stop.load(Ordering::Relaxed) {
+            if self.stop.load(Ordering::Relaxed) {
                 return Ok(());
             }
-            if let Some(row) = store.row(index, width) {
+            if let Some(row) = self.store.row(index, self.width) {
                 warm = None;
-                let n = finished.fetch_add(1, Ordering::SeqCst) + 1;
-                observer.point_finished(&PointEvent {
-                    index,
-                    finished: n,
-                    total,
-                    computed: false,
-                    converged: row[converged_col] == 1.0,
-                });
+                self.report(index, false, &row);
                 continue;
             }
             if warm.is_none() && index > first {
-                warm = store.sigma(index - 1);
+                warm = self.store.sigma(index - 1);
             }
-            let c = grid.case_at(case, index)?;
-            let problem = &c
-                .resolve()
-                .map_err(|e| SweepError::Case {
-                    point: index,
-                    source: Box::new(e),
-                })?
-                .problem;
-            let fits = warm
-                .as_ref()
-                .is_some_and(|w| w.sites == problem.sites() && w.energies() == problem.grid.count);
-            let outcome = task.run(index, &c, if fits { warm.as_ref() } else { None })?;
-            if outcome.values.len() + grid.axes.len() != width {
-                return Err(SweepError::Task {
-                    point: index,
-                    message: format!(
-                        "the task returned {} values for {} columns",
-                        outcome.values.len(),
-                        width - grid.axes.len()
-                    ),
-                });
+            let (row, sigma) = self.compute(index, warm.as_ref())?;
+            if let Some(s) = &sigma {
+                self.store.put_sigma(index, s).map_err(SweepError::Store)?;
             }
-            let mut row = grid.values(index);
-            row.extend_from_slice(&outcome.values);
-            if let Some(s) = &outcome.sigma {
-                store.put_sigma(index, s)?;
-            }
-            store.put_row(index, &row)?;
+            self.store.put_row(index, &row).map_err(SweepError::Store)?;
             if index >= first + 2 {
-                store.remove_sigma(index - 2);
+                self.store.remove_sigma(index - 2);
             }
-            warm = outcome.sigma;
-            computed.fetch_add(1, Ordering::SeqCst);
-            let n = finished.fetch_add(1, Ordering::SeqCst) + 1;
-            observer.point_finished(&PointEvent {
-                index,
-                finished: n,
-                total,
-                computed: true,
-                converged: row[converged_col] == 1.0,
-            });
+            warm = sigma;
+            self.computed.fetch_add(1, Ordering::SeqCst);
+            self.report(index, true, &row);
         }
         // The line is whole: its warm starts are no longer needed.
         for index in first..first + line_len {
-            store.remove_sigma(index);
+            self.store.remove_sigma(index);
         }
         Ok(())
-    };
-    let worker = || {
-        loop {
-            if stop.load(Ordering::Relaxed) {
-                return;
-            }
-            let line = next_line.fetch_add(1, Ordering::SeqCst);
-            if line >= lines {
-                return;
-            }
-            if let Err(e) = work_line(line) {
-                stop.store(true, Ordering::SeqCst);
-                let mut slot = failure.lock().unwrap_or_else(|p| p.into_inner());
-                if slot.is_none() {
-                    *slot = Some(e);
-                }
-                return;
-            }
+    }
+
+    /// Run the task at point `index`; its row (axes, then the task's
+    /// values) and Σ0.
+    fn compute(
+        &self,
+        index: usize,
+        warm: Option<&ScatteringSelfEnergy>,
+    ) -> Result<(Vec<f64>, Option<ScatteringSelfEnergy>), SweepError> {
+        let c = self.grid.case_at(self.case, index)?;
+        let problem = &c
+            .resolve()
+            .map_err(|e| SweepError::Case {
+                point: index,
+                source: Box::new(e),
+            })?
+            .problem;
+        let fits =
+            warm.is_some_and(|w| w.sites == problem.sites() && w.energies() == problem.grid.count);
+        let outcome = self.task.run(index, &c, if fits { warm } else { None })?;
+        let axes = self.grid.axes.len();
+        if outcome.values.len() + axes != self.width {
+            return Err(SweepError::Task {
+                point: index,
+                message: format!(
+                    "the task returned {} values for {} columns",
+                    outcome.values.len(),
+                    self.width - axes
+                ),
+            });
         }
-    };
-    if parallel == 1 {
-        worker();
-    } else {
-        rayon::scope(|s| {
-            for _ in 0..parallel {
-                s.spawn(|_| worker());
-            }
+        let mut row = self.grid.values(index);
+        row.extend_from_slice(&outcome.values);
+        Ok((row, outcome.sigma))
+    }
+
+    /// Tell the observer that point `index` is stored.
+    fn report(&self, index: usize, computed: bool, row: &[f64]) {
+        let mut observer = self.observer.lock().unwrap_or_else(|p| p.into_inner());
+        let finished = self.finished.fetch_add(1, Ordering::SeqCst) + 1;
+        observer.point_finished(&PointEvent {
+            index,
+            finished,
+            total: self.grid.len(),
+            computed,
+            converged: row[self.converged_col] == 1.0,
         });
     }
-    if let Some(e) = failure.into_inner().unwrap_or_else(|p| p.into_inner()) {
-        return Err(e);
-    }
-    let mut rows = Vec::with_capacity(total);
-    for index in 0..total {
-        rows.push(store.row(index, width).ok_or_else(|| SweepError::Task {
-            point: index,
-            message: format!(
-                "the stored row is missing or unreadable in {}",
-                store.dir().display()
-            ),
-        })?);
-    }
-    Ok(SweepTable {
-        columns,
-        rows,
-        computed: computed.into_inner(),
-        parallel_lines: parallel,
-        store_dir: store.dir().to_path_buf(),
-    })
 }
 
 /// The plain sweep: one solve per point and every scalar observable.

@@ -3,14 +3,15 @@
 
 use super::{PointOutcome, PointTask, SweepError, SweepTable};
 use crate::case::Case;
+use crate::leads::Side;
+use crate::progress::Silent;
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::Silent;
-use crate::thermo::cooler::{ColdLead, CoolerSettings, cooler};
-use crate::thermo::generator::NoProgress;
+use crate::thermo::cooler::{CoolerSettings, cooler};
 use crate::thermo::of_case::{CoefficientError, case_coefficients};
 
-/// What to rank by.
-#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+/// What to rank by: the closed set of ranking quantities, written
+/// `zt`, `power-factor`, `cooling` in text and JSON.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Rank {
     /// Linear-response ZT at the case's reference point.
@@ -18,31 +19,97 @@ pub enum Rank {
     /// Power factor S² G at the case's reference point.
     PowerFactor,
     /// Maximum cooling power between a hot and a cold lead.
-    Cooling {
-        /// Hot lead temperature (K).
-        hot_k: f64,
-        /// Cold lead (lead 2) temperature (K).
-        cold_k: f64,
-        /// Voltages on each cooler curve.
-        points: usize,
-    },
+    Cooling,
 }
 
 impl Rank {
+    /// Every ranking quantity, in the order of [`Rank::NAMES`].
+    pub const ALL: [Rank; 3] = [Rank::Zt, Rank::PowerFactor, Rank::Cooling];
+    /// The names of the ranking quantities as written in text and JSON.
+    pub const NAMES: [&'static str; 3] = ["zt", "power-factor", "cooling"];
+
+    /// The name as written in text and JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Rank::Zt => "zt",
+            Rank::PowerFactor => "power-factor",
+            Rank::Cooling => "cooling",
+        }
+    }
+
     /// The column ranked by.
     pub fn column(&self) -> &'static str {
         match self {
             Rank::Zt => "zt",
             Rank::PowerFactor => "power_factor_w_per_k2",
-            Rank::Cooling { .. } => "max_cooling_power_w",
+            Rank::Cooling => "max_cooling_power_w",
         }
     }
 }
 
+impl std::str::FromStr for Rank {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Rank::ALL
+            .into_iter()
+            .find(|r| r.name() == s)
+            .ok_or_else(|| format!("expected one of {}, found `{s}`", Rank::NAMES.join(", ")))
+    }
+}
+
+/// The cooler curve run at each point of a cooling screen (the right lead
+/// is the cold one).
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct CoolingCurve {
+    /// Hot lead (lead 1) temperature (K).
+    pub hot_k: f64,
+    /// Cold lead (lead 2) temperature (K).
+    pub cold_k: f64,
+    /// Voltages on each cooler curve.
+    pub points: usize,
+}
+
 /// Screening task: coefficients per point, or a cooler curve per point.
+#[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ScreenTask {
-    /// Ranking quantity.
-    pub rank: Rank,
+    rank: Rank,
+    cooling: Option<CoolingCurve>,
+}
+
+impl ScreenTask {
+    /// A screen ranked by `rank`; `cooling` is the cooler curve of each
+    /// point, given exactly when `rank` is [`Rank::Cooling`] (`None`
+    /// otherwise: a cooling screen needs its curve, the others have none).
+    pub fn new(rank: Rank, cooling: Option<CoolingCurve>) -> Option<Self> {
+        (cooling.is_some() == (rank == Rank::Cooling)).then_some(Self { rank, cooling })
+    }
+
+    /// The ranking quantity.
+    pub fn rank(&self) -> Rank {
+        self.rank
+    }
+
+    /// The cooler curve of each point of a cooling screen.
+    pub fn cooling(&self) -> Option<CoolingCurve> {
+        self.cooling
+    }
+}
+
+/// Written as the ranking quantity's name, or for a cooling screen as
+/// `{"cooling": {hot_k, cold_k, points}}`.
+impl serde::Serialize for ScreenTask {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        match self.cooling {
+            Some(curve) => {
+                let mut m = s.serialize_map(Some(1))?;
+                m.serialize_entry(self.rank.name(), &curve)?;
+                m.end()
+            }
+            None => self.rank.serialize(s),
+        }
+    }
 }
 
 const COEFFICIENT_COLUMNS: [&str; 9] = [
@@ -69,22 +136,22 @@ const COOLING_COLUMNS: [&str; 7] = [
 
 impl PointTask for ScreenTask {
     fn columns(&self) -> Vec<String> {
-        let cols: &[&str] = match self.rank {
-            Rank::Zt | Rank::PowerFactor => &COEFFICIENT_COLUMNS,
-            Rank::Cooling { .. } => &COOLING_COLUMNS,
+        let cols: &[&str] = match self.cooling {
+            None => &COEFFICIENT_COLUMNS,
+            Some(_) => &COOLING_COLUMNS,
         };
         cols.iter().map(|s| s.to_string()).collect()
     }
 
     fn describe(&self) -> String {
         // ZT and power factor share their columns, so they share points.
-        match self.rank {
-            Rank::Zt | Rank::PowerFactor => "screen coefficients".into(),
-            Rank::Cooling {
+        match self.cooling {
+            None => "screen coefficients".into(),
+            Some(CoolingCurve {
                 hot_k,
                 cold_k,
                 points,
-            } => format!("screen cooling {hot_k:e} {cold_k:e} {points}"),
+            }) => format!("screen cooling {hot_k:e} {cold_k:e} {points}"),
         }
     }
 
@@ -94,8 +161,8 @@ impl PointTask for ScreenTask {
         case: &Case,
         _warm: Option<&ScatteringSelfEnergy>,
     ) -> Result<PointOutcome, SweepError> {
-        let values = match self.rank {
-            Rank::Zt | Rank::PowerFactor => match case_coefficients(case, &mut Silent) {
+        let values = match self.cooling {
+            None => match case_coefficients(case, &mut Silent) {
                 Ok(set) => {
                     let c = set.coefficients;
                     vec![
@@ -124,19 +191,15 @@ impl PointTask for ScreenTask {
                     });
                 }
             },
-            Rank::Cooling {
+            Some(CoolingCurve {
                 hot_k,
                 cold_k,
                 points,
-            } => {
-                let settings = CoolerSettings {
-                    hot_k,
-                    cold_k,
-                    points,
-                    cold_lead: ColdLead::Right,
-                    figure_of_merit: false,
-                };
-                let r = cooler(case, &settings, &mut NoProgress).map_err(|e| SweepError::Task {
+            }) => {
+                let settings = CoolerSettings::new(hot_k, cold_k, points)
+                    .with_cold_lead(Side::Right)
+                    .with_figure_of_merit(false);
+                let r = cooler(case, &settings, &mut Silent).map_err(|e| SweepError::Task {
                     point: index,
                     message: e.to_string(),
                 })?;
@@ -194,4 +257,40 @@ pub fn ranking_table(table: &SweepTable, order: &[usize]) -> (Vec<String>, Vec<V
         })
         .collect();
     (columns, rows)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Text, JSON and the parser agree on every ranking quantity's name.
+    #[test]
+    fn rank_names_agree_everywhere() {
+        for (rank, name) in Rank::ALL.into_iter().zip(Rank::NAMES) {
+            assert_eq!(rank.name(), name);
+            assert_eq!(serde_json::to_string(&rank).unwrap(), format!("\"{name}\""));
+            assert_eq!(name.parse::<Rank>(), Ok(rank));
+        }
+        assert!("speed".parse::<Rank>().is_err());
+    }
+
+    /// A screen gets a cooler curve exactly when it ranks by cooling, and
+    /// its JSON form is the one summaries have always carried.
+    #[test]
+    fn screen_task_pairs_rank_and_curve() {
+        let curve = CoolingCurve {
+            hot_k: 310.0,
+            cold_k: 300.0,
+            points: 5,
+        };
+        assert!(ScreenTask::new(Rank::Cooling, None).is_none());
+        assert!(ScreenTask::new(Rank::Zt, Some(curve)).is_none());
+        let zt = ScreenTask::new(Rank::Zt, None).unwrap();
+        assert_eq!(serde_json::to_string(&zt).unwrap(), "\"zt\"");
+        let cooling = ScreenTask::new(Rank::Cooling, Some(curve)).unwrap();
+        assert_eq!(
+            serde_json::to_string(&cooling).unwrap(),
+            r#"{"cooling":{"hot_k":310.0,"cold_k":300.0,"points":5}}"#
+        );
+    }
 }

@@ -1,26 +1,115 @@
-//! Durable per-point storage of a sweep, so that an interrupted sweep
+//! Where a sweep keeps its finished points, so that an interrupted sweep
 //! recomputes only what is missing.
 //!
-//! Layout under the result folder: `points/<fingerprint>/`, one file per
-//! finished point (`<index>.row`, the row's numbers in shortest round-trip
-//! text) and, for sweeps that warm-start the Born loop, the converged Σ0 of
-//! the latest points of each line (`<index>.sigma`, raw little-endian
-//! doubles). Every file is written to a temporary name, synced and renamed
-//! ([`crate::output::atomic_write`]), so a file that exists is whole. The
-//! fingerprint hashes the case text, the grid and the task, so a changed
-//! command never mixes its results with an old one.
+//! The sweep sees its store through [`PointStore`]: one row of numbers per
+//! finished point and, for sweeps that warm-start the Born loop, the
+//! converged Σ0 of the latest points of each line. A store must make a
+//! point it has accepted durable before `put_row` returns (the sweep
+//! reports a point only after that), and must never return a row it did
+//! not receive whole. The result folder's implementation, one file per
+//! point written atomically, is `crate::output::sweep::PointFolder`;
+//! [`MemoryStore`] keeps points in memory.
 //!
-//! The result folder's manifest lists the store before its first point is
-//! written ([`crate::output::manifest::claim_store`]), so no other command
-//! takes it for somebody else's files or removes it.
+//! A sweep's [`fingerprint`] hashes the case text, the grid and the task,
+//! so a store keyed by it never mixes the results of a changed command with
+//! those of an old one.
 
-use crate::C64;
-use crate::output::{OutputError, atomic_write, format_number};
 use crate::scattering::ScatteringSelfEnergy;
-use std::path::{Path, PathBuf};
+use std::collections::BTreeMap;
+use std::sync::Mutex;
+
+/// Why a store could not keep a point (the store's own error, such as a
+/// failed file write, with the path in its message).
+pub type StoreError = Box<dyn std::error::Error + Send + Sync>;
+
+/// The finished points of one sweep, by grid index. Called from the
+/// sweep's worker threads.
+pub trait PointStore: Sync {
+    /// The stored row of point `index`, if it is there and has `width`
+    /// numbers.
+    fn row(&self, index: usize, width: usize) -> Option<Vec<f64>>;
+    /// Keep the row of point `index` durably.
+    fn put_row(&self, index: usize, row: &[f64]) -> Result<(), StoreError>;
+    /// The stored Σ0 of point `index`, if any.
+    fn sigma(&self, index: usize) -> Option<ScatteringSelfEnergy>;
+    /// Keep the Σ0 of point `index` (exact bits).
+    fn put_sigma(&self, index: usize, sigma: &ScatteringSelfEnergy) -> Result<(), StoreError>;
+    /// Forget the Σ0 of point `index` (nothing happens when it is absent).
+    fn remove_sigma(&self, index: usize);
+    /// Where the points are kept, for summaries (a folder, "memory", …).
+    fn location(&self) -> String;
+}
+
+/// A store in memory: points live as long as the value (tests, or a
+/// library user who does not need to resume).
+#[derive(Debug, Default)]
+pub struct MemoryStore {
+    rows: Mutex<BTreeMap<usize, Vec<f64>>>,
+    sigmas: Mutex<BTreeMap<usize, ScatteringSelfEnergy>>,
+}
+
+impl MemoryStore {
+    /// An empty store.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Indices of the stored rows, ascending.
+    pub fn stored_rows(&self) -> Vec<usize> {
+        lock(&self.rows).keys().copied().collect()
+    }
+
+    /// Indices of the stored Σ0, ascending.
+    pub fn stored_sigmas(&self) -> Vec<usize> {
+        lock(&self.sigmas).keys().copied().collect()
+    }
+
+    /// Forget the row of point `index` (as if that point had never
+    /// finished).
+    pub fn remove_row(&self, index: usize) {
+        lock(&self.rows).remove(&index);
+    }
+}
+
+/// The data behind a lock even when another thread panicked holding it
+/// (every write is a single insert or remove, so it is whole).
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(|p| p.into_inner())
+}
+
+impl PointStore for MemoryStore {
+    fn row(&self, index: usize, width: usize) -> Option<Vec<f64>> {
+        lock(&self.rows)
+            .get(&index)
+            .filter(|r| r.len() == width)
+            .cloned()
+    }
+
+    fn put_row(&self, index: usize, row: &[f64]) -> Result<(), StoreError> {
+        lock(&self.rows).insert(index, row.to_vec());
+        Ok(())
+    }
+
+    fn sigma(&self, index: usize) -> Option<ScatteringSelfEnergy> {
+        lock(&self.sigmas).get(&index).cloned()
+    }
+
+    fn put_sigma(&self, index: usize, sigma: &ScatteringSelfEnergy) -> Result<(), StoreError> {
+        lock(&self.sigmas).insert(index, sigma.clone());
+        Ok(())
+    }
+
+    fn remove_sigma(&self, index: usize) {
+        lock(&self.sigmas).remove(&index);
+    }
+
+    fn location(&self) -> String {
+        "memory".into()
+    }
+}
 
 /// FNV-1a, 64 bit: a stable hash (the standard library's hasher is not
-/// guaranteed stable across releases, and the fingerprint names folders
+/// guaranteed stable across releases, and the fingerprint names stores
 /// that outlive the process).
 pub fn fingerprint(parts: &[&str]) -> u64 {
     let mut h: u64 = 0xcbf2_9ce4_8422_2325;
@@ -33,114 +122,16 @@ pub fn fingerprint(parts: &[&str]) -> u64 {
     h
 }
 
-/// Name of the folder holding the point stores inside a result folder.
-pub const STORE_FOLDER: &str = "points";
-
-/// The stored points of one sweep.
-#[derive(Clone, Debug)]
-pub struct PointStore {
-    dir: PathBuf,
-}
-
-impl PointStore {
-    /// Open (creating) the store of sweep `fingerprint` below `result_dir`.
-    pub fn open(result_dir: &Path, fingerprint: u64) -> Result<Self, OutputError> {
-        let dir = result_dir
-            .join(STORE_FOLDER)
-            .join(format!("{fingerprint:016x}"));
-        std::fs::create_dir_all(&dir).map_err(|source| OutputError::Io {
-            action: "creating",
-            path: dir.clone(),
-            source,
-        })?;
-        Ok(Self { dir })
+/// The text of a number inside a fingerprint: the shortest text that
+/// reads back to the same f64. Fingerprints name the stores of earlier
+/// runs, so this text must never change, whatever the display format of
+/// numbers in result files becomes.
+pub(crate) fn exact_text(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v:e}")
+    } else {
+        v.to_string()
     }
-
-    /// The folder holding the point files.
-    pub fn dir(&self) -> &Path {
-        &self.dir
-    }
-
-    fn row_path(&self, index: usize) -> PathBuf {
-        self.dir.join(format!("{index:08}.row"))
-    }
-
-    fn sigma_path(&self, index: usize) -> PathBuf {
-        self.dir.join(format!("{index:08}.sigma"))
-    }
-
-    /// The stored row of point `index`, if it is there and has `width`
-    /// numbers.
-    pub fn row(&self, index: usize, width: usize) -> Option<Vec<f64>> {
-        let text = std::fs::read_to_string(self.row_path(index)).ok()?;
-        let row: Option<Vec<f64>> = text
-            .trim_end()
-            .split(',')
-            .map(|s| s.parse::<f64>().ok())
-            .collect();
-        row.filter(|r| r.len() == width)
-    }
-
-    /// Store the row of point `index` durably.
-    pub fn put_row(&self, index: usize, row: &[f64]) -> Result<(), OutputError> {
-        let mut text = row
-            .iter()
-            .map(|v| format_number(*v))
-            .collect::<Vec<_>>()
-            .join(",");
-        text.push('\n');
-        atomic_write(&self.row_path(index), text.as_bytes())
-    }
-
-    /// The stored Σ0 of point `index`, if any.
-    pub fn sigma(&self, index: usize) -> Option<ScatteringSelfEnergy> {
-        let bytes = std::fs::read(self.sigma_path(index)).ok()?;
-        decode_sigma(&bytes)
-    }
-
-    /// Store the Σ0 of point `index` durably (exact bits).
-    pub fn put_sigma(&self, index: usize, s: &ScatteringSelfEnergy) -> Result<(), OutputError> {
-        atomic_write(&self.sigma_path(index), &encode_sigma(s))
-    }
-
-    /// Forget the Σ0 of point `index` (no error when it is absent).
-    pub fn remove_sigma(&self, index: usize) {
-        let _ = std::fs::remove_file(self.sigma_path(index));
-    }
-}
-
-fn encode_sigma(s: &ScatteringSelfEnergy) -> Vec<u8> {
-    let n = s.inscatter.len();
-    let mut out = Vec::with_capacity(16 + 24 * n);
-    out.extend_from_slice(&(s.sites as u64).to_le_bytes());
-    out.extend_from_slice(&(n as u64).to_le_bytes());
-    for z in &s.retarded {
-        out.extend_from_slice(&z.re.to_le_bytes());
-        out.extend_from_slice(&z.im.to_le_bytes());
-    }
-    for v in &s.inscatter {
-        out.extend_from_slice(&v.to_le_bytes());
-    }
-    out
-}
-
-fn decode_sigma(b: &[u8]) -> Option<ScatteringSelfEnergy> {
-    let word = |i: usize| -> Option<[u8; 8]> { b.get(8 * i..8 * i + 8)?.try_into().ok() };
-    let sites = u64::from_le_bytes(word(0)?) as usize;
-    let n = u64::from_le_bytes(word(1)?) as usize;
-    if b.len() != 16 + 24 * n {
-        return None;
-    }
-    let f = |i: usize| f64::from_le_bytes(word(i).expect("length checked"));
-    let retarded = (0..n)
-        .map(|k| C64::new(f(2 + 2 * k), f(3 + 2 * k)))
-        .collect();
-    let inscatter = (0..n).map(|k| f(2 + 2 * n + k)).collect();
-    Some(ScatteringSelfEnergy {
-        sites,
-        retarded,
-        inscatter,
-    })
 }
 
 #[cfg(test)]
@@ -148,28 +139,29 @@ mod tests {
     use super::*;
 
     #[test]
-    fn sigma_round_trip_is_exact() {
-        let s = ScatteringSelfEnergy {
-            sites: 2,
-            retarded: vec![C64::new(0.1, -1e-300), C64::new(-3.0, 1.0 / 3.0)],
-            inscatter: vec![std::f64::consts::PI, -0.0],
-        };
-        let back = decode_sigma(&encode_sigma(&s)).unwrap();
-        assert_eq!(back.sites, 2);
-        assert_eq!(back.retarded, s.retarded);
-        assert_eq!(
-            back.inscatter
-                .iter()
-                .map(|v| v.to_bits())
-                .collect::<Vec<_>>(),
-            s.inscatter.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
-        );
-        assert!(decode_sigma(&encode_sigma(&s)[..20]).is_none());
-    }
-
-    #[test]
     fn fingerprint_separates_parts() {
         assert_ne!(fingerprint(&["ab", "c"]), fingerprint(&["a", "bc"]));
         assert_eq!(fingerprint(&["x"]), fingerprint(&["x"]));
+    }
+
+    /// The fingerprint of fixed text is pinned: a change here would orphan
+    /// the stores of every earlier sweep.
+    #[test]
+    fn fingerprint_and_number_text_are_stable() {
+        assert_eq!(fingerprint(&["0.1.0", "case"]), 0x311f_3a4b_9520_9caa);
+        assert_eq!(exact_text(0.1), "1e-1");
+        assert_eq!(exact_text(-300.0), "-3e2");
+        assert_eq!(exact_text(f64::NAN), "NaN");
+        assert_eq!(exact_text(1.0 / 3.0).parse::<f64>().unwrap(), 1.0 / 3.0);
+    }
+
+    #[test]
+    fn memory_store_keeps_rows_of_the_asked_width() {
+        let s = MemoryStore::new();
+        s.put_row(3, &[1.0, 2.0]).unwrap();
+        assert_eq!(s.row(3, 2), Some(vec![1.0, 2.0]));
+        assert_eq!(s.row(3, 3), None);
+        assert_eq!(s.row(4, 2), None);
+        assert_eq!(s.stored_rows(), vec![3]);
     }
 }

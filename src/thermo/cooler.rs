@@ -4,7 +4,7 @@
 //! Conventions (the crate manual's): V = V1 − V2 = −(µ1 − µ2)/e applied as
 //! µ1 = µ − eV/2, µ2 = µ + eV/2 around the case's mean zero-bias Fermi level
 //! µ; I = I_1 (conventional current into the device from lead 1). The cold
-//! lead is lead 2 (right) unless [`ColdLead::Left`] is chosen; the other lead
+//! lead is lead 2 (right) unless [`Side::Left`] is chosen; the other lead
 //! is hot. The phonon bath keeps the case's setting (by default the mean of
 //! the lead temperatures).
 //!
@@ -29,26 +29,17 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::generator::{
-    BiasedCase, CurveError, CurveObserver, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved,
-    carnot_cop, ioffe_max_cop, refine_max,
+    BiasedCase, CurveError, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved, carnot_cop,
+    ioffe_max_cop, refine_max,
 };
 use super::of_case::{case_coefficients, reference_point};
 use crate::case::Case;
-use crate::scba::Silent;
-
-/// Which lead is cooled.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Default, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum ColdLead {
-    /// Lead 1.
-    Left,
-    /// Lead 2 (the default).
-    #[default]
-    Right,
-}
+use crate::leads::Side;
+use crate::progress::{Observer, Silent};
 
 /// Settings of a cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerSettings {
     /// Hot lead temperature (K).
     pub hot_k: f64,
@@ -56,15 +47,44 @@ pub struct CoolerSettings {
     pub cold_k: f64,
     /// Voltages on the curve (≥ 3).
     pub points: usize,
-    /// Which lead is cold.
-    pub cold_lead: ColdLead,
+    /// Which lead is cold (the other is hot); usually [`Side::Right`].
+    pub cold_lead: Side,
     /// Also compute the linear-response ZT and Ioffe's maximum COP (four
     /// more solves with scattering, one without).
     pub figure_of_merit: bool,
 }
 
+impl CoolerSettings {
+    /// A curve of `points` voltages between a hot lead at `hot_k` and a
+    /// cold lead at `cold_k` (K); the right lead is the cold one and the
+    /// figure of merit is computed unless changed with the `with_…` methods.
+    pub fn new(hot_k: f64, cold_k: f64, points: usize) -> Self {
+        Self {
+            hot_k,
+            cold_k,
+            points,
+            cold_lead: Side::Right,
+            figure_of_merit: true,
+        }
+    }
+
+    /// These settings with `cold_lead` cold (the other lead is hot).
+    pub fn with_cold_lead(self, cold_lead: Side) -> Self {
+        Self { cold_lead, ..self }
+    }
+
+    /// These settings with or without the linear-response figure of merit.
+    pub fn with_figure_of_merit(self, figure_of_merit: bool) -> Self {
+        Self {
+            figure_of_merit,
+            ..self
+        }
+    }
+}
+
 /// One point of the cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerPoint {
     /// Bias V (V).
     pub voltage_v: f64,
@@ -83,10 +103,10 @@ pub struct CoolerPoint {
 }
 
 impl CoolerPoint {
-    fn from(s: &Solved, cold: ColdLead) -> Self {
+    fn from(s: &Solved, cold: Side) -> Self {
         let (qc, qh) = match cold {
-            ColdLead::Right => (s.obs.heat_current_right_w, s.obs.heat_current_left_w),
-            ColdLead::Left => (s.obs.heat_current_left_w, s.obs.heat_current_right_w),
+            Side::Right => (s.obs.heat_current_right_w, s.obs.heat_current_left_w),
+            Side::Left => (s.obs.heat_current_left_w, s.obs.heat_current_right_w),
         };
         let pin = s.obs.current_a * s.voltage_v;
         Self {
@@ -107,6 +127,7 @@ impl CoolerPoint {
 
 /// The cooler's performance.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct CoolerReport {
     /// Settings used.
     pub settings: CoolerSettings,
@@ -147,13 +168,8 @@ pub struct CoolerReport {
     pub solves: usize,
 }
 
-/// Cooling power and COP of the device between a hot and a cold lead; see
-/// the module notes for conventions.
-pub fn cooler(
-    case: &Case,
-    settings: &CoolerSettings,
-    observer: &mut dyn CurveObserver,
-) -> Result<CoolerReport, CurveError> {
+/// Refuse temperatures and point counts no cooler curve can use.
+fn check_settings(settings: &CoolerSettings) -> Result<(), CurveError> {
     let (th, tc) = (settings.hot_k, settings.cold_k);
     if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th >= tc) {
         return Err(CurveError::Settings(format!(
@@ -166,14 +182,124 @@ pub fn cooler(
             settings.points
         )));
     }
+    Ok(())
+}
+
+/// The cooler point at voltage `v` with `cold` the cold lead.
+fn cooler_point(
+    dev: &mut BiasedCase,
+    v: f64,
+    stage: &'static str,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<CoolerPoint, CurveError> {
+    Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
+}
+
+/// The end of the cooler's voltage range: the polarity that cools (±`h`
+/// tried, `h` = kT/e), then steps of `h` out past the maximum of the
+/// cooling power until it has fallen back by half of its rise above the
+/// zero-bias value `q0` (at least 4 and at most 400 steps).
+fn march_end(
+    dev: &mut BiasedCase,
+    q0: f64,
+    h: f64,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<f64, CurveError> {
+    let up = cooler_point(dev, h, "polarity", cold, observer)?;
+    let down = cooler_point(dev, -h, "polarity", cold, observer)?;
+    let direction = if up.cooling_power_w >= down.cooling_power_w {
+        1.0
+    } else {
+        -1.0
+    };
+    // March out past the maximum.
+    let mut best = q0;
+    let mut best_k = 0usize;
+    let mut k = 1usize;
+    Ok(loop {
+        let p = if k == 1 {
+            if direction > 0.0 { up } else { down }
+        } else {
+            cooler_point(dev, direction * h * k as f64, "range", cold, observer)?
+        };
+        if p.cooling_power_w > best {
+            best = p.cooling_power_w;
+            best_k = k;
+        }
+        let fallen = p.cooling_power_w < best - 0.5 * (best - q0);
+        if (k >= 4 && k > best_k && fallen) || k >= 400 {
+            break direction * h * k as f64;
+        }
+        k += 1;
+    })
+}
+
+/// The cooler curve of `n` voltages from 0 (the solved `zero`) to `end`,
+/// its point of maximum cooling power and its best COP (if anything
+/// cools), each refined between curve points.
+fn cooler_curve(
+    dev: &mut BiasedCase,
+    zero: CoolerPoint,
+    end: f64,
+    n: usize,
+    cold: Side,
+    observer: &mut dyn Observer,
+) -> Result<(Vec<CoolerPoint>, CoolerPoint, Option<CoolerPoint>), CurveError> {
+    let mut curve = Vec::with_capacity(n);
+    for i in 0..n {
+        let v = end * i as f64 / (n - 1) as f64;
+        curve.push(if i == 0 {
+            zero
+        } else {
+            cooler_point(dev, v, "curve", cold, observer)?
+        });
+    }
+    let tol = REFINE_RELATIVE_WIDTH * end.abs();
+    let mut sorted = curve.clone();
+    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    let at_max = refine_max(
+        &sorted,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cooling_power_w,
+        tol,
+        &mut |v| cooler_point(dev, v, "maximum cooling", cold, observer),
+    )?
+    .unwrap_or(zero);
+    // The best COP: the curve and the point of maximum cooling (which lies
+    // in the cooling range whenever anything cools) give the bracket.
+    let mut samples = sorted;
+    samples.push(at_max);
+    samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
+    samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
+    let best_cop = refine_max(
+        &samples,
+        &|p: &CoolerPoint| p.voltage_v,
+        &|p: &CoolerPoint| p.cop,
+        tol,
+        &mut |v| cooler_point(dev, v, "best COP", cold, observer),
+    )?;
+    Ok((curve, at_max, best_cop))
+}
+
+/// Cooling power and COP of the device between a hot and a cold lead; see
+/// the module notes for conventions.
+pub fn cooler(
+    case: &Case,
+    settings: &CoolerSettings,
+    observer: &mut dyn Observer,
+) -> Result<CoolerReport, CurveError> {
+    check_settings(settings)?;
+    let (th, tc) = (settings.hot_k, settings.cold_k);
     let cold = settings.cold_lead;
     let (mu, _) = reference_point(case)?;
     let temps = match cold {
-        ColdLead::Right => LeadTemperatures {
+        Side::Right => LeadTemperatures {
             left_k: th,
             right_k: tc,
         },
-        ColdLead::Left => LeadTemperatures {
+        Side::Left => LeadTemperatures {
             left_k: tc,
             right_k: th,
         },
@@ -194,83 +320,17 @@ pub fn cooler(
         (None, None)
     };
     let mut dev = BiasedCase::new(case, mu, temps)?;
-    let q = |dev: &mut BiasedCase,
-             v: f64,
-             stage: &'static str,
-             observer: &mut dyn CurveObserver|
-     -> Result<CoolerPoint, CurveError> {
-        Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
-    };
     let zero_solved = dev.at(0.0, "zero bias", observer)?;
     let zero = CoolerPoint::from(&zero_solved, cold);
     let h = crate::units::thermal_energy_ev(tm);
-    let up = q(&mut dev, h, "polarity", observer)?;
-    let down = q(&mut dev, -h, "polarity", observer)?;
-    let direction = if up.cooling_power_w >= down.cooling_power_w {
-        1.0
-    } else {
-        -1.0
-    };
-    // March out past the maximum.
-    let q0 = zero.cooling_power_w;
-    let mut best = q0;
-    let mut best_k = 0usize;
-    let mut k = 1usize;
-    let end = loop {
-        let p = if k == 1 {
-            if direction > 0.0 { up } else { down }
-        } else {
-            q(&mut dev, direction * h * k as f64, "range", observer)?
-        };
-        if p.cooling_power_w > best {
-            best = p.cooling_power_w;
-            best_k = k;
-        }
-        let fallen = p.cooling_power_w < best - 0.5 * (best - q0);
-        if (k >= 4 && k > best_k && fallen) || k >= 400 {
-            break direction * h * k as f64;
-        }
-        k += 1;
-    };
+    let end = march_end(&mut dev, zero.cooling_power_w, h, cold, observer)?;
     // The curve and the refinements run on the grid that covers the range
     // the march reached; the zero-bias point is solved again if the grid
     // grew since.
     let zero = CoolerPoint::from(&dev.current(zero_solved, "zero bias", observer)?, cold);
     let q0 = zero.cooling_power_w;
-    let n = settings.points;
-    let mut curve = Vec::with_capacity(n);
-    for i in 0..n {
-        let v = end * i as f64 / (n - 1) as f64;
-        curve.push(if i == 0 {
-            zero
-        } else {
-            q(&mut dev, v, "curve", observer)?
-        });
-    }
-    let tol = REFINE_RELATIVE_WIDTH * end.abs();
-    let mut sorted = curve.clone();
-    sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
-    let at_max = refine_max(
-        &sorted,
-        &|p: &CoolerPoint| p.voltage_v,
-        &|p: &CoolerPoint| p.cooling_power_w,
-        tol,
-        &mut |v| q(&mut dev, v, "maximum cooling", observer),
-    )?
-    .unwrap_or(zero);
-    // The best COP: the curve and the point of maximum cooling (which lies
-    // in the cooling range whenever anything cools) give the bracket.
-    let mut samples = sorted;
-    samples.push(at_max);
-    samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
-    samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
-    let best_cop = refine_max(
-        &samples,
-        &|p: &CoolerPoint| p.voltage_v,
-        &|p: &CoolerPoint| p.cop,
-        tol,
-        &mut |v| q(&mut dev, v, "best COP", observer),
-    )?;
+    let (curve, at_max, best_cop) =
+        cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     Ok(CoolerReport {
         settings: *settings,

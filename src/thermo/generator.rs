@@ -26,9 +26,11 @@ use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::of_case::{CoefficientError, case_coefficients};
 use crate::case::{Case, CaseError};
+use crate::leads::Side;
 use crate::observables::{Observables, observe};
+use crate::progress::{Observer, Silent};
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::{Silent, SolveError, solve};
+use crate::scba::{SolveError, solve};
 
 /// Carnot efficiency 1 − T_c/T_h.
 pub fn carnot_efficiency(hot_k: f64, cold_k: f64) -> f64 {
@@ -109,16 +111,6 @@ pub enum CurveError {
         current_a: f64,
     },
 }
-
-/// Sees each solve of a curve (for progress).
-pub trait CurveObserver {
-    /// A solve at `voltage_v` finished; `stage` says what for.
-    fn solved(&mut self, _stage: &'static str, _voltage_v: f64) {}
-}
-
-/// A curve observer that does nothing.
-pub struct NoProgress;
-impl CurveObserver for NoProgress {}
 
 /// Which lead is which, and the reference Fermi level.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -222,7 +214,7 @@ impl BiasedCase {
         &mut self,
         v: f64,
         stage: &'static str,
-        observer: &mut dyn CurveObserver,
+        observer: &mut dyn Observer,
     ) -> Result<Solved, CurveError> {
         self.cover(v.abs())?;
         let c = self.fixed.with_value("bias.voltage_v", v)?;
@@ -249,7 +241,7 @@ impl BiasedCase {
         if !sol.problem.scattering.is_coherent() {
             self.warm = Some(sol.sigma);
         }
-        observer.solved(stage, v);
+        observer.curve_solved(stage, v);
         Ok(Solved {
             voltage_v: v,
             obs,
@@ -263,7 +255,7 @@ impl BiasedCase {
         &mut self,
         s: Solved,
         stage: &'static str,
-        observer: &mut dyn CurveObserver,
+        observer: &mut dyn Observer,
     ) -> Result<Solved, CurveError> {
         if s.generation == self.generation {
             Ok(s)
@@ -366,6 +358,7 @@ pub(crate) const REFINE_RELATIVE_WIDTH: f64 = 1e-9;
 
 /// Settings of a generator curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct GeneratorSettings {
     /// Hot lead (lead 1, left) temperature (K).
     pub hot_k: f64,
@@ -375,8 +368,21 @@ pub struct GeneratorSettings {
     pub points: usize,
 }
 
+impl GeneratorSettings {
+    /// A curve of `points` load voltages between a hot lead 1 at `hot_k`
+    /// and a cold lead 2 at `cold_k` (K).
+    pub fn new(hot_k: f64, cold_k: f64, points: usize) -> Self {
+        Self {
+            hot_k,
+            cold_k,
+            points,
+        }
+    }
+}
+
 /// One load point.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct LoadPoint {
     /// Load voltage V (V).
     pub voltage_v: f64,
@@ -409,11 +415,12 @@ impl LoadPoint {
 
 /// The generator's performance.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct GeneratorReport {
     /// Settings used.
     pub settings: GeneratorSettings,
     /// Which lead is hot.
-    pub hot_lead: &'static str,
+    pub hot_lead: Side,
     /// Reference Fermi level µ (eV).
     pub fermi_level_ev: f64,
     /// Linear-response coefficients at (µ, (T_h + T_c)/2).
@@ -458,60 +465,17 @@ pub struct GeneratorReport {
     pub solves: usize,
 }
 
-/// Power and efficiency of the device as a generator between a hot lead 1
-/// and a cold lead 2; see the module notes for conventions.
-pub fn generator(
-    case: &Case,
-    settings: &GeneratorSettings,
-    observer: &mut dyn CurveObserver,
-) -> Result<GeneratorReport, CurveError> {
-    let (th, tc) = (settings.hot_k, settings.cold_k);
-    if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th > tc) {
-        return Err(CurveError::Settings(format!(
-            "expected T_hot > T_cold > 0, found T_hot = {th} K, T_cold = {tc} K"
-        )));
-    }
-    if settings.points < 3 {
-        return Err(CurveError::Settings(format!(
-            "expected at least 3 load points, found {}",
-            settings.points
-        )));
-    }
-    let (mu, _) = super::of_case::reference_point(case)?;
-    let tm = 0.5 * (th + tc);
-    let mean = BiasedCase::new(
-        case,
-        mu,
-        LeadTemperatures {
-            left_k: tm,
-            right_k: tm,
-        },
-    )?;
-    let set = case_coefficients(mean.case(), &mut Silent)?;
-    let (coefficients, coefficient_grid) = (set.coefficients, set.grid);
-    let mut dev = BiasedCase::new(
-        case,
-        mu,
-        LeadTemperatures {
-            left_k: th,
-            right_k: tc,
-        },
-    )?;
-    let zero = dev.at(0.0, "short circuit", observer)?;
-    let i0 = zero.obs.current_a;
-    if i0 == 0.0 || !i0.is_finite() {
-        return Err(CurveError::NoCurrent {
-            current_a: i0,
-            hot_k: th,
-            cold_k: tc,
-        });
-    }
-    // Linear response: I = G V + G S ΔT = 0 at V = −S ΔT, ΔT = T1 − T2.
-    let estimate = -coefficients.seebeck_v_per_k * (th - tc);
-    // Power −I·V > 0 needs V of the sign opposite to I(0).
-    let direction = -i0.signum();
-    let kt = crate::units::thermal_energy_ev(tm);
-    let mut b = direction * estimate.abs().max(1e-3 * kt);
+/// The open-circuit voltage V_oc, I(V_oc) = 0: the bracket [0, b] grows
+/// from `first_v` (doubling) until I changes sign from I(0) = `i0`, then
+/// Illinois regula falsi narrows it to 1e-13 of V_oc (or |I| to 1e-13 of
+/// |I(0)|).
+fn open_circuit_voltage(
+    dev: &mut BiasedCase,
+    i0: f64,
+    first_v: f64,
+    observer: &mut dyn Observer,
+) -> Result<f64, CurveError> {
+    let mut b = first_v;
     let (mut a, mut fa) = (0.0, i0);
     let mut fb = dev.at(b, "open circuit", observer)?.obs.current_a;
     let mut expansions = 0;
@@ -559,12 +523,19 @@ pub fn generator(
         }
         voc = if fa.abs() < fb.abs() { a } else { b };
     }
+    Ok(voc)
+}
 
-    // Everything from here on runs on the grid that covers [0, b] ⊇ [0, V_oc]:
-    // the short-circuit point is solved again if the grid grew since.
-    let zero = dev.current(zero, "short circuit", observer)?;
-    let i0 = zero.obs.current_a;
-    let n = settings.points;
+/// The load curve of `n` voltages from 0 (the solved `zero`) to `voc`, and
+/// its points of maximum power and of maximum efficiency, each refined
+/// between curve points.
+fn load_curve(
+    dev: &mut BiasedCase,
+    zero: Solved,
+    voc: f64,
+    n: usize,
+    observer: &mut dyn Observer,
+) -> Result<(Vec<LoadPoint>, LoadPoint, LoadPoint), CurveError> {
     let mut curve = Vec::with_capacity(n);
     for k in 0..n {
         let v = voc * k as f64 / (n - 1) as f64;
@@ -602,10 +573,85 @@ pub fn generator(
         },
     )?
     .unwrap_or(curve[0]);
+    Ok((curve, best_p, best_e))
+}
+
+/// Refuse temperatures and point counts no generator curve can use.
+fn check_settings(settings: &GeneratorSettings) -> Result<(), CurveError> {
+    let (th, tc) = (settings.hot_k, settings.cold_k);
+    if !(th.is_finite() && tc.is_finite() && tc > 0.0 && th > tc) {
+        return Err(CurveError::Settings(format!(
+            "expected T_hot > T_cold > 0, found T_hot = {th} K, T_cold = {tc} K"
+        )));
+    }
+    if settings.points < 3 {
+        return Err(CurveError::Settings(format!(
+            "expected at least 3 load points, found {}",
+            settings.points
+        )));
+    }
+    Ok(())
+}
+
+/// Power and efficiency of the device as a generator between a hot lead 1
+/// and a cold lead 2; see the module notes for conventions.
+pub fn generator(
+    case: &Case,
+    settings: &GeneratorSettings,
+    observer: &mut dyn Observer,
+) -> Result<GeneratorReport, CurveError> {
+    check_settings(settings)?;
+    let (th, tc) = (settings.hot_k, settings.cold_k);
+    let (mu, _) = super::of_case::reference_point(case)?;
+    let tm = 0.5 * (th + tc);
+    let mean = BiasedCase::new(
+        case,
+        mu,
+        LeadTemperatures {
+            left_k: tm,
+            right_k: tm,
+        },
+    )?;
+    let set = case_coefficients(mean.case(), &mut Silent)?;
+    let (coefficients, coefficient_grid) = (set.coefficients, set.grid);
+    let mut dev = BiasedCase::new(
+        case,
+        mu,
+        LeadTemperatures {
+            left_k: th,
+            right_k: tc,
+        },
+    )?;
+    let zero = dev.at(0.0, "short circuit", observer)?;
+    let i0 = zero.obs.current_a;
+    if i0 == 0.0 || !i0.is_finite() {
+        return Err(CurveError::NoCurrent {
+            current_a: i0,
+            hot_k: th,
+            cold_k: tc,
+        });
+    }
+    // Linear response: I = G V + G S ΔT = 0 at V = −S ΔT, ΔT = T1 − T2.
+    let estimate = -coefficients.seebeck_v_per_k * (th - tc);
+    // Power −I·V > 0 needs V of the sign opposite to I(0).
+    let direction = -i0.signum();
+    let kt = crate::units::thermal_energy_ev(tm);
+    let voc = open_circuit_voltage(
+        &mut dev,
+        i0,
+        direction * estimate.abs().max(1e-3 * kt),
+        observer,
+    )?;
+
+    // Everything from here on runs on the grid that covers the bracket of V_oc:
+    // the short-circuit point is solved again if the grid grew since.
+    let zero = dev.current(zero, "short circuit", observer)?;
+    let i0 = zero.obs.current_a;
+    let (curve, best_p, best_e) = load_curve(&mut dev, zero, voc, settings.points, observer)?;
     let zt = coefficients.zt;
     Ok(GeneratorReport {
         settings: *settings,
-        hot_lead: "left",
+        hot_lead: Side::Left,
         fermi_level_ev: mu,
         open_circuit_voltage_estimate_v: estimate,
         open_circuit_voltage_v: voc,

@@ -22,6 +22,7 @@ use crate::units::{ELEMENTARY_CHARGE, LORENZ_NUMBER, PLANCK, fermi_window};
 
 /// Linear-response thermoelectric coefficients at (µ, T).
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct Coefficients {
     /// Reference Fermi level µ (eV).
     pub fermi_level_ev: f64,

@@ -6,7 +6,7 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::response::{
-    OperatingPoint, ResponseMatrix, Split, difference_points, linear_response, operating_point,
+    OperatingPoint, ResponseMatrix, difference_points, linear_response, operating_point,
 };
 use crate::case::{Case, CaseError, ResponseSplit};
 use crate::scba::{Observer, SolveError};
@@ -85,7 +85,10 @@ pub fn case_coefficients(
     let (mu, t) = reference_point(case)?;
     let kph = resolved.phonon_conductance_w_per_k;
     if resolved.problem.scattering.is_coherent() {
-        let eq = case_at(case, &operating_point(mu, t, 0.0, 0.0, Split::Symmetric))?;
+        let eq = case_at(
+            case,
+            &operating_point(mu, t, 0.0, 0.0, ResponseSplit::Symmetric),
+        )?;
         let grid = CommonGrid::choose(std::slice::from_ref(&eq))?;
         let c = super::coherent_coefficients(&eq.resolve()?.problem, kph)?;
         return Ok(CaseCoefficients {
@@ -94,10 +97,7 @@ pub fn case_coefficients(
             grid,
         });
     }
-    let split = match resolved.response_split {
-        ResponseSplit::Symmetric => Split::Symmetric,
-        ResponseSplit::LeftOnly => Split::LeftOnly,
-    };
+    let split = resolved.response_split;
     let runs = difference_points(mu, t, split)
         .iter()
         .map(|op| case_at(case, op))

@@ -12,30 +12,21 @@
 //!
 //! J_Q is the flux conjugate to the symmetric split; with a bath (a third
 //! reservoir) J_Q,1 alone is not, and M12 ≠ M21 by several percent for an
-//! asymmetric device. The option [`Split::LeftOnly`] perturbs lead 1 alone
+//! asymmetric device. The option [`ResponseSplit::LeftOnly`] perturbs lead 1 alone
 //! (lead 2 and the bath at (µ, T)) and uses J_Q = J_Q,1. Each of the four
 //! runs (V = ±δV, ΔT = 0 and ΔT = ±δT, V = 0) is a full converged solve.
 
 use super::Coefficients;
+use crate::case::ResponseSplit;
 use crate::grid::EnergyGrid;
 use crate::model::Problem;
 use crate::observables::observe;
 use crate::scba::{Observer, ScbaParams, ScbaReport, SolveError, solve};
 use crate::units::thermal_energy_ev;
 
-/// How the perturbation is shared between the leads.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, Default)]
-#[serde(rename_all = "kebab-case")]
-pub enum Split {
-    /// µ1,2 = µ ∓ eV/2, T1,2 = T ± ΔT/2; J_Q = (J_Q,1 − J_Q,2)/2.
-    #[default]
-    Symmetric,
-    /// Only lead 1 moves: µ1 = µ − eV, T1 = T + ΔT; J_Q = J_Q,1.
-    LeftOnly,
-}
-
 /// The operating point of one finite-difference run.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[non_exhaustive]
 pub struct OperatingPoint {
     /// Fermi level of lead 1 (eV).
     pub fermi_level_left_ev: f64,
@@ -53,6 +44,7 @@ pub struct OperatingPoint {
 
 /// The response matrix and how it was obtained.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
 pub struct ResponseMatrix {
     /// ∂I/∂V (S).
     pub m11: f64,
@@ -67,7 +59,7 @@ pub struct ResponseMatrix {
     /// Temperature step δT (K).
     pub delta_t_k: f64,
     /// Split used.
-    pub split: Split,
+    pub split: ResponseSplit,
     /// |M12 − M21|/|M12|.
     pub onsager_residual: f64,
     /// True when all four runs converged.
@@ -81,9 +73,15 @@ pub struct ResponseMatrix {
 }
 
 /// Operating point for (V, ΔT) around (µ, T) with a split.
-pub fn operating_point(mu_ev: f64, t_k: f64, v: f64, dt: f64, split: Split) -> OperatingPoint {
+pub fn operating_point(
+    mu_ev: f64,
+    t_k: f64,
+    v: f64,
+    dt: f64,
+    split: ResponseSplit,
+) -> OperatingPoint {
     match split {
-        Split::Symmetric => OperatingPoint {
+        ResponseSplit::Symmetric => OperatingPoint {
             fermi_level_left_ev: mu_ev - 0.5 * v,
             fermi_level_right_ev: mu_ev + 0.5 * v,
             temperature_left_k: t_k + 0.5 * dt,
@@ -91,7 +89,7 @@ pub fn operating_point(mu_ev: f64, t_k: f64, v: f64, dt: f64, split: Split) -> O
             bath_temperature_k: t_k,
             voltage_v: v,
         },
-        Split::LeftOnly => OperatingPoint {
+        ResponseSplit::LeftOnly => OperatingPoint {
             fermi_level_left_ev: mu_ev - v,
             fermi_level_right_ev: mu_ev,
             temperature_left_k: t_k + dt,
@@ -112,7 +110,11 @@ pub fn difference_steps(temperature_k: f64) -> (f64, f64) {
 
 /// The operating points of the four runs in the order they are solved:
 /// V = +δV, −δV (ΔT = 0), then ΔT = +δT, −δT (V = 0).
-pub fn difference_points(mu_ev: f64, temperature_k: f64, split: Split) -> [OperatingPoint; 4] {
+pub fn difference_points(
+    mu_ev: f64,
+    temperature_k: f64,
+    split: ResponseSplit,
+) -> [OperatingPoint; 4] {
     let (dv, dt) = difference_steps(temperature_k);
     [(dv, 0.0), (-dv, 0.0), (0.0, dt), (0.0, -dt)]
         .map(|(v, d)| operating_point(mu_ev, temperature_k, v, d, split))
@@ -159,6 +161,55 @@ fn grid_words(p: &Problem) -> String {
     )
 }
 
+/// Run `run` of a linear response must share the first run's energy grid
+/// and snapped phonon energies.
+fn same_grid(first: &Problem, problem: &Problem, run: usize) -> Result<(), ResponseError> {
+    let same_phonons = first.scattering.phonons.len() == problem.scattering.phonons.len()
+        && first
+            .scattering
+            .phonons
+            .iter()
+            .zip(&problem.scattering.phonons)
+            .all(|(a, b)| a.energy_ev == b.energy_ev && a.steps == b.steps);
+    if first.grid != problem.grid || !same_phonons {
+        return Err(ResponseError::GridMoved {
+            first: grid_words(first),
+            other: grid_words(problem),
+            run,
+        });
+    }
+    Ok(())
+}
+
+/// G, S, Π and κ_e from the response matrix: G = M11, S = M12/(T M11),
+/// Π = M21/M11, κ_e = (M22 − M12 M21/M11)/T.
+fn coefficients_of(
+    matrix: &ResponseMatrix,
+    mu_ev: f64,
+    temperature_k: f64,
+    phonon_conductance_w_per_k: f64,
+) -> Coefficients {
+    let (m11, m12, m21, m22) = (matrix.m11, matrix.m12, matrix.m21, matrix.m22);
+    let g = m11;
+    let s = m12 / (temperature_k * m11);
+    let pi = m21 / m11;
+    let kappa = (m22 - m12 * m21 / m11) / temperature_k;
+    Coefficients::from_parts(
+        mu_ev,
+        temperature_k,
+        g,
+        s,
+        pi,
+        kappa,
+        phonon_conductance_w_per_k,
+        matrix.onsager_residual,
+        match matrix.split {
+            ResponseSplit::Symmetric => "finite differences, symmetric split",
+            ResponseSplit::LeftOnly => "finite differences, lead 1 only",
+        },
+    )
+}
+
 /// Linear-response coefficients by finite differences. `build` returns the
 /// problem at an operating point (it must apply the voltage to the device
 /// potential as the case prescribes). δV = 1e-3 kT/e and δT = 1e-3 T keep
@@ -172,7 +223,7 @@ pub fn linear_response(
     build: &dyn Fn(&OperatingPoint) -> Result<Problem, String>,
     mu_ev: f64,
     temperature_k: f64,
-    split: Split,
+    split: ResponseSplit,
     params: &ScbaParams,
     phonon_conductance_w_per_k: f64,
     observer: &mut dyn Observer,
@@ -190,27 +241,13 @@ pub fn linear_response(
         let problem = build(op).map_err(ResponseError::Build)?;
         match &first {
             None => first = Some(problem.clone()),
-            Some(f) => {
-                let same_phonons = f.scattering.phonons.len() == problem.scattering.phonons.len()
-                    && f.scattering
-                        .phonons
-                        .iter()
-                        .zip(&problem.scattering.phonons)
-                        .all(|(a, b)| a.energy_ev == b.energy_ev && a.steps == b.steps);
-                if f.grid != problem.grid || !same_phonons {
-                    return Err(ResponseError::GridMoved {
-                        first: grid_words(f),
-                        other: grid_words(&problem),
-                        run: reports.len() + 1,
-                    });
-                }
-            }
+            Some(f) => same_grid(f, &problem, reports.len() + 1)?,
         }
         let sol = solve(&problem, &tight, warm.as_ref(), observer)?;
         let o = observe(&sol);
         let jq = match split {
-            Split::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
-            Split::LeftOnly => o.heat_current_left_w,
+            ResponseSplit::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
+            ResponseSplit::LeftOnly => o.heat_current_left_w,
         };
         if !problem.scattering.is_coherent() {
             warm = Some(sol.sigma.clone());
@@ -247,23 +284,6 @@ pub fn linear_response(
             .map(|m| m.energy_ev)
             .collect(),
     };
-    let g = m11;
-    let s = m12 / (temperature_k * m11);
-    let pi = m21 / m11;
-    let kappa = (m22 - m12 * m21 / m11) / temperature_k;
-    let c = Coefficients::from_parts(
-        mu_ev,
-        temperature_k,
-        g,
-        s,
-        pi,
-        kappa,
-        phonon_conductance_w_per_k,
-        onsager,
-        match split {
-            Split::Symmetric => "finite differences, symmetric split",
-            Split::LeftOnly => "finite differences, lead 1 only",
-        },
-    );
+    let c = coefficients_of(&matrix, mu_ev, temperature_k, phonon_conductance_w_per_k);
     Ok((c, matrix, reports))
 }

@@ -1,0 +1,64 @@
+//! Progress of long computations, reported through one observer trait.
+//!
+//! The Born loop reports each iteration, generator and cooler curves each
+//! solve, sweeps each finished grid point. Solvers never print: whoever
+//! runs them passes an [`Observer`] (the command line draws progress bars
+//! with it; tests and library users pass [`Silent`]). Every method has a
+//! default that does nothing, so an observer implements only the events it
+//! wants.
+
+/// What one Born iteration did.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
+pub struct IterationRecord {
+    /// Iteration number (1-based).
+    pub iteration: usize,
+    /// Relative change of (Σ^in_0, Σ^out_0) between input and output.
+    pub residual: f64,
+    /// Current from the left lead with the input Σ0 (A).
+    pub current_left_a: f64,
+    /// Current from the right lead with the input Σ0 (A).
+    pub current_right_a: f64,
+    /// Largest change of a terminal current since the last iteration,
+    /// relative to tol·|I| + floor (converged when ≤ 1).
+    pub current_change: f64,
+    /// Which update was used next ("linear", "anderson", "restart").
+    pub step: &'static str,
+}
+
+/// A finished point of a sweep, reported after the point is stored.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[non_exhaustive]
+pub struct PointEvent {
+    /// Grid index of the point.
+    pub index: usize,
+    /// Points finished so far (this run and earlier runs).
+    pub finished: usize,
+    /// Points in the grid.
+    pub total: usize,
+    /// True when computed in this run, false when found in the store.
+    pub computed: bool,
+    /// Whether the point's Born loop converged.
+    pub converged: bool,
+}
+
+/// Sees the progress of long computations (progress bars, logs).
+///
+/// A sweep runs its points on several threads but hands its events to the
+/// observer one at a time (it holds the observer behind a lock), so an
+/// implementation needs no synchronisation of its own; it must be `Send`
+/// to be given to a sweep.
+pub trait Observer {
+    /// A Born iteration finished.
+    fn iteration(&mut self, _record: &IterationRecord) {}
+    /// A solve of a generator or cooler curve at `voltage_v` (V) finished;
+    /// `stage` says what it was for ("open circuit", "curve", …).
+    fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {}
+    /// A sweep point is stored (computed now or found from an earlier run).
+    fn point_finished(&mut self, _event: &PointEvent) {}
+}
+
+/// The observer that ignores every event.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Silent;
+impl Observer for Silent {}
