@@ -241,3 +241,39 @@ pub(crate) fn pad_to(blocks: &mut [Mat<C64>], b: usize) {
         }
     }
 }
+
+/// Block files read once per case: the first validation reads them from
+/// disk, every later one (a case changed by [`super::Case::with`]) takes
+/// them from here. Cloning shares the loaded blocks.
+#[derive(Clone, Debug)]
+pub(crate) struct BlockFiles {
+    /// Folder against which relative file names resolve.
+    base_dir: std::path::PathBuf,
+    /// Files read so far, by full path.
+    loaded: Vec<(std::path::PathBuf, std::sync::Arc<BlockFile>)>,
+}
+
+impl BlockFiles {
+    /// No file read yet; names resolve against `base_dir`.
+    pub fn new(base_dir: &Path) -> Self {
+        Self {
+            base_dir: base_dir.to_path_buf(),
+            loaded: Vec::new(),
+        }
+    }
+
+    /// The full path of a file named in the case.
+    pub fn path(&self, name: &str) -> std::path::PathBuf {
+        self.base_dir.join(name)
+    }
+
+    /// The blocks of `path`, read from disk the first time only.
+    pub fn get(&mut self, path: &Path) -> Result<std::sync::Arc<BlockFile>, String> {
+        if let Some((_, f)) = self.loaded.iter().find(|(p, _)| p == path) {
+            return Ok(f.clone());
+        }
+        let f = std::sync::Arc::new(read_blocks(path)?);
+        self.loaded.push((path.to_path_buf(), f.clone()));
+        Ok(f)
+    }
+}
