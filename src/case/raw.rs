@@ -178,12 +178,13 @@ pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, C
     };
     toml::from_str::<RawCase>(text).map_err(|e| {
         // The shape check above refuses every unknown key and wrong type
-        // with its own message; this is the fallback for anything it does
-        // not cover, passed on as the library words it.
+        // with its own message; this is the fallback for a document that
+        // still does not fit the raw structs, passed on as the library
+        // words it.
         let span = e.span();
         let path = span.as_ref().and_then(|s| index.path_at(s)).map(|(_, p)| p);
         ctx.error(
-            CaseErrorKind::Invalid,
+            CaseErrorKind::WrongType,
             span,
             path.as_deref(),
             e.message().trim().to_string(),
