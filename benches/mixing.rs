@@ -8,7 +8,7 @@
 //!
 //! Run: `cargo bench --bench mixing`
 
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use qheat::scba::{self, EnergyOrder, Mixing, Silent};
 use std::path::Path;
 
@@ -18,7 +18,7 @@ fn main() {
     println!("case: {}", path.display());
     table(&case);
     println!("\ncase: the same with phonon.0.coupling_ev2 = 3e-2");
-    table(&case.with_value("phonon.0.coupling_ev2", 3e-2).unwrap());
+    table(&case.with(CaseKey::PhononCoupling(0), 3e-2).unwrap());
 }
 
 fn table(case: &Case) {

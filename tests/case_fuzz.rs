@@ -4,7 +4,7 @@
 #![allow(clippy::needless_range_loop)]
 
 use proptest::prelude::*;
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use std::path::Path;
 
 const VALID: &str = r#"name = "fuzz"
@@ -112,7 +112,7 @@ fn run(text: &str) {
         let r = case.resolve().expect("a loaded case resolves");
         let _ = r.describe();
         let _ = case.to_toml_string();
-        let _ = case.with_value("bias.voltage_v", 0.02);
+        let _ = case.with(CaseKey::BiasVoltage, 0.02);
     }
 }
 
@@ -139,11 +139,11 @@ proptest! {
     }
 
     #[test]
-    fn with_value_never_panics(key in 0usize..60, value in prop_oneof![Just(f64::NAN), Just(f64::INFINITY), Just(0.0), Just(-1.0), Just(1e300), -10.0f64..10.0, Just(1e-300)]) {
+    fn with_never_panics(key in 0usize..60, value in prop_oneof![Just(f64::NAN), Just(f64::INFINITY), Just(0.0), Just(-1.0), Just(1e300), -10.0f64..10.0, Just(1e-300)]) {
         let case = Case::parse(VALID, "fuzz.toml", Path::new(".")).unwrap();
-        let keys = case.numeric_keys();
-        let k = &keys[key % keys.len()];
-        if let Ok(c) = case.with_value(k, value) {
+        let keys = case.case_keys();
+        let k = keys[key % keys.len()];
+        if let Ok(c) = case.with(k, value) {
             c.resolve().unwrap();
         }
     }

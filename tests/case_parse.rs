@@ -3,9 +3,9 @@
 
 #![allow(clippy::needless_range_loop)]
 
-use qheat::case::{Case, CaseErrorKind, Resolved, ResponseSplit};
+use qheat::case::{Case, CaseErrorKind, CaseKey, Resolved, ResponseSplit};
 use qheat::device::{BiasDrop, strip_mode_energy};
-use qheat::leads::Lead;
+use qheat::leads::{Lead, Side};
 use qheat::scba::Mixing;
 use qheat::units::{hopping_ev, thermal_energy_ev};
 use std::path::Path;
@@ -141,7 +141,7 @@ fn round_trip_through_text_gives_the_same_problem() {
         assert_eq!(a.problem.device.potential_ev, b.problem.device.potential_ev);
         assert_eq!(a.describe(), b.describe());
         // and through an edit, whose text is generated
-        let edited = case.with_value("bias.voltage_v", 0.02).unwrap();
+        let edited = case.with(CaseKey::BiasVoltage, 0.02).unwrap();
         let text = edited.to_toml_string();
         assert!(
             text.starts_with('#') && text.contains("bias.voltage_v = 0.02"),
@@ -157,41 +157,43 @@ fn round_trip_through_text_gives_the_same_problem() {
 }
 
 #[test]
-fn with_value_changes_the_result() {
+fn with_changes_the_result() {
     let case = with("");
-    let biased = case.with_value("bias.voltage_v", 0.1).unwrap();
+    let biased = case.with(CaseKey::BiasVoltage, 0.1).unwrap();
     let r = biased.resolve().unwrap();
     // µL = µL0 − V/2, µR = µR0 + V/2
     assert!((r.problem.left.fermi_level_ev - 0.0).abs() < 1e-15);
     assert!((r.problem.right.fermi_level_ev - 0.1).abs() < 1e-15);
     assert!((r.problem.voltage_v() - 0.1).abs() < 1e-15);
     assert_eq!(r.zero_bias_fermi_levels_ev, (0.05, 0.05));
-    assert_eq!(biased.edits(), &[("bias.voltage_v".to_string(), 0.1)]);
+    assert_eq!(biased.edits(), &[(CaseKey::BiasVoltage, 0.1)]);
 
-    let hot = case.with_value("leads.left.temperature_k", 350.0).unwrap();
+    let hot = case
+        .with(CaseKey::LeadTemperature(Side::Left), 350.0)
+        .unwrap();
     assert_eq!(hot.resolve().unwrap().problem.left.temperature_k, 350.0);
 
-    let taller = case.with_value("device.region.0.offset_ev", 0.2).unwrap();
+    let taller = case.with(CaseKey::RegionOffset(0), 0.2).unwrap();
     assert_eq!(
         taller.resolve().unwrap().problem.device.potential_ev[20],
         0.2
     );
 
-    let longer = case.with_value("device.length_nm", 30.0).unwrap();
+    let longer = case.with(CaseKey::DeviceLength, 30.0).unwrap();
     assert_eq!(longer.resolve().unwrap().problem.device.cells(), 60);
 
-    let finer = case.with_value("grid.step_ev", 0.001).unwrap();
+    let finer = case.with(CaseKey::GridStep, 0.001).unwrap();
     assert_eq!(finer.resolve().unwrap().problem.grid.step_ev, 0.001);
 
     let ph = with(
         "[[phonon]]\nenergy_ev = 0.03\ncoupling_ev2 = 1e-3\n[[phonon]]\nenergy_ev = 0.05\ncoupling_ev2 = 1e-3\n",
     );
-    let stronger = ph.with_value("phonon.1.coupling_ev2", 4e-3).unwrap();
+    let stronger = ph.with(CaseKey::PhononCoupling(1), 4e-3).unwrap();
     let modes = &stronger.resolve().unwrap().problem.scattering.phonons;
     assert!(modes[1].coupling_ev2.iter().all(|&d| d == 4e-3));
     assert!(modes[0].coupling_ev2.iter().all(|&d| d == 1e-3));
 
-    let wide = case.with_value("device.region.0.to_nm", 14.0).unwrap();
+    let wide = case.with(CaseKey::RegionTo(0), 14.0).unwrap();
     let raised = wide
         .resolve()
         .unwrap()
@@ -205,31 +207,32 @@ fn with_value_changes_the_result() {
 
     // edits chain
     let both = biased
-        .with_value("leads.right.fermi_level_ev", 0.06)
+        .with(CaseKey::LeadFermiLevel(Side::Right), 0.06)
         .unwrap();
     assert_eq!(both.edits().len(), 2);
     assert!((both.resolve().unwrap().problem.right.fermi_level_ev - 0.11).abs() < 1e-15);
 }
 
 #[test]
-fn with_value_refuses_unknown_keys_and_bad_values() {
+fn with_refuses_unknown_keys_and_bad_values() {
     let case = with("");
-    let e = case.with_value("bias.voltge_v", 0.1).unwrap_err();
+    // Names are read into typed keys once; an unknown one gets the close
+    // matches among this case's keys.
+    let bad = "bias.voltge_v".parse::<CaseKey>().unwrap_err();
+    let e = case.unknown_key_error(&bad);
     assert_eq!(e.kind, CaseErrorKind::UnknownKey);
     assert_eq!(e.suggestion.as_deref(), Some("bias.voltage_v"), "{e}");
     assert!(e.to_string().contains("bias.voltage_v"), "{e}");
 
-    let e = case
-        .with_value("device.region.3.offset_ev", 0.1)
-        .unwrap_err();
+    let e = case.with(CaseKey::RegionOffset(3), 0.1).unwrap_err();
     assert!(e.to_string().contains("has 1 entries"), "{e}");
 
-    let e = case.with_value("device.widht_sites", 3.0).unwrap_err();
+    let e = case.unknown_key_error(&"device.widht_sites".parse::<CaseKey>().unwrap_err());
     assert_eq!(e.suggestion.as_deref(), Some("device.width_sites"), "{e}");
 
     // a value that fails validation names the key and the edit
     let e = case
-        .with_value("leads.left.temperature_k", -4.0)
+        .with(CaseKey::LeadTemperature(Side::Left), -4.0)
         .unwrap_err();
     let s = e.to_string();
     assert!(
@@ -239,11 +242,11 @@ fn with_value_refuses_unknown_keys_and_bad_values() {
     assert!(s.contains("after setting"), "{s}");
     assert_eq!(e.location, None);
 
-    let e = case.with_value("spin_degeneracy", 1.5).unwrap_err();
+    let e = case.with(CaseKey::SpinDegeneracy, 1.5).unwrap_err();
     assert!(e.to_string().contains("whole number"), "{e}");
-    assert!(case.with_value("spin_degeneracy", 1.0).is_ok());
+    assert!(case.with(CaseKey::SpinDegeneracy, 1.0).is_ok());
 
-    let e = case.with_value("bias.voltage_v", f64::NAN).unwrap_err();
+    let e = case.with(CaseKey::BiasVoltage, f64::NAN).unwrap_err();
     assert!(e.to_string().contains("finite"), "{e}");
 }
 
@@ -338,23 +341,21 @@ fn a_coarse_phonon_snap_is_an_error_unless_allowed() {
 }
 
 #[test]
-fn grid_keys_set_by_with_value_keep_the_snap_rules() {
-    // Linear-response runs set the grid explicitly through with_value: the
+fn grid_keys_set_by_with_keep_the_snap_rules() {
+    // Linear-response runs set the grid explicitly through `with`: the
     // permission key survives the regenerated document, and without it the
     // same edit is refused with the key named.
     let phonon = "[[phonon]]\nenergy_ev = 0.036\ncoupling_ev2 = 1e-3\n";
     let strict = with(&format!("[grid]\nstep_ev = 0.002\n{phonon}"));
     for (k, v) in [
-        ("grid.min_ev", -0.05),
-        ("grid.max_ev", 0.6),
-        ("grid.step_ev", 0.004),
+        (CaseKey::GridMin, -0.05),
+        (CaseKey::GridMax, 0.6),
+        (CaseKey::GridStep, 0.004),
     ] {
-        strict
-            .with_value(k, v)
-            .unwrap_or_else(|e| panic!("{k}: {e}"));
+        strict.with(k, v).unwrap_or_else(|e| panic!("{k}: {e}"));
     }
     // 36 meV on a 10 meV grid: 4 steps = 40 meV, +11 %.
-    let err = strict.with_value("grid.step_ev", 0.01).unwrap_err();
+    let err = strict.with(CaseKey::GridStep, 0.01).unwrap_err();
     assert_eq!(err.key.as_deref(), Some("phonon.0.energy_ev"), "{err}");
     assert!(
         err.to_string().contains("after setting `grid.step_ev`"),
@@ -364,7 +365,7 @@ fn grid_keys_set_by_with_value_keep_the_snap_rules() {
         "[grid]\nstep_ev = 0.002\nallow_coarse_phonon_snap = true\n{phonon}"
     ));
     let r = allowed
-        .with_value("grid.step_ev", 0.01)
+        .with(CaseKey::GridStep, 0.01)
         .unwrap()
         .resolve()
         .unwrap();

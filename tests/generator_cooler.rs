@@ -1,7 +1,7 @@
 //! Generator and cooler curves: the closed-form bounds, a narrow resonant
 //! level in linear response, and a thermionic barrier as a cooler.
 
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use qheat::leads::Side;
 use qheat::progress::Silent;
 use qheat::thermo::cooler::{CoolerReport, CoolerSettings, cooler};
@@ -188,13 +188,13 @@ fn thermionic_cooler_has_one_maximum() {
 #[test]
 fn cooler_cop_never_beats_carnot() {
     let phonon = barrier()
-        .with_value("grid.step_ev", 0.004)
+        .with(CaseKey::GridStep, 0.004)
         .unwrap()
-        .with_value("device.length_nm", 20.0)
+        .with(CaseKey::DeviceLength, 20.0)
         .unwrap()
-        .with_value("device.region.0.from_nm", 8.0)
+        .with(CaseKey::RegionFrom(0), 8.0)
         .unwrap()
-        .with_value("device.region.0.to_nm", 12.0)
+        .with(CaseKey::RegionTo(0), 12.0)
         .unwrap();
     let text = phonon.to_toml_string()
         + "\n[[phonon]]\nenergy_ev = 0.036\ncoupling_ev2 = 2e-3\nfrom_nm = 0.0\nto_nm = 20.0\n";

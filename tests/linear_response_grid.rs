@@ -9,7 +9,7 @@
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, TestRng, TestRunner};
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use qheat::scba::Silent;
 use qheat::thermo::generator::{GeneratorSettings, carnot_efficiency, generator};
 use qheat::thermo::of_case::{CaseCoefficients, case_coefficients};
@@ -178,11 +178,11 @@ fn default_grid_agrees_with_the_explicit_common_grid() {
         );
         assert!((g.phonon_energies_ev[0] - hw).abs() < 1e-12 * hw);
         let explicit = case
-            .with_value("grid.step_ev", step)
+            .with(CaseKey::GridStep, step)
             .unwrap()
-            .with_value("grid.min_ev", min)
+            .with(CaseKey::GridMin, min)
             .unwrap()
-            .with_value("grid.max_ev", max)
+            .with(CaseKey::GridMax, max)
             .unwrap();
         let reference = case_coefficients(&explicit, &mut Silent).unwrap();
         assert!(

@@ -1,7 +1,7 @@
 //! Determinism across thread counts, warm starts and mixing, on the demo
 //! cases. Speed itself is measured in `benches/`, not here.
 
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use qheat::scba::{self, Mixing, ScbaParams, Silent, Solution};
 use std::path::Path;
 
@@ -122,7 +122,7 @@ fn warm_start_from_a_neighbouring_bias_saves_iterations() {
     let r0 = case.resolve().unwrap();
     let near = scba::solve(&r0.problem, &r0.scba, None, &mut Silent).unwrap();
     let r1 = case
-        .with_value("bias.voltage_v", -0.082)
+        .with(CaseKey::BiasVoltage, -0.082)
         .unwrap()
         .resolve()
         .unwrap();

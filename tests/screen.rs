@@ -1,7 +1,8 @@
 //! Screening: the ranking over a grid equals the one from running the
 //! coefficients on each point separately; the CLI writes both tables.
 
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
+use qheat::leads::Side;
 use qheat::scba::Silent;
 use qheat::sweep::screen::{Rank, ScreenTask, ranking};
 use qheat::sweep::{Axis, Grid, MemoryStore, SweepOptions, run};
@@ -44,11 +45,11 @@ fn ranking_equals_pointwise_coefficients() {
             unreachable!()
         };
         let c = case
-            .with_value("device.region.0.offset_ev", h)
+            .with(CaseKey::RegionOffset(0), h)
             .unwrap()
-            .with_value("leads.left.fermi_level_ev", mu)
+            .with(CaseKey::LeadFermiLevel(Side::Left), mu)
             .unwrap()
-            .with_value("leads.right.fermi_level_ev", mu)
+            .with(CaseKey::LeadFermiLevel(Side::Right), mu)
             .unwrap();
         let k = case_coefficients(&c, &mut Silent).unwrap().coefficients;
         assert_eq!(table.rows[i][table.column("zt").unwrap()], k.zt);

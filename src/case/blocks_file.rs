@@ -117,6 +117,9 @@ struct Element {
     im_ev: f64,
 }
 
+/// The column names a csv block file must have, in order.
+const CSV_HEADER: [&str; 5] = ["cell", "row", "col", "re_ev", "im_ev"];
+
 fn read_csv(path: &Path) -> Result<BlockFile, String> {
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
@@ -130,69 +133,79 @@ fn read_csv(path: &Path) -> Result<BlockFile, String> {
         .iter()
         .map(str::to_string)
         .collect();
-    let want = ["cell", "row", "col", "re_ev", "im_ev"];
-    if header != want {
+    if header != CSV_HEADER {
         return Err(format!(
             "file `{}` has header `{}`; expected `{}`",
             path.display(),
             header.join(","),
-            want.join(",")
+            CSV_HEADER.join(",")
         ));
     }
     let mut elements = Vec::new();
     for rec in reader.records() {
         let rec = rec.map_err(|e| format!("file `{}`: {e}", path.display()))?;
-        let line = rec.position().map_or(0, |p| p.line());
-        let at = |col: usize| {
-            format!(
-                "file `{}` line {line}, column `{}`",
-                path.display(),
-                want[col]
-            )
-        };
-        if rec.len() != want.len() {
-            return Err(format!(
-                "file `{}` line {line}: expected {} fields ({}), found {}",
-                path.display(),
-                want.len(),
-                want.join(","),
-                rec.len()
-            ));
-        }
-        let index = |col: usize| -> Result<usize, String> {
-            rec[col].parse::<usize>().map_err(|_| {
-                format!(
-                    "{}: expected a whole number ≥ 0, found `{}`",
-                    at(col),
-                    &rec[col]
-                )
-            })
-        };
-        let value = |col: usize| -> Result<f64, String> {
-            match rec[col].parse::<f64>() {
-                Ok(x) if x.is_finite() => Ok(x),
-                Ok(x) => Err(format!(
-                    "{}: expected a finite number, found a non-finite value (NaN or infinity) `{x}`",
-                    at(col)
-                )),
-                Err(_) => Err(format!(
-                    "{}: expected a number in eV, found `{}`",
-                    at(col),
-                    &rec[col]
-                )),
-            }
-        };
-        elements.push(Element {
-            cell: index(0)?,
-            row: index(1)?,
-            col: index(2)?,
-            re_ev: value(3)?,
-            im_ev: value(4)?,
-        });
+        elements.push(csv_element(&rec, path)?);
         if elements.len() > MAX_ELEMENTS {
             return Err(format!("file `{}` has too many records", path.display()));
         }
     }
+    csv_blocks(&elements, path)
+}
+
+/// One record of a csv block file: three indices and a complex value.
+fn csv_element(rec: &csv::StringRecord, path: &Path) -> Result<Element, String> {
+    let want = CSV_HEADER;
+    let line = rec.position().map_or(0, |p| p.line());
+    let at = |col: usize| {
+        format!(
+            "file `{}` line {line}, column `{}`",
+            path.display(),
+            want[col]
+        )
+    };
+    if rec.len() != want.len() {
+        return Err(format!(
+            "file `{}` line {line}: expected {} fields ({}), found {}",
+            path.display(),
+            want.len(),
+            want.join(","),
+            rec.len()
+        ));
+    }
+    let index = |col: usize| -> Result<usize, String> {
+        rec[col].parse::<usize>().map_err(|_| {
+            format!(
+                "{}: expected a whole number ≥ 0, found `{}`",
+                at(col),
+                &rec[col]
+            )
+        })
+    };
+    let value = |col: usize| -> Result<f64, String> {
+        match rec[col].parse::<f64>() {
+            Ok(x) if x.is_finite() => Ok(x),
+            Ok(x) => Err(format!(
+                "{}: expected a finite number, found a non-finite value (NaN or infinity) `{x}`",
+                at(col)
+            )),
+            Err(_) => Err(format!(
+                "{}: expected a number in eV, found `{}`",
+                at(col),
+                &rec[col]
+            )),
+        }
+    };
+    Ok(Element {
+        cell: index(0)?,
+        row: index(1)?,
+        col: index(2)?,
+        re_ev: value(3)?,
+        im_ev: value(4)?,
+    })
+}
+
+/// The blocks the listed elements fill (elements not listed are zero).
+fn csv_blocks(elements: &[Element], path: &Path) -> Result<BlockFile, String> {
     if elements.is_empty() {
         return Err(format!("file `{}` lists no elements", path.display()));
     }
@@ -206,7 +219,7 @@ fn read_csv(path: &Path) -> Result<BlockFile, String> {
     }
     let mut blocks = vec![Mat::<C64>::zeros(b, b); n];
     let mut seen = std::collections::HashSet::new();
-    for e in &elements {
+    for e in elements {
         if !seen.insert((e.cell, e.row, e.col)) {
             return Err(format!(
                 "file `{}` lists element (cell {}, row {}, col {}) twice",
@@ -239,5 +252,41 @@ pub(crate) fn pad_to(blocks: &mut [Mat<C64>], b: usize) {
                 }
             });
         }
+    }
+}
+
+/// Block files read once per case: the first validation reads them from
+/// disk, every later one (a case changed by [`super::Case::with`]) takes
+/// them from here. Cloning shares the loaded blocks.
+#[derive(Clone, Debug)]
+pub(crate) struct BlockFiles {
+    /// Folder against which relative file names resolve.
+    base_dir: std::path::PathBuf,
+    /// Files read so far, by full path.
+    loaded: Vec<(std::path::PathBuf, std::sync::Arc<BlockFile>)>,
+}
+
+impl BlockFiles {
+    /// No file read yet; names resolve against `base_dir`.
+    pub fn new(base_dir: &Path) -> Self {
+        Self {
+            base_dir: base_dir.to_path_buf(),
+            loaded: Vec::new(),
+        }
+    }
+
+    /// The full path of a file named in the case.
+    pub fn path(&self, name: &str) -> std::path::PathBuf {
+        self.base_dir.join(name)
+    }
+
+    /// The blocks of `path`, read from disk the first time only.
+    pub fn get(&mut self, path: &Path) -> Result<std::sync::Arc<BlockFile>, String> {
+        if let Some((_, f)) = self.loaded.iter().find(|(p, _)| p == path) {
+            return Ok(f.clone());
+        }
+        let f = std::sync::Arc::new(read_blocks(path)?);
+        self.loaded.push((path.to_path_buf(), f.clone()));
+        Ok(f)
     }
 }

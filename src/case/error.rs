@@ -31,8 +31,8 @@ pub enum CaseErrorKind {
 ///
 /// Display: `FILE:LINE:COL: key `dotted.key`: expected …, found …` followed
 /// by `; did you mean `…`?` when a close match exists. The position is left
-/// out when it is unknown (for example after [`super::Case::with_value`],
-/// whose text is generated).
+/// out when it is unknown (for example after [`super::Case::with`], whose
+/// values have no place in the file).
 #[derive(Clone, Debug, PartialEq)]
 pub struct CaseError {
     /// The case file (or the origin given to [`super::Case::parse`]).

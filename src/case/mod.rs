@@ -9,32 +9,10 @@
 //!
 //! # Keys
 //!
-//! | key | meaning | default |
-//! |---|---|---|
-//! | `name` | case name | required |
-//! | `spin_degeneracy` | 1 or 2 | 2 |
-//! | `device.kind` | `"chain"`, `"strip"` or `"blocks"` | required |
-//! | `device.spacing_nm` | cell spacing a | required |
-//! | `device.length_nm` | chain/strip: N·a (N = length/spacing must be whole) | required |
-//! | `device.effective_mass` | chain/strip: m*/m0; t = ħ²/(2 m* a²) | required |
-//! | `device.band_edge_ev` | chain/strip: Ec | 0 |
-//! | `device.width_sites` | strip: W | required |
-//! | `device.onsite_file`, `device.coupling_file` | blocks: .npy or .csv, relative to the case file | required |
-//! | `device.cells` | blocks: N when the on-site file holds one (b, b) block | — |
-//! | `[[device.region]]` `from_nm`, `to_nm`, `offset_ev` or `start_ev` + `end_ev` | potential regions, summed | none |
-//! | `leads.left/right.fermi_level_ev`, `temperature_k` | zero-bias µ0, T | required |
-//! | `leads.*.band_edge_ev`, `effective_mass` | chain/strip: an energy-selective lead | the end cell |
-//! | `leads.*.wide_band_ev` | Γ of a wide-band lead (Σ = −iΓ/2 on each orbital of the end cell) | — |
-//! | `bias.voltage_v` | V: µL = µL0 − V/2, µR = µR0 + V/2 | 0 |
-//! | `bias.drop` | `"leads"` or `{ linear = { from_nm, to_nm } }` | `"leads"` |
-//! | `[[phonon]]` `energy_ev`, `coupling_ev2`, `from_nm`, `to_nm`, `bath_temperature_k` | Einstein modes | bath: mean lead T |
-//! | `dephasing.strength_ev2`, `from_nm`, `to_nm` | elastic dephasing | none |
-//! | `grid.step_ev`, `min_ev`, `max_ev` | energy grid | see [`Resolved`] |
-//! | `grid.allow_coarse_phonon_snap` | `true` accepts a phonon energy moved by more than 5 % when snapped to the grid | false |
-//! | `solver.*` | `tolerance`, `max_iterations`, `mixing`, `mixing_factor`, `anderson_depth`, `anderson_damping`, `hermitian_part`, `energy_order` (`auto`, `simultaneous`, `red-black`: see [`crate::scba::EnergyOrder`]), `current_floor_a`, `decimation_eta_ev`, `decimation_tolerance_ev` | 1e-7, 300, anderson, 0.5, 6, 1.0, neglect, auto, 1e-18, 1e-7, 1e-13 |
-//! | `response.split` | `"symmetric"` or `"left-only"` | symmetric |
-//! | `thermal.phonon_conductance_w_per_k` | κ_ph for ZT | 0 (noted) |
-//! | `profile.electron_temperature` | `"off"` or `"fit"`: also fit a local electron temperature per cell from the energy density | off |
+//! Every key, with its type, unit, default and meaning, is listed in
+//! `docs/case-keys.md`, generated from the key table ([`KEYS`]). The
+//! numeric keys can be changed on a loaded case with [`Case::with`]
+//! ([`CaseKey`]), which is how operating points and sweeps set them.
 //!
 //! # Leads
 //!
@@ -67,19 +45,32 @@
 //! for the other is an error that names the header to write.
 
 mod blocks_file;
+mod check;
+mod describe;
 mod error;
+mod key;
+mod keys;
 mod raw;
 mod resolve;
+mod sections;
 mod spec;
 
 pub use error::{CaseError, CaseErrorKind, close_matches, edit_distance, line_column};
+pub use key::{CaseKey, ParseCaseKeyError};
+pub use keys::{DefaultValue, KEYS, KeyInfo, ValueType, keys_markdown};
 pub use resolve::Resolved;
-pub use spec::ResponseSplit;
+pub use sections::settings::ResponseSplit;
 
+use blocks_file::BlockFiles;
 use error::ErrorContext;
+use raw::RawCase;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
-/// A validated case file.
+/// A validated case.
+///
+/// Cloning is cheap: the loaded block files and the resolved problem are
+/// shared.
 #[derive(Clone, Debug)]
 pub struct Case {
     /// The case name.
@@ -89,81 +80,16 @@ pub struct Case {
     pub origin: String,
     /// Folder against which relative file names resolve.
     pub base_dir: PathBuf,
-    /// The TOML document as parsed (edited by [`Case::with_value`]).
-    document: toml::Table,
-    /// The original text, kept for [`Case::to_toml_string`] while unedited.
+    /// The values as written in the file, typed but unchecked, with the
+    /// changes of [`Case::with`]: every validation starts from here.
+    input: RawCase,
+    /// Block files, read from disk once.
+    files: BlockFiles,
+    /// The original text, for [`Case::to_toml_string`].
     text: String,
-    /// Keys changed by [`Case::with_value`], in order.
-    edits: Vec<(String, f64)>,
-    resolved: Resolved,
-}
-
-/// The kind of value a numeric key holds.
-#[derive(Clone, Copy, PartialEq)]
-enum Num {
-    Float,
-    Int,
-}
-
-/// Every numeric key, as a dotted pattern; `#` stands for an array index.
-const NUMERIC_KEYS: &[(&str, Num)] = &[
-    ("spin_degeneracy", Num::Int),
-    ("device.spacing_nm", Num::Float),
-    ("device.length_nm", Num::Float),
-    ("device.effective_mass", Num::Float),
-    ("device.band_edge_ev", Num::Float),
-    ("device.width_sites", Num::Int),
-    ("device.cells", Num::Int),
-    ("device.region.#.from_nm", Num::Float),
-    ("device.region.#.to_nm", Num::Float),
-    ("device.region.#.offset_ev", Num::Float),
-    ("device.region.#.start_ev", Num::Float),
-    ("device.region.#.end_ev", Num::Float),
-    ("leads.left.fermi_level_ev", Num::Float),
-    ("leads.left.temperature_k", Num::Float),
-    ("leads.left.band_edge_ev", Num::Float),
-    ("leads.left.effective_mass", Num::Float),
-    ("leads.left.wide_band_ev", Num::Float),
-    ("leads.right.fermi_level_ev", Num::Float),
-    ("leads.right.temperature_k", Num::Float),
-    ("leads.right.band_edge_ev", Num::Float),
-    ("leads.right.effective_mass", Num::Float),
-    ("leads.right.wide_band_ev", Num::Float),
-    ("bias.voltage_v", Num::Float),
-    ("bias.drop.linear.from_nm", Num::Float),
-    ("bias.drop.linear.to_nm", Num::Float),
-    ("phonon.#.energy_ev", Num::Float),
-    ("phonon.#.coupling_ev2", Num::Float),
-    ("phonon.#.from_nm", Num::Float),
-    ("phonon.#.to_nm", Num::Float),
-    ("phonon.#.bath_temperature_k", Num::Float),
-    ("dephasing.strength_ev2", Num::Float),
-    ("dephasing.from_nm", Num::Float),
-    ("dephasing.to_nm", Num::Float),
-    ("grid.step_ev", Num::Float),
-    ("grid.min_ev", Num::Float),
-    ("grid.max_ev", Num::Float),
-    ("solver.tolerance", Num::Float),
-    ("solver.max_iterations", Num::Int),
-    ("solver.mixing_factor", Num::Float),
-    ("solver.anderson_depth", Num::Int),
-    ("solver.anderson_damping", Num::Float),
-    ("solver.current_floor_a", Num::Float),
-    ("solver.decimation_eta_ev", Num::Float),
-    ("solver.decimation_tolerance_ev", Num::Float),
-    ("thermal.phonon_conductance_w_per_k", Num::Float),
-];
-
-fn array_len(doc: &toml::Table, path: &[&str]) -> usize {
-    let mut cur = doc;
-    for (i, p) in path.iter().enumerate() {
-        match cur.get(*p) {
-            Some(toml::Value::Table(t)) if i + 1 < path.len() => cur = t,
-            Some(toml::Value::Array(a)) if i + 1 == path.len() => return a.len(),
-            _ => return 0,
-        }
-    }
-    0
+    /// Keys changed by [`Case::with`], in order.
+    edits: Vec<(CaseKey, f64)>,
+    resolved: Arc<Resolved>,
 }
 
 impl Case {
@@ -193,147 +119,133 @@ impl Case {
             origin,
             text: Some(text),
         };
-        Case::build(text, ctx, base_dir, Vec::new())
-    }
-
-    fn build(
-        text: &str,
-        ctx: ErrorContext<'_>,
-        base_dir: &Path,
-        edits: Vec<(String, f64)>,
-    ) -> Result<Case, CaseError> {
-        let raw = raw::parse_raw(text, &ctx)?;
-        let document: toml::Table = toml::from_str(text).map_err(|e| {
-            ctx.error(
-                CaseErrorKind::Syntax,
-                e.span(),
-                None,
-                format!("invalid TOML: {}", e.message().trim()),
-            )
-        })?;
-        let spec = spec::validate(raw, ctx, base_dir)?;
+        let input = raw::parse_raw(text, &ctx)?;
+        let mut files = BlockFiles::new(base_dir);
+        let spec = spec::validate(&input, ctx, &mut files)?;
         let resolved = resolve::resolve(&spec, &ctx)?;
         Ok(Case {
-            name: spec.name.clone(),
-            origin: ctx.origin.to_string(),
+            name: spec.name,
+            origin: origin.to_string(),
             base_dir: base_dir.to_path_buf(),
-            document,
+            input,
+            files,
             text: text.to_string(),
-            edits,
-            resolved,
+            edits: Vec::new(),
+            resolved: Arc::new(resolved),
         })
     }
 
     /// Every numeric key path valid for this case, with array indices
-    /// filled in for the entries that exist.
+    /// filled in for the entries that exist, in the order of the key table.
     pub fn numeric_keys(&self) -> Vec<String> {
+        self.case_keys().iter().map(CaseKey::to_string).collect()
+    }
+
+    /// Every numeric key of this case (array keys once per existing entry).
+    pub fn case_keys(&self) -> Vec<CaseKey> {
+        let regions = self
+            .input
+            .device
+            .as_ref()
+            .and_then(|d| d.get_ref().region.as_ref())
+            .map_or(0, Vec::len);
+        let phonons = self.input.phonon.as_ref().map_or(0, Vec::len);
         let mut out = Vec::new();
-        for (pattern, _) in NUMERIC_KEYS {
-            match pattern.split_once(".#.") {
-                None => out.push(pattern.to_string()),
-                Some((array, leaf)) => {
-                    let path: Vec<&str> = array.split('.').collect();
-                    for i in 0..array_len(&self.document, &path) {
-                        out.push(format!("{array}.{i}.{leaf}"));
-                    }
+        for t in CaseKey::templates() {
+            let count = match t {
+                CaseKey::RegionFrom(_)
+                | CaseKey::RegionTo(_)
+                | CaseKey::RegionOffset(_)
+                | CaseKey::RegionStart(_)
+                | CaseKey::RegionEnd(_) => regions,
+                _ if t.index().is_some() => phonons,
+                _ => {
+                    out.push(*t);
+                    continue;
                 }
-            }
+            };
+            out.extend((0..count).map(|i| t.at_index(i)));
         }
         out
     }
 
-    /// Set a numeric key given as a dotted path (`"bias.voltage_v"`,
-    /// `"leads.left.temperature_k"`, `"device.region.0.offset_ev"`,
-    /// `"phonon.1.coupling_ev2"`, …) and validate again. Missing tables
-    /// (`[bias]`, `[grid]`, …) are created; array entries must exist.
-    /// Integer keys (`spin_degeneracy`, `device.width_sites`, …) take whole
-    /// values only. Unknown key paths are an error that lists close matches.
-    pub fn with_value(&self, key: &str, value: f64) -> Result<Case, CaseError> {
-        let err = |message: String, suggestion: Option<String>| CaseError {
+    /// The error for a name that is no numeric key, with the close matches
+    /// among this case's keys (as `--vary` reports it).
+    pub fn unknown_key_error(&self, e: &ParseCaseKeyError) -> CaseError {
+        let valid = self.numeric_keys();
+        let close = close_matches(&e.key, valid.iter().map(String::as_str));
+        CaseError {
+            origin: self.origin.clone(),
+            location: None,
+            key: Some(e.key.clone()),
+            message: key::unknown_key_message(&close),
+            suggestion: close.into_iter().next(),
+            kind: CaseErrorKind::UnknownKey,
+        }
+    }
+
+    /// The case with `key` set to `value`, validated and resolved again
+    /// from the typed values (no TOML is written or read, no block file
+    /// read again). Missing tables (`[bias]`, `[grid]`, …) are created;
+    /// array entries must exist. Integer keys take whole values only.
+    /// Errors name the key and end with `(after setting `KEY` = VALUE)`.
+    pub fn with(&self, key: CaseKey, value: f64) -> Result<Case, CaseError> {
+        let err = |kind: CaseErrorKind, message: String| CaseError {
             origin: self.origin.clone(),
             location: None,
             key: Some(key.to_string()),
             message,
-            suggestion,
-            kind: CaseErrorKind::UnknownKey,
+            suggestion: None,
+            kind,
         };
-        let parts: Vec<&str> = key.split('.').collect();
-        let pattern: Vec<String> = parts
-            .iter()
-            .map(|p| {
-                if !p.is_empty() && p.chars().all(|c| c.is_ascii_digit()) {
-                    "#".to_string()
-                } else {
-                    p.to_string()
-                }
-            })
-            .collect();
-        let pattern = pattern.join(".");
-        let Some(&(_, kind)) = NUMERIC_KEYS.iter().find(|(p, _)| *p == pattern) else {
-            let valid = self.numeric_keys();
-            let close = close_matches(key, valid.iter().map(String::as_str));
-            let message = if close.is_empty() {
-                "expected a numeric case key, found an unknown key path".to_string()
-            } else {
-                format!(
-                    "expected a numeric case key, found an unknown key path (close matches: {})",
-                    close
-                        .iter()
-                        .map(|c| format!("`{c}`"))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            };
-            return Err(err(message, close.into_iter().next()));
-        };
-        let new_value = match kind {
-            Num::Float => toml::Value::Float(value),
-            Num::Int => {
-                if !(value.is_finite() && value.fract() == 0.0 && value.abs() < 9.0e15) {
-                    let mut e = err(format!("expected a whole number, found {value}"), None);
-                    e.kind = CaseErrorKind::Invalid;
-                    return Err(e);
-                }
-                toml::Value::Integer(value as i64)
-            }
-        };
-        let mut document = self.document.clone();
-        set_path(&mut document, &parts, String::new(), new_value).map_err(|m| err(m, None))?;
-        let generated = toml::to_string(&document).map_err(|e| {
-            let mut e = err(
-                format!("expected a document that can be written as TOML, found: {e}"),
-                None,
-            );
-            e.kind = CaseErrorKind::Invalid;
-            e
-        })?;
-        let mut edits = self.edits.clone();
-        edits.push((key.to_string(), value));
-        // The generated text has no relation to the file's lines, so errors
+        if key.is_integer() && !(value.is_finite() && value.fract() == 0.0 && value.abs() < 9.0e15)
+        {
+            return Err(err(
+                CaseErrorKind::Invalid,
+                format!("expected a whole number, found {value}"),
+            ));
+        }
+        let mut input = self.input.clone();
+        key.set(&mut input, value)
+            .map_err(|m| err(CaseErrorKind::UnknownKey, m))?;
+        // The changed values have no place in the file's text, so errors
         // carry no position; they say which edit led to them instead.
         let ctx = ErrorContext {
             origin: &self.origin,
             text: None,
         };
-        Case::build(&generated, ctx, &self.base_dir, edits).map_err(|mut e| {
-            e.message = format!("{} (after setting `{key}` = {value})", e.message);
-            e
+        let mut files = self.files.clone();
+        let resolved = spec::validate(&input, ctx, &mut files)
+            .and_then(|spec| resolve::resolve(&spec, &ctx))
+            .map_err(|mut e| {
+                e.message = format!("{} (after setting `{key}` = {value})", e.message);
+                e
+            })?;
+        let mut edits = self.edits.clone();
+        edits.push((key, value));
+        Ok(Case {
+            input,
+            files,
+            edits,
+            resolved: Arc::new(resolved),
+            ..self.clone()
         })
     }
 
     /// The resolved problem (built once when the case was validated).
     pub fn resolve(&self) -> Result<Resolved, CaseError> {
-        Ok(self.resolved.clone())
+        Ok((*self.resolved).clone())
     }
 
-    /// Keys changed by [`Case::with_value`] since the file was read.
-    pub fn edits(&self) -> &[(String, f64)] {
+    /// Keys changed by [`Case::with`] since the file was read.
+    pub fn edits(&self) -> &[(CaseKey, f64)] {
         &self.edits
     }
 
-    /// The case as a TOML document: the original text while unedited
-    /// (comments kept), otherwise the edited document, headed by a comment
-    /// that lists the edits.
+    /// The case as a TOML document: the original text while unchanged
+    /// (comments kept); after [`Case::with`], the document with the changed
+    /// values (written here, once, not at every change), headed by a comment
+    /// that lists the changes.
     pub fn to_toml_string(&self) -> String {
         if self.edits.is_empty() {
             return self.text.clone();
@@ -344,54 +256,55 @@ impl Case {
         }
         out.pop();
         out.push('\n');
-        out.push_str(&self.text);
+        out.push_str(&self.edited_document());
         out
+    }
+
+    /// The file's document with every change applied. The changes were
+    /// accepted by [`Case::with`], so they fit the document; should one not,
+    /// the original text is given (the heading comment still lists it).
+    fn edited_document(&self) -> String {
+        let Ok(mut doc) = toml::from_str::<toml::Table>(&self.text) else {
+            return self.text.clone();
+        };
+        for (k, v) in &self.edits {
+            let value = if k.is_integer() {
+                toml::Value::Integer(*v as i64)
+            } else {
+                toml::Value::Float(*v)
+            };
+            let path = k.to_string();
+            let parts: Vec<&str> = path.split('.').collect();
+            if set_path(&mut doc, &parts, value).is_none() {
+                return self.text.clone();
+            }
+        }
+        toml::to_string(&doc).unwrap_or_else(|_| self.text.clone())
     }
 }
 
 /// Set `value` at the dotted `parts` below `table`, creating tables on the
 /// way; array entries (`parts[i + 1]` numeric) must exist.
-fn set_path(
-    table: &mut toml::Table,
-    parts: &[&str],
-    walked: String,
-    value: toml::Value,
-) -> Result<(), String> {
-    let Some((first, rest)) = parts.split_first() else {
-        return Err("expected a key path, found an empty one".into());
-    };
-    let here = if walked.is_empty() {
-        first.to_string()
-    } else {
-        format!("{walked}.{first}")
-    };
+fn set_path(table: &mut toml::Table, parts: &[&str], value: toml::Value) -> Option<()> {
+    let (first, rest) = parts.split_first()?;
     if rest.is_empty() {
         table.insert(first.to_string(), value);
-        return Ok(());
+        return Some(());
     }
-    if rest[0].chars().all(|c| c.is_ascii_digit()) {
-        let idx: usize = rest[0].parse().unwrap_or(usize::MAX);
-        let arr = match table.get_mut(*first) {
-            Some(toml::Value::Array(a)) => a,
-            _ => return Err(format!("expected an existing [[{here}]] entry, found none")),
+    if let Ok(idx) = rest[0].parse::<usize>() {
+        let Some(toml::Value::Array(arr)) = table.get_mut(*first) else {
+            return None;
         };
-        let len = arr.len();
-        return match arr.get_mut(idx) {
-            Some(toml::Value::Table(t)) => set_path(t, &rest[1..], format!("{here}.{idx}"), value),
-            _ => Err(format!(
-                "expected an index below {len} ([[{here}]] has {len} entries), found {}",
-                rest[0]
-            )),
+        let Some(toml::Value::Table(t)) = arr.get_mut(idx) else {
+            return None;
         };
+        return set_path(t, &rest[1..], value);
     }
     let entry = table
         .entry(first.to_string())
         .or_insert_with(|| toml::Value::Table(toml::Table::new()));
     match entry {
-        toml::Value::Table(t) => set_path(t, rest, here, value),
-        other => Err(format!(
-            "expected `{here}` to be a table, found {} {other}",
-            other.type_str()
-        )),
+        toml::Value::Table(t) => set_path(t, rest, value),
+        _ => None,
     }
 }

@@ -3,6 +3,7 @@
 //! TOML types; [`super::spec`] turns these into validated values.
 
 use super::error::{CaseError, CaseErrorKind, ErrorContext, close_matches};
+use super::keys::{KEYS, Node, ValueType, children, section_description};
 use serde::Deserialize;
 use std::ops::Range;
 use toml::Spanned;
@@ -10,7 +11,7 @@ use toml::Spanned;
 /// A spanned optional value.
 pub(crate) type Opt<T> = Option<Spanned<T>>;
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a case table")]
 pub(crate) struct RawCase {
     pub name: Opt<String>,
@@ -27,7 +28,7 @@ pub(crate) struct RawCase {
     pub profile: Opt<RawProfile>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of device settings")]
 pub(crate) struct RawDevice {
     pub kind: Opt<String>,
@@ -44,7 +45,7 @@ pub(crate) struct RawDevice {
     pub region: Option<Vec<Spanned<RawRegion>>>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(
     deny_unknown_fields,
     expecting = "a table with from_nm, to_nm and offset_ev or start_ev + end_ev"
@@ -57,7 +58,7 @@ pub(crate) struct RawRegion {
     pub end_ev: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(
     deny_unknown_fields,
     expecting = "a table with [leads.left] and [leads.right]"
@@ -67,7 +68,7 @@ pub(crate) struct RawLeads {
     pub right: Opt<RawLead>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of lead settings")]
 pub(crate) struct RawLead {
     pub fermi_level_ev: Opt<f64>,
@@ -77,7 +78,7 @@ pub(crate) struct RawLead {
     pub wide_band_ev: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of bias settings")]
 pub(crate) struct RawBias {
     pub voltage_v: Opt<f64>,
@@ -86,7 +87,7 @@ pub(crate) struct RawBias {
     pub drop: Opt<toml::Value>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of phonon settings")]
 pub(crate) struct RawPhonon {
     pub energy_ev: Opt<f64>,
@@ -96,7 +97,7 @@ pub(crate) struct RawPhonon {
     pub bath_temperature_k: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of dephasing settings")]
 pub(crate) struct RawDephasing {
     pub strength_ev2: Opt<f64>,
@@ -104,7 +105,7 @@ pub(crate) struct RawDephasing {
     pub to_nm: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of energy grid settings")]
 pub(crate) struct RawGrid {
     pub step_ev: Opt<f64>,
@@ -114,7 +115,7 @@ pub(crate) struct RawGrid {
     pub allow_coarse_phonon_snap: Opt<bool>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of solver settings")]
 pub(crate) struct RawSolver {
     pub tolerance: Opt<f64>,
@@ -130,19 +131,19 @@ pub(crate) struct RawSolver {
     pub decimation_tolerance_ev: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of response settings")]
 pub(crate) struct RawResponse {
     pub split: Opt<String>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of thermal settings")]
 pub(crate) struct RawThermal {
     pub phonon_conductance_w_per_k: Opt<f64>,
 }
 
-#[derive(Deserialize, Debug)]
+#[derive(Deserialize, Debug, Clone, Default)]
 #[serde(deny_unknown_fields, expecting = "a table of profile settings")]
 pub(crate) struct RawProfile {
     pub electron_temperature: Opt<String>,
@@ -153,6 +154,7 @@ pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, C
     let index = match toml::de::DeTable::parse(text) {
         Ok(doc) => {
             check_brackets(doc.get_ref(), text, ctx)?;
+            check_shape(doc.get_ref(), "", "", ctx)?;
             let mut index = SpanIndex::default();
             index.walk_table(doc.get_ref(), "");
             index
@@ -174,7 +176,20 @@ pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, C
             ));
         }
     };
-    toml::from_str::<RawCase>(text).map_err(|e| translate(&e, &index, ctx))
+    toml::from_str::<RawCase>(text).map_err(|e| {
+        // The shape check above refuses every unknown key and wrong type
+        // with its own message; this is the fallback for a document that
+        // still does not fit the raw structs, passed on as the library
+        // words it.
+        let span = e.span();
+        let path = span.as_ref().and_then(|s| index.path_at(s)).map(|(_, p)| p);
+        ctx.error(
+            CaseErrorKind::WrongType,
+            span,
+            path.as_deref(),
+            e.message().trim().to_string(),
+        )
+    })
 }
 
 /// Keys that hold one table, written `[key]` (or `key = { … }`).
@@ -328,110 +343,134 @@ fn join(prefix: &str, key: &str) -> String {
     }
 }
 
-/// Words quoted in backticks, in order.
-fn backticked(s: &str) -> Vec<&str> {
-    s.split('`').skip(1).step_by(2).collect()
-}
-
-/// Plain words for serde's type names.
-fn plain_type(t: &str) -> String {
-    match t.trim() {
-        "f64" => "a number".into(),
-        "i64" => "an integer".into(),
-        "a sequence" => "an array".into(),
-        "a map" | "map" => "a table".into(),
-        other => other.to_string(),
+/// What a TOML value is, in the words of the messages: `string "x"`,
+/// ``integer `5` ``, ``floating point `6.0` ``, ``boolean `true` ``, a
+/// table, an array.
+fn found(v: &toml::de::DeValue<'_>) -> String {
+    use toml::de::DeValue;
+    match v {
+        DeValue::String(s) => format!("string {s:?}"),
+        DeValue::Integer(i) => match i64::from_str_radix(i.as_str(), i.radix()) {
+            Ok(n) => format!("integer `{n}`"),
+            Err(_) => format!("integer `{i}`"),
+        },
+        DeValue::Float(x) => match x.as_str().replace('_', "").parse::<f64>() {
+            Ok(f) if f.is_finite() && !format!("{f}").contains('.') => {
+                format!("floating point `{f}.0`")
+            }
+            Ok(f) => format!("floating point `{f}`"),
+            Err(_) => format!("floating point `{x}`"),
+        },
+        DeValue::Boolean(b) => format!("boolean `{b}`"),
+        DeValue::Datetime(d) => format!("a date-time `{d}`"),
+        DeValue::Array(_) => "an array".into(),
+        DeValue::Table(_) => "a table".into(),
     }
 }
 
-fn plain_found(t: &str) -> String {
-    let t = t.trim();
-    if t == "map" {
-        "a table".into()
-    } else if t == "sequence" {
-        "an array".into()
-    } else {
-        t.replace(" as i128", "")
+/// True when `v` is a value of type `ty` (an integer counts as a number).
+fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
+    use toml::de::DeValue;
+    let int_ok = |i: &toml::de::DeInteger<'_>| i64::from_str_radix(i.as_str(), i.radix()).is_ok();
+    match (ty, v) {
+        (ValueType::Float, DeValue::Float(_)) => true,
+        (ValueType::Float | ValueType::Int, DeValue::Integer(i)) => int_ok(i),
+        (ValueType::Bool, DeValue::Boolean(_)) => true,
+        (ValueType::Text | ValueType::Choice(_), DeValue::String(_)) => true,
+        (ValueType::Drop | ValueType::Renamed, _) => true,
+        _ => false,
     }
 }
 
-/// Turn a toml/serde error into a positioned, keyed [`CaseError`].
-fn translate(e: &toml::de::Error, index: &SpanIndex, ctx: &ErrorContext<'_>) -> CaseError {
-    let msg = e.message().trim().to_string();
-    let span = e.span();
-    let located = span.as_ref().and_then(|s| index.path_at(s));
-    if let Some(rest) = msg.strip_prefix("unknown field ") {
-        let names = backticked(rest);
-        let (found, valid) = names.split_first().map_or(("", &[][..]), |(f, v)| (*f, v));
-        let path = match &located {
-            Some((true, p)) => p.clone(),
-            _ => found.to_string(),
-        };
-        let suggestion = close_matches(found, valid.iter().copied())
-            .into_iter()
-            .next()
-            .map(|s| match path.rsplit_once('.') {
-                Some((parent, _)) => format!("{parent}.{s}"),
-                None => s,
-            });
-        let valid_list = if valid.is_empty() {
-            "no keys".to_string()
-        } else {
-            valid
-                .iter()
-                .map(|v| format!("`{v}`"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        };
-        return ctx
-            .error(
-                CaseErrorKind::UnknownKey,
-                span,
-                Some(&path),
-                format!("expected one of {valid_list}, found unknown key `{found}`"),
-            )
-            .with_suggestion(suggestion);
+/// What a key of type `ty` expects, in the words of the messages.
+fn expected(ty: ValueType) -> &'static str {
+    match ty {
+        ValueType::Float => "a number",
+        ValueType::Int => "an integer",
+        ValueType::Bool => "a boolean",
+        _ => "a string",
     }
-    if let Some(rest) = msg.strip_prefix("missing field ") {
-        let field = backticked(rest).first().copied().unwrap_or("").to_string();
-        let path = match &located {
-            Some((_, p)) => join(p, &field),
-            None => field,
+}
+
+/// The shape of the file against the key table: every key known at its
+/// place, every value of its type. `pattern` is the table's dotted pattern
+/// (`#` for list indices), `path` its dotted path.
+fn check_shape(
+    table: &toml::de::DeTable<'_>,
+    pattern: &str,
+    path: &str,
+    ctx: &ErrorContext<'_>,
+) -> Result<(), CaseError> {
+    let allowed = children(pattern);
+    for (k, v) in table {
+        let name: &str = k.get_ref();
+        let key_path = join(path, name);
+        let Some(&(_, node)) = allowed.iter().find(|(n, _)| *n == name) else {
+            let names: Vec<&str> = allowed.iter().map(|(n, _)| *n).collect();
+            let suggestion = close_matches(name, names.iter().copied())
+                .into_iter()
+                .next()
+                .map(|s| join(path, &s));
+            let list = if names.is_empty() {
+                "no keys".to_string()
+            } else {
+                names
+                    .iter()
+                    .map(|n| format!("`{n}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            return Err(ctx
+                .error(
+                    CaseErrorKind::UnknownKey,
+                    Some(k.span()),
+                    Some(&key_path),
+                    format!("expected one of {list}, found unknown key `{name}`"),
+                )
+                .with_suggestion(suggestion));
         };
-        return ctx.error(
-            CaseErrorKind::Missing,
-            span,
-            Some(&path),
-            "expected a value, found nothing (the key is missing)",
-        );
+        check_node(v, node, &join(pattern, name), &key_path, ctx)?;
     }
-    if let Some(rest) = msg.strip_prefix("invalid type: ") {
-        let (found, expected) = rest
-            .split_once(", expected ")
-            .unwrap_or((rest, "another type"));
-        let path = located.map(|(_, p)| p);
-        let mut expected = plain_type(expected);
-        if path
-            .as_deref()
-            .is_some_and(|p| p == "phonon" || p.ends_with("region"))
-        {
-            expected = format!(
-                "{expected} of tables (write each entry as [[{}]])",
-                path.as_deref().unwrap_or("")
-            );
-        }
-        return ctx.error(
+    Ok(())
+}
+
+/// One value against what the key table says belongs at its place.
+fn check_node(
+    v: &Spanned<toml::de::DeValue<'_>>,
+    node: Node,
+    pattern: &str,
+    path: &str,
+    ctx: &ErrorContext<'_>,
+) -> Result<(), CaseError> {
+    use toml::de::DeValue;
+    let wrong = |expected: &str, v: &Spanned<DeValue<'_>>, path: &str| {
+        ctx.error(
             CaseErrorKind::WrongType,
-            span,
-            path.as_deref(),
-            format!("expected {expected}, found {}", plain_found(found)),
-        );
-    }
-    let path = located.map(|(_, p)| p);
-    let kind = if msg.contains("duplicate key") {
-        CaseErrorKind::Syntax
-    } else {
-        CaseErrorKind::Invalid
+            Some(v.span()),
+            Some(path),
+            format!("expected {expected}, found {}", found(v.get_ref())),
+        )
     };
-    ctx.error(kind, span, path.as_deref(), msg)
+    match (node, v.get_ref()) {
+        (Node::Leaf(i), value) if fits(value, KEYS[i].ty) => Ok(()),
+        (Node::Leaf(i), _) => Err(wrong(expected(KEYS[i].ty), v, path)),
+        (Node::Table, DeValue::Table(t)) => check_shape(t, pattern, path, ctx),
+        (Node::Table, _) => Err(wrong(section_description(pattern), v, path)),
+        (Node::Array, DeValue::Array(items)) => {
+            let entry = format!("{pattern}.#");
+            for (i, item) in items.iter().enumerate() {
+                let item_path = format!("{path}.{i}");
+                match item.get_ref() {
+                    DeValue::Table(t) => check_shape(t, &entry, &item_path, ctx)?,
+                    _ => return Err(wrong(section_description(&entry), item, &item_path)),
+                }
+            }
+            Ok(())
+        }
+        (Node::Array, _) => Err(wrong(
+            &format!("an array of tables (write each entry as [[{path}]])"),
+            v,
+            path,
+        )),
+    }
 }

@@ -1,18 +1,22 @@
 //! A validated case -> the problem the solver runs: device, contacts,
 //! scattering and the energy grid (with phonon energies snapped to it).
 
+use super::check::MAX_ENERGY_EV;
 use super::error::{CaseError, CaseErrorKind, ErrorContext};
-use super::spec::{CaseSpec, DeviceKind, LeadModel, LeadSpec, MAX_ENERGY_EV, ResponseSplit};
+use super::sections::device::DeviceKind;
+use super::sections::leads::LeadModel;
+use super::sections::scattering::PhononSpec;
+use super::sections::settings::{HermitianPart, ProfileMode, ResponseSplit};
+use super::spec::CaseSpec;
 use crate::C64;
 use crate::device::{self, BiasDrop, Device, DeviceError};
 use crate::grid::EnergyGrid;
-use crate::leads::{DecimationParams, Lead};
+use crate::leads::{Lead, Side};
 use crate::model::{Contact, Problem};
 use crate::scattering::{PhononMode, Scattering};
-use crate::scba::{Mixing, ScbaParams};
+use crate::scba::{EnergyOrder, Mixing, ScbaParams};
 use crate::units::thermal_energy_ev;
 use faer::Mat;
-use std::fmt::Write as _;
 
 /// Largest energy grid accepted (points): a guard against a step that is
 /// tiny next to the window.
@@ -57,8 +61,6 @@ pub struct Resolved {
     pub allow_coarse_phonon_snap: bool,
 }
 
-/// Periodic lead blocks (on-site, coupling along +x) for a chain or strip
-/// with band edge `edge` and hopping `t`.
 /// Largest relative change of a phonon energy that the default step
 /// allows when it snaps ħω to whole grid steps.
 const DEFAULT_SNAP_FRACTION: f64 = 0.01;
@@ -98,6 +100,8 @@ fn default_step(largest: f64, phonon_energies_ev: &[f64]) -> f64 {
     largest
 }
 
+/// Periodic lead blocks (on-site, coupling along +x) for a chain or strip
+/// with band edge `edge` and hopping `t`.
 fn lattice_lead(kind: &DeviceKind, edge: f64, t: f64) -> Lead {
     match kind {
         DeviceKind::Strip { width, .. } => Lead::Periodic {
@@ -128,7 +132,7 @@ fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, value: f64) -> Vec<f64> {
 }
 
 fn device_error(ctx: &ErrorContext<'_>, spec: &CaseSpec, e: DeviceError) -> CaseError {
-    let (key, path) = match (&spec.kind, &e) {
+    let (key, path) = match (&spec.device.kind, &e) {
         (
             DeviceKind::Blocks { coupling_path, .. },
             DeviceError::BlockShape {
@@ -152,217 +156,250 @@ fn device_error(ctx: &ErrorContext<'_>, spec: &CaseSpec, e: DeviceError) -> Case
     };
     ctx.error(
         CaseErrorKind::File,
-        spec.device_span.clone(),
+        spec.device.span.clone(),
         Some(key),
         format!("expected {expected}, found in file `{path}`: {e}"),
     )
 }
 
-/// Build the device, contacts, scattering and grid.
-pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolved, CaseError> {
-    let mut warnings = spec.warnings.clone();
-    let mut notes = Vec::new();
-    let (mu_l0, mu_r0) = (spec.left.fermi_level_ev, spec.right.fermi_level_ev);
-    let v = spec.voltage_v;
-    // µL = µL0 − eV/2, µR = µR0 + eV/2 (eV and V are numerically equal per e).
-    let mu_l = mu_l0 - 0.5 * v;
-    let mu_r = mu_r0 + 0.5 * v;
+/// The first and last coupling blocks of a blocks device (either may be
+/// missing when the coupling file is empty).
+type EndCouplings = (Option<Mat<C64>>, Option<Mat<C64>>);
 
-    let x = device::cell_positions(spec.cells, spec.spacing_nm);
-    let potential = device::potential_profile(&x, &spec.regions, &spec.drop, mu_l, mu_r);
-    let bias_only = device::potential_profile(&x, &[], &spec.drop, mu_l, mu_r);
-    let n = spec.cells;
+/// The device as built, with what the leads need from it.
+struct Built {
+    dev: Device,
+    /// Hopping t of a chain or strip.
+    hopping: Option<f64>,
+    /// The first and last coupling blocks of a blocks device.
+    lead_couplings: Option<EndCouplings>,
+    /// The potential of the bias alone (no regions), per cell.
+    bias_only: Vec<f64>,
+}
 
-    let (dev, hopping, lead_couplings) = match &spec.kind {
+/// Warnings (allowed but probably not meant) and notes (defaults that
+/// matter) gathered while resolving.
+#[derive(Default)]
+struct Remarks {
+    warnings: Vec<String>,
+    notes: Vec<String>,
+}
+
+/// The biased Fermi levels: µL = µL0 − eV/2, µR = µR0 + eV/2 (eV and V are
+/// numerically equal per e).
+fn biased_levels(spec: &CaseSpec) -> (f64, f64) {
+    let v = spec.bias.voltage_v;
+    (
+        spec.leads.left.fermi_level_ev - 0.5 * v,
+        spec.leads.right.fermi_level_ev + 0.5 * v,
+    )
+}
+
+/// The device Hamiltonian with the potential of the regions and the bias.
+fn build_device(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    (mu_l, mu_r): (f64, f64),
+) -> Result<Built, CaseError> {
+    let d = &spec.device;
+    let x = device::cell_positions(d.cells, d.spacing_nm);
+    let drop = &spec.bias.drop;
+    let potential = device::potential_profile(&x, &spec.regions.regions, drop, mu_l, mu_r);
+    let bias_only = device::potential_profile(&x, &[], drop, mu_l, mu_r);
+    let (dev, hopping, lead_couplings) = match &d.kind {
         DeviceKind::Chain {
             effective_mass,
             band_edge_ev,
         } => {
-            let t = crate::units::hopping_ev(*effective_mass, spec.spacing_nm);
-            (
-                device::chain(spec.spacing_nm, t, *band_edge_ev, potential),
-                Some(t),
-                None,
-            )
+            let t = crate::units::hopping_ev(*effective_mass, d.spacing_nm);
+            let dev = device::chain(d.spacing_nm, t, *band_edge_ev, potential);
+            (dev, Some(t), None)
         }
         DeviceKind::Strip {
             effective_mass,
             band_edge_ev,
             width,
         } => {
-            let t = crate::units::hopping_ev(*effective_mass, spec.spacing_nm);
-            (
-                device::strip(*width, spec.spacing_nm, t, *band_edge_ev, potential),
-                Some(t),
-                None,
-            )
+            let t = crate::units::hopping_ev(*effective_mass, d.spacing_nm);
+            let dev = device::strip(*width, d.spacing_nm, t, *band_edge_ev, potential);
+            (dev, Some(t), None)
         }
         DeviceKind::Blocks {
             onsite, coupling, ..
         } => {
             let ends = (coupling.first().cloned(), coupling.last().cloned());
-            let d = device::blocks(spec.spacing_nm, onsite.clone(), coupling.clone(), potential)
+            let dev = device::blocks(d.spacing_nm, onsite.clone(), coupling.clone(), potential)
                 .map_err(|e| device_error(ctx, spec, e))?;
-            (d, None, Some(ends))
+            (dev, None, Some(ends))
         }
     };
-    let b = dev.orbitals;
+    Ok(Built {
+        dev,
+        hopping,
+        lead_couplings,
+        bias_only,
+    })
+}
 
-    // ---- contacts ----
-    let make_lead = |ls: &LeadSpec, left: bool| -> Result<Lead, CaseError> {
-        let end = if left { 0 } else { n - 1 };
-        let side = if left { "left" } else { "right" };
-        match &ls.model {
-            LeadModel::WideBand { gamma_ev } => Ok(Lead::WideBand {
-                gamma: identity_times(b, *gamma_ev),
-            }),
-            LeadModel::Continuation => {
-                let hop = match &lead_couplings {
-                    None => {
-                        if n > 1 {
-                            dev.coupling[if left { 0 } else { n - 2 }].clone()
-                        } else {
-                            // A one-cell chain or strip: the lattice coupling.
-                            let t = hopping.unwrap_or(0.0);
-                            identity_times(b, -t)
-                        }
-                    }
-                    Some((first, last)) => match if left { first } else { last } {
-                        Some(m) => m.clone(),
-                        None => {
-                            return Err(ctx.error(
-                                CaseErrorKind::Invalid,
-                                spec.device_span.clone(),
-                                Some(&format!("leads.{side}")),
-                                "expected a coupling block to continue the end cell into a lead (or wide_band_ev), found none (a one-cell device with an empty coupling file)",
-                            ));
-                        }
-                    },
-                };
-                Ok(Lead::Periodic {
-                    onsite: dev.onsite[end].clone(),
-                    hopping: hop,
-                })
-            }
-            LeadModel::Selective {
-                band_edge_ev,
-                effective_mass,
-            } => {
-                let (device_edge, device_mass) = match &spec.kind {
-                    DeviceKind::Chain {
-                        effective_mass,
-                        band_edge_ev,
-                    }
-                    | DeviceKind::Strip {
-                        effective_mass,
-                        band_edge_ev,
-                        ..
-                    } => (*band_edge_ev, *effective_mass),
-                    DeviceKind::Blocks { .. } => {
-                        return Err(ctx.invalid(
-                            spec.device_span.clone(),
-                            &format!("leads.{side}.band_edge_ev"),
-                            "an energy-selective lead only with kind = \"chain\" or \"strip\"",
-                            "kind = \"blocks\"",
-                        ));
-                    }
-                };
-                // Without its own band edge the lead continues the end cell's
-                // band (potential and bias included); with one, only the bias
-                // part of the end potential (a linear drop) moves it.
-                let edge = match band_edge_ev {
-                    Some(e) => e + bias_only[end],
-                    None => device_edge + dev.potential_ev[end],
-                };
-                let t = crate::units::hopping_ev(
-                    effective_mass.unwrap_or(device_mass),
-                    spec.spacing_nm,
-                );
-                Ok(lattice_lead(&spec.kind, edge, t))
-            }
-        }
+/// The lead of one side, from its model.
+fn make_lead(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    built: &Built,
+    side: Side,
+) -> Result<Lead, CaseError> {
+    let (ls, name) = match side {
+        Side::Left => (&spec.leads.left, "left"),
+        Side::Right => (&spec.leads.right, "right"),
     };
-    let left_lead = make_lead(&spec.left, true)?;
-    let right_lead = make_lead(&spec.right, false)?;
-    let left_range = left_lead.band_range();
-    let right_range = right_lead.band_range();
+    let n = spec.device.cells;
+    let end = if side == Side::Left { 0 } else { n - 1 };
+    match &ls.model {
+        LeadModel::WideBand { gamma_ev } => Ok(Lead::WideBand {
+            gamma: identity_times(built.dev.orbitals, *gamma_ev),
+        }),
+        LeadModel::Continuation => Ok(Lead::Periodic {
+            onsite: built.dev.onsite[end].clone(),
+            hopping: continuation_hopping(spec, ctx, built, side, name)?,
+        }),
+        LeadModel::Selective {
+            band_edge_ev,
+            effective_mass,
+        } => {
+            let (device_edge, device_mass) = match &spec.device.kind {
+                DeviceKind::Chain {
+                    effective_mass,
+                    band_edge_ev,
+                }
+                | DeviceKind::Strip {
+                    effective_mass,
+                    band_edge_ev,
+                    ..
+                } => (*band_edge_ev, *effective_mass),
+                DeviceKind::Blocks { .. } => {
+                    return Err(ctx.invalid(
+                        spec.device.span.clone(),
+                        &format!("leads.{name}.band_edge_ev"),
+                        "an energy-selective lead only with kind = \"chain\" or \"strip\"",
+                        "kind = \"blocks\"",
+                    ));
+                }
+            };
+            // Without its own band edge the lead continues the end cell's
+            // band (potential and bias included); with one, only the bias
+            // part of the end potential (a linear drop) moves it.
+            let edge = match band_edge_ev {
+                Some(e) => e + built.bias_only[end],
+                None => device_edge + built.dev.potential_ev[end],
+            };
+            let mass = effective_mass.unwrap_or(device_mass);
+            let t = crate::units::hopping_ev(mass, spec.device.spacing_nm);
+            Ok(lattice_lead(&spec.device.kind, edge, t))
+        }
+    }
+}
 
-    // ---- energy grid ----
-    let t_min = spec.left.temperature_k.min(spec.right.temperature_k);
-    let t_max = spec.left.temperature_k.max(spec.right.temperature_k);
-    let (kt_min, kt_max) = (thermal_energy_ev(t_min), thermal_energy_ev(t_max));
-    let step = match &spec.grid.step_ev {
-        Some(s) => {
-            if s.value > kt_min {
-                return Err(ctx.invalid(
-                    s.span.clone(),
-                    "grid.step_ev",
-                    &format!(
-                        "a step ≤ kB·T_min = {:.4} meV that resolves the Fermi window",
-                        kt_min * 1e3
-                    ),
-                    format!("{} meV", s.value * 1e3),
-                ));
-            }
-            if s.value > kt_min / 4.0 {
-                warnings.push(format!(
-                    "grid.step_ev = {:.4} meV is coarser than kB·T_min/4 = {:.4} meV: Fermi-window integrals lose accuracy",
-                    s.value * 1e3,
-                    kt_min * 250.0
-                ));
-            }
-            s.value
+/// The coupling of a lead that continues the end cell: the end coupling
+/// block of the device.
+fn continuation_hopping(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    built: &Built,
+    side: Side,
+    name: &str,
+) -> Result<Mat<C64>, CaseError> {
+    let n = spec.device.cells;
+    let left = side == Side::Left;
+    match &built.lead_couplings {
+        None if n > 1 => Ok(built.dev.coupling[if left { 0 } else { n - 2 }].clone()),
+        // A one-cell chain or strip: the lattice coupling.
+        None => Ok(identity_times(
+            built.dev.orbitals,
+            -built.hopping.unwrap_or(0.0),
+        )),
+        Some((first, last)) => match if left { first } else { last } {
+            Some(m) => Ok(m.clone()),
+            None => Err(ctx.error(
+                CaseErrorKind::Invalid,
+                spec.device.span.clone(),
+                Some(&format!("leads.{name}")),
+                "expected a coupling block to continue the end cell into a lead (or wide_band_ev), found none (a one-cell device with an empty coupling file)",
+            )),
+        },
+    }
+}
+
+/// The energy step: the file's (no coarser than kB·T_min) or the default.
+fn energy_step(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    kt_min: f64,
+    remarks: &mut Remarks,
+) -> Result<f64, CaseError> {
+    if let Some(s) = &spec.grid.step_ev {
+        if s.value > kt_min {
+            return Err(ctx.invalid(
+                s.span.clone(),
+                "grid.step_ev",
+                &format!(
+                    "a step ≤ kB·T_min = {:.4} meV that resolves the Fermi window",
+                    kt_min * 1e3
+                ),
+                format!("{} meV", s.value * 1e3),
+            ));
         }
-        None => {
-            let energies: Vec<f64> = spec.phonons.iter().map(|p| p.energy_ev).collect();
-            let step = default_step(kt_min / 10.0, &energies);
-            if step < kt_min / 10.0 {
-                notes.push(format!(
-                    "grid.step_ev not given: {:.4} meV, the largest step ≤ kB·T_min/10 = {:.4} meV \
-                     on which every phonon energy is a whole number of steps to within {:.0} %",
-                    step * 1e3,
-                    kt_min * 100.0,
-                    DEFAULT_SNAP_FRACTION * 100.0
-                ));
-            } else {
-                notes.push(format!(
-                    "grid.step_ev not given: kB·T_min/10 = {:.4} meV",
-                    kt_min * 100.0
-                ));
-            }
-            step
+        if s.value > kt_min / 4.0 {
+            remarks.warnings.push(format!(
+                "grid.step_ev = {:.4} meV is coarser than kB·T_min/4 = {:.4} meV: Fermi-window integrals lose accuracy",
+                s.value * 1e3,
+                kt_min * 250.0
+            ));
         }
-    };
-    let probe = EnergyGrid::new(0.0, step, 1);
-    let snapped: Vec<(usize, f64)> = spec
-        .phonons
-        .iter()
-        .map(|p| {
-            let s = probe.steps_for(p.energy_ev);
-            (s, s as f64 * step)
-        })
-        .collect();
-    let max_phonon = snapped.iter().map(|s| s.1).fold(0.0, f64::max);
-    let mu_max = mu_l.max(mu_r);
-    let mu_min = mu_l.min(mu_r);
-    let lowest_device = dev.lowest_band_edge();
-    let lead_lows: Vec<f64> = [left_range, right_range]
-        .iter()
-        .flatten()
-        .map(|r| r.0)
-        .collect();
-    let lowest_edge = lead_lows.iter().copied().fold(lowest_device, f64::min);
-    let gamma_max = [&spec.left.model, &spec.right.model]
-        .iter()
-        .filter_map(|m| match m {
-            LeadModel::WideBand { gamma_ev } => Some(*gamma_ev),
-            _ => None,
-        })
-        .fold(0.0, f64::max);
-    let min_ev = match &spec.grid.min_ev {
+        return Ok(s.value);
+    }
+    let energies: Vec<f64> = spec.phonons.iter().map(|p| p.energy_ev).collect();
+    let step = default_step(kt_min / 10.0, &energies);
+    if step < kt_min / 10.0 {
+        remarks.notes.push(format!(
+            "grid.step_ev not given: {:.4} meV, the largest step ≤ kB·T_min/10 = {:.4} meV \
+             on which every phonon energy is a whole number of steps to within {:.0} %",
+            step * 1e3,
+            kt_min * 100.0,
+            DEFAULT_SNAP_FRACTION * 100.0
+        ));
+    } else {
+        remarks.notes.push(format!(
+            "grid.step_ev not given: kB·T_min/10 = {:.4} meV",
+            kt_min * 100.0
+        ));
+    }
+    Ok(step)
+}
+
+/// What the energy window depends on.
+struct WindowInput {
+    step: f64,
+    mu: (f64, f64),
+    kt_max: f64,
+    /// The largest snapped phonon energy.
+    max_phonon: f64,
+    /// Lowest band edge in the device.
+    lowest_device: f64,
+    /// Lowest band edges of the periodic leads.
+    lead_lows: Vec<f64>,
+    /// Largest wide-band Γ.
+    gamma_max: f64,
+}
+
+/// The lower end of the window: the file's, or half a step above the
+/// lowest band edge, or (wide-band leads on both sides) far enough below
+/// the lowest level to take in its Lorentzian.
+fn window_min(spec: &CaseSpec, w: &WindowInput, remarks: &mut Remarks) -> f64 {
+    let lowest_edge = w.lead_lows.iter().copied().fold(w.lowest_device, f64::min);
+    match &spec.grid.min_ev {
         Some(m) => {
-            if m.value > lowest_edge + step {
-                warnings.push(format!(
+            if m.value > lowest_edge + w.step {
+                remarks.warnings.push(format!(
                     "grid.min_ev = {} eV is {:.4} eV above the lowest band edge {:.4} eV: the states between are left out of the electron density and of scattering",
                     m.value,
                     m.value - lowest_edge,
@@ -371,33 +408,52 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
             }
             m.value
         }
-        None if lead_lows.is_empty() => {
+        None if w.lead_lows.is_empty() => {
             // Both leads wide-band: no lead band edge to avoid, but each
             // level is a Lorentzian of width ~Γ whose tail reaches far below
             // it. Start 20 kT_max below the lower of the lowest level and
             // the lower Fermi level, and at least 10 Γ below the level
             // (dropping a tail fraction of about Γ/(2π·10Γ) ≈ 1.6 %).
-            let lo = lowest_device.min(mu_min) - (20.0 * kt_max).max(10.0 * gamma_max);
-            notes.push(format!(
+            let mu_min = w.mu.0.min(w.mu.1);
+            let lo = w.lowest_device.min(mu_min) - (20.0 * w.kt_max).max(10.0 * w.gamma_max);
+            remarks.notes.push(format!(
                 "grid.min_ev not given: wide-band leads on both sides, so the window starts at {lo:.4} eV, max(20 kT_max, 10 Γ) below the lowest level or Fermi level; the Lorentzian tails of the levels below it (a fraction ≈ Γ/(2π·distance)) are not counted"
             ));
             lo
         }
-        None => lowest_edge + 0.5 * step,
-    };
-    let max_ev = match &spec.grid.max_ev {
+        None => lowest_edge + 0.5 * w.step,
+    }
+}
+
+/// The upper end of the window: the file's, or 20 kT_max above the higher
+/// Fermi level plus the largest phonon energy.
+fn window_max(spec: &CaseSpec, w: &WindowInput, remarks: &mut Remarks) -> f64 {
+    let mu_max = w.mu.0.max(w.mu.1);
+    match &spec.grid.max_ev {
         Some(m) => {
-            if m.value < mu_max + 10.0 * kt_max {
-                warnings.push(format!(
+            if m.value < mu_max + 10.0 * w.kt_max {
+                remarks.warnings.push(format!(
                     "grid.max_ev = {} eV is below max µ + 10 kT_max = {:.4} eV: the occupied window is clipped",
                     m.value,
-                    mu_max + 10.0 * kt_max
+                    mu_max + 10.0 * w.kt_max
                 ));
             }
             m.value
         }
-        None => mu_max + 20.0 * kt_max + max_phonon,
-    };
+        None => mu_max + 20.0 * w.kt_max + w.max_phonon,
+    }
+}
+
+/// The energy grid over the window, within the size limits.
+fn energy_grid(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    w: &WindowInput,
+    remarks: &mut Remarks,
+) -> Result<EnergyGrid, CaseError> {
+    let min_ev = window_min(spec, w, remarks);
+    let max_ev = window_max(spec, w, remarks);
+    let step = w.step;
     let span_of_window = spec
         .grid
         .max_ev
@@ -437,210 +493,313 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
             format!("{} point(s)", grid.count),
         ));
     }
-    let width = grid.max_ev() - grid.min_ev;
+    Ok(grid)
+}
 
-    // Lattice dispersion against the effective-mass parabola.
-    if let (
-        Some(t),
-        DeviceKind::Chain { band_edge_ev, .. } | DeviceKind::Strip { band_edge_ev, .. },
-    ) = (hopping, &spec.kind)
-    {
-        let ec_min = band_edge_ev
-            + dev
-                .potential_ev
-                .iter()
-                .copied()
-                .fold(f64::INFINITY, f64::min);
-        let e_top = grid.max_ev() - ec_min;
-        if e_top > t {
-            let detail = if e_top < 4.0 * t {
-                let ka = (1.0 - e_top / (2.0 * t)).acos();
-                let parabola = t * ka * ka;
-                format!(
-                    "there the lattice band 2t(1 − cos ka) lies {:.0} % below the parabola ħ²k²/2m* at the same k",
-                    100.0 * (parabola - e_top) / parabola
-                )
-            } else {
-                "that is above the top of the lattice band (4t)".to_string()
-            };
-            warnings.push(format!(
-                "the energy window reaches {e_top:.4} eV above the lowest band edge, {:.2}·t (t = {t:.4} eV): {detail}; a smaller spacing_nm makes the continuum model accurate there",
-                e_top / t
-            ));
-        }
+/// Lattice dispersion against the effective-mass parabola: a warning when
+/// the window reaches where they part.
+fn dispersion_warning(spec: &CaseSpec, built: &Built, grid: &EnergyGrid, remarks: &mut Remarks) {
+    let (Some(t), DeviceKind::Chain { band_edge_ev, .. } | DeviceKind::Strip { band_edge_ev, .. }) =
+        (built.hopping, &spec.device.kind)
+    else {
+        return;
+    };
+    let lowest_u = built
+        .dev
+        .potential_ev
+        .iter()
+        .copied()
+        .fold(f64::INFINITY, f64::min);
+    let e_top = grid.max_ev() - (band_edge_ev + lowest_u);
+    if e_top <= t {
+        return;
     }
+    let detail = if e_top < 4.0 * t {
+        let ka = (1.0 - e_top / (2.0 * t)).acos();
+        let parabola = t * ka * ka;
+        format!(
+            "there the lattice band 2t(1 − cos ka) lies {:.0} % below the parabola ħ²k²/2m* at the same k",
+            100.0 * (parabola - e_top) / parabola
+        )
+    } else {
+        "that is above the top of the lattice band (4t)".to_string()
+    };
+    remarks.warnings.push(format!(
+        "the energy window reaches {e_top:.4} eV above the lowest band edge, {:.2}·t (t = {t:.4} eV): {detail}; a smaller spacing_nm makes the continuum model accurate there",
+        e_top / t
+    ));
+}
 
-    // A zero coupling block cuts the device in two: nothing can pass.
-    if let Some(i) = dev.coupling.iter().position(|c| device::max_abs(c) == 0.0) {
-        warnings.push(format!(
-            "cells {i} and {} are not coupled (an all-zero coupling block): no current can pass, and a level isolated between zero couplings makes the Green's function singular at its energy",
-            i + 1
+/// One phonon mode on the grid: ħω snapped to `steps` whole steps
+/// (`energy`), checked against the window and the snap limit.
+fn phonon_mode(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    (i, p): (usize, &PhononSpec),
+    (steps, energy): (usize, f64),
+    dev: &Device,
+    grid: &EnergyGrid,
+    remarks: &mut Remarks,
+) -> Result<PhononMode, CaseError> {
+    let width = grid.max_ev() - grid.min_ev;
+    let key = format!("phonon.{i}.energy_ev");
+    if p.energy_ev >= width || energy >= width {
+        let hint = if spec.grid.min_ev.is_some() || spec.grid.max_ev.is_some() {
+            "; hint: widen grid.min_ev … grid.max_ev, or leave them out so the window follows the phonons"
+        } else {
+            ""
+        };
+        return Err(ctx.invalid(
+            p.energy_span.clone(),
+            &key,
+            &format!(
+                "a phonon energy 0 < ħω < {width:.4} eV, the width of the energy window \
+                 [{:.4}, {:.4}] eV (otherwise no E ± ħω lands on the grid)",
+                grid.min_ev,
+                grid.max_ev()
+            ),
+            format!("{} eV{hint}", p.energy_ev),
         ));
     }
+    check_snap(spec, ctx, (i, p), (steps, energy), grid.step_ev, remarks)?;
+    let coupling = site_vector(dev, p.from_nm, p.to_nm, p.coupling_ev2);
+    if coupling.iter().all(|&d| d == 0.0) && p.coupling_ev2 > 0.0 {
+        remarks.warnings.push(format!(
+            "phonon.{i} region [{}, {}) nm covers no cell",
+            p.from_nm, p.to_nm
+        ));
+    }
+    Ok(PhononMode {
+        requested_energy_ev: p.energy_ev,
+        energy_ev: energy,
+        steps,
+        coupling_ev2: coupling,
+        bath_temperature_k: p.bath_temperature_k,
+    })
+}
 
-    // ---- scattering ----
-    let mut phonons = Vec::new();
-    for (i, (p, &(steps, energy))) in spec.phonons.iter().zip(&snapped).enumerate() {
-        let key = format!("phonon.{i}.energy_ev");
-        if p.energy_ev >= width || energy >= width {
-            let hint = if spec.grid.min_ev.is_some() || spec.grid.max_ev.is_some() {
-                "; hint: widen grid.min_ev … grid.max_ev, or leave them out so the window follows the phonons"
-            } else {
-                ""
-            };
-            return Err(ctx.invalid(
-                p.energy_span.clone(),
-                &key,
-                &format!(
-                    "a phonon energy 0 < ħω < {width:.4} eV, the width of the energy window \
-                     [{:.4}, {:.4}] eV (otherwise no E ± ħω lands on the grid)",
-                    grid.min_ev,
-                    grid.max_ev()
-                ),
-                format!("{} eV{hint}", p.energy_ev),
-            ));
-        }
-        let change = (energy - p.energy_ev) / p.energy_ev;
-        if change.abs() > MAX_SNAP && !spec.grid.allow_coarse_snap {
-            // The step that represents ħω exactly with no more than the
-            // current step size.
-            let k = (p.energy_ev / step).ceil().max(1.0);
-            return Err(ctx.invalid(
-                p.energy_span.clone(),
-                &key,
-                &format!(
-                    "a phonon energy that the grid step {:.4} meV represents within {:.0} % \
-                     (ħω is snapped to a whole number of steps)",
-                    step * 1e3,
-                    MAX_SNAP * 100.0
-                ),
-                format!(
-                    "{:.4} meV, which snaps to {:.4} meV ({steps} step(s)), a change of {:+.1} %; \
-                     hint: a finer grid.step_ev (ħω/{k} = {:.6e} eV makes it exact), or \
-                     `allow_coarse_phonon_snap = true` under [grid] to accept the snapped energy",
-                    p.energy_ev * 1e3,
-                    energy * 1e3,
-                    100.0 * change,
-                    p.energy_ev / k
-                ),
-            ));
-        }
-        if change.abs() > 0.01 {
-            let allowed = if change.abs() > MAX_SNAP {
-                " (accepted because grid.allow_coarse_phonon_snap = true)"
-            } else {
-                ""
-            };
-            warnings.push(format!(
-                "phonon.{i}.energy_ev = {:.3} meV was snapped to {:.3} meV ({steps} grid steps), a change of {:.1} %{allowed}: use a finer grid.step_ev",
+/// A snapped ħω moved by more than [`MAX_SNAP`] is an error unless the
+/// file allows it; by more than 1 % a warning.
+fn check_snap(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    (i, p): (usize, &PhononSpec),
+    (steps, energy): (usize, f64),
+    step: f64,
+    remarks: &mut Remarks,
+) -> Result<(), CaseError> {
+    let change = (energy - p.energy_ev) / p.energy_ev;
+    if change.abs() > MAX_SNAP && !spec.grid.allow_coarse_snap {
+        // The step that represents ħω exactly with no more than the
+        // current step size.
+        let k = (p.energy_ev / step).ceil().max(1.0);
+        return Err(ctx.invalid(
+            p.energy_span.clone(),
+            &format!("phonon.{i}.energy_ev"),
+            &format!(
+                "a phonon energy that the grid step {:.4} meV represents within {:.0} % \
+                 (ħω is snapped to a whole number of steps)",
+                step * 1e3,
+                MAX_SNAP * 100.0
+            ),
+            format!(
+                "{:.4} meV, which snaps to {:.4} meV ({steps} step(s)), a change of {:+.1} %; \
+                 hint: a finer grid.step_ev (ħω/{k} = {:.6e} eV makes it exact), or \
+                 `allow_coarse_phonon_snap = true` under [grid] to accept the snapped energy",
                 p.energy_ev * 1e3,
                 energy * 1e3,
-                100.0 * change
-            ));
-        }
-        let coupling = site_vector(&dev, p.from_nm, p.to_nm, p.coupling_ev2);
-        if coupling.iter().all(|&d| d == 0.0) && p.coupling_ev2 > 0.0 {
-            warnings.push(format!(
-                "phonon.{i} region [{}, {}) nm covers no cell",
-                p.from_nm, p.to_nm
-            ));
-        }
-        phonons.push(PhononMode {
-            requested_energy_ev: p.energy_ev,
-            energy_ev: energy,
-            steps,
-            coupling_ev2: coupling,
-            bath_temperature_k: p.bath_temperature_k,
-        });
+                100.0 * change,
+                p.energy_ev / k
+            ),
+        ));
     }
+    if change.abs() > 0.01 {
+        let allowed = if change.abs() > MAX_SNAP {
+            " (accepted because grid.allow_coarse_phonon_snap = true)"
+        } else {
+            ""
+        };
+        remarks.warnings.push(format!(
+            "phonon.{i}.energy_ev = {:.3} meV was snapped to {:.3} meV ({steps} grid steps), a change of {:.1} %{allowed}: use a finer grid.step_ev",
+            p.energy_ev * 1e3,
+            energy * 1e3,
+            100.0 * change
+        ));
+    }
+    Ok(())
+}
+
+/// Phonons and dephasing on the device and grid.
+fn scattering(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    dev: &Device,
+    grid: &EnergyGrid,
+    snapped: &[(usize, f64)],
+    remarks: &mut Remarks,
+) -> Result<Scattering, CaseError> {
+    let phonons = spec
+        .phonons
+        .iter()
+        .enumerate()
+        .zip(snapped)
+        .map(|(ip, &s)| phonon_mode(spec, ctx, ip, s, dev, grid, remarks))
+        .collect::<Result<Vec<_>, _>>()?;
     let dephasing_ev2 = match &spec.dephasing {
-        Some(d) if d.strength_ev2 > 0.0 => site_vector(&dev, d.from_nm, d.to_nm, d.strength_ev2),
+        Some(d) if d.strength_ev2 > 0.0 => site_vector(dev, d.from_nm, d.to_nm, d.strength_ev2),
         _ => Vec::new(),
     };
-    let scattering = Scattering {
-        dephasing_ev2,
-        phonons,
-        hermitian_part: spec.hermitian_part,
-    };
-    if spec.hermitian_part && scattering.phonons.is_empty() {
-        warnings.push("solver.hermitian_part = \"include\" has no effect without phonons".into());
+    let hermitian_part = spec.solver.hermitian_part == HermitianPart::Include;
+    if hermitian_part && phonons.is_empty() {
+        remarks
+            .warnings
+            .push("solver.hermitian_part = \"include\" has no effect without phonons".into());
     }
-    if spec.scba.energy_order == crate::scba::EnergyOrder::RedBlack && scattering.phonons.is_empty()
-    {
-        warnings.push(
+    if spec.solver.scba.energy_order == EnergyOrder::RedBlack && phonons.is_empty() {
+        remarks.warnings.push(
             "solver.energy_order = \"red-black\" has no effect without phonons: \
              the energies are solved simultaneously"
                 .into(),
         );
     }
+    Ok(Scattering {
+        dephasing_ev2,
+        phonons,
+        hermitian_part,
+    })
+}
 
-    let phonon_conductance = match spec.phonon_conductance_w_per_k {
+/// Build the device, contacts, scattering and grid.
+pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolved, CaseError> {
+    let mut remarks = Remarks {
+        warnings: spec.warnings.clone(),
+        notes: Vec::new(),
+    };
+    let (mu_l, mu_r) = biased_levels(spec);
+    let built = build_device(spec, ctx, (mu_l, mu_r))?;
+    let left_lead = make_lead(spec, ctx, &built, Side::Left)?;
+    let right_lead = make_lead(spec, ctx, &built, Side::Right)?;
+    let (t_left, t_right) = (
+        spec.leads.left.temperature_k,
+        spec.leads.right.temperature_k,
+    );
+    let kt_min = thermal_energy_ev(t_left.min(t_right));
+    let kt_max = thermal_energy_ev(t_left.max(t_right));
+    let step = energy_step(spec, ctx, kt_min, &mut remarks)?;
+    let probe = EnergyGrid::new(0.0, step, 1);
+    let snapped: Vec<(usize, f64)> = spec
+        .phonons
+        .iter()
+        .map(|p| {
+            let s = probe.steps_for(p.energy_ev);
+            (s, s as f64 * step)
+        })
+        .collect();
+    let window = WindowInput {
+        step,
+        mu: (mu_l, mu_r),
+        kt_max,
+        max_phonon: snapped.iter().map(|s| s.1).fold(0.0, f64::max),
+        lowest_device: built.dev.lowest_band_edge(),
+        lead_lows: [left_lead.band_range(), right_lead.band_range()]
+            .iter()
+            .flatten()
+            .map(|r| r.0)
+            .collect(),
+        gamma_max: [&spec.leads.left.model, &spec.leads.right.model]
+            .iter()
+            .filter_map(|m| match m {
+                LeadModel::WideBand { gamma_ev } => Some(*gamma_ev),
+                _ => None,
+            })
+            .fold(0.0, f64::max),
+    };
+    let grid = energy_grid(spec, ctx, &window, &mut remarks)?;
+    dispersion_warning(spec, &built, &grid, &mut remarks);
+    // A zero coupling block cuts the device in two: nothing can pass.
+    let dev = &built.dev;
+    if let Some(i) = dev.coupling.iter().position(|c| device::max_abs(c) == 0.0) {
+        remarks.warnings.push(format!(
+            "cells {i} and {} are not coupled (an all-zero coupling block): no current can pass, and a level isolated between zero couplings makes the Green's function singular at its energy",
+            i + 1
+        ));
+    }
+    let scattering = scattering(spec, ctx, dev, &grid, &snapped, &mut remarks)?;
+    let contacts = (
+        Contact {
+            lead: left_lead,
+            fermi_level_ev: mu_l,
+            temperature_k: t_left,
+        },
+        Contact {
+            lead: right_lead,
+            fermi_level_ev: mu_r,
+            temperature_k: t_right,
+        },
+    );
+    assemble(spec, ctx, built, contacts, scattering, grid, remarks)
+}
+
+/// The resolved case from its parts, with the last checks and notes.
+fn assemble(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    built: Built,
+    (left, right): (Contact, Contact),
+    scattering: Scattering,
+    grid: EnergyGrid,
+    mut remarks: Remarks,
+) -> Result<Resolved, CaseError> {
+    let phonon_conductance = match spec.thermal.phonon_conductance_w_per_k {
         Some(k) => k,
         None => {
-            notes.push(
+            remarks.notes.push(
                 "thermal.phonon_conductance_w_per_k not given: ZT uses κ_ph = 0 (an upper bound)"
                     .into(),
             );
             0.0
         }
     };
-    if dev.potential_ev.iter().any(|u| u.abs() > MAX_ENERGY_EV) {
+    if built
+        .dev
+        .potential_ev
+        .iter()
+        .any(|u| u.abs() > MAX_ENERGY_EV)
+    {
         return Err(ctx.invalid(
-            spec.device_span.clone(),
+            spec.device.span.clone(),
             "device.region",
             "a potential profile of magnitude ≤ 1e6 eV",
             "a larger sum of regions and bias",
         ));
     }
-
     let problem = Problem {
-        device: dev,
-        left: Contact {
-            lead: left_lead,
-            fermi_level_ev: mu_l,
-            temperature_k: spec.left.temperature_k,
-        },
-        right: Contact {
-            lead: right_lead,
-            fermi_level_ev: mu_r,
-            temperature_k: spec.right.temperature_k,
-        },
+        device: built.dev,
+        left,
+        right,
         scattering,
         grid,
         spin_degeneracy: f64::from(spec.spin_degeneracy),
-        decimation: DecimationParams {
-            eta_ev: spec.decimation_eta_ev,
-            tolerance_ev: spec.decimation_tolerance_ev,
-            ..DecimationParams::default()
-        },
+        decimation: spec.solver.decimation,
     };
     Ok(Resolved {
         problem,
-        scba: spec.scba,
-        voltage_v: v,
-        zero_bias_fermi_levels_ev: (mu_l0, mu_r0),
+        scba: spec.solver.scba,
+        voltage_v: spec.bias.voltage_v,
+        zero_bias_fermi_levels_ev: (
+            spec.leads.left.fermi_level_ev,
+            spec.leads.right.fermi_level_ev,
+        ),
         phonon_conductance_w_per_k: phonon_conductance,
-        fit_electron_temperature: spec.fit_electron_temperature,
+        fit_electron_temperature: spec.profile.electron_temperature == ProfileMode::Fit,
         allow_coarse_phonon_snap: spec.grid.allow_coarse_snap,
-        response_split: spec.response_split,
-        bias_drop: spec.drop.clone(),
-        warnings,
-        notes,
-        device_kind: spec.kind.name(),
-        hopping_ev: hopping,
+        response_split: spec.response.split,
+        bias_drop: spec.bias.drop.clone(),
+        warnings: remarks.warnings,
+        notes: remarks.notes,
+        device_kind: spec.device.kind.name(),
+        hopping_ev: built.hopping,
     })
-}
-
-fn lead_text(lead: &Lead) -> String {
-    match lead {
-        Lead::Periodic { .. } => {
-            let (lo, hi) = lead.band_range().unwrap_or((f64::NAN, f64::NAN));
-            format!("periodic, band {lo:.4} to {hi:.4} eV")
-        }
-        Lead::WideBand { gamma } => {
-            format!("wide band, Γ = {:.4} eV per orbital", gamma[(0, 0)].re)
-        }
-    }
 }
 
 impl Resolved {
@@ -683,171 +842,5 @@ impl Resolved {
         let real_part = h == 1 || p.scattering.dephasing_ev2.iter().any(|&d| d != 0.0);
         let parts = if real_part { 3 } else { 2 };
         e * s * (72 + 8 * parts * a + 16 * h) + fixed
-    }
-
-    /// The resolved case as text for people (what `qheat check` prints).
-    pub fn describe(&self) -> String {
-        let p = &self.problem;
-        let d = &p.device;
-        let g = &p.grid;
-        let mut s = String::new();
-        let _ = writeln!(
-            s,
-            "device      {}, {} cells × {} orbital(s) per cell, spacing {} nm, length {:.4} nm",
-            self.device_kind,
-            d.cells(),
-            d.orbitals,
-            d.spacing_nm,
-            d.length_nm()
-        );
-        if let Some(t) = self.hopping_ev {
-            let _ = writeln!(
-                s,
-                "hopping     t = {t:.6} eV (band width 4t = {:.4} eV)",
-                4.0 * t
-            );
-        }
-        let umin = d.potential_ev.iter().copied().fold(f64::INFINITY, f64::min);
-        let umax = d
-            .potential_ev
-            .iter()
-            .copied()
-            .fold(f64::NEG_INFINITY, f64::max);
-        let _ = writeln!(
-            s,
-            "potential   {umin:.4} to {umax:.4} eV (bias included); lowest band edge in the device {:.4} eV",
-            d.lowest_band_edge()
-        );
-        let _ = writeln!(
-            s,
-            "left lead   {}; µ = {:.4} eV (µ0 = {:.4} eV), T = {} K",
-            lead_text(&p.left.lead),
-            p.left.fermi_level_ev,
-            self.zero_bias_fermi_levels_ev.0,
-            p.left.temperature_k
-        );
-        let _ = writeln!(
-            s,
-            "right lead  {}; µ = {:.4} eV (µ0 = {:.4} eV), T = {} K",
-            lead_text(&p.right.lead),
-            p.right.fermi_level_ev,
-            self.zero_bias_fermi_levels_ev.1,
-            p.right.temperature_k
-        );
-        let drop = match &self.bias_drop {
-            BiasDrop::Leads => "at the leads".to_string(),
-            BiasDrop::Linear { from_nm, to_nm } => format!("linearly over [{from_nm}, {to_nm}] nm"),
-        };
-        let _ = writeln!(s, "bias        V = {} V, dropped {drop}", self.voltage_v);
-        let _ = writeln!(
-            s,
-            "energies    {:.4} to {:.4} eV, step {:.4} meV, {} points",
-            g.min_ev,
-            g.max_ev(),
-            g.step_ev * 1e3,
-            g.count
-        );
-        if p.scattering.phonons.is_empty() {
-            let _ = writeln!(s, "phonons     none");
-        }
-        for (i, m) in p.scattering.phonons.iter().enumerate() {
-            let sites = m.coupling_ev2.iter().filter(|&&x| x > 0.0).count();
-            let dmax = m.coupling_ev2.iter().copied().fold(0.0, f64::max);
-            let _ = writeln!(
-                s,
-                "phonon {i}    ħω {:.3} meV -> {:.3} meV ({} grid steps), coupling {dmax:e} eV² on {sites} orbital sites, bath {} K, occupation {:.4}",
-                m.requested_energy_ev * 1e3,
-                m.energy_ev * 1e3,
-                m.steps,
-                m.bath_temperature_k,
-                m.occupation()
-            );
-        }
-        if !p.scattering.phonons.is_empty() {
-            let worst = p
-                .scattering
-                .phonons
-                .iter()
-                .map(|m| (m.energy_ev / m.requested_energy_ev - 1.0).abs())
-                .fold(0.0, f64::max);
-            let rule = if self.allow_coarse_phonon_snap {
-                "any change accepted (grid.allow_coarse_phonon_snap = true)".to_string()
-            } else {
-                format!(
-                    "at most {:.0} % allowed (grid.allow_coarse_phonon_snap = true accepts more)",
-                    MAX_SNAP * 100.0
-                )
-            };
-            let _ = writeln!(
-                s,
-                "snapping    ħω moved by at most {:.2} %; {rule}",
-                100.0 * worst
-            );
-        }
-        let deph = &p.scattering.dephasing_ev2;
-        if deph.iter().any(|&x| x > 0.0) {
-            let sites = deph.iter().filter(|&&x| x > 0.0).count();
-            let dmax = deph.iter().copied().fold(0.0, f64::max);
-            let _ = writeln!(s, "dephasing   {dmax:e} eV² on {sites} orbital sites");
-        } else {
-            let _ = writeln!(s, "dephasing   none");
-        }
-        let _ = writeln!(
-            s,
-            "scattering  {}; Hermitian part of Σ_phonon {}",
-            if p.scattering.is_coherent() {
-                "none (coherent)"
-            } else {
-                "self-consistent Born"
-            },
-            if p.scattering.hermitian_part {
-                "included"
-            } else {
-                "neglected"
-            }
-        );
-        let mix = match self.scba.mixing {
-            Mixing::Anderson { depth, damping } => {
-                format!("Anderson (depth {depth}, damping {damping})")
-            }
-            Mixing::Linear { factor } => format!("linear (factor {factor})"),
-        };
-        let _ = writeln!(
-            s,
-            "solver      tolerance {:e}, at most {} iterations, {mix}, current floor {:e} A",
-            self.scba.tolerance, self.scba.max_iterations, self.scba.current_floor_a
-        );
-        if !p.scattering.is_coherent() {
-            let order = match crate::scba::red_black_colouring(p, self.scba.energy_order) {
-                Some((w, true)) => {
-                    format!("red-black in bands of {w} grid steps (phonons link opposite colours)")
-                }
-                Some((w, false)) => format!(
-                    "red-black in bands of {w} grid steps (requested; some phonons link \
-                     equal colours, so it gains less)"
-                ),
-                None => "simultaneous (all energies from the same Σ0)".to_string(),
-            };
-            let _ = writeln!(s, "order       {order}");
-        }
-        let _ = writeln!(s, "spin        g_s = {}", p.spin_degeneracy);
-        let split = match self.response_split {
-            ResponseSplit::Symmetric => "symmetric",
-            ResponseSplit::LeftOnly => "left-only",
-        };
-        let _ = writeln!(
-            s,
-            "response    split {split}; κ_ph = {} W/K",
-            self.phonon_conductance_w_per_k
-        );
-        let mem = self.memory_estimate_bytes() as f64;
-        let _ = writeln!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));
-        for n in &self.notes {
-            let _ = writeln!(s, "note: {n}");
-        }
-        for w in &self.warnings {
-            let _ = writeln!(s, "warning: {w}");
-        }
-        s
     }
 }

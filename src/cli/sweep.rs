@@ -10,7 +10,7 @@
 use super::progress::{PointProgress, enabled};
 use super::solve::load;
 use super::{Common, Failure, available_memory_bytes, check_memory, default_out, folder};
-use qheat::case::Case;
+use qheat::case::{Case, CaseKey};
 use qheat::output::manifest::claim_store;
 use qheat::output::results::program;
 use qheat::output::sweep::{PointFolder, table_csv};
@@ -36,12 +36,28 @@ pub const MAX_GRID_POINTS: usize = 100_000;
 
 /// Parse the --vary options into a grid, checking the keys against the case.
 pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
+    // Key names become typed keys here, once; an unknown one is reported
+    // with the close matches among this case's keys (or all of them).
+    let read_key = |k: &str| {
+        k.parse::<CaseKey>().map_err(|e| {
+            let e = case.unknown_key_error(&e);
+            let listing = if e.suggestion.is_none() {
+                format!(
+                    "; numeric keys of this case: {}",
+                    case.numeric_keys().join(", ")
+                )
+            } else {
+                String::new()
+            };
+            format!("{e}{listing}")
+        })
+    };
     let axes = vary
         .iter()
-        .map(|s| Axis::parse(s))
+        .map(|s| Axis::parse_with(s, read_key))
         .collect::<Result<Vec<_>, _>>()?;
     let grid = Grid::new(axes)?;
-    let mut seen: Vec<&str> = Vec::new();
+    let mut seen: Vec<CaseKey> = Vec::new();
     let mut points: usize = 1;
     for (axis, spec) in grid.axes.iter().zip(vary) {
         if axis.count > 1 && axis.start == axis.stop {
@@ -51,8 +67,8 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
                 axis.start, axis.count
             )));
         }
-        for key in &axis.keys {
-            if seen.contains(&key.as_str()) {
+        for &key in &axis.keys {
+            if seen.contains(&key) {
                 return Err(Failure::BadInput(format!(
                     "--vary `{spec}`: expected each key on one axis only, found `{key}` twice \
                      (the later value would overwrite the earlier); hint: one --vary per key"
@@ -74,14 +90,13 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
         )));
     }
     // Every value of every axis, one key at a time, before the folder is
-    // claimed: a typo gets its close-match message and a value the key
-    // cannot take (a fractional count, a negative temperature) is refused
-    // before anything is written. Combinations of axes are checked by the
-    // sweep itself.
+    // claimed: a value the key cannot take (a fractional count, a negative
+    // temperature, a missing [[phonon]] entry) is refused before anything
+    // is written. Combinations of axes are checked by the sweep itself.
     for (axis, spec) in grid.axes.iter().zip(vary) {
-        for key in &axis.keys {
+        for &key in &axis.keys {
             for value in (0..axis.count).map(|i| axis.value(i)) {
-                case.with_value(key, value).map_err(|e| {
+                case.with(key, value).map_err(|e| {
                     let listing = if e.suggestion.is_none()
                         && e.kind == qheat::case::CaseErrorKind::UnknownKey
                     {

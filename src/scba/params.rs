@@ -21,11 +21,20 @@ pub enum Mixing {
     },
 }
 
+impl Mixing {
+    /// Default Anderson history depth.
+    pub const DEFAULT_ANDERSON_DEPTH: usize = 6;
+    /// Default Anderson damping β.
+    pub const DEFAULT_ANDERSON_DAMPING: f64 = 1.0;
+    /// Default factor α of linear mixing.
+    pub const DEFAULT_LINEAR_FACTOR: f64 = 0.5;
+}
+
 impl Default for Mixing {
     fn default() -> Self {
         Mixing::Anderson {
-            depth: 6,
-            damping: 1.0,
+            depth: Self::DEFAULT_ANDERSON_DEPTH,
+            damping: Self::DEFAULT_ANDERSON_DAMPING,
         }
     }
 }
@@ -78,12 +87,21 @@ pub struct ScbaParams {
     pub energy_order: EnergyOrder,
 }
 
+impl ScbaParams {
+    /// Default relative tolerance.
+    pub const DEFAULT_TOLERANCE: f64 = 1e-7;
+    /// Default absolute current floor (A).
+    pub const DEFAULT_CURRENT_FLOOR_A: f64 = 1e-18;
+    /// Default iteration limit.
+    pub const DEFAULT_MAX_ITERATIONS: usize = 300;
+}
+
 impl Default for ScbaParams {
     fn default() -> Self {
         Self {
-            tolerance: 1e-7,
-            current_floor_a: 1e-18,
-            max_iterations: 300,
+            tolerance: Self::DEFAULT_TOLERANCE,
+            current_floor_a: Self::DEFAULT_CURRENT_FLOOR_A,
+            max_iterations: Self::DEFAULT_MAX_ITERATIONS,
             mixing: Mixing::default(),
             energy_order: EnergyOrder::Auto,
         }

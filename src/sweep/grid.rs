@@ -2,14 +2,14 @@
 //! last axis fastest.
 
 use super::SweepError;
-use crate::case::Case;
+use crate::case::{Case, CaseKey};
 
 /// One axis of a grid: a case key (or several keys moved together, joined
 /// by `+`) and its evenly spaced values.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct Axis {
     /// The keys set to each value (usually one).
-    pub keys: Vec<String>,
+    pub keys: Vec<CaseKey>,
     /// First value.
     pub start: f64,
     /// Last value.
@@ -20,8 +20,19 @@ pub struct Axis {
 
 impl Axis {
     /// Parse `KEY=START:STOP:COUNT`; `KEY` may be `KEY1+KEY2` to set several
-    /// keys to the same value (for example both lead Fermi levels).
+    /// keys to the same value (for example both lead Fermi levels). An
+    /// unknown key is an error that lists close matches.
     pub fn parse(spec: &str) -> Result<Axis, SweepError> {
+        Axis::parse_with(spec, |k| k.parse::<CaseKey>().map_err(|e| e.to_string()))
+    }
+
+    /// [`Axis::parse`] with the key names read by `read_key`, whose error text
+    /// becomes the reason of the error (the command line lists the keys of
+    /// the case there).
+    pub fn parse_with(
+        spec: &str,
+        read_key: impl Fn(&str) -> Result<CaseKey, String>,
+    ) -> Result<Axis, SweepError> {
         let bad = |why: &str| SweepError::BadAxis {
             spec: spec.to_string(),
             reason: why.to_string(),
@@ -29,8 +40,8 @@ impl Axis {
         let (key, range) = spec
             .split_once('=')
             .ok_or_else(|| bad("expected KEY=START:STOP:COUNT, found no `=`"))?;
-        let keys: Vec<String> = key.split('+').map(|k| k.trim().to_string()).collect();
-        if keys.iter().any(String::is_empty) {
+        let names: Vec<&str> = key.split('+').map(str::trim).collect();
+        if names.iter().any(|k| k.is_empty()) {
             return Err(bad("expected a case key before `=`, found an empty key"));
         }
         let parts: Vec<&str> = range.split(':').collect();
@@ -63,6 +74,10 @@ impl Axis {
         if count == 1 && start != stop {
             return Err(bad("COUNT = 1 needs START = STOP"));
         }
+        let keys = names
+            .iter()
+            .map(|k| read_key(k).map_err(|reason| bad(&reason)))
+            .collect::<Result<Vec<_>, _>>()?;
         Ok(Axis {
             keys,
             start,
@@ -73,7 +88,11 @@ impl Axis {
 
     /// Column name: the key, or the keys joined by `+`.
     pub fn name(&self) -> String {
-        self.keys.join("+")
+        self.keys
+            .iter()
+            .map(CaseKey::to_string)
+            .collect::<Vec<_>>()
+            .join("+")
     }
 
     /// The i-th value: (start (n − i) + stop i)/n with n = count − 1, the end
@@ -169,8 +188,8 @@ impl Grid {
     pub fn case_at(&self, case: &Case, index: usize) -> Result<Case, SweepError> {
         let mut c = case.clone();
         for (axis, v) in self.axes.iter().zip(self.values(index)) {
-            for key in &axis.keys {
-                c = c.with_value(key, v).map_err(|e| SweepError::Case {
+            for &key in &axis.keys {
+                c = c.with(key, v).map_err(|e| SweepError::Case {
                     point: index,
                     source: Box::new(e),
                 })?;
@@ -186,9 +205,13 @@ mod tests {
 
     #[test]
     fn parse_and_order() {
+        let (a, bc) = (
+            "bias.voltage_v",
+            "leads.left.fermi_level_ev+leads.right.fermi_level_ev",
+        );
         let g = Grid::new(vec![
-            Axis::parse("a=0:1:3").unwrap(),
-            Axis::parse("b+c=10:20:2").unwrap(),
+            Axis::parse(&format!("{a}=0:1:3")).unwrap(),
+            Axis::parse(&format!("{bc}=10:20:2")).unwrap(),
         ])
         .unwrap();
         assert_eq!(g.len(), 6);
@@ -197,11 +220,15 @@ mod tests {
         assert_eq!(g.values(1), vec![0.0, 20.0]);
         assert_eq!(g.values(3), vec![0.5, 20.0]);
         assert_eq!(g.values(5), vec![1.0, 20.0]);
-        assert_eq!(g.names(), vec!["a".to_string(), "b+c".to_string()]);
-        assert!(Axis::parse("a=0:1").is_err());
-        assert!(Axis::parse("a=0:1:0").is_err());
-        assert!(Axis::parse("a=0:x:2").is_err());
+        assert_eq!(g.names(), vec![a.to_string(), bc.to_string()]);
+        assert!(Axis::parse(&format!("{a}=0:1")).is_err());
+        assert!(Axis::parse(&format!("{a}=0:1:0")).is_err());
+        assert!(Axis::parse(&format!("{a}=0:x:2")).is_err());
         assert!(Axis::parse("=0:1:2").is_err());
-        assert!(Axis::parse("a=0:1:1").is_err());
+        assert!(Axis::parse(&format!("{a}=0:1:1")).is_err());
+        // Key names are read once, here: a misspelt one is refused with
+        // the close match.
+        let e = Axis::parse("bias.voltge_v=0:1:2").unwrap_err().to_string();
+        assert!(e.contains("did you mean `bias.voltage_v`"), "{e}");
     }
 }

@@ -19,7 +19,7 @@
 //! the runs already share one grid (for instance because the case gives all
 //! three grid keys), the case is left as it is.
 
-use crate::case::{Case, CaseError};
+use crate::case::{Case, CaseError, CaseKey};
 use crate::grid::EnergyGrid;
 use crate::model::Problem;
 
@@ -158,7 +158,7 @@ impl CommonGrid {
 }
 
 fn apply_keys(case: &Case, k: &GridKeys) -> Result<Case, CaseError> {
-    case.with_value("grid.step_ev", k.step_ev)?
-        .with_value("grid.min_ev", k.min_ev)?
-        .with_value("grid.max_ev", k.max_ev)
+    case.with(CaseKey::GridStep, k.step_ev)?
+        .with(CaseKey::GridMin, k.min_ev)?
+        .with(CaseKey::GridMax, k.max_ev)
 }

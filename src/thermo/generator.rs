@@ -25,7 +25,7 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::of_case::{CoefficientError, case_coefficients};
-use crate::case::{Case, CaseError};
+use crate::case::{Case, CaseError, CaseKey};
 use crate::leads::Side;
 use crate::observables::{Observables, observe};
 use crate::progress::{Observer, Silent};
@@ -160,11 +160,14 @@ impl BiasedCase {
     /// temperatures set (the bath keeps the case's own setting).
     pub fn new(case: &Case, mu_ev: f64, t: LeadTemperatures) -> Result<Self, CaseError> {
         let base = case
-            .with_value("leads.left.fermi_level_ev", mu_ev)?
-            .with_value("leads.right.fermi_level_ev", mu_ev)?
-            .with_value("leads.left.temperature_k", t.left_k)?
-            .with_value("leads.right.temperature_k", t.right_k)?;
-        let zero = base.with_value("bias.voltage_v", 0.0)?;
+            .with(CaseKey::LeadFermiLevel(crate::leads::Side::Left), mu_ev)?
+            .with(CaseKey::LeadFermiLevel(crate::leads::Side::Right), mu_ev)?
+            .with(CaseKey::LeadTemperature(crate::leads::Side::Left), t.left_k)?
+            .with(
+                CaseKey::LeadTemperature(crate::leads::Side::Right),
+                t.right_k,
+            )?;
+        let zero = base.with(CaseKey::BiasVoltage, 0.0)?;
         let grid = CommonGrid::choose(std::slice::from_ref(&zero))?;
         Ok(Self {
             fixed: grid.apply(&base)?,
@@ -196,7 +199,7 @@ impl BiasedCase {
         let w = v_abs.max(2.0 * self.covered_v);
         let ends = [-w, 0.0, w]
             .iter()
-            .map(|&v| self.base.with_value("bias.voltage_v", v))
+            .map(|&v| self.base.with(CaseKey::BiasVoltage, v))
             .collect::<Result<Vec<_>, _>>()?;
         let grid = CommonGrid::choose(&ends)?;
         if grid.grid != self.grid.grid || grid.phonon_energies_ev != self.grid.phonon_energies_ev {
@@ -217,7 +220,7 @@ impl BiasedCase {
         observer: &mut dyn Observer,
     ) -> Result<Solved, CurveError> {
         self.cover(v.abs())?;
-        let c = self.fixed.with_value("bias.voltage_v", v)?;
+        let c = self.fixed.with(CaseKey::BiasVoltage, v)?;
         let r = c.resolve()?;
         if !self.grid.matches(&r.problem) {
             return Err(CurveError::Settings(format!(

@@ -8,7 +8,8 @@ use super::common_grid::CommonGrid;
 use super::response::{
     OperatingPoint, ResponseMatrix, difference_points, linear_response, operating_point,
 };
-use crate::case::{Case, CaseError, ResponseSplit};
+use crate::case::{Case, CaseError, CaseKey, ResponseSplit};
+use crate::leads::Side;
 use crate::scba::{Observer, SolveError};
 
 /// Why coefficients could not be computed.
@@ -30,23 +31,23 @@ pub enum CoefficientError {
 /// follows the voltage), lead and bath temperatures set explicitly.
 pub fn case_at(case: &Case, op: &OperatingPoint) -> Result<Case, CaseError> {
     let v = op.voltage_v;
-    let mut c = case.with_value("bias.voltage_v", v)?;
-    c = c.with_value(
-        "leads.left.fermi_level_ev",
+    let mut c = case.with(CaseKey::BiasVoltage, v)?;
+    c = c.with(
+        CaseKey::LeadFermiLevel(Side::Left),
         op.fermi_level_left_ev + 0.5 * v,
     )?;
-    c = c.with_value(
-        "leads.right.fermi_level_ev",
+    c = c.with(
+        CaseKey::LeadFermiLevel(Side::Right),
         op.fermi_level_right_ev - 0.5 * v,
     )?;
-    c = c.with_value("leads.left.temperature_k", op.temperature_left_k)?;
-    c = c.with_value("leads.right.temperature_k", op.temperature_right_k)?;
+    c = c.with(CaseKey::LeadTemperature(Side::Left), op.temperature_left_k)?;
+    c = c.with(
+        CaseKey::LeadTemperature(Side::Right),
+        op.temperature_right_k,
+    )?;
     let phonons = c.resolve()?.problem.scattering.phonons.len();
     for i in 0..phonons {
-        c = c.with_value(
-            &format!("phonon.{i}.bath_temperature_k"),
-            op.bath_temperature_k,
-        )?;
+        c = c.with(CaseKey::PhononBathTemperature(i), op.bath_temperature_k)?;
     }
     Ok(c)
 }

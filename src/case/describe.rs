@@ -1,0 +1,212 @@
+//! The resolved case as text for people (what `qheat check` prints).
+
+use super::check::choice_name;
+use super::resolve::{MAX_SNAP, Resolved};
+use crate::device::BiasDrop;
+use crate::leads::Lead;
+use crate::scba::Mixing;
+use std::fmt::Write as _;
+
+fn lead_text(lead: &Lead) -> String {
+    match lead {
+        Lead::Periodic { .. } => {
+            let (lo, hi) = lead.band_range().unwrap_or((f64::NAN, f64::NAN));
+            format!("periodic, band {lo:.4} to {hi:.4} eV")
+        }
+        Lead::WideBand { gamma } => {
+            format!("wide band, Γ = {:.4} eV per orbital", gamma[(0, 0)].re)
+        }
+    }
+}
+
+impl Resolved {
+    /// The resolved case as text for people (what `qheat check` prints).
+    pub fn describe(&self) -> String {
+        let mut s = String::new();
+        self.describe_device(&mut s);
+        self.describe_contacts(&mut s);
+        self.describe_phonons(&mut s);
+        self.describe_scattering(&mut s);
+        self.describe_settings(&mut s);
+        for n in &self.notes {
+            let _ = writeln!(s, "note: {n}");
+        }
+        for w in &self.warnings {
+            let _ = writeln!(s, "warning: {w}");
+        }
+        s
+    }
+
+    /// Device, hopping and potential.
+    fn describe_device(&self, s: &mut String) {
+        let d = &self.problem.device;
+        let _ = writeln!(
+            s,
+            "device      {}, {} cells × {} orbital(s) per cell, spacing {} nm, length {:.4} nm",
+            self.device_kind,
+            d.cells(),
+            d.orbitals,
+            d.spacing_nm,
+            d.length_nm()
+        );
+        if let Some(t) = self.hopping_ev {
+            let _ = writeln!(
+                s,
+                "hopping     t = {t:.6} eV (band width 4t = {:.4} eV)",
+                4.0 * t
+            );
+        }
+        let umin = d.potential_ev.iter().copied().fold(f64::INFINITY, f64::min);
+        let umax = d
+            .potential_ev
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
+        let _ = writeln!(
+            s,
+            "potential   {umin:.4} to {umax:.4} eV (bias included); lowest band edge in the device {:.4} eV",
+            d.lowest_band_edge()
+        );
+    }
+
+    /// Leads, bias and energy grid.
+    fn describe_contacts(&self, s: &mut String) {
+        let p = &self.problem;
+        let _ = writeln!(
+            s,
+            "left lead   {}; µ = {:.4} eV (µ0 = {:.4} eV), T = {} K",
+            lead_text(&p.left.lead),
+            p.left.fermi_level_ev,
+            self.zero_bias_fermi_levels_ev.0,
+            p.left.temperature_k
+        );
+        let _ = writeln!(
+            s,
+            "right lead  {}; µ = {:.4} eV (µ0 = {:.4} eV), T = {} K",
+            lead_text(&p.right.lead),
+            p.right.fermi_level_ev,
+            self.zero_bias_fermi_levels_ev.1,
+            p.right.temperature_k
+        );
+        let drop = match &self.bias_drop {
+            BiasDrop::Leads => "at the leads".to_string(),
+            BiasDrop::Linear { from_nm, to_nm } => format!("linearly over [{from_nm}, {to_nm}] nm"),
+        };
+        let _ = writeln!(s, "bias        V = {} V, dropped {drop}", self.voltage_v);
+        let g = &p.grid;
+        let _ = writeln!(
+            s,
+            "energies    {:.4} to {:.4} eV, step {:.4} meV, {} points",
+            g.min_ev,
+            g.max_ev(),
+            g.step_ev * 1e3,
+            g.count
+        );
+    }
+
+    /// Phonon modes and how far snapping moved them.
+    fn describe_phonons(&self, s: &mut String) {
+        let phonons = &self.problem.scattering.phonons;
+        if phonons.is_empty() {
+            let _ = writeln!(s, "phonons     none");
+            return;
+        }
+        for (i, m) in phonons.iter().enumerate() {
+            let sites = m.coupling_ev2.iter().filter(|&&x| x > 0.0).count();
+            let dmax = m.coupling_ev2.iter().copied().fold(0.0, f64::max);
+            let _ = writeln!(
+                s,
+                "phonon {i}    ħω {:.3} meV -> {:.3} meV ({} grid steps), coupling {dmax:e} eV² on {sites} orbital sites, bath {} K, occupation {:.4}",
+                m.requested_energy_ev * 1e3,
+                m.energy_ev * 1e3,
+                m.steps,
+                m.bath_temperature_k,
+                m.occupation()
+            );
+        }
+        let worst = phonons
+            .iter()
+            .map(|m| (m.energy_ev / m.requested_energy_ev - 1.0).abs())
+            .fold(0.0, f64::max);
+        let rule = if self.allow_coarse_phonon_snap {
+            "any change accepted (grid.allow_coarse_phonon_snap = true)".to_string()
+        } else {
+            format!(
+                "at most {:.0} % allowed (grid.allow_coarse_phonon_snap = true accepts more)",
+                MAX_SNAP * 100.0
+            )
+        };
+        let _ = writeln!(
+            s,
+            "snapping    ħω moved by at most {:.2} %; {rule}",
+            100.0 * worst
+        );
+    }
+
+    /// Dephasing and the kind of scattering. The
+    /// Hermitian part of the self-energy is mentioned only when something
+    /// scatters: a coherent case has no self-energy to split.
+    fn describe_scattering(&self, s: &mut String) {
+        let p = &self.problem;
+        let deph = &p.scattering.dephasing_ev2;
+        if deph.iter().any(|&x| x > 0.0) {
+            let sites = deph.iter().filter(|&&x| x > 0.0).count();
+            let dmax = deph.iter().copied().fold(0.0, f64::max);
+            let _ = writeln!(s, "dephasing   {dmax:e} eV² on {sites} orbital sites");
+        } else {
+            let _ = writeln!(s, "dephasing   none");
+        }
+        if p.scattering.is_coherent() {
+            let _ = writeln!(s, "scattering  none (coherent)");
+            return;
+        }
+        let _ = writeln!(
+            s,
+            "scattering  self-consistent Born; Hermitian part of Σ_phonon {}",
+            if p.scattering.hermitian_part {
+                "included"
+            } else {
+                "neglected"
+            }
+        );
+    }
+
+    /// Solver (with the energy order when something scatters), spin,
+    /// response and memory.
+    fn describe_settings(&self, s: &mut String) {
+        let p = &self.problem;
+        let mix = match self.scba.mixing {
+            Mixing::Anderson { depth, damping } => {
+                format!("Anderson (depth {depth}, damping {damping})")
+            }
+            Mixing::Linear { factor } => format!("linear (factor {factor})"),
+        };
+        let _ = writeln!(
+            s,
+            "solver      tolerance {:e}, at most {} iterations, {mix}, current floor {:e} A",
+            self.scba.tolerance, self.scba.max_iterations, self.scba.current_floor_a
+        );
+        if !p.scattering.is_coherent() {
+            let order = match crate::scba::red_black_colouring(p, self.scba.energy_order) {
+                Some((w, true)) => {
+                    format!("red-black in bands of {w} grid steps (phonons link opposite colours)")
+                }
+                Some((w, false)) => format!(
+                    "red-black in bands of {w} grid steps (requested; some phonons link \
+                     equal colours, so it gains less)"
+                ),
+                None => "simultaneous (all energies from the same Σ0)".to_string(),
+            };
+            let _ = writeln!(s, "order       {order}");
+        }
+        let _ = writeln!(s, "spin        g_s = {}", p.spin_degeneracy);
+        let _ = writeln!(
+            s,
+            "response    split {}; κ_ph = {} W/K",
+            choice_name(self.response_split),
+            self.phonon_conductance_w_per_k
+        );
+        let mem = self.memory_estimate_bytes() as f64;
+        let _ = writeln!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));
+    }
+}

@@ -1,0 +1,741 @@
+//! The one table of case keys: every key a case file may hold, with its
+//! value type, unit, default and meaning. From it come the numeric keys
+//! that `--vary` and [`super::Case::with`] accept, the shape of the file
+//! that the reader checks before anything else, and `docs/case-keys.md`
+//! ([`keys_markdown`]).
+
+use super::check::{choice_name, choice_names, show};
+use super::sections::device::KindName;
+use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, ResponseSplit};
+use super::spec::DEFAULT_SPIN_DEGENERACY;
+use crate::leads::DecimationParams;
+use crate::scba::{EnergyOrder, Mixing, ScbaParams};
+
+/// What a key holds.
+#[derive(Clone, Copy)]
+pub enum ValueType {
+    /// A number (integers are accepted).
+    Float,
+    /// A whole number.
+    Int,
+    /// `true` or `false`.
+    Bool,
+    /// Free text (a name, a file path).
+    Text,
+    /// One word of a closed set.
+    Choice(fn() -> Vec<&'static str>),
+    /// `"leads"` or a `{ linear = { … } }` table.
+    Drop,
+    /// A key of earlier versions, refused with a message naming its
+    /// replacement.
+    Renamed,
+}
+
+impl ValueType {
+    /// True for the keys whose values are numbers (the keys `--vary` and
+    /// [`super::Case::with`] change).
+    pub fn is_numeric(self) -> bool {
+        matches!(self, ValueType::Float | ValueType::Int)
+    }
+
+    /// The type as people read it.
+    pub fn describe(self) -> String {
+        match self {
+            ValueType::Float => "number".into(),
+            ValueType::Int => "integer".into(),
+            ValueType::Bool => "boolean".into(),
+            ValueType::Text => "string".into(),
+            ValueType::Choice(names) => names()
+                .iter()
+                .map(|n| format!("`\"{n}\"`"))
+                .collect::<Vec<_>>()
+                .join(" or "),
+            ValueType::Drop => "`\"leads\"` or `{ linear = { from_nm, to_nm } }`".into(),
+            ValueType::Renamed => "—".into(),
+        }
+    }
+}
+
+/// The value a key takes when the file leaves it out.
+#[derive(Clone, Copy)]
+pub enum DefaultValue {
+    /// The file must give it.
+    Required,
+    /// A number the code uses as its default.
+    Number(fn() -> f64),
+    /// A word of a closed set that the code uses as its default.
+    Word(fn() -> &'static str),
+    /// Derived or absent; the text says how.
+    Text(&'static str),
+}
+
+impl DefaultValue {
+    /// The default as people read it.
+    pub fn describe(self) -> String {
+        match self {
+            DefaultValue::Required => "required".into(),
+            DefaultValue::Number(f) => format!("`{}`", show(f())),
+            DefaultValue::Word(f) => format!("`\"{}\"`", f()),
+            DefaultValue::Text(t) => t.into(),
+        }
+    }
+}
+
+/// One key of the case file.
+#[derive(Clone, Copy)]
+pub struct KeyInfo {
+    /// Dotted name; `#` stands for an array index (`phonon.#.energy_ev`).
+    pub name: &'static str,
+    /// What it holds.
+    pub ty: ValueType,
+    /// Unit, or "" for none.
+    pub unit: &'static str,
+    /// Value when left out.
+    pub default: DefaultValue,
+    /// What it means.
+    pub meaning: &'static str,
+}
+
+const fn key(
+    name: &'static str,
+    ty: ValueType,
+    unit: &'static str,
+    default: DefaultValue,
+    meaning: &'static str,
+) -> KeyInfo {
+    KeyInfo {
+        name,
+        ty,
+        unit,
+        default,
+        meaning,
+    }
+}
+
+use DefaultValue::{Number, Required, Text, Word};
+use ValueType::{Bool, Drop, Float, Int, Renamed};
+
+fn spin_default() -> f64 {
+    DEFAULT_SPIN_DEGENERACY as f64
+}
+fn zero() -> f64 {
+    0.0
+}
+fn tolerance_default() -> f64 {
+    ScbaParams::DEFAULT_TOLERANCE
+}
+fn iterations_default() -> f64 {
+    ScbaParams::DEFAULT_MAX_ITERATIONS as f64
+}
+fn factor_default() -> f64 {
+    Mixing::DEFAULT_LINEAR_FACTOR
+}
+fn depth_default() -> f64 {
+    Mixing::DEFAULT_ANDERSON_DEPTH as f64
+}
+fn damping_default() -> f64 {
+    Mixing::DEFAULT_ANDERSON_DAMPING
+}
+fn floor_default() -> f64 {
+    ScbaParams::DEFAULT_CURRENT_FLOOR_A
+}
+fn eta_default() -> f64 {
+    DecimationParams::default().eta_ev
+}
+fn decimation_tolerance_default() -> f64 {
+    DecimationParams::default().tolerance_ev
+}
+fn mixing_default() -> &'static str {
+    choice_name(MixingKind::DEFAULT)
+}
+fn hermitian_default() -> &'static str {
+    choice_name(HermitianPart::DEFAULT)
+}
+fn order_default() -> &'static str {
+    choice_name(ScbaParams::default().energy_order)
+}
+fn split_default() -> &'static str {
+    choice_name(ResponseSplit::default())
+}
+fn profile_default() -> &'static str {
+    choice_name(ProfileMode::DEFAULT)
+}
+
+/// Every key, in the order of the file's sections.
+pub static KEYS: &[KeyInfo] = &[
+    key("name", ValueType::Text, "", Required, "case name"),
+    key(
+        "spin_degeneracy",
+        Int,
+        "",
+        Number(spin_default),
+        "spin degeneracy g_s, 1 or 2",
+    ),
+    key(
+        "device.kind",
+        ValueType::Choice(choice_names::<KindName>),
+        "",
+        Required,
+        "device kind: a chain, a strip of width W, or Hamiltonian blocks from files",
+    ),
+    key(
+        "device.builder",
+        Renamed,
+        "",
+        Text("—"),
+        "the name of `device.kind` in earlier versions; refused with a message naming `kind`",
+    ),
+    key("device.spacing_nm", Float, "nm", Required, "cell spacing a"),
+    key(
+        "device.length_nm",
+        Float,
+        "nm",
+        Required,
+        "chain/strip: device length N·a (N = length/spacing must be whole)",
+    ),
+    key(
+        "device.effective_mass",
+        Float,
+        "m0",
+        Required,
+        "chain/strip: effective mass m*; hopping t = ħ²/(2 m* a²)",
+    ),
+    key(
+        "device.band_edge_ev",
+        Float,
+        "eV",
+        Number(zero),
+        "chain/strip: band edge Ec",
+    ),
+    key(
+        "device.width_sites",
+        Int,
+        "sites",
+        Required,
+        "strip: width W (required for a strip, refused otherwise)",
+    ),
+    key(
+        "device.onsite_file",
+        ValueType::Text,
+        "",
+        Required,
+        "blocks: on-site blocks, .npy or .csv, relative to the case file",
+    ),
+    key(
+        "device.coupling_file",
+        ValueType::Text,
+        "",
+        Required,
+        "blocks: coupling blocks, .npy or .csv, relative to the case file",
+    ),
+    key(
+        "device.cells",
+        Int,
+        "",
+        Text("the block count of the on-site file"),
+        "blocks: cell count N (required when the on-site file holds one (b, b) block)",
+    ),
+    key(
+        "device.region.#.from_nm",
+        Float,
+        "nm",
+        Required,
+        "start of a potential region (regions are summed)",
+    ),
+    key(
+        "device.region.#.to_nm",
+        Float,
+        "nm",
+        Required,
+        "end of a potential region",
+    ),
+    key(
+        "device.region.#.offset_ev",
+        Float,
+        "eV",
+        Text("none"),
+        "flat potential of the region (or start_ev + end_ev)",
+    ),
+    key(
+        "device.region.#.start_ev",
+        Float,
+        "eV",
+        Text("none"),
+        "ramp: potential at from_nm",
+    ),
+    key(
+        "device.region.#.end_ev",
+        Float,
+        "eV",
+        Text("none"),
+        "ramp: potential at to_nm",
+    ),
+    key(
+        "leads.left.fermi_level_ev",
+        Float,
+        "eV",
+        Required,
+        "zero-bias Fermi level µ0 of the left lead",
+    ),
+    key(
+        "leads.left.temperature_k",
+        Float,
+        "K",
+        Required,
+        "temperature of the left lead",
+    ),
+    key(
+        "leads.left.band_edge_ev",
+        Float,
+        "eV",
+        Text("the end cell's"),
+        "chain/strip: band edge of an energy-selective left lead",
+    ),
+    key(
+        "leads.left.effective_mass",
+        Float,
+        "m0",
+        Text("the device's"),
+        "chain/strip: effective mass of an energy-selective left lead",
+    ),
+    key(
+        "leads.left.wide_band_ev",
+        Float,
+        "eV",
+        Text("none (periodic lead)"),
+        "Γ of a wide-band left lead (Σ = −iΓ/2 on each orbital of the end cell)",
+    ),
+    key(
+        "leads.right.fermi_level_ev",
+        Float,
+        "eV",
+        Required,
+        "zero-bias Fermi level µ0 of the right lead",
+    ),
+    key(
+        "leads.right.temperature_k",
+        Float,
+        "K",
+        Required,
+        "temperature of the right lead",
+    ),
+    key(
+        "leads.right.band_edge_ev",
+        Float,
+        "eV",
+        Text("the end cell's"),
+        "chain/strip: band edge of an energy-selective right lead",
+    ),
+    key(
+        "leads.right.effective_mass",
+        Float,
+        "m0",
+        Text("the device's"),
+        "chain/strip: effective mass of an energy-selective right lead",
+    ),
+    key(
+        "leads.right.wide_band_ev",
+        Float,
+        "eV",
+        Text("none (periodic lead)"),
+        "Γ of a wide-band right lead",
+    ),
+    key(
+        "bias.voltage_v",
+        Float,
+        "V",
+        Number(zero),
+        "applied voltage V: µL = µL0 − V/2, µR = µR0 + V/2",
+    ),
+    key(
+        "bias.drop",
+        Drop,
+        "",
+        Text("`\"leads\"`"),
+        "where the bias drops: at the leads, or linearly over a region",
+    ),
+    key(
+        "bias.drop.linear.from_nm",
+        Float,
+        "nm",
+        Required,
+        "start of a linear drop",
+    ),
+    key(
+        "bias.drop.linear.to_nm",
+        Float,
+        "nm",
+        Required,
+        "end of a linear drop",
+    ),
+    key(
+        "phonon.#.energy_ev",
+        Float,
+        "eV",
+        Required,
+        "Einstein mode energy ħω (0 < ħω ≤ 0.5 eV), snapped to the grid",
+    ),
+    key(
+        "phonon.#.coupling_ev2",
+        Float,
+        "eV²",
+        Required,
+        "electron-phonon coupling D",
+    ),
+    key(
+        "phonon.#.from_nm",
+        Float,
+        "nm",
+        Text("0"),
+        "start of the coupled region",
+    ),
+    key(
+        "phonon.#.to_nm",
+        Float,
+        "nm",
+        Text("the device length"),
+        "end of the coupled region",
+    ),
+    key(
+        "phonon.#.bath_temperature_k",
+        Float,
+        "K",
+        Text("the mean lead temperature"),
+        "temperature of the phonon bath",
+    ),
+    key(
+        "dephasing.strength_ev2",
+        Float,
+        "eV²",
+        Required,
+        "elastic dephasing strength (a [dephasing] table needs it)",
+    ),
+    key(
+        "dephasing.from_nm",
+        Float,
+        "nm",
+        Text("0"),
+        "start of the dephasing region",
+    ),
+    key(
+        "dephasing.to_nm",
+        Float,
+        "nm",
+        Text("the device length"),
+        "end of the dephasing region",
+    ),
+    key(
+        "grid.step_ev",
+        Float,
+        "eV",
+        Text("kB·T_min/10, made to fit the phonon energies"),
+        "energy step; above kB·T_min an error, above kB·T_min/4 a warning",
+    ),
+    key(
+        "grid.min_ev",
+        Float,
+        "eV",
+        Text("half a step above the lowest band edge"),
+        "lower end of the energy window",
+    ),
+    key(
+        "grid.max_ev",
+        Float,
+        "eV",
+        Text("max(µL, µR) + 20 kB·T_max + the largest ħω"),
+        "upper end of the energy window",
+    ),
+    key(
+        "grid.allow_coarse_phonon_snap",
+        Bool,
+        "",
+        Text("`false`"),
+        "`true` accepts a phonon energy moved by more than 5 % when snapped to the grid",
+    ),
+    key(
+        "solver.tolerance",
+        Float,
+        "",
+        Number(tolerance_default),
+        "relative tolerance of the Born loop, in (0, 1)",
+    ),
+    key(
+        "solver.max_iterations",
+        Int,
+        "",
+        Number(iterations_default),
+        "iteration limit of the Born loop",
+    ),
+    key(
+        "solver.mixing",
+        ValueType::Choice(choice_names::<MixingKind>),
+        "",
+        Word(mixing_default),
+        "mixing scheme",
+    ),
+    key(
+        "solver.mixing_factor",
+        Float,
+        "",
+        Number(factor_default),
+        "linear mixing factor, in (0, 1]",
+    ),
+    key(
+        "solver.anderson_depth",
+        Int,
+        "",
+        Number(depth_default),
+        "Anderson history depth, 1 to 50",
+    ),
+    key(
+        "solver.anderson_damping",
+        Float,
+        "",
+        Number(damping_default),
+        "Anderson damping, in (0, 1]",
+    ),
+    key(
+        "solver.hermitian_part",
+        ValueType::Choice(choice_names::<HermitianPart>),
+        "",
+        Word(hermitian_default),
+        "whether the Hermitian part of the phonon self-energy is kept",
+    ),
+    key(
+        "solver.energy_order",
+        ValueType::Choice(choice_names::<EnergyOrder>),
+        "",
+        Word(order_default),
+        "order of the energies within a Born iteration",
+    ),
+    key(
+        "solver.current_floor_a",
+        Float,
+        "A",
+        Number(floor_default),
+        "absolute current floor of the convergence test",
+    ),
+    key(
+        "solver.decimation_eta_ev",
+        Float,
+        "eV",
+        Number(eta_default),
+        "imaginary part added to the energy in the lead decimation, in (0, 0.1]",
+    ),
+    key(
+        "solver.decimation_tolerance_ev",
+        Float,
+        "eV",
+        Number(decimation_tolerance_default),
+        "stopping tolerance of the lead decimation, in (0, 1e-3]",
+    ),
+    key(
+        "response.split",
+        ValueType::Choice(choice_names::<ResponseSplit>),
+        "",
+        Word(split_default),
+        "how linear response splits the perturbation between the contacts",
+    ),
+    key(
+        "thermal.phonon_conductance_w_per_k",
+        Float,
+        "W/K",
+        Text("0 (noted)"),
+        "lattice thermal conductance κ_ph for ZT",
+    ),
+    key(
+        "profile.electron_temperature",
+        ValueType::Choice(choice_names::<ProfileMode>),
+        "",
+        Word(profile_default),
+        "`\"fit\"` also fits a local electron temperature per cell from the energy density",
+    ),
+];
+
+/// Tables of the file and what each holds (for messages about a value of
+/// the wrong type where a table belongs).
+pub(crate) const SECTIONS: &[(&str, &str)] = &[
+    ("", "a case table"),
+    ("device", "a table of device settings"),
+    (
+        "device.region.#",
+        "a table with from_nm, to_nm and offset_ev or start_ev + end_ev",
+    ),
+    ("leads", "a table with [leads.left] and [leads.right]"),
+    ("leads.left", "a table of lead settings"),
+    ("leads.right", "a table of lead settings"),
+    ("bias", "a table of bias settings"),
+    ("phonon.#", "a table of phonon settings"),
+    ("dephasing", "a table of dephasing settings"),
+    ("grid", "a table of energy grid settings"),
+    ("solver", "a table of solver settings"),
+    ("response", "a table of response settings"),
+    ("thermal", "a table of thermal settings"),
+    ("profile", "a table of profile settings"),
+];
+
+/// What sits at a place of the file.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) enum Node {
+    /// A value of the key with this index in [`KEYS`].
+    Leaf(usize),
+    /// A table whose keys start with the pattern.
+    Table,
+    /// A list of tables, each entry's keys under `pattern.#`.
+    Array,
+}
+
+/// The keys allowed directly under the table at `pattern` (a dotted key
+/// pattern, "" for the top level), in table order, with what each holds.
+pub(crate) fn children(pattern: &str) -> Vec<(&'static str, Node)> {
+    let mut out: Vec<(&'static str, Node)> = Vec::new();
+    for info in KEYS {
+        let rest = if pattern.is_empty() {
+            Some(info.name)
+        } else {
+            info.name
+                .strip_prefix(pattern)
+                .and_then(|r| r.strip_prefix('.'))
+        };
+        let Some(rest) = rest else { continue };
+        let (first, tail) = match rest.split_once('.') {
+            Some((f, t)) => (f, Some(t)),
+            None => (rest, None),
+        };
+        if out.iter().any(|(k, _)| *k == first) {
+            continue;
+        }
+        let node = match tail {
+            None => Node::Leaf(KEYS.iter().position(|k| k.name == info.name).unwrap_or(0)),
+            Some(t) if t.starts_with("#.") => Node::Array,
+            Some(_) => Node::Table,
+        };
+        out.push((first, node));
+    }
+    out
+}
+
+/// What a table at `pattern` holds, for messages.
+pub(crate) fn section_description(pattern: &str) -> &'static str {
+    SECTIONS
+        .iter()
+        .find(|(p, _)| *p == pattern)
+        .map_or("a table", |(_, d)| d)
+}
+
+/// The key reference as Markdown: `docs/case-keys.md` is this text.
+pub fn keys_markdown() -> String {
+    let mut s = String::from(
+        "# Case file keys\n\n\
+         Generated from the key table in `src/case/keys.rs`; do not edit by hand. \
+         Regenerate with `QHEAT_REGEN=1 cargo test --test case_keys_doc`.\n\n\
+         `#` stands for the index of an entry of a list of tables \
+         (`[[device.region]]`, `[[phonon]]`), counted from 0. Numeric keys \
+         (number or integer) are the ones `qheat sweep --vary` and \
+         `qheat screen --vary` accept.\n\n\
+         | key | type | unit | default | meaning |\n|---|---|---|---|---|\n",
+    );
+    for k in KEYS {
+        s.push_str(&format!(
+            "| `{}` | {} | {} | {} | {} |\n",
+            k.name,
+            k.ty.describe(),
+            k.unit,
+            k.default.describe(),
+            k.meaning.replace('|', "\\|")
+        ));
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::raw::{
+        RawBias, RawCase, RawDephasing, RawDevice, RawGrid, RawLead, RawLeads, RawPhonon,
+        RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
+    };
+    use super::*;
+    use serde::Deserialize;
+
+    /// A deserializer that only records the field names a struct asks for.
+    struct Fields(std::cell::RefCell<Vec<&'static str>>);
+
+    #[derive(Debug)]
+    struct Stop;
+    impl std::fmt::Display for Stop {
+        fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+            f.write_str("stop")
+        }
+    }
+    impl std::error::Error for Stop {}
+    impl serde::de::Error for Stop {
+        fn custom<T: std::fmt::Display>(_: T) -> Self {
+            Stop
+        }
+    }
+
+    impl<'de> serde::Deserializer<'de> for &Fields {
+        type Error = Stop;
+        fn deserialize_any<V: serde::de::Visitor<'de>>(self, _: V) -> Result<V::Value, Stop> {
+            Err(Stop)
+        }
+        fn deserialize_struct<V: serde::de::Visitor<'de>>(
+            self,
+            _: &'static str,
+            fields: &'static [&'static str],
+            _: V,
+        ) -> Result<V::Value, Stop> {
+            self.0.borrow_mut().extend_from_slice(fields);
+            Err(Stop)
+        }
+        serde::forward_to_deserialize_any! {
+            bool i8 i16 i32 i64 i128 u8 u16 u32 u64 u128 f32 f64 char str string
+            bytes byte_buf option unit unit_struct newtype_struct seq tuple
+            tuple_struct map enum identifier ignored_any
+        }
+    }
+
+    fn fields_of<T: for<'de> Deserialize<'de>>() -> Vec<&'static str> {
+        let f = Fields(std::cell::RefCell::new(Vec::new()));
+        let _ = T::deserialize(&f);
+        f.0.into_inner()
+    }
+
+    /// Every field of every raw struct is a key of the table (or a table
+    /// of keys), in the same order: the table cannot drift from what the
+    /// reader accepts.
+    #[test]
+    fn every_raw_field_is_in_the_key_table() {
+        let structs: Vec<(&str, Vec<&'static str>)> = vec![
+            ("", fields_of::<RawCase>()),
+            ("device", fields_of::<RawDevice>()),
+            ("device.region.#", fields_of::<RawRegion>()),
+            ("leads", fields_of::<RawLeads>()),
+            ("leads.left", fields_of::<RawLead>()),
+            ("leads.right", fields_of::<RawLead>()),
+            ("bias", fields_of::<RawBias>()),
+            ("phonon.#", fields_of::<RawPhonon>()),
+            ("dephasing", fields_of::<RawDephasing>()),
+            ("grid", fields_of::<RawGrid>()),
+            ("solver", fields_of::<RawSolver>()),
+            ("response", fields_of::<RawResponse>()),
+            ("thermal", fields_of::<RawThermal>()),
+            ("profile", fields_of::<RawProfile>()),
+        ];
+        for (pattern, fields) in &structs {
+            assert!(!fields.is_empty(), "no fields recorded for `{pattern}`");
+            let table: Vec<&str> = children(pattern).iter().map(|(n, _)| *n).collect();
+            assert_eq!(
+                &table, fields,
+                "keys under `{pattern}`: the key table against the raw struct"
+            );
+        }
+        // and every table of the key table is one of these structs
+        for info in KEYS {
+            let parent = info.name.rsplit_once('.').map_or("", |(p, _)| p);
+            let covered =
+                structs.iter().any(|(p, _)| *p == parent) || parent.starts_with("bias.drop");
+            assert!(covered, "`{}` sits in no raw struct", info.name);
+        }
+    }
+}

@@ -1,0 +1,9 @@
+//! One type per section of the case file. Each validates itself from its
+//! raw table, owns its defaults and writes its own messages.
+
+pub(crate) mod bias;
+pub(crate) mod device;
+pub(crate) mod leads;
+pub(crate) mod regions;
+pub(crate) mod scattering;
+pub(crate) mod settings;
