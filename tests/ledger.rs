@@ -188,9 +188,9 @@ fn fermi_level_below_the_search_interval_is_flagged() {
         "{:?}",
         s.fermi_level_ev
     );
-    let j = qheat::output::results::fermi_level_json(&o);
-    assert_eq!(j["outside_interval"], 12, "{j}");
-    assert_eq!(j["cells_below_interval"].as_array().unwrap().len(), 12);
+    let j = qheat::output::results::fermi_level_info(&o);
+    assert_eq!(j.outside_interval, 12, "{j:?}");
+    assert_eq!(j.cells_below_interval.len(), 12);
 
     let p = coherent_problem(d, (0.03, 4.0), (0.03, 4.0), grid);
     let sol = solve(&p, &ScbaParams::default(), None, &mut Silent).unwrap();

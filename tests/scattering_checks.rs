@@ -470,14 +470,15 @@ fn onsager_reciprocity_with_phonons() {
     );
 }
 
-/// Local resistances: the drops of the local Fermi level, with the drop from
-/// the left contact into the first cell, add up to V/I (identity, to
-/// rounding); the largest sits at the barrier.
+/// Local resistances: the drops of the local Fermi level, with the drops
+/// from the left contact into the first cell and from the last cell into
+/// the right contact, add up to V/I (identity, to rounding); the largest
+/// sits at the barrier.
 #[test]
 fn local_resistances_add_up_to_v_over_i() {
     let p = barrier_with_phonons((0.08, 0.02), (300.0, 300.0), &[(0.04, 3e-3)]);
     let (_, o) = solved(&p, &tight());
-    let r_contact = o.contact_drop_left_v / -o.current_a;
+    let r_contact = (o.contact_drop_left_v + o.contact_drop_right_v) / -o.current_a;
     let total: f64 = o.sites.resistance_ohm.iter().sum::<f64>() + r_contact;
     let v_over_i = o.voltage_v / o.current_a;
     assert!(rel(total, v_over_i) < 1e-12, "{total} vs {v_over_i}");

@@ -96,10 +96,16 @@ fn cli_screen_end_to_end() {
     let header: Vec<&str> = lines.next().unwrap().split(',').collect();
     assert_eq!(&header[..2], &["rank", "point"]);
     let z = header.iter().position(|c| *c == "zt").unwrap();
-    let rows: Vec<Vec<f64>> = lines
-        .map(|l| l.split(',').map(|x| x.parse().unwrap()).collect())
-        .collect();
+    // Numbers, and the converged flag as true/false.
+    let cell = |x: &str| match x {
+        "true" => 1.0,
+        "false" => 0.0,
+        _ => x.parse().unwrap(),
+    };
+    let rows: Vec<Vec<f64>> = lines.map(|l| l.split(',').map(cell).collect()).collect();
     assert_eq!(rows.len(), 9);
+    let conv = header.iter().position(|c| *c == "converged").unwrap();
+    assert!(rows.iter().all(|r| r[conv] == 1.0), "{ranking}");
     for (k, r) in rows.iter().enumerate() {
         assert_eq!(r[0], (k + 1) as f64);
         if k > 0 {

@@ -4,7 +4,8 @@ use super::format::si;
 use super::progress::enabled;
 use super::solve::load;
 use super::{Common, Failure, check_memory, default_out, folder};
-use qheat::output::results::program;
+use qheat::output::results::header;
+use qheat::output::schema::summary::{CoefficientsSummary, to_text};
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::thermo::common_grid::CommonGrid;
 use qheat::thermo::{Coefficients, of_case};
@@ -81,29 +82,22 @@ pub fn coefficients(
     let options = folder("coefficients", other_files);
     check_folder(&out_dir, &options)?;
     let (c, detail, grid) = case_coefficients(&case, common.quiet)?;
-    let summary = serde_json::json!({
-        "program": program(),
-        "kind": "coefficients",
-        "case_name": case.name,
-        "case_file": path.display().to_string(),
-        "threads": common.threads,
-        "coefficients": c,
-        "response": detail,
-        "energy_grid": grid,
-        "warnings": resolved.warnings,
-        "notes": resolved.notes,
-        "resolved_case": case.to_toml_string(),
-    });
+    let summary = CoefficientsSummary {
+        header: header("coefficients", &case.name, &path.display().to_string()),
+        threads: common.threads,
+        coefficients: c.clone(),
+        response: detail,
+        energy_grid: grid.clone(),
+        warnings: resolved.warnings.clone(),
+        notes: resolved.notes.clone(),
+        resolved_case: case.to_toml_string(),
+    };
+    let text = to_text(&summary);
     let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write(
-        "summary.json",
-        serde_json::to_string_pretty(&summary)
-            .expect("JSON")
-            .as_bytes(),
-    )?;
+    stage.write("summary.json", text.as_bytes())?;
     stage.commit()?;
     if common.json {
-        println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));
+        println!("{text}");
     } else if !common.quiet {
         print_coefficients(&c);
         println!("energy grid       {}", grid_line(&grid));

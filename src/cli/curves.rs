@@ -1,14 +1,16 @@
 //! `qheat generator` and `qheat cooler`: power and efficiency against load
 //! voltage, cooling power and COP against current.
 
-use super::format::si;
+use super::format::{number, si};
 use super::progress::{CurveProgress, enabled};
 use super::solve::load;
 use super::{Common, Failure, check_memory, default_out, folder};
 use qheat::leads::Side;
 use qheat::output::manifest::check_folder;
-use qheat::output::results::program;
-use qheat::output::{FolderOptions, OtherFiles, Staging, csv_bytes};
+use qheat::output::results::header;
+use qheat::output::schema::summary::{CurveSummary, to_text};
+use qheat::output::schema::tables;
+use qheat::output::{FolderOptions, OtherFiles, Staging};
 use qheat::thermo::cooler::{CoolerSettings, cooler as cooler_curve};
 use qheat::thermo::generator::{CurveError, GeneratorSettings, generator as generator_curve};
 use std::path::{Path, PathBuf};
@@ -56,14 +58,10 @@ fn flag(converged: bool, out_dir: &Path) -> Result<(), Failure> {
         Ok(())
     } else {
         Err(Failure::Solver(format!(
-            "a Born loop did not converge; results in {} are flagged (converged = 0)",
+            "a Born loop did not converge; results in {} are flagged (converged = false)",
             out_dir.display()
         )))
     }
-}
-
-fn b(x: bool) -> f64 {
-    if x { 1.0 } else { 0.0 }
 }
 
 /// Most points on one curve: each is a full solve, and curves this fine
@@ -134,34 +132,13 @@ pub fn generator(
     let r = generator_curve(&case, &settings, &mut progress);
     progress.finish();
     let r = r?;
-    let csv = csv_bytes(
-        &[
-            "voltage_v",
-            "current_a",
-            "power_w",
-            "heat_current_hot_w",
-            "efficiency",
-            "converged",
-        ],
-        r.curve.iter().map(|p| {
-            vec![
-                p.voltage_v,
-                p.current_a,
-                p.power_w,
-                p.heat_current_hot_w,
-                p.efficiency,
-                b(p.converged),
-            ]
-        }),
-    );
-    let mut summary = serde_json::to_value(&r).expect("JSON");
-    summary["program"] = program();
-    summary["kind"] = "generator".into();
-    summary["case_name"] = case.name.clone().into();
-    summary["case_file"] = path.display().to_string().into();
-    summary["conventions"] = "hot lead = left (lead 1) at T_hot, cold lead = right (lead 2) at T_cold; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; P = -I V delivered to the load; efficiency = P / J_Q,hot".into();
-    summary["resolved_case"] = case.to_toml_string().into();
-    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    let csv = tables::generator().csv(&r);
+    let text = to_text(&CurveSummary {
+        result: &r,
+        header: header("generator", &case.name, &path.display().to_string()),
+        conventions: "hot lead = left (lead 1) at T_hot, cold lead = right (lead 2) at T_cold; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; P = -I V delivered to the load; efficiency = P / J_Q,hot".into(),
+        resolved_case: case.to_toml_string(),
+    });
     let figures = qheat::output::plots::generator_figures(&r)?;
     write(&out_dir, &options, "generator.csv", csv, &text, figures)?;
     if common.json {
@@ -175,7 +152,7 @@ pub fn generator(
             "device            S = {:.3} µV/K, ZT = {:.4} at {} K (linear response)",
             r.coefficients.seebeck_v_per_k * 1e6,
             r.coefficients.zt,
-            0.5 * (hot + cold)
+            number(0.5 * (hot + cold))
         );
         println!(
             "open circuit      V_oc = {}  (linear estimate −SΔT = {}); short circuit I = {}",
@@ -240,40 +217,19 @@ pub fn cooler(
     let r = cooler_curve(&case, &settings, &mut progress);
     progress.finish();
     let r = r?;
-    let csv = csv_bytes(
-        &[
-            "voltage_v",
-            "current_a",
-            "cooling_power_w",
-            "input_power_w",
-            "heat_current_hot_w",
-            "cop",
-            "converged",
-        ],
-        r.curve.iter().map(|p| {
-            vec![
-                p.voltage_v,
-                p.current_a,
-                p.cooling_power_w,
-                p.input_power_w,
-                p.heat_current_hot_w,
-                p.cop,
-                b(p.converged),
-            ]
-        }),
-    );
+    let csv = tables::cooler().csv(&r);
     let (cold_name, hot_name) = match cold_lead {
         Side::Left => ("left (lead 1)", "right (lead 2)"),
         Side::Right => ("right (lead 2)", "left (lead 1)"),
     };
-    let mut summary = serde_json::to_value(&r).expect("JSON");
-    summary["program"] = program();
-    summary["kind"] = "cooler".into();
-    summary["case_name"] = case.name.clone().into();
-    summary["case_file"] = path.display().to_string().into();
-    summary["conventions"] = format!("cold lead = {cold_name} at T_cold, hot lead = {hot_name} at T_hot; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; cooling power = heat current out of the cold lead into the device; input power = I V; COP = cooling power / (I V), NaN where either is not positive").into();
-    summary["resolved_case"] = case.to_toml_string().into();
-    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    let text = to_text(&CurveSummary {
+        result: &r,
+        header: header("cooler", &case.name, &path.display().to_string()),
+        conventions: format!(
+            "cold lead = {cold_name} at T_cold, hot lead = {hot_name} at T_hot; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; cooling power = heat current out of the cold lead into the device; input power = I V; COP = cooling power / (I V), NaN where either is not positive"
+        ),
+        resolved_case: case.to_toml_string(),
+    });
     let figures = qheat::output::plots::cooler_figures(&r)?;
     write(&out_dir, &options, "cooler.csv", csv, &text, figures)?;
     if common.json {

@@ -6,6 +6,12 @@ pub fn si(value: f64, unit: &str, digits: usize) -> String {
     qheat::output::format_si(value, unit, digits)
 }
 
+/// A plain number for people: shortest decimals, whole numbers without a
+/// point, no negative zero (the text CSV cells use).
+pub fn number(value: f64) -> String {
+    qheat::output::format_number(value)
+}
+
 /// Relative residual as a short scientific number.
 pub fn residual(v: f64) -> String {
     format!("{v:.1e}")

@@ -3,6 +3,7 @@
 use super::{Common, Failure};
 use qheat::output::manifest::add_file;
 use qheat::output::report::build_report;
+use qheat::output::schema::summary::ReportOutput;
 use std::path::Path;
 
 /// Write DIR/report.html: one self-contained page with the folder's
@@ -26,9 +27,13 @@ pub fn report(dir: &Path, common: &Common) -> Result<(), Failure> {
         other => Failure::from(other),
     })?;
     if common.json {
+        let shown = ReportOutput {
+            report: path.display().to_string(),
+            bytes: html.len(),
+        };
         println!(
             "{}",
-            serde_json::json!({ "report": path.display().to_string(), "bytes": html.len() })
+            serde_json::to_string(&shown).expect("JSON of plain values")
         );
     } else if !common.quiet {
         println!("{}", path.display());

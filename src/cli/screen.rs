@@ -1,12 +1,13 @@
 //! `qheat screen`: figure-of-merit screening over a grid, ranked.
 
 use super::curves::check_curve_options;
-use super::format::si;
+use super::format::{number, si};
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
 use super::{Common, Failure, check_memory, default_out, folder};
-use qheat::output::sweep::table_csv;
-use qheat::output::{OtherFiles, Staging, csv_bytes};
+use qheat::output::schema::summary::{BestPoint, Ranking, to_text};
+use qheat::output::schema::tables::grid_csv;
+use qheat::output::{OtherFiles, Staging};
 use qheat::sweep::screen::{CoolingCurve, Rank, ScreenTask, ranking, ranking_table};
 use std::path::{Path, PathBuf};
 
@@ -88,10 +89,9 @@ pub fn screen(
     let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
     let order = ranking(&table, rank.column())?;
     let (rcols, rrows) = ranking_table(&table, &order);
-    let rheaders: Vec<&str> = rcols.iter().map(String::as_str).collect();
     let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("screen.csv", &table_csv(&table))?;
-    stage.write("ranking.csv", &csv_bytes(&rheaders, rrows))?;
+    stage.write("screen.csv", &grid_csv(&table.columns, &table.rows))?;
+    stage.write("ranking.csv", &grid_csv(&rcols, &rrows))?;
     for (name, svg) in
         qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
     {
@@ -101,15 +101,25 @@ pub fn screen(
         stage.write("ranking.svg", svg.as_bytes())?;
     }
     let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
-    summary["rank_by"] = serde_json::json!(task);
-    summary["ranked_column"] = serde_json::json!(rank.column());
     let c = table.column(rank.column()).expect("ranked column exists");
-    summary["best"] = serde_json::json!(order.iter().take(5).map(|&i| serde_json::json!({
-        "point": i,
-        "values": grid.names().iter().cloned().zip(table.rows[i].iter().copied()).collect::<std::collections::BTreeMap<_, _>>(),
-        rank.column(): table.rows[i][c],
-    })).collect::<Vec<_>>());
-    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    summary.ranking = Some(Ranking {
+        rank_by: task,
+        ranked_column: rank.column().into(),
+        best: order
+            .iter()
+            .take(5)
+            .map(|&i| BestPoint {
+                point: i,
+                values: grid
+                    .names()
+                    .into_iter()
+                    .zip(table.rows[i].iter().copied())
+                    .collect(),
+                score: [(rank.column().to_string(), table.rows[i][c])].into(),
+            })
+            .collect(),
+    });
+    let text = to_text(&summary);
     stage.write("summary.json", text.as_bytes())?;
     stage.commit()?;
     if common.json {
@@ -126,7 +136,7 @@ pub fn screen(
                 .names()
                 .iter()
                 .zip(&table.rows[i])
-                .map(|(k, v)| format!("{k} = {v}"))
+                .map(|(k, v)| format!("{k} = {}", number(*v)))
                 .collect();
             let score = table.rows[i][c];
             let shown = match rank {

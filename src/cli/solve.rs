@@ -1,11 +1,15 @@
 //! `qheat check` and `qheat solve`.
 
-use super::format::{residual, si};
+use super::format::{number, residual, si};
 use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
 use qheat::observables::{Observables, ObserveOptions, observe_with};
-use qheat::output::results::{RunInfo, read_self_energy, solve_summary, write_solve_files};
+use qheat::output::results::{RunInfo, header, read_self_energy, solve_summary, write_solve_files};
+use qheat::output::schema::summary::{
+    CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SolveResults,
+    SolveSummary, to_text,
+};
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::scba::{Solution, SolveError, solve as born_solve};
 use std::path::Path;
@@ -23,157 +27,86 @@ pub fn check(path: &Path, common: &Common) -> Result<(), Failure> {
     let case = Case::load(path)?;
     let resolved = case.resolve()?;
     if common.json {
-        let v = serde_json::json!({
-            "case_name": case.name,
-            "cells": resolved.problem.device.cells(),
-            "orbitals_per_cell": resolved.problem.device.orbitals,
-            "grid": resolved.problem.grid,
-            "phonons": resolved.problem.scattering.phonons.iter().map(|m| serde_json::json!({
-                "requested_energy_ev": m.requested_energy_ev, "energy_ev": m.energy_ev, "grid_steps": m.steps,
-                "bath_temperature_k": m.bath_temperature_k})).collect::<Vec<_>>(),
-            "memory_estimate_bytes": resolved.memory_estimate_bytes(),
-            "warnings": resolved.warnings,
-            "notes": resolved.notes,
-        });
-        println!("{}", serde_json::to_string_pretty(&v).expect("JSON"));
+        let p = &resolved.problem;
+        let v = CheckOutput {
+            case_name: case.name.clone(),
+            cells: p.device.cells(),
+            orbitals_per_cell: p.device.orbitals,
+            grid: serde_json::to_value(&p.grid).expect("JSON of plain values"),
+            phonons: p
+                .scattering
+                .phonons
+                .iter()
+                .map(|m| CheckPhonon {
+                    requested_energy_ev: m.requested_energy_ev,
+                    energy_ev: m.energy_ev,
+                    grid_steps: m.steps,
+                    bath_temperature_k: m.bath_temperature_k,
+                })
+                .collect(),
+            memory_estimate_bytes: resolved.memory_estimate_bytes(),
+            warnings: resolved.warnings.clone(),
+            notes: resolved.notes.clone(),
+        };
+        println!("{}", to_text(&v));
     } else if !common.quiet {
         print!("{}", resolved.describe());
     }
     Ok(())
 }
 
-/// Human summary of one operating point.
-pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
-    let r = &sol.report;
+/// Human summary of one operating point. Every number shown is a value of
+/// the summary (`summary.json`), so the file holds all the terminal shows.
+pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, out: &Path) {
+    let r = &summary.results;
+    let op = &summary.operating_point;
     println!(
         "operating point   V = {}, T = {} K / {} K",
-        si(o.voltage_v, "V", 4),
-        sol.problem.left.temperature_k,
-        sol.problem.right.temperature_k
+        si(r.voltage_v, "V", 4),
+        number(op.temperature_left_k),
+        number(op.temperature_right_k)
     );
-    if sol.problem.scattering.is_coherent() {
-        println!("transport         coherent (no scattering inside the device)");
-    } else {
-        println!(
-            "Born loop         {} after {} iterations ({} energy order), residual {}{}",
-            if r.converged {
-                "converged"
-            } else {
-                "NOT CONVERGED"
-            },
-            r.iterations,
-            match r.energy_order {
-                qheat::scba::EnergyOrder::RedBlack => "red-black",
-                _ => "simultaneous",
-            },
-            r.history
-                .last()
-                .map(|h| residual(h.residual))
-                .unwrap_or_default(),
-            if r.hermitian_part {
-                ", Hermitian part included"
-            } else {
-                ""
-            }
-        );
-    }
-    println!("current           I = {}", si(o.current_a, "A", 4));
-    if let Some(g) = o.conductance_s {
+    print_born_loop(sol);
+    println!("current           I = {}", si(r.current_a, "A", 4));
+    if let Some(g) = r.conductance_s {
         println!("conductance       G = I/V = {}", si(g, "S", 4));
     }
     println!(
         "heat current      left {}  right {}  (out of each contact into the device)",
-        si(o.heat_current_left_w, "W", 4),
-        si(o.heat_current_right_w, "W", 4)
+        si(r.heat_current_left_w, "W", 4),
+        si(r.heat_current_right_w, "W", 4)
     );
     println!(
         "electrical power  I·V = {}",
-        si(o.electrical_power_w, "W", 4)
+        si(r.electrical_power_w, "W", 4)
     );
     if sol.problem.scattering.phonons.is_empty() {
         println!(
             "lattice power     {} in total (electron side)",
-            si(o.lattice_power_w, "W", 4)
+            si(r.lattice_power_w, "W", 4)
         );
     } else {
         // The two routes agree at the fixed point of the Born loop.
         println!(
             "lattice power     electron side {}  phonon side {}",
-            si(o.lattice_power_w, "W", 4),
-            si(o.lattice_power_phonon_side_w, "W", 4)
+            si(r.lattice_power_w, "W", 4),
+            si(r.lattice_power_phonon_side_w, "W", 4)
         );
     }
-    if !sol.problem.scattering.is_coherent() {
-        let p = &o.sites.lattice_power_w;
-        let (imax, pmax) =
-            p.iter().enumerate().fold(
-                (0, f64::NEG_INFINITY),
-                |a, (i, &v)| if v > a.1 { (i, v) } else { a },
+    for (label, cell) in [
+        ("  hottest cell ", &r.hottest_cell_w),
+        ("  coolest cell ", &r.coolest_cell_w),
+    ] {
+        if let Some(c) = cell {
+            println!(
+                "{label}   x = {} nm: {}",
+                number(c.x_nm),
+                si(c.value, "W", 3)
             );
-        let (imin, pmin) =
-            p.iter().enumerate().fold(
-                (0, f64::INFINITY),
-                |a, (i, &v)| if v < a.1 { (i, v) } else { a },
-            );
-        println!(
-            "  hottest cell    x = {:.2} nm: {}",
-            o.sites.x_nm[imax],
-            si(pmax, "W", 3)
-        );
-        println!(
-            "  coolest cell    x = {:.2} nm: {}",
-            o.sites.x_nm[imin],
-            si(pmin, "W", 3)
-        );
+        }
     }
-    let drops = &o.sites.voltage_drop_v;
-    if let Some((i, d)) = drops
-        .iter()
-        .enumerate()
-        .take(drops.len().saturating_sub(1))
-        .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
-    {
-        println!(
-            "largest drop      of the local Fermi level at x = {:.2} nm: {}",
-            o.sites.x_nm[i],
-            si(*d, "V", 3)
-        );
-    }
-    if let (Some(first), Some(last)) = (
-        o.sites.fermi_level_ev.first(),
-        o.sites.fermi_level_ev.last(),
-    ) {
-        // Where the applied voltage goes: into the contacts (including the
-        // quantum contact resistance) or across the device itself.
-        println!(
-            "Fermi-level drop  left contact {}, inside the device {}, right contact {}",
-            si(o.contact_drop_left_v, "V", 3),
-            si(first - last, "V", 3),
-            si(drops.last().copied().unwrap_or(0.0), "V", 3)
-        );
-    }
-    use qheat::observables::FermiLevelStatus;
-    let st = &o.sites.fermi_level_status;
-    let outside: Vec<String> = st
-        .iter()
-        .enumerate()
-        .filter(|(_, f)| {
-            matches!(
-                f,
-                FermiLevelStatus::BelowInterval | FermiLevelStatus::AboveInterval
-            )
-        })
-        .map(|(i, _)| i.to_string())
-        .collect();
-    if !outside.is_empty() {
-        let (lo, hi) = o.sites.fermi_level_interval_ev;
-        println!(
-            "local Fermi level outside [{lo:.3}, {hi:.3}] eV in {} cell(s): {} (written as NaN, \
-             flagged in sites.csv)",
-            outside.len(),
-            outside.join(", ")
-        );
-    }
+    print_drops(r);
+    print_fermi_level_flags(&summary.local_fermi_level);
     let l = &o.ledger;
     println!(
         "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
@@ -185,6 +118,74 @@ pub fn print_summary(sol: &Solution, o: &Observables, out: &Path) {
         residual(l.energy_relative)
     );
     println!("results           {}", out.display());
+}
+fn print_born_loop(sol: &Solution) {
+    let r = &sol.report;
+    if sol.problem.scattering.is_coherent() {
+        println!("transport         coherent (no scattering inside the device)");
+        return;
+    }
+    println!(
+        "Born loop         {} after {} iterations ({} energy order), residual {}{}",
+        if r.converged {
+            "converged"
+        } else {
+            "NOT CONVERGED"
+        },
+        r.iterations,
+        match r.energy_order {
+            qheat::scba::EnergyOrder::RedBlack => "red-black",
+            _ => "simultaneous",
+        },
+        r.history
+            .last()
+            .map(|h| residual(h.residual))
+            .unwrap_or_default(),
+        if r.hermitian_part {
+            ", Hermitian part included"
+        } else {
+            ""
+        }
+    );
+}
+
+/// Where the applied voltage goes: into the contacts (including the
+/// quantum contact resistance) or across the device itself.
+fn print_drops(r: &SolveResults) {
+    if let Some(d) = &r.largest_drop_v {
+        println!(
+            "largest drop      of the local Fermi level at x = {} nm: {}",
+            number(d.x_nm),
+            si(d.value, "V", 3)
+        );
+    }
+    println!(
+        "Fermi-level drop  left contact {}, inside the device {}, right contact {}",
+        si(r.contact_drop_left_v, "V", 3),
+        si(r.interior_drop_v, "V", 3),
+        si(r.contact_drop_right_v, "V", 3)
+    );
+}
+
+fn print_fermi_level_flags(f: &FermiLevelInfo) {
+    let mut outside: Vec<usize> = f
+        .cells_below_interval
+        .iter()
+        .chain(&f.cells_above_interval)
+        .copied()
+        .collect();
+    if outside.is_empty() {
+        return;
+    }
+    outside.sort_unstable();
+    let list: Vec<String> = outside.iter().map(usize::to_string).collect();
+    let [lo, hi] = f.search_interval_ev;
+    println!(
+        "local Fermi level outside [{lo:.3}, {hi:.3}] eV in {} cell(s): {} (written as NaN, \
+         flagged in sites.csv)",
+        outside.len(),
+        list.join(", ")
+    );
 }
 
 /// `qheat solve CASE`.
@@ -242,9 +243,9 @@ pub fn solve(
     qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
     stage.commit()?;
     if common.json {
-        println!("{}", serde_json::to_string_pretty(&summary).expect("JSON"));
+        println!("{}", to_text(&summary));
     } else if !common.quiet {
-        print_summary(&sol, &o, &out_dir);
+        print_summary(&sol, &o, &summary, &out_dir);
     }
     if !sol.report.converged {
         let last = sol.report.history.last();
@@ -268,28 +269,22 @@ fn write_failure(
     error: &SolveError,
 ) -> Result<(), Failure> {
     let location = error.location();
-    let v = serde_json::json!({
-        "program": qheat::output::results::program(),
-        "kind": "solve",
-        "case_name": info.case_name,
-        "case_file": info.case_file,
-        "threads": info.threads,
-        "converged": false,
-        "trustworthy": false,
-        "error": error.to_string(),
-        "fault": {
-            "kind": error.kind(),
-            "energy_ev": location.map(|l| l.0),
-            "cell": location.and_then(|l| l.1),
+    let v = FailedSolveSummary {
+        header: header("solve", info.case_name, info.case_file),
+        threads: info.threads,
+        converged: false,
+        trustworthy: false,
+        error: error.to_string(),
+        fault: Fault {
+            kind: error.kind().into(),
+            energy_ev: location.map(|l| l.0),
+            cell: location.and_then(|l| l.1),
         },
-        "warnings": info.warnings,
-        "resolved_case": info.case_toml,
-    });
+        warnings: info.warnings.to_vec(),
+        resolved_case: info.case_toml.into(),
+    };
     let stage = Staging::with_options(out_dir, &folder("failed-solve", other_files))?;
-    stage.write(
-        "summary.json",
-        serde_json::to_string_pretty(&v).expect("JSON").as_bytes(),
-    )?;
+    stage.write("summary.json", to_text(&v).as_bytes())?;
     stage.commit()?;
     Ok(())
 }

@@ -12,8 +12,10 @@ use super::solve::load;
 use super::{Common, Failure, available_memory_bytes, check_memory, default_out, folder};
 use qheat::case::{Case, CaseKey};
 use qheat::output::manifest::claim_store;
-use qheat::output::results::program;
-use qheat::output::sweep::{PointFolder, table_csv};
+use qheat::output::results::header;
+use qheat::output::schema::summary::{GridSummary, to_text};
+use qheat::output::schema::tables::grid_csv;
+use qheat::output::sweep::PointFolder;
 use qheat::output::{FolderOptions, OtherFiles, Staging};
 use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
 use std::path::{Path, PathBuf};
@@ -146,25 +148,24 @@ pub fn grid_summary(
     grid: &Grid,
     table: &SweepTable,
     common: &Common,
-) -> serde_json::Value {
-    serde_json::json!({
-        "program": program(),
-        "kind": kind,
-        "case_name": case.name,
-        "case_file": path.display().to_string(),
-        "threads": common.threads,
-        "axes": grid.axes,
-        "order": "row-major, last axis fastest",
-        "points": grid.len(),
-        "computed_this_run": table.computed,
-        "from_earlier_runs": grid.len() - table.computed,
-        "parallel_lines": table.parallel_lines,
-        "point_store": table.store,
-        "unconverged_points": table.unconverged(),
-        "converged": table.unconverged().is_empty(),
-        "columns": table.columns,
-        "resolved_case": case.to_toml_string(),
-    })
+) -> GridSummary {
+    GridSummary {
+        header: header(kind, &case.name, &path.display().to_string()),
+        threads: common.threads,
+        axes: grid.axes.clone(),
+        order: "row-major, last axis fastest".into(),
+        points: grid.len(),
+        computed_this_run: table.computed,
+        from_earlier_runs: grid.len() - table.computed,
+        parallel_lines: table.parallel_lines,
+        point_store: table.store.clone(),
+        unconverged_points: table.unconverged(),
+        converged: table.unconverged().is_empty(),
+        columns: table.columns.clone(),
+        warm_start: None,
+        ranking: None,
+        resolved_case: case.to_toml_string(),
+    }
 }
 
 /// Exit code 2 when some point did not converge (results written, flagged).
@@ -174,7 +175,7 @@ pub fn convergence_outcome(table: &SweepTable, out_dir: &Path) -> Result<(), Fai
         Ok(())
     } else {
         Err(Failure::Solver(format!(
-            "{} of {} points did not converge (first: point {}); they are flagged converged = 0 in {}",
+            "{} of {} points did not converge (first: point {}); they are flagged converged = false in {}",
             bad.len(),
             table.rows.len(),
             bad[0],
@@ -208,7 +209,7 @@ pub fn sweep(
         &case.name,
     )?;
     let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("sweep.csv", &table_csv(&table))?;
+    stage.write("sweep.csv", &grid_csv(&table.columns, &table.rows))?;
     let quantities = [
         "current_a",
         "heat_current_left_w",
@@ -220,10 +221,10 @@ pub fn sweep(
         stage.write(&name, svg.as_bytes())?;
     }
     let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
-    summary["warm_start"] = serde_json::json!(
-        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match"
+    summary.warm_start = Some(
+        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match".into(),
     );
-    let text = serde_json::to_string_pretty(&summary).expect("JSON");
+    let text = to_text(&summary);
     stage.write("summary.json", text.as_bytes())?;
     stage.commit()?;
     if common.json {

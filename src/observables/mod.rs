@@ -61,11 +61,16 @@ pub struct SiteProfile {
     pub lattice_power_w: Vec<f64>,
     /// Electrons per nm along the device (spin included).
     pub electron_density_per_nm: Vec<f64>,
-    /// Drop of the local Fermi level to the next cell, (µ_i − µ_i+1)/e (V);
-    /// the last cell carries the drop into the right contact, µ_N − µ_2.
+    /// Drop of the local Fermi level to the next cell, (µ_i − µ_i+1)/e (V),
+    /// positive where the level falls along +x; 0 in the last cell, which
+    /// has no next cell inside the device. The entries add up to the drop
+    /// across the device, (µ_first − µ_last)/e; the drops into the contacts
+    /// are [`Observables::contact_drop_left_v`] and
+    /// [`Observables::contact_drop_right_v`].
     pub voltage_drop_v: Vec<f64>,
-    /// Local resistance R_i = (µ_i − µ_i+1)/(−e I) (Ω); with the drop from
-    /// the left contact into the first cell, the sum is V/I. NaN at I = 0.
+    /// Local resistance R_i = (µ_i − µ_i+1)/(−e I) (Ω), 0 in the last cell;
+    /// with the resistances of the two contact drops, the sum is V/I. NaN
+    /// at I = 0.
     pub resistance_ohm: Vec<f64>,
     /// Local electron temperature (K) when asked for.
     pub electron_temperature_k: Option<Vec<f64>>,
@@ -113,6 +118,10 @@ pub struct Observables {
     /// Drop of the Fermi level from the left contact into the first cell
     /// (µ_1 − µ_first)/e (V).
     pub contact_drop_left_v: f64,
+    /// Drop of the Fermi level from the last cell into the right contact
+    /// (µ_last − µ_2)/e (V). With [`Observables::contact_drop_left_v`] and
+    /// the per-cell drops it adds up to (µ_1 − µ_2)/e = −V.
+    pub contact_drop_right_v: f64,
     /// Conservation ledger.
     pub ledger: Ledger,
     /// Profiles per cell.
@@ -257,16 +266,12 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
 
     let levels = local_fermi_levels(sol);
     let n = p.device.cells();
-    let mut voltage_drop_v = Vec::with_capacity(n);
-    for i in 0..n {
-        let next = if i + 1 < n {
-            levels.fermi_level_ev[i + 1]
-        } else {
-            mu2
-        };
-        voltage_drop_v.push(levels.fermi_level_ev[i] - next);
-    }
-    let contact_drop_left_v = mu1 - levels.fermi_level_ev[0];
+    let mu = &levels.fermi_level_ev;
+    let voltage_drop_v: Vec<f64> = (0..n)
+        .map(|i| if i + 1 < n { mu[i] - mu[i + 1] } else { 0.0 })
+        .collect();
+    let contact_drop_left_v = mu1 - mu[0];
+    let contact_drop_right_v = mu[n - 1] - mu2;
     let sites = SiteProfile {
         x_nm: p.device.x_nm.clone(),
         band_edge_ev: p.device.band_edge_ev.clone(),
@@ -310,6 +315,7 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         electrical_power_w,
         conductance_s,
         contact_drop_left_v,
+        contact_drop_right_v,
         ledger,
         sites,
         spectrum,

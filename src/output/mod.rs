@@ -11,6 +11,7 @@ pub mod manifest;
 pub mod plots;
 pub mod report;
 pub mod results;
+pub mod schema;
 pub mod sweep;
 
 use std::fs;
@@ -124,12 +125,26 @@ pub fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
     fs::rename(&tmp, path).map_err(io("renaming into place", path))
 }
 
-/// A table with named columns (units in the names) written as CSV.
+/// A table with named columns (units in the names) written as CSV, every
+/// cell a number.
 pub fn csv_bytes(headers: &[&str], rows: impl IntoIterator<Item = Vec<f64>>) -> Vec<u8> {
+    cells_csv_bytes(
+        headers,
+        rows.into_iter()
+            .map(|r| r.into_iter().map(schema::Cell::Num).collect()),
+    )
+}
+
+/// A table with named columns written as CSV, each cell formatted by
+/// [`schema::Cell::text`].
+pub fn cells_csv_bytes(
+    headers: &[&str],
+    rows: impl IntoIterator<Item = Vec<schema::Cell>>,
+) -> Vec<u8> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(headers).expect("in-memory CSV");
     for row in rows {
-        w.write_record(row.iter().map(|v| format_number(*v)))
+        w.write_record(row.iter().map(schema::Cell::text))
             .expect("in-memory CSV");
     }
     w.into_inner().expect("in-memory CSV")
@@ -167,12 +182,23 @@ pub fn format_si(value: f64, unit: &str, digits: usize) -> String {
     format!("{scaled:.decimals$} {p}{unit}")
 }
 
-/// Shortest text that reads back to the same f64.
+/// Text of a number for files and terminals: the shortest decimal that
+/// reads back to the same f64, whole numbers without a decimal point, no
+/// negative zero, and exponent form only below 1e-4 or from 1e15 on in
+/// magnitude; NaN and infinities as `NaN`, `inf`, `-inf`.
 pub fn format_number(v: f64) -> String {
-    if v.is_finite() {
-        format!("{v:e}")
+    if !v.is_finite() {
+        return v.to_string();
+    }
+    if v == 0.0 {
+        return "0".into();
+    }
+    let mag = v.abs();
+    if (1e-4..1e15).contains(&mag) {
+        // Display gives the shortest round-trip digits without an exponent.
+        format!("{v}")
     } else {
-        v.to_string()
+        format!("{v:e}")
     }
 }
 

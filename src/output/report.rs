@@ -9,6 +9,7 @@
 //! reports as well as a full solve.
 
 use super::OutputError;
+use super::schema::summary::SolveSummary;
 use serde_json::{Map, Value};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -22,10 +23,10 @@ const FIGURE_ORDER: [&str; 4] = [
 ];
 
 /// Data files of a solve, listed but not tabulated (they are long).
-const DATA_FILES: [(&str, &str); 7] = [
+const DATA_FILES: [(&str, &str); 8] = [
     (
         "sites.csv",
-        "per cell: position, band edge, local Fermi level and its status, lattice power, density, drop",
+        "per cell: position, band edge, local Fermi level and its status, lattice power, density, drop to the next cell",
     ),
     (
         "spectrum.csv",
@@ -38,6 +39,10 @@ const DATA_FILES: [(&str, &str); 7] = [
     (
         "bond_current.npy",
         "energy-resolved bond current, (cells − 1) × energies, A/eV",
+    ),
+    (
+        "bond_current.npz",
+        "the bond-current map with its axes: bond positions (nm) and energies (eV)",
     ),
     (
         "self_energy_retarded.npy",
@@ -84,37 +89,19 @@ pub fn si(value: f64, unit: &str) -> String {
     super::format_si(value, unit, 4)
 }
 
-/// Unit from the key's suffix (the project writes units into key names).
-fn unit_of(key: &str) -> Option<(&'static str, &str)> {
-    const SUFFIXES: [(&str, &str); 16] = [
-        ("_w_per_k2", "W/K²"),
-        ("_w_per_k", "W/K"),
-        ("_v_per_k", "V/K"),
-        ("_a_per_ev", "A/eV"),
-        ("_per_nm", "1/nm"),
-        ("_ev2", "eV²"),
-        ("_ev", "eV"),
-        ("_nm", "nm"),
-        ("_k", "K"),
-        ("_a", "A"),
-        ("_w", "W"),
-        ("_v", "V"),
-        ("_s", "S"),
-        ("_bytes", "B"),
-        ("_j", "J"),
-        ("_m", "m"),
-    ];
-    SUFFIXES
-        .iter()
-        .find(|(s, _)| key.ends_with(s) && key.len() > s.len())
-        .map(|(s, u)| (*u, &key[..key.len() - s.len()]))
+/// Unit of a summary key from the output schema, looked up by its path
+/// (`results.current_a`); `None` for plain numbers, text and flags.
+fn unit_of(path: &str) -> Option<&'static str> {
+    super::schema::keys::key_doc(path)
+        .map(|(u, _)| u)
+        .filter(|u| !matches!(*u, "1" | "-") && !u.contains(' '))
 }
 
 /// Units shown with SI prefixes.
 const PREFIXED: [&str; 9] = ["A", "W", "V", "S", "W/K", "V/K", "W/K²", "A/eV", "eV"];
 
 /// Keys shown first, in this order; others follow alphabetically.
-const ORDER: [&str; 32] = [
+const ORDER: [&str; 34] = [
     "voltage_v",
     "current_a",
     "conductance_s",
@@ -128,6 +115,8 @@ const ORDER: [&str; 32] = [
     "current_left_a",
     "current_right_a",
     "contact_drop_left_v",
+    "interior_drop_v",
+    "contact_drop_right_v",
     "fermi_level_left_ev",
     "fermi_level_right_ev",
     "temperature_left_k",
@@ -176,6 +165,8 @@ fn known_name(key: &str) -> Option<&'static str> {
         "electrical_power_w" => "electrical power I·V",
         "conductance_s" => "conductance G = I/V",
         "contact_drop_left_v" => "Fermi-level drop into the left contact",
+        "interior_drop_v" => "Fermi-level drop across the device",
+        "contact_drop_right_v" => "Fermi-level drop into the right contact",
         "charge_a" => "charge residual I₁ + I₂",
         "charge_scale_a" => "charge scale max(|I₁|, current floor)",
         "charge_relative" => "charge residual, relative",
@@ -205,8 +196,9 @@ fn known_name(key: &str) -> Option<&'static str> {
     })
 }
 
-/// One table cell for a JSON value under `key`.
-fn show_value(key: &str, v: &Value) -> String {
+/// One table cell for a JSON value at `path` (its unit from the schema).
+fn show_value(path: &str, v: &Value) -> String {
+    let key = path.rsplit('.').next().unwrap_or(path);
     match v {
         Value::Null => "—".into(),
         Value::Bool(b) => if *b { "yes" } else { "no" }.into(),
@@ -216,16 +208,16 @@ fn show_value(key: &str, v: &Value) -> String {
                 return escape(&n.to_string());
             };
             if n.is_i64() || n.is_u64() {
-                return match unit_of(key) {
-                    Some((u, _)) => format!("{n} {u}"),
+                return match unit_of(path) {
+                    Some(u) => format!("{n} {u}"),
                     None => n.to_string(),
                 };
             }
-            match unit_of(key) {
+            match unit_of(path) {
                 // Prefixes only where they read naturally (no "mnm", no
                 // "meV²" for 1e-3 eV²).
-                Some((u, _)) if PREFIXED.contains(&u) => escape(&si(x, u)),
-                Some((u, _)) => format!("{} {u}", trim(x)),
+                Some(u) if PREFIXED.contains(&u) => escape(&si(x, u)),
+                Some(u) => format!("{} {}", trim(x), escape(u)),
                 None if key.contains("relative") || key.contains("residual") => {
                     format!("{x:.2e}")
                 }
@@ -235,7 +227,7 @@ fn show_value(key: &str, v: &Value) -> String {
         Value::Array(a) => {
             if a.len() <= 8 && a.iter().all(|x| !x.is_object() && !x.is_array()) {
                 a.iter()
-                    .map(|x| show_value(key, x))
+                    .map(|x| show_value(path, x))
                     .collect::<Vec<_>>()
                     .join(", ")
             } else {
@@ -266,32 +258,45 @@ fn trim(x: f64) -> String {
 }
 
 fn label_of(key: &str) -> String {
-    if let Some(n) = known_name(key) {
-        return n.to_string();
+    match known_name(key) {
+        Some(n) => n.to_string(),
+        None => key.replace('_', " "),
     }
-    let base = unit_of(key).map(|(_, b)| b).unwrap_or(key);
-    base.replace('_', " ")
 }
 
-/// Rows (label, value) of an object, nested objects flattened with a
-/// "parent / child" label.
-fn rows_of(prefix: &str, obj: &Map<String, Value>, out: &mut Vec<(String, String)>) {
+fn join(path: &str, key: &str) -> String {
+    if path.is_empty() {
+        key.to_string()
+    } else {
+        format!("{path}.{key}")
+    }
+}
+
+/// Rows (label, value) of the object at `path`, nested objects flattened
+/// with a "parent / child" label.
+fn rows_of(path: &str, prefix: &str, obj: &Map<String, Value>, out: &mut Vec<(String, String)>) {
     for (k, v) in ordered(obj) {
         let label = if prefix.is_empty() {
             label_of(k)
         } else {
             format!("{prefix} / {}", label_of(k))
         };
+        let at = join(path, k);
         match v {
-            Value::Object(inner) => rows_of(&label, inner, out),
+            Value::Object(inner) => rows_of(&at, &label, inner, out),
             Value::Array(items) if items.iter().all(Value::is_object) && !items.is_empty() => {
                 for (i, item) in items.iter().enumerate() {
                     if let Value::Object(inner) = item {
-                        rows_of(&format!("{label} {}", i + 1), inner, out);
+                        rows_of(
+                            &format!("{at}[]"),
+                            &format!("{label} {}", i + 1),
+                            inner,
+                            out,
+                        );
                     }
                 }
             }
-            _ => out.push((escape(&label), show_value(k, v))),
+            _ => out.push((escape(&label), show_value(&at, v))),
         }
     }
 }
@@ -329,13 +334,16 @@ fn convergence_rows(summary: &Map<String, Value>) -> Vec<(String, String)> {
     }
     if let Some(Value::Object(scba)) = summary.get("scba") {
         if let Some(n) = scba.get("iterations") {
-            rows.push(("Born iterations".into(), show_value("iterations", n)));
+            rows.push(("Born iterations".into(), show_value("scba.iterations", n)));
         }
         if let Some(Value::Array(h)) = scba.get("history")
             && let Some(Value::Object(last)) = h.last()
             && let Some(r) = last.get("residual")
         {
-            rows.push(("last residual".into(), show_value("residual", r)));
+            rows.push((
+                "last residual".into(),
+                show_value("scba.history[].residual", r),
+            ));
         }
         if let Some(Value::Object(p)) = scba.get("params")
             && let Some(t) = p.get("tolerance")
@@ -576,6 +584,66 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
     Ok(html)
 }
 
+/// The results of a solve, read as the typed summary: every value with
+/// the unit the schema gives it. A summary that does not read as a solve
+/// summary of this version is shown key by key instead.
+fn solve_result_rows(
+    s: &Map<String, Value>,
+    o: &Map<String, Value>,
+    rows: &mut Vec<(String, String)>,
+) {
+    let typed = (s.get("kind").and_then(Value::as_str) == Some("solve"))
+        .then(|| serde_json::from_value::<SolveSummary>(Value::Object(s.clone())).ok())
+        .flatten();
+    let Some(t) = typed else {
+        return rows_of("results", "", o, rows);
+    };
+    let r = &t.results;
+    let mut add = |key: &str, v: f64| {
+        let at = format!("results.{key}");
+        rows.push((escape(&label_of(key)), show_value(&at, &Value::from(v))));
+    };
+    for (key, v) in [("voltage_v", r.voltage_v), ("current_a", r.current_a)] {
+        add(key, v);
+    }
+    if let Some(g) = r.conductance_s {
+        add("conductance_s", g);
+    }
+    for (key, v) in [
+        ("electrical_power_w", r.electrical_power_w),
+        ("heat_current_left_w", r.heat_current_left_w),
+        ("heat_current_right_w", r.heat_current_right_w),
+        ("lattice_power_w", r.lattice_power_w),
+        ("lattice_power_phonon_side_w", r.lattice_power_phonon_side_w),
+        ("energy_current_left_w", r.energy_current_left_w),
+        ("energy_current_right_w", r.energy_current_right_w),
+        ("current_left_a", r.current_left_a),
+        ("current_right_a", r.current_right_a),
+        ("contact_drop_left_v", r.contact_drop_left_v),
+        ("interior_drop_v", r.interior_drop_v),
+        ("contact_drop_right_v", r.contact_drop_right_v),
+    ] {
+        add(key, v);
+    }
+    for (what, unit, c) in [
+        ("largest drop to the next cell", "V", &r.largest_drop_v),
+        ("hottest cell", "W", &r.hottest_cell_w),
+        ("coolest cell", "W", &r.coolest_cell_w),
+    ] {
+        if let Some(c) = c {
+            rows.push((
+                what.into(),
+                escape(&format!(
+                    "{} at x = {} nm (cell {})",
+                    si(c.value, unit),
+                    trim(c.x_nm),
+                    c.cell
+                )),
+            ));
+        }
+    }
+}
+
 /// Tables of a summary: results, operating point, convergence, ledger,
 /// warnings and notes, then every other recorded object.
 /// The sections of a summary, with `figures` (ready HTML) placed after the
@@ -604,7 +672,10 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
         if let Some(Value::Object(o)) = s.get(key) {
             let _ = writeln!(html, "<h2>{heading}</h2>");
             let mut rows = Vec::new();
-            rows_of("", o, &mut rows);
+            match key {
+                "results" => solve_result_rows(s, o, &mut rows),
+                _ => rows_of(key, "", o, &mut rows),
+            }
             table(html, &rows);
             shown.push(key);
         }
@@ -627,7 +698,7 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
              each entry compares and relative to what.</p>\n",
         );
         let mut rows = Vec::new();
-        rows_of("", l, &mut rows);
+        rows_of("ledger", "", l, &mut rows);
         table(html, &rows);
         shown.push("ledger");
     }
@@ -669,11 +740,12 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
             continue;
         }
         match v {
-            Value::Object(o) => rows_of(&label_of(k), o, &mut rest),
+            Value::Object(o) => rows_of(k, &label_of(k), o, &mut rest),
             Value::Array(items) if items.iter().all(Value::is_object) && !items.is_empty() => {
                 for (i, item) in items.iter().enumerate() {
                     if let Value::Object(o) = item {
-                        rows_of(&format!("{} {}", label_of(k), i + 1), o, &mut rest);
+                        let at = format!("{k}[]");
+                        rows_of(&at, &format!("{} {}", label_of(k), i + 1), o, &mut rest);
                     }
                 }
             }
@@ -737,23 +809,25 @@ mod tests {
     use super::*;
 
     #[test]
-    fn units_come_from_key_suffixes() {
+    fn units_come_from_the_schema() {
+        assert_eq!(unit_of("results.heat_current_left_w"), Some("W"));
+        assert_eq!(unit_of("coefficients.power_factor_w_per_k2"), Some("W/K²"));
+        assert_eq!(unit_of("coefficients.zt"), None);
+        assert_eq!(unit_of("results.hottest_cell_w.value"), Some("W"));
+        assert_eq!(unit_of("results.largest_drop_v.value"), Some("V"));
         assert_eq!(
-            unit_of("heat_current_left_w"),
-            Some(("W", "heat_current_left"))
-        );
-        assert_eq!(unit_of("power_factor_w_per_k2").unwrap().0, "W/K²");
-        assert_eq!(unit_of("zt"), None);
-        assert_eq!(
-            show_value("current_a", &serde_json::json!(-2.434e-6)),
+            show_value("results.current_a", &serde_json::json!(-2.434e-6)),
             "-2.434 µA"
         );
         assert_eq!(
-            show_value("temperature_left_k", &serde_json::json!(300.0)),
+            show_value(
+                "operating_point.temperature_left_k",
+                &serde_json::json!(300.0)
+            ),
             "300 K"
         );
         assert_eq!(
-            show_value("charge_relative", &serde_json::json!(8.5e-13)),
+            show_value("ledger.charge_relative", &serde_json::json!(8.5e-13)),
             "8.50e-13"
         );
     }

@@ -1,16 +1,20 @@
 //! The files of a solved operating point.
 
-use super::{OutputError, Staging, csv_bytes, npy_bytes};
+use super::schema::summary::{
+    CellValue, DeviceInfo, FermiLevelInfo, Header, OperatingPoint, PhononInfo, Program,
+    SolveResults, SolveSummary, to_text,
+};
+use super::schema::tables::{self, SolvePoint};
+use super::{OutputError, Staging, npy_bytes};
 use crate::observables::{
     FermiLevelStatus, LEDGER_COMPARES, Ledger, Observables, POWER_SCALE, bond_current_map,
 };
 use crate::scba::Solution;
-use crate::units::ELEMENTARY_CHARGE;
-use serde_json::{Value, json};
+use serde_json::Value;
 
 /// Program name and version, recorded in every summary.
 pub fn program() -> Value {
-    json!({ "name": "qheat", "version": env!("CARGO_PKG_VERSION") })
+    to_json(&Program::this())
 }
 
 /// Everything a solve summary records besides the solution itself.
@@ -29,23 +33,63 @@ pub struct RunInfo<'a> {
     pub threads: usize,
 }
 
-/// The scalar results of an operating point as JSON.
-pub fn scalars(o: &Observables) -> Value {
-    json!({
-        "voltage_v": o.voltage_v,
-        "current_a": o.current_a,
-        "current_left_a": o.current_left_a,
-        "current_right_a": o.current_right_a,
-        "energy_current_left_w": o.energy_current_left_w,
-        "energy_current_right_w": o.energy_current_right_w,
-        "heat_current_left_w": o.heat_current_left_w,
-        "heat_current_right_w": o.heat_current_right_w,
-        "lattice_power_w": o.lattice_power_w,
-        "lattice_power_phonon_side_w": o.lattice_power_phonon_side_w,
-        "electrical_power_w": o.electrical_power_w,
-        "conductance_s": o.conductance_s,
-        "contact_drop_left_v": o.contact_drop_left_v,
+/// The cell of the largest and of the smallest value of `v` (first one on
+/// ties), NaN ignored.
+fn extreme(v: &[f64], x_nm: &[f64], largest: bool) -> Option<CellValue> {
+    let better = |a: f64, b: f64| if largest { a > b } else { a < b };
+    let mut best: Option<usize> = None;
+    for (i, &val) in v.iter().enumerate() {
+        if val.is_finite() && best.is_none_or(|b| better(val, v[b])) {
+            best = Some(i);
+        }
+    }
+    best.map(|i| CellValue {
+        cell: i,
+        x_nm: x_nm[i],
+        value: v[i],
     })
+}
+
+/// The scalar results of an operating point: every value the terminal
+/// summary shows.
+pub fn scalars(o: &Observables, coherent: bool) -> SolveResults {
+    let s = &o.sites;
+    let n = s.x_nm.len();
+    let interior = &s.voltage_drop_v[..n.saturating_sub(1)];
+    let largest_drop_v = interior
+        .iter()
+        .enumerate()
+        .filter(|(_, d)| d.is_finite())
+        .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+        .map(|(i, d)| CellValue {
+            cell: i,
+            x_nm: s.x_nm[i],
+            value: *d,
+        });
+    SolveResults {
+        voltage_v: o.voltage_v,
+        current_a: o.current_a,
+        current_left_a: o.current_left_a,
+        current_right_a: o.current_right_a,
+        energy_current_left_w: o.energy_current_left_w,
+        energy_current_right_w: o.energy_current_right_w,
+        heat_current_left_w: o.heat_current_left_w,
+        heat_current_right_w: o.heat_current_right_w,
+        lattice_power_w: o.lattice_power_w,
+        lattice_power_phonon_side_w: o.lattice_power_phonon_side_w,
+        electrical_power_w: o.electrical_power_w,
+        conductance_s: o.conductance_s,
+        contact_drop_left_v: o.contact_drop_left_v,
+        interior_drop_v: interior.iter().sum(),
+        contact_drop_right_v: o.contact_drop_right_v,
+        largest_drop_v,
+        hottest_cell_w: (!coherent)
+            .then(|| extreme(&s.lattice_power_w, &s.x_nm, true))
+            .flatten(),
+        coolest_cell_w: (!coherent)
+            .then(|| extreme(&s.lattice_power_w, &s.x_nm, false))
+            .flatten(),
+    }
 }
 
 /// The ledger as JSON: every entry's residual, scale and ratio (the
@@ -66,7 +110,7 @@ pub fn ledger_json(l: &Ledger) -> Value {
 
 /// The local Fermi level's search interval and the cells whose match lies
 /// outside it or that have no states (their µ_i is NaN, never clamped).
-pub fn fermi_level_json(o: &Observables) -> Value {
+pub fn fermi_level_info(o: &Observables) -> FermiLevelInfo {
     let s = &o.sites;
     let cells = |want: FermiLevelStatus| -> Vec<usize> {
         s.fermi_level_status
@@ -78,183 +122,132 @@ pub fn fermi_level_json(o: &Observables) -> Value {
     };
     let below = cells(FermiLevelStatus::BelowInterval);
     let above = cells(FermiLevelStatus::AboveInterval);
-    json!({
-        "search_interval_ev": [s.fermi_level_interval_ev.0, s.fermi_level_interval_ev.1],
-        "outside_interval": below.len() + above.len(),
-        "cells_below_interval": below,
-        "cells_above_interval": above,
-        "cells_without_states": cells(FermiLevelStatus::NoStates),
-        "flagged_value": "NaN",
-    })
+    FermiLevelInfo {
+        search_interval_ev: [s.fermi_level_interval_ev.0, s.fermi_level_interval_ev.1],
+        outside_interval: below.len() + above.len(),
+        cells_below_interval: below,
+        cells_above_interval: above,
+        cells_without_states: cells(FermiLevelStatus::NoStates),
+        flagged_value: "NaN".into(),
+    }
+}
+
+fn to_json<T: serde::Serialize>(v: &T) -> Value {
+    serde_json::to_value(v).expect("JSON of plain values")
+}
+
+/// The header of a summary.
+pub fn header(kind: &str, case_name: &str, case_file: &str) -> Header {
+    Header {
+        program: Program::this(),
+        kind: kind.into(),
+        case_name: case_name.into(),
+        case_file: case_file.into(),
+    }
 }
 
 /// summary.json of a solve.
-pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Value {
+pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> SolveSummary {
     let p = &sol.problem;
-    let phonons: Vec<Value> = p
+    let phonons = p
         .scattering
         .phonons
         .iter()
-        .map(|m| {
-            json!({
-                "requested_energy_ev": m.requested_energy_ev,
-                "energy_ev": m.energy_ev,
-                "grid_steps": m.steps,
-                "bath_temperature_k": m.bath_temperature_k,
-                "max_coupling_ev2": m.coupling_ev2.iter().copied().fold(0.0, f64::max),
-            })
+        .map(|m| PhononInfo {
+            requested_energy_ev: m.requested_energy_ev,
+            energy_ev: m.energy_ev,
+            grid_steps: m.steps,
+            bath_temperature_k: m.bath_temperature_k,
+            max_coupling_ev2: m.coupling_ev2.iter().copied().fold(0.0, f64::max),
         })
         .collect();
-    json!({
-        "program": program(),
-        "kind": "solve",
-        "case_name": info.case_name,
-        "case_file": info.case_file,
-        "threads": info.threads,
-        "converged": sol.report.converged,
-        "trustworthy": sol.report.converged,
-        "coherent": p.scattering.is_coherent(),
-        "hermitian_part": if sol.report.hermitian_part { "include" } else { "neglect" },
-        "operating_point": {
-            "fermi_level_left_ev": p.left.fermi_level_ev,
-            "fermi_level_right_ev": p.right.fermi_level_ev,
-            "temperature_left_k": p.left.temperature_k,
-            "temperature_right_k": p.right.temperature_k,
-            "voltage_v": p.voltage_v(),
+    SolveSummary {
+        header: header("solve", info.case_name, info.case_file),
+        threads: info.threads,
+        converged: sol.report.converged,
+        trustworthy: sol.report.converged,
+        coherent: p.scattering.is_coherent(),
+        hermitian_part: if sol.report.hermitian_part {
+            "include"
+        } else {
+            "neglect"
+        }
+        .into(),
+        operating_point: OperatingPoint {
+            fermi_level_left_ev: p.left.fermi_level_ev,
+            fermi_level_right_ev: p.right.fermi_level_ev,
+            temperature_left_k: p.left.temperature_k,
+            temperature_right_k: p.right.temperature_k,
+            voltage_v: p.voltage_v(),
         },
-        "device": {
-            "cells": p.device.cells(),
-            "orbitals_per_cell": p.device.orbitals,
-            "spacing_nm": p.device.spacing_nm,
-            "spin_degeneracy": p.spin_degeneracy,
+        device: DeviceInfo {
+            cells: p.device.cells(),
+            orbitals_per_cell: p.device.orbitals,
+            spacing_nm: p.device.spacing_nm,
+            spin_degeneracy: p.spin_degeneracy,
         },
-        "grid": p.grid,
-        "phonons": phonons,
-        "results": scalars(o),
-        "phonon_modes": o.phonon_modes,
-        "ledger": ledger_json(&o.ledger),
-        "local_fermi_level": fermi_level_json(o),
-        "scba": sol.report,
-        "warnings": info.warnings,
-        "notes": info.notes,
-        "resolved_case": info.case_toml,
-    })
+        grid: to_json(&p.grid),
+        phonons,
+        results: scalars(o, p.scattering.is_coherent()),
+        phonon_modes: to_json(&o.phonon_modes),
+        ledger: ledger_json(&o.ledger),
+        local_fermi_level: fermi_level_info(o),
+        scba: to_json(&sol.report),
+        warnings: info.warnings.to_vec(),
+        notes: info.notes.to_vec(),
+        resolved_case: info.case_toml.into(),
+    }
 }
 
 /// Write the files of a solve into a staging folder: summary.json,
-/// sites.csv, spectrum.csv, bond_current.npy, convergence.csv and, with
-/// scattering, the self-energy for warm starts.
+/// sites.csv, spectrum.csv, bond_current.npy and .npz, convergence.csv
+/// and, with scattering, the self-energy for warm starts.
 pub fn write_solve_files(
     stage: &Staging,
     sol: &Solution,
     o: &Observables,
-    summary: &Value,
+    summary: &SolveSummary,
 ) -> Result<(), OutputError> {
-    let p = &sol.problem;
-    stage.write(
-        "summary.json",
-        serde_json::to_string_pretty(summary)
-            .expect("JSON of plain values")
-            .as_bytes(),
-    )?;
-    let s = &o.sites;
-    let potential = &p.device.potential_ev;
-    let mut headers = vec![
-        "x_nm",
-        "band_edge_ev",
-        "potential_ev",
-        "fermi_level_local_ev",
-        "fermi_level_status",
-        "lattice_power_w",
-        "electron_density_per_nm",
-        "voltage_drop_v",
-        "resistance_ohm",
-    ];
-    if s.electron_temperature_k.is_some() {
-        headers.push("electron_temperature_local_k");
+    stage.write("summary.json", to_text(summary).as_bytes())?;
+    let point = SolvePoint { sol, o };
+    for table in [tables::sites(), tables::spectrum(), tables::convergence()] {
+        stage.write(table.file, &table.csv(&point))?;
     }
-    stage.write(
-        "sites.csv",
-        &csv_bytes(
-            &headers,
-            (0..s.x_nm.len()).map(|i| {
-                let mut row = vec![
-                    s.x_nm[i],
-                    s.band_edge_ev[i],
-                    potential[i],
-                    s.fermi_level_ev[i],
-                    s.fermi_level_status[i].code(),
-                    s.lattice_power_w[i],
-                    s.electron_density_per_nm[i],
-                    s.voltage_drop_v[i],
-                    s.resistance_ohm[i],
-                ];
-                if let Some(t) = &s.electron_temperature_k {
-                    row.push(t[i]);
-                }
-                row
-            }),
-        ),
-    )?;
-    let sp = &o.spectrum;
-    let e = ELEMENTARY_CHARGE;
-    let mut headers = vec![
-        "energy_ev",
-        "electron_flow_left_a_per_ev",
-        "electron_flow_right_a_per_ev",
-        "electron_flow_bath_a_per_ev",
-    ];
-    if sp.transmission.is_some() {
-        headers.push("transmission");
-    }
-    stage.write(
-        "spectrum.csv",
-        &csv_bytes(
-            &headers,
-            (0..sp.energy_ev.len()).map(|k| {
-                let mut row = vec![
-                    sp.energy_ev[k],
-                    e * sp.flow_left[k],
-                    e * sp.flow_right[k],
-                    e * sp.flow_bath[k],
-                ];
-                if let Some(t) = &sp.transmission {
-                    row.push(t[k]);
-                }
-                row
-            }),
-        ),
-    )?;
     let map = bond_current_map(sol);
     stage.write(
         "bond_current.npy",
         &npy_bytes(&map, &stage.path("bond_current.npy"))?,
     )?;
-    stage.write(
-        "convergence.csv",
-        &csv_bytes(
-            &[
-                "iteration",
-                "residual",
-                "current_left_a",
-                "current_right_a",
-                "current_change",
-            ],
-            sol.report.history.iter().map(|r| {
-                vec![
-                    r.iteration as f64,
-                    r.residual,
-                    r.current_left_a,
-                    r.current_right_a,
-                    r.current_change,
-                ]
-            }),
-        ),
-    )?;
-    if !p.scattering.is_coherent() {
+    write_bond_current_npz(stage, sol, o, &map)?;
+    if !sol.problem.scattering.is_coherent() {
         write_self_energy(stage, sol)?;
     }
     Ok(())
+}
+
+/// The bond-current map with its axes as named arrays: `map`, `bond_x_nm`
+/// (the midpoints between neighbouring cells) and `energy_ev`.
+fn write_bond_current_npz(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+    map: &ndarray::Array2<f64>,
+) -> Result<(), OutputError> {
+    let path = stage.path(tables::BOND_CURRENT_NPZ);
+    let encode = |e: &dyn std::fmt::Display| OutputError::Encode {
+        path: path.clone(),
+        message: e.to_string(),
+    };
+    let x = &o.sites.x_nm;
+    let bonds: ndarray::Array1<f64> = x.windows(2).map(|w| 0.5 * (w[0] + w[1])).collect();
+    let energies = ndarray::Array1::from(sol.problem.grid.energies());
+    let mut npz = ndarray_npy::NpzWriter::new(std::io::Cursor::new(Vec::new()));
+    npz.add_array("map", map).map_err(|e| encode(&e))?;
+    npz.add_array("bond_x_nm", &bonds).map_err(|e| encode(&e))?;
+    npz.add_array("energy_ev", &energies)
+        .map_err(|e| encode(&e))?;
+    let bytes = npz.finish().map_err(|e| encode(&e))?.into_inner();
+    stage.write(tables::BOND_CURRENT_NPZ, &bytes)
 }
 
 /// File names of a stored scattering self-energy.

@@ -14,10 +14,10 @@
 //! written ([`super::manifest::claim_store`]), so no other command takes it
 //! for somebody else's files or removes it.
 
-use super::{OutputError, atomic_write, csv_bytes, format_number};
+use super::{OutputError, atomic_write, format_number};
 use crate::C64;
 use crate::scattering::ScatteringSelfEnergy;
-use crate::sweep::{PointStore, StoreError, SweepTable};
+use crate::sweep::{PointStore, StoreError};
 use std::path::{Path, PathBuf};
 
 /// Name of the folder holding the point stores inside a result folder.
@@ -96,13 +96,6 @@ impl PointStore for PointFolder {
     }
 }
 
-/// A sweep or screening table as CSV bytes (shortest round-trip numbers:
-/// exact and byte-stable).
-pub fn table_csv(table: &SweepTable) -> Vec<u8> {
-    let headers: Vec<&str> = table.columns.iter().map(String::as_str).collect();
-    csv_bytes(&headers, table.rows.iter().cloned())
-}
-
 fn encode_sigma(s: &ScatteringSelfEnergy) -> Vec<u8> {
     let n = s.inscatter.len();
     let mut out = Vec::with_capacity(16 + 24 * n);
@@ -168,7 +161,10 @@ mod tests {
         let store = PointFolder::open(tmp.path(), 0xab).unwrap();
         store.put_row(7, &[0.5, -2.0, f64::NAN]).unwrap();
         let path = tmp.path().join("points/00000000000000ab/00000007.row");
-        assert_eq!(std::fs::read_to_string(path).unwrap(), "5e-1,-2e0,NaN\n");
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "0.5,-2,NaN\n");
+        // Stores written before numbers were printed plainly still read.
+        std::fs::write(&path, "5e-1,-2e0,NaN\n").unwrap();
+        assert_eq!(store.row(7, 3).map(|r| r[0]), Some(0.5));
         assert_eq!(store.row(7, 3).map(|r| r[1]), Some(-2.0));
         assert_eq!(store.row(7, 2), None);
     }

@@ -96,7 +96,10 @@ impl Axis {
     }
 
     /// The i-th value: (start (n − i) + stop i)/n with n = count − 1, the end
-    /// points exact (symmetric grids come out symmetric).
+    /// points exact (symmetric grids come out symmetric), the points between
+    /// rounded to 12 significant digits of the larger end point so that a
+    /// grid over decimal end points holds the decimals a person would write
+    /// (0.03, not 0.030000000000000002).
     pub fn value(&self, i: usize) -> f64 {
         if self.count == 1 || i == 0 {
             self.start
@@ -105,7 +108,8 @@ impl Axis {
         } else {
             let n = (self.count - 1) as f64;
             let t = i as f64;
-            (self.start * (n - t) + self.stop * t) / n
+            let v = (self.start * (n - t) + self.stop * t) / n;
+            round_to_scale(v, self.start.abs().max(self.stop.abs()))
         }
     }
 
@@ -119,6 +123,19 @@ impl Axis {
             self.count
         )
     }
+}
+
+/// `v` rounded to 12 significant digits of `scale` (a decimal place count
+/// from the scale, then the nearest double to that decimal text), never
+/// negative zero.
+fn round_to_scale(v: f64, scale: f64) -> f64 {
+    if !(v.is_finite() && scale.is_finite() && scale > 0.0) {
+        return v;
+    }
+    let decimals = (11 - scale.log10().floor() as i64).max(0) as usize;
+    format!("{v:.decimals$}")
+        .parse::<f64>()
+        .map_or(v, |r| r + 0.0)
 }
 
 /// A grid over one or more axes, row-major (last axis fastest).
@@ -230,5 +247,28 @@ mod tests {
         // the close match.
         let e = Axis::parse("bias.voltge_v=0:1:2").unwrap_err().to_string();
         assert!(e.contains("did you mean `bias.voltage_v`"), "{e}");
+    }
+
+    /// Values between decimal end points are those decimals: 0:0.1 in 11
+    /// points gives 0, 0.01, …, 0.1 exactly as parsed from their text
+    /// (the plain formula gave 0.030000000000000002 and 0.06999999999999999).
+    #[test]
+    fn decimal_axes_have_no_float_noise() {
+        let a = Axis::parse("bias.voltage_v=0:0.1:11").unwrap();
+        for i in 0..11 {
+            let want: f64 = format!("0.{i:02}").parse().unwrap();
+            let want = if i == 10 { 0.1 } else { want };
+            assert_eq!(a.value(i), want, "point {i}");
+            // Shortest round-trip text of these values is at most 4 characters.
+            assert!(format!("{}", a.value(i)).len() <= 4);
+        }
+        let b = Axis::parse("bias.voltage_v=-0.3:0.3:7").unwrap();
+        let got: Vec<f64> = (0..7).map(|i| b.value(i)).collect();
+        assert_eq!(got, vec![-0.3, -0.2, -0.1, 0.0, 0.1, 0.2, 0.3]);
+        assert!(got[3].is_sign_positive());
+        let c = Axis::parse("leads.left.temperature_k=250:350:5").unwrap();
+        assert_eq!(c.value(1), 275.0);
+        let d = Axis::parse("bias.voltage_v=1e-9:3e-9:3").unwrap();
+        assert_eq!(d.value(1), 2e-9);
     }
 }

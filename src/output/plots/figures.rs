@@ -169,7 +169,11 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
     let mut drop_v = vec![o.contact_drop_left_v];
     for i in 0..n {
         drop_x.push(s.x_nm[i] + 0.5 * a);
-        drop_v.push(s.voltage_drop_v[i]);
+        drop_v.push(if i + 1 < n {
+            s.voltage_drop_v[i]
+        } else {
+            o.contact_drop_right_v
+        });
     }
     let (vf, vp) = prefix_for(max_abs(&drop_v));
     let drop_range = with_zero(finite_range(&drop_v));

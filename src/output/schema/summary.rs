@@ -1,0 +1,327 @@
+//! Typed summary.json of every command. Each struct serializes to the
+//! file's keys; [`super::keys`] documents them with units and meanings.
+//!
+//! Objects computed elsewhere in the crate (the energy grid, the Born-loop
+//! report, the ledger, linear-response details) are kept as JSON values
+//! here: their own types define their keys.
+
+use serde::{Deserialize, Deserializer, Serialize};
+use serde_json::Value;
+use std::collections::BTreeMap;
+
+/// A number that JSON writes as `null` when it is NaN or infinite and
+/// that reads back as NaN.
+fn nan_from_null<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+    Ok(Option::<f64>::deserialize(d)?.unwrap_or(f64::NAN))
+}
+
+/// Program name and version.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Program {
+    /// `qheat`.
+    pub name: String,
+    /// Version of the program that wrote the file.
+    pub version: String,
+}
+
+impl Program {
+    /// This program.
+    pub fn this() -> Self {
+        Program {
+            name: "qheat".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+        }
+    }
+}
+
+/// The keys every summary starts with.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Header {
+    /// Program that wrote the file.
+    pub program: Program,
+    /// Command: solve, coefficients, sweep, screen, generator, cooler.
+    pub kind: String,
+    /// Case name.
+    pub case_name: String,
+    /// Case file as given on the command line.
+    pub case_file: String,
+}
+
+/// Lead settings of an operating point.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct OperatingPoint {
+    /// µ_1 (eV).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub fermi_level_left_ev: f64,
+    /// µ_2 (eV).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub fermi_level_right_ev: f64,
+    /// T_1 (K).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub temperature_left_k: f64,
+    /// T_2 (K).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub temperature_right_k: f64,
+    /// V = V_1 − V_2 (V).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub voltage_v: f64,
+}
+
+/// Size of the device.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct DeviceInfo {
+    /// Cells.
+    pub cells: usize,
+    /// Orbitals per cell.
+    pub orbitals_per_cell: usize,
+    /// Cell spacing (nm).
+    pub spacing_nm: f64,
+    /// Spin degeneracy g_s.
+    pub spin_degeneracy: f64,
+}
+
+/// A phonon mode as used on the energy grid.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PhononInfo {
+    /// ħω asked for (eV).
+    pub requested_energy_ev: f64,
+    /// ħω on the grid, a whole number of steps (eV).
+    pub energy_ev: f64,
+    /// ħω in grid steps.
+    pub grid_steps: usize,
+    /// Bath temperature (K).
+    pub bath_temperature_k: f64,
+    /// Largest coupling of the mode (eV²).
+    pub max_coupling_ev2: f64,
+}
+
+/// A cell and a value there.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CellValue {
+    /// Cell index, from 0 at the left.
+    pub cell: usize,
+    /// Cell position (nm).
+    pub x_nm: f64,
+    /// The value (unit of the key holding it).
+    #[serde(deserialize_with = "nan_from_null")]
+    pub value: f64,
+}
+
+/// The scalar results of a solved operating point.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct SolveResults {
+    #[serde(deserialize_with = "nan_from_null")]
+    pub voltage_v: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub current_a: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub current_left_a: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub current_right_a: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub energy_current_left_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub energy_current_right_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub heat_current_left_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub heat_current_right_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub lattice_power_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub lattice_power_phonon_side_w: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub electrical_power_w: f64,
+    pub conductance_s: Option<f64>,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub contact_drop_left_v: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub interior_drop_v: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub contact_drop_right_v: f64,
+    pub largest_drop_v: Option<CellValue>,
+    pub hottest_cell_w: Option<CellValue>,
+    pub coolest_cell_w: Option<CellValue>,
+}
+
+/// The local Fermi level's search and the cells it flagged.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct FermiLevelInfo {
+    /// Interval searched for µ_i (eV).
+    pub search_interval_ev: [f64; 2],
+    /// Cells whose match lies outside the interval.
+    pub outside_interval: usize,
+    /// Cells whose match lies below the interval.
+    pub cells_below_interval: Vec<usize>,
+    /// Cells whose match lies above the interval.
+    pub cells_above_interval: Vec<usize>,
+    /// Cells without states.
+    pub cells_without_states: Vec<usize>,
+    /// What flagged cells hold in sites.csv.
+    pub flagged_value: String,
+}
+
+/// summary.json of `qheat solve`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct SolveSummary {
+    #[serde(flatten)]
+    pub header: Header,
+    pub threads: usize,
+    pub converged: bool,
+    pub trustworthy: bool,
+    pub coherent: bool,
+    pub hermitian_part: String,
+    pub operating_point: OperatingPoint,
+    pub device: DeviceInfo,
+    pub grid: Value,
+    pub phonons: Vec<PhononInfo>,
+    pub results: SolveResults,
+    pub phonon_modes: Value,
+    pub ledger: Value,
+    pub local_fermi_level: FermiLevelInfo,
+    pub scba: Value,
+    pub warnings: Vec<String>,
+    pub notes: Vec<String>,
+    pub resolved_case: String,
+}
+
+/// Where a failed solve broke down.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Fault {
+    /// What failed.
+    pub kind: String,
+    /// Energy of the failure (eV), when known.
+    pub energy_ev: Option<f64>,
+    /// Cell of the failure, when known.
+    pub cell: Option<usize>,
+}
+
+/// summary.json of a `qheat solve` that failed.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct FailedSolveSummary {
+    #[serde(flatten)]
+    pub header: Header,
+    pub threads: usize,
+    pub converged: bool,
+    pub trustworthy: bool,
+    pub error: String,
+    pub fault: Fault,
+    pub warnings: Vec<String>,
+    pub resolved_case: String,
+}
+
+/// summary.json of `qheat coefficients`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct CoefficientsSummary {
+    #[serde(flatten)]
+    pub header: Header,
+    pub threads: usize,
+    pub coefficients: crate::thermo::Coefficients,
+    pub response: Value,
+    pub energy_grid: crate::thermo::common_grid::CommonGrid,
+    pub warnings: Vec<String>,
+    pub notes: Vec<String>,
+    pub resolved_case: String,
+}
+
+/// One of the best points of a screen.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct BestPoint {
+    /// Grid index.
+    pub point: usize,
+    /// Axis values of the point, by axis name.
+    pub values: BTreeMap<String, f64>,
+    /// The ranked value, under the ranked column's name.
+    #[serde(flatten)]
+    pub score: BTreeMap<String, f64>,
+}
+
+/// What a screen ranked by and its best points.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Ranking {
+    /// The --rank setting.
+    pub rank_by: crate::sweep::screen::ScreenTask,
+    /// Column ranked by (largest first).
+    pub ranked_column: String,
+    /// The five best points.
+    pub best: Vec<BestPoint>,
+}
+
+/// summary.json of `qheat sweep` and `qheat screen`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct GridSummary {
+    #[serde(flatten)]
+    pub header: Header,
+    pub threads: usize,
+    pub axes: Vec<crate::sweep::Axis>,
+    pub order: String,
+    pub points: usize,
+    pub computed_this_run: usize,
+    pub from_earlier_runs: usize,
+    pub parallel_lines: usize,
+    pub point_store: String,
+    pub unconverged_points: Vec<usize>,
+    pub converged: bool,
+    pub columns: Vec<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub warm_start: Option<String>,
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub ranking: Option<Ranking>,
+    pub resolved_case: String,
+}
+
+/// summary.json of `qheat generator` and `qheat cooler`: the curve's
+/// result with the run's header.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct CurveSummary<R> {
+    #[serde(flatten)]
+    pub result: R,
+    #[serde(flatten)]
+    pub header: Header,
+    pub conventions: String,
+    pub resolved_case: String,
+}
+
+/// What `qheat check --json` prints.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct CheckOutput {
+    pub case_name: String,
+    pub cells: usize,
+    pub orbitals_per_cell: usize,
+    pub grid: Value,
+    pub phonons: Vec<CheckPhonon>,
+    pub memory_estimate_bytes: u64,
+    pub warnings: Vec<String>,
+    pub notes: Vec<String>,
+}
+
+/// A phonon mode as `qheat check --json` lists it.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct CheckPhonon {
+    pub requested_energy_ev: f64,
+    pub energy_ev: f64,
+    pub grid_steps: usize,
+    pub bath_temperature_k: f64,
+}
+
+/// What `qheat report --json` prints.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ReportOutput {
+    /// Path of the page written.
+    pub report: String,
+    /// Its size in bytes.
+    pub bytes: usize,
+}
+
+/// JSON text of a summary (pretty-printed).
+pub fn to_text<T: Serialize>(summary: &T) -> String {
+    serde_json::to_string_pretty(summary).expect("JSON of plain values")
+}

@@ -1,0 +1,634 @@
+//! Column lists of every CSV file and the axes of every array file.
+
+use super::{Cell, CellKind, Column, FieldDoc, FileDoc, Table};
+use crate::observables::Observables;
+use crate::scba::Solution;
+use crate::thermo::cooler::CoolerReport;
+use crate::thermo::generator::GeneratorReport;
+use crate::units::ELEMENTARY_CHARGE;
+
+/// A solved operating point and its observables: the data of a solve's
+/// tables.
+pub struct SolvePoint<'a> {
+    /// The solution.
+    pub sol: &'a Solution,
+    /// Its observables.
+    pub o: &'a Observables,
+}
+
+fn col<S>(
+    name: &'static str,
+    unit: &'static str,
+    meaning: &'static str,
+    value: fn(&S, usize) -> Cell,
+) -> Column<S> {
+    Column {
+        name,
+        unit,
+        meaning,
+        only_when: None,
+        value,
+    }
+}
+
+/// sites.csv: one row per cell of the device.
+pub fn sites<'a>() -> Table<SolvePoint<'a>> {
+    let mut columns: Vec<Column<SolvePoint<'a>>> = vec![
+        col("x_nm", "nm", "position of the cell", |p, i| {
+            Cell::Num(p.o.sites.x_nm[i])
+        }),
+        col(
+            "band_edge_ev",
+            "eV",
+            "local band bottom: the lowest energy of the periodic continuation of the cell, potential included",
+            |p, i| Cell::Num(p.o.sites.band_edge_ev[i]),
+        ),
+        col(
+            "potential_ev",
+            "eV",
+            "potential U(x_i) added to every orbital of the cell, bias included",
+            |p, i| Cell::Num(p.sol.problem.device.potential_ev[i]),
+        ),
+        col(
+            "fermi_level_local_ev",
+            "eV",
+            "local Fermi level µ_i: the level whose equilibrium occupation holds the cell's \
+             electrons; NaN where fermi_level_status is not 0",
+            |p, i| Cell::Num(p.o.sites.fermi_level_ev[i]),
+        ),
+        col(
+            "fermi_level_status",
+            "1",
+            "how the density match ended: 0 matched, 1 below the search interval, 2 above it, \
+             3 no states in the cell",
+            |p, i| Cell::Int(p.o.sites.fermi_level_status[i].code() as i64),
+        ),
+        col(
+            "lattice_power_w",
+            "W",
+            "power the electrons hand to the lattice in the cell (positive = lattice heated)",
+            |p, i| Cell::Num(p.o.sites.lattice_power_w[i]),
+        ),
+        col(
+            "electron_density_per_nm",
+            "1/nm",
+            "electrons per nm, spin included",
+            |p, i| Cell::Num(p.o.sites.electron_density_per_nm[i]),
+        ),
+        col(
+            "voltage_drop_v",
+            "V",
+            "drop of the local Fermi level to the next cell, (µ_i − µ_i+1)/e, positive where \
+             the level falls along +x; 0 in the last cell. The column adds up to \
+             results.interior_drop_v of summary.json; the drops into the contacts are \
+             results.contact_drop_left_v and results.contact_drop_right_v",
+            |p, i| Cell::Num(p.o.sites.voltage_drop_v[i]),
+        ),
+        col(
+            "resistance_ohm",
+            "Ω",
+            "local resistance voltage_drop_v/(−I); with the two contact drops divided by −I \
+             the column adds up to V/I; NaN at I = 0",
+            |p, i| Cell::Num(p.o.sites.resistance_ohm[i]),
+        ),
+    ];
+    columns.push(Column {
+        name: "electron_temperature_local_k",
+        unit: "K",
+        meaning: "temperature of the Fermi function fitted to the cell's occupation",
+        only_when: Some(("when the case asks for local electron temperatures", |p| {
+            p.o.sites.electron_temperature_k.is_some()
+        })),
+        value: |p, i| {
+            Cell::Num(
+                p.o.sites
+                    .electron_temperature_k
+                    .as_ref()
+                    .map_or(f64::NAN, |t| t[i]),
+            )
+        },
+    });
+    Table {
+        file: "sites.csv",
+        written_by: "`qheat solve`",
+        rows: "cell of the device, left to right",
+        len: |p| p.o.sites.x_nm.len(),
+        columns,
+    }
+}
+
+/// spectrum.csv: one row per energy of the grid.
+pub fn spectrum<'a>() -> Table<SolvePoint<'a>> {
+    let columns: Vec<Column<SolvePoint<'a>>> = vec![
+        col("energy_ev", "eV", "energy of the grid point", |p, k| {
+            Cell::Num(p.o.spectrum.energy_ev[k])
+        }),
+        col(
+            "electron_flow_left_a_per_ev",
+            "A/eV",
+            "electron flow per unit energy out of the left contact into the device, times e",
+            |p, k| Cell::Num(ELEMENTARY_CHARGE * p.o.spectrum.flow_left[k]),
+        ),
+        col(
+            "electron_flow_right_a_per_ev",
+            "A/eV",
+            "electron flow per unit energy out of the right contact into the device, times e",
+            |p, k| Cell::Num(ELEMENTARY_CHARGE * p.o.spectrum.flow_right[k]),
+        ),
+        col(
+            "electron_flow_bath_a_per_ev",
+            "A/eV",
+            "electron flow per unit energy out of the phonon bath into the device, times e",
+            |p, k| Cell::Num(ELEMENTARY_CHARGE * p.o.spectrum.flow_bath[k]),
+        ),
+        Column {
+            name: "transmission",
+            unit: "1",
+            meaning: "coherent transmission T(E)",
+            only_when: Some(("without scattering", |p| {
+                p.o.spectrum.transmission.is_some()
+            })),
+            value: |p, k| {
+                Cell::Num(
+                    p.o.spectrum
+                        .transmission
+                        .as_ref()
+                        .map_or(f64::NAN, |t| t[k]),
+                )
+            },
+        },
+    ];
+    Table {
+        file: "spectrum.csv",
+        written_by: "`qheat solve`",
+        rows: "energy of the grid, ascending",
+        len: |p| p.o.spectrum.energy_ev.len(),
+        columns,
+    }
+}
+
+/// convergence.csv: one row per Born iteration.
+pub fn convergence<'a>() -> Table<SolvePoint<'a>> {
+    Table {
+        file: "convergence.csv",
+        written_by: "`qheat solve`",
+        rows: "Born iteration (no rows without scattering)",
+        len: |p| p.sol.report.history.len(),
+        columns: vec![
+            col("iteration", "1", "iteration number, from 1", |p, i| {
+                Cell::Int(p.sol.report.history[i].iteration as i64)
+            }),
+            col(
+                "residual",
+                "1",
+                "relative change of the in- and out-scattering self-energies between the input and output of the iteration",
+                |p, i| Cell::Num(p.sol.report.history[i].residual),
+            ),
+            col(
+                "current_left_a",
+                "A",
+                "current I_1 out of the left contact, with the iteration's input self-energy",
+                |p, i| Cell::Num(p.sol.report.history[i].current_left_a),
+            ),
+            col(
+                "current_right_a",
+                "A",
+                "current I_2 out of the right contact, with the iteration's input self-energy",
+                |p, i| Cell::Num(p.sol.report.history[i].current_right_a),
+            ),
+            col(
+                "current_change",
+                "1",
+                "largest change of a terminal current since the last iteration, over tolerance·|I| + current floor (converged when ≤ 1)",
+                |p, i| Cell::Num(p.sol.report.history[i].current_change),
+            ),
+        ],
+    }
+}
+
+/// generator.csv: one row per load voltage.
+pub fn generator() -> Table<GeneratorReport> {
+    type G = GeneratorReport;
+    Table {
+        file: "generator.csv",
+        written_by: "`qheat generator`",
+        rows: "load voltage, ascending",
+        len: |r| r.curve.len(),
+        columns: vec![
+            col::<G>(
+                "voltage_v",
+                "V",
+                "voltage V = V_1 − V_2 across the device",
+                |r, i| Cell::Num(r.curve[i].voltage_v),
+            ),
+            col(
+                "current_a",
+                "A",
+                "current I_1 into the device from the left (hot) lead",
+                |r, i| Cell::Num(r.curve[i].current_a),
+            ),
+            col(
+                "power_w",
+                "W",
+                "power delivered to the load, −I·V",
+                |r, i| Cell::Num(r.curve[i].power_w),
+            ),
+            col(
+                "heat_current_hot_w",
+                "W",
+                "heat current out of the hot lead",
+                |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
+            ),
+            col(
+                "efficiency",
+                "1",
+                "power / heat current out of the hot lead",
+                |r, i| Cell::Num(r.curve[i].efficiency),
+            ),
+            col(
+                "converged",
+                "-",
+                "whether the point's Born loop converged",
+                |r, i| Cell::Bool(r.curve[i].converged),
+            ),
+        ],
+    }
+}
+
+/// cooler.csv: one row per bias voltage.
+pub fn cooler() -> Table<CoolerReport> {
+    type C = CoolerReport;
+    Table {
+        file: "cooler.csv",
+        written_by: "`qheat cooler`",
+        rows: "bias voltage, ascending",
+        len: |r| r.curve.len(),
+        columns: vec![
+            col::<C>(
+                "voltage_v",
+                "V",
+                "voltage V = V_1 − V_2 across the device",
+                |r, i| Cell::Num(r.curve[i].voltage_v),
+            ),
+            col(
+                "current_a",
+                "A",
+                "current I_1 into the device from the left lead",
+                |r, i| Cell::Num(r.curve[i].current_a),
+            ),
+            col(
+                "cooling_power_w",
+                "W",
+                "heat current out of the cold lead into the device",
+                |r, i| Cell::Num(r.curve[i].cooling_power_w),
+            ),
+            col(
+                "input_power_w",
+                "W",
+                "electrical input power I·V",
+                |r, i| Cell::Num(r.curve[i].input_power_w),
+            ),
+            col(
+                "heat_current_hot_w",
+                "W",
+                "heat current out of the hot lead",
+                |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
+            ),
+            col(
+                "cop",
+                "1",
+                "coefficient of performance, cooling power / input power; NaN where either is \
+                 not positive",
+                |r, i| Cell::Num(r.curve[i].cop),
+            ),
+            col(
+                "converged",
+                "-",
+                "whether the point's Born loop converged",
+                |r, i| Cell::Bool(r.curve[i].converged),
+            ),
+        ],
+    }
+}
+
+/// A documented column of the grid tables (sweep.csv, screen.csv,
+/// ranking.csv): name, unit, kind, meaning.
+pub type GridColumn = (&'static str, &'static str, CellKind, &'static str);
+
+/// Every result column a grid table can hold, after its axis columns.
+pub const GRID_COLUMNS: [GridColumn; 31] = [
+    (
+        "rank",
+        "1",
+        CellKind::Int,
+        "place in the ranking, 1 = best (ranking.csv only)",
+    ),
+    (
+        "point",
+        "1",
+        CellKind::Int,
+        "grid index of the point (ranking.csv only)",
+    ),
+    (
+        "voltage_v",
+        "V",
+        CellKind::Num,
+        "voltage V = V_1 − V_2 (sweep)",
+    ),
+    (
+        "current_a",
+        "A",
+        CellKind::Num,
+        "current I = I_1 out of the left contact (sweep)",
+    ),
+    (
+        "current_right_a",
+        "A",
+        CellKind::Num,
+        "current I_2 out of the right contact (sweep)",
+    ),
+    (
+        "heat_current_left_w",
+        "W",
+        CellKind::Num,
+        "heat current out of the left contact (sweep)",
+    ),
+    (
+        "heat_current_right_w",
+        "W",
+        CellKind::Num,
+        "heat current out of the right contact (sweep)",
+    ),
+    (
+        "energy_current_left_w",
+        "W",
+        CellKind::Num,
+        "energy current out of the left contact (sweep)",
+    ),
+    (
+        "energy_current_right_w",
+        "W",
+        CellKind::Num,
+        "energy current out of the right contact (sweep)",
+    ),
+    (
+        "lattice_power_w",
+        "W",
+        CellKind::Num,
+        "power handed to the lattice, all cells (sweep)",
+    ),
+    (
+        "electrical_power_w",
+        "W",
+        CellKind::Num,
+        "electrical power I·V (sweep)",
+    ),
+    (
+        "conductance_s",
+        "S",
+        CellKind::Num,
+        "conductance I/V, NaN at V = 0 (sweep); linear-response G (screen)",
+    ),
+    (
+        "ledger_charge_relative",
+        "1",
+        CellKind::Num,
+        "charge residual of the ledger, relative (sweep)",
+    ),
+    (
+        "ledger_energy_relative",
+        "1",
+        CellKind::Num,
+        "energy identity of the ledger, relative (sweep)",
+    ),
+    (
+        "ledger_heat_relative",
+        "1",
+        CellKind::Num,
+        "heat residual of the ledger, relative (sweep)",
+    ),
+    (
+        "iterations",
+        "1",
+        CellKind::Int,
+        "Born iterations done (sweep)",
+    ),
+    (
+        "final_residual",
+        "1",
+        CellKind::Num,
+        "residual of the last Born iteration (sweep)",
+    ),
+    (
+        "fermi_level_ev",
+        "eV",
+        CellKind::Num,
+        "reference Fermi level µ (screen)",
+    ),
+    (
+        "temperature_k",
+        "K",
+        CellKind::Num,
+        "reference temperature (screen, by ZT or power factor)",
+    ),
+    (
+        "seebeck_v_per_k",
+        "V/K",
+        CellKind::Num,
+        "Seebeck coefficient S (screen)",
+    ),
+    (
+        "thermal_conductance_w_per_k",
+        "W/K",
+        CellKind::Num,
+        "electronic thermal conductance κe (screen)",
+    ),
+    (
+        "power_factor_w_per_k2",
+        "W/K²",
+        CellKind::Num,
+        "power factor S²G (screen)",
+    ),
+    ("zt", "1", CellKind::Num, "figure of merit ZT (screen)"),
+    (
+        "kelvin_residual",
+        "1",
+        CellKind::Num,
+        "Kelvin (Onsager) residual (screen)",
+    ),
+    (
+        "max_cooling_power_w",
+        "W",
+        CellKind::Num,
+        "largest cooling power on the cooler curve (screen, by cooling)",
+    ),
+    (
+        "voltage_at_max_v",
+        "V",
+        CellKind::Num,
+        "voltage of the largest cooling power (screen, by cooling)",
+    ),
+    (
+        "current_at_max_a",
+        "A",
+        CellKind::Num,
+        "current of the largest cooling power (screen, by cooling)",
+    ),
+    (
+        "cop_at_max",
+        "1",
+        CellKind::Num,
+        "COP at the largest cooling power (screen, by cooling)",
+    ),
+    (
+        "carnot_cop",
+        "1",
+        CellKind::Num,
+        "Carnot COP of the two lead temperatures (screen, by cooling)",
+    ),
+    (
+        "converged",
+        "-",
+        CellKind::Bool,
+        "whether the point's Born loops converged",
+    ),
+    (
+        "<axis key>",
+        "unit of the key",
+        CellKind::Num,
+        "value of a varied case key; one column per --vary, first",
+    ),
+];
+
+/// The kind of a grid-table column (axis columns are numbers).
+pub fn grid_kind(name: &str) -> CellKind {
+    GRID_COLUMNS
+        .iter()
+        .find(|c| c.0 == name)
+        .map_or(CellKind::Num, |c| c.2)
+}
+
+/// A grid table (rows of stored numbers) as CSV bytes, each column
+/// written as its kind: flags `true`/`false`, counts as whole numbers.
+pub fn grid_csv(columns: &[String], rows: &[Vec<f64>]) -> Vec<u8> {
+    let kinds: Vec<CellKind> = columns.iter().map(|c| grid_kind(c)).collect();
+    let headers: Vec<&str> = columns.iter().map(String::as_str).collect();
+    super::super::cells_csv_bytes(
+        &headers,
+        rows.iter()
+            .map(|r| r.iter().zip(&kinds).map(|(v, k)| k.cell(*v)).collect()),
+    )
+}
+
+fn grid_doc(file: &str, written_by: &'static str, about: &str) -> FileDoc {
+    let mut fields: Vec<FieldDoc> = GRID_COLUMNS
+        .iter()
+        .map(|(n, u, _, m)| FieldDoc {
+            name: n.to_string(),
+            unit: u,
+            meaning: m.to_string(),
+        })
+        .collect();
+    fields.rotate_right(1);
+    FileDoc {
+        file: file.into(),
+        written_by,
+        about: about.into(),
+        fields,
+    }
+}
+
+/// Documentation of every CSV file.
+pub fn table_docs() -> Vec<FileDoc> {
+    let mut docs = vec![
+        sites().doc(),
+        spectrum().doc(),
+        convergence().doc(),
+        generator().doc(),
+        cooler().doc(),
+    ];
+    docs.push(grid_doc(
+        "sweep.csv",
+        "`qheat sweep`",
+        "One row per grid point in grid order (row-major, last axis fastest): the axis \
+         columns, then the sweep's columns marked (sweep) below.",
+    ));
+    docs.push(grid_doc(
+        "screen.csv",
+        "`qheat screen`",
+        "One row per grid point in grid order: the axis columns, then the columns marked \
+         (screen) below for the chosen --rank.",
+    ));
+    docs.push(grid_doc(
+        "ranking.csv",
+        "`qheat screen`",
+        "The rows of screen.csv best first, led by `rank` and `point`; unconverged points \
+         and points without a value rank last.",
+    ));
+    docs
+}
+
+/// Name of the bond-current file with its axes.
+pub const BOND_CURRENT_NPZ: &str = "bond_current.npz";
+
+/// Documentation of every array file.
+pub fn array_docs() -> Vec<FileDoc> {
+    let f = |name: &str, unit: &'static str, meaning: &str| FieldDoc {
+        name: name.into(),
+        unit,
+        meaning: meaning.into(),
+    };
+    let map = "energy-resolved bond current: electron flow per unit energy from cell i to \
+               cell i+1 times e, positive for electrons moving to +x; shape (cells − 1, \
+               energies), axis 0 the bond, axis 1 the energy";
+    vec![
+        FileDoc {
+            file: "bond_current.npy".into(),
+            written_by: "`qheat solve`",
+            about: "The bond-current map alone (kept for readers of earlier results); its axes are in bond_current.npz.".into(),
+            fields: vec![f("(the array)", "A/eV", map)],
+        },
+        FileDoc {
+            file: BOND_CURRENT_NPZ.into(),
+            written_by: "`qheat solve`",
+            about: "The bond-current map with its axes, as named arrays.".into(),
+            fields: vec![
+                f("map", "A/eV", map),
+                f(
+                    "bond_x_nm",
+                    "nm",
+                    "position of each bond (midway between cell i and i+1), length cells − 1: \
+                     the coordinate of axis 0 of `map`",
+                ),
+                f(
+                    "energy_ev",
+                    "eV",
+                    "energy of each grid point, ascending: the coordinate of axis 1 of `map`",
+                ),
+            ],
+        },
+        FileDoc {
+            file: "self_energy_retarded.npy".into(),
+            written_by: "`qheat solve` with scattering",
+            about: "Stored for warm starts (`--warm-start DIR`).".into(),
+            fields: vec![f(
+                "(the array)",
+                "eV",
+                "retarded scattering self-energy Σ^r_0 (complex), one value per orbital \
+                 site; shape (energies, sites), axis 0 the energy of spectrum.csv, axis 1 \
+                 the orbital site (cell-major: cell · orbitals + orbital)",
+            )],
+        },
+        FileDoc {
+            file: "self_energy_in.npy".into(),
+            written_by: "`qheat solve` with scattering",
+            about: "Stored for warm starts (`--warm-start DIR`).".into(),
+            fields: vec![f(
+                "(the array)",
+                "eV",
+                "in-scattering self-energy Σ^in_0 = −iΣ^<_0 (real), one value per orbital \
+                 site; shape (energies, sites) as self_energy_retarded.npy",
+            )],
+        },
+    ]
+}
