@@ -7,11 +7,18 @@
 //! [`raster`]) to keep the files small. Legends sit in a strip above each
 //! panel, never on top of the data.
 //!
-//! Colours: heating and the right lead in burnt orange, cooling and the
-//! left lead in blue, the bath in green, the local Fermi level in purple;
-//! maps use a blue–white–orange diverging scale centred on zero. Blue
-//! against orange stays distinguishable for the common forms of colour
-//! blindness.
+//! Colours: within a figure each colour stands for one thing, and a thing
+//! keeps its colour in every figure (the table is
+//! [`style::MEANINGS`]). Heating is burnt orange and cooling blue; the
+//! leads are two neutral greys told apart by lightness (the right lead
+//! dashed where it is a line); the direction of electron motion is teal
+//! (to +x, left to right) against brown (to −x), both in the net flow of
+//! the spectrum and in the brown–white–teal diverging scale of signed maps;
+//! the local Fermi level is purple, its drop a pale purple, the scattering
+//! bath rose. Orange against blue and teal against brown stay apart for
+//! the common forms of colour blindness, and the two greys differ in
+//! lightness alone. The bond-current map colours a signed logarithm of the
+//! current ([`style::signed_log`]) so that a weak counter-flow shows.
 
 mod curves;
 mod figures;
