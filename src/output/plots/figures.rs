@@ -837,13 +837,16 @@ pub fn convergence_svg(sol: &Solution) -> Result<Option<String>, OutputError> {
     Ok(Some(svg))
 }
 
+/// A convergence curve: its points, its limit and its colour.
+type Curve<'a> = (&'a [(f64, f64)], f64, RGBColor);
+
 /// The log-scale chart of convergence.svg: each curve with markers and its
 /// limit as a dashed line of the same colour.
 fn draw_convergence(
     plot: &Area<'_>,
     x: (f64, f64),
     (lo, hi): (f64, f64),
-    curves: &[(&[(f64, f64)], f64, RGBColor)],
+    curves: &[Curve<'_>],
 ) -> Result<(), DrawError> {
     let mut chart = ChartBuilder::on(plot)
         .margin_left(MARGIN_LEFT)
