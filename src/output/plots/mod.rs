@@ -759,7 +759,7 @@ fn colour_bar(area: &Area<'_>, scale: &ColourScale, label: &str) -> Result<(), D
 }
 
 /// A heat map of `values` (shape `(y.len(), x.len())`) with a colour bar.
-/// `diverging` centres a blue–white–orange scale on zero (signed
+/// `diverging` centres a brown–white–teal scale on zero (signed
 /// quantities); otherwise a pale-to-dark sequential scale spans the data.
 /// Uniform grids are embedded as one image; others as one rectangle per
 /// cell.
