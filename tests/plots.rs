@@ -2,7 +2,8 @@
 //! holds the series, labels and colour bar it promises, and the drawn marks
 //! agree with the numbers they stand for (one heating bar per heated cell,
 //! one residual marker per Born iteration, the map's extreme pixel in the
-//! right column).
+//! right column). How the figures read (colours, net flow, the map's
+//! scale) is checked in `figure_reading.rs`.
 
 use plotters::style::RGBColor;
 use qheat::case::Case;
@@ -141,18 +142,47 @@ fn phonon_demo_figures_show_heating_cooling_flows_map_and_convergence() {
         !has_text(&doc, "transmission"),
         "no transmission with scattering"
     );
-    let windows = doc
-        .descendants()
-        .filter(|n| n.has_tag_name("rect") && n.attribute("opacity") == Some("0.13"))
-        .count();
-    assert_eq!(windows, 2, "one shaded Fermi window per lead");
+    // One window bar µ ± 2kT per lead: a bracket of four points in the
+    // lead's colour, labelled with the lead's temperature.
+    for c in [style::LEFT, style::RIGHT] {
+        let brackets = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("polyline"))
+            .filter(|n| {
+                n.attribute("stroke")
+                    .is_some_and(|v| v.eq_ignore_ascii_case(&hex(c)))
+            })
+            .filter(|n| {
+                let p: Vec<(f64, f64)> = n
+                    .attribute("points")
+                    .unwrap()
+                    .split_whitespace()
+                    .map(|xy| {
+                        let (x, y) = xy.split_once(',').unwrap();
+                        (x.parse().unwrap(), y.parse().unwrap())
+                    })
+                    .collect();
+                // ⊓-shaped: up, across, down to the same height.
+                p.len() == 4
+                    && p[0].0 == p[1].0
+                    && p[2].0 == p[3].0
+                    && p[1].1 == p[2].1
+                    && p[0].1 == p[3].1
+                    && p[0].1 > p[1].1
+                    && p[2].0 > p[1].0
+            })
+            .count();
+        assert_eq!(brackets, 1, "one Fermi window bar of {}", hex(c));
+    }
+    assert!(has_text(&doc, "left lead µ ± 2kT (300 K)"));
+    assert!(has_text(&doc, "right lead µ ± 2kT (300 K)"));
 
     // bond_current.svg: the map as one image, a diverging colour bar, band edge.
     let text = read(&dir, "bond_current.svg");
     let doc = roxmltree::Document::parse(&text).unwrap();
     assert!(has_text(
         &doc,
-        "current density (µA/eV), + = electrons to +x"
+        "bond current (µA/eV), signed log; + = electrons to +x"
     ));
     assert!(has_text(&doc, "position x (nm)"));
     assert!(has_text(&doc, "energy E (meV)"));

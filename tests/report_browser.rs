@@ -392,7 +392,7 @@ fn report_and_figures_render_in_headless_chromium() {
                 style::diverging(1.0 - 1.0 / 96.0),
             ],
         ),
-        ("convergence.svg", &[style::RESIDUAL, style::BATH]),
+        ("convergence.svg", &[style::RESIDUAL, style::CURRENT_CHANGE]),
     ];
     for (name, colours) in checks {
         let text = std::fs::read_to_string(dir.join(name)).unwrap();

@@ -2,11 +2,11 @@
 
 use super::style::*;
 use super::{
-    Area, DrawError, MARGIN_LEFT, MARGIN_RIGHT, MapSpec, Mark, Overlay, Y_AREA, centred_note,
-    desc_font, draw_legend, heat_map, legend_height, plot_error, render, short, tick_font,
-    title_font,
+    Area, DrawError, MARGIN_LEFT, MARGIN_RIGHT, MapScale, MapSpec, Mark, Overlay, Y_AREA,
+    centred_note, desc_font, draw_legend, heat_map, legend_height, plot_error, render, short,
+    tick_font, title_font,
 };
-use crate::observables::{Observables, bond_current_map};
+use crate::observables::{Observables, Spectrum, bond_current_map};
 use crate::output::OutputError;
 use crate::scba::Solution;
 use crate::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE};
@@ -113,9 +113,275 @@ fn with_zero(range: Option<(f64, f64)>) -> (f64, f64) {
     (lo.min(0.0), hi.max(0.0))
 }
 
+/// Position axis of the device figure: the device and a strip of each lead.
+struct Span {
+    /// Whole axis (nm).
+    x: (f64, f64),
+    /// Device edges (nm).
+    xa: f64,
+    xb: f64,
+    /// Cell spacing (nm).
+    a: f64,
+}
+
+impl Span {
+    fn shade(&self) -> [(f64, f64); 2] {
+        [(self.x.0, self.xa), (self.xb, self.x.1)]
+    }
+}
+
+/// Top panel of device.svg: band edge, local Fermi level and the lead
+/// Fermi levels (thick in each lead, dashed across the device).
+struct EnergyPanel {
+    range: (f64, f64),
+    factor: f64,
+    unit: &'static str,
+    entries: Vec<(Mark, String)>,
+}
+
+fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
+    let s = &o.sites;
+    let (mu_l, mu_r) = (
+        sol.problem.left.fermi_level_ev,
+        sol.problem.right.fermi_level_ev,
+    );
+    let levels = || {
+        s.band_edge_ev
+            .iter()
+            .chain(&s.fermi_level_ev)
+            .copied()
+            .chain([mu_l, mu_r])
+    };
+    let (factor, unit) = energy_unit(levels());
+    let r = finite_range(&levels().collect::<Vec<_>>()).unwrap_or((0.0, 1.0));
+    let entries = vec![
+        (Mark::Line(INK, false), "band edge".to_string()),
+        (
+            Mark::Line(LOCAL_FERMI, false),
+            "local Fermi level".to_string(),
+        ),
+        (
+            Mark::Line(LEFT, false),
+            format!("left lead Fermi level {} {unit}", short(mu_l * factor)),
+        ),
+        (
+            Mark::Line(RIGHT, false),
+            format!("right lead Fermi level {} {unit}", short(mu_r * factor)),
+        ),
+    ];
+    EnergyPanel {
+        range: padded(r.0 * factor, r.1 * factor, 0.08),
+        factor,
+        unit,
+        entries,
+    }
+}
+
+fn draw_energy_panel(
+    area: &Area<'_>,
+    sol: &Solution,
+    o: &Observables,
+    span: &Span,
+    ep: &EnergyPanel,
+) -> Result<(), DrawError> {
+    let s = &o.sites;
+    let (x, ef, e_range) = (span.x, ep.factor, ep.range);
+    let y_desc = format!("energy ({})", ep.unit);
+    let mut chart = panel(area, x, e_range, None, &y_desc, &span.shade())?;
+    for (text, xc) in [
+        ("left lead", 0.5 * (x.0 + span.xa)),
+        ("right lead", 0.5 * (span.xb + x.1)),
+    ] {
+        chart.draw_series(std::iter::once(Text::new(
+            text,
+            (xc, e_range.1 - 0.015 * (e_range.1 - e_range.0)),
+            tick_font().pos(Pos::new(HPos::Center, VPos::Top)),
+        )))?;
+    }
+    let (mu_l, mu_r) = (
+        sol.problem.left.fermi_level_ev,
+        sol.problem.right.fermi_level_ev,
+    );
+    for (mu, c, from, to) in [(mu_l, LEFT, x.0, span.xa), (mu_r, RIGHT, span.xb, x.1)] {
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(from, mu * ef), (to, mu * ef)],
+            c.stroke_width(4),
+        )))?;
+        chart.draw_series(DashedLineSeries::new(
+            vec![(span.xa, mu * ef), (span.xb, mu * ef)],
+            6,
+            6,
+            c.stroke_width(1),
+        ))?;
+    }
+    chart.draw_series(LineSeries::new(
+        steps(&s.x_nm, &s.band_edge_ev, span.a, ef),
+        INK.stroke_width(3),
+    ))?;
+    // Cells without a local Fermi level (NaN: no states, or a match
+    // outside the search interval) break the line instead of being
+    // joined across.
+    let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+    for (xi, m) in s.x_nm.iter().zip(&s.fermi_level_ev) {
+        if m.is_finite() {
+            runs.last_mut().expect("a run").push((*xi, m * ef));
+        } else if !runs.last().expect("a run").is_empty() {
+            runs.push(Vec::new());
+        }
+    }
+    for run in runs.into_iter().filter(|r| !r.is_empty()) {
+        chart.draw_series(LineSeries::new(run, LOCAL_FERMI.stroke_width(2)))?;
+    }
+    Ok(())
+}
+
+/// Middle panel of device.svg: drops of the local Fermi level, contacts
+/// included, as bars at the cell boundaries.
+struct DropPanel {
+    x: Vec<f64>,
+    v: Vec<f64>,
+    range: (f64, f64),
+    factor: f64,
+    prefix: &'static str,
+    entries: Vec<(Mark, String)>,
+}
+
+fn drop_panel(o: &Observables, a: f64) -> DropPanel {
+    let s = &o.sites;
+    let n = s.x_nm.len();
+    let mut x = vec![s.x_nm[0] - 0.5 * a];
+    let mut v = vec![o.contact_drop_left_v];
+    for i in 0..n {
+        x.push(s.x_nm[i] + 0.5 * a);
+        // The last cell's own entry is zero by definition; its bar is the
+        // drop into the right contact.
+        v.push(if i + 1 < n {
+            s.voltage_drop_v[i]
+        } else {
+            o.contact_drop_right_v
+        });
+    }
+    let (factor, prefix) = prefix_for(max_abs(&v));
+    let r = with_zero(finite_range(&v));
+    let biggest = v
+        .iter()
+        .enumerate()
+        .filter(|(_, v)| v.is_finite())
+        .max_by(|l, r| l.1.abs().total_cmp(&r.1.abs()));
+    let label = match biggest {
+        Some((i, d)) => format!(
+            "drop of the local Fermi level, cell to cell and into each contact (largest {} {prefix}V {})",
+            short(d * factor),
+            if i == 0 {
+                "into the left contact".to_string()
+            } else if i == n {
+                "into the right contact".to_string()
+            } else {
+                format!("at x = {:.1} nm", x[i])
+            }
+        ),
+        None => "drop of the local Fermi level, cell to cell".to_string(),
+    };
+    DropPanel {
+        range: padded(r.0 * factor, r.1 * factor, 0.08),
+        x,
+        v,
+        factor,
+        prefix,
+        entries: vec![(Mark::Block(DROP, 1.0), label)],
+    }
+}
+
+fn draw_drop_panel(area: &Area<'_>, span: &Span, dp: &DropPanel) -> Result<(), DrawError> {
+    let y_desc = format!("Fermi-level drop ({}V)", dp.prefix);
+    let mut chart = panel(area, span.x, dp.range, None, &y_desc, &span.shade())?;
+    let (a, vf) = (span.a, dp.factor);
+    chart.draw_series(
+        dp.x.iter()
+            .zip(&dp.v)
+            .filter(|(_, v)| v.is_finite())
+            .map(|(xi, v)| {
+                Rectangle::new([(xi - 0.4 * a, v * vf), (xi + 0.4 * a, 0.0)], DROP.filled())
+            }),
+    )?;
+    zero_line(&mut chart, span.x)
+}
+
+/// Legend of the bottom panel of device.svg: heated and cooled, with the
+/// totals when there is lattice power.
+fn power_entries(pw: &[f64]) -> Vec<(Mark, String)> {
+    let heat: f64 = pw.iter().filter(|v| **v > 0.0).sum();
+    let cool: f64 = pw.iter().filter(|v| **v < 0.0).sum();
+    if pw.iter().all(|v| *v == 0.0) {
+        return vec![
+            (Mark::Block(HEATING, 1.0), "lattice heated".to_string()),
+            (Mark::Block(COOLING, 1.0), "lattice cooled".to_string()),
+        ];
+    }
+    let (tf, tp) = prefix_for(heat.abs().max(cool.abs()));
+    vec![
+        (
+            Mark::Block(HEATING, 1.0),
+            format!("lattice heated: {} {tp}W in all", short(heat * tf)),
+        ),
+        (
+            Mark::Block(COOLING, 1.0),
+            format!("lattice cooled: {} {tp}W in all", short(cool * tf)),
+        ),
+    ]
+}
+
+/// Bottom panel of device.svg: lattice power per cell, heated and cooled
+/// cells in their own colours; a note when there is no power at all.
+fn draw_power_panel(
+    area: &Area<'_>,
+    span: &Span,
+    pw: &[f64],
+    x_nm: &[f64],
+    coherent: bool,
+) -> Result<(), DrawError> {
+    let (pf, pp) = prefix_for(max_abs(pw));
+    let all_zero = pw.iter().all(|v| *v == 0.0);
+    let p_range = if all_zero {
+        (-1.0, 1.0)
+    } else {
+        let r = with_zero(finite_range(pw));
+        padded(r.0 * pf, r.1 * pf, 0.08)
+    };
+    let y_desc = if all_zero {
+        "lattice power per cell (W)".to_string()
+    } else {
+        format!("lattice power per cell ({pp}W)")
+    };
+    let x_desc = Some("position x (nm)");
+    let mut chart = panel(area, span.x, p_range, x_desc, &y_desc, &span.shade())?;
+    let a = span.a;
+    chart.draw_series(
+        x_nm.iter()
+            .zip(pw)
+            .filter(|(_, v)| v.is_finite() && **v != 0.0)
+            .map(|(xi, v)| {
+                let c = if *v > 0.0 { HEATING } else { COOLING };
+                Rectangle::new([(xi - 0.4 * a, v * pf), (xi + 0.4 * a, 0.0)], c.filled())
+            }),
+    )?;
+    zero_line(&mut chart, span.x)?;
+    if all_zero {
+        let note = if coherent {
+            "coherent transport: no scattering, so no power reaches the lattice"
+        } else {
+            "the lattice power is zero in every cell"
+        };
+        centred_note(area, &chart, note)?;
+    }
+    Ok(())
+}
+
 /// device.svg: band edge with the local and lead Fermi levels; the drop of
 /// the local Fermi level per cell (where the resistance sits); the lattice
 /// power per cell (where heat is deposited or taken), on one position axis.
+/// The leads are drawn in neutral greys, heating and cooling in orange and
+/// blue, so no colour stands for two things.
 pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
     const FIGURE: &str = "device.svg";
     let p = &sol.problem;
@@ -127,281 +393,177 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
     let a = p.device.spacing_nm;
     let (xa, xb) = (s.x_nm[0] - 0.5 * a, s.x_nm[n - 1] + 0.5 * a);
     let lead_w = (0.06 * (xb - xa)).max(2.0 * a);
-    let x = (xa - lead_w, xb + lead_w);
-    let shade = [(x.0, xa), (xb, x.1)];
-    let (mu_l, mu_r) = (p.left.fermi_level_ev, p.right.fermi_level_ev);
-    let coherent = p.scattering.is_coherent();
-
-    // Top: energies.
-    let (ef, eu) = energy_unit(
-        s.band_edge_ev
-            .iter()
-            .chain(&s.fermi_level_ev)
-            .copied()
-            .chain([mu_l, mu_r]),
-    );
-    let e_range = finite_range(
-        s.band_edge_ev
-            .iter()
-            .chain(&s.fermi_level_ev)
-            .chain([&mu_l, &mu_r]),
-    )
-    .unwrap_or((0.0, 1.0));
-    let e_range = padded(e_range.0 * ef, e_range.1 * ef, 0.08);
-    let top_entries = vec![
-        (Mark::Line(INK, false), "band edge".to_string()),
-        (
-            Mark::Line(LOCAL_FERMI, false),
-            "local Fermi level".to_string(),
-        ),
-        (
-            Mark::Line(LEFT, false),
-            format!("left lead Fermi level {} {eu}", short(mu_l * ef)),
-        ),
-        (
-            Mark::Line(RIGHT, false),
-            format!("right lead Fermi level {} {eu}", short(mu_r * ef)),
-        ),
-    ];
-
-    // Middle: drops of the local Fermi level, contacts included.
-    let mut drop_x = vec![s.x_nm[0] - 0.5 * a];
-    let mut drop_v = vec![o.contact_drop_left_v];
-    for i in 0..n {
-        drop_x.push(s.x_nm[i] + 0.5 * a);
-        drop_v.push(if i + 1 < n {
-            s.voltage_drop_v[i]
-        } else {
-            o.contact_drop_right_v
-        });
-    }
-    let (vf, vp) = prefix_for(max_abs(&drop_v));
-    let drop_range = with_zero(finite_range(&drop_v));
-    let drop_range = padded(drop_range.0 * vf, drop_range.1 * vf, 0.08);
-    let biggest = drop_v
-        .iter()
-        .enumerate()
-        .filter(|(_, v)| v.is_finite())
-        .max_by(|l, r| l.1.abs().total_cmp(&r.1.abs()));
-    let mid_entries = vec![(
-        Mark::Block(DROP, 1.0),
-        match biggest {
-            Some((i, v)) => format!(
-                "drop of the local Fermi level, cell to cell and into each contact (largest {} {vp}V {})",
-                short(v * vf),
-                if i == 0 {
-                    "into the left contact".to_string()
-                } else if i == n {
-                    "into the right contact".to_string()
-                } else {
-                    format!("at x = {:.1} nm", drop_x[i])
-                }
-            ),
-            None => "drop of the local Fermi level, cell to cell".to_string(),
-        },
-    )];
-
-    // Bottom: lattice power.
-    let pw = &s.lattice_power_w;
-    let (pf, pp) = prefix_for(max_abs(pw));
-    let heat: f64 = pw.iter().filter(|v| **v > 0.0).sum();
-    let cool: f64 = pw.iter().filter(|v| **v < 0.0).sum();
-    let all_zero = pw.iter().all(|v| *v == 0.0);
-    let p_range = if all_zero {
-        (-1.0, 1.0)
-    } else {
-        let r = with_zero(finite_range(pw));
-        padded(r.0 * pf, r.1 * pf, 0.08)
+    let span = Span {
+        x: (xa - lead_w, xb + lead_w),
+        xa,
+        xb,
+        a,
     };
-    let (tf, tp) = prefix_for(heat.abs().max(cool.abs()));
-    let bottom_entries = if all_zero {
-        vec![
-            (Mark::Block(HEATING, 1.0), "lattice heated".to_string()),
-            (Mark::Block(COOLING, 1.0), "lattice cooled".to_string()),
-        ]
-    } else {
-        vec![
-            (
-                Mark::Block(HEATING, 1.0),
-                format!("lattice heated: {} {tp}W in all", short(heat * tf)),
-            ),
-            (
-                Mark::Block(COOLING, 1.0),
-                format!("lattice cooled: {} {tp}W in all", short(cool * tf)),
-            ),
-        ]
-    };
-
+    let ep = energy_panel(sol, o);
+    let dp = drop_panel(o, a);
+    let bottom_entries = power_entries(&s.lattice_power_w);
     let left = (MARGIN_LEFT + Y_AREA) as i32;
     let lh = |e: &[(Mark, String)]| legend_height(e, left, WIDTH as i32);
-    let (h_top, h_mid, h_bot) = (300u32, 200u32, 250u32);
-    let (l_top, l_mid, l_bot) = (lh(&top_entries), lh(&mid_entries), lh(&bottom_entries));
-    let height = 44 + l_top + h_top + l_mid + h_mid + l_bot + h_bot + 30;
+    let (h_top, h_mid) = (300u32, 200u32);
+    let (l_top, l_mid, l_bot) = (lh(&ep.entries), lh(&dp.entries), lh(&bottom_entries));
+    let height = 44 + l_top + h_top + l_mid + h_mid + l_bot + 250 + 30;
+    let (cf, cp) = prefix_for(o.current_a.abs());
     let title = format!(
-        "Along the device: V = {} mV, T left {} K, T right {} K, I = {} {}A",
+        "Along the device: V = {} mV, T left {} K, T right {} K, I = {} {cp}A",
         short(o.voltage_v * 1e3),
         short(p.left.temperature_k),
         short(p.right.temperature_k),
-        short(o.current_a * prefix_for(o.current_a.abs()).0),
-        prefix_for(o.current_a.abs()).1,
+        short(o.current_a * cf),
     );
     render(FIGURE, (WIDTH, height), |root, _| {
         let body = root.titled(&title, title_font())?;
         let (strip, rest) = body.split_vertically(l_top);
-        draw_legend(&strip, &top_entries, left)?;
+        draw_legend(&strip, &ep.entries, left)?;
         let (top, rest) = rest.split_vertically(h_top);
         let (strip, rest) = rest.split_vertically(l_mid);
-        draw_legend(&strip, &mid_entries, left)?;
+        draw_legend(&strip, &dp.entries, left)?;
         let (mid, rest) = rest.split_vertically(h_mid);
         let (strip, bottom) = rest.split_vertically(l_bot);
         draw_legend(&strip, &bottom_entries, left)?;
-
-        let mut chart = panel(&top, x, e_range, None, &format!("energy ({eu})"), &shade)?;
-        for (text, xc) in [
-            ("left lead", 0.5 * (x.0 + xa)),
-            ("right lead", 0.5 * (xb + x.1)),
-        ] {
-            chart.draw_series(std::iter::once(Text::new(
-                text,
-                (xc, e_range.1 - 0.015 * (e_range.1 - e_range.0)),
-                tick_font().pos(Pos::new(HPos::Center, VPos::Top)),
-            )))?;
-        }
-        for (mu, c, from, to) in [(mu_l, LEFT, x.0, xa), (mu_r, RIGHT, xb, x.1)] {
-            chart.draw_series(std::iter::once(PathElement::new(
-                vec![(from, mu * ef), (to, mu * ef)],
-                c.stroke_width(4),
-            )))?;
-            chart.draw_series(DashedLineSeries::new(
-                vec![(xa, mu * ef), (xb, mu * ef)],
-                6,
-                6,
-                c.mix(0.55).stroke_width(1),
-            ))?;
-        }
-        chart.draw_series(LineSeries::new(
-            steps(&s.x_nm, &s.band_edge_ev, a, ef),
-            INK.stroke_width(3),
-        ))?;
-        // Cells without a local Fermi level (NaN: no states, or a match
-        // outside the search interval) break the line instead of being
-        // joined across.
-        let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
-        for (xi, m) in s.x_nm.iter().zip(&s.fermi_level_ev) {
-            if m.is_finite() {
-                runs.last_mut().expect("a run").push((*xi, m * ef));
-            } else if !runs.last().expect("a run").is_empty() {
-                runs.push(Vec::new());
-            }
-        }
-        for run in runs.into_iter().filter(|r| !r.is_empty()) {
-            chart.draw_series(LineSeries::new(run, LOCAL_FERMI.stroke_width(2)))?;
-        }
-
-        let mut chart = panel(
-            &mid,
-            x,
-            drop_range,
-            None,
-            &format!("Fermi-level drop ({vp}V)"),
-            &shade,
-        )?;
-        chart.draw_series(
-            drop_x
-                .iter()
-                .zip(&drop_v)
-                .filter(|(_, v)| v.is_finite())
-                .map(|(xi, v)| {
-                    Rectangle::new([(xi - 0.4 * a, v * vf), (xi + 0.4 * a, 0.0)], DROP.filled())
-                }),
-        )?;
-        zero_line(&mut chart, x)?;
-
-        let mut chart = panel(
-            &bottom,
-            x,
-            p_range,
-            Some("position x (nm)"),
-            &if all_zero {
-                "lattice power per cell (W)".to_string()
-            } else {
-                format!("lattice power per cell ({pp}W)")
-            },
-            &shade,
-        )?;
-        chart.draw_series(
-            s.x_nm
-                .iter()
-                .zip(pw)
-                .filter(|(_, v)| v.is_finite() && **v != 0.0)
-                .map(|(xi, v)| {
-                    let c = if *v > 0.0 { HEATING } else { COOLING };
-                    Rectangle::new([(xi - 0.4 * a, v * pf), (xi + 0.4 * a, 0.0)], c.filled())
-                }),
-        )?;
-        zero_line(&mut chart, x)?;
-        if all_zero {
-            let note = if coherent {
-                "coherent transport: no scattering, so no power reaches the lattice"
-            } else {
-                "the lattice power is zero in every cell"
-            };
-            centred_note(&bottom, &chart, note)?;
-        }
-        Ok(())
+        draw_energy_panel(&top, sol, o, &span, &ep)?;
+        draw_drop_panel(&mid, &span, &dp)?;
+        let coherent = p.scattering.is_coherent();
+        draw_power_panel(&bottom, &span, &s.lattice_power_w, &s.x_nm, coherent)
     })
 }
 
-/// spectrum.svg: energy-resolved flows into the device from each lead and
-/// from the scattering bath, lead Fermi windows shaded; transmission below
-/// when the transport is coherent.
-pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
-    const FIGURE: &str = "spectrum.svg";
-    let p = &sol.problem;
-    let sp = &o.spectrum;
-    if sp.energy_ev.is_empty() {
-        return Err(plot_error(FIGURE, "the energy grid is empty"));
-    }
-    let coherent = p.scattering.is_coherent();
-    let e = ELEMENTARY_CHARGE;
-    let (ef, eu) = energy_unit(sp.energy_ev.iter().copied());
-    let weight: Vec<f64> = (0..sp.energy_ev.len())
-        .map(|k| sp.flow_left[k].abs() + sp.flow_right[k].abs() + sp.flow_bath[k].abs())
-        .collect();
-    let keep: Vec<f64> = [&p.left, &p.right]
-        .iter()
-        .flat_map(|c| {
-            let w = 2.0 * BOLTZMANN_EV_PER_K * c.temperature_k;
-            [c.fermi_level_ev - w, c.fermi_level_ev + w]
-        })
-        .collect();
-    let x = busy_window(&sp.energy_ev, &weight, &keep);
-    let x = (x.0 * ef, x.1 * ef);
-    let all: Vec<f64> = sp
+/// Net electron flow through the device per unit energy, 1/(eV s):
+/// n(E) = (j_L(E) − j_R(E))/2, what enters from the left lead and what
+/// leaves into the right lead, averaged. Positive: electrons move from left
+/// to right at that energy. In coherent transport j_R = −j_L, so n(E) is
+/// (g_s/h)(f_L − f_R) T(E), the difference of the lead occupations times
+/// the transmission. Charge conservation (∫j_L = −∫j_R) makes
+/// −e Σ_k n(E_k) ΔE the current I of the operating point.
+pub fn net_flow(spectrum: &Spectrum) -> Vec<f64> {
+    spectrum
         .flow_left
         .iter()
-        .chain(&sp.flow_right)
-        .chain(&sp.flow_bath)
-        .map(|v| v * e)
-        .collect();
-    let (ff, fp) = prefix_for(max_abs(&all));
-    let y = padded(
-        with_zero(finite_range(&all)).0 * ff,
-        with_zero(finite_range(&all)).1 * ff,
-        0.06,
-    );
-    let window = |c: &crate::model::Contact| {
-        let w = 2.0 * BOLTZMANN_EV_PER_K * c.temperature_k;
-        (
-            (c.fermi_level_ev - w) * ef,
-            c.fermi_level_ev * ef,
-            (c.fermi_level_ev + w) * ef,
-        )
+        .zip(&spectrum.flow_right)
+        .map(|(l, r)| 0.5 * (l - r))
+        .collect()
+}
+
+/// Closed areas between a curve and zero, one per run of one sign, split
+/// where the curve crosses zero (linear interpolation between samples):
+/// `(positive, polygon)`. Zero and non-finite samples end a run.
+fn signed_areas(points: &[(f64, f64)]) -> Vec<(bool, Vec<(f64, f64)>)> {
+    let sign = |y: f64| {
+        if y > 0.0 {
+            1
+        } else if y < 0.0 {
+            -1
+        } else {
+            0
+        }
     };
-    let (wl, wr) = (window(&p.left), window(&p.right));
+    let mut areas = Vec::new();
+    let mut run: Vec<(f64, f64)> = Vec::new();
+    let mut last = 0;
+    for (i, &(x, y)) in points.iter().enumerate() {
+        let s = if y.is_finite() { sign(y) } else { 0 };
+        if s != last {
+            let edge = match i.checked_sub(1).map(|j| points[j]) {
+                Some((x0, y0)) if last != 0 && s != 0 => x0 + (x - x0) * y0 / (y0 - y),
+                Some((x0, _)) if last == 0 => x0,
+                _ => x,
+            };
+            if last != 0 {
+                run.push((edge, 0.0));
+                areas.push((last > 0, std::mem::take(&mut run)));
+            }
+            if s != 0 {
+                run.push((edge, 0.0));
+            }
+            last = s;
+        }
+        if s != 0 {
+            run.push((x, y));
+        }
+    }
+    if let Some(&(x, _)) = run.last() {
+        run.push((x, 0.0));
+        areas.push((last > 0, run));
+    }
+    areas
+}
+
+/// A lead's Fermi window µ ± 2kT and its Fermi level, in plot units.
+struct Window {
+    lo: f64,
+    mu: f64,
+    hi: f64,
+    colour: RGBColor,
+    label: String,
+}
+
+fn windows(p: &crate::model::Problem, ef: f64) -> [Window; 2] {
+    let window = |c: &crate::model::Contact, colour, side: &str| {
+        let w = 2.0 * BOLTZMANN_EV_PER_K * c.temperature_k;
+        Window {
+            lo: (c.fermi_level_ev - w) * ef,
+            mu: c.fermi_level_ev * ef,
+            hi: (c.fermi_level_ev + w) * ef,
+            colour,
+            label: format!("{side} lead µ ± 2kT ({} K)", short(c.temperature_k)),
+        }
+    };
+    [
+        window(&p.left, LEFT, "left"),
+        window(&p.right, RIGHT, "right"),
+    ]
+}
+
+/// Each lead's Fermi level as a dashed vertical line in the lead's colour;
+/// with `brackets`, its window µ ± 2kT as a labelled bar near the top of
+/// the panel, one row per lead so that equal windows never merge.
+fn draw_windows(
+    chart: &mut Chart<'_, '_>,
+    x: (f64, f64),
+    y: (f64, f64),
+    ws: &[Window; 2],
+    brackets: bool,
+) -> Result<(), DrawError> {
+    let span = y.1 - y.0;
+    for (row, w) in ws.iter().enumerate() {
+        chart.draw_series(DashedLineSeries::new(
+            vec![(w.mu, y.0), (w.mu, y.1)],
+            6,
+            5,
+            w.colour.stroke_width(1),
+        ))?;
+        if !brackets {
+            continue;
+        }
+        let at = y.1 - (0.05 + 0.07 * row as f64) * span;
+        let tip = 0.02 * span;
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(w.lo, at - tip), (w.lo, at), (w.hi, at), (w.hi, at - tip)],
+            w.colour.stroke_width(2),
+        )))?;
+        let gap = 0.006 * (x.1 - x.0);
+        let (anchor, hpos) = if w.hi < x.0 + 0.6 * (x.1 - x.0) {
+            (w.hi + gap, HPos::Left)
+        } else {
+            (w.lo - gap, HPos::Right)
+        };
+        chart.draw_series(std::iter::once(Text::new(
+            w.label.clone(),
+            (anchor, at),
+            tick_font().pos(Pos::new(hpos, VPos::Center)),
+        )))?;
+    }
+    Ok(())
+}
+
+fn spectrum_entries(coherent: bool) -> Vec<(Mark, String)> {
     let mut entries = vec![
         (Mark::Line(LEFT, false), "from the left lead".to_string()),
-        (Mark::Line(RIGHT, false), "from the right lead".to_string()),
+        (Mark::Line(RIGHT, true), "from the right lead".to_string()),
     ];
     if !coherent {
         entries.push((
@@ -410,84 +572,121 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
         ));
     }
     entries.push((
-        Mark::Block(LEFT, 0.18),
-        format!("left lead µ ± 2kT ({} K)", short(p.left.temperature_k)),
+        Mark::Block(FORWARD, NET_OPACITY),
+        "net flow (j_L − j_R)/2: electrons move left → right".to_string(),
     ));
     entries.push((
-        Mark::Block(RIGHT, 0.18),
-        format!("right lead µ ± 2kT ({} K)", short(p.right.temperature_k)),
+        Mark::Block(BACKWARD, NET_OPACITY),
+        "net flow: electrons move right → left".to_string(),
     ));
+    entries
+}
+
+/// Opacity of the net-flow areas (the lead flows stay readable on top).
+const NET_OPACITY: f64 = 0.45;
+
+/// The flows panel: net flow as areas coloured by direction, lead and
+/// bath flows as lines on top, Fermi windows.
+fn draw_flows(
+    chart: &mut Chart<'_, '_>,
+    sol: &Solution,
+    o: &Observables,
+    x: (f64, f64),
+    y: (f64, f64),
+    scale: (f64, f64),
+) -> Result<(), DrawError> {
+    let sp = &o.spectrum;
+    let (ef, ff) = scale;
+    let e = ELEMENTARY_CHARGE;
+    let line = |v: &[f64]| -> Vec<(f64, f64)> {
+        sp.energy_ev
+            .iter()
+            .zip(v)
+            .filter(|(en, _)| **en * ef >= x.0 && **en * ef <= x.1)
+            .map(|(en, f)| (en * ef, f * e * ff))
+            .collect()
+    };
+    draw_windows(chart, x, y, &windows(&sol.problem, ef), true)?;
+    zero_line(chart, x)?;
+    for (forward, area) in signed_areas(&line(&net_flow(sp))) {
+        let c = if forward { FORWARD } else { BACKWARD };
+        chart.draw_series(std::iter::once(Polygon::new(
+            area,
+            c.mix(NET_OPACITY).filled(),
+        )))?;
+    }
+    if !sol.problem.scattering.is_coherent() {
+        chart.draw_series(LineSeries::new(line(&sp.flow_bath), BATH.stroke_width(2)))?;
+    }
+    chart.draw_series(LineSeries::new(line(&sp.flow_left), LEFT.stroke_width(2)))?;
+    chart.draw_series(DashedLineSeries::new(
+        line(&sp.flow_right),
+        7,
+        4,
+        RIGHT.stroke_width(2),
+    ))?;
+    Ok(())
+}
+
+/// spectrum.svg: energy-resolved flows into the device from each lead and
+/// from the scattering bath, the net flow through the device coloured by
+/// its direction, the lead Fermi windows; transmission below when the
+/// transport is coherent.
+pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    const FIGURE: &str = "spectrum.svg";
+    let p = &sol.problem;
+    let sp = &o.spectrum;
+    if sp.energy_ev.is_empty() {
+        return Err(plot_error(FIGURE, "the energy grid is empty"));
+    }
+    let coherent = p.scattering.is_coherent();
+    let (ef, eu) = energy_unit(sp.energy_ev.iter().copied());
+    let weight: Vec<f64> = (0..sp.energy_ev.len())
+        .map(|k| sp.flow_left[k].abs() + sp.flow_right[k].abs() + sp.flow_bath[k].abs())
+        .collect();
+    let keep: Vec<f64> = windows(p, 1.0).iter().flat_map(|w| [w.lo, w.hi]).collect();
+    let x = busy_window(&sp.energy_ev, &weight, &keep);
+    let x = (x.0 * ef, x.1 * ef);
+    let all: Vec<f64> = [&sp.flow_left, &sp.flow_right, &sp.flow_bath]
+        .into_iter()
+        .flatten()
+        .map(|v| v * ELEMENTARY_CHARGE)
+        .collect();
+    let (ff, fp) = prefix_for(max_abs(&all));
+    let r = with_zero(finite_range(&all));
+    // Room at the top for the two window bars.
+    let y = padded(r.0 * ff, r.1 * ff, 0.06);
+    let y = (y.0, y.1 + 0.2 * (y.1 - y.0));
+    let entries = spectrum_entries(coherent);
     let left = (MARGIN_LEFT + Y_AREA) as i32;
     let lh = legend_height(&entries, left, WIDTH as i32);
-    let h_flow = 380u32;
+    let h_flow = 400u32;
     let h_tr = if coherent { 240u32 } else { 0 };
-    let height = 44 + lh + h_flow + h_tr + 30;
-    let draw_windows = |chart: &mut Chart<'_, '_>, y: (f64, f64)| -> Result<(), DrawError> {
-        for (w, c) in [(wl, LEFT), (wr, RIGHT)] {
-            chart.draw_series(std::iter::once(Rectangle::new(
-                [(w.0, y.1), (w.2, y.0)],
-                c.mix(0.13).filled(),
-            )))?;
-            chart.draw_series(DashedLineSeries::new(
-                vec![(w.1, y.0), (w.1, y.1)],
-                6,
-                5,
-                c.stroke_width(1),
-            ))?;
-        }
-        Ok(())
-    };
     let title = if coherent {
         "Energy-resolved flows and transmission"
     } else {
         "Energy-resolved flows into the device"
     };
-    render(FIGURE, (WIDTH, height), |root, _| {
+    render(FIGURE, (WIDTH, 44 + lh + h_flow + h_tr + 30), |root, _| {
         let body = root.titled(title, title_font())?;
         let (strip, rest) = body.split_vertically(lh);
         draw_legend(&strip, &entries, left)?;
         let (top, bottom) = rest.split_vertically(h_flow);
         let x_desc = format!("energy E ({eu})");
-        let mut chart = panel(
-            &top,
-            x,
-            y,
-            (!coherent).then_some(x_desc.as_str()),
-            &format!("electron flow × e ({fp}A/eV)"),
-            &[],
-        )?;
-        draw_windows(&mut chart, y)?;
-        zero_line(&mut chart, x)?;
-        let inside = |en: &f64| en * ef >= x.0 && en * ef <= x.1;
-        let line = |v: &[f64]| -> Vec<(f64, f64)> {
-            sp.energy_ev
-                .iter()
-                .zip(v)
-                .filter(|(en, _)| inside(en))
-                .map(|(en, f)| (en * ef, f * e * ff))
-                .collect()
-        };
-        chart.draw_series(LineSeries::new(line(&sp.flow_left), LEFT.stroke_width(2)))?;
-        chart.draw_series(LineSeries::new(line(&sp.flow_right), RIGHT.stroke_width(2)))?;
-        if !coherent {
-            chart.draw_series(LineSeries::new(line(&sp.flow_bath), BATH.stroke_width(2)))?;
-        }
+        let y_desc = format!("electron flow × e ({fp}A/eV)");
+        let x_here = (!coherent).then_some(x_desc.as_str());
+        let mut chart = panel(&top, x, y, x_here, &y_desc, &[])?;
+        draw_flows(&mut chart, sol, o, x, y, (ef, ff))?;
         if let Some(t) = &sp.transmission {
             let tmax = max_abs(t).max(1.0) * 1.05;
-            let mut chart = panel(
-                &bottom,
-                x,
-                (0.0, tmax),
-                Some(&x_desc),
-                "transmission T(E)",
-                &[],
-            )?;
-            draw_windows(&mut chart, (0.0, tmax))?;
+            let yt = (0.0, tmax);
+            let mut chart = panel(&bottom, x, yt, Some(&x_desc), "transmission T(E)", &[])?;
+            draw_windows(&mut chart, x, yt, &windows(p, ef), false)?;
             chart.draw_series(LineSeries::new(
                 sp.energy_ev
                     .iter()
                     .zip(t)
-                    .filter(|(en, _)| inside(en))
+                    .filter(|(en, _)| **en * ef >= x.0 && **en * ef <= x.1)
                     .map(|(en, tv)| (en * ef, *tv)),
                 TRANSMISSION.stroke_width(2),
             ))?;
@@ -498,7 +697,11 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
 
 /// bond_current.svg: the energy-resolved current between neighbouring
 /// cells over position and energy, with the band edge and the local Fermi
-/// level drawn on top.
+/// level drawn on top. The colours follow a signed logarithm of the
+/// current (see [`style::signed_log`](super::style::signed_log)) over
+/// [`SIGNED_LOG_DECADES`] decades below the largest magnitude, teal for
+/// electrons moving to +x and brown for −x: a current flowing against the
+/// main stream a thousand times weaker still shows its colour.
 pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
     const FIGURE: &str = "bond_current.svg";
     let p = &sol.problem;
@@ -537,16 +740,22 @@ pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, Outpu
         .zip(&s.fermi_level_ev)
         .map(|(xi, m)| (*xi, m * ef))
         .collect();
-    let colour_label = format!("current density ({vp}A/eV), + = electrons to +x");
+    let colour_label = format!("bond current ({vp}A/eV), signed log; + = electrons to +x");
+    let title = format!(
+        "Energy-resolved current between neighbouring cells (signed log colour scale over {} decades)",
+        SIGNED_LOG_DECADES
+    );
     heat_map(&MapSpec {
-        title: "Energy-resolved current between neighbouring cells",
+        title: &title,
         x_label: "position x (nm)",
         y_label: &format!("energy E ({eu})"),
         x: &x,
         y: &y,
         values: &values,
         colour_label: &colour_label,
-        diverging: true,
+        scale: MapScale::SignedLog {
+            decades: SIGNED_LOG_DECADES,
+        },
         overlays: vec![
             Overlay {
                 label: "band edge".into(),
@@ -597,17 +806,18 @@ pub fn convergence_svg(sol: &Solution) -> Result<Option<String>, OutputError> {
     let (lo, hi) = (lo / 3.0, hi * 3.0);
     let last = r.history.last().map(|h| h.iteration).unwrap_or(1) as f64;
     let x = (0.5, last.max(1.0) + 0.5);
+    // One entry per colour: each curve's dashed line is its own limit.
     let entries = vec![
         (
             Mark::Line(RESIDUAL, false),
-            "residual: relative change of the scattering self-energy".to_string(),
+            format!(
+                "residual: relative change of the scattering self-energy (dashed: tolerance {tol:.0e})"
+            ),
         ),
         (
-            Mark::Line(BATH, false),
-            "change of the terminal currents / allowance".to_string(),
+            Mark::Line(CURRENT_CHANGE, false),
+            "change of the terminal currents / allowance (dashed: the allowance, 1)".to_string(),
         ),
-        (Mark::Line(RESIDUAL, true), format!("tolerance {tol:.0e}")),
-        (Mark::Line(BATH, true), "current allowance (1)".to_string()),
     ];
     let left = (MARGIN_LEFT + Y_AREA) as i32;
     let lh = legend_height(&entries, left, 900);
@@ -624,49 +834,67 @@ pub fn convergence_svg(sol: &Solution) -> Result<Option<String>, OutputError> {
         let body = root.titled(&title, title_font())?;
         let (strip, plot) = body.split_vertically(lh);
         draw_legend(&strip, &entries, left)?;
-        let mut chart = ChartBuilder::on(&plot)
-            .margin_left(MARGIN_LEFT)
-            .margin_right(MARGIN_RIGHT)
-            .margin_top(8)
-            .margin_bottom(8)
-            .x_label_area_size(56)
-            .y_label_area_size(Y_AREA)
-            .build_cartesian_2d(x.0..x.1, (lo..hi).log_scale())?;
-        let xf = |v: &f64| {
-            if (v - v.round()).abs() < 1e-9 {
-                format!("{}", v.round())
-            } else {
-                String::new()
-            }
-        };
-        let yf = |v: &f64| log_tick(*v);
-        chart
-            .configure_mesh()
-            .x_desc("Born iteration")
-            .y_desc("relative change (log scale)")
-            .x_labels(12)
-            .y_labels(12)
-            .x_label_formatter(&xf)
-            .y_label_formatter(&yf)
-            .label_style(tick_font())
-            .axis_desc_style(desc_font())
-            .bold_line_style(GRID)
-            .light_line_style(WHITE.mix(0.0))
-            .axis_style(INK)
-            .draw()?;
-        for (level, c) in [(tol, RESIDUAL), (1.0, BATH)] {
-            chart.draw_series(DashedLineSeries::new(
-                vec![(x.0, level), (x.1, level)],
-                8,
-                5,
-                c.stroke_width(1),
-            ))?;
-        }
-        for (pts, c) in [(&residual, RESIDUAL), (&change, BATH)] {
-            chart.draw_series(LineSeries::new(pts.iter().copied(), c.stroke_width(2)))?;
-            chart.draw_series(pts.iter().map(|&q| Circle::new(q, 3, c.filled())))?;
-        }
-        Ok(())
+        let curves = [
+            (&residual[..], tol, RESIDUAL),
+            (&change[..], 1.0, CURRENT_CHANGE),
+        ];
+        draw_convergence(&plot, x, (lo, hi), &curves)
     })?;
     Ok(Some(svg))
+}
+
+/// A convergence curve: its points, its limit and its colour.
+type Curve<'a> = (&'a [(f64, f64)], f64, RGBColor);
+
+/// The log-scale chart of convergence.svg: each curve with markers and its
+/// limit as a dashed line of the same colour.
+fn draw_convergence(
+    plot: &Area<'_>,
+    x: (f64, f64),
+    (lo, hi): (f64, f64),
+    curves: &[Curve<'_>],
+) -> Result<(), DrawError> {
+    let mut chart = ChartBuilder::on(plot)
+        .margin_left(MARGIN_LEFT)
+        .margin_right(MARGIN_RIGHT)
+        .margin_top(8)
+        .margin_bottom(8)
+        .x_label_area_size(56)
+        .y_label_area_size(Y_AREA)
+        .build_cartesian_2d(x.0..x.1, (lo..hi).log_scale())?;
+    let xf = |v: &f64| {
+        if (v - v.round()).abs() < 1e-9 {
+            format!("{}", v.round())
+        } else {
+            String::new()
+        }
+    };
+    let yf = |v: &f64| log_tick(*v);
+    chart
+        .configure_mesh()
+        .x_desc("Born iteration")
+        .y_desc("relative change (log scale)")
+        .x_labels(12)
+        .y_labels(12)
+        .x_label_formatter(&xf)
+        .y_label_formatter(&yf)
+        .label_style(tick_font())
+        .axis_desc_style(desc_font())
+        .bold_line_style(GRID)
+        .light_line_style(WHITE.mix(0.0))
+        .axis_style(INK)
+        .draw()?;
+    for &(_, level, c) in curves {
+        chart.draw_series(DashedLineSeries::new(
+            vec![(x.0, level), (x.1, level)],
+            8,
+            5,
+            c.stroke_width(1),
+        ))?;
+    }
+    for &(pts, _, c) in curves {
+        chart.draw_series(LineSeries::new(pts.iter().copied(), c.stroke_width(2)))?;
+        chart.draw_series(pts.iter().map(|&q| Circle::new(q, 3, c.filled())))?;
+    }
+    Ok(())
 }

@@ -7,11 +7,18 @@
 //! [`raster`]) to keep the files small. Legends sit in a strip above each
 //! panel, never on top of the data.
 //!
-//! Colours: heating and the right lead in burnt orange, cooling and the
-//! left lead in blue, the bath in green, the local Fermi level in purple;
-//! maps use a blue–white–orange diverging scale centred on zero. Blue
-//! against orange stays distinguishable for the common forms of colour
-//! blindness.
+//! Colours: within a figure each colour stands for one thing, and a thing
+//! keeps its colour in every figure (the table is
+//! [`style::MEANINGS`]). Heating is burnt orange and cooling blue; the
+//! leads are two neutral greys told apart by lightness (the right lead
+//! dashed where it is a line); the direction of electron motion is teal
+//! (to +x, left to right) against brown (to −x), both in the net flow of
+//! the spectrum and in the brown–white–teal diverging scale of signed maps;
+//! the local Fermi level is purple, its drop a pale purple, the scattering
+//! bath rose. Orange against blue and teal against brown stay apart for
+//! the common forms of colour blindness, and the two greys differ in
+//! lightness alone. The bond-current map colours a signed logarithm of the
+//! current ([`style::signed_log`]) so that a weak counter-flow shows.
 
 mod curves;
 mod figures;
@@ -19,7 +26,7 @@ pub mod raster;
 pub mod style;
 
 pub use curves::{cooler_figures, generator_figures, grid_figures, ranking_figure};
-pub use figures::{bond_current_svg, convergence_svg, device_svg, spectrum_svg};
+pub use figures::{bond_current_svg, convergence_svg, device_svg, net_flow, spectrum_svg};
 
 use super::{OutputError, Staging};
 use crate::observables::Observables;
@@ -456,6 +463,115 @@ fn uniform(c: &[f64]) -> bool {
         .all(|w| ((w[1] - w[0]) - step).abs() <= 1e-6 * step.abs().max(f64::MIN_POSITIVE))
 }
 
+/// How a heat map turns values into colours.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) enum MapScale {
+    /// Pale to dark, linear over the data range.
+    Sequential,
+    /// Centred on zero, linear, ends at ± the largest magnitude.
+    Diverging,
+    /// Centred on zero, logarithmic in the magnitude over `decades` decades
+    /// below the largest (see [`signed_log`]): values of the rarer sign keep
+    /// their colour even when they are far smaller than the others.
+    SignedLog {
+        /// Decades below the largest magnitude that the scale spans.
+        decades: f64,
+    },
+}
+
+/// The colour scale of one map: positions on the colour bar, colours and
+/// tick labels.
+struct ColourScale {
+    scale: MapScale,
+    /// Ends of the data range (±largest magnitude when centred).
+    lo: f64,
+    hi: f64,
+}
+
+impl ColourScale {
+    fn of<'a>(scale: MapScale, values: impl IntoIterator<Item = &'a f64> + Clone) -> Self {
+        let (lo, hi) = match scale {
+            MapScale::Sequential => {
+                let (a, b) = finite_range(values).unwrap_or((0.0, 1.0));
+                if b > a { (a, b) } else { padded(a, b, 0.0) }
+            }
+            MapScale::Diverging | MapScale::SignedLog { .. } => {
+                let m = max_abs(values);
+                let m = if m > 0.0 { m } else { 1.0 };
+                (-m, m)
+            }
+        };
+        ColourScale { scale, lo, hi }
+    }
+
+    /// Ends of the colour bar's axis.
+    fn bar_range(&self) -> (f64, f64) {
+        match self.scale {
+            MapScale::SignedLog { .. } => (-1.0, 1.0),
+            _ => (self.lo, self.hi),
+        }
+    }
+
+    /// Position of a value on the colour bar's axis.
+    fn position(&self, v: f64) -> f64 {
+        match self.scale {
+            MapScale::SignedLog { decades } => signed_log(v, self.hi, decades),
+            _ => v,
+        }
+    }
+
+    /// Colour at a position of the colour bar's axis.
+    fn colour_at(&self, p: f64) -> RGBColor {
+        match self.scale {
+            MapScale::Sequential => sequential((p - self.lo) / (self.hi - self.lo)),
+            MapScale::Diverging => diverging(p / self.hi),
+            MapScale::SignedLog { .. } => diverging(p),
+        }
+    }
+
+    fn colour(&self, v: f64) -> RGBColor {
+        self.colour_at(self.position(v))
+    }
+
+    /// Tick positions and labels of the colour bar: on a linear scale
+    /// about seven evenly spaced round values; on a signed logarithmic
+    /// one zero and ± each power of ten inside the span, those too close
+    /// to zero to label left out.
+    fn bar_ticks(&self) -> Vec<(f64, String)> {
+        let MapScale::SignedLog { decades } = self.scale else {
+            let (lo, hi) = self.bar_range();
+            let yd = decimals_for(hi - lo, 6);
+            let linear: plotters::coord::types::RangedCoordf64 = (lo..hi).into();
+            return linear
+                .key_points(7)
+                .into_iter()
+                .map(|v| (v, tick(v, yd)))
+                .collect();
+        };
+        let m = self.hi;
+        let mut ticks = vec![(0.0, "0".to_string())];
+        let top = m.log10().floor() as i32;
+        for k in (top - decades.ceil() as i32)..=top {
+            let p = signed_log(10f64.powi(k), m, decades);
+            if p >= 0.12 {
+                ticks.push((p, decade_label(k)));
+                ticks.push((-p, format!("-{}", decade_label(k))));
+            }
+        }
+        ticks.sort_by(|a, b| a.0.total_cmp(&b.0));
+        ticks
+    }
+}
+
+/// 10^k written plainly between 0.01 and 1000, else as 1e-3.
+fn decade_label(k: i32) -> String {
+    if (-2..=3).contains(&k) {
+        tick(10f64.powi(k), (-k).max(0) as usize)
+    } else {
+        format!("1e{k}")
+    }
+}
+
 /// Everything a heat map needs.
 pub(crate) struct MapSpec<'a> {
     pub title: &'a str,
@@ -465,13 +581,14 @@ pub(crate) struct MapSpec<'a> {
     pub y: &'a [f64],
     pub values: &'a ndarray::Array2<f64>,
     pub colour_label: &'a str,
-    pub diverging: bool,
+    pub scale: MapScale,
     pub overlays: Vec<Overlay<'a>>,
     pub size: (u32, u32),
 }
 
-/// Draw a heat map with its colour bar into a figure.
-pub(crate) fn heat_map(spec: &MapSpec<'_>) -> Result<String, OutputError> {
+/// The shape and coordinates of a map are usable: values of shape
+/// `y.len() × x.len()`, coordinates finite and strictly increasing.
+fn check_map(spec: &MapSpec<'_>) -> Result<(), OutputError> {
     let (ny, nx) = spec.values.dim();
     if ny != spec.y.len() || nx != spec.x.len() || nx == 0 || ny == 0 {
         return Err(plot_error(
@@ -491,26 +608,13 @@ pub(crate) fn heat_map(spec: &MapSpec<'_>) -> Result<String, OutputError> {
             "map coordinates must be finite and strictly increasing",
         ));
     }
-    let (lo, hi) = if spec.diverging {
-        let m = max_abs(spec.values.iter());
-        let m = if m > 0.0 { m } else { 1.0 };
-        (-m, m)
-    } else {
-        let (a, b) = finite_range(spec.values.iter()).unwrap_or((0.0, 1.0));
-        if b > a { (a, b) } else { padded(a, b, 0.0) }
-    };
-    let colour = |v: f64| {
-        if spec.diverging {
-            diverging(v / hi)
-        } else {
-            sequential((v - lo) / (hi - lo))
-        }
-    };
-    let xe = edges(spec.x);
-    let ye = edges(spec.y);
-    let (x0, x1) = (xe[0], xe[nx]);
-    let (y0, y1) = (ye[0], ye[ny]);
-    let as_raster = uniform(spec.x) && uniform(spec.y) && nx * ny > 400;
+    Ok(())
+}
+
+/// Draw a heat map with its colour bar into a figure.
+pub(crate) fn heat_map(spec: &MapSpec<'_>) -> Result<String, OutputError> {
+    check_map(spec)?;
+    let scale = ColourScale::of(spec.scale, spec.values.iter());
     let entries: Vec<(Mark, String)> = spec
         .overlays
         .iter()
@@ -528,79 +632,86 @@ pub(crate) fn heat_map(spec: &MapSpec<'_>) -> Result<String, OutputError> {
         let (strip, rest) = body.split_vertically(legend_h);
         draw_legend(&strip, &entries, (MARGIN_LEFT + Y_AREA) as i32)?;
         let (main, bar) = rest.split_horizontally(rest.dim_in_pixel().0 - bar_w);
-        let mut chart = ChartBuilder::on(&main)
-            .margin_left(MARGIN_LEFT)
-            .margin_right(12)
-            .margin_top(8)
-            .margin_bottom(8)
-            .x_label_area_size(56)
-            .y_label_area_size(Y_AREA)
-            .build_cartesian_2d(x0..x1, y0..y1)?;
-        if as_raster {
-            chart.draw_series(std::iter::once(Rectangle::new(
-                [(x0, y1), (x1, y0)],
-                RASTER_MARK.filled(),
-            )))?;
-            rasters.push(raster_uri(nx, ny, |r, c| {
-                colour(spec.values[(ny - 1 - r, c)])
-            }));
-        } else {
-            chart.draw_series((0..ny).flat_map(|r| {
-                let xe = &xe;
-                let ye = &ye;
-                (0..nx).map(move |c| {
-                    Rectangle::new(
-                        [(xe[c], ye[r + 1]), (xe[c + 1], ye[r])],
-                        colour(spec.values[(r, c)]).filled(),
-                    )
-                })
-            }))?;
-        }
-        let xd = decimals_for(x1 - x0, 8);
-        let yd = decimals_for(y1 - y0, 8);
-        let xf = move |v: &f64| tick(*v, xd);
-        let yf = move |v: &f64| tick(*v, yd);
-        chart
-            .configure_mesh()
-            .disable_mesh()
-            .x_desc(spec.x_label)
-            .y_desc(spec.y_label)
-            .x_labels(9)
-            .y_labels(8)
-            .x_label_formatter(&xf)
-            .y_label_formatter(&yf)
-            .label_style(tick_font())
-            .axis_desc_style(desc_font())
-            .axis_style(INK)
-            .draw()?;
-        for o in &spec.overlays {
-            for piece in clip_to_band(o.points, y0, y1) {
-                if o.dashed {
-                    chart.draw_series(DashedLineSeries::new(
-                        piece,
-                        7,
-                        5,
-                        o.colour.stroke_width(2),
-                    ))?;
-                } else {
-                    chart.draw_series(LineSeries::new(piece, o.colour.stroke_width(2)))?;
-                }
-            }
-        }
-        colour_bar(&bar, lo, hi, spec.colour_label, &colour)?;
-        Ok(())
+        map_panel(&main, spec, &scale, rasters)?;
+        colour_bar(&bar, &scale, spec.colour_label)
     })
 }
 
-/// A vertical colour bar with its scale and label.
-fn colour_bar(
-    area: &Area<'_>,
-    lo: f64,
-    hi: f64,
-    label: &str,
-    colour: &dyn Fn(f64) -> RGBColor,
+/// The map itself with its axes and overlays.
+fn map_panel(
+    main: &Area<'_>,
+    spec: &MapSpec<'_>,
+    scale: &ColourScale,
+    rasters: &mut Vec<String>,
 ) -> Result<(), DrawError> {
+    let (ny, nx) = spec.values.dim();
+    let xe = edges(spec.x);
+    let ye = edges(spec.y);
+    let (x0, x1) = (xe[0], xe[nx]);
+    let (y0, y1) = (ye[0], ye[ny]);
+    let mut chart = ChartBuilder::on(main)
+        .margin_left(MARGIN_LEFT)
+        .margin_right(12)
+        .margin_top(8)
+        .margin_bottom(8)
+        .x_label_area_size(56)
+        .y_label_area_size(Y_AREA)
+        .build_cartesian_2d(x0..x1, y0..y1)?;
+    if uniform(spec.x) && uniform(spec.y) && nx * ny > 400 {
+        chart.draw_series(std::iter::once(Rectangle::new(
+            [(x0, y1), (x1, y0)],
+            RASTER_MARK.filled(),
+        )))?;
+        rasters.push(raster_uri(nx, ny, |r, c| {
+            scale.colour(spec.values[(ny - 1 - r, c)])
+        }));
+    } else {
+        chart.draw_series((0..ny).flat_map(|r| {
+            let (xe, ye) = (&xe, &ye);
+            (0..nx).map(move |c| {
+                Rectangle::new(
+                    [(xe[c], ye[r + 1]), (xe[c + 1], ye[r])],
+                    scale.colour(spec.values[(r, c)]).filled(),
+                )
+            })
+        }))?;
+    }
+    let xd = decimals_for(x1 - x0, 8);
+    let yd = decimals_for(y1 - y0, 8);
+    let xf = move |v: &f64| tick(*v, xd);
+    let yf = move |v: &f64| tick(*v, yd);
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_desc(spec.x_label)
+        .y_desc(spec.y_label)
+        .x_labels(9)
+        .y_labels(8)
+        .x_label_formatter(&xf)
+        .y_label_formatter(&yf)
+        .label_style(tick_font())
+        .axis_desc_style(desc_font())
+        .axis_style(INK)
+        .draw()?;
+    for o in &spec.overlays {
+        for piece in clip_to_band(o.points, y0, y1) {
+            let style = o.colour.stroke_width(2);
+            if o.dashed {
+                chart.draw_series(DashedLineSeries::new(piece, 7, 5, style))?;
+            } else {
+                chart.draw_series(LineSeries::new(piece, style))?;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// A vertical colour bar with its scale and label: evenly spaced ticks on
+/// a linear scale, zero and the powers of ten on a signed logarithmic one.
+fn colour_bar(area: &Area<'_>, scale: &ColourScale, label: &str) -> Result<(), DrawError> {
     let steps = 96;
+    let (lo, hi) = scale.bar_range();
+    let ticks = scale.bar_ticks();
     let chart = ChartBuilder::on(area)
         .margin_top(8)
         .margin_bottom(64)
@@ -614,28 +725,41 @@ fn colour_bar(
     let d = (hi - lo) / steps as f64;
     chart.draw_series((0..steps).map(|k| {
         let a = lo + k as f64 * d;
-        Rectangle::new([(0.0, a + d), (1.0, a)], colour(a + 0.5 * d).filled())
+        Rectangle::new(
+            [(0.0, a + d), (1.0, a)],
+            scale.colour_at(a + 0.5 * d).filled(),
+        )
     }))?;
     chart.draw_series(std::iter::once(Rectangle::new(
         [(0.0, hi), (1.0, lo)],
         INK.stroke_width(1),
     )))?;
-    let yd = decimals_for(hi - lo, 6);
-    let yf = move |v: &f64| tick(*v, yd);
     chart
         .configure_secondary_axes()
         .y_desc(label)
-        .y_labels(7)
-        .y_label_formatter(&yf)
+        .y_labels(0)
         .label_style(tick_font())
         .axis_desc_style(desc_font())
         .axis_style(INK)
         .draw()?;
+    // Ticks drawn here rather than by the axis: a logarithmic bar needs
+    // them at the powers of ten, not evenly spaced.
+    let (bx, by) = area.get_base_pixel();
+    let font = tick_font().pos(Pos::new(HPos::Left, VPos::Center));
+    for (p, text) in &ticks {
+        let (px, py) = chart.backend_coord(&(1.0, *p));
+        let (px, py) = (px - bx, py - by);
+        area.draw(&PathElement::new(
+            vec![(px, py), (px + 5, py)],
+            INK.stroke_width(1),
+        ))?;
+        area.draw(&Text::new(text.clone(), (px + 8, py), font.clone()))?;
+    }
     Ok(())
 }
 
 /// A heat map of `values` (shape `(y.len(), x.len())`) with a colour bar.
-/// `diverging` centres a blue–white–orange scale on zero (signed
+/// `diverging` centres a brown–white–teal scale on zero (signed
 /// quantities); otherwise a pale-to-dark sequential scale spans the data.
 /// Uniform grids are embedded as one image; others as one rectangle per
 /// cell.
@@ -658,7 +782,11 @@ pub fn heat_map_svg(
         y,
         values,
         colour_label,
-        diverging,
+        scale: if diverging {
+            MapScale::Diverging
+        } else {
+            MapScale::Sequential
+        },
         overlays: Vec::new(),
         size: (1000, 620),
     })

@@ -19,24 +19,56 @@ pub const INK: RGBColor = RGBColor(0x22, 0x26, 0x2e);
 pub const GRID: RGBColor = RGBColor(0xe4, 0xe6, 0xea);
 /// Shading of the lead regions beside the device.
 pub const LEAD_SHADE: RGBColor = RGBColor(0xee, 0xec, 0xe6);
-/// Lattice heated (energy flows from the electrons into the lattice).
+/// Lattice heated (energy flows from the electrons into the lattice): the
+/// warm half of the heating/cooling pair, used for nothing else.
 pub const HEATING: RGBColor = RGBColor(0xd0, 0x5a, 0x1b);
-/// Lattice cooled.
+/// Lattice cooled: the cool half of the heating/cooling pair.
 pub const COOLING: RGBColor = RGBColor(0x1f, 0x6c, 0xb0);
 /// The local Fermi level.
 pub const LOCAL_FERMI: RGBColor = RGBColor(0x8a, 0x3f, 0xa8);
-/// Drop of the local Fermi level per cell.
-pub const DROP: RGBColor = RGBColor(0x3b, 0x47, 0x5c);
-/// Things of the left lead.
-pub const LEFT: RGBColor = RGBColor(0x1f, 0x6c, 0xb0);
-/// Things of the right lead.
-pub const RIGHT: RGBColor = RGBColor(0xd0, 0x5a, 0x1b);
+/// Drop of the local Fermi level per cell: a pale tint of the local Fermi
+/// level's purple, since it is that level's step from cell to cell.
+pub const DROP: RGBColor = RGBColor(0xb3, 0x8f, 0xcb);
+/// Things of the left lead: a dark neutral slate, so that the leads never
+/// read as heating or cooling.
+pub const LEFT: RGBColor = RGBColor(0x55, 0x5b, 0x66);
+/// Things of the right lead: a light warm neutral (and dashed where it is
+/// a line), told apart from the left lead by lightness, not by hue.
+pub const RIGHT: RGBColor = RGBColor(0xa3, 0x9d, 0x94);
 /// The scattering bath.
-pub const BATH: RGBColor = RGBColor(0x2e, 0x93, 0x6b);
+pub const BATH: RGBColor = RGBColor(0xc2, 0x44, 0x7f);
+/// Electrons moving towards +x (left to right): the positive end of the
+/// direction scale, in the net flow of the spectrum and the bond-current map.
+pub const FORWARD: RGBColor = RGBColor(0x1b, 0x7f, 0x79);
+/// Electrons moving towards −x (right to left): the negative end of the
+/// direction scale.
+pub const BACKWARD: RGBColor = RGBColor(0x9a, 0x5c, 0x17);
 /// Coherent transmission.
-pub const TRANSMISSION: RGBColor = RGBColor(0x4a, 0x4f, 0x5a);
+pub const TRANSMISSION: RGBColor = RGBColor(0x39, 0x49, 0xab);
 /// Convergence residual.
-pub const RESIDUAL: RGBColor = RGBColor(0x8a, 0x3f, 0xa8);
+pub const RESIDUAL: RGBColor = RGBColor(0x1f, 0x4e, 0x5f);
+/// Change of the terminal currents between Born iterations.
+pub const CURRENT_CHANGE: RGBColor = RGBColor(0xc2, 0x7c, 0x0e);
+
+/// Every named colour of the solve figures with what it stands for; each
+/// meaning has its own colour, in every figure.
+pub const MEANINGS: [(RGBColor, &str); 15] = [
+    (INK, "axes, text and the band edge"),
+    (LEAD_SHADE, "lead regions"),
+    (HEATING, "lattice heated"),
+    (COOLING, "lattice cooled"),
+    (LOCAL_FERMI, "local Fermi level"),
+    (DROP, "drop of the local Fermi level"),
+    (LEFT, "left lead"),
+    (RIGHT, "right lead"),
+    (BATH, "scattering bath"),
+    (FORWARD, "electrons moving left to right"),
+    (BACKWARD, "electrons moving right to left"),
+    (TRANSMISSION, "transmission"),
+    (RESIDUAL, "Born-loop residual"),
+    (CURRENT_CHANGE, "change of the terminal currents"),
+    (GRID, "grid lines"),
+];
 
 /// Colours of the series of a generic line chart, in order: chosen to stay
 /// apart for the common forms of colour blindness (blue, orange, green,
@@ -60,15 +92,17 @@ pub const REFERENCE: [RGBColor; 4] = [
     RGBColor(0x3c, 0x3c, 0xa0),
 ];
 
-/// Anchors of the diverging scale from −1 (blue) through a warm white at 0
-/// to +1 (burnt orange). Blue against orange stays apart for red–green
-/// colour blindness; the lightness falls symmetrically on both sides.
+/// Anchors of the diverging scale from −1 (brown: electrons moving to −x
+/// in a bond-current map) through a warm white at 0 to +1 (teal: to +x).
+/// Brown against teal stays apart for red–green colour blindness, and the
+/// pair differs from the orange/blue of heating and cooling; the lightness
+/// falls symmetrically on both sides.
 const DIVERGING: [(f64, [f64; 3]); 5] = [
-    (-1.0, [0x17 as f64, 0x3f as f64, 0x7a as f64]),
-    (-0.5, [0x7f as f64, 0xaa as f64, 0xd6 as f64]),
+    (-1.0, [0x5a as f64, 0x33 as f64, 0x08 as f64]),
+    (-0.5, [0xd4 as f64, 0xa9 as f64, 0x70 as f64]),
     (0.0, [0xf7 as f64, 0xf5 as f64, 0xf0 as f64]),
-    (0.5, [0xee as f64, 0xa7 as f64, 0x6c as f64]),
-    (1.0, [0x8e as f64, 0x33 as f64, 0x0c as f64]),
+    (0.5, [0x86 as f64, 0xc8 as f64, 0xbd as f64]),
+    (1.0, [0x0c as f64, 0x4f as f64, 0x4b as f64]),
 ];
 
 /// Anchors of the sequential scale from 0 (pale) to 1 (deep blue-violet),
@@ -107,6 +141,34 @@ pub fn sequential(t: f64) -> RGBColor {
         return RGBColor(0x99, 0x99, 0x99);
     }
     interpolate(&SEQUENTIAL, t)
+}
+
+/// Decades below the largest magnitude that a signed logarithmic colour
+/// scale spans (see [`signed_log`]).
+pub const SIGNED_LOG_DECADES: f64 = 4.0;
+
+/// Position in [−1, 1] of `v` on a signed logarithmic scale whose ends are
+/// ±`max`: sign(v) · log10(1 + |v|/v0) / log10(1 + max/v0) with
+/// v0 = max · 10^(−decades). Near zero the scale is linear (no jump of
+/// colour at the sign change); from v0 up it is logarithmic, so a value a
+/// thousand times below the largest still lands a quarter of the way
+/// out. `max ≤ 0` or non-finite gives 0; NaN stays NaN.
+pub fn signed_log(v: f64, max: f64, decades: f64) -> f64 {
+    if v.is_nan() {
+        return f64::NAN;
+    }
+    if !(max.is_finite() && max > 0.0) {
+        return 0.0;
+    }
+    let v0 = max * 10f64.powf(-decades);
+    let t = (v.abs() / v0).ln_1p() / (max / v0).ln_1p();
+    v.signum() * t.min(1.0)
+}
+
+/// The value at position `t` in [−1, 1] of [`signed_log`] (its inverse).
+pub fn signed_log_inverse(t: f64, max: f64, decades: f64) -> f64 {
+    let v0 = max * 10f64.powf(-decades);
+    t.signum() * v0 * (t.abs() * (max / v0).ln_1p()).exp_m1()
 }
 
 /// `#rrggbb` of a colour, lower case.
@@ -293,8 +355,8 @@ mod tests {
     #[test]
     fn palettes_are_symmetric_in_lightness_and_end_where_stated() {
         assert_eq!(hex(diverging(0.0)), "#f7f5f0");
-        assert_eq!(hex(diverging(-1.0)), "#173f7a");
-        assert_eq!(hex(diverging(2.0)), "#8e330c");
+        assert_eq!(hex(diverging(-1.0)), "#5a3308");
+        assert_eq!(hex(diverging(2.0)), "#0c4f4b");
         let light = |c: RGBColor| 0.2126 * c.0 as f64 + 0.7152 * c.1 as f64 + 0.0722 * c.2 as f64;
         for t in [0.25, 0.5, 0.75] {
             let (a, b) = (light(diverging(-t)), light(diverging(t)));
@@ -302,6 +364,51 @@ mod tests {
         }
         assert!(light(sequential(0.0)) > light(sequential(0.5)));
         assert!(light(sequential(0.5)) > light(sequential(1.0)));
+    }
+
+    #[test]
+    fn signed_log_is_odd_monotone_and_inverted() {
+        let (m, d) = (25.0, SIGNED_LOG_DECADES);
+        assert_eq!(signed_log(m, m, d), 1.0);
+        assert_eq!(signed_log(0.0, m, d), 0.0);
+        assert!((signed_log(-m, m, d) + 1.0).abs() < 1e-15);
+        // A value 1e-3 of the largest sits a quarter of the way out (four
+        // decades: log10(11)/log10(10001) ≈ 0.26), so its sign shows.
+        let t = signed_log(-1e-3 * m, m, d);
+        assert!((t + 0.26).abs() < 0.01, "{t}");
+        let mut last = -1.0;
+        for k in -20..=20 {
+            let v = m * k as f64 / 20.0;
+            let t = signed_log(v, m, d);
+            assert!(t > last || k == -20, "monotone at {v}");
+            assert!((t + signed_log(-v, m, d)).abs() < 1e-15, "odd at {v}");
+            assert!(
+                (signed_log_inverse(t, m, d) - v).abs() < 1e-12 * m,
+                "inverse at {v}"
+            );
+            last = t;
+        }
+    }
+
+    #[test]
+    fn every_meaning_has_its_own_colour_and_the_leads_are_neutral() {
+        let mut seen = std::collections::HashMap::new();
+        for (c, what) in MEANINGS {
+            if let Some(other) = seen.insert(hex(c), what) {
+                panic!("{} is both {other:?} and {what:?}", hex(c));
+            }
+        }
+        // Neutral: the channels of a lead colour lie close together, while
+        // heating and cooling are strongly coloured; the two leads differ
+        // in lightness, which survives every form of colour blindness.
+        let chroma = |c: RGBColor| {
+            let v = [c.0, c.1, c.2];
+            (*v.iter().max().unwrap() - *v.iter().min().unwrap()) as i32
+        };
+        assert!(chroma(LEFT) <= 24 && chroma(RIGHT) <= 24);
+        assert!(chroma(HEATING) >= 120 && chroma(COOLING) >= 120);
+        let light = |c: RGBColor| 0.2126 * c.0 as f64 + 0.7152 * c.1 as f64 + 0.0722 * c.2 as f64;
+        assert!(light(RIGHT) - light(LEFT) >= 60.0);
     }
 
     #[test]
