@@ -148,7 +148,8 @@ fn check_params(p: &SpectrumParams) -> Result<(), LatticeError> {
             "give at least one temperature, each finite and > 0 K",
         ));
     }
-    if !(p.relative_tolerance > 0.0) || p.order < 2 || p.initial_pieces == 0 {
+    let tolerance_ok = p.relative_tolerance.is_finite() && p.relative_tolerance > 0.0;
+    if !tolerance_ok || p.order < 2 || p.initial_pieces == 0 {
         return Err(super::invalid(
             "SpectrumParams",
             format!(
