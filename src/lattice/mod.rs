@@ -68,7 +68,7 @@ pub enum LatticeError {
     /// An input has the wrong size, sign or shape.
     #[error("lattice input {what}: {problem}; {hint}")]
     Invalid {
-        /// Which input (for example "masses_u[3]").
+        /// Which input (for example `masses_u[3]`).
         what: String,
         /// What was found against what was expected.
         problem: String,
