@@ -30,7 +30,7 @@ fn uniform_strip_counts_open_transverse_modes() {
     let width = 4.0 * KL / M * s;
     let top = (lambda[W - 1] + width).sqrt();
     assert!((lat.band_top_rad_per_ps() - top).abs() < 1e-9 * top);
-    let mut mut_scratch = TransmissionScratch::new(&lat);
+    let mut scratch = TransmissionScratch::new(&lat);
     let mut seen = [false; W + 1];
     for j in 1..400 {
         let w = top * j as f64 / 400.0;
@@ -43,7 +43,7 @@ fn uniform_strip_counts_open_transverse_modes() {
             continue;
         }
         let count = lambda.iter().filter(|&&l| l < w2 && w2 < l + width).count();
-        let xi = lat.transmission(w, &mut mut_scratch).unwrap();
+        let xi = lat.transmission(w, &mut scratch).unwrap();
         assert!(
             (xi - count as f64).abs() < 1e-8,
             "ω = {w}: Ξ = {xi}, open modes {count}"
