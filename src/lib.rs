@@ -44,6 +44,7 @@
 //! (calls [`rgf::solve_energy`] for every energy, in parallel) →
 //! [`scba::Solution`] → [`observables::observe`] → [`output`].
 //! Thermoelectric coefficients: [`thermo`].
+//! The lattice's own heat transport (phonon transmission, κ_ph): [`lattice`].
 //!
 //! ## Example
 //!
@@ -108,6 +109,7 @@ pub type C64 = num_complex::Complex64;
 pub mod case;
 pub mod device;
 pub mod grid;
+pub mod lattice;
 pub mod leads;
 pub mod model;
 pub mod observables;

@@ -12,11 +12,17 @@ pub const PLANCK: f64 = 6.626_070_15e-34;
 pub const BOLTZMANN: f64 = 1.380_649e-23;
 /// Electron rest mass m0 in kg (CODATA 2018).
 pub const ELECTRON_MASS: f64 = 9.109_383_701_5e-31;
+/// Atomic mass unit u in kg (CODATA 2018).
+pub const ATOMIC_MASS_UNIT: f64 = 1.660_539_066_60e-27;
 
 /// Planck constant in eV s.
 pub const PLANCK_EV_S: f64 = PLANCK / ELEMENTARY_CHARGE;
 /// Reduced Planck constant ħ in J s.
 pub const HBAR: f64 = PLANCK / (2.0 * std::f64::consts::PI);
+/// Squared angular frequency (rad/ps)² of a spring of 1 N/m on a mass of
+/// 1 u: 10⁻²⁴ / u ≈ 602.2, the factor from k/M in (N/m)/u to the unit of the
+/// lattice dynamical matrix.
+pub const RAD2_PER_PS2_PER_N_PER_M_PER_U: f64 = 1e-24 / ATOMIC_MASS_UNIT;
 /// Boltzmann constant in eV/K.
 pub const BOLTZMANN_EV_PER_K: f64 = BOLTZMANN / ELEMENTARY_CHARGE;
 
