@@ -1,5 +1,5 @@
 //! The real binary on every demo case: it must succeed and its ledger must
-//! close (physics contract: a residual above 1e-6 relative is a bug; the
+//! close (a residual above 1e-6 relative is a bug, never round-off; the
 //! demos converge to 1e-10, so the ledger is held to 1e-10 here).
 
 use std::path::Path;

@@ -1,6 +1,6 @@
 //! Case files: one TOML file describes one device and operating point.
 //!
-//! Two steps, as in the contract: the file is read into raw serde structs
+//! Two steps: the file is read into raw serde structs
 //! that mirror it (every value with its byte span, unknown keys refused),
 //! then one fallible conversion checks every value and builds the
 //! [`Resolved`] problem. [`Case::load`] does both, so a case that loads also
