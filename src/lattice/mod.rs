@@ -54,11 +54,13 @@ use faer::Mat;
 
 mod build;
 mod leads;
+mod probes;
 mod quadrature;
 mod spectrum;
 mod transmission;
 
 pub use leads::PhononLead;
+pub use probes::{FloatParams, FloatingLattice, ProbeError, ProbeNetwork, TerminalMatrix};
 pub use spectrum::{PhononSpectrum, SpectrumParams, conductance_density};
 pub use transmission::TransmissionScratch;
 
