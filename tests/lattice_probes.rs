@@ -198,3 +198,257 @@ fn terminal_transmissions_obey_sum_rules_and_reciprocity() {
         }
     }
 }
+
+/// The spectrum and the network of `lat`, the frequency integral refined
+/// to `tolerance` at `temps`.
+fn network(lat: &Lattice, temps: &[f64], tolerance: f64) -> (PhononSpectrum, ProbeNetwork) {
+    let p = SpectrumParams {
+        temperatures_k: temps.to_vec(),
+        relative_tolerance: tolerance,
+        ..Default::default()
+    };
+    let s = PhononSpectrum::compute(lat, &p).unwrap();
+    let n = ProbeNetwork::compute(lat, &s).unwrap();
+    (s, n)
+}
+
+/// With the damping γ → 0 the probes decouple and κ_ph with the probes
+/// floating tends to the ballistic two-terminal κ_ph of the undamped
+/// lattice; the difference is first order in γ (the probes add a
+/// resistance proportional to their coupling), so it shrinks tenfold when
+/// γ does (common practice; the ratio is held to 0.1 ± 0.015, which leaves
+/// room for the second-order term at γ = 1e-2/ps). Mass junction inside the
+/// chain, so the limit is not a trivial Ξ = 1.
+#[test]
+fn floating_conductance_tends_to_the_ballistic_value_as_damping_vanishes() {
+    let n = 12;
+    let masses: Vec<f64> = (0..n)
+        .map(|i| if i < n / 2 { M } else { 2.5 * M })
+        .collect();
+    let bare = Lattice::chain(&masses, &vec![K; n]).unwrap();
+    let temps = [30.0, 300.0];
+    let ballistic = PhononSpectrum::compute(
+        &bare,
+        &SpectrumParams {
+            temperatures_k: temps.to_vec(),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let difference = |gamma: f64| -> Vec<f64> {
+        let lat = bare.clone().with_damping(vec![gamma; n]).unwrap();
+        let (_, net) = network(&lat, &temps, 1e-8);
+        assert_eq!(net.terminals(), n + 2);
+        temps
+            .iter()
+            .map(|&t| {
+                let k0 = ballistic.conductance(t);
+                (net.floating_conductance(t) - k0) / k0
+            })
+            .collect()
+    };
+    let (coarse, fine) = (difference(1e-2), difference(1e-3));
+    for (c, f) in coarse.iter().zip(&fine) {
+        assert!(c.abs() > 1e-4 && c.abs() < 0.1, "relative difference {c}");
+        let ratio = f / c;
+        assert!((ratio - 0.1).abs() < 0.015, "{f} / {c} = {ratio}");
+    }
+}
+
+/// A uniform chain with a probe on every site, much longer than the phonon
+/// mean free path ℓ ≈ v/γ (v ≈ 12 sites/ps, γ = 5/ps: ℓ ≈ 2.4 sites), is a
+/// diffusive conductor: its thermal resistance 1/κ_ph grows linearly with
+/// length, R = R_c + ρL (Fourier's law; common practice for harmonic chains
+/// with self-consistent reservoirs, from memory: F. Bonetto, J. L.
+/// Lebowitz and J. Lukkarinen, J. Stat. Phys. 116, 783 (2004)). Lengths of
+/// 3 to 13 ℓ; the straight line must fit every length to 1e-3 of R (the
+/// deviation left at these lengths is ~1e-4: the exponential tails of the
+/// contact regions) and its slope must carry most of R at the longest.
+#[test]
+fn long_damped_chain_obeys_fourier_law() {
+    let lengths = [8, 12, 16, 20, 24, 28, 32];
+    let t = 300.0;
+    let r: Vec<f64> = lengths
+        .iter()
+        .map(|&n| {
+            let (_, net) = network(&uniform_damped(n, 5.0), &[t], 1e-5);
+            1.0 / net.floating_conductance(t)
+        })
+        .collect();
+    let x: Vec<f64> = lengths.iter().map(|&n| n as f64).collect();
+    let (c, rho) = line_fit(&x, &r);
+    for (xi, ri) in x.iter().zip(&r) {
+        let fit = c + rho * xi;
+        assert!(
+            (ri - fit).abs() < 1e-3 * ri,
+            "L = {xi}: R {ri:e} vs fit {fit:e}"
+        );
+    }
+    assert!(rho > 0.0 && c > 0.0, "R_c {c:e}, ρ {rho:e}");
+    assert!(
+        rho * 32.0 > 0.5 * r[6],
+        "ρL {:e} of R {:e}",
+        rho * 32.0,
+        r[6]
+    );
+    // Without probes the same chain is ballistic: R does not grow.
+    let bare = Lattice::chain(&[M; 32], &[K; 32]).unwrap();
+    let (_, net) = network(&bare, &[t], 1e-8);
+    assert_eq!(net.terminals(), 2);
+    assert!(1.0 / net.floating_conductance(t) < 0.5 * r[6]);
+}
+
+/// Least-squares line y = c + m x.
+fn line_fit(x: &[f64], y: &[f64]) -> (f64, f64) {
+    let n = x.len() as f64;
+    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
+    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
+    let sxx: f64 = x.iter().map(|a| (a - mx) * (a - mx)).sum();
+    let m = sxy / sxx;
+    (my - m * mx, m)
+}
+
+fn uniform_damped(n: usize, gamma: f64) -> Lattice {
+    Lattice::chain(&vec![M; n], &vec![K; n])
+        .unwrap()
+        .with_damping(vec![gamma; n])
+        .unwrap()
+}
+
+/// Uniform heating P_i = P of a diffusive chain (32 sites, ℓ ≈ 2.4 sites)
+/// between leads at the same temperature: the heat equation with a uniform
+/// source gives a parabolic T_L(x) peaked in the middle (common practice).
+/// Mirror symmetry of the chain makes the profile symmetric to rounding
+/// (1e-9 K allowed, the Newton tolerance being ~1e-12 of the rise). The
+/// parabola through the sites away from the contacts (the contacts'
+/// boundary layers are a few ℓ wide) must fit to 5e-3 of the rise: the
+/// conductances change slightly with temperature over a 2 K rise, and the
+/// probe-to-probe kernel has exponential tails of length ℓ.
+/// With P = 0 every probe sits at the contact temperature to 1e-12.
+#[test]
+fn uniform_heating_gives_a_symmetric_parabolic_lattice_temperature() {
+    let n = 32;
+    let lat = uniform_damped(n, 5.0);
+    let (_, net) = network(&lat, &[300.0], 1e-5);
+    let params = FloatParams::default();
+    let idle = net
+        .float_temperatures(300.0, 300.0, &vec![0.0; n], &params)
+        .unwrap();
+    for &t in &idle.temperatures_k {
+        assert!((t - 300.0).abs() <= 1e-12 * 300.0, "{t}");
+    }
+    let p = 2.5e-12;
+    let hot = net
+        .float_temperatures(300.0, 300.0, &vec![p; n], &params)
+        .unwrap();
+    let t = &hot.temperatures_k;
+    let rise = t.iter().fold(0.0_f64, |m, &v| m.max(v - 300.0));
+    assert!(rise > 0.5 && rise < 5.0, "rise {rise} K");
+    for i in 0..n {
+        assert!(
+            (t[i] - t[n - 1 - i]).abs() < 1e-9,
+            "site {i}: {} vs {}",
+            t[i],
+            t[n - 1 - i]
+        );
+    }
+    let peak = (0..n).max_by(|&a, &b| t[a].total_cmp(&t[b])).unwrap();
+    assert!(peak == n / 2 || peak == n / 2 - 1, "peak at {peak}");
+    let inner: Vec<usize> = (6..n - 6).collect();
+    let x: Vec<f64> = inner
+        .iter()
+        .map(|&i| i as f64 - 0.5 * (n - 1) as f64)
+        .collect();
+    let y: Vec<f64> = inner.iter().map(|&i| t[i]).collect();
+    let x2: Vec<f64> = x.iter().map(|v| v * v).collect();
+    // Symmetric profile: fit T = a + c x² (the odd part is zero above).
+    let (a, c) = line_fit(&x2, &y);
+    assert!(c < 0.0, "the profile must bend down, c = {c}");
+    for (xi, yi) in x.iter().zip(&y) {
+        let fit = a + c * xi * xi;
+        assert!((yi - fit).abs() < 5e-3 * rise, "x {xi}: {yi} vs {fit}");
+    }
+}
+
+/// The ledger: with every probe netting zero, the heat that leaves through
+/// the two phonon leads equals the power the electrons deposit,
+/// Σ_i P_i, to 1e-8 (energy conservation; the Newton tolerance 1e-10 of
+/// the net heat bounds it). Disordered chain, leads at different
+/// temperatures, some sites heated and some cooled, undamped sites with no
+/// power and no temperature. Also: each probe's heat from the others
+/// equals −P_i, and linear response: the right-lead heat for leads at
+/// T ± δ with P = 0 is 2δ times κ_ph with the probes floating, to 1e-6
+/// (the O(δ²) term at δ = 0.01 K of 300 K is ~1e-9; the integral's own
+/// accuracy is 1e-8).
+#[test]
+fn heat_ledger_closes_and_linear_response_matches() {
+    let n = 20;
+    let lat = disordered_chain(17, n, |i| i != 3 && i != 11);
+    let (_, net) = network(&lat, &[300.0, 320.0], 1e-8);
+    let mut rng = Rng::new(2);
+    let power: Vec<f64> = (0..n)
+        .map(|i| {
+            if i == 3 || i == 11 {
+                0.0
+            } else {
+                2e-12 * rng.uniform() + 1e-12
+            }
+        })
+        .collect();
+    let total: f64 = power.iter().sum();
+    let f = net
+        .float_temperatures(300.0, 320.0, &power, &FloatParams::default())
+        .unwrap();
+    assert!(f.temperatures_k[3].is_nan() && f.temperatures_k[11].is_nan());
+    let out = f.left_lead_heat_w + f.right_lead_heat_w;
+    assert!((out - total).abs() <= 1e-8 * total, "{out:e} vs {total:e}");
+    assert!((out - total).abs() <= f.residual_w * (1.0 + 1e-6) + 1e-30);
+    let mut terminal_t = vec![300.0, 320.0];
+    terminal_t.extend(net.probe_sites().iter().map(|&s| f.temperatures_k[s]));
+    let into = net.heat_into(&terminal_t);
+    for (q, &s) in net.probe_sites().iter().enumerate() {
+        assert!((into[q + 2] + power[s]).abs() <= 1e-8 * total, "site {s}");
+    }
+    let (t, d) = (310.0, 0.01);
+    let lin = net
+        .float_temperatures(t + d, t - d, &vec![0.0; n], &FloatParams::default())
+        .unwrap();
+    let kappa = net.floating_conductance(t);
+    let ratio = lin.right_lead_heat_w / (2.0 * d * kappa);
+    assert!((ratio - 1.0).abs() < 1e-6, "{ratio}");
+}
+
+/// Inputs the solve cannot honour are refused with the site, the value
+/// and a hint: power on a site without damping, more heat drawn from a
+/// site than its phonons can bring in at any temperature, and a spectrum
+/// of another lattice.
+#[test]
+fn impossible_requests_are_refused_with_the_site() {
+    let n = 10;
+    let lat = disordered_chain(5, n, |i| i != 4);
+    let (_, net) = network(&lat, &[300.0], 1e-8);
+    let mut power = vec![0.0; n];
+    power[4] = 1e-12;
+    let e = net
+        .float_temperatures(300.0, 300.0, &power, &FloatParams::default())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("power_w[4]") && e.contains("damping"), "{e}");
+    // Drawing heat: the most a site can receive is its conductance times
+    // the others' temperatures, about 1e-11 W/K × 300 K here.
+    let mut power = vec![0.0; n];
+    power[6] = -1e-7;
+    match net.float_temperatures(300.0, 300.0, &power, &FloatParams::default()) {
+        Err(ProbeError::TooCold { site, power_w, .. }) => {
+            assert_eq!(site, 6);
+            assert_eq!(power_w, -1e-7);
+        }
+        other => panic!("expected TooCold, got {other:?}"),
+    }
+    let other = disordered_chain(6, n, |i| i != 4);
+    let (spectrum, _) = network(&other, &[300.0], 1e-8);
+    let e = ProbeNetwork::compute(&lat, &spectrum)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("same lattice"), "{e}");
+}

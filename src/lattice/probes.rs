@@ -404,12 +404,12 @@ pub enum ProbeError {
     },
     /// Newton did not reach the tolerance.
     #[error(
-        "floating lattice temperatures not converged after {iterations} Newton steps: heat balance off by {residual_w:.3e} W at site {site} (tolerance {tolerance_w:.3e} W); raise FloatParams::max_iterations or loosen relative_tolerance, or lower the deposited power"
+        "floating lattice temperatures not converged after {iterations} Newton steps: heat balance of the probes off by {residual_w:.3e} W in total, most at site {site} (tolerance {tolerance_w:.3e} W); raise FloatParams::max_iterations or loosen relative_tolerance, or lower the deposited power"
     )]
     NotConverged {
         /// Newton steps taken.
         iterations: usize,
-        /// Largest heat imbalance of a probe (W).
+        /// Total heat imbalance of the probes, Σ_p |F_p| (W).
         residual_w: f64,
         /// The site with that imbalance.
         site: usize,
@@ -421,9 +421,12 @@ pub enum ProbeError {
 /// Settings of the Newton solve for the floating temperatures.
 #[derive(Clone, Debug, PartialEq)]
 pub struct FloatParams {
-    /// Largest heat imbalance allowed at any probe, relative to the heat
-    /// scale Σ_i |P_i| + max_i K_i T_i (K_i the probe's conductance to all
-    /// other terminals at its temperature T_i).
+    /// Largest total heat imbalance Σ_p |F_p| of the probes allowed,
+    /// relative to the net heat Σ_i |P_i| + |heat through the left lead| +
+    /// |heat through the right lead|. A rounding floor of 256 ε times the
+    /// gross exchange Σ_p K_p T_p is added (K_p the probe's conductance to
+    /// all other terminals at its temperature T_p): F is the difference of
+    /// flows of that size and cannot be evaluated more finely.
     pub relative_tolerance: f64,
     /// Most Newton steps.
     pub max_iterations: usize,
@@ -432,7 +435,7 @@ pub struct FloatParams {
 impl Default for FloatParams {
     fn default() -> Self {
         Self {
-            relative_tolerance: 1e-12,
+            relative_tolerance: 1e-10,
             max_iterations: 100,
         }
     }
@@ -448,8 +451,9 @@ pub struct FloatingLattice {
     pub left_lead_heat_w: f64,
     /// Heat leaving the device into the right phonon lead (W).
     pub right_lead_heat_w: f64,
-    /// Largest heat imbalance of a probe at the end, |Σ_j (heat from i to
-    /// j) − P_i| (W).
+    /// Total heat imbalance of the probes at the end, Σ_i |Σ_j (heat from
+    /// i to j) − P_i| (W). The ledger closes to it: the heat leaving
+    /// through the two leads differs from Σ_i P_i by at most this.
     pub residual_w: f64,
     /// Newton steps taken.
     pub iterations: usize,
@@ -746,11 +750,8 @@ impl ProbeNetwork {
             let bal = self.balance(&temps, true);
             let f = residual(&bal);
             let jac = bal.jacobian.expect("asked for the Jacobian");
-            let gross = (0..np)
-                .map(|q| jac[(q, q)] * temps[q + 2])
-                .fold(0.0, f64::max);
-            let tolerance_w = params.relative_tolerance * (total_power + gross);
-            let (site_q, res) = worst(&f);
+            let tolerance_w = tolerance(params, &bal.out, &jac, &temps, total_power);
+            let res = f.iter().map(|v| v.abs()).sum::<f64>();
             if res <= tolerance_w {
                 return Ok(self.floating_result(&temps, res, iterations));
             }
@@ -758,7 +759,7 @@ impl ProbeNetwork {
                 return Err(ProbeError::NotConverged {
                     iterations,
                     residual_w: res,
-                    site: self.probe_sites[site_q],
+                    site: self.probe_sites[worst(&f)],
                     tolerance_w,
                 });
             }
@@ -827,12 +828,29 @@ impl ProbeNetwork {
     }
 }
 
-/// Index and size of the largest |f_q| (0 and 0 when empty).
-fn worst(f: &[f64]) -> (usize, f64) {
+/// Index of the largest |f_q| (0 when empty).
+fn worst(f: &[f64]) -> usize {
     f.iter()
         .map(|v| v.abs())
         .enumerate()
         .fold((0, 0.0), |acc, (q, v)| if v > acc.1 { (q, v) } else { acc })
+        .0
+}
+
+/// Tolerance on Σ_p |F_p| (W): `relative_tolerance` of the net heat
+/// (Σ|P| plus the heat through both leads) plus a rounding floor of
+/// 256 ε times the gross exchange Σ_p K_p T_p (K_p = ∂F_p/∂T_p), below
+/// which F cannot be evaluated.
+fn tolerance(
+    params: &FloatParams,
+    out: &[f64],
+    jac: &Mat<f64>,
+    temps: &[f64],
+    total_power: f64,
+) -> f64 {
+    let gross: f64 = (0..jac.nrows()).map(|q| jac[(q, q)] * temps[q + 2]).sum();
+    let net = total_power + out[0].abs() + out[1].abs();
+    params.relative_tolerance * net + 256.0 * f64::EPSILON * gross
 }
 
 fn norm2(f: &[f64]) -> f64 {
