@@ -47,6 +47,11 @@
 //! - [`Lattice::transmission`]: Ξ(ω) at one frequency.
 //! - [`PhononSpectrum`]: Ξ on quadrature nodes, reused for κ_ph(T) and the
 //!   heat current J_ph(T_L, T_R) at any number of temperatures.
+//! - [`ProbeNetwork`]: every damped site as a heat reservoir (a probe); the
+//!   terminal transmissions T_ab on the spectrum's nodes, the heat into each
+//!   terminal, the floating lattice temperatures for a deposited power
+//!   ([`ProbeNetwork::float_temperatures`]) and κ_ph with the probes
+//!   floating ([`ProbeNetwork::floating_conductance`]).
 
 use crate::C64;
 use crate::units::RAD2_PER_PS2_PER_N_PER_M_PER_U;

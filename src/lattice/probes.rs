@@ -41,6 +41,16 @@
 //! the P terminals' transmissions. [`ProbeNetwork`] keeps T_ab for a < b
 //! on every frequency node: K·P(P − 1)/2 numbers for K nodes (a 200-site
 //! chain on 300 nodes: 6·10⁶ numbers, 48 MB).
+//!
+//! ## Floating temperatures and conductance
+//!
+//! [`ProbeNetwork::float_temperatures`] holds the leads at their
+//! temperatures and lets every probe float to the temperature at which the
+//! heat it sends to all other terminals equals the power the electrons
+//! deposit on its site (Newton's method; see the method). Then the heat
+//! leaving through the two leads is the total deposited power (the
+//! ledger). [`ProbeNetwork::floating_conductance`] is the linear-response
+//! two-terminal conductance with the probes floating at zero power.
 
 use super::{Lattice, LatticeError, PhononSpectrum, conductance_density, invalid};
 use crate::C64;
@@ -611,8 +621,8 @@ impl ProbeNetwork {
 }
 
 /// Heat leaving every terminal into the others (W) and, when asked, its
-/// derivative with respect to the probe temperatures (np×np, W/K) and
-/// each probe's total conductance K_p (W/K).
+/// derivative with respect to the probe temperatures (np×np, W/K; the
+/// diagonal is each probe's conductance K_p to all other terminals).
 struct Balance {
     out: Vec<f64>,
     jacobian: Option<Mat<f64>>,
@@ -768,7 +778,7 @@ impl ProbeNetwork {
             let step: Vec<f64> = (0..np).map(|r| step[(r, 0)]).collect();
             temps = self.damped_step(&temps, &step, &residual, norm2(&f));
             iterations += 1;
-            if let Some(q) = (0..np).find(|&q| !(temps[q + 2] >= floor)) {
+            if let Some(q) = (0..np).find(|&q| temps[q + 2].is_nan() || temps[q + 2] < floor) {
                 return Err(ProbeError::TooCold {
                     site: self.probe_sites[q],
                     temperature_k: temps[q + 2],
