@@ -34,18 +34,20 @@
 //! Why Anderson: the map T → R(P(T)) has a Jacobian of the lattice's
 //! thermal resistance times ∂P/∂T, and ∂P/∂T < 0 (a hotter lattice absorbs
 //! more of what the electrons emit), so the plain update overshoots and
-//! oscillates. Measured on a 12-cell biased chain heated by 30 K: the
-//! plain update contracts by about 0.4 per outer iteration and needs 20
-//! outer iterations (86 Born iterations) for 10⁻⁶ K; Anderson, which
-//! fits the local slope from the history, needs far fewer (numbers in the
-//! crate's self-heating notes). The vector is one temperature per orbital
-//! site, so the history costs nothing next to a Born solve.
+//! oscillates. Measured on a 12-cell biased chain whose hottest site rises
+//! by about 22 K: the plain update contracts by about 0.4 per outer
+//! iteration and needs 20 outer iterations (86 Born iterations) for
+//! 10⁻⁶ K; Anderson, which fits the local slope from the history, needs 9
+//! (40 Born iterations; a single cold Born solve takes 6). The vector is
+//! one temperature per orbital site, so the history costs nothing next to
+//! a Born solve.
 //!
 //! The tolerance is in kelvin. The temperatures cannot be more accurate than
 //! the powers behind them: with a Born tolerance ε the powers carry a
 //! relative error of order ε, so `tolerance_k` should stay above
-//! (thermal resistance) × ε × |P|; the defaults (10⁻⁶ K against a Born
-//! tolerance of 10⁻⁷) leave room for heating of tens of kelvin.
+//! (thermal resistance) × ε × |P|, the temperature rise times ε: the
+//! defaults (10⁻⁶ K against a Born tolerance of 10⁻⁷) suit a rise of up to
+//! about 10 K; for more, tighten the Born tolerance or loosen this one.
 //!
 //! Reaching the outer iteration limit gives a result flagged as not
 //! converged, as the Born loop does; a failing Born solve or lattice is an
