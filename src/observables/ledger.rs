@@ -70,7 +70,7 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
             let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
             let (mut emit, mut absorb) = (0.0, 0.0);
-            for s in 0..ns {
+            for (s, &n) in occupation.iter().enumerate() {
                 let d = m.coupling_ev2[s];
                 if d == 0.0 {
                     continue;
@@ -85,7 +85,6 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
                         a_s += filled * g.empty((k + w) * ns + s);
                     }
                 }
-                let n = occupation[s];
                 emit += d * (n + 1.0) * e_s;
                 absorb += d * n * a_s;
             }

@@ -90,10 +90,12 @@ impl TemperatureMixer {
                 return None;
             }
             a.swap(c, p);
-            for row in c + 1..m {
-                let f = a[row][c] / a[c][c];
-                for col in c..=m {
-                    a[row][col] -= f * a[c][col];
+            let (upper, lower) = a.split_at_mut(c + 1);
+            let pivot = &upper[c];
+            for row in lower.iter_mut() {
+                let f = row[c] / pivot[c];
+                for (x, p) in row[c..].iter_mut().zip(&pivot[c..]) {
+                    *x -= f * p;
                 }
             }
         }
