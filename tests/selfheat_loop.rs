@@ -223,6 +223,41 @@ fn the_answer_is_a_fixed_point_of_both_problems() {
     let power = lattice_power_per_site(&fresh);
     assert!(profile_deviation(&power, &s.lattice_power_w) < 1e-7);
     assert_eq!(s.report.iterations, lattice.calls);
+    // Warm start from the answer: one outer iteration, and a Born solve
+    // that starts at its fixed point; the observer sees every iteration.
+    let mut seen = Counting::default();
+    let start = SelfHeatStart {
+        lattice_temperature_k: Some(&s.lattice_temperature_k),
+        sigma: Some(&s.solution.sigma),
+    };
+    let params = SelfHeatParams::default();
+    let again = selfheat::solve(&p, &born(), &params, &mut lattice, start, &mut seen).unwrap();
+    assert!(again.report.converged && again.report.given_start);
+    assert_eq!(again.report.iterations, 1);
+    assert!(again.solution.report.warm_start);
+    assert!(
+        again.report.born_iterations <= 2,
+        "{}",
+        again.report.born_iterations
+    );
+    assert_eq!(seen.outer, 1);
+    assert_eq!(seen.born, again.report.born_iterations);
+}
+
+/// Counts the events of the joint loop.
+#[derive(Default)]
+struct Counting {
+    outer: usize,
+    born: usize,
+}
+
+impl qheat::progress::Observer for Counting {
+    fn iteration(&mut self, _: &qheat::progress::IterationRecord) {
+        self.born += 1;
+    }
+    fn lattice_iteration(&mut self, _: &qheat::progress::LatticeIterationRecord) {
+        self.outer += 1;
+    }
 }
 
 /// (c) The answer does not remember where the loop started: from the bath,
