@@ -45,6 +45,7 @@
 //! [`scba::Solution`] → [`observables::observe`] → [`output`].
 //! Thermoelectric coefficients: [`thermo`].
 //! The lattice's own heat transport (phonon transmission, κ_ph): [`lattice`].
+//! Electrons and lattice temperatures solved together: [`selfheat`].
 //!
 //! ## Example
 //!
@@ -118,6 +119,7 @@ pub mod progress;
 pub mod rgf;
 pub mod scattering;
 pub mod scba;
+pub mod selfheat;
 pub mod sweep;
 pub mod thermo;
 pub mod units;

@@ -1,6 +1,7 @@
 //! Progress of long computations, reported through one observer trait.
 //!
-//! The Born loop reports each iteration, generator and cooler curves each
+//! The Born loop reports each iteration, the joint electron–lattice loop
+//! each outer iteration, generator and cooler curves each
 //! solve, sweeps each finished grid point. Solvers never print: whoever
 //! runs them passes an [`Observer`] (the command line draws progress bars
 //! with it; tests and library users pass [`Silent`]). Every method has a
@@ -24,6 +25,24 @@ pub struct IterationRecord {
     pub current_change: f64,
     /// Which update was used next ("linear", "anderson", "restart").
     pub step: &'static str,
+}
+
+/// What one outer iteration of the joint electron–lattice loop did (one
+/// Born solve at a lattice-temperature profile, then the lattice's answer).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
+pub struct LatticeIterationRecord {
+    /// Outer iteration number (1-based).
+    pub iteration: usize,
+    /// Largest change of the lattice temperature the lattice asked for,
+    /// max_s |T_L,s(response) − T_L,s(used)| (K).
+    pub temperature_change_k: f64,
+    /// Born iterations this outer iteration's solve needed.
+    pub born_iterations: usize,
+    /// Whether that Born solve converged.
+    pub born_converged: bool,
+    /// Total lattice power Σ_s P_s of that solve (W).
+    pub lattice_power_w: f64,
 }
 
 /// A finished point of a sweep, reported after the point is stored.
@@ -51,6 +70,8 @@ pub struct PointEvent {
 pub trait Observer {
     /// A Born iteration finished.
     fn iteration(&mut self, _record: &IterationRecord) {}
+    /// An outer iteration of the joint electron–lattice loop finished.
+    fn lattice_iteration(&mut self, _record: &LatticeIterationRecord) {}
     /// A solve of a generator or cooler curve at `voltage_v` (V) finished;
     /// `stage` says what it was for ("open circuit", "curve", …).
     fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {}

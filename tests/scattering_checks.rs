@@ -286,6 +286,7 @@ fn recursion_matches_dense_born_loop() {
             warm_start: false,
             energy_order: qheat::scba::EnergyOrder::Simultaneous,
         },
+        lattice_temperature_k: None,
     };
     let od = observe(&dsol);
     assert!(

@@ -76,8 +76,12 @@ pub struct LocalFermiLevel {
     pub interval_ev: (f64, f64),
     /// Electrons in the cell, g_s Σ_k G^n ΔE / 2π.
     pub electrons: Vec<f64>,
-    /// Temperature used for the matching (K).
+    /// Temperature used for the matching (K): the lattice temperature, or
+    /// with a lattice-temperature profile the highest of the cells'
+    /// temperatures (the one that sets the widest search interval).
     pub temperature_k: f64,
+    /// Temperature used for the matching of each cell (K).
+    pub cell_temperature_k: Vec<f64>,
 }
 
 /// The lattice temperature: the first phonon bath temperature, or the mean
@@ -89,6 +93,21 @@ pub fn lattice_temperature(sol: &Solution) -> f64 {
         .first()
         .map(|m| m.bath_temperature_k)
         .unwrap_or(0.5 * (p.left.temperature_k + p.right.temperature_k))
+}
+
+/// The lattice temperature of each cell (K): with a lattice-temperature
+/// profile on the solution, the mean over the cell's orbital sites;
+/// otherwise [`lattice_temperature`] in every cell.
+pub fn cell_lattice_temperatures(sol: &Solution) -> Vec<f64> {
+    let p = &sol.problem;
+    let b = p.device.orbitals.max(1);
+    match sol.lattice_temperature_k.as_deref() {
+        Some(t) => t
+            .chunks(b)
+            .map(|c| c.iter().sum::<f64>() / c.len() as f64)
+            .collect(),
+        None => vec![lattice_temperature(sol); p.device.cells()],
+    }
 }
 
 /// Solve Σ_k a_k f(E_k; µ, T) = target for µ by bisection on
@@ -159,7 +178,9 @@ pub fn match_fermi_level_checked(
     }
 }
 
-/// Local Fermi level of every cell at the lattice temperature.
+/// Local Fermi level of every cell at the lattice temperature of that cell
+/// ([`cell_lattice_temperatures`]). The reported search interval is the
+/// widest one, that of the hottest cell.
 pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let p = &sol.problem;
     let b = p.device.orbitals;
@@ -167,7 +188,8 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let ne = p.grid.count;
     let ns = n * b;
     let energies = p.grid.energies();
-    let t = lattice_temperature(sol);
+    let cell_t = cell_lattice_temperatures(sol);
+    let t = cell_t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let green = &sol.pass.green;
     let per_cell: Vec<(FermiMatch, f64)> = (0..n)
         .into_par_iter()
@@ -181,7 +203,7 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
                     filled += green.filled[idx];
                 }
             }
-            let mu = match_fermi_level_checked(&energies, &a, filled, t);
+            let mu = match_fermi_level_checked(&energies, &a, filled, cell_t[i]);
             let electrons =
                 p.spin_degeneracy * filled * p.grid.step_ev / (2.0 * std::f64::consts::PI);
             (mu, electrons)
@@ -193,6 +215,7 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
         interval_ev: fermi_search_interval(&energies, t),
         electrons: per_cell.iter().map(|x| x.1).collect(),
         temperature_k: t,
+        cell_temperature_k: cell_t,
     }
 }
 

@@ -8,9 +8,12 @@
 //!   J_E,1 + J_E,2 = Σ_i P_i is an identity, true before convergence too;
 //! - the phonon side, mode by mode, from the final Green's functions alone:
 //!   P_m = ħω_m (emission rate − absorption rate) with
-//!   emission rate  = (g_s/h) Σ_s D_m,s (N_m + 1) Σ_k G^n_s(E_k) G^p_s(E_k − ħω_m) ΔE,
-//!   absorption rate = (g_s/h) Σ_s D_m,s N_m Σ_k G^n_s(E_k) G^p_s(E_k + ħω_m) ΔE,
-//!   values outside the grid counted as zero.
+//!   emission rate  = (g_s/h) Σ_s D_m,s (N_m,s + 1) Σ_k G^n_s(E_k) G^p_s(E_k − ħω_m) ΔE,
+//!   absorption rate = (g_s/h) Σ_s D_m,s N_m,s Σ_k G^n_s(E_k) G^p_s(E_k + ħω_m) ΔE,
+//!   values outside the grid counted as zero. N_m,s is the occupation at
+//!   the lattice temperature of site s when the solve carried a profile
+//!   ([`crate::scba::Solution::lattice_temperature_k`]), the bath
+//!   occupation otherwise: the same N_m,s that built Σ0.
 //!
 //! Where the second comes from: rebuild Σ^in_0 and Σ^out_0 of the phonons
 //! from the final G (an electron reaches E by emission from E + ħω, with
@@ -64,10 +67,10 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
         .phonons
         .iter()
         .map(|m| {
-            let n = m.occupation();
+            let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
             let (mut emit, mut absorb) = (0.0, 0.0);
-            for s in 0..ns {
+            for (s, &n) in occupation.iter().enumerate() {
                 let d = m.coupling_ev2[s];
                 if d == 0.0 {
                     continue;

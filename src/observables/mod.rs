@@ -6,8 +6,10 @@
 //!   each orbital site j_0 = (g_s/h)(Σ^in_0 A − Γ0 G^n);
 //! - electric current into the device I_α = −e ∫ j_α dE, energy current
 //!   J_E,α = ∫ E j_α dE, heat current J_Q,α = ∫ (E − µ_α) j_α dE;
-//! - lattice power at cell i, P_i = −∫ E j_0,i dE (positive: heated), and
-//!   the same power seen from the phonons, mode by mode (see [`ModePower`]);
+//! - lattice power at cell i, P_i = −∫ E j_0,i dE (positive: heated), per
+//!   orbital site for a lattice heat-transport model
+//!   ([`lattice_power_per_site`]), and the same power seen from the
+//!   phonons, mode by mode (see [`ModePower`]);
 //! - the conservation ledger; the local Fermi level by density matching;
 //!   the energy-resolved bond current.
 //!
@@ -16,9 +18,9 @@
 mod fermi_level;
 mod ledger;
 pub use fermi_level::{
-    FermiLevelStatus, FermiMatch, LocalFermiLevel, fermi_search_interval,
-    fit_fermi_level_and_temperature, local_electron_temperatures, local_fermi_levels,
-    match_fermi_level_checked,
+    FermiLevelStatus, FermiMatch, LocalFermiLevel, cell_lattice_temperatures,
+    fermi_search_interval, fit_fermi_level_and_temperature, lattice_temperature,
+    local_electron_temperatures, local_fermi_levels, match_fermi_level_checked,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
 
@@ -149,6 +151,26 @@ fn bath_gross(sol: &Solution, k: usize, s: usize) -> f64 {
     let idx = k * sol.pass.green.sites + s;
     (sol.sigma.inscatter[idx] * sol.pass.green.spectral(idx)).abs()
         + (sol.sigma.gamma(idx) * sol.pass.green.filled[idx]).abs()
+}
+
+/// Lattice power per orbital site (W): P_s = −∫ E j_0,s dE, positive where
+/// the electrons heat the lattice. This is what a model of the lattice's own
+/// heat transport takes as its source, one value per orbital site (index
+/// s = i·b + o); summing the orbitals of each cell gives [`lattice_power`],
+/// so Σ_s P_s = Σ_i P_i up to rounding.
+pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
+    use rayon::prelude::*;
+    let p = &sol.problem;
+    let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
+    (0..p.sites())
+        .into_par_iter()
+        .map(|s| {
+            let acc: f64 = (0..p.grid.count)
+                .map(|k| p.grid.energy(k) * bath_trace(sol, k, s))
+                .sum();
+            acc * scale
+        })
+        .collect()
 }
 
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed.

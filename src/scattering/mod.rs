@@ -12,6 +12,24 @@
 //!   Σ^out(E) = Σ_m D_m [(N_m+1) G^p(E−ħω_m) + N_m G^p(E+ħω_m)].
 //!   The retarded part is −iΓ0/2 plus, optionally, the Hermitian part from
 //!   the Hilbert transform of Γ0 over the grid.
+//!
+//! # Lattice temperature
+//!
+//! The occupation N_m is the Bose function of ħω_m at the temperature of
+//! the lattice where the electron meets the phonon. Without a profile that
+//! is the mode's bath temperature, one value for the whole device. When the
+//! lattice heats up unevenly (its own heat transport, solved elsewhere,
+//! turns the power the electrons deposit into a temperature per site), the
+//! caller passes a lattice-temperature profile T_L,s with one value (K) per
+//! orbital site s, and site s then uses N_m,s = 1/(exp(ħω_m/k_B T_L,s) − 1)
+//! in both Σ^in and Σ^out. A hotter site has more phonons to absorb (the
+//! N term grows) and stimulates more emission (N + 1 grows by as much), so
+//! for electrons that would otherwise emit, the net energy handed to that
+//! site falls. The profile is passed as an argument rather than stored on
+//! [`Scattering`], because it is a state of the lattice that changes while
+//! the electron and lattice problems are solved together, not a setting of
+//! the model; [`Scattering::self_energy_into`] is the profile-free form
+//! (every site at the bath temperature).
 
 use crate::C64;
 
@@ -36,7 +54,48 @@ pub struct PhononMode {
 impl PhononMode {
     /// Bose occupation N_m at the bath temperature.
     pub fn occupation(&self) -> f64 {
-        crate::units::bose(self.energy_ev, self.bath_temperature_k)
+        self.occupation_at(self.bath_temperature_k)
+    }
+
+    /// Bose occupation of this mode at a lattice temperature (K).
+    pub fn occupation_at(&self, temperature_k: f64) -> f64 {
+        crate::units::bose(self.energy_ev, temperature_k)
+    }
+
+    /// Occupation at each of `sites` orbital sites: from the
+    /// lattice-temperature profile (K, one value per orbital site) when
+    /// given, else the bath occupation everywhere. The bath temperature and
+    /// a uniform profile equal to it give the same numbers bit for bit.
+    pub fn site_occupations(
+        &self,
+        sites: usize,
+        lattice_temperature_k: Option<&[f64]>,
+    ) -> Vec<f64> {
+        match lattice_temperature_k {
+            Some(t) => t.iter().map(|&t| self.occupation_at(t)).collect(),
+            None => vec![self.occupation(); sites],
+        }
+    }
+}
+
+/// Checks a lattice-temperature profile against a device of `sites`
+/// orbital sites: one finite, positive temperature (K) per site. The error
+/// says which entry is wrong and what was expected.
+pub fn check_lattice_temperature(profile: &[f64], sites: usize) -> Result<(), String> {
+    if profile.len() != sites {
+        return Err(format!(
+            "lattice-temperature profile has {} values, the device {sites} orbital sites \
+             (give one temperature in K per orbital site)",
+            profile.len()
+        ));
+    }
+    match profile.iter().position(|t| !(t.is_finite() && *t > 0.0)) {
+        Some(s) => Err(format!(
+            "lattice temperature at orbital site {s} is {} K; expected a finite \
+             temperature above 0 K (check the lattice response that produced it)",
+            profile[s]
+        )),
+        None => Ok(()),
     }
 }
 
@@ -157,16 +216,55 @@ impl Scattering {
         hilbert: Option<&HilbertTransform>,
         out: &mut ScatteringSelfEnergy,
     ) {
-        use rayon::prelude::*;
+        self.self_energy_at_into(green, energies, hilbert, None, out);
+    }
+
+    /// [`Scattering::self_energy_into`] with the phonon occupations taken
+    /// from a lattice-temperature profile (K, one value per orbital site;
+    /// see the module docs). `None` uses each mode's bath temperature.
+    ///
+    /// # Panics
+    ///
+    /// When the profile does not hold one value per orbital site
+    /// ([`check_lattice_temperature`] tells before).
+    pub fn self_energy_at_into(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        hilbert: Option<&HilbertTransform>,
+        lattice_temperature_k: Option<&[f64]>,
+        out: &mut ScatteringSelfEnergy,
+    ) {
         let ns = green.sites;
+        if let Some(t) = lattice_temperature_k {
+            assert_eq!(t.len(), ns, "lattice-temperature profile length");
+        }
         out.sites = ns;
         out.retarded.resize(energies * ns, C64::new(0.0, 0.0));
         out.inscatter.resize(energies * ns, 0.0);
+        self.phonon_broadening_into(green, energies, lattice_temperature_k, out);
+        self.add_hermitian_and_dephasing(green, energies, hilbert, out);
+    }
+
+    /// The phonon part of Σ^in_0 and Im Σ^r_0 = −Γ0/2, overwriting `out`.
+    fn phonon_broadening_into(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        lattice_temperature_k: Option<&[f64]>,
+        out: &mut ScatteringSelfEnergy,
+    ) {
+        use rayon::prelude::*;
+        let ns = green.sites;
         // Rows (one energy each) are independent: built in parallel, each
         // element summing the modes in the same order whatever the thread
         // count. The phonon broadening Γ goes into Im Σ^r = −Γ/2 as it is
         // summed (halving is exact, so this equals −(Σ Γ_mode)/2).
-        let occupations: Vec<f64> = self.phonons.iter().map(|m| m.occupation()).collect();
+        let occupations: Vec<Vec<f64>> = self
+            .phonons
+            .iter()
+            .map(|m| m.site_occupations(ns, lattice_temperature_k))
+            .collect();
         out.inscatter
             .par_chunks_mut(ns.max(1))
             .zip(out.retarded.par_chunks_mut(ns.max(1)))
@@ -174,13 +272,14 @@ impl Scattering {
             .for_each(|(k, (sin_row, ret_row))| {
                 sin_row.fill(0.0);
                 ret_row.fill(C64::new(0.0, 0.0));
-                for (mode, &n) in self.phonons.iter().zip(&occupations) {
+                for (mode, occ) in self.phonons.iter().zip(&occupations) {
                     let w = mode.steps;
                     for s in 0..ns {
                         let d = mode.coupling_ev2[s];
                         if d == 0.0 {
                             continue;
                         }
+                        let n = occ[s];
                         let mut sin = 0.0;
                         let mut sout = 0.0;
                         if k + w < energies {
@@ -199,6 +298,19 @@ impl Scattering {
                     }
                 }
             });
+    }
+
+    /// Adds the Hermitian part of the phonon self-energy (when on) and the
+    /// elastic dephasing to `out`, which holds the phonon broadening.
+    fn add_hermitian_and_dephasing(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        hilbert: Option<&HilbertTransform>,
+        out: &mut ScatteringSelfEnergy,
+    ) {
+        use rayon::prelude::*;
+        let ns = green.sites;
         if self.hermitian_part && !self.phonons.is_empty() {
             let h = hilbert.expect("Hilbert transform plan when the Hermitian part is on");
             let gamma_ph: Vec<f64> = out.retarded.par_iter().map(|r| -2.0 * r.im).collect();

@@ -389,6 +389,9 @@ pub struct Solution {
     pub sigma: ScatteringSelfEnergy,
     /// Convergence record.
     pub report: ScbaReport,
+    /// The lattice temperature (K) at each orbital site that set the phonon
+    /// occupations, or `None` when every mode used its bath temperature.
+    pub lattice_temperature_k: Option<Vec<f64>>,
 }
 
 /// Electric currents (I_1, I_2) in A from terminal flows.
@@ -492,11 +495,30 @@ pub fn solve_with_leads(
     warm: Option<&ScatteringSelfEnergy>,
     observer: &mut dyn Observer,
 ) -> Result<Solution, SolveError> {
+    solve_in_lattice(problem, leads, None, params, warm, observer)
+}
+
+/// The Born loop with the phonon occupations taken from a lattice
+/// temperature per orbital site (K): mode m at site s uses
+/// N(ħω_m, T_L,s) in place of its bath temperature. `None` is [`solve`]
+/// (the bath temperature everywhere). A uniform profile equal to the bath
+/// temperature gives the same numbers as `None`, bit for bit.
+pub fn solve_in_lattice(
+    problem: &Problem,
+    leads: &LeadTable,
+    lattice_temperature_k: Option<&[f64]>,
+    params: &ScbaParams,
+    warm: Option<&ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<Solution, SolveError> {
     let ne = problem.grid.count;
     let ns = problem.sites();
+    if let Some(t) = lattice_temperature_k {
+        crate::scattering::check_lattice_temperature(t, ns).map_err(SolveError::Invalid)?;
+    }
     let scat = &problem.scattering;
     let coherent = scat.is_coherent();
-    let mut report = ScbaReport {
+    let report = ScbaReport {
         converged: true,
         iterations: 0,
         history: Vec::new(),
@@ -505,6 +527,7 @@ pub fn solve_with_leads(
         warm_start: warm.is_some() && !coherent,
         energy_order: EnergyOrder::Simultaneous,
     };
+    let lattice = lattice_temperature_k.map(<[f64]>::to_vec);
     if coherent {
         let sigma = ScatteringSelfEnergy::zeros(ne, ns);
         let pass = pass(problem, leads, &sigma, true)?;
@@ -513,9 +536,10 @@ pub fn solve_with_leads(
             pass,
             sigma,
             report,
+            lattice_temperature_k: lattice,
         });
     }
-    let mut x = match warm {
+    let x = match warm {
         Some(w) if w.sites == ns && w.energies() == ne => w.clone(),
         Some(_) => {
             return Err(SolveError::Invalid(
@@ -524,94 +548,180 @@ pub fn solve_with_leads(
         }
         None => ScatteringSelfEnergy::zeros(ne, ns),
     };
-    let hilbert = report.hermitian_part.then(|| HilbertTransform::new(ne));
-    // Re Σ^r_0 stays zero unless the Hermitian part or dephasing (whose
-    // Σ^r is D·G^r) puts something there; then it need not be mixed.
-    let has_dephasing = scat.dephasing_ev2.iter().any(|&d| d != 0.0);
-    let mut mixer = Mixer::with_real_part(params.mixing, report.hermitian_part || has_dephasing);
-    let mut previous: Option<(f64, f64)> = None;
-    let colouring = red_black_colouring(problem, params.energy_order);
-    report.energy_order = if colouring.is_some() {
-        EnergyOrder::RedBlack
-    } else {
-        EnergyOrder::Simultaneous
-    };
-    let colour = colouring.map(|(w, _)| w);
-    // Red-black: an iteration solves the red energies, rebuilds Σ0 on the
-    // black ones from every G at hand, then solves those. The first
-    // iteration has no G on the black energies yet; they count as zero,
-    // which loses nothing when the black Σ0 depends on red energies only
-    // (two-colouring phonons alone) or when Σ0 starts from zero. A warm
-    // start with dephasing or the Hermitian part would lose its black rows,
-    // so its first iteration solves every energy from the same Σ0 instead.
-    let black_needs_black =
-        has_dephasing || report.hermitian_part || !colouring.is_some_and(|(_, two)| two);
-    // The Green's functions of the pass and the image F(Σ0) are rebuilt in
-    // place every iteration. `black_ready`: the black rows of `p` hold G
-    // from an earlier pass (or may count as zero, see above).
-    let mut p = Pass::zeros(problem);
-    let mut fx = ScatteringSelfEnergy::zeros(ne, ns);
-    let mut black_ready = warm.is_none() || !black_needs_black;
-    loop {
-        let order = colour.filter(|_| black_ready);
-        sweep(
+    let born = BornLoop::new(problem, leads, lattice, params, report, warm.is_some());
+    born.run(x, observer)
+}
+
+/// The state of one Born loop: what stays fixed while Σ0 is iterated.
+struct BornLoop<'a> {
+    problem: &'a Problem,
+    leads: &'a LeadTable,
+    lattice: Option<Vec<f64>>,
+    params: &'a ScbaParams,
+    report: ScbaReport,
+    hilbert: Option<HilbertTransform>,
+    /// Re Σ^r_0 is mixed (the Hermitian part or dephasing puts something
+    /// there).
+    mix_real_part: bool,
+    /// Red-black band width, None for the simultaneous order.
+    colour: Option<usize>,
+    /// `black_ready` of the first iteration (see [`BornLoop::run`]).
+    black_ready_at_start: bool,
+}
+
+impl<'a> BornLoop<'a> {
+    fn new(
+        problem: &'a Problem,
+        leads: &'a LeadTable,
+        lattice: Option<Vec<f64>>,
+        params: &'a ScbaParams,
+        mut report: ScbaReport,
+        warm: bool,
+    ) -> Self {
+        let scat = &problem.scattering;
+        let hilbert = report
+            .hermitian_part
+            .then(|| HilbertTransform::new(problem.grid.count));
+        // Re Σ^r_0 stays zero unless the Hermitian part or dephasing (whose
+        // Σ^r is D·G^r) puts something there; then it need not be mixed.
+        let has_dephasing = scat.dephasing_ev2.iter().any(|&d| d != 0.0);
+        let colouring = red_black_colouring(problem, params.energy_order);
+        report.energy_order = if colouring.is_some() {
+            EnergyOrder::RedBlack
+        } else {
+            EnergyOrder::Simultaneous
+        };
+        // Red-black: an iteration solves the red energies, rebuilds Σ0 on the
+        // black ones from every G at hand, then solves those. The first
+        // iteration has no G on the black energies yet; they count as zero,
+        // which loses nothing when the black Σ0 depends on red energies only
+        // (two-colouring phonons alone) or when Σ0 starts from zero. A warm
+        // start with dephasing or the Hermitian part would lose its black rows,
+        // so its first iteration solves every energy from the same Σ0 instead.
+        let black_needs_black =
+            has_dephasing || report.hermitian_part || !colouring.is_some_and(|(_, two)| two);
+        Self {
             problem,
             leads,
-            hilbert.as_ref(),
-            order,
-            &mut x,
-            &mut p,
-            &mut fx,
-            report.iterations + 1,
-        )?;
-        black_ready = true;
-        let (il, ir) = terminal_currents(problem, &p.flows);
-        let residual = relative_change(&x, &fx);
-        if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
-            return Err(SolveError::Diverged {
-                iteration: report.iterations + 1,
+            lattice,
+            params,
+            mix_real_part: report.hermitian_part || has_dephasing,
+            report,
+            hilbert,
+            colour: colouring.map(|(w, _)| w),
+            black_ready_at_start: !warm || !black_needs_black,
+        }
+    }
+
+    /// Iterate from Σ0 = `x` until converged or out of budget.
+    fn run(
+        mut self,
+        mut x: ScatteringSelfEnergy,
+        observer: &mut dyn Observer,
+    ) -> Result<Solution, SolveError> {
+        let (problem, params) = (self.problem, self.params);
+        let (ne, ns) = (problem.grid.count, problem.sites());
+        let mut mixer = Mixer::with_real_part(params.mixing, self.mix_real_part);
+        let mut previous: Option<(f64, f64)> = None;
+        // The Green's functions of the pass and the image F(Σ0) are rebuilt in
+        // place every iteration. `black_ready`: the black rows of `p` hold G
+        // from an earlier pass (or may count as zero, see `new`).
+        let mut p = Pass::zeros(problem);
+        let mut fx = ScatteringSelfEnergy::zeros(ne, ns);
+        let mut black_ready = self.black_ready_at_start;
+        loop {
+            let maps = BornMaps {
+                problem,
+                leads: self.leads,
+                hilbert: self.hilbert.as_ref(),
+                lattice: self.lattice.as_deref(),
+            };
+            let order = self.colour.filter(|_| black_ready);
+            sweep(
+                &maps,
+                order,
+                &mut x,
+                &mut p,
+                &mut fx,
+                self.report.iterations + 1,
+            )?;
+            black_ready = true;
+            let (il, ir) = terminal_currents(problem, &p.flows);
+            let residual = relative_change(&x, &fx);
+            let iteration = self.report.iterations + 1;
+            if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
+                return Err(SolveError::Diverged {
+                    iteration,
+                    residual,
+                    current_left_a: il,
+                    current_right_a: ir,
+                });
+            }
+            let current_change = current_change(params, (il, ir), previous);
+            previous = Some((il, ir));
+            self.report.iterations = iteration;
+            let done = residual <= params.tolerance && current_change <= 1.0;
+            let out_of_budget = iteration >= params.max_iterations;
+            let step = if done || out_of_budget {
+                "final"
+            } else {
+                mixer.update(&mut x, &fx)
+            };
+            let record = IterationRecord {
+                iteration,
                 residual,
                 current_left_a: il,
                 current_right_a: ir,
-            });
-        }
-        let current_change = match previous {
-            None => f64::INFINITY,
-            Some((pl, pr)) => {
-                let rel = |now: f64, before: f64| {
-                    (now - before).abs() / (params.tolerance * now.abs() + params.current_floor_a)
-                };
-                rel(il, pl).max(rel(ir, pr))
+                current_change,
+                step,
+            };
+            observer.iteration(&record);
+            self.report.history.push(record);
+            if done || out_of_budget {
+                self.report.converged = done;
+                return Ok(Solution {
+                    problem: problem.clone(),
+                    pass: p,
+                    sigma: x,
+                    report: self.report,
+                    lattice_temperature_k: self.lattice,
+                });
             }
-        };
-        previous = Some((il, ir));
-        report.iterations += 1;
-        let done = residual <= params.tolerance && current_change <= 1.0;
-        let out_of_budget = report.iterations >= params.max_iterations;
-        let step = if done || out_of_budget {
-            "final"
-        } else {
-            mixer.update(&mut x, &fx)
-        };
-        let record = IterationRecord {
-            iteration: report.iterations,
-            residual,
-            current_left_a: il,
-            current_right_a: ir,
-            current_change,
-            step,
-        };
-        observer.iteration(&record);
-        report.history.push(record);
-        if done || out_of_budget {
-            report.converged = done;
-            return Ok(Solution {
-                problem: problem.clone(),
-                pass: p,
-                sigma: x,
-                report,
-            });
         }
+    }
+}
+
+/// Largest change of a terminal current since the last iteration, relative
+/// to tol·|I| + floor (infinite at the first iteration).
+fn current_change(params: &ScbaParams, now: (f64, f64), previous: Option<(f64, f64)>) -> f64 {
+    match previous {
+        None => f64::INFINITY,
+        Some((pl, pr)) => {
+            let rel = |now: f64, before: f64| {
+                (now - before).abs() / (params.tolerance * now.abs() + params.current_floor_a)
+            };
+            rel(now.0, pl).max(rel(now.1, pr))
+        }
+    }
+}
+
+/// What one Born iteration needs besides Σ0: the problem, the lead table,
+/// the Hilbert-transform plan (Hermitian part on) and the lattice
+/// temperature profile (None: bath temperatures).
+struct BornMaps<'a> {
+    problem: &'a Problem,
+    leads: &'a LeadTable,
+    hilbert: Option<&'a HilbertTransform>,
+    lattice: Option<&'a [f64]>,
+}
+
+impl BornMaps<'_> {
+    /// Rebuild Σ0 from the local Green's functions into `out`.
+    fn rebuild(&self, green: &LocalGreen, out: &mut ScatteringSelfEnergy) {
+        let ne = self.problem.grid.count;
+        self.problem
+            .scattering
+            .self_energy_at_into(green, ne, self.hilbert, self.lattice, out);
     }
 }
 
@@ -620,31 +730,27 @@ pub fn solve_with_leads(
 /// are solved first and the black rows of `x` are replaced by Σ0 rebuilt
 /// from every G at hand (the black rows of `p` are taken from the previous
 /// sweep) before the black energies are solved.
-#[allow(clippy::too_many_arguments)]
 fn sweep(
-    problem: &Problem,
-    leads: &LeadTable,
-    hilbert: Option<&HilbertTransform>,
+    maps: &BornMaps<'_>,
     red_black: Option<usize>,
     x: &mut ScatteringSelfEnergy,
     p: &mut Pass,
     fx: &mut ScatteringSelfEnergy,
     iteration: usize,
 ) -> Result<(), SolveError> {
-    let scat = &problem.scattering;
-    let ne = problem.grid.count;
+    let (problem, leads) = (maps.problem, maps.leads);
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
             pass_rows(problem, leads, x, false, red, p)?;
-            scat.self_energy_into(&p.green, ne, hilbert, fx);
+            maps.rebuild(&p.green, fx);
             ensure_finite(fx, problem, iteration)?;
             copy_rows(fx, x, |k| !red(k));
             pass_rows(problem, leads, x, false, |k| !red(k), p)?;
         }
         None => pass_rows(problem, leads, x, false, |_| true, p)?,
     }
-    scat.self_energy_into(&p.green, ne, hilbert, fx);
+    maps.rebuild(&p.green, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
     // values, the mixer); stop here and say where it appeared.
     ensure_finite(fx, problem, iteration)
@@ -668,16 +774,13 @@ pub fn born_map(
     let mut p = pass(problem, leads, &x, false)?;
     let mut fx = ScatteringSelfEnergy::zeros(ne, problem.sites());
     let colour = red_black_colouring(problem, order).map(|(w, _)| w);
-    sweep(
+    let maps = BornMaps {
         problem,
         leads,
-        hilbert.as_ref(),
-        colour,
-        &mut x,
-        &mut p,
-        &mut fx,
-        1,
-    )?;
+        hilbert: hilbert.as_ref(),
+        lattice: None,
+    };
+    sweep(&maps, colour, &mut x, &mut p, &mut fx, 1)?;
     Ok((x, fx))
 }
 
