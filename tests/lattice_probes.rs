@@ -462,3 +462,22 @@ fn impossible_requests_are_refused_with_the_site() {
         .to_string();
     assert!(e.contains("same lattice"), "{e}");
 }
+
+/// A long, strongly damped chain (96 sites, γ = 5/ps: about 40 mean free
+/// paths) at the default tolerance 1e-8. Near ω = 0 the recursion's
+/// rounding (about ε (ω_top/ω)² relative) is larger than the tiny exact
+/// Ξ, and a refinement without a rounding floor split intervals there
+/// until it ran out of nodes (it failed from 48 sites on). The spectrum
+/// must now settle, with far fewer nodes than the limit, and the floating
+/// conductance must fall as 1/L against half the length (Fourier's law,
+/// common practice; 10 % allowed for the contact resistance, which is
+/// about 1.5 % of R at 48 sites).
+#[test]
+fn long_strongly_damped_chain_settles_at_the_default_tolerance() {
+    let t = [300.0];
+    let (long_s, long_n) = network(&uniform_damped(96, 5.0), &t, 1e-8);
+    assert!(long_s.len() < 50_000, "{} nodes", long_s.len());
+    let (_, short_n) = network(&uniform_damped(48, 5.0), &t, 1e-8);
+    let ratio = short_n.floating_conductance(300.0) / long_n.floating_conductance(300.0);
+    assert!((ratio - 2.0).abs() < 0.2, "κ(48)/κ(96) = {ratio}");
+}

@@ -33,6 +33,15 @@
 //! ω ≲ k_B T/ħ may be under-resolved. A resonance narrower than the
 //! initial intervals can be missed if no node lands on it: raise
 //! `initial_pieces` for devices with sharp resonances.
+//!
+//! Rounding floor: near ω = 0 the recursion divides by quantities of size
+//! ω² while the force constants are of size ω_top², so Ξ carries a
+//! rounding error of about ε (ω_top/ω)² (ε the machine epsilon; with
+//! damping the exact Ξ there is small and this noise dominates). A split
+//! whose change is below 16 ε (ω_top/ω)² times the interval's own
+//! contribution, node by node, is taken as settled: refining further would
+//! only chase that noise. Away from ω = 0 this floor is below 1e-13 and
+//! never decides.
 
 use super::quadrature::{gauss_legendre_unit, mapped_rule};
 use super::{Lattice, LatticeError, TransmissionScratch};
@@ -106,6 +115,20 @@ impl Leaf {
             .iter()
             .zip(&self.xi)
             .map(|(&(w, wt), &x)| wt * x * conductance_density(w, t))
+            .sum()
+    }
+
+    /// The rounding noise of [`Leaf::conductance`]: each node's full-channel
+    /// contribution times the recursion's relative error 16 ε (ω_top/ω)²
+    /// (at most 1: Ξ of a channel is at most 1 per open mode there).
+    fn rounding_floor(&self, t: f64, top: f64) -> f64 {
+        self.nodes
+            .iter()
+            .zip(&self.xi)
+            .map(|(&(w, wt), &x)| {
+                let noise = (16.0 * f64::EPSILON * (top / w).powi(2)).min(1.0);
+                wt * noise * x.abs().max(1.0) * conductance_density(w, t)
+            })
             .sum()
     }
 }
@@ -272,7 +295,8 @@ fn refine(
         for (k, &t) in temps.iter().enumerate() {
             let d = h1.conductance(t) + h2.conductance(t) - leaves[i].conductance(t);
             change[k] += d;
-            settled &= d.abs() <= params.relative_tolerance * totals[k].abs() * share;
+            let floor = h1.rounding_floor(t, top) + h2.rounding_floor(t, top);
+            settled &= d.abs() <= params.relative_tolerance * totals[k].abs() * share + floor;
         }
         leaves[i] = h1;
         leaves.push(h2);
