@@ -12,8 +12,9 @@
 //! ([`crate::observables::lattice_power_per_site`], positive where the
 //! lattice is heated). The lattice side is anything that implements
 //! [`LatticeResponse`]: given P_s it returns the temperature T_L,s at which
-//! every site carries away exactly the power it receives (for example a
-//! network of phonon probes, one floating reservoir per site).
+//! every site carries away exactly the power it receives: the network of
+//! phonon probes, one floating reservoir per damped site
+//! ([`FloatingProbes`]), or any other model.
 //!
 //! # The iteration
 //!
@@ -60,7 +61,9 @@ use crate::scattering::{ScatteringSelfEnergy, check_lattice_temperature};
 use crate::scba::{LeadTable, ScbaParams, Solution, SolveError, solve_in_lattice};
 
 mod mixing;
+mod probes;
 use mixing::TemperatureMixer;
+pub use probes::FloatingProbes;
 
 /// The lattice's side of the loop: the temperature each orbital site
 /// settles at when it receives a given power from the electrons.
