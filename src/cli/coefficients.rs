@@ -60,9 +60,10 @@ pub fn print_coefficients(c: &Coefficients) {
         si(c.power_factor_w_per_k2, "W/K²", 4)
     );
     println!(
-        "figure of merit   ZT = {:.4}  (κ_ph = {})",
+        "figure of merit   ZT = {:.4}  (κ_ph = {}; {})",
         c.zt,
-        si(c.phonon_conductance_w_per_k, "W/K", 3)
+        si(c.phonon_conductance_w_per_k, "W/K", 3),
+        c.phonon_conductance_source.describe()
     );
     println!("Kelvin/Onsager    residual {:.1e}", c.kelvin_residual);
 }

@@ -73,7 +73,7 @@ const COMMON_GRID: [Key; 7] = [
     ),
 ];
 
-const COEFFICIENTS: [Key; 12] = [
+const COEFFICIENTS: [Key; 13] = [
     ("fermi_level_ev", "eV", "reference Fermi level µ"),
     ("temperature_k", "K", "reference temperature T"),
     ("conductance_s", "S", "electrical conductance G"),
@@ -94,6 +94,11 @@ const COEFFICIENTS: [Key; 12] = [
         "phonon_conductance_w_per_k",
         "W/K",
         "phonon thermal conductance κph used for ZT",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where κph came from: lattice (computed from [lattice] at T), given (thermal.phonon_conductance_w_per_k) or none (κph = 0: ZT is an upper bound)",
     ),
     ("zt", "1", "figure of merit ZT = S²GT/(κe + κph)"),
     (
@@ -485,7 +490,7 @@ const FAILED: [Key; 6] = [
     ("fault.cell", "1", "cell of the failure, or null"),
 ];
 
-const GRID_RUN: [Key; 16] = [
+const GRID_RUN: [Key; 17] = [
     (
         "axes[].keys",
         "-",
@@ -529,6 +534,11 @@ const GRID_RUN: [Key; 16] = [
         "ranked_column",
         "-",
         "column ranked by, largest first (screen only)",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the κph of ZT came from: lattice, given or none (ZT is then an upper bound); screen by ZT or power factor only",
     ),
 ];
 

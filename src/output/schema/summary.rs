@@ -249,6 +249,9 @@ pub struct Ranking {
     pub ranked_column: String,
     /// The five best points.
     pub best: Vec<BestPoint>,
+    /// Where the κ_ph of ZT came from (ZT and power-factor rankings).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub phonon_conductance_source: Option<crate::case::PhononConductanceSource>,
 }
 
 /// summary.json of `qheat sweep` and `qheat screen`.

@@ -316,7 +316,7 @@ pub fn cooler() -> Table<CoolerReport> {
 pub type GridColumn = (&'static str, &'static str, CellKind, &'static str);
 
 /// Every result column a grid table can hold, after its axis columns.
-pub const GRID_COLUMNS: [GridColumn; 31] = [
+pub const GRID_COLUMNS: [GridColumn; 32] = [
     (
         "rank",
         "1",
@@ -448,6 +448,12 @@ pub const GRID_COLUMNS: [GridColumn; 31] = [
         "W/K²",
         CellKind::Num,
         "power factor S²G (screen)",
+    ),
+    (
+        "phonon_conductance_w_per_k",
+        "W/K",
+        CellKind::Num,
+        "phonon thermal conductance κph used for ZT (screen; its source is `phonon_conductance_source` in summary.json)",
     ),
     ("zt", "1", CellKind::Num, "figure of merit ZT (screen)"),
     (
