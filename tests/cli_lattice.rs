@@ -191,3 +191,49 @@ fn coefficients_say_where_kappa_came_from() {
         "{warned:?}"
     );
 }
+
+#[test]
+fn solve_writes_the_phonon_spectrum_and_its_figure() {
+    let tmp = tempfile::tempdir().unwrap();
+    let with = write(tmp.path(), "lat.toml", &format!("{}{LATTICE}", barrier()));
+    let out = tmp.path().join("s");
+    let o = qheat(&["solve", with.to_str().unwrap(), "-o", out.to_str().unwrap()]);
+    let shown = String::from_utf8_lossy(&o.stdout);
+    assert!(shown.contains("phonon band top ħω"), "{shown}");
+    let s = summary(&out);
+    let l = &s["lattice"];
+    assert_eq!(l["phonon_conductance_source"], "lattice");
+    assert_eq!(l["temperature_k"], 300.0);
+    let kph = l["phonon_conductance_w_per_k"].as_f64().unwrap();
+    let csv = std::fs::read_to_string(out.join("phonon_spectrum.csv")).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(
+        lines.next().unwrap(),
+        "omega_rad_per_ps,energy_mev,transmission,kappa_integrand_w_per_k_per_rad_per_ps,weight_rad_per_ps"
+    );
+    let rows: Vec<Vec<f64>> = lines
+        .map(|r| r.split(',').map(|x| x.parse().unwrap()).collect())
+        .collect();
+    assert_eq!(rows.len() as u64, l["frequency_points"].as_u64().unwrap());
+    // The file holds κ_ph: Σ weight × integrand (rounding of the printed
+    // numbers only).
+    let sum: f64 = rows.iter().map(|r| r[3] * r[4]).sum();
+    assert!((sum / kph - 1.0).abs() < 1e-10, "{sum:e} against {kph:e}");
+    // A uniform chain: Ξ = 1 below the band top (common practice: the
+    // perfect chain transmits every travelling wave), ħω = ħ × ω.
+    let top = l["band_top_mev"].as_f64().unwrap();
+    for r in &rows {
+        assert!((r[2] - 1.0).abs() < 1e-9, "Ξ = {} at {} meV", r[2], r[1]);
+        assert!(r[1] < top);
+        assert!((r[1] / (r[0] * 0.658_211_956_9) - 1.0).abs() < 1e-9);
+    }
+    let svg = std::fs::read_to_string(out.join("phonon_transmission.svg")).unwrap();
+    assert!(svg.contains("Phonon transmission"), "figure title missing");
+
+    // Without a lattice, neither the files nor the summary object.
+    let bare = write(tmp.path(), "bare.toml", &barrier());
+    let out = tmp.path().join("b");
+    qheat(&["solve", bare.to_str().unwrap(), "-o", out.to_str().unwrap()]);
+    assert!(!out.join("phonon_spectrum.csv").exists());
+    assert!(summary(&out).get("lattice").is_none());
+}

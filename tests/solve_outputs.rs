@@ -157,6 +157,17 @@ const LINES: [(&str, &[&str]); 12] = [
         ],
     ),
     (
+        "lattice",
+        &[
+            "lattice.phonon_conductance_w_per_k",
+            "lattice.temperature_k",
+            "lattice.band_top_mev",
+            "lattice.frequency_points",
+        ],
+    ),
+    ("κ_ph", &[]),
+    ("spectrum in", &[]),
+    (
         "ledger",
         &[
             "ledger.charge_relative",

@@ -560,6 +560,34 @@ const BEST: [Key; 3] = [
     ),
 ];
 
+const LATTICE: [Key; 5] = [
+    (
+        "temperature_k",
+        "K",
+        "operating temperature of κph and of the integrand in phonon_spectrum.csv (mean lead temperature; the reference temperature for coefficients)",
+    ),
+    (
+        "phonon_conductance_w_per_k",
+        "W/K",
+        "two-terminal lattice thermal conductance κph of the case's [lattice] at temperature_k",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "the κph ZT uses: lattice (this one) or given (thermal.phonon_conductance_w_per_k overrides it)",
+    ),
+    (
+        "band_top_mev",
+        "meV",
+        "top ħω of the phonon band both phonon leads carry (Ξ = 0 above)",
+    ),
+    (
+        "frequency_points",
+        "1",
+        "frequency nodes of the κph quadrature",
+    ),
+];
+
 const GENERATOR: [Key; 21] = [
     ("settings.hot_k", "K", "temperature of the hot (left) lead"),
     (
@@ -709,6 +737,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "", &LEDGER);
     keys(&mut f, "", &SOLVE_TAIL);
     keys(&mut f, "grid.", &GRID);
+    keys(&mut f, "lattice.", &LATTICE);
     keys(&mut f, "", &RUN);
     f
 }
@@ -764,6 +793,7 @@ pub fn summary_docs() -> Vec<FileDoc> {
         )],
     );
     keys(&mut coefficients, "energy_grid.", &COMMON_GRID);
+    keys(&mut coefficients, "lattice.", &LATTICE);
     keys(&mut coefficients, "", &RUN);
     vec![
         doc(

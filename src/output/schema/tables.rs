@@ -206,6 +206,62 @@ pub fn convergence<'a>() -> Table<SolvePoint<'a>> {
     }
 }
 
+/// The phonon spectrum of a case's lattice at one temperature.
+pub struct PhononPoints<'a> {
+    /// Ξ on the quadrature nodes.
+    pub spectrum: &'a crate::lattice::PhononSpectrum,
+    /// Temperature of the κ_ph integrand (K).
+    pub temperature_k: f64,
+}
+
+/// phonon_spectrum.csv: one row per frequency node.
+pub fn phonon_spectrum<'a>() -> Table<PhononPoints<'a>> {
+    type P<'b> = PhononPoints<'b>;
+    Table {
+        file: "phonon_spectrum.csv",
+        written_by: "`qheat solve`, `qheat coefficients` (cases with a `[lattice]`)",
+        rows: "frequency node of the κph quadrature, ascending (nodes cluster at the lead subband edges)",
+        len: |p| p.spectrum.len(),
+        columns: vec![
+            col::<P<'_>>(
+                "omega_rad_per_ps",
+                "rad/ps",
+                "angular frequency ω",
+                |p, i| Cell::Num(p.spectrum.omega_rad_per_ps[i]),
+            ),
+            col("energy_mev", "meV", "phonon energy ħω", |p, i| {
+                Cell::Num(crate::case::phonon_energy_mev(
+                    p.spectrum.omega_rad_per_ps[i],
+                ))
+            }),
+            col(
+                "transmission",
+                "1",
+                "phonon transmission Ξ(ω) between the two phonon leads",
+                |p, i| Cell::Num(p.spectrum.transmission[i]),
+            ),
+            col(
+                "kappa_integrand_w_per_k_per_rad_per_ps",
+                "W/K per rad/ps",
+                "κph integrand Ξ(ω) ħω ∂n/∂T /2π at the operating temperature (summary.json `lattice.temperature_k`)",
+                |p, i| {
+                    let w = p.spectrum.omega_rad_per_ps[i];
+                    Cell::Num(
+                        p.spectrum.transmission[i]
+                            * crate::lattice::conductance_density(w, p.temperature_k),
+                    )
+                },
+            ),
+            col(
+                "weight_rad_per_ps",
+                "rad/ps",
+                "quadrature weight: κph = Σ weight × integrand",
+                |p, i| Cell::Num(p.spectrum.weight_rad_per_ps[i]),
+            ),
+        ],
+    }
+}
+
 /// generator.csv: one row per load voltage.
 pub fn generator() -> Table<GeneratorReport> {
     type G = GeneratorReport;
@@ -552,6 +608,7 @@ pub fn table_docs() -> Vec<FileDoc> {
         convergence().doc(),
         generator().doc(),
         cooler().doc(),
+        phonon_spectrum().doc(),
     ];
     docs.push(grid_doc(
         "sweep.csv",
