@@ -588,7 +588,7 @@ const LATTICE: [Key; 5] = [
     ),
 ];
 
-const GENERATOR: [Key; 21] = [
+const GENERATOR: [Key; 23] = [
     ("settings.hot_k", "K", "temperature of the hot (left) lead"),
     (
         "settings.cold_k",
@@ -652,6 +652,16 @@ const GENERATOR: [Key; 21] = [
         "linear-response efficiency at maximum power (η_C/2)ZT/(ZT+2)",
     ),
     (
+        "lattice_heat_leak_w",
+        "W",
+        "heat the lattice carries from the hot to the cold lead (J_ph from [lattice], κph ΔT when κph is given, 0 with neither); added to the heat drawn from the hot side",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the lattice's heat and the κph of ZT come from: lattice, given or none",
+    ),
+    (
         "curve[]",
         "-",
         "the curve, one object per row of generator.csv with its columns as keys",
@@ -660,7 +670,7 @@ const GENERATOR: [Key; 21] = [
     ("solves", "1", "operating points solved"),
 ];
 
-const COOLER: [Key; 18] = [
+const COOLER: [Key; 20] = [
     ("settings.hot_k", "K", "temperature of the hot lead"),
     ("settings.cold_k", "K", "temperature of the cold lead"),
     ("settings.points", "1", "bias voltages on the curve"),
@@ -703,6 +713,16 @@ const COOLER: [Key; 18] = [
         "ioffe_max_cop",
         "1",
         "largest COP of a device with this ZT (Ioffe), or null",
+    ),
+    (
+        "lattice_heat_leak_w",
+        "W",
+        "heat the lattice carries from the hot to the cold lead (J_ph from [lattice], κph ΔT when κph is given, 0 with neither); subtracted from the cooling power",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the lattice's heat (and the κph of ZT, when computed) come from: lattice, given or none",
     ),
     (
         "curve[]",

@@ -292,13 +292,13 @@ pub fn generator() -> Table<GeneratorReport> {
             col(
                 "heat_current_hot_w",
                 "W",
-                "heat current out of the hot lead",
+                "heat drawn from the hot side: the electrons' heat current out of the hot lead plus the lattice's heat leak (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
             ),
             col(
                 "efficiency",
                 "1",
-                "power / heat current out of the hot lead",
+                "power / heat drawn from the hot side",
                 |r, i| Cell::Num(r.curve[i].efficiency),
             ),
             col(
@@ -335,7 +335,7 @@ pub fn cooler() -> Table<CoolerReport> {
             col(
                 "cooling_power_w",
                 "W",
-                "heat current out of the cold lead into the device",
+                "heat current out of the cold lead into the device, less the lattice's heat leak into the cold lead (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].cooling_power_w),
             ),
             col(
@@ -347,7 +347,7 @@ pub fn cooler() -> Table<CoolerReport> {
             col(
                 "heat_current_hot_w",
                 "W",
-                "heat current out of the hot lead",
+                "heat drawn from the hot side: the electrons' heat current out of the hot lead plus the lattice's heat leak (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
             ),
             col(
