@@ -15,7 +15,10 @@ use std::path::Path;
 
 fn peltier(c: &mut Criterion) {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/peltier-barrier.toml");
-    let r = Case::load(&path).expect("demo loads").resolve().expect("resolves");
+    let r = Case::load(&path)
+        .expect("demo loads")
+        .resolve()
+        .expect("resolves");
     let lattice = r.lattice.clone().expect("the demo has a [lattice]");
     let mut g = c.benchmark_group("peltier-barrier solve");
     g.bench_function("electrons only", |b| {
@@ -24,13 +27,15 @@ fn peltier(c: &mut Criterion) {
     g.bench_function("electrons and lattice", |b| {
         b.iter(|| {
             let sol = solve(&r.problem, &r.scba, None, &mut Silent).expect("solves");
-            let s = PhononSpectrum::compute(&lattice, &SpectrumParams::default()).expect("spectrum");
+            let s =
+                PhononSpectrum::compute(&lattice, &SpectrumParams::default()).expect("spectrum");
             black_box((sol, s.conductance(300.0)))
         })
     });
     g.bench_function("lattice only", |b| {
         b.iter(|| {
-            let s = PhononSpectrum::compute(&lattice, &SpectrumParams::default()).expect("spectrum");
+            let s =
+                PhononSpectrum::compute(&lattice, &SpectrumParams::default()).expect("spectrum");
             black_box(s.conductance(300.0))
         })
     });
