@@ -4,6 +4,10 @@
 //! `[lattice]` computed too (a fresh spectrum every iteration, as the
 //! first solve of a case pays it) and κ_ph taken at 300 K.
 //!
+//! Measured (2-core shared host, rustc 1.95.0, release, medians of 10
+//! samples): electrons only 11.6 ms, electrons and lattice 13.1 ms (+13 %),
+//! the lattice alone 1.7 ms (420 frequency points).
+//!
 //! Run: `cargo bench --bench phonon_solve -- --sample-size 10 --warm-up-time 1 --measurement-time 10`
 
 use criterion::{Criterion, criterion_group, criterion_main};
