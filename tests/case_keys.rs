@@ -7,8 +7,8 @@ use qheat::case::{Case, CaseErrorKind, CaseKey, KEYS, ValueType};
 use qheat::leads::Side;
 use std::path::Path;
 
-/// A small valid chain with one region and one phonon, so that every
-/// array key has an entry 0.
+/// A small valid chain with one region, one phonon and one lattice
+/// region, so that every array key has an entry 0.
 const BASE: &str = r#"
 name = "keys"
 
@@ -37,6 +37,15 @@ coupling_ev2 = 1e-3
 
 [grid]
 step_ev = 0.002
+
+[lattice]
+mass_u = 28.0
+spring_n_per_m = 30.0
+
+[[lattice.region]]
+from_nm = 4.0
+to_nm = 6.0
+mass_u = 72.6
 "#;
 
 fn base() -> Case {

@@ -106,8 +106,10 @@ fn json_solve_prints_one_json_document_and_report_lists_every_figure() {
     })
     .collect();
     assert!(order.windows(2).all(|w| w[0] < w[1]), "{order:?}");
+    // The demo has a [lattice]: its phonon transmission is the fifth figure.
+    assert!(html.contains("<figcaption>phonon_transmission.svg</figcaption>"));
     let blocks = svg_blocks(&html);
-    assert_eq!(blocks.len(), 4);
+    assert_eq!(blocks.len(), 5);
     for b in &blocks {
         let doc = roxmltree::Document::parse(b).unwrap();
         let root = doc.root_element();

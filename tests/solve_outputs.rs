@@ -97,7 +97,7 @@ fn at<'a>(v: &'a Value, path: &str) -> &'a Value {
 /// numbers, in the order printed. A line that is not listed, or a line
 /// with more or fewer numbers, fails the test: a new terminal number must
 /// get its key here and in summary.json.
-const LINES: [(&str, &[&str]); 12] = [
+const LINES: [(&str, &[&str]); 15] = [
     (
         "operating point",
         &[
@@ -157,6 +157,17 @@ const LINES: [(&str, &[&str]); 12] = [
         ],
     ),
     (
+        "lattice",
+        &[
+            "lattice.phonon_conductance_w_per_k",
+            "lattice.temperature_k",
+            "lattice.band_top_mev",
+            "lattice.frequency_points",
+        ],
+    ),
+    ("κ_ph", &[]),
+    ("spectrum in", &[]),
+    (
         "ledger",
         &[
             "ledger.charge_relative",
@@ -203,8 +214,9 @@ fn every_number_the_terminal_prints_is_in_summary_json() {
             checked += 1;
         }
     }
-    // The demo has scattering, so all twelve lines are printed.
-    assert_eq!(checked, 26, "{text}");
+    // The demo has scattering and a lattice, so all fifteen lines are
+    // printed (the lattice line with four numbers).
+    assert_eq!(checked, 30, "{text}");
 }
 
 /// A short barrier with a phonon, small enough to solve in well under a

@@ -26,6 +26,7 @@ impl Resolved {
         self.describe_device(&mut s);
         self.describe_contacts(&mut s);
         self.describe_phonons(&mut s);
+        self.describe_lattice(&mut s);
         self.describe_scattering(&mut s);
         self.describe_settings(&mut s);
         for n in &self.notes {
@@ -143,6 +144,54 @@ impl Resolved {
         );
     }
 
+    /// The lattice: masses, springs, leads and the top of the phonon band
+    /// that both leads carry.
+    fn describe_lattice(&self, s: &mut String) {
+        let Some(l) = &self.lattice else {
+            let _ = writeln!(s, "lattice     none");
+            return;
+        };
+        let range = |v: &mut dyn Iterator<Item = f64>| {
+            v.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), x| {
+                (lo.min(x), hi.max(x))
+            })
+        };
+        let (mlo, mhi) = range(&mut l.masses_u().iter().copied());
+        let (klo, khi) = range(&mut l.force_coupling().iter().map(|k| -k[(0, 0)]));
+        let springs = if l.cells() > 1 {
+            format!("springs along x {klo} to {khi} N/m")
+        } else {
+            "no internal bond".to_string()
+        };
+        let _ = writeln!(
+            s,
+            "lattice     {} site(s) per cell, masses {mlo} to {mhi} u, {springs}",
+            l.sites_per_cell()
+        );
+        use crate::lattice::PhononSide;
+        for (name, side) in [("left", PhononSide::Left), ("right", PhononSide::Right)] {
+            let lead = l.lead(side);
+            let _ = writeln!(
+                s,
+                "            {name} phonon lead: mass {} u, spring {} N/m, joined by {} N/m",
+                lead.masses_u[0],
+                -lead.coupling[(0, 0)],
+                -lead.contact[(0, 0)]
+            );
+        }
+        let top = l.band_top_rad_per_ps();
+        let _ = writeln!(
+            s,
+            "            phonon band top ħω = {:.3} meV (ω = {top:.3} rad/ps); κ_ph {}",
+            super::phonons::phonon_energy_mev(top),
+            if self.phonon_conductance_given {
+                "given in [thermal] overrides it"
+            } else {
+                "for ZT computed from it"
+            }
+        );
+    }
+
     /// Dephasing and the kind of scattering. The
     /// Hermitian part of the self-energy is mentioned only when something
     /// scatters: a coherent case has no self-energy to split.
@@ -202,9 +251,15 @@ impl Resolved {
         let _ = writeln!(s, "spin        g_s = {}", p.spin_degeneracy);
         let _ = writeln!(
             s,
-            "response    split {}; κ_ph = {} W/K",
+            "response    split {}; {}",
             choice_name(self.response_split),
-            self.phonon_conductance_w_per_k
+            match self.phonon_conductance_source() {
+                super::PhononConductanceSource::Given =>
+                    format!("κ_ph = {} W/K (given)", self.phonon_conductance_w_per_k),
+                super::PhononConductanceSource::Lattice =>
+                    "κ_ph from the lattice at the operating temperature".to_string(),
+                super::PhononConductanceSource::None => "κ_ph = 0 (none given)".to_string(),
+            }
         );
         let mem = self.memory_estimate_bytes() as f64;
         let _ = writeln!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));

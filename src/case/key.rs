@@ -4,7 +4,7 @@
 
 use super::error::close_matches;
 use super::keys::{KEYS, KeyInfo, ValueType};
-use super::raw::{Opt, RawCase, RawLead, RawPhonon, RawRegion};
+use super::raw::{Opt, RawCase, RawLatticeLead, RawLatticeRegion, RawLead, RawPhonon, RawRegion};
 use crate::leads::Side;
 use std::fmt;
 use std::str::FromStr;
@@ -95,6 +95,24 @@ pub enum CaseKey {
     SolverDecimationTolerance,
     /// `thermal.phonon_conductance_w_per_k`
     ThermalPhononConductance,
+    /// `lattice.mass_u`
+    LatticeMass,
+    /// `lattice.spring_n_per_m`
+    LatticeSpring,
+    /// `lattice.transverse_spring_n_per_m`
+    LatticeTransverseSpring,
+    /// `lattice.region.#.from_nm`
+    LatticeRegionFrom(usize),
+    /// `lattice.region.#.to_nm`
+    LatticeRegionTo(usize),
+    /// `lattice.region.#.mass_u`
+    LatticeRegionMass(usize),
+    /// `lattice.region.#.spring_n_per_m`
+    LatticeRegionSpring(usize),
+    /// `lattice.<side>.mass_u`
+    LatticeLeadMass(Side),
+    /// `lattice.<side>.spring_n_per_m`
+    LatticeLeadSpring(Side),
 }
 
 use CaseKey as K;
@@ -147,6 +165,17 @@ const TEMPLATES: &[CaseKey] = &[
     K::SolverDecimationEta,
     K::SolverDecimationTolerance,
     K::ThermalPhononConductance,
+    K::LatticeMass,
+    K::LatticeSpring,
+    K::LatticeTransverseSpring,
+    K::LatticeRegionFrom(0),
+    K::LatticeRegionTo(0),
+    K::LatticeRegionMass(0),
+    K::LatticeRegionSpring(0),
+    K::LatticeLeadMass(Side::Left),
+    K::LatticeLeadSpring(Side::Left),
+    K::LatticeLeadMass(Side::Right),
+    K::LatticeLeadSpring(Side::Right),
 ];
 
 fn lead_pattern(side: Side, left: &'static str, right: &'static str) -> &'static str {
@@ -201,6 +230,19 @@ impl CaseKey {
             K::SolverDecimationEta => "solver.decimation_eta_ev",
             K::SolverDecimationTolerance => "solver.decimation_tolerance_ev",
             K::ThermalPhononConductance => "thermal.phonon_conductance_w_per_k",
+            K::LatticeMass => "lattice.mass_u",
+            K::LatticeSpring => "lattice.spring_n_per_m",
+            K::LatticeTransverseSpring => "lattice.transverse_spring_n_per_m",
+            K::LatticeRegionFrom(_) => "lattice.region.#.from_nm",
+            K::LatticeRegionTo(_) => "lattice.region.#.to_nm",
+            K::LatticeRegionMass(_) => "lattice.region.#.mass_u",
+            K::LatticeRegionSpring(_) => "lattice.region.#.spring_n_per_m",
+            K::LatticeLeadMass(s) => lead_pattern(s, "lattice.left.mass_u", "lattice.right.mass_u"),
+            K::LatticeLeadSpring(s) => lead_pattern(
+                s,
+                "lattice.left.spring_n_per_m",
+                "lattice.right.spring_n_per_m",
+            ),
             K::LeadFermiLevel(s) => {
                 lead_pattern(s, "leads.left.fermi_level_ev", "leads.right.fermi_level_ev")
             }
@@ -219,7 +261,8 @@ impl CaseKey {
         }
     }
 
-    /// The array index of a `[[device.region]]` or `[[phonon]]` key.
+    /// The array index of a `[[device.region]]`, `[[phonon]]` or
+    /// `[[lattice.region]]` key.
     pub fn index(self) -> Option<usize> {
         match self {
             K::RegionFrom(i)
@@ -231,7 +274,11 @@ impl CaseKey {
             | K::PhononCoupling(i)
             | K::PhononFrom(i)
             | K::PhononTo(i)
-            | K::PhononBathTemperature(i) => Some(i),
+            | K::PhononBathTemperature(i)
+            | K::LatticeRegionFrom(i)
+            | K::LatticeRegionTo(i)
+            | K::LatticeRegionMass(i)
+            | K::LatticeRegionSpring(i) => Some(i),
             _ => None,
         }
     }
@@ -249,6 +296,10 @@ impl CaseKey {
             K::PhononFrom(_) => K::PhononFrom(i),
             K::PhononTo(_) => K::PhononTo(i),
             K::PhononBathTemperature(_) => K::PhononBathTemperature(i),
+            K::LatticeRegionFrom(_) => K::LatticeRegionFrom(i),
+            K::LatticeRegionTo(_) => K::LatticeRegionTo(i),
+            K::LatticeRegionMass(_) => K::LatticeRegionMass(i),
+            K::LatticeRegionSpring(_) => K::LatticeRegionSpring(i),
             other => other,
         }
     }
@@ -423,6 +474,18 @@ fn phonon(raw: &mut RawCase, i: usize) -> Result<&mut RawPhonon, String> {
     entry(&mut raw.phonon, "phonon", i)
 }
 
+fn lattice_region(raw: &mut RawCase, i: usize) -> Result<&mut RawLatticeRegion, String> {
+    entry(&mut table(&mut raw.lattice).region, "lattice.region", i)
+}
+
+fn lattice_lead(raw: &mut RawCase, side: Side) -> &mut RawLatticeLead {
+    let lattice = table(&mut raw.lattice);
+    match side {
+        Side::Left => table(&mut lattice.left),
+        Side::Right => table(&mut lattice.right),
+    }
+}
+
 impl CaseKey {
     /// Put `value` at this key of the case as written. Integer keys take
     /// the value as a whole number (checked by the caller). Missing tables
@@ -456,12 +519,17 @@ impl CaseKey {
             K::PhononFrom(n) => phonon(raw, n)?.from_nm = f,
             K::PhononTo(n) => phonon(raw, n)?.to_nm = f,
             K::PhononBathTemperature(n) => phonon(raw, n)?.bath_temperature_k = f,
+            K::LatticeRegionFrom(n) => lattice_region(raw, n)?.from_nm = f,
+            K::LatticeRegionTo(n) => lattice_region(raw, n)?.to_nm = f,
+            K::LatticeRegionMass(n) => lattice_region(raw, n)?.mass_u = f,
+            K::LatticeRegionSpring(n) => lattice_region(raw, n)?.spring_n_per_m = f,
             _ => self.set_setting(raw, f, i),
         }
         Ok(())
     }
 
-    /// The keys of `[dephasing]`, `[grid]`, `[solver]` and `[thermal]`.
+    /// The keys of `[dephasing]`, `[grid]`, `[solver]`, `[thermal]` and
+    /// `[lattice]` (its regions are set in `set`).
     fn set_setting(self, raw: &mut RawCase, f: Opt<f64>, i: Opt<i64>) {
         match self {
             K::DephasingStrength => table(&mut raw.dephasing).strength_ev2 = f,
@@ -479,6 +547,11 @@ impl CaseKey {
             K::SolverDecimationEta => table(&mut raw.solver).decimation_eta_ev = f,
             K::SolverDecimationTolerance => table(&mut raw.solver).decimation_tolerance_ev = f,
             K::ThermalPhononConductance => table(&mut raw.thermal).phonon_conductance_w_per_k = f,
+            K::LatticeMass => table(&mut raw.lattice).mass_u = f,
+            K::LatticeSpring => table(&mut raw.lattice).spring_n_per_m = f,
+            K::LatticeTransverseSpring => table(&mut raw.lattice).transverse_spring_n_per_m = f,
+            K::LatticeLeadMass(s) => lattice_lead(raw, s).mass_u = f,
+            K::LatticeLeadSpring(s) => lattice_lead(raw, s).spring_n_per_m = f,
             // The keys of the device, leads, bias and phonons are set in
             // `set`.
             _ => {}

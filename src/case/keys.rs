@@ -540,8 +540,8 @@ pub static KEYS: &[KeyInfo] = &[
         "thermal.phonon_conductance_w_per_k",
         Float,
         "W/K",
-        Text("0 (noted)"),
-        "lattice thermal conductance κ_ph for ZT",
+        Text("computed from `[lattice]` when given, else 0 (noted)"),
+        "lattice thermal conductance κ_ph for ZT; a given value overrides the one computed from `[lattice]`",
     ),
     key(
         "profile.electron_temperature",
@@ -549,6 +549,83 @@ pub static KEYS: &[KeyInfo] = &[
         "",
         Word(profile_default),
         "`\"fit\"` also fits a local electron temperature per cell from the energy density",
+    ),
+    key(
+        "lattice.mass_u",
+        Float,
+        "u",
+        Required,
+        "mass of every lattice site (atomic mass units); required when [lattice] is given",
+    ),
+    key(
+        "lattice.spring_n_per_m",
+        Float,
+        "N/m",
+        Required,
+        "spring of every bond along x; required when [lattice] is given",
+    ),
+    key(
+        "lattice.transverse_spring_n_per_m",
+        Float,
+        "N/m",
+        Text("`lattice.spring_n_per_m`"),
+        "spring between neighbouring sites across a strip (strip only)",
+    ),
+    key(
+        "lattice.region.#.from_nm",
+        Float,
+        "nm",
+        Required,
+        "lattice region start; selects cells with from ≤ x < to, like [[device.region]]",
+    ),
+    key(
+        "lattice.region.#.to_nm",
+        Float,
+        "nm",
+        Required,
+        "lattice region end (exclusive)",
+    ),
+    key(
+        "lattice.region.#.mass_u",
+        Float,
+        "u",
+        Text("uniform value"),
+        "mass of the region's sites; replaces the uniform value (a later region wins)",
+    ),
+    key(
+        "lattice.region.#.spring_n_per_m",
+        Float,
+        "N/m",
+        Text("uniform value"),
+        "spring of the bonds (i, i+1) of the region's sites i; replaces the uniform value (a later region wins)",
+    ),
+    key(
+        "lattice.left.mass_u",
+        Float,
+        "u",
+        Text("mass of the first site"),
+        "mass of the left phonon lead's sites",
+    ),
+    key(
+        "lattice.left.spring_n_per_m",
+        Float,
+        "N/m",
+        Text("spring of the first site"),
+        "spring of the left phonon lead, and of the bond joining it to the device",
+    ),
+    key(
+        "lattice.right.mass_u",
+        Float,
+        "u",
+        Text("mass of the last site"),
+        "mass of the right phonon lead's sites",
+    ),
+    key(
+        "lattice.right.spring_n_per_m",
+        Float,
+        "N/m",
+        Text("spring of the last site"),
+        "spring of the right phonon lead, and of the bond joining it to the device",
     ),
 ];
 
@@ -572,6 +649,13 @@ pub(crate) const SECTIONS: &[(&str, &str)] = &[
     ("response", "a table of response settings"),
     ("thermal", "a table of thermal settings"),
     ("profile", "a table of profile settings"),
+    ("lattice", "a table of lattice settings"),
+    (
+        "lattice.region.#",
+        "a table with from_nm, to_nm and mass_u and/or spring_n_per_m",
+    ),
+    ("lattice.left", "a table of phonon lead settings"),
+    ("lattice.right", "a table of phonon lead settings"),
 ];
 
 /// What sits at a place of the file.
@@ -630,7 +714,7 @@ pub fn keys_markdown() -> String {
          Generated from the key table in `src/case/keys.rs`; do not edit by hand. \
          Regenerate with `QHEAT_REGEN=1 cargo test --test case_keys_doc`.\n\n\
          `#` stands for the index of an entry of a list of tables \
-         (`[[device.region]]`, `[[phonon]]`), counted from 0. Numeric keys \
+         (`[[device.region]]`, `[[phonon]]`, `[[lattice.region]]`), counted from 0. Numeric keys \
          (number or integer) are the ones `qheat sweep --vary` and \
          `qheat screen --vary` accept.\n\n\
          | key | type | unit | default | meaning |\n|---|---|---|---|---|\n",
@@ -651,8 +735,9 @@ pub fn keys_markdown() -> String {
 #[cfg(test)]
 mod tests {
     use super::super::raw::{
-        RawBias, RawCase, RawDephasing, RawDevice, RawGrid, RawLead, RawLeads, RawPhonon,
-        RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
+        RawBias, RawCase, RawDephasing, RawDevice, RawGrid, RawLattice, RawLatticeLead,
+        RawLatticeRegion, RawLead, RawLeads, RawPhonon, RawProfile, RawRegion, RawResponse,
+        RawSolver, RawThermal,
     };
     use super::*;
     use serde::Deserialize;
@@ -721,6 +806,10 @@ mod tests {
             ("response", fields_of::<RawResponse>()),
             ("thermal", fields_of::<RawThermal>()),
             ("profile", fields_of::<RawProfile>()),
+            ("lattice", fields_of::<RawLattice>()),
+            ("lattice.region.#", fields_of::<RawLatticeRegion>()),
+            ("lattice.left", fields_of::<RawLatticeLead>()),
+            ("lattice.right", fields_of::<RawLatticeLead>()),
         ];
         for (pattern, fields) in &structs {
             assert!(!fields.is_empty(), "no fields recorded for `{pattern}`");

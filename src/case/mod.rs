@@ -50,6 +50,7 @@ mod describe;
 mod error;
 mod key;
 mod keys;
+mod phonons;
 mod raw;
 mod resolve;
 mod sections;
@@ -58,6 +59,7 @@ mod spec;
 pub use error::{CaseError, CaseErrorKind, close_matches, edit_distance, line_column};
 pub use key::{CaseKey, ParseCaseKeyError};
 pub use keys::{DefaultValue, KEYS, KeyInfo, ValueType, keys_markdown};
+pub use phonons::{PhononConductanceSource, SpectrumCache, phonon_energy_mev};
 pub use resolve::Resolved;
 pub use sections::settings::ResponseSplit;
 
@@ -150,6 +152,12 @@ impl Case {
             .and_then(|d| d.get_ref().region.as_ref())
             .map_or(0, Vec::len);
         let phonons = self.input.phonon.as_ref().map_or(0, Vec::len);
+        let lattice_regions = self
+            .input
+            .lattice
+            .as_ref()
+            .and_then(|l| l.get_ref().region.as_ref())
+            .map_or(0, Vec::len);
         let mut out = Vec::new();
         for t in CaseKey::templates() {
             let count = match t {
@@ -158,6 +166,10 @@ impl Case {
                 | CaseKey::RegionOffset(_)
                 | CaseKey::RegionStart(_)
                 | CaseKey::RegionEnd(_) => regions,
+                CaseKey::LatticeRegionFrom(_)
+                | CaseKey::LatticeRegionTo(_)
+                | CaseKey::LatticeRegionMass(_)
+                | CaseKey::LatticeRegionSpring(_) => lattice_regions,
                 _ if t.index().is_some() => phonons,
                 _ => {
                     out.push(*t);
@@ -221,6 +233,13 @@ impl Case {
                 e.message = format!("{} (after setting `{key}` = {value})", e.message);
                 e
             })?;
+        let mut resolved = resolved;
+        if let (Some(old), Some(new)) = (&self.resolved.lattice, &resolved.lattice)
+            && phonons::same_lattice(old, new)
+        {
+            // The spectrum does not depend on the operating point: share it.
+            resolved.phonon_spectrum_cache = self.resolved.phonon_spectrum_cache.clone();
+        }
         let mut edits = self.edits.clone();
         edits.push((key, value));
         Ok(Case {

@@ -26,6 +26,7 @@ pub(crate) struct RawCase {
     pub response: Opt<RawResponse>,
     pub thermal: Opt<RawThermal>,
     pub profile: Opt<RawProfile>,
+    pub lattice: Opt<RawLattice>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -149,6 +150,36 @@ pub(crate) struct RawProfile {
     pub electron_temperature: Opt<String>,
 }
 
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(deny_unknown_fields, expecting = "a table of lattice settings")]
+pub(crate) struct RawLattice {
+    pub mass_u: Opt<f64>,
+    pub spring_n_per_m: Opt<f64>,
+    pub transverse_spring_n_per_m: Opt<f64>,
+    pub region: Option<Vec<Spanned<RawLatticeRegion>>>,
+    pub left: Opt<RawLatticeLead>,
+    pub right: Opt<RawLatticeLead>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with from_nm, to_nm and mass_u and/or spring_n_per_m"
+)]
+pub(crate) struct RawLatticeRegion {
+    pub from_nm: Opt<f64>,
+    pub to_nm: Opt<f64>,
+    pub mass_u: Opt<f64>,
+    pub spring_n_per_m: Opt<f64>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(deny_unknown_fields, expecting = "a table of phonon lead settings")]
+pub(crate) struct RawLatticeLead {
+    pub mass_u: Opt<f64>,
+    pub spring_n_per_m: Opt<f64>,
+}
+
 /// Parse the text: TOML syntax first (with positions), then the schema.
 pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, CaseError> {
     let index = match toml::de::DeTable::parse(text) {
@@ -205,11 +236,14 @@ const TABLE_KEYS: &[&str] = &[
     "response",
     "thermal",
     "profile",
+    "lattice",
+    "lattice.left",
+    "lattice.right",
 ];
 
 /// Keys that hold a list of tables, each entry written under its own
 /// `[[key]]` header.
-const ARRAY_KEYS: &[&str] = &["phonon", "device.region"];
+const ARRAY_KEYS: &[&str] = &["phonon", "device.region", "lattice.region"];
 
 /// The value at a dotted path and the span of its key.
 fn lookup<'t, 'a>(

@@ -38,9 +38,18 @@ pub struct Resolved {
     pub voltage_v: f64,
     /// Zero-bias Fermi levels (µL0, µR0) from the file (eV).
     pub zero_bias_fermi_levels_ev: (f64, f64),
-    /// Phonon (lattice) thermal conductance κ_ph for ZT (W/K); 0 when the
-    /// file does not give one (a note says so).
+    /// Phonon (lattice) thermal conductance κ_ph given in the file (W/K);
+    /// 0 when the file does not give one. With a `[lattice]` and no given
+    /// value, ZT uses [`Resolved::phonon_conductance_at`] instead.
     pub phonon_conductance_w_per_k: f64,
+    /// True when the file gives `thermal.phonon_conductance_w_per_k` (it
+    /// then wins over a lattice).
+    pub phonon_conductance_given: bool,
+    /// The device's lattice (`[lattice]`), when the case describes one.
+    pub lattice: Option<crate::lattice::Lattice>,
+    /// Its phonon spectrum, computed on first use
+    /// ([`Resolved::phonon_spectrum`]).
+    pub phonon_spectrum_cache: super::phonons::SpectrumCache,
     /// How linear response splits the perturbation between the contacts.
     pub response_split: ResponseSplit,
     /// Where the bias drops.
@@ -740,6 +749,24 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     assemble(spec, ctx, built, contacts, scattering, grid, remarks)
 }
 
+/// The lattice of `[lattice]`, built on the device's cells.
+fn build_lattice(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+) -> Result<Option<crate::lattice::Lattice>, CaseError> {
+    let Some(l) = &spec.lattice else {
+        return Ok(None);
+    };
+    l.build(&spec.device).map(Some).map_err(|e| {
+        ctx.invalid(
+            l.span.clone(),
+            "lattice",
+            "masses and springs that form a lattice",
+            format!("{e}"),
+        )
+    })
+}
+
 /// The resolved case from its parts, with the last checks and notes.
 fn assemble(
     spec: &CaseSpec,
@@ -750,11 +777,20 @@ fn assemble(
     grid: EnergyGrid,
     mut remarks: Remarks,
 ) -> Result<Resolved, CaseError> {
-    let phonon_conductance = match spec.thermal.phonon_conductance_w_per_k {
-        Some(k) => k,
-        None => {
+    let lattice = build_lattice(spec, ctx)?;
+    let phonon_conductance = match (spec.thermal.phonon_conductance_w_per_k, &lattice) {
+        (Some(k), Some(_)) => {
+            remarks.warnings.push(format!(
+                "thermal.phonon_conductance_w_per_k = {k:e} W/K overrides the κ_ph the [lattice] \
+                 section would give: ZT uses the given value (leave it out to use the lattice)"
+            ));
+            k
+        }
+        (Some(k), None) => k,
+        (None, Some(_)) => 0.0,
+        (None, None) => {
             remarks.notes.push(
-                "thermal.phonon_conductance_w_per_k not given: ZT uses κ_ph = 0 (an upper bound)"
+                "neither [lattice] nor thermal.phonon_conductance_w_per_k given: ZT uses κ_ph = 0 (an upper bound)"
                     .into(),
             );
             0.0
@@ -791,6 +827,9 @@ fn assemble(
             spec.leads.right.fermi_level_ev,
         ),
         phonon_conductance_w_per_k: phonon_conductance,
+        phonon_conductance_given: spec.thermal.phonon_conductance_w_per_k.is_some(),
+        lattice,
+        phonon_spectrum_cache: Default::default(),
         fit_electron_temperature: spec.profile.electron_temperature == ProfileMode::Fit,
         allow_coarse_phonon_snap: spec.grid.allow_coarse_snap,
         response_split: spec.response.split,

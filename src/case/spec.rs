@@ -9,6 +9,7 @@ use super::error::{CaseError, ErrorContext};
 use super::raw::RawCase;
 use super::sections::bias::BiasSpec;
 use super::sections::device::DeviceSpec;
+use super::sections::lattice::LatticeSpec;
 use super::sections::leads::LeadsSpec;
 use super::sections::regions::RegionsSpec;
 use super::sections::scattering::{DephasingSpec, PhononSpec};
@@ -33,6 +34,7 @@ pub(crate) struct CaseSpec {
     pub response: ResponseSpec,
     pub thermal: ThermalSpec,
     pub profile: ProfileSpec,
+    pub lattice: Option<LatticeSpec>,
     pub warnings: Vec<String>,
 }
 
@@ -64,6 +66,7 @@ pub(crate) fn validate(
     let dephasing = DephasingSpec::from_raw(raw, &ck, length_nm)?;
     let grid = GridSpec::from_raw(raw, &ck)?;
     let solver = SolverSpec::from_raw(raw, &ck, &mut warnings)?;
+    let lattice = LatticeSpec::from_raw(raw, &ck, &device, &mut warnings)?;
     Ok(CaseSpec {
         name,
         spin_degeneracy,
@@ -78,6 +81,7 @@ pub(crate) fn validate(
         response: ResponseSpec::from_raw(raw, &ck)?,
         thermal: ThermalSpec::from_raw(raw, &ck)?,
         profile: ProfileSpec::from_raw(raw, &ck)?,
+        lattice,
         warnings,
     })
 }

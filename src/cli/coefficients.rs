@@ -4,6 +4,7 @@ use super::format::si;
 use super::progress::enabled;
 use super::solve::load;
 use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::header;
 use qheat::output::schema::summary::{CoefficientsSummary, to_text};
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
@@ -60,9 +61,10 @@ pub fn print_coefficients(c: &Coefficients) {
         si(c.power_factor_w_per_k2, "W/K²", 4)
     );
     println!(
-        "figure of merit   ZT = {:.4}  (κ_ph = {})",
+        "figure of merit   ZT = {:.4}  (κ_ph = {}; {})",
         c.zt,
-        si(c.phonon_conductance_w_per_k, "W/K", 3)
+        si(c.phonon_conductance_w_per_k, "W/K", 3),
+        c.phonon_conductance_source.describe()
     );
     println!("Kelvin/Onsager    residual {:.1e}", c.kelvin_residual);
 }
@@ -82,12 +84,15 @@ pub fn coefficients(
     let options = folder("coefficients", other_files);
     check_folder(&out_dir, &options)?;
     let (c, detail, grid) = case_coefficients(&case, common.quiet)?;
+    let phonons = super::lattice::spectrum(&resolved)?;
+    let lattice = phonons.map(|s| lattice_summary(&resolved, s, c.temperature_k));
     let summary = CoefficientsSummary {
         header: header("coefficients", &case.name, &path.display().to_string()),
         threads: common.threads,
         coefficients: c.clone(),
         response: detail,
         energy_grid: grid.clone(),
+        lattice: lattice.clone(),
         warnings: resolved.warnings.clone(),
         notes: resolved.notes.clone(),
         resolved_case: case.to_toml_string(),
@@ -95,12 +100,18 @@ pub fn coefficients(
     let text = to_text(&summary);
     let stage = Staging::with_options(&out_dir, &options)?;
     stage.write("summary.json", text.as_bytes())?;
+    if let Some(s) = phonons {
+        write_phonon_files(&stage, s, c.temperature_k)?;
+    }
     stage.commit()?;
     if common.json {
         println!("{text}");
     } else if !common.quiet {
         print_coefficients(&c);
         println!("energy grid       {}", grid_line(&grid));
+        if let Some(l) = &lattice {
+            super::lattice::print_lattice(l);
+        }
         println!("results           {}", out_dir.display());
     }
     Ok(())

@@ -180,6 +180,11 @@ pub fn generator(
             "bounds            Carnot η_C = {:.6}, Curzon-Ahlborn η_CA = {:.6}",
             r.carnot_efficiency, r.curzon_ahlborn_efficiency
         );
+        print_leak(
+            r.lattice_heat_leak_w,
+            r.phonon_conductance_source,
+            "added to the heat drawn from the hot side",
+        );
         println!("energy grid       curve: {}", r.energy_grid.describe());
         println!(
             "                  linear response: {}",
@@ -260,6 +265,11 @@ pub fn cooler(
                 _ => String::new(),
             }
         );
+        print_leak(
+            r.lattice_heat_leak_w,
+            r.phonon_conductance_source,
+            "subtracted from the cooling power",
+        );
         println!("energy grid       curve: {}", r.energy_grid.describe());
         if let Some(g) = &r.coefficient_grid {
             println!("                  linear response: {}", g.describe());
@@ -267,4 +277,17 @@ pub fn cooler(
         println!("results           {}", out_dir.display());
     }
     flag(r.converged, &out_dir)
+}
+
+/// The lattice's heat leak line of a generator or cooler.
+fn print_leak(leak_w: f64, source: qheat::case::PhononConductanceSource, what: &str) {
+    use qheat::case::PhononConductanceSource as S;
+    match source {
+        S::None => println!("lattice heat      none ({})", source.describe()),
+        _ => println!(
+            "lattice heat      {} from hot to cold, {what} ({})",
+            super::format::si(leak_w, "W", 4),
+            source.name()
+        ),
+    }
 }

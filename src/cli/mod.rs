@@ -4,6 +4,7 @@
 mod coefficients;
 mod curves;
 mod format;
+mod lattice;
 mod progress;
 mod report;
 mod screen;

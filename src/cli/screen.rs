@@ -102,7 +102,14 @@ pub fn screen(
     }
     let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
     let c = table.column(rank.column()).expect("ranked column exists");
+    let kph_source = match rank {
+        Rank::Cooling => None,
+        _ => Some(qheat::sweep::screen::phonon_conductance_source(
+            &case, &grid.axes,
+        )?),
+    };
     summary.ranking = Some(Ranking {
+        phonon_conductance_source: kph_source,
         rank_by: task,
         ranked_column: rank.column().into(),
         best: order
@@ -151,6 +158,9 @@ pub fn screen(
                 shown,
                 vals.join(", ")
             );
+        }
+        if let Some(src) = kph_source {
+            println!("κ_ph              {}", src.describe());
         }
         println!(
             "results           {}",

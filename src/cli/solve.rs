@@ -5,6 +5,7 @@ use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
 use qheat::observables::{Observables, ObserveOptions, observe_with};
+use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::{RunInfo, header, read_self_energy, solve_summary, write_solve_files};
 use qheat::output::schema::summary::{
     CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SolveResults,
@@ -107,6 +108,9 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     }
     print_drops(r);
     print_fermi_level_flags(&summary.local_fermi_level);
+    if let Some(l) = &summary.lattice {
+        super::lattice::print_lattice(l);
+    }
     let l = &o.ledger;
     println!(
         "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
@@ -237,9 +241,16 @@ pub fn solve(
             electron_temperature: resolved.fit_electron_temperature,
         },
     );
-    let summary = solve_summary(&sol, &o, &info);
+    let mut summary = solve_summary(&sol, &o, &info);
+    // The lattice at the mean lead temperature.
+    let t = 0.5 * (resolved.problem.left.temperature_k + resolved.problem.right.temperature_k);
+    let phonons = super::lattice::spectrum(&resolved)?;
+    summary.lattice = phonons.map(|s| lattice_summary(&resolved, s, t));
     let stage = Staging::with_options(&out_dir, &folder("solve", other_files))?;
     write_solve_files(&stage, &sol, &o, &summary)?;
+    if let Some(s) = phonons {
+        write_phonon_files(&stage, s, t)?;
+    }
     qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
     stage.commit()?;
     if common.json {

@@ -188,6 +188,7 @@ fn known_name(key: &str) -> Option<&'static str> {
         "zt" => "figure of merit ZT",
         "kelvin_residual" => "Kelvin (Onsager) residual",
         "phonon_conductance_w_per_k" => "phonon thermal conductance κph",
+        "phonon_conductance_source" => "source of κph (lattice, given or none)",
         "fermi_level_left_ev" => "left lead Fermi level µ₁",
         "fermi_level_right_ev" => "right lead Fermi level µ₂",
         "temperature_left_k" => "left lead temperature",

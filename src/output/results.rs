@@ -193,6 +193,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         ledger: ledger_json(&o.ledger),
         local_fermi_level: fermi_level_info(o),
         scba: to_json(&sol.report),
+        lattice: None,
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),

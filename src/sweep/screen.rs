@@ -112,13 +112,14 @@ impl serde::Serialize for ScreenTask {
     }
 }
 
-const COEFFICIENT_COLUMNS: [&str; 9] = [
+const COEFFICIENT_COLUMNS: [&str; 10] = [
     "fermi_level_ev",
     "temperature_k",
     "conductance_s",
     "seebeck_v_per_k",
     "thermal_conductance_w_per_k",
     "power_factor_w_per_k2",
+    "phonon_conductance_w_per_k",
     "zt",
     "kelvin_residual",
     "converged",
@@ -144,9 +145,10 @@ impl PointTask for ScreenTask {
     }
 
     fn describe(&self) -> String {
-        // ZT and power factor share their columns, so they share points.
+        // ZT and power factor share their columns, so they share points
+        // (κph joined the columns: stores written before it are not reused).
         match self.cooling {
-            None => "screen coefficients".into(),
+            None => "screen coefficients with phonon conductance".into(),
             Some(CoolingCurve {
                 hot_k,
                 cold_k,
@@ -172,6 +174,7 @@ impl PointTask for ScreenTask {
                         c.seebeck_v_per_k,
                         c.thermal_conductance_w_per_k,
                         c.power_factor_w_per_k2,
+                        c.phonon_conductance_w_per_k,
                         c.zt,
                         c.kelvin_residual,
                         1.0,
@@ -219,6 +222,22 @@ impl PointTask for ScreenTask {
             sigma: None,
         })
     }
+}
+
+/// Where the κ_ph of a screening's ZT comes from: the case's own source,
+/// or "given" when the grid varies `thermal.phonon_conductance_w_per_k`.
+pub fn phonon_conductance_source(
+    case: &Case,
+    axes: &[super::Axis],
+) -> Result<crate::case::PhononConductanceSource, crate::case::CaseError> {
+    let varied = axes
+        .iter()
+        .flat_map(|a| &a.keys)
+        .any(|k| matches!(k, crate::case::CaseKey::ThermalPhononConductance));
+    if varied {
+        return Ok(crate::case::PhononConductanceSource::Given);
+    }
+    Ok(case.resolve()?.phonon_conductance_source())
 }
 
 /// Point indices sorted best first by `column` (largest first); NaN and

@@ -9,7 +9,10 @@
 //! the lead temperatures).
 //!
 //! - cooling power J_Q,cold: the heat current out of the cold lead into the
-//!   device, ∫(E − µ_cold) j_cold dE (positive = the cold lead is cooled);
+//!   device, ∫(E − µ_cold) j_cold dE (positive = the cold lead is cooled),
+//!   less the heat the lattice carries from the hot lead into the cold one
+//!   (J_ph(T_h, T_c) from the phonon spectrum of the case's `[lattice]`, or
+//!   κ_ph (T_h − T_c) with a given κ_ph; 0 with neither);
 //! - input power I·V (the electrical power the source delivers);
 //! - COP = J_Q,cold/(I·V), reported only where both are positive (NaN
 //!   elsewhere: the device is not then a driven cooler);
@@ -90,11 +93,13 @@ pub struct CoolerPoint {
     pub voltage_v: f64,
     /// Current I = I_1 (A).
     pub current_a: f64,
-    /// Cooling power J_Q,cold (W).
+    /// Cooling power (W): the electrons' heat current out of the cold lead
+    /// less the heat the lattice leaks into it from the hot side.
     pub cooling_power_w: f64,
     /// Input power I·V (W).
     pub input_power_w: f64,
-    /// Heat current out of the hot lead into the device (W).
+    /// Heat out of the hot side (W): the electrons' heat current out of
+    /// the hot lead plus the heat the lattice leaks to the cold side.
     pub heat_current_hot_w: f64,
     /// J_Q,cold/(I·V) where both are positive, NaN elsewhere.
     pub cop: f64,
@@ -108,6 +113,7 @@ impl CoolerPoint {
             Side::Right => (s.obs.heat_current_right_w, s.obs.heat_current_left_w),
             Side::Left => (s.obs.heat_current_left_w, s.obs.heat_current_right_w),
         };
+        let (qc, qh) = (qc - s.heat_leak_w, qh + s.heat_leak_w);
         let pin = s.obs.current_a * s.voltage_v;
         Self {
             voltage_v: s.voltage_v,
@@ -154,6 +160,11 @@ pub struct CoolerReport {
     pub coefficients: Option<Coefficients>,
     /// Ioffe's maximum COP with that ZT, if asked for.
     pub ioffe_max_cop: Option<f64>,
+    /// Heat the lattice leaks from the hot to the cold lead (W),
+    /// subtracted from the cooling power at every bias.
+    pub lattice_heat_leak_w: f64,
+    /// Where the lattice's heat comes from (lattice, given κ_ph, none).
+    pub phonon_conductance_source: crate::case::PhononConductanceSource,
     /// The curve, V from 0 to the end of the range.
     pub curve: Vec<CoolerPoint>,
     /// The energy grid every solve of the curve and of its refinements ran
@@ -345,6 +356,8 @@ pub fn cooler(
         carnot_cop: carnot_cop(th, tc),
         coefficients,
         ioffe_max_cop: ioffe,
+        lattice_heat_leak_w: dev.heat_leak_w,
+        phonon_conductance_source: case.resolve()?.phonon_conductance_source(),
         curve,
         energy_grid: dev.grid().clone(),
         coefficient_grid,

@@ -9,7 +9,12 @@
 //! mean of the two lead temperatures). The device delivers the power
 //! P = −I·V to the load (positive between V = 0 and the open-circuit
 //! voltage V_oc, where I(V_oc) = 0), and its efficiency is
-//! η = P/J_Q,hot with J_Q,hot the heat current out of the hot lead.
+//! η = P/Q_hot with Q_hot the heat drawn from the hot side: the
+//! electrons' heat current out of the hot lead plus the heat the lattice
+//! carries from the hot lead to the cold one. The lattice's heat is
+//! J_ph(T_h, T_c) from the phonon spectrum of the case's `[lattice]`, or
+//! κ_ph (T_h − T_c) with a given κ_ph (which wins), and 0 with neither; it
+//! does not depend on the voltage, so it lowers every efficiency.
 //!
 //! Bounds printed beside the result:
 //! - Carnot η_C = 1 − T_c/T_h;
@@ -75,6 +80,9 @@ pub enum CurveError {
     /// The case could not be set to an operating point.
     #[error(transparent)]
     Case(#[from] CaseError),
+    /// The lattice's phonon spectrum (for the heat it leaks) failed.
+    #[error("heat through the case's [lattice]: {0}")]
+    Lattice(#[from] crate::lattice::LatticeError),
     /// A solve failed outright.
     #[error("at V = {voltage_v:e} V: {source}")]
     Solve {
@@ -129,6 +137,8 @@ pub(crate) struct Solved {
     pub converged: bool,
     /// Which grid of the curve it was solved on (see [`BiasedCase`]).
     pub generation: usize,
+    /// Heat the lattice carries from the hotter lead to the colder (W).
+    pub heat_leak_w: f64,
 }
 
 /// Solves a case at voltages around µ with fixed lead temperatures,
@@ -153,12 +163,16 @@ pub(crate) struct BiasedCase {
     warm: Option<ScatteringSelfEnergy>,
     pub all_converged: bool,
     pub solves: usize,
+    /// Heat the lattice carries from the hotter lead to the colder (W):
+    /// J_ph(T_h, T_c) from the phonon spectrum, κ_ph (T_h − T_c) with a
+    /// given κ_ph, 0 without either. It does not depend on the voltage.
+    pub heat_leak_w: f64,
 }
 
 impl BiasedCase {
     /// The case with both zero-bias Fermi levels at µ and the lead
     /// temperatures set (the bath keeps the case's own setting).
-    pub fn new(case: &Case, mu_ev: f64, t: LeadTemperatures) -> Result<Self, CaseError> {
+    pub fn new(case: &Case, mu_ev: f64, t: LeadTemperatures) -> Result<Self, CurveError> {
         let base = case
             .with(CaseKey::LeadFermiLevel(crate::leads::Side::Left), mu_ev)?
             .with(CaseKey::LeadFermiLevel(crate::leads::Side::Right), mu_ev)?
@@ -169,7 +183,10 @@ impl BiasedCase {
             )?;
         let zero = base.with(CaseKey::BiasVoltage, 0.0)?;
         let grid = CommonGrid::choose(std::slice::from_ref(&zero))?;
+        let (hot, cold) = (t.left_k.max(t.right_k), t.left_k.min(t.right_k));
+        let heat_leak_w = base.resolve()?.phonon_heat_leak(hot, cold)?;
         Ok(Self {
+            heat_leak_w,
             fixed: grid.apply(&base)?,
             base,
             grid,
@@ -250,6 +267,7 @@ impl BiasedCase {
             obs,
             converged,
             generation: self.generation,
+            heat_leak_w: self.heat_leak_w,
         })
     }
 
@@ -393,9 +411,10 @@ pub struct LoadPoint {
     pub current_a: f64,
     /// Delivered power P = −I·V (W).
     pub power_w: f64,
-    /// Heat current out of the hot lead J_Q,hot (W).
+    /// Heat drawn from the hot side (W): the electrons' heat current out
+    /// of the hot lead plus the heat the lattice leaks to the cold side.
     pub heat_current_hot_w: f64,
-    /// η = P/J_Q,hot.
+    /// η = P/(heat drawn from the hot side).
     pub efficiency: f64,
     /// Born loop converged.
     pub converged: bool,
@@ -404,7 +423,7 @@ pub struct LoadPoint {
 impl LoadPoint {
     fn from(s: &Solved) -> Self {
         let p = -s.obs.current_a * s.voltage_v;
-        let q = s.obs.heat_current_left_w;
+        let q = s.obs.heat_current_left_w + s.heat_leak_w;
         Self {
             voltage_v: s.voltage_v,
             current_a: s.obs.current_a,
@@ -454,6 +473,11 @@ pub struct GeneratorReport {
     pub ioffe_max_efficiency: f64,
     /// Linear-response efficiency at maximum power (η_C/2) ZT/(ZT + 2).
     pub efficiency_at_max_power_linear: f64,
+    /// Heat the lattice leaks from the hot to the cold lead (W), added to
+    /// the heat drawn from the hot side at every load point.
+    pub lattice_heat_leak_w: f64,
+    /// Where the lattice's heat (and the κ_ph of ZT) comes from.
+    pub phonon_conductance_source: crate::case::PhononConductanceSource,
     /// The load curve, V from 0 to V_oc.
     pub curve: Vec<LoadPoint>,
     /// The energy grid every solve of the curve (root search, curve,
@@ -669,6 +693,8 @@ pub fn generator(
         curzon_ahlborn_efficiency: curzon_ahlborn_efficiency(th, tc),
         ioffe_max_efficiency: ioffe_max_efficiency(zt, th, tc),
         efficiency_at_max_power_linear: efficiency_at_max_power_linear(zt, th, tc),
+        lattice_heat_leak_w: dev.heat_leak_w,
+        phonon_conductance_source: coefficients.phonon_conductance_source,
         coefficients,
         curve,
         energy_grid: dev.grid().clone(),

@@ -42,6 +42,9 @@ pub struct Coefficients {
     pub power_factor_w_per_k2: f64,
     /// Phonon thermal conductance used for ZT (W/K).
     pub phonon_conductance_w_per_k: f64,
+    /// Where κ_ph came from: computed from the case's lattice, given, or
+    /// none (κ_ph = 0: ZT is then an upper bound).
+    pub phonon_conductance_source: crate::case::PhononConductanceSource,
     /// ZT = S² G T/(κ_e + κ_ph).
     pub zt: f64,
     /// Kelvin relation residual |Π − T S|/|Π| (Onsager |M12 − M21|/|M12|
@@ -52,7 +55,9 @@ pub struct Coefficients {
 }
 
 impl Coefficients {
-    /// Fill the derived quantities from G, S, Π, κ_e.
+    /// Fill the derived quantities from G, S, Π, κ_e. κ_ph counts as given
+    /// (as none when it is 0); a caller that computed it from a lattice
+    /// says so with [`Coefficients::with_phonon_source`].
     #[allow(clippy::too_many_arguments)]
     pub fn from_parts(
         fermi_level_ev: f64,
@@ -77,10 +82,23 @@ impl Coefficients {
                 / (conductance_s * temperature_k * LORENZ_NUMBER),
             power_factor_w_per_k2: pf,
             phonon_conductance_w_per_k,
+            phonon_conductance_source: if phonon_conductance_w_per_k == 0.0 {
+                crate::case::PhononConductanceSource::None
+            } else {
+                crate::case::PhononConductanceSource::Given
+            },
             zt: pf * temperature_k / (thermal_conductance_w_per_k + phonon_conductance_w_per_k),
             kelvin_residual,
             method: method.to_string(),
         }
+    }
+}
+
+impl Coefficients {
+    /// The same coefficients with κ_ph marked as coming from `source`.
+    pub fn with_phonon_source(mut self, source: crate::case::PhononConductanceSource) -> Self {
+        self.phonon_conductance_source = source;
+        self
     }
 }
 

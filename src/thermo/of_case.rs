@@ -21,6 +21,9 @@ pub enum CoefficientError {
     /// A solve failed.
     #[error(transparent)]
     Solve(#[from] SolveError),
+    /// The lattice's phonon spectrum (for κ_ph) could not be computed.
+    #[error("κ_ph from the case's [lattice]: {0}")]
+    Lattice(#[from] crate::lattice::LatticeError),
     /// A finite-difference run failed or did not converge.
     #[error("{0}")]
     Response(String),
@@ -84,7 +87,9 @@ pub fn case_coefficients(
 ) -> Result<CaseCoefficients, CoefficientError> {
     let resolved = case.resolve()?;
     let (mu, t) = reference_point(case)?;
-    let kph = resolved.phonon_conductance_w_per_k;
+    // κ_ph at the reference temperature: given, from the lattice, or 0.
+    let kph = resolved.phonon_conductance_at(t)?;
+    let source = resolved.phonon_conductance_source();
     if resolved.problem.scattering.is_coherent() {
         let eq = case_at(
             case,
@@ -93,7 +98,7 @@ pub fn case_coefficients(
         let grid = CommonGrid::choose(std::slice::from_ref(&eq))?;
         let c = super::coherent_coefficients(&eq.resolve()?.problem, kph)?;
         return Ok(CaseCoefficients {
-            coefficients: c,
+            coefficients: c.with_phonon_source(source),
             response: None,
             grid,
         });
@@ -123,7 +128,7 @@ pub fn case_coefficients(
         )));
     }
     Ok(CaseCoefficients {
-        coefficients: c,
+        coefficients: c.with_phonon_source(source),
         response: Some(m),
         grid,
     })

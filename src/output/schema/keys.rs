@@ -73,7 +73,7 @@ const COMMON_GRID: [Key; 7] = [
     ),
 ];
 
-const COEFFICIENTS: [Key; 12] = [
+const COEFFICIENTS: [Key; 13] = [
     ("fermi_level_ev", "eV", "reference Fermi level µ"),
     ("temperature_k", "K", "reference temperature T"),
     ("conductance_s", "S", "electrical conductance G"),
@@ -94,6 +94,11 @@ const COEFFICIENTS: [Key; 12] = [
         "phonon_conductance_w_per_k",
         "W/K",
         "phonon thermal conductance κph used for ZT",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where κph came from: lattice (computed from [lattice] at T), given (thermal.phonon_conductance_w_per_k) or none (κph = 0: ZT is an upper bound)",
     ),
     ("zt", "1", "figure of merit ZT = S²GT/(κe + κph)"),
     (
@@ -485,7 +490,7 @@ const FAILED: [Key; 6] = [
     ("fault.cell", "1", "cell of the failure, or null"),
 ];
 
-const GRID_RUN: [Key; 16] = [
+const GRID_RUN: [Key; 17] = [
     (
         "axes[].keys",
         "-",
@@ -530,6 +535,11 @@ const GRID_RUN: [Key; 16] = [
         "-",
         "column ranked by, largest first (screen only)",
     ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the κph of ZT came from: lattice, given or none (ZT is then an upper bound); screen by ZT or power factor only",
+    ),
 ];
 
 const BEST: [Key; 3] = [
@@ -550,7 +560,35 @@ const BEST: [Key; 3] = [
     ),
 ];
 
-const GENERATOR: [Key; 21] = [
+const LATTICE: [Key; 5] = [
+    (
+        "temperature_k",
+        "K",
+        "operating temperature of κph and of the integrand in phonon_spectrum.csv (mean lead temperature; the reference temperature for coefficients)",
+    ),
+    (
+        "phonon_conductance_w_per_k",
+        "W/K",
+        "two-terminal lattice thermal conductance κph of the case's [lattice] at temperature_k",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "the κph ZT uses: lattice (this one) or given (thermal.phonon_conductance_w_per_k overrides it)",
+    ),
+    (
+        "band_top_mev",
+        "meV",
+        "top ħω of the phonon band both phonon leads carry (Ξ = 0 above)",
+    ),
+    (
+        "frequency_points",
+        "1",
+        "frequency nodes of the κph quadrature",
+    ),
+];
+
+const GENERATOR: [Key; 23] = [
     ("settings.hot_k", "K", "temperature of the hot (left) lead"),
     (
         "settings.cold_k",
@@ -614,6 +652,16 @@ const GENERATOR: [Key; 21] = [
         "linear-response efficiency at maximum power (η_C/2)ZT/(ZT+2)",
     ),
     (
+        "lattice_heat_leak_w",
+        "W",
+        "heat the lattice carries from the hot to the cold lead (J_ph from [lattice], κph ΔT when κph is given, 0 with neither); added to the heat drawn from the hot side",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the lattice's heat and the κph of ZT come from: lattice, given or none",
+    ),
+    (
         "curve[]",
         "-",
         "the curve, one object per row of generator.csv with its columns as keys",
@@ -622,7 +670,7 @@ const GENERATOR: [Key; 21] = [
     ("solves", "1", "operating points solved"),
 ];
 
-const COOLER: [Key; 18] = [
+const COOLER: [Key; 20] = [
     ("settings.hot_k", "K", "temperature of the hot lead"),
     ("settings.cold_k", "K", "temperature of the cold lead"),
     ("settings.points", "1", "bias voltages on the curve"),
@@ -667,6 +715,16 @@ const COOLER: [Key; 18] = [
         "largest COP of a device with this ZT (Ioffe), or null",
     ),
     (
+        "lattice_heat_leak_w",
+        "W",
+        "heat the lattice carries from the hot to the cold lead (J_ph from [lattice], κph ΔT when κph is given, 0 with neither); subtracted from the cooling power",
+    ),
+    (
+        "phonon_conductance_source",
+        "-",
+        "where the lattice's heat (and the κph of ZT, when computed) come from: lattice, given or none",
+    ),
+    (
         "curve[]",
         "-",
         "the curve, one object per row of cooler.csv with its columns as keys",
@@ -699,6 +757,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "", &LEDGER);
     keys(&mut f, "", &SOLVE_TAIL);
     keys(&mut f, "grid.", &GRID);
+    keys(&mut f, "lattice.", &LATTICE);
     keys(&mut f, "", &RUN);
     f
 }
@@ -754,6 +813,7 @@ pub fn summary_docs() -> Vec<FileDoc> {
         )],
     );
     keys(&mut coefficients, "energy_grid.", &COMMON_GRID);
+    keys(&mut coefficients, "lattice.", &LATTICE);
     keys(&mut coefficients, "", &RUN);
     vec![
         doc(

@@ -182,6 +182,8 @@ pub struct SolveSummary {
     pub ledger: Value,
     pub local_fermi_level: FermiLevelInfo,
     pub scba: Value,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lattice: Option<LatticeSummary>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
@@ -213,6 +215,17 @@ pub struct FailedSolveSummary {
     pub resolved_case: String,
 }
 
+/// The `lattice` object of summary.json for a case with a `[lattice]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct LatticeSummary {
+    pub temperature_k: f64,
+    pub phonon_conductance_w_per_k: f64,
+    pub phonon_conductance_source: crate::case::PhononConductanceSource,
+    pub band_top_mev: f64,
+    pub frequency_points: usize,
+}
+
 /// summary.json of `qheat coefficients`.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 #[allow(missing_docs)] // each key is documented in super::keys
@@ -223,6 +236,8 @@ pub struct CoefficientsSummary {
     pub coefficients: crate::thermo::Coefficients,
     pub response: Value,
     pub energy_grid: crate::thermo::common_grid::CommonGrid,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub lattice: Option<LatticeSummary>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
@@ -249,6 +264,9 @@ pub struct Ranking {
     pub ranked_column: String,
     /// The five best points.
     pub best: Vec<BestPoint>,
+    /// Where the κ_ph of ZT came from (ZT and power-factor rankings).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub phonon_conductance_source: Option<crate::case::PhononConductanceSource>,
 }
 
 /// summary.json of `qheat sweep` and `qheat screen`.

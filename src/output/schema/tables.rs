@@ -206,6 +206,62 @@ pub fn convergence<'a>() -> Table<SolvePoint<'a>> {
     }
 }
 
+/// The phonon spectrum of a case's lattice at one temperature.
+pub struct PhononPoints<'a> {
+    /// Ξ on the quadrature nodes.
+    pub spectrum: &'a crate::lattice::PhononSpectrum,
+    /// Temperature of the κ_ph integrand (K).
+    pub temperature_k: f64,
+}
+
+/// phonon_spectrum.csv: one row per frequency node.
+pub fn phonon_spectrum<'a>() -> Table<PhononPoints<'a>> {
+    type P<'b> = PhononPoints<'b>;
+    Table {
+        file: "phonon_spectrum.csv",
+        written_by: "`qheat solve`, `qheat coefficients` (cases with a `[lattice]`)",
+        rows: "frequency node of the κph quadrature, ascending (nodes cluster at the lead subband edges)",
+        len: |p| p.spectrum.len(),
+        columns: vec![
+            col::<P<'_>>(
+                "omega_rad_per_ps",
+                "rad/ps",
+                "angular frequency ω",
+                |p, i| Cell::Num(p.spectrum.omega_rad_per_ps[i]),
+            ),
+            col("energy_mev", "meV", "phonon energy ħω", |p, i| {
+                Cell::Num(crate::case::phonon_energy_mev(
+                    p.spectrum.omega_rad_per_ps[i],
+                ))
+            }),
+            col(
+                "transmission",
+                "1",
+                "phonon transmission Ξ(ω) between the two phonon leads",
+                |p, i| Cell::Num(p.spectrum.transmission[i]),
+            ),
+            col(
+                "kappa_integrand_w_per_k_per_rad_per_ps",
+                "W/K per rad/ps",
+                "κph integrand Ξ(ω) ħω ∂n/∂T /2π at the operating temperature (summary.json `lattice.temperature_k`)",
+                |p, i| {
+                    let w = p.spectrum.omega_rad_per_ps[i];
+                    Cell::Num(
+                        p.spectrum.transmission[i]
+                            * crate::lattice::conductance_density(w, p.temperature_k),
+                    )
+                },
+            ),
+            col(
+                "weight_rad_per_ps",
+                "rad/ps",
+                "quadrature weight: κph = Σ weight × integrand",
+                |p, i| Cell::Num(p.spectrum.weight_rad_per_ps[i]),
+            ),
+        ],
+    }
+}
+
 /// generator.csv: one row per load voltage.
 pub fn generator() -> Table<GeneratorReport> {
     type G = GeneratorReport;
@@ -236,13 +292,13 @@ pub fn generator() -> Table<GeneratorReport> {
             col(
                 "heat_current_hot_w",
                 "W",
-                "heat current out of the hot lead",
+                "heat drawn from the hot side: the electrons' heat current out of the hot lead plus the lattice's heat leak (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
             ),
             col(
                 "efficiency",
                 "1",
-                "power / heat current out of the hot lead",
+                "power / heat drawn from the hot side",
                 |r, i| Cell::Num(r.curve[i].efficiency),
             ),
             col(
@@ -279,7 +335,7 @@ pub fn cooler() -> Table<CoolerReport> {
             col(
                 "cooling_power_w",
                 "W",
-                "heat current out of the cold lead into the device",
+                "heat current out of the cold lead into the device, less the lattice's heat leak into the cold lead (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].cooling_power_w),
             ),
             col(
@@ -291,7 +347,7 @@ pub fn cooler() -> Table<CoolerReport> {
             col(
                 "heat_current_hot_w",
                 "W",
-                "heat current out of the hot lead",
+                "heat drawn from the hot side: the electrons' heat current out of the hot lead plus the lattice's heat leak (summary.json `lattice_heat_leak_w`)",
                 |r, i| Cell::Num(r.curve[i].heat_current_hot_w),
             ),
             col(
@@ -316,7 +372,7 @@ pub fn cooler() -> Table<CoolerReport> {
 pub type GridColumn = (&'static str, &'static str, CellKind, &'static str);
 
 /// Every result column a grid table can hold, after its axis columns.
-pub const GRID_COLUMNS: [GridColumn; 31] = [
+pub const GRID_COLUMNS: [GridColumn; 32] = [
     (
         "rank",
         "1",
@@ -449,6 +505,12 @@ pub const GRID_COLUMNS: [GridColumn; 31] = [
         CellKind::Num,
         "power factor S²G (screen)",
     ),
+    (
+        "phonon_conductance_w_per_k",
+        "W/K",
+        CellKind::Num,
+        "phonon thermal conductance κph used for ZT (screen; its source is `phonon_conductance_source` in summary.json)",
+    ),
     ("zt", "1", CellKind::Num, "figure of merit ZT (screen)"),
     (
         "kelvin_residual",
@@ -546,6 +608,7 @@ pub fn table_docs() -> Vec<FileDoc> {
         convergence().doc(),
         generator().doc(),
         cooler().doc(),
+        phonon_spectrum().doc(),
     ];
     docs.push(grid_doc(
         "sweep.csv",

@@ -1,0 +1,304 @@
+//! `[lattice]`: the device's own lattice (one mass and one spring per site,
+//! replaced region by region) and its two phonon leads, from which the
+//! lattice thermal conductance κ_ph for ZT is computed.
+//!
+//! Values per site: every site takes `mass_u` and `spring_n_per_m`; each
+//! `[[lattice.region]]` selects the cells with from_nm ≤ x < to_nm (as the
+//! potential regions do) and replaces the mass and/or the spring there,
+//! entries later in the file winning. The spring stored at site i is the
+//! bond (i, i+1), so the last site's spring is the bond to the right lead.
+//! A strip has the same values on every site of a cell, and one transverse
+//! spring between neighbouring sites across (default: `spring_n_per_m`).
+//! Each phonon lead continues its end site unless `[lattice.left]` or
+//! `[lattice.right]` names its own mass and/or spring; the bond joining a
+//! lead to the device has the lead's spring.
+
+use super::super::check::Checker;
+use super::super::error::CaseError;
+use super::super::raw::{Opt, RawCase, RawLattice, RawLatticeLead, RawLatticeRegion};
+use super::device::{DeviceKind, DeviceSpec};
+use crate::lattice::{Lattice, LatticeError, PhononLead};
+use faer::Mat;
+use std::ops::Range;
+use toml::Spanned;
+
+/// Largest mass (u) and spring (N/m) accepted: far beyond any solid, and
+/// it keeps ω²-scale numbers of the solve finite and well scaled.
+const MAX_MASS_U: f64 = 1e6;
+const MAX_SPRING_N_PER_M: f64 = 1e6;
+
+/// One `[[lattice.region]]`: replaces the mass and/or spring of the sites
+/// of the cells it selects.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct LatticeRegion {
+    pub from_nm: f64,
+    pub to_nm: f64,
+    pub mass_u: Option<f64>,
+    pub spring_n_per_m: Option<f64>,
+}
+
+/// A lead of its own (`None` values continue the end site).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub(crate) struct LatticeLeadSpec {
+    pub mass_u: Option<f64>,
+    pub spring_n_per_m: Option<f64>,
+}
+
+/// A validated `[lattice]` table.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct LatticeSpec {
+    pub mass_u: f64,
+    pub spring_n_per_m: f64,
+    pub transverse_spring_n_per_m: f64,
+    pub regions: Vec<LatticeRegion>,
+    pub left: LatticeLeadSpec,
+    pub right: LatticeLeadSpec,
+    /// Span of the `[lattice]` table.
+    pub span: Option<Range<usize>>,
+}
+
+impl LatticeSpec {
+    /// Validate `[lattice]` against the device; `None` when the file has
+    /// no lattice. Regions that cover no cell add a warning.
+    pub fn from_raw(
+        raw: &RawCase,
+        ck: &Checker<'_>,
+        device: &DeviceSpec,
+        warnings: &mut Vec<String>,
+    ) -> Result<Option<Self>, CaseError> {
+        let Some(lat) = raw.lattice.as_ref() else {
+            return Ok(None);
+        };
+        let span = Some(lat.span());
+        let l = lat.get_ref();
+        if let DeviceKind::Blocks { .. } = device.kind {
+            return Err(ck.ctx.invalid(
+                span,
+                "lattice",
+                "no [lattice] section with device.kind = \"blocks\" (force-constant blocks \
+                 cannot be given yet; hint: describe the device as a chain or strip, or give \
+                 thermal.phonon_conductance_w_per_k instead)",
+                "a [lattice] table",
+            ));
+        }
+        let mass_u = ck.required(
+            mass(ck, &l.mass_u, "lattice.mass_u")?,
+            span.clone(),
+            "lattice.mass_u",
+            "the mass of every lattice site in u (atomic mass units; there is no material \
+             default, hint: 28.09 for silicon)",
+        )?;
+        let spring_n_per_m = ck.required(
+            spring(ck, &l.spring_n_per_m, "lattice.spring_n_per_m")?,
+            span.clone(),
+            "lattice.spring_n_per_m",
+            "the nearest-neighbour spring in N/m (there is no material default, hint: typical \
+             solids have 5 to 100 N/m)",
+        )?;
+        let transverse = transverse(l, ck, device)?.unwrap_or(spring_n_per_m);
+        let regions = regions(l, ck, device, warnings)?;
+        Ok(Some(Self {
+            mass_u,
+            spring_n_per_m,
+            transverse_spring_n_per_m: transverse,
+            regions,
+            left: lead(ck, &l.left, "lattice.left")?,
+            right: lead(ck, &l.right, "lattice.right")?,
+            span,
+        }))
+    }
+
+    /// Mass and spring of every cell (one value per cell; a strip has the
+    /// same values across).
+    pub fn per_cell(&self, device: &DeviceSpec) -> (Vec<f64>, Vec<f64>) {
+        let n = device.cells;
+        let mut masses = vec![self.mass_u; n];
+        let mut springs = vec![self.spring_n_per_m; n];
+        for r in &self.regions {
+            for c in cells_in(device, r.from_nm, r.to_nm) {
+                if let Some(m) = r.mass_u {
+                    masses[c] = m;
+                }
+                if let Some(k) = r.spring_n_per_m {
+                    springs[c] = k;
+                }
+            }
+        }
+        (masses, springs)
+    }
+
+    /// The lattice of the device and its two phonon leads.
+    pub fn build(&self, device: &DeviceSpec) -> Result<Lattice, LatticeError> {
+        let (masses, springs) = self.per_cell(device);
+        let n = masses.len();
+        let (ml, kl) = (
+            self.left.mass_u.unwrap_or(masses[0]),
+            self.left.spring_n_per_m.unwrap_or(springs[0]),
+        );
+        let (mr, kr) = (
+            self.right.mass_u.unwrap_or(masses[n - 1]),
+            self.right.spring_n_per_m.unwrap_or(springs[n - 1]),
+        );
+        match device.kind {
+            DeviceKind::Strip { width, .. } => {
+                let kt = self.transverse_spring_n_per_m;
+                let lead = |m, k| PhononLead::strip(width, m, k, kt, k);
+                let (onsite, coupling) = strip_blocks(width, &springs[..n - 1], kt, n);
+                let masses = masses
+                    .iter()
+                    .flat_map(|&m| std::iter::repeat_n(m, width))
+                    .collect();
+                Lattice::new(masses, onsite, coupling, lead(ml, kl), lead(mr, kr))
+            }
+            _ => Lattice::chain_with_leads(
+                &masses,
+                &springs[..n - 1],
+                PhononLead::chain(ml, kl, kl),
+                PhononLead::chain(mr, kr, kr),
+            ),
+        }
+    }
+}
+
+/// The cells whose position c·a lies in [from, to).
+fn cells_in(device: &DeviceSpec, from_nm: f64, to_nm: f64) -> impl Iterator<Item = usize> + '_ {
+    (0..device.cells).filter(move |&c| {
+        let x = c as f64 * device.spacing_nm;
+        x >= from_nm && x < to_nm
+    })
+}
+
+/// K_ii (without the lead bonds, which [`Lattice::new`] adds) and K_i,i+1
+/// of a strip W wide with free edges: `longitudinal` holds the N − 1
+/// internal bonds along x, `kt` the spring across.
+fn strip_blocks(
+    width: usize,
+    longitudinal: &[f64],
+    kt: f64,
+    cells: usize,
+) -> (Vec<Mat<f64>>, Vec<Mat<f64>>) {
+    let onsite = (0..cells)
+        .map(|i| {
+            let along = if i > 0 { longitudinal[i - 1] } else { 0.0 }
+                + if i + 1 < cells { longitudinal[i] } else { 0.0 };
+            Mat::from_fn(width, width, |r, c| {
+                if r == c {
+                    let across = f64::from(u8::from(r > 0)) + f64::from(u8::from(r + 1 < width));
+                    along + across * kt
+                } else if r.abs_diff(c) == 1 {
+                    -kt
+                } else {
+                    0.0
+                }
+            })
+        })
+        .collect();
+    let coupling = longitudinal
+        .iter()
+        .map(|&k| Mat::from_fn(width, width, |r, c| if r == c { -k } else { 0.0 }))
+        .collect();
+    (onsite, coupling)
+}
+
+fn mass(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+    ck.ranged(
+        v,
+        key,
+        &format!("a mass in u (atomic mass units), > 0 and ≤ {MAX_MASS_U:e}"),
+        |x| x > 0.0 && x <= MAX_MASS_U,
+    )
+}
+
+fn spring(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+    ck.ranged(
+        v,
+        key,
+        &format!("a spring constant in N/m, > 0 and ≤ {MAX_SPRING_N_PER_M:e} (hint: a spring cannot be negative or zero; a missing bond cuts the lattice in two)"),
+        |x| x > 0.0 && x <= MAX_SPRING_N_PER_M,
+    )
+}
+
+/// `transverse_spring_n_per_m`: a strip's spring across; refused for a
+/// chain, which has no transverse bonds.
+fn transverse(
+    l: &RawLattice,
+    ck: &Checker<'_>,
+    device: &DeviceSpec,
+) -> Result<Option<f64>, CaseError> {
+    let key = "lattice.transverse_spring_n_per_m";
+    if let DeviceKind::Chain { .. } = device.kind {
+        ck.unused(
+            &l.transverse_spring_n_per_m,
+            key,
+            "with device.kind = \"chain\" (a chain has no transverse bonds; only strips do)",
+        )?;
+    }
+    spring(ck, &l.transverse_spring_n_per_m, key)
+}
+
+fn lead(ck: &Checker<'_>, l: &Opt<RawLatticeLead>, p: &str) -> Result<LatticeLeadSpec, CaseError> {
+    let Some(l) = l else {
+        return Ok(LatticeLeadSpec::default());
+    };
+    let l = l.get_ref();
+    Ok(LatticeLeadSpec {
+        mass_u: mass(ck, &l.mass_u, &format!("{p}.mass_u"))?,
+        spring_n_per_m: spring(ck, &l.spring_n_per_m, &format!("{p}.spring_n_per_m"))?,
+    })
+}
+
+fn regions(
+    l: &RawLattice,
+    ck: &Checker<'_>,
+    device: &DeviceSpec,
+    warnings: &mut Vec<String>,
+) -> Result<Vec<LatticeRegion>, CaseError> {
+    let mut out = Vec::new();
+    for (i, r) in l.region.iter().flatten().enumerate() {
+        let prefix = format!("lattice.region.{i}");
+        let region = one_region(r, &prefix, ck, device.length_nm())?;
+        if cells_in(device, region.from_nm, region.to_nm)
+            .next()
+            .is_none()
+        {
+            warnings.push(format!(
+                "{prefix} [{}, {}) nm covers no cell (cells sit at multiples of {} nm): it has no effect",
+                region.from_nm, region.to_nm, device.spacing_nm
+            ));
+        }
+        out.push(region);
+    }
+    Ok(out)
+}
+
+fn one_region(
+    r: &Spanned<RawLatticeRegion>,
+    prefix: &str,
+    ck: &Checker<'_>,
+    length_nm: f64,
+) -> Result<LatticeRegion, CaseError> {
+    let span = r.span();
+    let r = r.get_ref();
+    let (from_nm, to_nm) = ck.region(
+        &r.from_nm,
+        &r.to_nm,
+        prefix,
+        length_nm,
+        Some(Some(span.clone())),
+    )?;
+    let mass_u = mass(ck, &r.mass_u, &format!("{prefix}.mass_u"))?;
+    let spring_n_per_m = spring(ck, &r.spring_n_per_m, &format!("{prefix}.spring_n_per_m"))?;
+    if mass_u.is_none() && spring_n_per_m.is_none() {
+        return Err(ck.ctx.missing(
+            Some(span),
+            &format!("{prefix}.mass_u"),
+            "mass_u and/or spring_n_per_m (the values the region puts in place of the uniform ones)",
+        ));
+    }
+    Ok(LatticeRegion {
+        from_nm,
+        to_nm,
+        mass_u,
+        spring_n_per_m,
+    })
+}
