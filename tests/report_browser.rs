@@ -350,10 +350,11 @@ fn report_and_figures_render_in_headless_chromium() {
     let profile = tmp.path().join("profile");
     let url = |name: &str| format!("file://{}", dir.join(name).display());
 
-    // The DOM the browser built holds the four figures.
+    // The DOM the browser built holds the five figures (the demo's lattice
+    // adds the phonon transmission).
     let out = run_chromium(&bin, &profile, &["--dump-dom".into()], &url("report.html"));
     let dom = out.0;
-    assert_eq!(dom.matches("<svg").count(), 4, "figures in the parsed page");
+    assert_eq!(dom.matches("<svg").count(), 5, "figures in the parsed page");
 
     // The page as a person sees it: not blank, the headline figure drawn.
     let shot = tmp.path().join("report.png");
