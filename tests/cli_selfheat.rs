@@ -128,3 +128,24 @@ fn an_undamped_lattice_keeps_the_bath_temperature() {
     assert!(s.get("self_heating").is_none(), "{s}");
     assert!(t.iter().all(|&x| x == 300.0), "{t:?}");
 }
+
+/// The hot-spot demo says the hottest lattice point, the largest power
+/// deposition and the largest Fermi-level drop sit in three places (more
+/// than a nanometre apart, two cells or more); this holds it to that.
+#[test]
+fn the_hot_spot_demo_puts_heat_power_and_drop_in_three_places() {
+    let dir = tempfile::tempdir().unwrap();
+    let case = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/hot-spot-apart.toml");
+    let (code, _, s, _) = solve(dir.path(), &case);
+    assert_eq!(code, 0);
+    let x = |v: &serde_json::Value| v.as_f64().unwrap();
+    let hot = x(&s["self_heating"]["hottest_x_nm"]);
+    let power = x(&s["results"]["hottest_cell_w"]["x_nm"]);
+    let drop = x(&s["results"]["largest_drop_v"]["x_nm"]);
+    for (a, b) in [(hot, power), (hot, drop), (power, drop)] {
+        assert!(
+            (a - b).abs() >= 1.0,
+            "hot {hot} power {power} drop {drop} nm"
+        );
+    }
+}
