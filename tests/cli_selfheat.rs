@@ -148,4 +148,24 @@ fn the_hot_spot_demo_puts_heat_power_and_drop_in_three_places() {
             "hot {hot} power {power} drop {drop} nm"
         );
     }
+    // The device figure shows T_L(x) below the lattice power, its legend
+    // naming the hottest temperature of summary.json (to 0.1 K as shown).
+    let svg = std::fs::read_to_string(dir.path().join("out/device.svg")).unwrap();
+    assert!(svg.contains("lattice temperature (K)"), "no T_L panel");
+    let hottest = s["self_heating"]["hottest_lattice_k"].as_f64().unwrap();
+    assert!(
+        svg.contains(&format!("hottest {:.1} K", hottest)),
+        "legend lacks the hottest temperature {hottest}"
+    );
+}
+
+/// Without self-heating the device figure keeps its three panels.
+#[test]
+fn without_damping_the_device_figure_has_no_temperature_panel() {
+    let dir = tempfile::tempdir().unwrap();
+    let (code, _, _, _) = solve(dir.path(), &case(dir.path(), "", 0.06));
+    assert_eq!(code, 0);
+    let svg = std::fs::read_to_string(dir.path().join("out/device.svg")).unwrap();
+    assert!(svg.contains("lattice power per cell"));
+    assert!(!svg.contains("lattice temperature (K)"));
 }
