@@ -83,7 +83,8 @@ fn solve(dir: &Path, case: &Path) -> (i32, String, serde_json::Value, Vec<f64>) 
 #[test]
 fn a_damped_lattice_heats_up_and_its_heat_leaves_through_the_phonon_leads() {
     let dir = tempfile::tempdir().unwrap();
-    let (code, stdout, s, t) = solve(dir.path(), &case(dir.path(), "damping_per_ps = 4.0", 0.06));
+    let case_path = case(dir.path(), "damping_per_ps = 4.0", 0.06);
+    let (code, stdout, s, t) = solve(dir.path(), &case_path);
     assert_eq!(code, 0, "{stdout}");
     let h = &s["self_heating"];
     assert_eq!(h["converged"], true, "{h}");
@@ -101,6 +102,20 @@ fn a_damped_lattice_heats_up_and_its_heat_leaves_through_the_phonon_leads() {
         assert!(w > 0.0, "{side} phonon lead takes {w:e} W");
     }
     assert!(h["outer_iterations"].as_u64().unwrap() >= 2);
+    // The κph the summary reports is the one ZT uses: with damping, the
+    // floating-probe conductance at the mean lead temperature (300 K).
+    let resolved = qheat::case::Case::load(&case_path)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    let kappa = resolved.phonon_conductance_at(300.0).unwrap();
+    // (1e-14 relative: serde_json's default float parsing may miss the
+    // last bit; a two-terminal κph instead is about 24 times smaller here.)
+    let reported = s["lattice"]["phonon_conductance_w_per_k"].as_f64().unwrap();
+    assert!(
+        (reported - kappa).abs() <= 1e-14 * kappa,
+        "summary κph {reported:e}, ZT uses {kappa:e}"
+    );
     assert!(stdout.contains("self-heating      converged"), "{stdout}");
     assert!(stdout.contains("hottest lattice"), "{stdout}");
 }

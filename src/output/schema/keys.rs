@@ -569,7 +569,7 @@ const LATTICE: [Key; 5] = [
     (
         "phonon_conductance_w_per_k",
         "W/K",
-        "two-terminal lattice thermal conductance κph of the case's [lattice] at temperature_k",
+        "lattice thermal conductance κph of the case's [lattice] at temperature_k: two-terminal, or with damping the conductance with every damped site a floating probe",
     ),
     (
         "phonon_conductance_source",
