@@ -309,6 +309,16 @@ fn damping_is_set_per_site_and_lowers_kappa_ph() {
         .unwrap()
         .conductance(300.0);
     assert!(k1 > 1.01 * direct, "floating {k1:e} vs direct {direct:e}");
+    // The heat leak of a generator or cooler floats the probes too: across
+    // 2 K around 300 K it is κph·ΔT to second order in ΔT/T (relative
+    // 1e-4 leaves room for the (ΔT/T)² ≈ 4e-5 curvature, and the
+    // lead-to-lead part alone would be far off).
+    let leak = damped.phonon_heat_leak(301.0, 299.0).unwrap();
+    assert!(
+        (leak - 2.0 * k1).abs() <= 1e-4 * 2.0 * k1,
+        "leak {leak:e} vs κph ΔT {:e}",
+        2.0 * k1
+    );
 
     let strip = case(
         STRIP,

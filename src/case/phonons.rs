@@ -10,7 +10,9 @@
 //! over a lattice key computes it again.
 
 use super::resolve::Resolved;
-use crate::lattice::{Lattice, LatticeError, PhononSpectrum, ProbeNetwork, SpectrumParams};
+use crate::lattice::{
+    FloatParams, Lattice, LatticeError, PhononSpectrum, ProbeNetwork, SpectrumParams,
+};
 use std::sync::{Arc, OnceLock};
 
 /// ħω in meV for an angular frequency in rad/ps.
@@ -159,9 +161,19 @@ impl Resolved {
     }
 
     /// Heat (W) that the lattice carries from a reservoir at `hot_k` to
-    /// one at `cold_k`: J_ph from the spectrum with a lattice, κ_ph ΔT with
+    /// one at `cold_k`: J_ph from the spectrum with a lattice (with damping,
+    /// the heat into the cold lead with every probe floating at zero net
+    /// heat), κ_ph ΔT with
     /// a given κ_ph (it wins over the lattice, as for ZT), 0 with neither.
     pub fn phonon_heat_leak(&self, hot_k: f64, cold_k: f64) -> Result<f64, LatticeError> {
+        let lattice_source = self.phonon_conductance_source() == PhononConductanceSource::Lattice;
+        if let (true, Some(net)) = (lattice_source, self.probe_network()) {
+            let sites = self
+                .lattice
+                .as_ref()
+                .map_or(0, |l| l.damping_per_ps().len());
+            return floating_leak(net?, sites, hot_k, cold_k);
+        }
         match self.phonon_conductance_source() {
             PhononConductanceSource::Lattice => match self.phonon_spectrum() {
                 Some(s) => Ok(s?.heat_current(hot_k, cold_k)),
@@ -170,4 +182,22 @@ impl Resolved {
             _ => Ok(self.phonon_conductance_w_per_k * (hot_k - cold_k)),
         }
     }
+}
+
+/// Heat into the cold phonon lead (W) with the left lead at `hot_k`, the
+/// right at `cold_k` and every probe floating with no power of its own.
+fn floating_leak(
+    net: &ProbeNetwork,
+    sites: usize,
+    hot_k: f64,
+    cold_k: f64,
+) -> Result<f64, LatticeError> {
+    let zeros = vec![0.0; sites];
+    net.float_temperatures(hot_k, cold_k, &zeros, &FloatParams::default())
+        .map(|f| f.right_lead_heat_w)
+        .map_err(|e| LatticeError::Invalid {
+            what: "floating phonon probes".into(),
+            problem: e.to_string(),
+            hint: "check lattice.damping_per_ps and the contact temperatures".into(),
+        })
 }
