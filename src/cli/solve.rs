@@ -297,7 +297,17 @@ pub fn solve(
     } else if !common.quiet {
         print_summary(&sol, &o, &summary, &out_dir);
     }
-    if let Some(h) = heat.as_ref().filter(|h| !h.report.converged) {
+    not_converged(&sol, heat.as_ref(), &out_dir)
+}
+
+/// Exit 2 when the joint loop or the Born loop stopped short (the results
+/// are written and flagged by then).
+fn not_converged(
+    sol: &Solution,
+    heat: Option<&SelfHeatRun>,
+    out_dir: &Path,
+) -> Result<(), Failure> {
+    if let Some(h) = heat.filter(|h| !h.report.converged) {
         return Err(Failure::Solver(format!(
             "the joint electron–lattice loop did not converge in {} outer iterations (last change \
              of the lattice temperature {:.3e} K against a tolerance of {:.1e} K); results in {} \
