@@ -259,3 +259,88 @@ fn a_given_kappa_overrides_the_lattice_with_a_warning() {
     assert!(none.lattice.is_none());
     assert_eq!(none.phonon_conductance_at(300.0).unwrap(), 0.0);
 }
+
+/// Damping: uniform, replaced region by region (a later region wins), one
+/// value per orbital site (a strip repeats it across), and κ_ph for ZT
+/// taken with the probes floating. Damped sites hand part of the heat to
+/// their probes and take it back incoherently, which on an ordered chain
+/// breaks the ballistic channel up: κ_ph must fall below the undamped
+/// value (by more than 1 %, far above the spectrum's 1e-8 accuracy, so a
+/// build that dropped the damping, or used the undamped spectrum, fails)
+/// yet stay above the direct lead-to-lead part alone. Common practice for phonon probes (a chain with
+/// dissipation crosses over from ballistic to diffusive conduction).
+#[test]
+fn damping_is_set_per_site_and_lowers_kappa_ph() {
+    let lat = "[lattice]\nmass_u = 28.0\nspring_n_per_m = 30.0\n";
+    let undamped = case(CHAIN, lat).resolve().unwrap();
+    assert!(!undamped.lattice_is_damped());
+    assert!(undamped.probe_network().is_none());
+    let damped = case(
+        CHAIN,
+        &format!(
+            "{lat}damping_per_ps = 3.0\n\
+             [[lattice.region]]\nfrom_nm = 1.0\nto_nm = 3.0\ndamping_per_ps = 1.0\n\
+             [[lattice.region]]\nfrom_nm = 2.0\nto_nm = 2.6\ndamping_per_ps = 5.0\n"
+        ),
+    )
+    .resolve()
+    .unwrap();
+    let gamma = damped.lattice.as_ref().unwrap().damping_per_ps().to_vec();
+    assert_eq!(
+        gamma,
+        vec![3.0, 3.0, 1.0, 1.0, 5.0, 5.0, 3.0, 3.0, 3.0, 3.0]
+    );
+    assert!(damped.lattice_is_damped());
+    assert_eq!(
+        damped.probe_network().unwrap().unwrap().probe_sites().len(),
+        10
+    );
+    let k0 = undamped.phonon_conductance_at(300.0).unwrap();
+    let k1 = damped.phonon_conductance_at(300.0).unwrap();
+    assert!(
+        k1 > 0.0 && k1 < 0.99 * k0,
+        "damped {k1:e} vs undamped {k0:e}"
+    );
+    // The heat the probes take comes back (they float): more than the
+    // coherent transmission alone carries from lead to lead.
+    let direct = damped
+        .phonon_spectrum()
+        .unwrap()
+        .unwrap()
+        .conductance(300.0);
+    assert!(k1 > 1.01 * direct, "floating {k1:e} vs direct {direct:e}");
+    // The heat leak of a generator or cooler floats the probes too: across
+    // 2 K around 300 K it is κph·ΔT to second order in ΔT/T (relative
+    // 1e-4 leaves room for the (ΔT/T)² ≈ 4e-5 curvature, and the
+    // lead-to-lead part alone would be far off).
+    let leak = damped.phonon_heat_leak(301.0, 299.0).unwrap();
+    assert!(
+        (leak - 2.0 * k1).abs() <= 1e-4 * 2.0 * k1,
+        "leak {leak:e} vs κph ΔT {:e}",
+        2.0 * k1
+    );
+
+    let strip = case(
+        STRIP,
+        "[lattice]\nmass_u = 28.0\nspring_n_per_m = 30.0\ndamping_per_ps = 2.0\n",
+    )
+    .resolve()
+    .unwrap();
+    assert_eq!(strip.lattice.as_ref().unwrap().damping_per_ps(), &[2.0; 12]);
+}
+
+/// A sweep over the damping changes the lattice, so its spectrum is
+/// computed again rather than shared.
+#[test]
+fn damping_is_a_sweepable_key() {
+    let c = case(
+        CHAIN,
+        "[lattice]\nmass_u = 28.0\nspring_n_per_m = 30.0\ndamping_per_ps = 1.0\n",
+    );
+    let r = c
+        .with(CaseKey::LatticeDamping, 4.0)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert_eq!(r.lattice.as_ref().unwrap().damping_per_ps(), &[4.0; 10]);
+}

@@ -341,9 +341,38 @@ fn paths(v: &Value, at: &str, out: &mut Vec<String>) {
     }
 }
 
+/// A small case whose lattice is damped (so its summary has the
+/// `self_heating` object the demo's undamped lattice does not give).
+const DAMPED: &str = r#"name = "damped"
+[device]
+kind = "chain"
+spacing_nm = 0.5
+length_nm = 4.0
+effective_mass = 0.07
+[leads.left]
+fermi_level_ev = 0.06
+temperature_k = 300.0
+[leads.right]
+fermi_level_ev = 0.06
+temperature_k = 300.0
+[bias]
+voltage_v = 0.04
+[[phonon]]
+energy_ev = 0.04
+coupling_ev2 = 2e-3
+[grid]
+step_ev = 0.005
+[lattice]
+mass_u = 12.0
+spring_n_per_m = 2.0
+damping_per_ps = 4.0
+"#;
+
 /// Every key of a real solve summary is documented in docs/outputs.md (by
 /// its path, or inside an object documented as a whole), and every
 /// documented key is in the file: the document and the file cannot drift.
+/// The keys are those of the Peltier demo and of a case with a damped
+/// lattice together.
 #[test]
 fn solve_summary_keys_and_documentation_agree() {
     let tmp = tempfile::tempdir().unwrap();
@@ -352,6 +381,10 @@ fn solve_summary_keys_and_documentation_agree() {
     let s = summary(&out);
     let mut found = Vec::new();
     paths(&s, "", &mut found);
+    let damped = tmp.path().join("damped.toml");
+    std::fs::write(&damped, DAMPED).unwrap();
+    solve(&damped, &tmp.path().join("damped"));
+    paths(&summary(&tmp.path().join("damped")), "", &mut found);
     found.sort();
     found.dedup();
     let docs = qheat::output::schema::keys::summary_docs();

@@ -179,6 +179,19 @@ impl Resolved {
                 -lead.contact[(0, 0)]
             );
         }
+        let (glo, ghi) = range(&mut l.damping_per_ps().iter().copied());
+        let _ = writeln!(
+            s,
+            "            {}",
+            if ghi > 0.0 {
+                format!(
+                    "damping {glo} to {ghi} /ps: damped sites are phonon probes; solve heats the \
+                     lattice and κ_ph includes the probes"
+                )
+            } else {
+                "no damping: the lattice stays at the bath temperature".to_string()
+            }
+        );
         let top = l.band_top_rad_per_ps();
         let _ = writeln!(
             s,

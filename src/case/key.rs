@@ -101,6 +101,8 @@ pub enum CaseKey {
     LatticeSpring,
     /// `lattice.transverse_spring_n_per_m`
     LatticeTransverseSpring,
+    /// `lattice.damping_per_ps`
+    LatticeDamping,
     /// `lattice.region.#.from_nm`
     LatticeRegionFrom(usize),
     /// `lattice.region.#.to_nm`
@@ -109,6 +111,8 @@ pub enum CaseKey {
     LatticeRegionMass(usize),
     /// `lattice.region.#.spring_n_per_m`
     LatticeRegionSpring(usize),
+    /// `lattice.region.#.damping_per_ps`
+    LatticeRegionDamping(usize),
     /// `lattice.<side>.mass_u`
     LatticeLeadMass(Side),
     /// `lattice.<side>.spring_n_per_m`
@@ -168,10 +172,12 @@ const TEMPLATES: &[CaseKey] = &[
     K::LatticeMass,
     K::LatticeSpring,
     K::LatticeTransverseSpring,
+    K::LatticeDamping,
     K::LatticeRegionFrom(0),
     K::LatticeRegionTo(0),
     K::LatticeRegionMass(0),
     K::LatticeRegionSpring(0),
+    K::LatticeRegionDamping(0),
     K::LatticeLeadMass(Side::Left),
     K::LatticeLeadSpring(Side::Left),
     K::LatticeLeadMass(Side::Right),
@@ -233,10 +239,12 @@ impl CaseKey {
             K::LatticeMass => "lattice.mass_u",
             K::LatticeSpring => "lattice.spring_n_per_m",
             K::LatticeTransverseSpring => "lattice.transverse_spring_n_per_m",
+            K::LatticeDamping => "lattice.damping_per_ps",
             K::LatticeRegionFrom(_) => "lattice.region.#.from_nm",
             K::LatticeRegionTo(_) => "lattice.region.#.to_nm",
             K::LatticeRegionMass(_) => "lattice.region.#.mass_u",
             K::LatticeRegionSpring(_) => "lattice.region.#.spring_n_per_m",
+            K::LatticeRegionDamping(_) => "lattice.region.#.damping_per_ps",
             K::LatticeLeadMass(s) => lead_pattern(s, "lattice.left.mass_u", "lattice.right.mass_u"),
             K::LatticeLeadSpring(s) => lead_pattern(
                 s,
@@ -278,7 +286,8 @@ impl CaseKey {
             | K::LatticeRegionFrom(i)
             | K::LatticeRegionTo(i)
             | K::LatticeRegionMass(i)
-            | K::LatticeRegionSpring(i) => Some(i),
+            | K::LatticeRegionSpring(i)
+            | K::LatticeRegionDamping(i) => Some(i),
             _ => None,
         }
     }
@@ -300,6 +309,7 @@ impl CaseKey {
             K::LatticeRegionTo(_) => K::LatticeRegionTo(i),
             K::LatticeRegionMass(_) => K::LatticeRegionMass(i),
             K::LatticeRegionSpring(_) => K::LatticeRegionSpring(i),
+            K::LatticeRegionDamping(_) => K::LatticeRegionDamping(i),
             other => other,
         }
     }
@@ -523,6 +533,7 @@ impl CaseKey {
             K::LatticeRegionTo(n) => lattice_region(raw, n)?.to_nm = f,
             K::LatticeRegionMass(n) => lattice_region(raw, n)?.mass_u = f,
             K::LatticeRegionSpring(n) => lattice_region(raw, n)?.spring_n_per_m = f,
+            K::LatticeRegionDamping(n) => lattice_region(raw, n)?.damping_per_ps = f,
             _ => self.set_setting(raw, f, i),
         }
         Ok(())
@@ -550,6 +561,7 @@ impl CaseKey {
             K::LatticeMass => table(&mut raw.lattice).mass_u = f,
             K::LatticeSpring => table(&mut raw.lattice).spring_n_per_m = f,
             K::LatticeTransverseSpring => table(&mut raw.lattice).transverse_spring_n_per_m = f,
+            K::LatticeDamping => table(&mut raw.lattice).damping_per_ps = f,
             K::LatticeLeadMass(s) => lattice_lead(raw, s).mass_u = f,
             K::LatticeLeadSpring(s) => lattice_lead(raw, s).spring_n_per_m = f,
             // The keys of the device, leads, bias and phonons are set in

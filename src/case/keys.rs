@@ -572,6 +572,13 @@ pub static KEYS: &[KeyInfo] = &[
         "spring between neighbouring sites across a strip (strip only)",
     ),
     key(
+        "lattice.damping_per_ps",
+        Float,
+        "1/ps",
+        Text("0 (no damping)"),
+        "damping γ of every lattice site; γ > 0 makes the site a floating phonon probe, so `solve` heats the lattice and κ_ph includes the probes; every site a phonon mode couples to must then be damped",
+    ),
+    key(
         "lattice.region.#.from_nm",
         Float,
         "nm",
@@ -598,6 +605,13 @@ pub static KEYS: &[KeyInfo] = &[
         "N/m",
         Text("uniform value"),
         "spring of the bonds (i, i+1) of the region's sites i; replaces the uniform value (a later region wins)",
+    ),
+    key(
+        "lattice.region.#.damping_per_ps",
+        Float,
+        "1/ps",
+        Text("uniform value"),
+        "damping γ of the region's sites; replaces the uniform value (a later region wins)",
     ),
     key(
         "lattice.left.mass_u",

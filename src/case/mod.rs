@@ -169,7 +169,8 @@ impl Case {
                 CaseKey::LatticeRegionFrom(_)
                 | CaseKey::LatticeRegionTo(_)
                 | CaseKey::LatticeRegionMass(_)
-                | CaseKey::LatticeRegionSpring(_) => lattice_regions,
+                | CaseKey::LatticeRegionSpring(_)
+                | CaseKey::LatticeRegionDamping(_) => lattice_regions,
                 _ if t.index().is_some() => phonons,
                 _ => {
                     out.push(*t);

@@ -10,7 +10,9 @@
 //! over a lattice key computes it again.
 
 use super::resolve::Resolved;
-use crate::lattice::{Lattice, LatticeError, PhononSpectrum, SpectrumParams};
+use crate::lattice::{
+    FloatParams, Lattice, LatticeError, PhononSpectrum, ProbeNetwork, SpectrumParams,
+};
 use std::sync::{Arc, OnceLock};
 
 /// ħω in meV for an angular frequency in rad/ps.
@@ -50,30 +52,44 @@ impl PhononConductanceSource {
     }
 }
 
-/// The phonon spectrum of a lattice, computed on first use and shared by
+/// The phonon spectrum of a lattice and, when the lattice is damped, its
+/// network of phonon probes; each computed on first use and shared by
 /// clones (cheap to clone).
 #[derive(Clone, Debug, Default)]
-pub struct SpectrumCache(Arc<OnceLock<Result<PhononSpectrum, LatticeError>>>);
+pub struct SpectrumCache {
+    spectrum: Arc<OnceLock<Result<PhononSpectrum, LatticeError>>>,
+    network: Arc<OnceLock<Result<ProbeNetwork, LatticeError>>>,
+}
 
 impl SpectrumCache {
     /// The spectrum of `lattice`, computed with the default frequency
     /// rule ([`SpectrumParams::default`]: κ_ph converged to a relative 1e-8
     /// at and between 1 K and 1000 K) the first time it is asked for.
     fn get(&self, lattice: &Lattice) -> Result<&PhononSpectrum, LatticeError> {
-        self.0
+        self.spectrum
             .get_or_init(|| PhononSpectrum::compute(lattice, &SpectrumParams::default()))
+            .as_ref()
+            .map_err(Clone::clone)
+    }
+
+    /// The probe network of `lattice` on its spectrum's frequency nodes,
+    /// computed the first time it is asked for.
+    fn network(&self, lattice: &Lattice) -> Result<&ProbeNetwork, LatticeError> {
+        let spectrum = self.get(lattice)?;
+        self.network
+            .get_or_init(|| ProbeNetwork::compute(lattice, spectrum))
             .as_ref()
             .map_err(Clone::clone)
     }
 
     /// True when the spectrum has been computed (or failed) already.
     pub fn is_computed(&self) -> bool {
-        self.0.get().is_some()
+        self.spectrum.get().is_some()
     }
 
     /// True when both handles share one spectrum.
     pub fn is_shared_with(&self, other: &SpectrumCache) -> bool {
-        Arc::ptr_eq(&self.0, &other.0)
+        Arc::ptr_eq(&self.spectrum, &other.spectrum)
     }
 }
 
@@ -111,22 +127,53 @@ impl Resolved {
             .map(|l| self.phonon_spectrum_cache.get(l))
     }
 
+    /// True when the case's lattice has a damped site (so phonon probes,
+    /// and `solve` heats the lattice).
+    pub fn lattice_is_damped(&self) -> bool {
+        self.lattice
+            .as_ref()
+            .is_some_and(|l| l.damping_per_ps().iter().any(|&g| g > 0.0))
+    }
+
+    /// The probe network of a damped lattice (`None` without a lattice or
+    /// without damping); computed once, on the spectrum's nodes, and
+    /// shared like the spectrum.
+    pub fn probe_network(&self) -> Option<Result<&ProbeNetwork, LatticeError>> {
+        let l = self.lattice.as_ref().filter(|_| self.lattice_is_damped())?;
+        Some(self.phonon_spectrum_cache.network(l))
+    }
+
     /// κ_ph for ZT at `temperature_k` (W/K): the given value, the lattice's
-    /// two-terminal conductance at that temperature, or 0.
+    /// conductance at that temperature, or 0. A damped lattice conducts
+    /// with its probes floating (each nets zero heat), so heat that leaves
+    /// the coherent path through a probe and comes back counts.
     pub fn phonon_conductance_at(&self, temperature_k: f64) -> Result<f64, LatticeError> {
-        match self.phonon_conductance_source() {
-            PhononConductanceSource::Lattice => match self.phonon_spectrum() {
-                Some(s) => Ok(s?.conductance(temperature_k)),
-                None => Ok(0.0),
-            },
-            _ => Ok(self.phonon_conductance_w_per_k),
+        if self.phonon_conductance_source() != PhononConductanceSource::Lattice {
+            return Ok(self.phonon_conductance_w_per_k);
+        }
+        if let Some(net) = self.probe_network() {
+            return Ok(net?.floating_conductance(temperature_k));
+        }
+        match self.phonon_spectrum() {
+            Some(s) => Ok(s?.conductance(temperature_k)),
+            None => Ok(0.0),
         }
     }
 
     /// Heat (W) that the lattice carries from a reservoir at `hot_k` to
-    /// one at `cold_k`: J_ph from the spectrum with a lattice, κ_ph ΔT with
+    /// one at `cold_k`: J_ph from the spectrum with a lattice (with damping,
+    /// the heat into the cold lead with every probe floating at zero net
+    /// heat), κ_ph ΔT with
     /// a given κ_ph (it wins over the lattice, as for ZT), 0 with neither.
     pub fn phonon_heat_leak(&self, hot_k: f64, cold_k: f64) -> Result<f64, LatticeError> {
+        let lattice_source = self.phonon_conductance_source() == PhononConductanceSource::Lattice;
+        if let (true, Some(net)) = (lattice_source, self.probe_network()) {
+            let sites = self
+                .lattice
+                .as_ref()
+                .map_or(0, |l| l.damping_per_ps().len());
+            return floating_leak(net?, sites, hot_k, cold_k);
+        }
         match self.phonon_conductance_source() {
             PhononConductanceSource::Lattice => match self.phonon_spectrum() {
                 Some(s) => Ok(s?.heat_current(hot_k, cold_k)),
@@ -135,4 +182,22 @@ impl Resolved {
             _ => Ok(self.phonon_conductance_w_per_k * (hot_k - cold_k)),
         }
     }
+}
+
+/// Heat into the cold phonon lead (W) with the left lead at `hot_k`, the
+/// right at `cold_k` and every probe floating with no power of its own.
+fn floating_leak(
+    net: &ProbeNetwork,
+    sites: usize,
+    hot_k: f64,
+    cold_k: f64,
+) -> Result<f64, LatticeError> {
+    let zeros = vec![0.0; sites];
+    net.float_temperatures(hot_k, cold_k, &zeros, &FloatParams::default())
+        .map(|f| f.right_lead_heat_w)
+        .map_err(|e| LatticeError::Invalid {
+            what: "floating phonon probes".into(),
+            problem: e.to_string(),
+            hint: "check lattice.damping_per_ps and the contact temperatures".into(),
+        })
 }

@@ -156,6 +156,7 @@ pub(crate) struct RawLattice {
     pub mass_u: Opt<f64>,
     pub spring_n_per_m: Opt<f64>,
     pub transverse_spring_n_per_m: Opt<f64>,
+    pub damping_per_ps: Opt<f64>,
     pub region: Option<Vec<Spanned<RawLatticeRegion>>>,
     pub left: Opt<RawLatticeLead>,
     pub right: Opt<RawLatticeLead>,
@@ -164,13 +165,14 @@ pub(crate) struct RawLattice {
 #[derive(Deserialize, Debug, Clone, Default)]
 #[serde(
     deny_unknown_fields,
-    expecting = "a table with from_nm, to_nm and mass_u and/or spring_n_per_m"
+    expecting = "a table with from_nm, to_nm and mass_u, spring_n_per_m and/or damping_per_ps"
 )]
 pub(crate) struct RawLatticeRegion {
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
     pub mass_u: Opt<f64>,
     pub spring_n_per_m: Opt<f64>,
+    pub damping_per_ps: Opt<f64>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]

@@ -767,6 +767,42 @@ fn build_lattice(
     })
 }
 
+/// With any damping, every orbital site a phonon mode couples to must be
+/// damped: the power the electrons deposit there needs a reservoir to go
+/// to, and an undamped site has none (no temperature of its own).
+fn check_damping_covers_modes(
+    lattice: &crate::lattice::Lattice,
+    scattering: &Scattering,
+    (span, spacing_nm): (Option<std::ops::Range<usize>>, f64),
+    ctx: &ErrorContext<'_>,
+) -> Result<(), CaseError> {
+    let gamma = lattice.damping_per_ps();
+    if !gamma.iter().any(|&g| g > 0.0) {
+        return Ok(());
+    }
+    let per_cell = lattice.sites_per_cell();
+    for (m, mode) in scattering.phonons.iter().enumerate() {
+        let bare = mode
+            .coupling_ev2
+            .iter()
+            .zip(gamma)
+            .position(|(&d, &g)| d > 0.0 && g <= 0.0);
+        if let Some(site) = bare {
+            return Err(ctx.invalid(
+                span,
+                "lattice.damping_per_ps",
+                "damping > 0 on every site a phonon mode couples to once any site is damped                  (hint: give lattice.damping_per_ps a value > 0, or a [[lattice.region]]                  damping_per_ps over that cell, or limit the phonon's region)",
+                format!(
+                    "phonon.{m} coupling on site {site} (cell {}, x = {} nm) where the damping is 0",
+                    site / per_cell,
+                    (site / per_cell) as f64 * spacing_nm,
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// The resolved case from its parts, with the last checks and notes.
 fn assemble(
     spec: &CaseSpec,
@@ -778,6 +814,10 @@ fn assemble(
     mut remarks: Remarks,
 ) -> Result<Resolved, CaseError> {
     let lattice = build_lattice(spec, ctx)?;
+    if let (Some(l), Some(ls)) = (&lattice, &spec.lattice) {
+        let at = (ls.span.clone(), spec.device.spacing_nm);
+        check_damping_covers_modes(l, &scattering, at, ctx)?;
+    }
     let phonon_conductance = match (spec.thermal.phonon_conductance_w_per_k, &lattice) {
         (Some(k), Some(_)) => {
             remarks.warnings.push(format!(

@@ -8,11 +8,15 @@ use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::{RunInfo, header, read_self_energy, solve_summary, write_solve_files};
 use qheat::output::schema::summary::{
-    CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SolveResults,
-    SolveSummary, to_text,
+    CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SelfHeatingSummary,
+    SolveResults, SolveSummary, to_text,
 };
+use qheat::output::schema::tables::cell_lattice_temperature;
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
+use qheat::progress::Observer;
+use qheat::scattering::ScatteringSelfEnergy;
 use qheat::scba::{Solution, SolveError, solve as born_solve};
+use qheat::selfheat::{self, FloatingProbes, SelfHeatParams, SelfHeatReport, SelfHeatStart};
 use std::path::Path;
 
 /// Load and resolve a case, printing its warnings.
@@ -111,6 +115,9 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     if let Some(l) = &summary.lattice {
         super::lattice::print_lattice(l);
     }
+    if let Some(h) = &summary.self_heating {
+        print_self_heating(h);
+    }
     let l = &o.ledger;
     println!(
         "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
@@ -123,6 +130,32 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     );
     println!("results           {}", out.display());
 }
+/// Terminal lines of the joint electron–lattice loop.
+fn print_self_heating(h: &SelfHeatingSummary) {
+    println!(
+        "self-heating      {} after {} outer iterations ({} Born iterations), last change {} K",
+        if h.converged {
+            "converged"
+        } else {
+            "NOT CONVERGED"
+        },
+        h.outer_iterations,
+        h.born_iterations,
+        residual(h.last_change_k)
+    );
+    println!(
+        "  hottest lattice x = {} nm: {:.3} K",
+        number(h.hottest_x_nm),
+        h.hottest_lattice_k
+    );
+    println!(
+        "  phonon leads    heat out left {}  right {}  (lattice ledger {})",
+        si(h.left_phonon_lead_heat_w, "W", 4),
+        si(h.right_phonon_lead_heat_w, "W", 4),
+        residual(h.ledger_relative)
+    );
+}
+
 fn print_born_loop(sol: &Solution) {
     let r = &sol.report;
     if sol.problem.scattering.is_coherent() {
@@ -214,7 +247,7 @@ pub fn solve(
         None => None,
     };
     let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
-    let result = born_solve(&resolved.problem, &resolved.scba, warm.as_ref(), &mut bar);
+    let result = run_solve(&resolved, warm.as_ref(), &mut bar);
     bar.finish();
     let case_toml = case.to_toml_string();
     let info = RunInfo {
@@ -225,9 +258,10 @@ pub fn solve(
         notes: &resolved.notes,
         threads: common.threads,
     };
-    let sol = match result {
+    let (sol, heat) = match result {
         Ok(s) => s,
-        Err(e) => {
+        Err(RunError::Other(message)) => return Err(Failure::Solver(message)),
+        Err(RunError::Born(e)) => {
             write_failure(&out_dir, other_files, &info, &e)?;
             return Err(Failure::Solver(format!(
                 "{e}; nothing trustworthy was computed (summary.json in {} says so)",
@@ -242,6 +276,11 @@ pub fn solve(
         },
     );
     let mut summary = solve_summary(&sol, &o, &info);
+    summary.self_heating = heat.as_ref().map(|h| self_heating_summary(&sol, &o, h));
+    if heat.as_ref().is_some_and(|h| !h.report.converged) {
+        summary.converged = false;
+        summary.trustworthy = false;
+    }
     // The lattice at the mean lead temperature.
     let t = 0.5 * (resolved.problem.left.temperature_k + resolved.problem.right.temperature_k);
     let phonons = super::lattice::spectrum(&resolved)?;
@@ -258,6 +297,27 @@ pub fn solve(
     } else if !common.quiet {
         print_summary(&sol, &o, &summary, &out_dir);
     }
+    not_converged(&sol, heat.as_ref(), &out_dir)
+}
+
+/// Exit 2 when the joint loop or the Born loop stopped short (the results
+/// are written and flagged by then).
+fn not_converged(
+    sol: &Solution,
+    heat: Option<&SelfHeatRun>,
+    out_dir: &Path,
+) -> Result<(), Failure> {
+    if let Some(h) = heat.filter(|h| !h.report.converged) {
+        return Err(Failure::Solver(format!(
+            "the joint electron–lattice loop did not converge in {} outer iterations (last change \
+             of the lattice temperature {:.3e} K against a tolerance of {:.1e} K); results in {} \
+             are flagged as not converged",
+            h.report.iterations,
+            h.report.last_change_k,
+            h.report.params.tolerance_k,
+            out_dir.display()
+        )));
+    }
     if !sol.report.converged {
         let last = sol.report.history.last();
         return Err(Failure::Solver(format!(
@@ -270,6 +330,84 @@ pub fn solve(
         )));
     }
     Ok(())
+}
+
+/// What the joint electron–lattice loop adds to a solve.
+struct SelfHeatRun {
+    report: SelfHeatReport,
+    left_lead_heat_w: f64,
+    right_lead_heat_w: f64,
+}
+
+/// Why a solve gave no solution: a Born fault (written to summary.json)
+/// or a fault of the lattice side.
+enum RunError {
+    Born(SolveError),
+    Other(String),
+}
+
+/// The plain Born solve, or with a damped lattice the joint loop with the
+/// phonon leads at the two contact temperatures.
+fn run_solve(
+    resolved: &Resolved,
+    warm: Option<&ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<(Solution, Option<SelfHeatRun>), RunError> {
+    let p = &resolved.problem;
+    let network = match resolved.probe_network() {
+        Some(n) if !p.scattering.phonons.is_empty() => n.map_err(|e| {
+            RunError::Other(format!(
+                "phonon probes of the case's [lattice]: {e}; nothing was written"
+            ))
+        })?,
+        _ => {
+            return born_solve(p, &resolved.scba, warm, observer)
+                .map(|s| (s, None))
+                .map_err(RunError::Born);
+        }
+    };
+    let mut probes = FloatingProbes::new(network, p.left.temperature_k, p.right.temperature_k);
+    let start = SelfHeatStart {
+        sigma: warm,
+        ..SelfHeatStart::default()
+    };
+    let params = SelfHeatParams::default();
+    let s =
+        selfheat::solve(p, &resolved.scba, &params, &mut probes, start, observer).map_err(|e| {
+            match e {
+                selfheat::SelfHeatError::Solve { source, .. } => RunError::Born(source),
+                e => RunError::Other(format!("{e}; nothing was written")),
+            }
+        })?;
+    let last = probes.last();
+    let run = SelfHeatRun {
+        report: s.report,
+        left_lead_heat_w: last.map_or(f64::NAN, |l| l.left_lead_heat_w),
+        right_lead_heat_w: last.map_or(f64::NAN, |l| l.right_lead_heat_w),
+    };
+    Ok((s.solution, Some(run)))
+}
+
+/// The hottest cell of the lattice, the heat out of each phonon lead, the
+/// lattice-heat ledger and the loop's record.
+fn self_heating_summary(sol: &Solution, o: &Observables, h: &SelfHeatRun) -> SelfHeatingSummary {
+    let (cell, hottest) = (0..sol.problem.device.cells())
+        .map(|c| (c, cell_lattice_temperature(sol, c)))
+        .fold((0, f64::NEG_INFINITY), |a, b| if b.1 > a.1 { b } else { a });
+    let electron_loss = o.energy_current_left_w + o.energy_current_right_w;
+    let phonon_out = h.left_lead_heat_w + h.right_lead_heat_w;
+    SelfHeatingSummary {
+        hottest_lattice_k: hottest,
+        hottest_x_nm: o.sites.x_nm[cell],
+        left_phonon_lead_heat_w: h.left_lead_heat_w,
+        right_phonon_lead_heat_w: h.right_lead_heat_w,
+        ledger_relative: (electron_loss - phonon_out).abs() / electron_loss.abs(),
+        outer_iterations: h.report.iterations,
+        born_iterations: h.report.born_iterations,
+        last_change_k: h.report.last_change_k,
+        tolerance_k: h.report.params.tolerance_k,
+        converged: h.report.converged,
+    }
 }
 
 /// A summary that says the run failed, so nobody mistakes old files for it.

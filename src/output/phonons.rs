@@ -23,9 +23,15 @@ pub fn lattice_summary(
         .lattice
         .as_ref()
         .map_or(f64::NAN, |l| phonon_energy_mev(l.band_top_rad_per_ps()));
+    // A damped lattice conducts with its probes floating (what ZT uses);
+    // a network that failed leaves the number undefined.
+    let kappa = match resolved.probe_network() {
+        Some(net) => net.map_or(f64::NAN, |n| n.floating_conductance(temperature_k)),
+        None => spectrum.conductance(temperature_k),
+    };
     LatticeSummary {
         temperature_k,
-        phonon_conductance_w_per_k: spectrum.conductance(temperature_k),
+        phonon_conductance_w_per_k: kappa,
         phonon_conductance_source: resolved.phonon_conductance_source(),
         band_top_mev: top,
         frequency_points: spectrum.len(),

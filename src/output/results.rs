@@ -194,6 +194,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         local_fermi_level: fermi_level_info(o),
         scba: to_json(&sol.report),
         lattice: None,
+        self_heating: None,
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),

@@ -9,6 +9,10 @@
 //! bond (i, i+1), so the last site's spring is the bond to the right lead.
 //! A strip has the same values on every site of a cell, and one transverse
 //! spring between neighbouring sites across (default: `spring_n_per_m`).
+//! `damping_per_ps` (γ, 1/ps, default 0) is set the same way, uniform and
+//! then region by region; a site with γ > 0 exchanges heat with a
+//! floating phonon reservoir of its own (a probe), which is what lets the
+//! lattice warm up where the electrons deposit power.
 //! Each phonon lead continues its end site unless `[lattice.left]` or
 //! `[lattice.right]` names its own mass and/or spring; the bond joining a
 //! lead to the device has the lead's spring.
@@ -26,6 +30,9 @@ use toml::Spanned;
 /// it keeps ω²-scale numbers of the solve finite and well scaled.
 const MAX_MASS_U: f64 = 1e6;
 const MAX_SPRING_N_PER_M: f64 = 1e6;
+/// Largest damping accepted (1/ps): far above any phonon frequency, so
+/// far beyond an overdamped lattice.
+const MAX_DAMPING_PER_PS: f64 = 1e4;
 
 /// One `[[lattice.region]]`: replaces the mass and/or spring of the sites
 /// of the cells it selects.
@@ -35,6 +42,7 @@ pub(crate) struct LatticeRegion {
     pub to_nm: f64,
     pub mass_u: Option<f64>,
     pub spring_n_per_m: Option<f64>,
+    pub damping_per_ps: Option<f64>,
 }
 
 /// A lead of its own (`None` values continue the end site).
@@ -50,6 +58,8 @@ pub(crate) struct LatticeSpec {
     pub mass_u: f64,
     pub spring_n_per_m: f64,
     pub transverse_spring_n_per_m: f64,
+    /// Uniform damping γ (1/ps).
+    pub damping_per_ps: f64,
     pub regions: Vec<LatticeRegion>,
     pub left: LatticeLeadSpec,
     pub right: LatticeLeadSpec,
@@ -96,11 +106,13 @@ impl LatticeSpec {
              solids have 5 to 100 N/m)",
         )?;
         let transverse = transverse(l, ck, device)?.unwrap_or(spring_n_per_m);
+        let damping_per_ps = damping(ck, &l.damping_per_ps, "lattice.damping_per_ps")?;
         let regions = regions(l, ck, device, warnings)?;
         Ok(Some(Self {
             mass_u,
             spring_n_per_m,
             transverse_spring_n_per_m: transverse,
+            damping_per_ps: damping_per_ps.unwrap_or(0.0),
             regions,
             left: lead(ck, &l.left, "lattice.left")?,
             right: lead(ck, &l.right, "lattice.right")?,
@@ -127,8 +139,33 @@ impl LatticeSpec {
         (masses, springs)
     }
 
-    /// The lattice of the device and its two phonon leads.
+    /// Damping γ of every cell (1/ps; a strip has the same value across).
+    pub fn damping_per_cell(&self, device: &DeviceSpec) -> Vec<f64> {
+        let mut gamma = vec![self.damping_per_ps; device.cells];
+        for r in &self.regions {
+            if let Some(g) = r.damping_per_ps {
+                for c in cells_in(device, r.from_nm, r.to_nm) {
+                    gamma[c] = g;
+                }
+            }
+        }
+        gamma
+    }
+
+    /// The lattice of the device and its two phonon leads, with the
+    /// damping of every site.
     pub fn build(&self, device: &DeviceSpec) -> Result<Lattice, LatticeError> {
+        let lattice = self.build_undamped(device)?;
+        let per_site = lattice.sites_per_cell();
+        let gamma = self
+            .damping_per_cell(device)
+            .iter()
+            .flat_map(|&g| std::iter::repeat_n(g, per_site))
+            .collect();
+        lattice.with_damping(gamma)
+    }
+
+    fn build_undamped(&self, device: &DeviceSpec) -> Result<Lattice, LatticeError> {
         let (masses, springs) = self.per_cell(device);
         let n = masses.len();
         let (ml, kl) = (
@@ -198,6 +235,15 @@ fn strip_blocks(
         .map(|&k| Mat::from_fn(width, width, |r, c| if r == c { -k } else { 0.0 }))
         .collect();
     (onsite, coupling)
+}
+
+fn damping(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+    ck.ranged(
+        v,
+        key,
+        &format!("a damping rate in 1/ps, ≥ 0 and ≤ {MAX_DAMPING_PER_PS:e} (hint: 0 means no damping; a few per ps is a strongly damped lattice)"),
+        |x| (0.0..=MAX_DAMPING_PER_PS).contains(&x),
+    )
 }
 
 fn mass(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
@@ -288,11 +334,12 @@ fn one_region(
     )?;
     let mass_u = mass(ck, &r.mass_u, &format!("{prefix}.mass_u"))?;
     let spring_n_per_m = spring(ck, &r.spring_n_per_m, &format!("{prefix}.spring_n_per_m"))?;
-    if mass_u.is_none() && spring_n_per_m.is_none() {
+    let damping_per_ps = damping(ck, &r.damping_per_ps, &format!("{prefix}.damping_per_ps"))?;
+    if mass_u.is_none() && spring_n_per_m.is_none() && damping_per_ps.is_none() {
         return Err(ck.ctx.missing(
             Some(span),
             &format!("{prefix}.mass_u"),
-            "mass_u and/or spring_n_per_m (the values the region puts in place of the uniform ones)",
+            "mass_u, spring_n_per_m and/or damping_per_ps (the values the region puts in place of the uniform ones)",
         ));
     }
     Ok(LatticeRegion {
@@ -300,5 +347,6 @@ fn one_region(
         to_nm,
         mass_u,
         spring_n_per_m,
+        damping_per_ps,
     })
 }

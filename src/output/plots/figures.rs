@@ -336,9 +336,9 @@ fn power_entries(pw: &[f64]) -> Vec<(Mark, String)> {
 fn draw_power_panel(
     area: &Area<'_>,
     span: &Span,
-    pw: &[f64],
-    x_nm: &[f64],
+    (pw, x_nm): (&[f64], &[f64]),
     coherent: bool,
+    lowest: bool,
 ) -> Result<(), DrawError> {
     let (pf, pp) = prefix_for(max_abs(pw));
     let all_zero = pw.iter().all(|v| *v == 0.0);
@@ -353,7 +353,7 @@ fn draw_power_panel(
     } else {
         format!("lattice power per cell ({pp}W)")
     };
-    let x_desc = Some("position x (nm)");
+    let x_desc = lowest.then_some("position x (nm)");
     let mut chart = panel(area, span.x, p_range, x_desc, &y_desc, &span.shade())?;
     let a = span.a;
     chart.draw_series(
@@ -377,10 +377,70 @@ fn draw_power_panel(
     Ok(())
 }
 
+/// Entries of a panel's legend.
+type Legend = Vec<(Mark, String)>;
+
+/// The lattice temperature of a self-heated solve, per cell (K), and the
+/// legend of its panel; `None` without self-heating.
+fn temperature_panel(sol: &Solution) -> Option<(Vec<f64>, Legend)> {
+    sol.lattice_temperature_k.as_ref()?;
+    let p = &sol.problem;
+    let t: Vec<f64> = (0..p.device.cells())
+        .map(|c| crate::output::schema::tables::cell_lattice_temperature(sol, c))
+        .collect();
+    let hot = t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let entries = vec![
+        (
+            Mark::Line(LATTICE_TEMPERATURE, false),
+            format!("lattice temperature T_L, hottest {hot:.1} K"),
+        ),
+        (
+            Mark::Line(LEFT, true),
+            format!("left contact {} K", short(p.left.temperature_k)),
+        ),
+        (
+            Mark::Line(RIGHT, true),
+            format!("right contact {} K", short(p.right.temperature_k)),
+        ),
+    ];
+    Some((t, entries))
+}
+
+/// Lowest panel of device.svg with self-heating: T_L per cell as steps,
+/// the contact (phonon lead) temperatures dashed.
+fn draw_temperature_panel(
+    area: &Area<'_>,
+    span: &Span,
+    sol: &Solution,
+    (x_nm, t): (&[f64], &[f64]),
+) -> Result<(), DrawError> {
+    let p = &sol.problem;
+    let (tl, tr) = (p.left.temperature_k, p.right.temperature_k);
+    let (lo, hi) = finite_range(t.iter().chain([&tl, &tr])).unwrap_or((tl, tr));
+    let range = padded(lo, hi.max(lo + 1e-3), 0.08);
+    let x_desc = Some("position x (nm)");
+    let y_desc = "lattice temperature (K)";
+    let mut chart = panel(area, span.x, range, x_desc, y_desc, &span.shade())?;
+    for (temp, colour) in [(tl, LEFT), (tr, RIGHT)] {
+        chart.draw_series(DashedLineSeries::new(
+            vec![(span.x.0, temp), (span.x.1, temp)],
+            6,
+            4,
+            colour.stroke_width(2),
+        ))?;
+    }
+    chart.draw_series(LineSeries::new(
+        steps(x_nm, t, span.a, 1.0),
+        LATTICE_TEMPERATURE.stroke_width(3),
+    ))?;
+    Ok(())
+}
+
 /// device.svg: band edge with the local and lead Fermi levels; the drop of
 /// the local Fermi level per cell (where the resistance sits); the lattice
-/// power per cell (where heat is deposited or taken), on one position axis.
-/// The leads are drawn in neutral greys, heating and cooling in orange and
+/// power per cell (where heat is deposited or taken), on one position axis;
+/// with self-heating, below it the lattice temperature per cell against the
+/// contact temperatures (where the heat piles up). The leads are drawn in neutral greys, heating and cooling in orange and
 /// blue, so no colour stands for two things.
 pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
     const FIGURE: &str = "device.svg";
@@ -402,11 +462,14 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
     let ep = energy_panel(sol, o);
     let dp = drop_panel(o, a);
     let bottom_entries = power_entries(&s.lattice_power_w);
+    let heat = temperature_panel(sol);
     let left = (MARGIN_LEFT + Y_AREA) as i32;
     let lh = |e: &[(Mark, String)]| legend_height(e, left, WIDTH as i32);
     let (h_top, h_mid) = (300u32, 200u32);
     let (l_top, l_mid, l_bot) = (lh(&ep.entries), lh(&dp.entries), lh(&bottom_entries));
-    let height = 44 + l_top + h_top + l_mid + h_mid + l_bot + 250 + 30;
+    let (l_heat, h_heat) = heat.as_ref().map_or((0, 0), |(_, e)| (lh(e), 220));
+    let h_power = if heat.is_some() { 200 } else { 250 };
+    let height = 44 + l_top + h_top + l_mid + h_mid + l_bot + h_power + l_heat + h_heat + 30;
     let (cf, cp) = prefix_for(o.current_a.abs());
     let title = format!(
         "Along the device: V = {} mV, T left {} K, T right {} K, I = {} {cp}A",
@@ -423,12 +486,20 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
         let (strip, rest) = rest.split_vertically(l_mid);
         draw_legend(&strip, &dp.entries, left)?;
         let (mid, rest) = rest.split_vertically(h_mid);
-        let (strip, bottom) = rest.split_vertically(l_bot);
+        let (strip, rest) = rest.split_vertically(l_bot);
         draw_legend(&strip, &bottom_entries, left)?;
+        let (power, rest) = rest.split_vertically(h_power);
         draw_energy_panel(&top, sol, o, &span, &ep)?;
         draw_drop_panel(&mid, &span, &dp)?;
         let coherent = p.scattering.is_coherent();
-        draw_power_panel(&bottom, &span, &s.lattice_power_w, &s.x_nm, coherent)
+        let pw = (s.lattice_power_w.as_slice(), s.x_nm.as_slice());
+        draw_power_panel(&power, &span, pw, coherent, heat.is_none())?;
+        if let Some((t, entries)) = &heat {
+            let (strip, lowest) = rest.split_vertically(l_heat);
+            draw_legend(&strip, entries, left)?;
+            draw_temperature_panel(&lowest, &span, sol, (&s.x_nm, t))?;
+        }
+        Ok(())
     })
 }
 

@@ -50,9 +50,13 @@ pub const RESIDUAL: RGBColor = RGBColor(0x1f, 0x4e, 0x5f);
 /// Change of the terminal currents between Born iterations.
 pub const CURRENT_CHANGE: RGBColor = RGBColor(0xc2, 0x7c, 0x0e);
 
+/// Lattice temperature T_L(x) of a self-heated solve: a dark red, apart
+/// from the orange of heating (a power) by lightness and hue.
+pub const LATTICE_TEMPERATURE: RGBColor = RGBColor(0x7a, 0x12, 0x2a);
+
 /// Every named colour of the solve figures with what it stands for; each
 /// meaning has its own colour, in every figure.
-pub const MEANINGS: [(RGBColor, &str); 15] = [
+pub const MEANINGS: [(RGBColor, &str); 16] = [
     (INK, "axes, text and the band edge"),
     (LEAD_SHADE, "lead regions"),
     (HEATING, "lattice heated"),
@@ -68,6 +72,7 @@ pub const MEANINGS: [(RGBColor, &str); 15] = [
     (RESIDUAL, "Born-loop residual"),
     (CURRENT_CHANGE, "change of the terminal currents"),
     (GRID, "grid lines"),
+    (LATTICE_TEMPERATURE, "lattice temperature"),
 ];
 
 /// Colours of the series of a generic line chart, in order: chosen to stay

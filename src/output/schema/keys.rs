@@ -569,7 +569,7 @@ const LATTICE: [Key; 5] = [
     (
         "phonon_conductance_w_per_k",
         "W/K",
-        "two-terminal lattice thermal conductance κph of the case's [lattice] at temperature_k",
+        "lattice thermal conductance κph of the case's [lattice] at temperature_k: two-terminal, or with damping the conductance with every damped site a floating probe",
     ),
     (
         "phonon_conductance_source",
@@ -585,6 +585,55 @@ const LATTICE: [Key; 5] = [
         "frequency_points",
         "1",
         "frequency nodes of the κph quadrature",
+    ),
+];
+
+const SELF_HEATING: [Key; 10] = [
+    (
+        "hottest_lattice_k",
+        "K",
+        "hottest lattice temperature of sites.csv (lattice_temperature_k, the mean over a cell's sites)",
+    ),
+    ("hottest_x_nm", "nm", "x of that cell"),
+    (
+        "left_phonon_lead_heat_w",
+        "W",
+        "heat leaving the device through the left phonon lead (held at the left contact temperature)",
+    ),
+    (
+        "right_phonon_lead_heat_w",
+        "W",
+        "heat leaving the device through the right phonon lead (held at the right contact temperature)",
+    ),
+    (
+        "ledger_relative",
+        "1",
+        "lattice-heat ledger |J_E,1 + J_E,2 − (heat out of both phonon leads)| / |J_E,1 + J_E,2|: the energy the electron leads lose must leave through the phonon leads",
+    ),
+    (
+        "outer_iterations",
+        "1",
+        "outer iterations of the joint electron–lattice loop (one Born solve each)",
+    ),
+    (
+        "born_iterations",
+        "1",
+        "Born iterations summed over the outer iterations",
+    ),
+    (
+        "last_change_k",
+        "K",
+        "largest change of a site's lattice temperature in the last outer iteration",
+    ),
+    (
+        "tolerance_k",
+        "K",
+        "the loop stops when last_change_k is at most this",
+    ),
+    (
+        "converged",
+        "-",
+        "the loop met tolerance_k and its last Born solve converged",
     ),
 ];
 
@@ -758,6 +807,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "", &SOLVE_TAIL);
     keys(&mut f, "grid.", &GRID);
     keys(&mut f, "lattice.", &LATTICE);
+    keys(&mut f, "self_heating.", &SELF_HEATING);
     keys(&mut f, "", &RUN);
     f
 }

@@ -184,9 +184,28 @@ pub struct SolveSummary {
     pub scba: Value,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub lattice: Option<LatticeSummary>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub self_heating: Option<SelfHeatingSummary>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
+}
+
+/// The `self_heating` object of summary.json for a solve whose lattice is
+/// damped (the electrons and the lattice solved together).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct SelfHeatingSummary {
+    pub hottest_lattice_k: f64,
+    pub hottest_x_nm: f64,
+    pub left_phonon_lead_heat_w: f64,
+    pub right_phonon_lead_heat_w: f64,
+    pub ledger_relative: f64,
+    pub outer_iterations: usize,
+    pub born_iterations: usize,
+    pub last_change_k: f64,
+    pub tolerance_k: f64,
+    pub converged: bool,
 }
 
 /// Where a failed solve broke down.

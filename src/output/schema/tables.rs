@@ -31,6 +31,26 @@ fn col<S>(
     }
 }
 
+/// Lattice temperature of cell `cell` (K): the mean over its orbital
+/// sites of the solve's lattice profile, else the bath temperature of the
+/// first phonon mode, else the mean contact temperature.
+pub fn cell_lattice_temperature(sol: &crate::scba::Solution, cell: usize) -> f64 {
+    let p = &sol.problem;
+    match &sol.lattice_temperature_k {
+        Some(t) => {
+            let b = p.device.orbitals;
+            t[cell * b..(cell + 1) * b].iter().sum::<f64>() / b as f64
+        }
+        None => p
+            .scattering
+            .phonons
+            .first()
+            .map_or(0.5 * (p.left.temperature_k + p.right.temperature_k), |m| {
+                m.bath_temperature_k
+            }),
+    }
+}
+
 /// sites.csv: one row per cell of the device.
 pub fn sites<'a>() -> Table<SolvePoint<'a>> {
     let mut columns: Vec<Column<SolvePoint<'a>>> = vec![
@@ -68,6 +88,14 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
             "W",
             "power the electrons hand to the lattice in the cell (positive = lattice heated)",
             |p, i| Cell::Num(p.o.sites.lattice_power_w[i]),
+        ),
+        col(
+            "lattice_temperature_k",
+            "K",
+            "lattice temperature of the cell, the mean over its sites: from the joint \
+             electron–lattice loop when the lattice is damped, else the phonon bath \
+             temperature (the mean contact temperature without phonons)",
+            |p, i| Cell::Num(cell_lattice_temperature(p.sol, i)),
         ),
         col(
             "electron_density_per_nm",
