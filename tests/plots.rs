@@ -5,6 +5,9 @@
 //! right column). How the figures read (colours, net flow, the map's
 //! scale) is checked in `figure_reading.rs`.
 
+#[path = "support/base64.rs"]
+mod base64;
+use base64::decode_base64;
 use plotters::style::RGBColor;
 use qheat::case::Case;
 use qheat::observables::{Observables, bond_current_map, observe};
@@ -293,30 +296,6 @@ fn coherent_demo_has_transmission_no_lattice_power_and_no_convergence_figure() {
     for name in ["device.svg", "spectrum.svg", "bond_current.svg"] {
         roxmltree::Document::parse(&read(&dir, name)).unwrap();
     }
-}
-
-fn decode_base64(s: &str) -> Vec<u8> {
-    let val = |c: u8| -> u32 {
-        match c {
-            b'A'..=b'Z' => (c - b'A') as u32,
-            b'a'..=b'z' => (c - b'a' + 26) as u32,
-            b'0'..=b'9' => (c - b'0' + 52) as u32,
-            b'+' => 62,
-            b'/' => 63,
-            _ => panic!("not base64: {c}"),
-        }
-    };
-    let mut out = Vec::new();
-    for chunk in s.as_bytes().chunks(4) {
-        let pad = chunk.iter().filter(|c| **c == b'=').count();
-        let n = chunk
-            .iter()
-            .map(|c| if *c == b'=' { 0 } else { val(*c) })
-            .fold(0u32, |a, v| (a << 6) | v);
-        let bytes = [(n >> 16) as u8, (n >> 8) as u8, n as u8];
-        out.extend_from_slice(&bytes[..3 - pad]);
-    }
-    out
 }
 
 #[test]
