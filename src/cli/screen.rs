@@ -5,10 +5,12 @@ use super::format::{number, si};
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
 use super::{Common, Failure, check_memory, default_out, folder};
+use qheat::case::PhononConductanceSource;
 use qheat::output::schema::summary::{BestPoint, Ranking, to_text};
 use qheat::output::schema::tables::grid_csv;
 use qheat::output::{OtherFiles, Staging};
 use qheat::sweep::screen::{CoolingCurve, Rank, ScreenTask, ranking, ranking_table};
+use qheat::sweep::{Grid, SweepTable};
 use std::path::{Path, PathBuf};
 
 /// `--rank`: the library's ranking quantities, by their names.
@@ -36,6 +38,56 @@ pub fn screen(
     other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
+    let cooling = cooling_curve(rank, hot, cold, points)?;
+    let (case, resolved) = load(path, common)?;
+    check_memory(resolved.memory_estimate_bytes())?;
+    let grid = parse_grid(&case, vary)?;
+    let out_dir: PathBuf = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_out(&case.name, "-screen"));
+    let task = ScreenTask::new(rank, cooling).expect("a cooler curve exactly for --rank cooling");
+    let options = folder("screen", other_files).keeping_store();
+    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
+    let order = ranking(&table, rank.column())?;
+    let stage = Staging::with_options(&out_dir, &options)?;
+    let (rcols, rrows) = ranking_table(&table, &order);
+    stage.write("screen.csv", &grid_csv(&table.columns, &table.rows))?;
+    stage.write("ranking.csv", &grid_csv(&rcols, &rrows))?;
+    for (name, svg) in
+        qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
+    {
+        stage.write(&name, svg.as_bytes())?;
+    }
+    if let Some(svg) = qheat::output::plots::ranking_figure(&grid, &table, &order, rank.column())? {
+        stage.write("ranking.svg", svg.as_bytes())?;
+    }
+    let kph_source = match rank {
+        Rank::Cooling => None,
+        _ => Some(qheat::sweep::screen::phonon_conductance_source(
+            &case, &grid.axes,
+        )?),
+    };
+    let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
+    summary.ranking = Some(ranking_summary(&grid, &table, &order, task, kph_source));
+    let text = to_text(&summary);
+    stage.write("summary.json", text.as_bytes())?;
+    stage.commit()?;
+    if common.json {
+        println!("{text}");
+    } else if !common.quiet {
+        print_ranking(&grid, &table, &order, rank, kph_source.as_ref(), &out_dir);
+    }
+    convergence_outcome(&table, &out_dir)
+}
+
+/// The cooler curve behind `--rank cooling`, from `--hot`, `--cold` and
+/// `--points`; those options are refused with any other ranking.
+fn cooling_curve(
+    rank: Rank,
+    hot: Option<f64>,
+    cold: Option<f64>,
+    points: Option<usize>,
+) -> Result<Option<CoolingCurve>, Failure> {
     if rank != Rank::Cooling {
         let given: Vec<&str> = [
             ("--hot", hot.is_some()),
@@ -53,65 +105,41 @@ pub fn screen(
                 given.join(", ")
             )));
         }
+        return Ok(None);
     }
     let points = points.unwrap_or(21);
-    if let (Rank::Cooling, Some(h), Some(c)) = (rank, hot, cold) {
-        check_curve_options(h, c, points, false)?;
-    }
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let grid = parse_grid(&case, vary)?;
-    let cooling = match (rank, hot, cold) {
-        (Rank::Cooling, Some(hot_k), Some(cold_k)) => Some(CoolingCurve {
-            hot_k,
-            cold_k,
-            points,
-        }),
-        (Rank::Cooling, _, _) => {
-            return Err(Failure::BadInput(
-                "--rank cooling needs --hot K and --cold K (the right lead is the cold one)".into(),
-            ));
-        }
-        _ => None,
+    let (Some(hot_k), Some(cold_k)) = (hot, cold) else {
+        return Err(Failure::BadInput(
+            "--rank cooling needs --hot K and --cold K (the right lead is the cold one)".into(),
+        ));
     };
-    if let Some(CoolingCurve { hot_k, cold_k, .. }) = cooling
-        && !(cold_k > 0.0 && hot_k >= cold_k && hot_k.is_finite())
-    {
+    check_curve_options(hot_k, cold_k, points, false)?;
+    if !(cold_k > 0.0 && hot_k >= cold_k && hot_k.is_finite()) {
         return Err(Failure::BadInput(format!(
             "expected --hot ≥ --cold > 0, found --hot {hot_k} --cold {cold_k}"
         )));
     }
-    let out_dir: PathBuf = out
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-screen"));
-    let task = ScreenTask::new(rank, cooling).expect("a cooler curve exactly for --rank cooling");
-    let options = folder("screen", other_files).keeping_store();
-    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
-    let order = ranking(&table, rank.column())?;
-    let (rcols, rrows) = ranking_table(&table, &order);
-    let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("screen.csv", &grid_csv(&table.columns, &table.rows))?;
-    stage.write("ranking.csv", &grid_csv(&rcols, &rrows))?;
-    for (name, svg) in
-        qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
-    {
-        stage.write(&name, svg.as_bytes())?;
-    }
-    if let Some(svg) = qheat::output::plots::ranking_figure(&grid, &table, &order, rank.column())? {
-        stage.write("ranking.svg", svg.as_bytes())?;
-    }
-    let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
-    let c = table.column(rank.column()).expect("ranked column exists");
-    let kph_source = match rank {
-        Rank::Cooling => None,
-        _ => Some(qheat::sweep::screen::phonon_conductance_source(
-            &case, &grid.axes,
-        )?),
-    };
-    summary.ranking = Some(Ranking {
+    Ok(Some(CoolingCurve {
+        hot_k,
+        cold_k,
+        points,
+    }))
+}
+
+/// The `ranking` object of summary.json: the five best points.
+fn ranking_summary(
+    grid: &Grid,
+    table: &SweepTable,
+    order: &[usize],
+    task: ScreenTask,
+    kph_source: Option<PhononConductanceSource>,
+) -> Ranking {
+    let column = task.rank().column();
+    let c = table.column(column).expect("ranked column exists");
+    Ranking {
         phonon_conductance_source: kph_source,
         rank_by: task,
-        ranked_column: rank.column().into(),
+        ranked_column: column.into(),
         best: order
             .iter()
             .take(5)
@@ -122,50 +150,54 @@ pub fn screen(
                     .into_iter()
                     .zip(table.rows[i].iter().copied())
                     .collect(),
-                score: [(rank.column().to_string(), table.rows[i][c])].into(),
+                score: [(column.to_string(), table.rows[i][c])].into(),
             })
             .collect(),
-    });
-    let text = to_text(&summary);
-    stage.write("summary.json", text.as_bytes())?;
-    stage.commit()?;
-    if common.json {
-        println!("{text}");
-    } else if !common.quiet {
+    }
+}
+
+/// Terminal lines: the five best points and where the ranking is.
+fn print_ranking(
+    grid: &Grid,
+    table: &SweepTable,
+    order: &[usize],
+    rank: Rank,
+    kph_source: Option<&PhononConductanceSource>,
+    out_dir: &Path,
+) {
+    let c = table.column(rank.column()).expect("ranked column exists");
+    println!(
+        "screen            {} points over {}, ranked by {}",
+        grid.len(),
+        grid.names().join(" × "),
+        rank.column()
+    );
+    for (r, &i) in order.iter().take(5).enumerate() {
+        let vals: Vec<String> = grid
+            .names()
+            .iter()
+            .zip(&table.rows[i])
+            .map(|(k, v)| format!("{k} = {}", number(*v)))
+            .collect();
+        let score = table.rows[i][c];
+        let shown = match rank {
+            Rank::Zt => format!("ZT = {score:.4}"),
+            Rank::PowerFactor => format!("S²G = {}", si(score, "W/K²", 4)),
+            Rank::Cooling => format!("cooling power = {}", si(score, "W", 4)),
+        };
         println!(
-            "screen            {} points over {}, ranked by {}",
-            grid.len(),
-            grid.names().join(" × "),
-            rank.column()
-        );
-        for (r, &i) in order.iter().take(5).enumerate() {
-            let vals: Vec<String> = grid
-                .names()
-                .iter()
-                .zip(&table.rows[i])
-                .map(|(k, v)| format!("{k} = {}", number(*v)))
-                .collect();
-            let score = table.rows[i][c];
-            let shown = match rank {
-                Rank::Zt => format!("ZT = {score:.4}"),
-                Rank::PowerFactor => format!("S²G = {}", si(score, "W/K²", 4)),
-                Rank::Cooling => format!("cooling power = {}", si(score, "W", 4)),
-            };
-            println!(
-                "  #{:<3} point {:<4} {}  ({})",
-                r + 1,
-                i,
-                shown,
-                vals.join(", ")
-            );
-        }
-        if let Some(src) = kph_source {
-            println!("κ_ph              {}", src.describe());
-        }
-        println!(
-            "results           {}",
-            out_dir.join("ranking.csv").display()
+            "  #{:<3} point {:<4} {}  ({})",
+            r + 1,
+            i,
+            shown,
+            vals.join(", ")
         );
     }
-    convergence_outcome(&table, &out_dir)
+    if let Some(src) = kph_source {
+        println!("κ_ph              {}", src.describe());
+    }
+    println!(
+        "results           {}",
+        out_dir.join("ranking.csv").display()
+    );
 }
