@@ -266,22 +266,13 @@ pub fn run() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let threads = cli.threads.unwrap_or_else(|| {
-        std::thread::available_parallelism()
-            .map(|n| n.get())
-            .unwrap_or(1)
-    });
-    if threads == 0 {
-        eprintln!("error: --threads must be at least 1");
-        return ExitCode::from(1);
-    }
-    if threads > MAX_THREADS {
-        eprintln!(
-            "error: --threads must be at most {MAX_THREADS}, found {threads}; \
-             hint: one thread per core is the fastest (leave --threads out to use all cores)"
-        );
-        return ExitCode::from(1);
-    }
+    let threads = match thread_count(cli.threads) {
+        Ok(n) => n,
+        Err(message) => {
+            eprintln!("error: {message}");
+            return ExitCode::from(1);
+        }
+    };
     if let Err(f) = check_paths(&cli.command) {
         eprintln!("error: {}", f.message());
         return ExitCode::from(f.code());
@@ -295,8 +286,40 @@ pub fn run() -> ExitCode {
         quiet: cli.quiet,
         json: cli.json,
     };
-    let outcome = match &cli.command {
-        Command::Check { case } => solve::check(case, &common),
+    let outcome = dispatch(&cli.command, &common);
+    match outcome {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(f) => {
+            eprintln!("error: {}", f.message());
+            ExitCode::from(f.code())
+        }
+    }
+}
+
+/// The worker threads asked for (all cores when not given), within
+/// 1…MAX_THREADS.
+fn thread_count(asked: Option<usize>) -> Result<usize, String> {
+    let threads = asked.unwrap_or_else(|| {
+        std::thread::available_parallelism()
+            .map(|n| n.get())
+            .unwrap_or(1)
+    });
+    if threads == 0 {
+        return Err("--threads must be at least 1".into());
+    }
+    if threads > MAX_THREADS {
+        return Err(format!(
+            "--threads must be at most {MAX_THREADS}, found {threads}; \
+             hint: one thread per core is the fastest (leave --threads out to use all cores)"
+        ));
+    }
+    Ok(threads)
+}
+
+/// Run one command.
+fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
+    match command {
+        Command::Check { case } => solve::check(case, common),
         Command::Solve {
             case,
             out,
@@ -307,19 +330,19 @@ pub fn run() -> ExitCode {
             out.as_deref(),
             others(*overwrite),
             warm_start.as_deref(),
-            &common,
+            common,
         ),
         Command::Coefficients {
             case,
             out,
             overwrite,
-        } => coefficients::coefficients(case, out.as_deref(), others(*overwrite), &common),
+        } => coefficients::coefficients(case, out.as_deref(), others(*overwrite), common),
         Command::Sweep {
             case,
             vary,
             out,
             overwrite,
-        } => sweep::sweep(case, vary, out.as_deref(), others(*overwrite), &common),
+        } => sweep::sweep(case, vary, out.as_deref(), others(*overwrite), common),
         Command::Generator {
             case,
             hot,
@@ -334,7 +357,7 @@ pub fn run() -> ExitCode {
             *points,
             out.as_deref(),
             others(*overwrite),
-            &common,
+            common,
         ),
         Command::Cooler {
             case,
@@ -352,7 +375,7 @@ pub fn run() -> ExitCode {
             *cold_lead,
             out.as_deref(),
             others(*overwrite),
-            &common,
+            common,
         ),
         Command::Screen {
             case,
@@ -372,16 +395,9 @@ pub fn run() -> ExitCode {
             points.as_ref().copied(),
             out.as_deref(),
             others(*overwrite),
-            &common,
+            common,
         ),
-        Command::Report { dir } => report::report(dir, &common),
-    };
-    match outcome {
-        Ok(()) => ExitCode::SUCCESS,
-        Err(f) => {
-            eprintln!("error: {}", f.message());
-            ExitCode::from(f.code())
-        }
+        Command::Report { dir } => report::report(dir, common),
     }
 }
 
