@@ -272,78 +272,10 @@ pub fn line_chart_svg(
     series: &[Series<'_>],
     reference_lines: &[(&str, f64)],
 ) -> Result<String, OutputError> {
-    for s in series {
-        if s.x.len() != s.y.len() {
-            return Err(plot_error(
-                title,
-                format!(
-                    "series \"{}\" has {} x values but {} y values",
-                    s.label,
-                    s.x.len(),
-                    s.y.len()
-                ),
-            ));
-        }
-    }
-    let finite_pairs = |s: &Series<'_>| {
-        s.x.iter()
-            .zip(s.y)
-            .filter(|(a, b)| a.is_finite() && b.is_finite())
-            .map(|(a, b)| (*a, *b))
-            .collect::<Vec<_>>()
-    };
-    let xs: Vec<f64> = series
-        .iter()
-        .flat_map(|s| finite_pairs(s).into_iter().map(|p| p.0))
-        .collect();
-    let mut ys: Vec<f64> = series
-        .iter()
-        .flat_map(|s| finite_pairs(s).into_iter().map(|p| p.1))
-        .collect();
-    let have_data = !xs.is_empty();
-    ys.extend(
-        reference_lines
-            .iter()
-            .map(|r| r.1)
-            .filter(|v| v.is_finite()),
-    );
-    let (x0, x1) = finite_range(&xs).unwrap_or((0.0, 1.0));
-    let (x0, x1) = if x1 > x0 {
-        (x0, x1)
-    } else {
-        padded(x0, x1, 0.0)
-    };
-    let (y0, y1) = finite_range(&ys).unwrap_or((0.0, 1.0));
-    let (y0, y1) = padded(y0, y1, 0.06);
+    check_series_lengths(title, series)?;
+    let ((x0, x1), (y0, y1), have_data) = line_chart_ranges(series, reference_lines);
     let width = 900u32;
-    let mut entries: Vec<(Mark, String)> = series
-        .iter()
-        .enumerate()
-        .filter(|(_, s)| !s.label.is_empty())
-        .map(|(i, s)| {
-            (
-                Mark::Line(SERIES[i % SERIES.len()], false),
-                s.label.to_string(),
-            )
-        })
-        .collect();
-    if entries.len() < 2 && reference_lines.is_empty() {
-        entries.clear();
-    }
-    // Reference lines are named in the legend: labels written at the lines
-    // collide when two references lie close together.
-    entries.extend(
-        reference_lines
-            .iter()
-            .enumerate()
-            .filter(|(_, r)| r.1.is_finite())
-            .map(|(k, (label, value))| {
-                (
-                    Mark::Line(REFERENCE[k % REFERENCE.len()], true),
-                    format!("{label} = {}", short(*value)),
-                )
-            }),
-    );
+    let entries = line_chart_legend(series, reference_lines);
     let legend_h = legend_height(&entries, (MARGIN_LEFT + Y_AREA) as i32, width as i32);
     let height = 520 + legend_h;
     render(title, (width, height), |root, _| {
@@ -390,18 +322,7 @@ pub fn line_chart_svg(
         }
         for (i, s) in series.iter().enumerate() {
             let c = SERIES[i % SERIES.len()];
-            let mut piece: Vec<(f64, f64)> = Vec::new();
-            let mut pieces = Vec::new();
-            for (a, b) in s.x.iter().zip(s.y) {
-                if a.is_finite() && b.is_finite() {
-                    piece.push((*a, *b));
-                } else if !piece.is_empty() {
-                    pieces.push(std::mem::take(&mut piece));
-                }
-            }
-            if !piece.is_empty() {
-                pieces.push(piece);
-            }
+            let pieces = finite_pieces(s);
             let n: usize = pieces.iter().map(Vec::len).sum();
             for p in &pieces {
                 chart.draw_series(LineSeries::new(p.iter().copied(), c.stroke_width(2)))?;
@@ -415,6 +336,102 @@ pub fn line_chart_svg(
         }
         Ok(())
     })
+}
+
+/// Every series has as many x values as y values.
+fn check_series_lengths(title: &str, series: &[Series<'_>]) -> Result<(), OutputError> {
+    match series.iter().find(|s| s.x.len() != s.y.len()) {
+        Some(s) => Err(plot_error(
+            title,
+            format!(
+                "series \"{}\" has {} x values but {} y values",
+                s.label,
+                s.x.len(),
+                s.y.len()
+            ),
+        )),
+        None => Ok(()),
+    }
+}
+
+/// The finite points of a series, in runs broken where a value is not
+/// finite (so a gap shows as a gap, not as a line across it).
+fn finite_pieces(s: &Series<'_>) -> Vec<Vec<(f64, f64)>> {
+    let mut piece: Vec<(f64, f64)> = Vec::new();
+    let mut pieces = Vec::new();
+    for (a, b) in s.x.iter().zip(s.y) {
+        if a.is_finite() && b.is_finite() {
+            piece.push((*a, *b));
+        } else if !piece.is_empty() {
+            pieces.push(std::mem::take(&mut piece));
+        }
+    }
+    if !piece.is_empty() {
+        pieces.push(piece);
+    }
+    pieces
+}
+
+/// Axis ranges of a line chart (the finite points and the reference
+/// lines, y padded by 6 %) and whether any series has a finite point.
+fn line_chart_ranges(
+    series: &[Series<'_>],
+    reference_lines: &[(&str, f64)],
+) -> ((f64, f64), (f64, f64), bool) {
+    let points: Vec<(f64, f64)> = series.iter().flat_map(finite_pieces).flatten().collect();
+    let xs: Vec<f64> = points.iter().map(|p| p.0).collect();
+    let mut ys: Vec<f64> = points.iter().map(|p| p.1).collect();
+    ys.extend(
+        reference_lines
+            .iter()
+            .map(|r| r.1)
+            .filter(|v| v.is_finite()),
+    );
+    let (x0, x1) = finite_range(&xs).unwrap_or((0.0, 1.0));
+    let x = if x1 > x0 {
+        (x0, x1)
+    } else {
+        padded(x0, x1, 0.0)
+    };
+    let (y0, y1) = finite_range(&ys).unwrap_or((0.0, 1.0));
+    (x, padded(y0, y1, 0.06), !xs.is_empty())
+}
+
+/// Legend entries of a line chart: the series by name (only when there
+/// are two or more, or reference lines beside them), then the reference
+/// lines with their values. Reference lines are named in the legend:
+/// labels written at the lines collide when two references lie close.
+fn line_chart_legend(
+    series: &[Series<'_>],
+    reference_lines: &[(&str, f64)],
+) -> Vec<(Mark, String)> {
+    let mut entries: Vec<(Mark, String)> = series
+        .iter()
+        .enumerate()
+        .filter(|(_, s)| !s.label.is_empty())
+        .map(|(i, s)| {
+            (
+                Mark::Line(SERIES[i % SERIES.len()], false),
+                s.label.to_string(),
+            )
+        })
+        .collect();
+    if entries.len() < 2 && reference_lines.is_empty() {
+        entries.clear();
+    }
+    entries.extend(
+        reference_lines
+            .iter()
+            .enumerate()
+            .filter(|(_, r)| r.1.is_finite())
+            .map(|(k, (label, value))| {
+                (
+                    Mark::Line(REFERENCE[k % REFERENCE.len()], true),
+                    format!("{label} = {}", short(*value)),
+                )
+            }),
+    );
+    entries
 }
 
 /// A number in three significant figures for labels.
