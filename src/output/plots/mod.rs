@@ -834,15 +834,7 @@ pub fn bar_chart_svg(
         .unwrap_or(0)
         .clamp(60, 360) as u32
         + 16;
-    let (lo, hi) = finite_range(values).unwrap_or((0.0, 1.0));
-    let (lo, hi) = (lo.min(0.0), hi.max(0.0));
-    let (lo, hi) = if hi > lo { (lo, hi) } else { (0.0, 1.0) };
-    // Room for the value text at the bar ends.
-    let span = hi - lo;
-    let (lo, hi) = (
-        if lo < 0.0 { lo - 0.18 * span } else { lo },
-        hi + 0.18 * span,
-    );
+    let (lo, hi) = bar_value_range(values);
     let width = 900u32;
     let height = 110 + 30 * n as u32;
     render(title, (width, height), |root, _| {
@@ -907,6 +899,20 @@ pub fn bar_chart_svg(
         )))?;
         Ok(())
     })
+}
+
+/// Value axis of a bar chart: the values and zero, with 18 % of room
+/// beyond the bar ends for the value text.
+fn bar_value_range(values: &[f64]) -> (f64, f64) {
+    let (lo, hi) = finite_range(values).unwrap_or((0.0, 1.0));
+    let (lo, hi) = (lo.min(0.0), hi.max(0.0));
+    let (lo, hi) = if hi > lo { (lo, hi) } else { (0.0, 1.0) };
+    // Room for the value text at the bar ends.
+    let span = hi - lo;
+    (
+        if lo < 0.0 { lo - 0.18 * span } else { lo },
+        hi + 0.18 * span,
+    )
 }
 
 /// Write device.svg, spectrum.svg, bond_current.svg and (with a Born
