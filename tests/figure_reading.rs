@@ -135,7 +135,12 @@ fn shared_colours(entries: &[(String, BTreeSet<String>)]) -> BTreeMap<String, Ve
 #[test]
 fn no_colour_stands_for_two_legend_entries_in_a_solve_figure() {
     let tmp = tempfile::tempdir().unwrap();
-    let figures = ["device.svg", "spectrum.svg", "bond_current.svg"];
+    let figures = [
+        "device.svg",
+        "spectrum.svg",
+        "bond_current.svg",
+        "occupation.svg",
+    ];
     for (case, extra) in [
         ("peltier-barrier", Some("convergence.svg")),
         ("resonant-filter", None),
@@ -152,7 +157,7 @@ fn no_colour_stands_for_two_legend_entries_in_a_solve_figure() {
                 "device.svg" => 7,
                 "spectrum.svg" if case == "peltier-barrier" => 5,
                 "spectrum.svg" => 4,
-                "bond_current.svg" => 2,
+                "bond_current.svg" | "occupation.svg" => 2,
                 _ => 2,
             };
             assert_eq!(

@@ -11,18 +11,21 @@
 //!   ([`lattice_power_per_site`]), and the same power seen from the
 //!   phonons, mode by mode (see [`ModePower`]);
 //! - the conservation ledger; the local Fermi level by density matching;
-//!   the energy-resolved bond current.
+//!   the energy-resolved bond current;
+//! - the occupation map f(x, E) = Σ_o G^n_ii / Σ_o A_ii per cell.
 //!
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
 mod fermi_level;
 mod ledger;
+mod occupation;
 pub use fermi_level::{
     FermiLevelStatus, FermiMatch, LocalFermiLevel, cell_lattice_temperatures,
     fermi_search_interval, fit_fermi_level_and_temperature, lattice_temperature,
     local_electron_temperatures, local_fermi_levels, match_fermi_level_checked,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
+pub use occupation::{OCCUPATION_THRESHOLD, occupation_map};
 
 use crate::model::Problem;
 use crate::scba::Solution;

@@ -6,7 +6,7 @@ use super::{
     centred_note, desc_font, draw_legend, heat_map, legend_height, plot_error, render, short,
     tick_font, title_font,
 };
-use crate::observables::{Observables, Spectrum, bond_current_map};
+use crate::observables::{Observables, Spectrum, bond_current_map, occupation_map};
 use crate::output::OutputError;
 use crate::scba::Solution;
 use crate::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE};
@@ -827,6 +827,79 @@ pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, Outpu
         scale: MapScale::SignedLog {
             decades: SIGNED_LOG_DECADES,
         },
+        overlays: vec![
+            Overlay {
+                label: "band edge".into(),
+                points: &band,
+                colour: INK,
+                dashed: false,
+            },
+            Overlay {
+                label: "local Fermi level".into(),
+                points: &fermi,
+                colour: LOCAL_FERMI,
+                dashed: true,
+            },
+        ],
+        size: (WIDTH, 640),
+    })
+}
+
+/// occupation.svg: how full the states of each cell are at each energy,
+/// f(x, E) = Σ_o G^n_ii / Σ_o A_ii, over position and energy on a fixed
+/// colour scale from 0 (empty, palest) to 1 (full, darkest), grey where the
+/// cell has no states, with the band edge and the local Fermi level drawn
+/// on top. The energy window holds the energies where some cell has
+/// electrons (down to 0.1 % of the fullest) and both contacts' Fermi
+/// levels.
+pub fn occupation_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    const FIGURE: &str = "occupation.svg";
+    let p = &sol.problem;
+    let s = &o.sites;
+    let map = occupation_map(sol);
+    let (n, ne) = map.dim();
+    if n == 0 || ne == 0 {
+        return Err(plot_error(
+            FIGURE,
+            format!(
+                "an occupation map needs at least one cell and one energy ({n} cells, {ne} energies)"
+            ),
+        ));
+    }
+    let energies = &o.spectrum.energy_ev;
+    let (ef, eu) = energy_unit(energies.iter().copied());
+    let ns = sol.pass.green.sites;
+    let weight: Vec<f64> = (0..ne)
+        .map(|k| {
+            sol.pass.green.filled[k * ns..(k + 1) * ns]
+                .iter()
+                .fold(0.0f64, |m, v| m.max(v.abs()))
+        })
+        .collect();
+    let keep = [p.left.fermi_level_ev, p.right.fermi_level_ev];
+    let (e0, e1) = busy_window(energies, &weight, &keep);
+    let rows: Vec<usize> = (0..ne)
+        .filter(|&k| energies[k] >= e0 && energies[k] <= e1)
+        .collect();
+    let y: Vec<f64> = rows.iter().map(|&k| energies[k] * ef).collect();
+    let values = ndarray::Array2::from_shape_fn((rows.len(), n), |(r, c)| map[(c, rows[r])]);
+    let a = p.device.spacing_nm;
+    let band = steps(&s.x_nm, &s.band_edge_ev, a, ef);
+    let fermi: Vec<(f64, f64)> = s
+        .x_nm
+        .iter()
+        .zip(&s.fermi_level_ev)
+        .map(|(xi, m)| (*xi, m * ef))
+        .collect();
+    heat_map(&MapSpec {
+        title: "Occupation of the states of each cell, f = Gⁿ/A (grey: no states)",
+        x_label: "position x (nm)",
+        y_label: &format!("energy E ({eu})"),
+        x: &s.x_nm,
+        y: &y,
+        values: &values,
+        colour_label: "occupation f (0 empty, 1 full)",
+        scale: MapScale::Bounded { lo: 0.0, hi: 1.0 },
         overlays: vec![
             Overlay {
                 label: "band edge".into(),

@@ -662,6 +662,41 @@ pub fn table_docs() -> Vec<FileDoc> {
 /// Name of the bond-current file with its axes.
 pub const BOND_CURRENT_NPZ: &str = "bond_current.npz";
 
+/// Name of the occupation-map file with its axes.
+pub const OCCUPATION_NPZ: &str = "occupation.npz";
+
+/// Documentation of the occupation-map file.
+fn occupation_doc(f: impl Fn(&str, &'static str, &str) -> FieldDoc) -> FileDoc {
+    FileDoc {
+        file: OCCUPATION_NPZ.into(),
+        written_by: "`qheat solve`",
+        about: "How full the states of each cell are at each energy, with its axes, as named \
+                arrays."
+            .into(),
+        fields: vec![
+            f(
+                "map",
+                "1",
+                "occupation f(x, E) = Σ_o G^n_ii / Σ_o A_ii (orbitals of the cell summed): \
+                 between 0 (empty) and 1 (full); the Fermi function of the contacts in \
+                 equilibrium; NaN where the cell's spectral weight is below 1e-8 of the \
+                 largest in the map (no states to fill); shape (cells, energies), axis 0 the \
+                 cell, axis 1 the energy",
+            ),
+            f(
+                "x_nm",
+                "nm",
+                "position of each cell, length cells: the coordinate of axis 0 of `map`",
+            ),
+            f(
+                "energy_ev",
+                "eV",
+                "energy of each grid point, ascending: the coordinate of axis 1 of `map`",
+            ),
+        ],
+    }
+}
+
 /// Documentation of every array file.
 pub fn array_docs() -> Vec<FileDoc> {
     let f = |name: &str, unit: &'static str, meaning: &str| FieldDoc {
@@ -698,6 +733,7 @@ pub fn array_docs() -> Vec<FileDoc> {
                 ),
             ],
         },
+        occupation_doc(f),
         FileDoc {
             file: "self_energy_retarded.npy".into(),
             written_by: "`qheat solve` with scattering",
