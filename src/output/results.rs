@@ -1,14 +1,14 @@
 //! The files of a solved operating point.
 
 use super::schema::summary::{
-    CellValue, DeviceInfo, FermiLevelInfo, Header, OperatingPoint, PhononInfo, Program,
-    SolveResults, SolveSummary, to_text,
+    CellValue, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint, PhononInfo,
+    Program, SolveResults, SolveSummary, to_text,
 };
 use super::schema::tables::{self, SolvePoint};
 use super::{OutputError, Staging, npy_bytes};
 use crate::observables::{
-    FermiLevelStatus, LEDGER_COMPARES, Ledger, Observables, POWER_SCALE, bond_current_map,
-    occupation_map,
+    FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables, POWER_SCALE,
+    bond_current_map, occupation_map,
 };
 use crate::scba::Solution;
 use serde_json::Value;
@@ -196,9 +196,33 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         scba: to_json(&sol.report),
         lattice: None,
         self_heating: None,
+        movers: o.sites.movers.as_ref().map(movers_summary),
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),
+    }
+}
+
+/// The range of the movers' levels and the cells they were not found in.
+fn movers_summary(m: &MoverLevels) -> MoversSummary {
+    let range = |v: &[f64]| {
+        let finite = v.iter().copied().filter(|x| x.is_finite());
+        let lo = finite.clone().fold(f64::INFINITY, f64::min);
+        let hi = finite.fold(f64::NEG_INFINITY, f64::max);
+        (lo <= hi).then_some([lo, hi])
+    };
+    let cells = |want: MoverStatus| -> Vec<usize> {
+        (0..m.status.len())
+            .filter(|&i| m.status[i] == want)
+            .collect()
+    };
+    MoversSummary {
+        right_movers_range_ev: range(&m.right_ev),
+        left_movers_range_ev: range(&m.left_ev),
+        cells_matched: cells(MoverStatus::Matched).len(),
+        cells_not_uniform: cells(MoverStatus::NotUniform),
+        cells_without_propagating_states: cells(MoverStatus::NoPropagatingStates),
+        cells_outside_interval: cells(MoverStatus::OutsideInterval),
     }
 }
 

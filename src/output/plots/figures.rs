@@ -145,12 +145,14 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
         sol.problem.left.fermi_level_ev,
         sol.problem.right.fermi_level_ev,
     );
+    let movers = mover_runs(o, 1.0);
     let levels = || {
         s.band_edge_ev
             .iter()
             .chain(&s.fermi_level_ev)
             .copied()
             .chain([mu_l, mu_r])
+            .chain(movers.iter().flatten().flatten().map(|p| p.1))
     };
     let (factor, unit) = energy_unit(levels());
     let r = finite_range(&levels().collect::<Vec<_>>()).unwrap_or((0.0, 1.0));
@@ -169,6 +171,16 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
             format!("right lead Fermi level {} {unit}", short(mu_r * factor)),
         ),
     ];
+    let mut entries = entries;
+    let movers_legend = [
+        (FORWARD, "right-movers' level µ₊"),
+        (BACKWARD, "left-movers' level µ₋"),
+    ];
+    for (runs, (colour, label)) in movers.iter().zip(movers_legend) {
+        if !runs.is_empty() {
+            entries.push((Mark::Line(colour, true), label.to_string()));
+        }
+    }
     EnergyPanel {
         range: padded(r.0 * factor, r.1 * factor, 0.08),
         factor,
@@ -232,7 +244,35 @@ fn draw_energy_panel(
     for run in runs.into_iter().filter(|r| !r.is_empty()) {
         chart.draw_series(LineSeries::new(run, LOCAL_FERMI.stroke_width(2)))?;
     }
+    for (runs, colour) in mover_runs(o, ef).into_iter().zip([FORWARD, BACKWARD]) {
+        for run in runs {
+            chart.draw_series(DashedLineSeries::new(run, 5, 4, colour.stroke_width(2)))?;
+        }
+    }
     Ok(())
+}
+
+/// The right- and the left-movers' levels (scaled by `ef`) at the middle
+/// of each pair of cells, split into runs where they are found: empty
+/// when the movers were not asked for or found nowhere.
+fn mover_runs(o: &Observables, ef: f64) -> [Vec<Vec<(f64, f64)>>; 2] {
+    let s = &o.sites;
+    let Some(m) = s.movers.as_ref() else {
+        return [Vec::new(), Vec::new()];
+    };
+    let x: Vec<f64> = s.x_nm.windows(2).map(|w| 0.5 * (w[0] + w[1])).collect();
+    [&m.right_ev, &m.left_ev].map(|levels| {
+        let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+        for (xi, mu) in x.iter().zip(levels.iter()) {
+            if mu.is_finite() {
+                runs.last_mut().expect("a run").push((*xi, mu * ef));
+            } else if !runs.last().expect("a run").is_empty() {
+                runs.push(Vec::new());
+            }
+        }
+        runs.retain(|r| !r.is_empty());
+        runs
+    })
 }
 
 /// Middle panel of device.svg: drops of the local Fermi level, contacts
