@@ -244,7 +244,7 @@ fn pair_basis(e: f64, h: &Mat<C64>, tau: &Mat<C64>) -> Option<PairBasis> {
         .flat_map(|r| (0..2 * b).map(move |c| (r, c)))
         .map(|(r, c)| (check[(r, c)] - C64::new(f64::from(u8::from(r == c)), 0.0)).norm())
         .fold(0.0f64, f64::max);
-    if !(off < 1e-8) {
+    if off.is_nan() || off >= 1e-8 {
         return None;
     }
     let row = |m: usize| (0..2 * b).map(|c| inv[(m, c)]).collect::<Vec<_>>();

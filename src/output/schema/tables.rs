@@ -54,7 +54,7 @@ pub fn cell_lattice_temperature(sol: &crate::scba::Solution, cell: usize) -> f64
 /// The movers' columns of sites.csv, written when the movers' levels were
 /// asked for (every `qheat solve`).
 fn mover_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
-    const WHEN: &str = "when the movers' levels were found (every qheat solve)";
+    const WHEN: &str = "when the movers' levels were asked for, as every qheat solve does";
     fn movers<'b>(p: &'b SolvePoint<'_>) -> Option<&'b crate::observables::MoverLevels> {
         p.o.sites.movers.as_ref()
     }
