@@ -138,7 +138,12 @@ fn shared_colours(entries: &[(String, BTreeSet<String>)]) -> BTreeMap<String, Ve
 #[test]
 fn no_colour_stands_for_two_legend_entries_in_a_solve_figure() {
     let tmp = tempfile::tempdir().unwrap();
-    let figures = ["device.svg", "spectrum.svg", "bond_current.svg"];
+    let figures = [
+        "device.svg",
+        "spectrum.svg",
+        "bond_current.svg",
+        "occupation.svg",
+    ];
     for (case, extra) in [
         ("peltier-barrier", Some("convergence.svg")),
         ("resonant-filter", None),
@@ -152,10 +157,11 @@ fn no_colour_stands_for_two_legend_entries_in_a_solve_figure() {
             // The reader sees every entry the figure has: the legend
             // parser must not miss them (or this test proves nothing).
             let expected = match name {
-                "device.svg" => 7,
+                // The two movers' levels join the device figure's legend.
+                "device.svg" => 9,
                 "spectrum.svg" if case == "peltier-barrier" => 5,
                 "spectrum.svg" => 4,
-                "bond_current.svg" => 2,
+                "bond_current.svg" | "occupation.svg" => 2,
                 _ => 2,
             };
             assert_eq!(

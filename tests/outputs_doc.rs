@@ -59,6 +59,7 @@ fn every_documented_field_has_a_unit_and_a_meaning() {
         "convergence.csv",
         "bond_current.npy",
         "bond_current.npz",
+        "occupation.npz",
         "self_energy_retarded.npy",
         "self_energy_in.npy",
         "generator.csv",

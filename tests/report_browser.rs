@@ -97,6 +97,7 @@ fn json_solve_prints_one_json_document_and_report_lists_every_figure() {
         "device.svg",
         "spectrum.svg",
         "bond_current.svg",
+        "occupation.svg",
         "convergence.svg",
     ]
     .iter()
@@ -106,10 +107,10 @@ fn json_solve_prints_one_json_document_and_report_lists_every_figure() {
     })
     .collect();
     assert!(order.windows(2).all(|w| w[0] < w[1]), "{order:?}");
-    // The demo has a [lattice]: its phonon transmission is the fifth figure.
+    // The demo has a [lattice]: its phonon transmission is the sixth figure.
     assert!(html.contains("<figcaption>phonon_transmission.svg</figcaption>"));
     let blocks = svg_blocks(&html);
-    assert_eq!(blocks.len(), 5);
+    assert_eq!(blocks.len(), 6);
     for b in &blocks {
         let doc = roxmltree::Document::parse(b).unwrap();
         let root = doc.root_element();
@@ -350,11 +351,11 @@ fn report_and_figures_render_in_headless_chromium() {
     let profile = tmp.path().join("profile");
     let url = |name: &str| format!("file://{}", dir.join(name).display());
 
-    // The DOM the browser built holds the five figures (the demo's lattice
+    // The DOM the browser built holds the six figures (the demo's lattice
     // adds the phonon transmission).
     let out = run_chromium(&bin, &profile, &["--dump-dom".into()], &url("report.html"));
     let dom = out.0;
-    assert_eq!(dom.matches("<svg").count(), 5, "figures in the parsed page");
+    assert_eq!(dom.matches("<svg").count(), 6, "figures in the parsed page");
 
     // The page as a person sees it: not blank, the headline figure drawn.
     let shot = tmp.path().join("report.png");
@@ -385,7 +386,7 @@ fn report_and_figures_render_in_headless_chromium() {
     );
 
     // Each figure on its own: inked, with the marks that identify it.
-    let checks: [(&str, &[RGBColor]); 4] = [
+    let checks: [(&str, &[RGBColor]); 5] = [
         ("device.svg", &[style::HEATING, style::COOLING, style::DROP]),
         ("spectrum.svg", &[style::LEFT, style::RIGHT, style::BATH]),
         (
@@ -393,6 +394,13 @@ fn report_and_figures_render_in_headless_chromium() {
             &[
                 style::diverging(-1.0 + 1.0 / 96.0),
                 style::diverging(1.0 - 1.0 / 96.0),
+            ],
+        ),
+        (
+            "occupation.svg",
+            &[
+                style::sequential(0.5 / 96.0),
+                style::sequential(1.0 - 0.5 / 96.0),
             ],
         ),
         ("convergence.svg", &[style::RESIDUAL, style::CURRENT_CHANGE]),

@@ -524,6 +524,7 @@ fn electron_temperature_fit_recovers_a_fermi_function() {
         &sol,
         &qheat::observables::ObserveOptions {
             electron_temperature: true,
+            ..Default::default()
         },
     );
     for t in o.sites.electron_temperature_k.unwrap() {

@@ -273,6 +273,7 @@ pub fn solve(
         &sol,
         &ObserveOptions {
             electron_temperature: resolved.fit_electron_temperature,
+            movers: true,
         },
     );
     let mut summary = solve_summary(&sol, &o, &info);

@@ -20,7 +20,7 @@ use faer::Mat;
 use faer::linalg::solvers::DenseSolveCore;
 
 mod modes;
-pub use modes::mode_self_energy;
+pub use modes::{mode_pencil, mode_self_energy};
 
 /// Which contact: the one name of a side everywhere (lead self-energies,
 /// the cooled lead of a cooler, the hot lead of a generator, the command

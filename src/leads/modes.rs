@@ -22,14 +22,11 @@ fn norm(m: &Mat<C64>) -> f64 {
     m.norm_l2()
 }
 
-/// Σ from the modes, or `None` when the modes do not give a trustworthy
-/// answer (the caller then decimates).
-pub fn mode_self_energy(
-    energy_ev: f64,
-    h00: &Mat<C64>,
-    v: &Mat<C64>,
-    side: Side,
-) -> Option<Mat<C64>> {
+/// The linearised pencil (A, B) of the Bloch modes of a periodic chain
+/// with cell block `h00` and coupling `v` = H_n,n+1 at real energy: a
+/// generalized eigenvector x = (λu, u) of A x = λ B x gives the wave
+/// ψ_n = λⁿ u, A = [[E − H00, −V†], [I, 0]], B = [[V, 0], [0, I]].
+pub fn mode_pencil(energy_ev: f64, h00: &Mat<C64>, v: &Mat<C64>) -> (Mat<C64>, Mat<C64>) {
     let b = h00.nrows();
     let e = C64::new(energy_ev, 0.0);
     let zero = C64::new(0.0, 0.0);
@@ -63,6 +60,21 @@ pub fn mode_self_energy(
         }
         _ => zero,
     });
+    (a, bm)
+}
+
+/// Σ from the modes, or `None` when the modes do not give a trustworthy
+/// answer (the caller then decimates).
+pub fn mode_self_energy(
+    energy_ev: f64,
+    h00: &Mat<C64>,
+    v: &Mat<C64>,
+    side: Side,
+) -> Option<Mat<C64>> {
+    let b = h00.nrows();
+    let e = C64::new(energy_ev, 0.0);
+    let zero = C64::new(0.0, 0.0);
+    let (a, bm) = mode_pencil(energy_ev, h00, v);
     let eig = a.generalized_eigen(&bm).ok()?;
     let (u, sa, sb) = (eig.U(), eig.S_a(), eig.S_b());
     let mut chosen: Vec<(usize, C64)> = Vec::with_capacity(b);

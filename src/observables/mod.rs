@@ -11,18 +11,25 @@
 //!   ([`lattice_power_per_site`]), and the same power seen from the
 //!   phonons, mode by mode (see [`ModePower`]);
 //! - the conservation ledger; the local Fermi level by density matching;
-//!   the energy-resolved bond current.
+//!   the energy-resolved bond current;
+//! - the occupation map f(x, E) = Σ_o G^n_ii / Σ_o A_ii per cell;
+//! - the levels µ₊, µ₋ to which the right- and the left-moving electrons
+//!   are filled, where the device is locally uniform.
 //!
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
 mod fermi_level;
 mod ledger;
+mod movers;
+mod occupation;
 pub use fermi_level::{
     FermiLevelStatus, FermiMatch, LocalFermiLevel, cell_lattice_temperatures,
     fermi_search_interval, fit_fermi_level_and_temperature, lattice_temperature,
     local_electron_temperatures, local_fermi_levels, match_fermi_level_checked,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
+pub use movers::{MoverLevels, MoverStatus, UNIFORM_TOLERANCE_EV, mover_levels, uniform_pairs};
+pub use occupation::{OCCUPATION_THRESHOLD, occupation_map};
 
 use crate::model::Problem;
 use crate::scba::Solution;
@@ -76,6 +83,8 @@ pub struct SiteProfile {
     pub resistance_ohm: Vec<f64>,
     /// Local electron temperature (K) when asked for.
     pub electron_temperature_k: Option<Vec<f64>>,
+    /// The right- and left-movers' levels when asked for.
+    pub movers: Option<MoverLevels>,
 }
 
 /// What to compute besides the always-present observables.
@@ -83,6 +92,9 @@ pub struct SiteProfile {
 pub struct ObserveOptions {
     /// Fit a local electron temperature per cell.
     pub electron_temperature: bool,
+    /// Find the right- and left-movers' levels (one extra kernel pass
+    /// with full blocks).
+    pub movers: bool,
 }
 
 /// Every scalar and profile of an operating point.
@@ -213,39 +225,9 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let p = &sol.problem;
     let grid = &p.grid;
     let de = grid.step_ev;
-    let ns = p.sites();
-    let js = flow_scale(p);
     let e_c = ELEMENTARY_CHARGE;
     let (mu1, mu2) = (p.left.fermi_level_ev, p.right.fermi_level_ev);
-    let coherent = p.scattering.is_coherent();
-
-    let mut spectrum = Spectrum {
-        energy_ev: grid.energies(),
-        flow_left: Vec::with_capacity(grid.count),
-        flow_right: Vec::with_capacity(grid.count),
-        flow_bath: Vec::with_capacity(grid.count),
-        transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
-    };
-    let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
-    let (mut gross_e, mut gross_q) = (0.0, 0.0);
-    for (k, f) in sol.pass.flows.iter().enumerate() {
-        let e = grid.energy(k);
-        let j1 = js * f.left;
-        let j2 = js * f.right;
-        let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
-        let j0_gross: f64 = js * (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
-        let g1 = js * f.left_gross;
-        let g2 = js * f.right_gross;
-        spectrum.flow_left.push(j1);
-        spectrum.flow_right.push(j2);
-        spectrum.flow_bath.push(j0);
-        n1 += j1;
-        n2 += j2;
-        e1 += e * j1;
-        e2 += e * j2;
-        gross_e += e.abs() * (g1 + g2 + j0_gross);
-        gross_q += (e - mu1).abs() * g1 + (e - mu2).abs() * g2;
-    }
+    let (spectrum, [n1, n2, e1, e2, gross_e, gross_q]) = flow_sums(sol);
     let to_amp = -e_c * de;
     let to_watt = e_c * de;
     let current_left_a = n1 * to_amp;
@@ -286,15 +268,50 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         heat_relative: relative(heat_w, heat_scale_w),
     };
 
+    let sites = site_profile(sol, options, lattice, current_left_a);
+    let mu = &sites.fermi_level_ev;
+    let contact_drop_left_v = mu1 - mu[0];
+    let contact_drop_right_v = mu[mu.len() - 1] - mu2;
+    let conductance_s = (voltage_v != 0.0).then(|| current_left_a / voltage_v);
+    Observables {
+        voltage_v,
+        current_a: current_left_a,
+        current_left_a,
+        current_right_a,
+        energy_current_left_w,
+        energy_current_right_w,
+        heat_current_left_w,
+        heat_current_right_w,
+        lattice_power_w,
+        lattice_power_phonon_side_w,
+        phonon_modes,
+        electrical_power_w,
+        conductance_s,
+        contact_drop_left_v,
+        contact_drop_right_v,
+        ledger,
+        sites,
+        spectrum,
+    }
+}
+
+/// The per-cell profiles: local Fermi levels and their drops, lattice
+/// power (`lattice`, W per cell), density, local resistance at the current
+/// I_1 = `current_left_a`, and what `options` asks for besides.
+fn site_profile(
+    sol: &Solution,
+    options: &ObserveOptions,
+    lattice: Vec<f64>,
+    current_left_a: f64,
+) -> SiteProfile {
+    let p = &sol.problem;
     let levels = local_fermi_levels(sol);
     let n = p.device.cells();
     let mu = &levels.fermi_level_ev;
     let voltage_drop_v: Vec<f64> = (0..n)
         .map(|i| if i + 1 < n { mu[i] - mu[i + 1] } else { 0.0 })
         .collect();
-    let contact_drop_left_v = mu1 - mu[0];
-    let contact_drop_right_v = mu[n - 1] - mu2;
-    let sites = SiteProfile {
+    SiteProfile {
         x_nm: p.device.x_nm.clone(),
         band_edge_ev: p.device.band_edge_ev.clone(),
         fermi_level_ev: levels.fermi_level_ev,
@@ -320,26 +337,46 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         electron_temperature_k: options
             .electron_temperature
             .then(|| local_electron_temperatures(sol)),
-    };
-    let conductance_s = (voltage_v != 0.0).then(|| current_left_a / voltage_v);
-    Observables {
-        voltage_v,
-        current_a: current_left_a,
-        current_left_a,
-        current_right_a,
-        energy_current_left_w,
-        energy_current_right_w,
-        heat_current_left_w,
-        heat_current_right_w,
-        lattice_power_w,
-        lattice_power_phonon_side_w,
-        phonon_modes,
-        electrical_power_w,
-        conductance_s,
-        contact_drop_left_v,
-        contact_drop_right_v,
-        ledger,
-        sites,
-        spectrum,
+        movers: options.movers.then(|| mover_levels(sol)),
     }
+}
+
+/// The energy-resolved flows and their sums over the grid (without ΔE):
+/// [Σ j_1, Σ j_2, Σ E j_1, Σ E j_2, the gross energy exchange, the gross
+/// heat exchange of the leads].
+fn flow_sums(sol: &Solution) -> (Spectrum, [f64; 6]) {
+    let p = &sol.problem;
+    let grid = &p.grid;
+    let ns = p.sites();
+    let js = flow_scale(p);
+    let (mu1, mu2) = (p.left.fermi_level_ev, p.right.fermi_level_ev);
+    let coherent = p.scattering.is_coherent();
+    let mut spectrum = Spectrum {
+        energy_ev: grid.energies(),
+        flow_left: Vec::with_capacity(grid.count),
+        flow_right: Vec::with_capacity(grid.count),
+        flow_bath: Vec::with_capacity(grid.count),
+        transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
+    };
+    let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
+    let (mut gross_e, mut gross_q) = (0.0, 0.0);
+    for (k, f) in sol.pass.flows.iter().enumerate() {
+        let e = grid.energy(k);
+        let j1 = js * f.left;
+        let j2 = js * f.right;
+        let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
+        let j0_gross: f64 = js * (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+        let g1 = js * f.left_gross;
+        let g2 = js * f.right_gross;
+        spectrum.flow_left.push(j1);
+        spectrum.flow_right.push(j2);
+        spectrum.flow_bath.push(j0);
+        n1 += j1;
+        n2 += j2;
+        e1 += e * j1;
+        e2 += e * j2;
+        gross_e += e.abs() * (g1 + g2 + j0_gross);
+        gross_q += (e - mu1).abs() * g1 + (e - mu2).abs() * g2;
+    }
+    (spectrum, [n1, n2, e1, e2, gross_e, gross_q])
 }

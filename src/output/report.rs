@@ -15,15 +15,16 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 /// Figures in the order a reader wants them; others follow by name.
-const FIGURE_ORDER: [&str; 4] = [
+const FIGURE_ORDER: [&str; 5] = [
     "device.svg",
     "spectrum.svg",
     "bond_current.svg",
+    "occupation.svg",
     "convergence.svg",
 ];
 
 /// Data files of a solve, listed but not tabulated (they are long).
-const DATA_FILES: [(&str, &str); 8] = [
+const DATA_FILES: [(&str, &str); 9] = [
     (
         "sites.csv",
         "per cell: position, band edge, local Fermi level and its status, lattice power, density, drop to the next cell",
@@ -43,6 +44,10 @@ const DATA_FILES: [(&str, &str); 8] = [
     (
         "bond_current.npz",
         "the bond-current map with its axes: bond positions (nm) and energies (eV)",
+    ),
+    (
+        "occupation.npz",
+        "occupation f(x, E) of each cell's states, cells × energies, with its axes",
     ),
     (
         "self_energy_retarded.npy",

@@ -1,13 +1,14 @@
 //! The files of a solved operating point.
 
 use super::schema::summary::{
-    CellValue, DeviceInfo, FermiLevelInfo, Header, OperatingPoint, PhononInfo, Program,
-    SolveResults, SolveSummary, to_text,
+    CellValue, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint, PhononInfo,
+    Program, SolveResults, SolveSummary, to_text,
 };
 use super::schema::tables::{self, SolvePoint};
 use super::{OutputError, Staging, npy_bytes};
 use crate::observables::{
-    FermiLevelStatus, LEDGER_COMPARES, Ledger, Observables, POWER_SCALE, bond_current_map,
+    FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables, POWER_SCALE,
+    bond_current_map, occupation_map,
 };
 use crate::scba::Solution;
 use serde_json::Value;
@@ -195,15 +196,39 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         scba: to_json(&sol.report),
         lattice: None,
         self_heating: None,
+        movers: o.sites.movers.as_ref().map(movers_summary),
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),
     }
 }
 
+/// The range of the movers' levels and the cells they were not found in.
+fn movers_summary(m: &MoverLevels) -> MoversSummary {
+    let range = |v: &[f64]| {
+        let finite = v.iter().copied().filter(|x| x.is_finite());
+        let lo = finite.clone().fold(f64::INFINITY, f64::min);
+        let hi = finite.fold(f64::NEG_INFINITY, f64::max);
+        (lo <= hi).then_some([lo, hi])
+    };
+    let cells = |want: MoverStatus| -> Vec<usize> {
+        (0..m.status.len())
+            .filter(|&i| m.status[i] == want)
+            .collect()
+    };
+    MoversSummary {
+        right_movers_range_ev: range(&m.right_ev),
+        left_movers_range_ev: range(&m.left_ev),
+        cells_matched: cells(MoverStatus::Matched).len(),
+        cells_not_uniform: cells(MoverStatus::NotUniform),
+        cells_without_propagating_states: cells(MoverStatus::NoPropagatingStates),
+        cells_outside_interval: cells(MoverStatus::OutsideInterval),
+    }
+}
+
 /// Write the files of a solve into a staging folder: summary.json,
-/// sites.csv, spectrum.csv, bond_current.npy and .npz, convergence.csv
-/// and, with scattering, the self-energy for warm starts.
+/// sites.csv, spectrum.csv, bond_current.npy and .npz, occupation.npz,
+/// convergence.csv and, with scattering, the self-energy for warm starts.
 pub fn write_solve_files(
     stage: &Staging,
     sol: &Solution,
@@ -221,6 +246,7 @@ pub fn write_solve_files(
         &npy_bytes(&map, &stage.path("bond_current.npy"))?,
     )?;
     write_bond_current_npz(stage, sol, o, &map)?;
+    write_occupation_npz(stage, sol, o)?;
     if !sol.problem.scattering.is_coherent() {
         write_self_energy(stage, sol)?;
     }
@@ -250,6 +276,30 @@ fn write_bond_current_npz(
         .map_err(|e| encode(&e))?;
     let bytes = npz.finish().map_err(|e| encode(&e))?.into_inner();
     stage.write(tables::BOND_CURRENT_NPZ, &bytes)
+}
+
+/// The occupation map with its axes as named arrays: `map` (cells ×
+/// energies), `x_nm` (the cell positions) and `energy_ev`.
+fn write_occupation_npz(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+) -> Result<(), OutputError> {
+    let path = stage.path(tables::OCCUPATION_NPZ);
+    let encode = |e: &dyn std::fmt::Display| OutputError::Encode {
+        path: path.clone(),
+        message: e.to_string(),
+    };
+    let map = occupation_map(sol);
+    let x = ndarray::Array1::from(o.sites.x_nm.clone());
+    let energies = ndarray::Array1::from(sol.problem.grid.energies());
+    let mut npz = ndarray_npy::NpzWriter::new(std::io::Cursor::new(Vec::new()));
+    npz.add_array("map", &map).map_err(|e| encode(&e))?;
+    npz.add_array("x_nm", &x).map_err(|e| encode(&e))?;
+    npz.add_array("energy_ev", &energies)
+        .map_err(|e| encode(&e))?;
+    let bytes = npz.finish().map_err(|e| encode(&e))?.into_inner();
+    stage.write(tables::OCCUPATION_NPZ, &bytes)
 }
 
 /// File names of a stored scattering self-energy.

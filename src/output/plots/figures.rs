@@ -6,7 +6,7 @@ use super::{
     centred_note, desc_font, draw_legend, heat_map, legend_height, plot_error, render, short,
     tick_font, title_font,
 };
-use crate::observables::{Observables, Spectrum, bond_current_map};
+use crate::observables::{Observables, Spectrum, bond_current_map, occupation_map};
 use crate::output::OutputError;
 use crate::scba::Solution;
 use crate::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE};
@@ -145,12 +145,14 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
         sol.problem.left.fermi_level_ev,
         sol.problem.right.fermi_level_ev,
     );
+    let movers = mover_runs(o, 1.0);
     let levels = || {
         s.band_edge_ev
             .iter()
             .chain(&s.fermi_level_ev)
             .copied()
             .chain([mu_l, mu_r])
+            .chain(movers.iter().flatten().flatten().map(|p| p.1))
     };
     let (factor, unit) = energy_unit(levels());
     let r = finite_range(&levels().collect::<Vec<_>>()).unwrap_or((0.0, 1.0));
@@ -169,6 +171,16 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
             format!("right lead Fermi level {} {unit}", short(mu_r * factor)),
         ),
     ];
+    let mut entries = entries;
+    let movers_legend = [
+        (FORWARD, "right-movers' level µ₊"),
+        (BACKWARD, "left-movers' level µ₋"),
+    ];
+    for (runs, (colour, label)) in movers.iter().zip(movers_legend) {
+        if !runs.is_empty() {
+            entries.push((Mark::Line(colour, true), label.to_string()));
+        }
+    }
     EnergyPanel {
         range: padded(r.0 * factor, r.1 * factor, 0.08),
         factor,
@@ -232,7 +244,35 @@ fn draw_energy_panel(
     for run in runs.into_iter().filter(|r| !r.is_empty()) {
         chart.draw_series(LineSeries::new(run, LOCAL_FERMI.stroke_width(2)))?;
     }
+    for (runs, colour) in mover_runs(o, ef).into_iter().zip([FORWARD, BACKWARD]) {
+        for run in runs {
+            chart.draw_series(DashedLineSeries::new(run, 5, 4, colour.stroke_width(2)))?;
+        }
+    }
     Ok(())
+}
+
+/// The right- and the left-movers' levels (scaled by `ef`) at the middle
+/// of each pair of cells, split into runs where they are found: empty
+/// when the movers were not asked for or found nowhere.
+fn mover_runs(o: &Observables, ef: f64) -> [Vec<Vec<(f64, f64)>>; 2] {
+    let s = &o.sites;
+    let Some(m) = s.movers.as_ref() else {
+        return [Vec::new(), Vec::new()];
+    };
+    let x: Vec<f64> = s.x_nm.windows(2).map(|w| 0.5 * (w[0] + w[1])).collect();
+    [&m.right_ev, &m.left_ev].map(|levels| {
+        let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+        for (xi, mu) in x.iter().zip(levels.iter()) {
+            if mu.is_finite() {
+                runs.last_mut().expect("a run").push((*xi, mu * ef));
+            } else if !runs.last().expect("a run").is_empty() {
+                runs.push(Vec::new());
+            }
+        }
+        runs.retain(|r| !r.is_empty());
+        runs
+    })
 }
 
 /// Middle panel of device.svg: drops of the local Fermi level, contacts
@@ -827,6 +867,79 @@ pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, Outpu
         scale: MapScale::SignedLog {
             decades: SIGNED_LOG_DECADES,
         },
+        overlays: vec![
+            Overlay {
+                label: "band edge".into(),
+                points: &band,
+                colour: INK,
+                dashed: false,
+            },
+            Overlay {
+                label: "local Fermi level".into(),
+                points: &fermi,
+                colour: LOCAL_FERMI,
+                dashed: true,
+            },
+        ],
+        size: (WIDTH, 640),
+    })
+}
+
+/// occupation.svg: how full the states of each cell are at each energy,
+/// f(x, E) = Σ_o G^n_ii / Σ_o A_ii, over position and energy on a fixed
+/// colour scale from 0 (empty, palest) to 1 (full, darkest), grey where the
+/// cell has no states, with the band edge and the local Fermi level drawn
+/// on top. The energy window holds the energies where some cell has
+/// electrons (down to 0.1 % of the fullest) and both contacts' Fermi
+/// levels.
+pub fn occupation_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    const FIGURE: &str = "occupation.svg";
+    let p = &sol.problem;
+    let s = &o.sites;
+    let map = occupation_map(sol);
+    let (n, ne) = map.dim();
+    if n == 0 || ne == 0 {
+        return Err(plot_error(
+            FIGURE,
+            format!(
+                "an occupation map needs at least one cell and one energy ({n} cells, {ne} energies)"
+            ),
+        ));
+    }
+    let energies = &o.spectrum.energy_ev;
+    let (ef, eu) = energy_unit(energies.iter().copied());
+    let ns = sol.pass.green.sites;
+    let weight: Vec<f64> = (0..ne)
+        .map(|k| {
+            sol.pass.green.filled[k * ns..(k + 1) * ns]
+                .iter()
+                .fold(0.0f64, |m, v| m.max(v.abs()))
+        })
+        .collect();
+    let keep = [p.left.fermi_level_ev, p.right.fermi_level_ev];
+    let (e0, e1) = busy_window(energies, &weight, &keep);
+    let rows: Vec<usize> = (0..ne)
+        .filter(|&k| energies[k] >= e0 && energies[k] <= e1)
+        .collect();
+    let y: Vec<f64> = rows.iter().map(|&k| energies[k] * ef).collect();
+    let values = ndarray::Array2::from_shape_fn((rows.len(), n), |(r, c)| map[(c, rows[r])]);
+    let a = p.device.spacing_nm;
+    let band = steps(&s.x_nm, &s.band_edge_ev, a, ef);
+    let fermi: Vec<(f64, f64)> = s
+        .x_nm
+        .iter()
+        .zip(&s.fermi_level_ev)
+        .map(|(xi, m)| (*xi, m * ef))
+        .collect();
+    heat_map(&MapSpec {
+        title: "Occupation of the states of each cell, f = Gⁿ/A (grey: no states)",
+        x_label: "position x (nm)",
+        y_label: &format!("energy E ({eu})"),
+        x: &s.x_nm,
+        y: &y,
+        values: &values,
+        colour_label: "occupation f (0 empty, 1 full)",
+        scale: MapScale::Bounded { lo: 0.0, hi: 1.0 },
         overlays: vec![
             Overlay {
                 label: "band edge".into(),

@@ -26,7 +26,9 @@ pub mod raster;
 pub mod style;
 
 pub use curves::{cooler_figures, generator_figures, grid_figures, ranking_figure};
-pub use figures::{bond_current_svg, convergence_svg, device_svg, net_flow, spectrum_svg};
+pub use figures::{
+    bond_current_svg, convergence_svg, device_svg, net_flow, occupation_svg, spectrum_svg,
+};
 
 use super::{OutputError, Staging};
 use crate::observables::Observables;
@@ -485,6 +487,14 @@ fn uniform(c: &[f64]) -> bool {
 pub(crate) enum MapScale {
     /// Pale to dark, linear over the data range.
     Sequential,
+    /// Pale to dark, linear over the fixed range [lo, hi] whatever the data
+    /// (a quantity with natural bounds, such as an occupation in [0, 1]).
+    Bounded {
+        /// Value drawn palest.
+        lo: f64,
+        /// Value drawn darkest.
+        hi: f64,
+    },
     /// Centred on zero, linear, ends at ± the largest magnitude.
     Diverging,
     /// Centred on zero, logarithmic in the magnitude over `decades` decades
@@ -512,6 +522,7 @@ impl ColourScale {
                 let (a, b) = finite_range(values).unwrap_or((0.0, 1.0));
                 if b > a { (a, b) } else { padded(a, b, 0.0) }
             }
+            MapScale::Bounded { lo, hi } => (lo, hi),
             MapScale::Diverging | MapScale::SignedLog { .. } => {
                 let m = max_abs(values);
                 let m = if m > 0.0 { m } else { 1.0 };
@@ -540,7 +551,9 @@ impl ColourScale {
     /// Colour at a position of the colour bar's axis.
     fn colour_at(&self, p: f64) -> RGBColor {
         match self.scale {
-            MapScale::Sequential => sequential((p - self.lo) / (self.hi - self.lo)),
+            MapScale::Sequential | MapScale::Bounded { .. } => {
+                sequential((p - self.lo) / (self.hi - self.lo))
+            }
             MapScale::Diverging => diverging(p / self.hi),
             MapScale::SignedLog { .. } => diverging(p),
         }
@@ -915,8 +928,8 @@ fn bar_value_range(values: &[f64]) -> (f64, f64) {
     )
 }
 
-/// Write device.svg, spectrum.svg, bond_current.svg and (with a Born
-/// loop) convergence.svg for a solved operating point.
+/// Write device.svg, spectrum.svg, bond_current.svg, occupation.svg and
+/// (with a Born loop) convergence.svg for a solved operating point.
 pub fn write_solve_plots(
     stage: &Staging,
     sol: &Solution,
@@ -925,6 +938,7 @@ pub fn write_solve_plots(
     stage.write("device.svg", device_svg(sol, o)?.as_bytes())?;
     stage.write("spectrum.svg", spectrum_svg(sol, o)?.as_bytes())?;
     stage.write("bond_current.svg", bond_current_svg(sol, o)?.as_bytes())?;
+    stage.write("occupation.svg", occupation_svg(sol, o)?.as_bytes())?;
     if let Some(svg) = convergence_svg(sol)? {
         stage.write("convergence.svg", svg.as_bytes())?;
     }

@@ -588,6 +588,40 @@ const LATTICE: [Key; 5] = [
     ),
 ];
 
+const MOVERS: [Key; 6] = [
+    (
+        "right_movers_range_ev",
+        "eV",
+        "lowest and highest level µ₊ of the electrons moving to +x over the cells where it was \
+         found (null when none)",
+    ),
+    (
+        "left_movers_range_ev",
+        "eV",
+        "the same for µ₋, the electrons moving to −x",
+    ),
+    (
+        "cells_matched",
+        "1",
+        "cells whose pair (i, i+1) is locally uniform and where both levels were found",
+    ),
+    (
+        "cells_not_uniform",
+        "1",
+        "cells whose pair (i, i+1) is not locally uniform (cell indices)",
+    ),
+    (
+        "cells_without_propagating_states",
+        "1",
+        "uniform pairs without propagating states of one direction in the window (cell indices)",
+    ),
+    (
+        "cells_outside_interval",
+        "1",
+        "uniform pairs where a mover's match lies outside the search interval of µ_i (cell indices)",
+    ),
+];
+
 const SELF_HEATING: [Key; 10] = [
     (
         "hottest_lattice_k",
@@ -808,6 +842,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "grid.", &GRID);
     keys(&mut f, "lattice.", &LATTICE);
     keys(&mut f, "self_heating.", &SELF_HEATING);
+    keys(&mut f, "movers.", &MOVERS);
     keys(&mut f, "", &RUN);
     f
 }

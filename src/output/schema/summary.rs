@@ -186,9 +186,24 @@ pub struct SolveSummary {
     pub lattice: Option<LatticeSummary>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub self_heating: Option<SelfHeatingSummary>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub movers: Option<MoversSummary>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
+}
+
+/// The `movers` object of summary.json: the range of the right- and
+/// left-movers' levels over the cells where they were found.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct MoversSummary {
+    pub right_movers_range_ev: Option<[f64; 2]>,
+    pub left_movers_range_ev: Option<[f64; 2]>,
+    pub cells_matched: usize,
+    pub cells_not_uniform: Vec<usize>,
+    pub cells_without_propagating_states: Vec<usize>,
+    pub cells_outside_interval: Vec<usize>,
 }
 
 /// The `self_heating` object of summary.json for a solve whose lattice is

@@ -51,6 +51,43 @@ pub fn cell_lattice_temperature(sol: &crate::scba::Solution, cell: usize) -> f64
     }
 }
 
+/// The movers' columns of sites.csv, written when the movers' levels were
+/// asked for (every `qheat solve`).
+fn mover_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
+    const WHEN: &str = "when the movers' levels were asked for, as every qheat solve does";
+    fn movers<'b>(p: &'b SolvePoint<'_>) -> Option<&'b crate::observables::MoverLevels> {
+        p.o.sites.movers.as_ref()
+    }
+    let present: fn(&SolvePoint<'_>) -> bool = |p| movers(p).is_some();
+    vec![
+        Column {
+            name: "fermi_level_right_movers_ev",
+            unit: "eV",
+            meaning: "level µ₊ to which the electrons moving to +x are filled, from the Bloch \
+                      modes of the locally uniform pair of cells (i, i+1); NaN unless \
+                      movers_status is 0",
+            only_when: Some((WHEN, present)),
+            value: |p, i| Cell::Num(movers(p).map_or(f64::NAN, |m| m.right_ev[i])),
+        },
+        Column {
+            name: "fermi_level_left_movers_ev",
+            unit: "eV",
+            meaning: "level µ₋ of the electrons moving to −x, as fermi_level_right_movers_ev",
+            only_when: Some((WHEN, present)),
+            value: |p, i| Cell::Num(movers(p).map_or(f64::NAN, |m| m.left_ev[i])),
+        },
+        Column {
+            name: "movers_status",
+            unit: "1",
+            meaning: "how the movers' levels ended: 0 found, 1 the pair (i, i+1) is not \
+                      locally uniform, 2 last cell (no pair), 3 no propagating states of one \
+                      direction, 4 a match outside the search interval, 5 kernel failure",
+            only_when: Some((WHEN, present)),
+            value: |p, i| Cell::Int(movers(p).map_or(5, |m| m.status[i].code())),
+        },
+    ]
+}
+
 /// sites.csv: one row per cell of the device.
 pub fn sites<'a>() -> Table<SolvePoint<'a>> {
     let mut columns: Vec<Column<SolvePoint<'a>>> = vec![
@@ -136,6 +173,7 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
             )
         },
     });
+    columns.extend(mover_columns());
     Table {
         file: "sites.csv",
         written_by: "`qheat solve`",
@@ -662,6 +700,41 @@ pub fn table_docs() -> Vec<FileDoc> {
 /// Name of the bond-current file with its axes.
 pub const BOND_CURRENT_NPZ: &str = "bond_current.npz";
 
+/// Name of the occupation-map file with its axes.
+pub const OCCUPATION_NPZ: &str = "occupation.npz";
+
+/// Documentation of the occupation-map file.
+fn occupation_doc(f: impl Fn(&str, &'static str, &str) -> FieldDoc) -> FileDoc {
+    FileDoc {
+        file: OCCUPATION_NPZ.into(),
+        written_by: "`qheat solve`",
+        about: "How full the states of each cell are at each energy, with its axes, as named \
+                arrays."
+            .into(),
+        fields: vec![
+            f(
+                "map",
+                "1",
+                "occupation f(x, E) = Σ_o G^n_ii / Σ_o A_ii (orbitals of the cell summed): \
+                 between 0 (empty) and 1 (full); the Fermi function of the contacts in \
+                 equilibrium; NaN where the cell's spectral weight is below 1e-8 of the \
+                 largest in the map (no states to fill); shape (cells, energies), axis 0 the \
+                 cell, axis 1 the energy",
+            ),
+            f(
+                "x_nm",
+                "nm",
+                "position of each cell, length cells: the coordinate of axis 0 of `map`",
+            ),
+            f(
+                "energy_ev",
+                "eV",
+                "energy of each grid point, ascending: the coordinate of axis 1 of `map`",
+            ),
+        ],
+    }
+}
+
 /// Documentation of every array file.
 pub fn array_docs() -> Vec<FileDoc> {
     let f = |name: &str, unit: &'static str, meaning: &str| FieldDoc {
@@ -698,6 +771,7 @@ pub fn array_docs() -> Vec<FileDoc> {
                 ),
             ],
         },
+        occupation_doc(f),
         FileDoc {
             file: "self_energy_retarded.npy".into(),
             written_by: "`qheat solve` with scattering",

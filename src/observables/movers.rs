@@ -1,0 +1,505 @@
+//! Right- and left-moving quasi-Fermi levels.
+//!
+//! The local Fermi level µ_i fills all states of a cell to one level. Out
+//! of equilibrium the electrons moving to +x and those moving to −x come
+//! from different places and are filled to different levels: at a barrier
+//! the right-movers' level drops where the barrier starts reflecting, while
+//! the left-movers' level jumps there; µ_i lies between the two.
+//!
+//! Where two neighbouring cells i, i+1 sit in a locally uniform stretch
+//! (same on-site block, potential included, and the same coupling into,
+//! between and out of them, to [`UNIFORM_TOLERANCE_EV`]), the solutions of
+//! the Schrödinger equation on that pair are combinations of the 2b Bloch
+//! modes of the uniform chain ψ_n = λⁿ u at that energy, found from the
+//! quadratic eigenproblem τ λ² u − (E − h) λ u + τ† u = 0. A mode with
+//! |λ| = 1 propagates, to +x when its particle flow −2 Im(λ u†τu) is
+//! positive; the others are evanescent and carry no filling. With U the
+//! 2b × 2b matrix of the modes' values on the pair (columns of unit norm,
+//! degenerate modes of one direction orthonormalised), the correlation
+//! function over the pair is written in that basis, c = U⁻¹ G^n U⁻†, and so
+//! is the spectral function, a = U⁻¹ A U⁻†. Summing the diagonal over the
+//! right-moving modes gives their filled states c₊(E) and their states
+//! a₊(E); f₊ = c₊/a₊, and the same for the left-movers. A state fed by the
+//! left lead alone has c = f_L a mode by mode, so f₊ = f_L exactly there.
+//!
+//! The movers' levels µ₊, µ₋ are the Fermi levels that, at the lattice
+//! temperature of the cell, reproduce the movers' electrons:
+//! Σ_k c₊(E_k) = Σ_k a₊(E_k) f(E_k; µ₊, T), by the same bisection as µ_i.
+//!
+//! This needs the full diagonal and first off-diagonal blocks of G^n and A
+//! at every energy: one extra pass of the kernel at the converged
+//! scattering self-energy, solving each energy twice (once with the true
+//! in-scattering, once with every source filled, which gives A = G^r Γ G^a
+//! in the same block form). The values of pair (i, i+1) are reported at
+//! cell i; the last cell has no pair.
+
+use super::fermi_level::{FermiLevelStatus, cell_lattice_temperatures, match_fermi_level_checked};
+use super::occupation::OCCUPATION_THRESHOLD;
+use crate::C64;
+use crate::leads::{Lead, mode_pencil};
+use crate::model::Problem;
+use crate::rgf::{self, EnergyInput, EnergyOutput, FullBlocks, Workspace};
+use crate::scba::{LeadTable, Solution, SolveError};
+use faer::Mat;
+use faer::linalg::solvers::DenseSolveCore;
+use rayon::prelude::*;
+
+/// Two blocks count as equal when no element differs by more than this
+/// (eV) times (1 + the largest element): rounding of blocks built from the
+/// same numbers, but a potential step of a micro-electronvolt is a step.
+pub const UNIFORM_TOLERANCE_EV: f64 = 1e-9;
+
+/// A mode propagates when ||λ| − 1| is below this.
+const UNIT_CIRCLE: f64 = 1e-8;
+
+/// How the movers' levels of one cell ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MoverStatus {
+    /// Both levels found.
+    Matched,
+    /// The pair (i, i+1) is not part of a uniform stretch: no Bloch modes.
+    NotUniform,
+    /// The last cell has no pair to its right.
+    LastCell,
+    /// No propagating states of one direction in the energy window.
+    NoPropagatingStates,
+    /// One mover's match lies outside the search interval of µ_i.
+    OutsideInterval,
+    /// The extra kernel pass failed (the levels are unknown).
+    KernelFailed,
+}
+
+impl MoverStatus {
+    /// Code written in sites.csv: 0 matched, 1 not uniform, 2 last cell,
+    /// 3 no propagating states, 4 outside the search interval, 5 kernel
+    /// failure.
+    pub fn code(self) -> i64 {
+        match self {
+            Self::Matched => 0,
+            Self::NotUniform => 1,
+            Self::LastCell => 2,
+            Self::NoPropagatingStates => 3,
+            Self::OutsideInterval => 4,
+            Self::KernelFailed => 5,
+        }
+    }
+}
+
+/// The movers' levels and fillings along the device; index i stands for
+/// the pair of cells (i, i+1).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct MoverLevels {
+    /// µ₊ (eV): level of the electrons moving to +x; NaN unless matched.
+    pub right_ev: Vec<f64>,
+    /// µ₋ (eV): level of the electrons moving to −x; NaN unless matched.
+    pub left_ev: Vec<f64>,
+    /// How each cell ended.
+    pub status: Vec<MoverStatus>,
+    /// Electrons per cell in the right-moving modes (spin included,
+    /// interference between the movers left out).
+    pub electrons_right: Vec<f64>,
+    /// Electrons per cell in the left-moving modes.
+    pub electrons_left: Vec<f64>,
+    /// f₊(x, E), shape (cells, energies); NaN where not uniform or the
+    /// right-movers' states are below [`OCCUPATION_THRESHOLD`] of the
+    /// largest.
+    #[serde(skip)]
+    pub occupation_right: ndarray::Array2<f64>,
+    /// f₋(x, E), as `occupation_right`.
+    #[serde(skip)]
+    pub occupation_left: ndarray::Array2<f64>,
+}
+
+/// Filled states and states of the two movers of one pair at one energy:
+/// [c₊, a₊, c₋, a₋]; NaN where the modes could not be separated (a band
+/// edge, where two modes merge).
+type Weights = [f64; 4];
+
+fn same(a: &Mat<C64>, b: &Mat<C64>) -> bool {
+    let mut scale: f64 = 0.0;
+    let mut diff: f64 = 0.0;
+    for c in 0..a.ncols() {
+        for r in 0..a.nrows() {
+            scale = scale.max(a[(r, c)].norm()).max(b[(r, c)].norm());
+            diff = diff.max((a[(r, c)] - b[(r, c)]).norm());
+        }
+    }
+    diff <= UNIFORM_TOLERANCE_EV * (1.0 + scale)
+}
+
+/// Whether each pair (i, i+1) is in a uniform stretch: equal on-site
+/// blocks and the same coupling into cell i, between the two and out of
+/// cell i+1 (at the device ends, the periodic lead's coupling; a wide-band
+/// lead has none, so an end pair beside it is not uniform).
+pub fn uniform_pairs(p: &Problem) -> Vec<bool> {
+    let d = &p.device;
+    let n = d.cells();
+    let lead_hop = |lead: &Lead| match lead {
+        Lead::Periodic { hopping, .. } => Some(hopping.clone()),
+        Lead::WideBand { .. } => None,
+    };
+    let left = lead_hop(&p.left.lead);
+    let right = lead_hop(&p.right.lead);
+    (0..n.saturating_sub(1))
+        .map(|i| {
+            let tau = &d.coupling[i];
+            let before = if i == 0 {
+                left.as_ref()
+            } else {
+                Some(&d.coupling[i - 1])
+            };
+            let after = if i + 2 == n {
+                right.as_ref()
+            } else {
+                d.coupling.get(i + 1)
+            };
+            same(&d.onsite[i], &d.onsite[i + 1])
+                && before.is_some_and(|m| same(m, tau))
+                && after.is_some_and(|m| same(m, tau))
+        })
+        .collect()
+}
+
+/// The mode basis of a uniform pair at one energy: the rows of U⁻¹ of the
+/// right- and of the left-moving propagating modes.
+struct PairBasis {
+    right: Vec<Vec<C64>>,
+    left: Vec<Vec<C64>>,
+}
+
+/// Unit-norm columns; modes of one direction with equal λ orthonormalised
+/// among themselves (Gram–Schmidt), so that the sum of their weights does
+/// not depend on how the eigensolver mixed them.
+fn orthonormalise(cols: &mut [Vec<C64>], groups: &[(usize, C64)]) {
+    for j in 0..cols.len() {
+        for i in 0..j {
+            let (di, li) = groups[i];
+            let (dj, lj) = groups[j];
+            if di == 0 || di != dj || (li - lj).norm() > 1e-6 {
+                continue;
+            }
+            let dot: C64 = cols[i]
+                .iter()
+                .zip(&cols[j])
+                .map(|(a, b)| a.conj() * b)
+                .sum();
+            let (head, tail) = cols.split_at_mut(j);
+            for (x, y) in tail[0].iter_mut().zip(&head[i]) {
+                *x -= dot * y;
+            }
+        }
+        let norm = cols[j].iter().map(|z| z.norm_sqr()).sum::<f64>().sqrt();
+        for z in cols[j].iter_mut() {
+            *z /= norm;
+        }
+    }
+}
+
+/// Bloch modes of the uniform chain (h, τ) at energy `e` on a pair of
+/// cells; `None` where they do not form a usable basis (a band edge).
+fn pair_basis(e: f64, h: &Mat<C64>, tau: &Mat<C64>) -> Option<PairBasis> {
+    let b = h.nrows();
+    let (a, bm) = mode_pencil(e, h, tau);
+    let eig = a.generalized_eigen(&bm).ok()?;
+    let (u, sa, sb) = (eig.U(), eig.S_a(), eig.S_b());
+    let mut cols = Vec::with_capacity(2 * b);
+    // Direction: +1 right-moving, −1 left-moving, 0 evanescent; with λ.
+    let mut kinds: Vec<(usize, C64)> = Vec::with_capacity(2 * b);
+    for j in 0..2 * b {
+        // Eigenvector (λu, u): the pair values are (u, λu).
+        let col: Vec<C64> = (0..2 * b).map(|r| u[((r + b) % (2 * b), j)]).collect();
+        let (alpha, beta) = (sa[j], sb[j]);
+        let finite = beta.norm() > 1e-14 * alpha.norm();
+        let lam = if finite {
+            alpha / beta
+        } else {
+            C64::new(f64::INFINITY, 0.0)
+        };
+        let kind = if finite && (lam.norm() - 1.0).abs() < UNIT_CIRCLE {
+            let ui = &col[..b];
+            let mut s = C64::new(0.0, 0.0);
+            for r in 0..b {
+                for c in 0..b {
+                    s += ui[r].conj() * tau[(r, c)] * ui[c];
+                }
+            }
+            let flow = -2.0 * (lam * s).im;
+            let size = ui.iter().map(|z| z.norm_sqr()).sum::<f64>() * (1.0 + tau.norm_l2());
+            if flow.abs() <= 1e-9 * size {
+                return None; // zero velocity: a band edge
+            }
+            if flow > 0.0 { 1 } else { 2 }
+        } else {
+            0
+        };
+        cols.push(col);
+        kinds.push((kind, lam));
+    }
+    orthonormalise(&mut cols, &kinds);
+    let umat = Mat::from_fn(2 * b, 2 * b, |r, c| cols[c][r]);
+    let inv = umat.partial_piv_lu().inverse();
+    let check = &umat * &inv;
+    let off = (0..2 * b)
+        .flat_map(|r| (0..2 * b).map(move |c| (r, c)))
+        .map(|(r, c)| (check[(r, c)] - C64::new(f64::from(u8::from(r == c)), 0.0)).norm())
+        .fold(0.0f64, f64::max);
+    if off.is_nan() || off >= 1e-8 {
+        return None;
+    }
+    let row = |m: usize| (0..2 * b).map(|c| inv[(m, c)]).collect::<Vec<_>>();
+    let pick = |want: usize| {
+        kinds
+            .iter()
+            .enumerate()
+            .filter(|(_, k)| k.0 == want)
+            .map(|(m, _)| row(m))
+            .collect()
+    };
+    Some(PairBasis {
+        right: pick(1),
+        left: pick(2),
+    })
+}
+
+/// w M w† for a row w and the pair matrix [[D_i, L†], [L, D_i+1]].
+fn pair_form(w: &[C64], di: &Mat<C64>, dj: &Mat<C64>, lower: &Mat<C64>) -> f64 {
+    let b = di.nrows();
+    let at = |r: usize, c: usize| match (r < b, c < b) {
+        (true, true) => di[(r, c)],
+        (false, false) => dj[(r - b, c - b)],
+        (false, true) => lower[(r - b, c)],
+        (true, false) => lower[(c - b, r)].conj(),
+    };
+    let mut s = C64::new(0.0, 0.0);
+    for r in 0..2 * b {
+        for c in 0..2 * b {
+            s += w[r] * at(r, c) * w[c].conj();
+        }
+    }
+    s.re
+}
+
+/// The kernel at energy index k with full blocks: with `spectral` every
+/// source is filled (lead Γ for Σ^in, Γ0 = −2 Im Σ^r_0 for the bath), so
+/// the filled blocks are those of A.
+fn full_blocks(
+    sol: &Solution,
+    leads: &LeadTable,
+    k: usize,
+    spectral: bool,
+    ws: &mut Workspace,
+) -> Result<FullBlocks, SolveError> {
+    let p = &sol.problem;
+    let dev = &p.device;
+    let ns = p.sites();
+    let e = p.grid.energy(k);
+    let (fl, fr) = if spectral {
+        (1.0, 1.0)
+    } else {
+        (p.left.occupation(e), p.right.occupation(e))
+    };
+    let inl = broadening(&leads.left[k], fl);
+    let inr = broadening(&leads.right[k], fr);
+    let retarded = &sol.sigma.retarded[k * ns..(k + 1) * ns];
+    let scatter_in: Vec<f64> = if spectral {
+        retarded.iter().map(|s| -2.0 * s.im).collect()
+    } else {
+        sol.sigma.inscatter[k * ns..(k + 1) * ns].to_vec()
+    };
+    let input = EnergyInput {
+        energy_ev: e,
+        onsite: &dev.onsite,
+        coupling: &dev.coupling,
+        sigma_left: &leads.left[k],
+        sigma_right: &leads.right[k],
+        inscatter_left: &inl,
+        inscatter_right: &inr,
+        scatter_retarded: retarded,
+        scatter_in: &scatter_in,
+        want_transmission: false,
+    };
+    let mut full = FullBlocks::default();
+    let mut gr = vec![C64::new(0.0, 0.0); ns];
+    let mut gn = vec![0.0; ns];
+    let mut bond = vec![0.0; dev.cells().saturating_sub(1)];
+    let out = EnergyOutput {
+        retarded: &mut gr,
+        filled: &mut gn,
+        bond: &mut bond,
+        full: Some(&mut full),
+    };
+    rgf::solve_energy(&input, ws, out)?;
+    Ok(full)
+}
+
+/// Γ f with Γ = i(Σ − Σ†).
+fn broadening(sigma: &Mat<C64>, f: f64) -> Mat<C64> {
+    let b = sigma.nrows();
+    Mat::from_fn(b, b, |r, c| {
+        let d = sigma[(r, c)] - sigma[(c, r)].conj();
+        C64::new(-d.im, d.re) * f
+    })
+}
+
+/// The movers' weights of every pair at energy index k (zeros for pairs
+/// that are not uniform).
+fn energy_weights(
+    sol: &Solution,
+    leads: &LeadTable,
+    uniform: &[bool],
+    k: usize,
+    ws: &mut Workspace,
+) -> Result<Vec<Weights>, SolveError> {
+    let p = &sol.problem;
+    let dev = &p.device;
+    let e = p.grid.energy(k);
+    let filled = full_blocks(sol, leads, k, false, ws)?;
+    let states = full_blocks(sol, leads, k, true, ws)?;
+    let mut cache: Option<(usize, Option<PairBasis>)> = None;
+    let mut out = vec![[0.0; 4]; uniform.len()];
+    for (i, w) in out.iter_mut().enumerate().filter(|(i, _)| uniform[*i]) {
+        let fresh = cache.as_ref().is_none_or(|(j, _)| {
+            !(same(&dev.onsite[*j], &dev.onsite[i]) && same(&dev.coupling[*j], &dev.coupling[i]))
+        });
+        if fresh {
+            cache = Some((i, pair_basis(e, &dev.onsite[i], &dev.coupling[i])));
+        }
+        let Some(basis) = cache.as_ref().and_then(|c| c.1.as_ref()) else {
+            *w = [f64::NAN; 4];
+            continue;
+        };
+        let sum = |rows: &[Vec<C64>], m: &FullBlocks| -> f64 {
+            rows.iter()
+                .map(|r| {
+                    pair_form(
+                        r,
+                        &m.filled_diagonal[i],
+                        &m.filled_diagonal[i + 1],
+                        &m.filled_lower[i],
+                    )
+                })
+                .sum()
+        };
+        *w = [
+            sum(&basis.right, &filled),
+            sum(&basis.right, &states),
+            sum(&basis.left, &filled),
+            sum(&basis.left, &states),
+        ];
+    }
+    Ok(out)
+}
+
+/// The movers' weights of every energy, [energy][pair].
+fn all_weights(sol: &Solution, uniform: &[bool]) -> Result<Vec<Vec<Weights>>, SolveError> {
+    let p = &sol.problem;
+    let leads = LeadTable::new(p)?;
+    let (n, b) = (p.device.cells(), p.device.orbitals);
+    (0..p.grid.count)
+        .into_par_iter()
+        .map_init(
+            || Workspace::new(n, b),
+            |ws, k| energy_weights(sol, &leads, uniform, k, ws),
+        )
+        .collect()
+}
+
+/// The right- and left-movers' levels and fillings of a solution (see the
+/// module documentation).
+pub fn mover_levels(sol: &Solution) -> MoverLevels {
+    let p = &sol.problem;
+    let n = p.device.cells();
+    let ne = p.grid.count;
+    let uniform = uniform_pairs(p);
+    let mut levels = MoverLevels {
+        right_ev: vec![f64::NAN; n],
+        left_ev: vec![f64::NAN; n],
+        status: (0..n)
+            .map(|i| match uniform.get(i) {
+                None => MoverStatus::LastCell,
+                Some(true) => MoverStatus::Matched,
+                Some(false) => MoverStatus::NotUniform,
+            })
+            .collect(),
+        electrons_right: vec![f64::NAN; n],
+        electrons_left: vec![f64::NAN; n],
+        occupation_right: ndarray::Array2::from_elem((n, ne), f64::NAN),
+        occupation_left: ndarray::Array2::from_elem((n, ne), f64::NAN),
+    };
+    let weights = match all_weights(sol, &uniform) {
+        Ok(w) => w,
+        Err(_) => {
+            for s in levels
+                .status
+                .iter_mut()
+                .filter(|s| **s == MoverStatus::Matched)
+            {
+                *s = MoverStatus::KernelFailed;
+            }
+            return levels;
+        }
+    };
+    fill_levels(sol, &weights, &mut levels);
+    levels
+}
+
+/// From the weights per energy and pair: the fillings, the electrons and
+/// the levels of every uniform pair.
+fn fill_levels(sol: &Solution, weights: &[Vec<Weights>], levels: &mut MoverLevels) {
+    let p = &sol.problem;
+    let energies = p.grid.energies();
+    let temps = cell_lattice_temperatures(sol);
+    let per_cell = p.spin_degeneracy * p.grid.step_ev / (2.0 * std::f64::consts::PI) / 2.0;
+    let largest = weights
+        .iter()
+        .flatten()
+        .flat_map(|w| [w[1], w[3]])
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, f64::max);
+    let floor = OCCUPATION_THRESHOLD * largest;
+    for i in 0..levels.status.len() {
+        if levels.status[i] != MoverStatus::Matched {
+            continue;
+        }
+        let mut found = [f64::NAN; 2];
+        let mut status = MoverStatus::Matched;
+        for (side, (ci, ai)) in [(0, 1), (2, 3)].into_iter().enumerate() {
+            let clean = |v: f64| if v.is_finite() { v } else { 0.0 };
+            let a: Vec<f64> = weights.iter().map(|w| clean(w[i][ai])).collect();
+            let filled: f64 = weights.iter().map(|w| clean(w[i][ci])).sum();
+            let map = if side == 0 {
+                &mut levels.occupation_right
+            } else {
+                &mut levels.occupation_left
+            };
+            for (k, w) in weights.iter().enumerate() {
+                let (c, s) = (w[i][ci], w[i][ai]);
+                map[(i, k)] = if s.is_finite() && s > floor {
+                    c / s
+                } else {
+                    f64::NAN
+                };
+            }
+            let electrons = filled * per_cell;
+            if side == 0 {
+                levels.electrons_right[i] = electrons;
+            } else {
+                levels.electrons_left[i] = electrons;
+            }
+            let m = match_fermi_level_checked(&energies, &a, filled, temps[i]);
+            found[side] = m.fermi_level_ev;
+            status = match (status, m.status) {
+                (MoverStatus::Matched, FermiLevelStatus::Matched) => MoverStatus::Matched,
+                (MoverStatus::Matched, FermiLevelStatus::NoStates) => {
+                    MoverStatus::NoPropagatingStates
+                }
+                (MoverStatus::Matched, _) => MoverStatus::OutsideInterval,
+                (s, _) => s,
+            };
+        }
+        levels.right_ev[i] = found[0];
+        levels.left_ev[i] = found[1];
+        levels.status[i] = status;
+    }
+}
