@@ -184,3 +184,39 @@ fn without_damping_the_device_figure_has_no_temperature_panel() {
     assert!(svg.contains("lattice power per cell"));
     assert!(!svg.contains("lattice temperature (K)"));
 }
+
+/// The joint loop's settings come from the case: with one outer iteration
+/// allowed, a heated lattice cannot converge, so `solve` exits 2, still
+/// writes its results, and summary.json flags the loop (and the run) as
+/// not converged with the case's tolerance; `check` shows the settings.
+#[test]
+fn the_joint_loop_settings_come_from_the_case() {
+    let dir = tempfile::tempdir().unwrap();
+    let extra = "damping_per_ps = 4.0\nself_heating_max_iterations = 1\n\
+                 self_heating_tolerance_k = 1e-4\nself_heating_mixing = 0.7\nself_heating_history = 2";
+    let case_path = case(dir.path(), extra, 0.06);
+    let (code, stdout, s, t) = solve(dir.path(), &case_path);
+    assert_eq!(code, 2, "{stdout}");
+    let h = &s["self_heating"];
+    assert_eq!(h["converged"], false, "{h}");
+    assert_eq!(h["outer_iterations"].as_u64(), Some(1), "{h}");
+    assert_eq!(h["tolerance_k"].as_f64(), Some(1e-4), "{h}");
+    assert_eq!(s["converged"], false);
+    // the one Born solve ran at the starting profile (the bath
+    // temperature) and the lattice's answer moved well beyond the tolerance
+    assert_eq!(t.len(), 12, "sites.csv written: {t:?}");
+    let change = h["last_change_k"].as_f64().unwrap();
+    assert!(change > 1e-4, "last change {change} K");
+    let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["check", case_path.to_str().unwrap()])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{text}");
+    assert!(
+        text.contains(
+            "joint loop: tolerance 0.0001 K, at most 1 outer iteration(s), mixing 0.7, history 2"
+        ),
+        "{text}"
+    );
+}

@@ -127,6 +127,18 @@ fn zero() -> f64 {
 fn tolerance_default() -> f64 {
     ScbaParams::DEFAULT_TOLERANCE
 }
+fn selfheat_tolerance_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_TOLERANCE_K
+}
+fn selfheat_iterations_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_MAX_ITERATIONS as f64
+}
+fn selfheat_mixing_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_MIXING_FACTOR
+}
+fn selfheat_history_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_ANDERSON_DEPTH as f64
+}
 fn iterations_default() -> f64 {
     ScbaParams::DEFAULT_MAX_ITERATIONS as f64
 }
@@ -582,6 +594,34 @@ pub static KEYS: &[KeyInfo] = &[
         "1/ps",
         Text("0 (no damping)"),
         "damping γ of every lattice site; γ > 0 makes the site a floating phonon probe, so `solve` heats the lattice and κ_ph includes the probes; every site a phonon mode couples to must then be damped",
+    ),
+    key(
+        "lattice.self_heating_tolerance_k",
+        Float,
+        "K",
+        Number(selfheat_tolerance_default),
+        "the joint electron–lattice loop of a damped lattice stops when no site's lattice temperature moves by more than this; > 0 and ≤ 100",
+    ),
+    key(
+        "lattice.self_heating_max_iterations",
+        Int,
+        "",
+        Number(selfheat_iterations_default),
+        "outer iteration limit of the joint loop (each one a Born solve), 1 to 10000; reaching it writes results flagged as not converged (exit 2)",
+    ),
+    key(
+        "lattice.self_heating_mixing",
+        Float,
+        "",
+        Number(selfheat_mixing_default),
+        "mixing factor β of the lattice temperatures in the joint loop, in (0, 1]; smaller damps a strong feedback",
+    ),
+    key(
+        "lattice.self_heating_history",
+        Int,
+        "",
+        Number(selfheat_history_default),
+        "Anderson history depth of the joint loop, 0 to 20 (0: linear mixing)",
     ),
     key(
         "lattice.masses_u",

@@ -16,7 +16,7 @@ use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::progress::Observer;
 use qheat::scattering::ScatteringSelfEnergy;
 use qheat::scba::{Solution, SolveError, solve as born_solve};
-use qheat::selfheat::{self, FloatingProbes, SelfHeatParams, SelfHeatReport, SelfHeatStart};
+use qheat::selfheat::{self, FloatingProbes, SelfHeatReport, SelfHeatStart};
 use std::path::Path;
 
 /// Load and resolve a case, printing its warnings.
@@ -371,7 +371,7 @@ fn run_solve(
         sigma: warm,
         ..SelfHeatStart::default()
     };
-    let params = SelfHeatParams::default();
+    let params = resolved.self_heating;
     let s =
         selfheat::solve(p, &resolved.scba, &params, &mut probes, start, observer).map_err(|e| {
             match e {

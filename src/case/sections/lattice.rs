@@ -26,6 +26,7 @@ use super::super::raw::{Opt, RawCase, RawLattice, RawLatticeLead, RawLatticeRegi
 use super::device::{DeviceKind, DeviceSpec};
 pub(crate) use super::lattice_blocks::ForceBlocks;
 use crate::lattice::{Lattice, LatticeError, PhononLead};
+use crate::selfheat::SelfHeatParams;
 use faer::Mat;
 use std::ops::Range;
 use toml::Spanned;
@@ -82,6 +83,8 @@ pub(crate) struct LatticeSpec {
     /// Uniform damping γ (1/ps).
     pub damping_per_ps: f64,
     pub regions: Vec<LatticeRegion>,
+    /// Settings of the joint electron–lattice loop.
+    pub self_heating: SelfHeatParams,
     /// Span of the `[lattice]` table.
     pub span: Option<Range<usize>>,
 }
@@ -114,6 +117,7 @@ impl LatticeSpec {
             forces,
             damping_per_ps: damping_per_ps.unwrap_or(0.0),
             regions,
+            self_heating: self_heating(l, ck)?,
             span,
         }))
     }
@@ -214,6 +218,54 @@ impl LatticeSpec {
             ),
         }
     }
+}
+
+/// Largest tolerance (K), outer iteration limit and Anderson depth of the
+/// joint loop accepted from a case.
+const MAX_SELFHEAT_TOLERANCE_K: f64 = 100.0;
+const MAX_SELFHEAT_ITERATIONS: i64 = 10_000;
+const MAX_SELFHEAT_HISTORY: i64 = 20;
+
+/// `self_heating_*`: the settings of the joint electron–lattice loop, each
+/// defaulting to [`SelfHeatParams::default`].
+fn self_heating(l: &RawLattice, ck: &Checker<'_>) -> Result<SelfHeatParams, CaseError> {
+    let mut p = SelfHeatParams::default();
+    if let Some(t) = ck.ranged(
+        &l.self_heating_tolerance_k,
+        "lattice.self_heating_tolerance_k",
+        &format!(
+            "a tolerance in K, > 0 and ≤ {MAX_SELFHEAT_TOLERANCE_K} (hint: the default is {:e} K)",
+            SelfHeatParams::DEFAULT_TOLERANCE_K
+        ),
+        |x| x > 0.0 && x <= MAX_SELFHEAT_TOLERANCE_K,
+    )? {
+        p = p.with_tolerance_k(t);
+    }
+    if let Some(n) = ck.int(
+        &l.self_heating_max_iterations,
+        "lattice.self_heating_max_iterations",
+        &format!("an outer iteration limit from 1 to {MAX_SELFHEAT_ITERATIONS}"),
+        |n| (1..=MAX_SELFHEAT_ITERATIONS).contains(&n),
+    )? {
+        p = p.with_max_iterations(n);
+    }
+    if let Some(b) = ck.ranged(
+        &l.self_heating_mixing,
+        "lattice.self_heating_mixing",
+        "a mixing factor in (0, 1] (1 takes the whole update; smaller damps a strong feedback)",
+        |x| x > 0.0 && x <= 1.0,
+    )? {
+        p = p.with_mixing_factor(b);
+    }
+    if let Some(d) = ck.int(
+        &l.self_heating_history,
+        "lattice.self_heating_history",
+        &format!("an Anderson history depth from 0 to {MAX_SELFHEAT_HISTORY} (0: linear mixing)"),
+        |n| (0..=MAX_SELFHEAT_HISTORY).contains(&n),
+    )? {
+        p = p.with_anderson_depth(d);
+    }
+    Ok(p)
 }
 
 /// The masses and springs of a chain or strip: `mass_u` and
