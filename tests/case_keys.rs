@@ -90,6 +90,7 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::Text => toml::Value::String("x.csv".into()),
             ValueType::Choice(names) => toml::Value::String(names()[0].into()),
             ValueType::Drop => toml::Value::String("leads".into()),
+            ValueType::FloatList => toml::Value::Array(vec![toml::Value::Float(28.0)]),
             // the old name is read, then refused by name
             ValueType::Renamed => toml::Value::String("chain".into()),
         };

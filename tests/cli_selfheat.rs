@@ -184,3 +184,101 @@ fn without_damping_the_device_figure_has_no_temperature_panel() {
     assert!(svg.contains("lattice power per cell"));
     assert!(!svg.contains("lattice temperature (K)"));
 }
+
+/// The joint loop's settings come from the case: with one outer iteration
+/// allowed, a heated lattice cannot converge, so `solve` exits 2, still
+/// writes its results, and summary.json flags the loop (and the run) as
+/// not converged with the case's tolerance; `check` shows the settings.
+#[test]
+fn the_joint_loop_settings_come_from_the_case() {
+    let dir = tempfile::tempdir().unwrap();
+    let extra = "damping_per_ps = 4.0\nself_heating_max_iterations = 1\n\
+                 self_heating_tolerance_k = 1e-4\nself_heating_mixing = 0.7\nself_heating_history = 2";
+    let case_path = case(dir.path(), extra, 0.06);
+    let (code, stdout, s, t) = solve(dir.path(), &case_path);
+    assert_eq!(code, 2, "{stdout}");
+    let h = &s["self_heating"];
+    assert_eq!(h["converged"], false, "{h}");
+    assert_eq!(h["outer_iterations"].as_u64(), Some(1), "{h}");
+    assert_eq!(h["tolerance_k"].as_f64(), Some(1e-4), "{h}");
+    assert_eq!(s["converged"], false);
+    // the one Born solve ran at the starting profile (the bath
+    // temperature) and the lattice's answer moved well beyond the tolerance
+    assert_eq!(t.len(), 12, "sites.csv written: {t:?}");
+    let change = h["last_change_k"].as_f64().unwrap();
+    assert!(change > 1e-4, "last change {change} K");
+    let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["check", case_path.to_str().unwrap()])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{text}");
+    assert!(
+        text.contains(
+            "joint loop: tolerance 0.0001 K, at most 1 outer iteration(s), mixing 0.7, history 2"
+        ),
+        "{text}"
+    );
+}
+
+/// A self-heating solve stores its lattice temperatures beside the
+/// self-energy; re-solving the case warm-started from its own result
+/// starts the joint loop there, so it converges in at most 2 outer
+/// iterations (it took several from the bath) to the same lattice
+/// temperatures within the loop's tolerance (1e-6 K, the default). A case
+/// of another site count is refused, naming the folder.
+#[test]
+fn a_warm_start_resumes_the_lattice_temperatures() {
+    let dir = tempfile::tempdir().unwrap();
+    let case_path = case(dir.path(), "damping_per_ps = 4.0", 0.06);
+    let (code, _, first, t0) = solve(dir.path(), &case_path);
+    assert_eq!(code, 0);
+    let cold_iterations = first["self_heating"]["outer_iterations"].as_u64().unwrap();
+    assert!(cold_iterations > 2, "from the bath: {cold_iterations}");
+    let stored = dir.path().join("out");
+    let a: ndarray::Array1<f64> =
+        ndarray_npy::read_npy(stored.join("lattice_temperature.npy")).unwrap();
+    assert_eq!(a.to_vec(), t0, "the stored profile is the one of sites.csv");
+    let run = |case: &Path, out: &str| {
+        Command::new(env!("CARGO_BIN_EXE_qheat"))
+            .args(["solve", case.to_str().unwrap(), "-o"])
+            .arg(dir.path().join(out))
+            .arg("--warm-start")
+            .arg(&stored)
+            .output()
+            .unwrap()
+    };
+    let o = run(&case_path, "again");
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let again: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("again/summary.json")).unwrap(),
+    )
+    .unwrap();
+    let h = &again["self_heating"];
+    assert!(h["outer_iterations"].as_u64().unwrap() <= 2, "{h}");
+    assert_eq!(h["converged"], true);
+    let t1: ndarray::Array1<f64> =
+        ndarray_npy::read_npy(dir.path().join("again/lattice_temperature.npy")).unwrap();
+    for (a, b) in t0.iter().zip(t1.iter()) {
+        assert!((a - b).abs() <= 1e-6, "{a} K then {b} K");
+    }
+    // Another device (a longer chain): refused before any work.
+    let longer = std::fs::read_to_string(&case_path)
+        .unwrap()
+        .replace("length_nm = 6.0", "length_nm = 6.5");
+    let other = dir.path().join("longer.toml");
+    std::fs::write(&other, longer).unwrap();
+    let o = run(&other, "other");
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("expected 13 lattice temperatures") && err.contains("found 12"),
+        "{err}"
+    );
+    assert!(err.contains(&stored.display().to_string()), "{err}");
+}

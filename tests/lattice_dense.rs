@@ -201,3 +201,65 @@ fn same_transmission(a: &Lattice, b: &Lattice) {
         "the contact must scatter for the check to mean anything"
     );
 }
+
+/// A lattice of force-constant blocks read from a case (two sites per
+/// cell, random positive springs inside a cell and to the next cell, the
+/// diagonal the sum of every bond, unequal masses per site from a .npy
+/// file) against the dense inversion of the same dynamical matrix; with and
+/// without damping. Tolerance 1e-10 as above.
+#[test]
+fn blocks_lattice_with_unequal_masses_matches_dense_inversion() {
+    let (n, b): (usize, usize) = (5, 2);
+    let mut rng = Rng::new(23);
+    let between: Vec<Mat<f64>> = (0..n - 1)
+        .map(|_| Mat::from_fn(b, b, |_, _| -(2.0 + 10.0 * u01(&mut rng))))
+        .collect();
+    let inside: Vec<f64> = (0..n).map(|_| 5.0 + 20.0 * u01(&mut rng)).collect();
+    let onsite: Vec<Mat<f64>> = (0..n)
+        .map(|i| {
+            let left = &between[i.saturating_sub(1)];
+            let right = &between[i.min(n - 2)];
+            Mat::from_fn(b, b, |r, c| {
+                if r != c {
+                    return -inside[i];
+                }
+                let bonds: f64 = (0..b).map(|j| -right[(r, j)] - left[(j, r)]).sum();
+                inside[i] + bonds
+            })
+        })
+        .collect();
+    let masses = ndarray::Array2::from_shape_fn((n, b), |_| 10.0 + 60.0 * u01(&mut rng));
+    let dir = tempfile::tempdir().unwrap();
+    let write = |name: &str, blocks: &[Mat<f64>]| {
+        let a = ndarray::Array3::from_shape_fn((blocks.len(), b, b), |(i, r, c)| blocks[i][(r, c)]);
+        ndarray_npy::write_npy(dir.path().join(name), &a).unwrap();
+    };
+    write("k-on.npy", &onsite);
+    write("k-co.npy", &between);
+    write(
+        "h-on.npy",
+        &vec![Mat::from_fn(b, b, |r, c| if r == c { 0.3 } else { -0.1 }); n],
+    );
+    write(
+        "h-co.npy",
+        &[Mat::from_fn(b, b, |r, c| if r == c { -0.1 } else { 0.0 })],
+    );
+    ndarray_npy::write_npy(dir.path().join("m.npy"), &masses).unwrap();
+    let case = "name = \"blocks\"\n[device]\nkind = \"blocks\"\nspacing_nm = 0.5\n\
+         onsite_file = \"h-on.npy\"\ncoupling_file = \"h-co.npy\"\n\
+         [leads.left]\nfermi_level_ev = 0.05\ntemperature_k = 300.0\n\
+         [leads.right]\nfermi_level_ev = 0.05\ntemperature_k = 300.0\n\
+         [lattice]\nmasses_file = \"m.npy\"\nforce_onsite_file = \"k-on.npy\"\n\
+         force_coupling_file = \"k-co.npy\"\n";
+    std::fs::write(dir.path().join("c.toml"), case).unwrap();
+    let r = qheat::case::Case::load(&dir.path().join("c.toml"))
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+    let lat = r.lattice.unwrap();
+    assert_eq!(lat.masses_u(), masses.as_slice().unwrap());
+    compare(&lat, &[0.004, 0.13, 0.29, 0.47, 0.62, 0.85, 0.96]);
+    let damping: Vec<f64> = (0..n * b).map(|_| 0.4 * u01(&mut rng)).collect();
+    compare(&lat.with_damping(damping).unwrap(), &[0.07, 0.5, 0.8]);
+}

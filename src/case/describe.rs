@@ -184,9 +184,12 @@ impl Resolved {
             s,
             "            {}",
             if ghi > 0.0 {
+                let p = &self.self_heating;
                 format!(
                     "damping {glo} to {ghi} /ps: damped sites are phonon probes; solve heats the \
-                     lattice and κ_ph includes the probes"
+                     lattice and κ_ph includes the probes\n            joint loop: tolerance {} K, \
+                     at most {} outer iteration(s), mixing {}, history {}",
+                    p.tolerance_k, p.max_iterations, p.mixing_factor, p.anderson_depth
                 )
             } else {
                 "no damping: the lattice stays at the bath temperature".to_string()

@@ -103,6 +103,14 @@ pub enum CaseKey {
     LatticeTransverseSpring,
     /// `lattice.damping_per_ps`
     LatticeDamping,
+    /// `lattice.self_heating_tolerance_k`
+    LatticeSelfHeatingTolerance,
+    /// `lattice.self_heating_max_iterations`
+    LatticeSelfHeatingMaxIterations,
+    /// `lattice.self_heating_mixing`
+    LatticeSelfHeatingMixing,
+    /// `lattice.self_heating_history`
+    LatticeSelfHeatingHistory,
     /// `lattice.region.#.from_nm`
     LatticeRegionFrom(usize),
     /// `lattice.region.#.to_nm`
@@ -173,6 +181,10 @@ const TEMPLATES: &[CaseKey] = &[
     K::LatticeSpring,
     K::LatticeTransverseSpring,
     K::LatticeDamping,
+    K::LatticeSelfHeatingTolerance,
+    K::LatticeSelfHeatingMaxIterations,
+    K::LatticeSelfHeatingMixing,
+    K::LatticeSelfHeatingHistory,
     K::LatticeRegionFrom(0),
     K::LatticeRegionTo(0),
     K::LatticeRegionMass(0),
@@ -240,6 +252,10 @@ impl CaseKey {
             K::LatticeSpring => "lattice.spring_n_per_m",
             K::LatticeTransverseSpring => "lattice.transverse_spring_n_per_m",
             K::LatticeDamping => "lattice.damping_per_ps",
+            K::LatticeSelfHeatingTolerance => "lattice.self_heating_tolerance_k",
+            K::LatticeSelfHeatingMaxIterations => "lattice.self_heating_max_iterations",
+            K::LatticeSelfHeatingMixing => "lattice.self_heating_mixing",
+            K::LatticeSelfHeatingHistory => "lattice.self_heating_history",
             K::LatticeRegionFrom(_) => "lattice.region.#.from_nm",
             K::LatticeRegionTo(_) => "lattice.region.#.to_nm",
             K::LatticeRegionMass(_) => "lattice.region.#.mass_u",
@@ -562,6 +578,12 @@ impl CaseKey {
             K::LatticeSpring => table(&mut raw.lattice).spring_n_per_m = f,
             K::LatticeTransverseSpring => table(&mut raw.lattice).transverse_spring_n_per_m = f,
             K::LatticeDamping => table(&mut raw.lattice).damping_per_ps = f,
+            K::LatticeSelfHeatingTolerance => table(&mut raw.lattice).self_heating_tolerance_k = f,
+            K::LatticeSelfHeatingMaxIterations => {
+                table(&mut raw.lattice).self_heating_max_iterations = i;
+            }
+            K::LatticeSelfHeatingMixing => table(&mut raw.lattice).self_heating_mixing = f,
+            K::LatticeSelfHeatingHistory => table(&mut raw.lattice).self_heating_history = i,
             K::LatticeLeadMass(s) => lattice_lead(raw, s).mass_u = f,
             K::LatticeLeadSpring(s) => lattice_lead(raw, s).spring_n_per_m = f,
             // The keys of the device, leads, bias and phonons are set in

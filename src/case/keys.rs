@@ -26,6 +26,8 @@ pub enum ValueType {
     Choice(fn() -> Vec<&'static str>),
     /// `"leads"` or a `{ linear = { … } }` table.
     Drop,
+    /// An array of numbers (integers are accepted).
+    FloatList,
     /// A key of earlier versions, refused with a message naming its
     /// replacement.
     Renamed,
@@ -51,6 +53,7 @@ impl ValueType {
                 .collect::<Vec<_>>()
                 .join(" or "),
             ValueType::Drop => "`\"leads\"` or `{ linear = { from_nm, to_nm } }`".into(),
+            ValueType::FloatList => "array of numbers".into(),
             ValueType::Renamed => "—".into(),
         }
     }
@@ -113,7 +116,7 @@ const fn key(
 }
 
 use DefaultValue::{Number, Required, Text, Word};
-use ValueType::{Bool, Drop, Float, Int, Renamed};
+use ValueType::{Bool, Drop, Float, FloatList, Int, Renamed};
 
 fn spin_default() -> f64 {
     DEFAULT_SPIN_DEGENERACY as f64
@@ -123,6 +126,18 @@ fn zero() -> f64 {
 }
 fn tolerance_default() -> f64 {
     ScbaParams::DEFAULT_TOLERANCE
+}
+fn selfheat_tolerance_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_TOLERANCE_K
+}
+fn selfheat_iterations_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_MAX_ITERATIONS as f64
+}
+fn selfheat_mixing_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_MIXING_FACTOR
+}
+fn selfheat_history_default() -> f64 {
+    crate::selfheat::SelfHeatParams::DEFAULT_ANDERSON_DEPTH as f64
 }
 fn iterations_default() -> f64 {
     ScbaParams::DEFAULT_MAX_ITERATIONS as f64
@@ -554,15 +569,17 @@ pub static KEYS: &[KeyInfo] = &[
         "lattice.mass_u",
         Float,
         "u",
-        Required,
-        "mass of every lattice site (atomic mass units); required when [lattice] is given",
+        Text(
+            "required for a chain or strip; for blocks, one of `mass_u`, `masses_u`, `masses_file`",
+        ),
+        "mass of every lattice site (atomic mass units)",
     ),
     key(
         "lattice.spring_n_per_m",
         Float,
         "N/m",
-        Required,
-        "spring of every bond along x; required when [lattice] is given",
+        Text("required for a chain or strip (blocks: refused, the force files hold the springs)"),
+        "spring of every bond along x",
     ),
     key(
         "lattice.transverse_spring_n_per_m",
@@ -577,6 +594,62 @@ pub static KEYS: &[KeyInfo] = &[
         "1/ps",
         Text("0 (no damping)"),
         "damping γ of every lattice site; γ > 0 makes the site a floating phonon probe, so `solve` heats the lattice and κ_ph includes the probes; every site a phonon mode couples to must then be damped",
+    ),
+    key(
+        "lattice.self_heating_tolerance_k",
+        Float,
+        "K",
+        Number(selfheat_tolerance_default),
+        "the joint electron–lattice loop of a damped lattice stops when no site's lattice temperature moves by more than this; > 0 and ≤ 100",
+    ),
+    key(
+        "lattice.self_heating_max_iterations",
+        Int,
+        "",
+        Number(selfheat_iterations_default),
+        "outer iteration limit of the joint loop (each one a Born solve), 1 to 10000; reaching it writes results flagged as not converged (exit 2)",
+    ),
+    key(
+        "lattice.self_heating_mixing",
+        Float,
+        "",
+        Number(selfheat_mixing_default),
+        "mixing factor β of the lattice temperatures in the joint loop, in (0, 1]; smaller damps a strong feedback",
+    ),
+    key(
+        "lattice.self_heating_history",
+        Int,
+        "",
+        Number(selfheat_history_default),
+        "Anderson history depth of the joint loop, 0 to 20 (0: linear mixing)",
+    ),
+    key(
+        "lattice.masses_u",
+        FloatList,
+        "u",
+        Text("blocks only; one of `mass_u`, `masses_u`, `masses_file`"),
+        "one mass per orbital site of a cell, the same in every cell (device.kind = \"blocks\")",
+    ),
+    key(
+        "lattice.masses_file",
+        ValueType::Text,
+        "",
+        Text("blocks only; one of `mass_u`, `masses_u`, `masses_file`"),
+        "`.npy` of float64 masses (u), shape (b) for one cell or (N, b) for every cell (device.kind = \"blocks\")",
+    ),
+    key(
+        "lattice.force_onsite_file",
+        ValueType::Text,
+        "N/m",
+        Text("required for blocks"),
+        "real symmetric on-site force-constant blocks K_ii, the springs of every bond of a site (lead bonds too) on the diagonal; same formats as `device.onsite_file` (csv values in N/m, im = 0), one block per cell or a single block",
+    ),
+    key(
+        "lattice.force_coupling_file",
+        ValueType::Text,
+        "N/m",
+        Text("required for blocks"),
+        "force-constant blocks K_i,i+1 from a cell to the next; N − 1 blocks or a single one; the phonon leads continue the end blocks",
     ),
     key(
         "lattice.region.#.from_nm",

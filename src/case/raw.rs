@@ -157,6 +157,14 @@ pub(crate) struct RawLattice {
     pub spring_n_per_m: Opt<f64>,
     pub transverse_spring_n_per_m: Opt<f64>,
     pub damping_per_ps: Opt<f64>,
+    pub self_heating_tolerance_k: Opt<f64>,
+    pub self_heating_max_iterations: Opt<i64>,
+    pub self_heating_mixing: Opt<f64>,
+    pub self_heating_history: Opt<i64>,
+    pub masses_u: Opt<Vec<f64>>,
+    pub masses_file: Opt<String>,
+    pub force_onsite_file: Opt<String>,
+    pub force_coupling_file: Opt<String>,
     pub region: Option<Vec<Spanned<RawLatticeRegion>>>,
     pub left: Opt<RawLatticeLead>,
     pub right: Opt<RawLatticeLead>,
@@ -414,6 +422,11 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
         (ValueType::Bool, DeValue::Boolean(_)) => true,
         (ValueType::Text | ValueType::Choice(_), DeValue::String(_)) => true,
         (ValueType::Drop | ValueType::Renamed, _) => true,
+        (ValueType::FloatList, DeValue::Array(a)) => a.iter().all(|x| match x.get_ref() {
+            DeValue::Float(_) => true,
+            DeValue::Integer(i) => int_ok(i),
+            _ => false,
+        }),
         _ => false,
     }
 }
@@ -424,6 +437,7 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::Float => "a number",
         ValueType::Int => "an integer",
         ValueType::Bool => "a boolean",
+        ValueType::FloatList => "an array of numbers",
         _ => "a string",
     }
 }

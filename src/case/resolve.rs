@@ -47,6 +47,9 @@ pub struct Resolved {
     pub phonon_conductance_given: bool,
     /// The device's lattice (`[lattice]`), when the case describes one.
     pub lattice: Option<crate::lattice::Lattice>,
+    /// Settings of the joint electron–lattice loop (`lattice.self_heating_*`;
+    /// the defaults without a `[lattice]`).
+    pub self_heating: crate::selfheat::SelfHeatParams,
     /// Its phonon spectrum, computed on first use
     /// ([`Resolved::phonon_spectrum`]).
     pub phonon_spectrum_cache: super::phonons::SpectrumCache,
@@ -869,6 +872,10 @@ fn assemble(
         phonon_conductance_w_per_k: phonon_conductance,
         phonon_conductance_given: spec.thermal.phonon_conductance_w_per_k.is_some(),
         lattice,
+        self_heating: spec
+            .lattice
+            .as_ref()
+            .map_or_else(Default::default, |l| l.self_heating),
         phonon_spectrum_cache: Default::default(),
         fit_electron_temperature: spec.profile.electron_temperature == ProfileMode::Fit,
         allow_coarse_phonon_snap: spec.grid.allow_coarse_snap,

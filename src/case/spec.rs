@@ -66,7 +66,7 @@ pub(crate) fn validate(
     let dephasing = DephasingSpec::from_raw(raw, &ck, length_nm)?;
     let grid = GridSpec::from_raw(raw, &ck)?;
     let solver = SolverSpec::from_raw(raw, &ck, &mut warnings)?;
-    let lattice = LatticeSpec::from_raw(raw, &ck, &device, &mut warnings)?;
+    let lattice = LatticeSpec::from_raw(raw, &ck, &device, files, &mut warnings)?;
     Ok(CaseSpec {
         name,
         spin_degeneracy,

@@ -6,7 +6,10 @@ use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
 use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::phonons::{lattice_summary, write_phonon_files};
-use qheat::output::results::{RunInfo, header, read_self_energy, solve_summary, write_solve_files};
+use qheat::output::results::{
+    LATTICE_TEMPERATURE_FILE, RunInfo, header, read_lattice_temperature, read_self_energy,
+    solve_summary, write_solve_files,
+};
 use qheat::output::schema::summary::{
     CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SelfHeatingSummary,
     SolveResults, SolveSummary, to_text,
@@ -16,7 +19,7 @@ use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::progress::Observer;
 use qheat::scattering::ScatteringSelfEnergy;
 use qheat::scba::{Solution, SolveError, solve as born_solve};
-use qheat::selfheat::{self, FloatingProbes, SelfHeatParams, SelfHeatReport, SelfHeatStart};
+use qheat::selfheat::{self, FloatingProbes, SelfHeatReport, SelfHeatStart};
 use std::path::Path;
 
 /// Load and resolve a case, printing its warnings.
@@ -241,9 +244,7 @@ pub fn solve(
     // Refused before the work rather than after it.
     check_folder(&out_dir, &folder("solve", other_files))?;
     let warm = match warm_start {
-        Some(dir) => {
-            Some(read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?)
-        }
+        Some(dir) => Some(read_warm_start(dir, &resolved)?),
         None => None,
     };
     let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
@@ -333,6 +334,36 @@ fn not_converged(
     Ok(())
 }
 
+/// What a warm start reads from an earlier result folder: its scattering
+/// self-energy and, from a self-heating solve, its lattice temperatures.
+struct WarmStart {
+    sigma: ScatteringSelfEnergy,
+    lattice_temperature_k: Option<Vec<f64>>,
+}
+
+/// The warm-start data of `dir`; lattice temperatures of another site
+/// count are refused, naming the folder.
+fn read_warm_start(dir: &Path, resolved: &Resolved) -> Result<WarmStart, Failure> {
+    let sigma = read_self_energy(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?;
+    let t =
+        read_lattice_temperature(dir).map_err(|e| Failure::BadInput(format!("warm start: {e}")))?;
+    let sites = resolved.problem.device.cells() * resolved.problem.device.orbitals;
+    if let Some(t) = t.as_ref().filter(|t| t.len() != sites) {
+        return Err(Failure::BadInput(format!(
+            "--warm-start {}: expected {sites} lattice temperatures (one per orbital site of the \
+             case), found {} in {}; hint: warm-start from a solve of the same device, or remove \
+             that file to start the lattice from the bath temperature",
+            dir.display(),
+            t.len(),
+            LATTICE_TEMPERATURE_FILE
+        )));
+    }
+    Ok(WarmStart {
+        sigma,
+        lattice_temperature_k: t,
+    })
+}
+
 /// What the joint electron–lattice loop adds to a solve.
 struct SelfHeatRun {
     report: SelfHeatReport,
@@ -351,10 +382,11 @@ enum RunError {
 /// phonon leads at the two contact temperatures.
 fn run_solve(
     resolved: &Resolved,
-    warm: Option<&ScatteringSelfEnergy>,
+    warm_start: Option<&WarmStart>,
     observer: &mut dyn Observer,
 ) -> Result<(Solution, Option<SelfHeatRun>), RunError> {
     let p = &resolved.problem;
+    let warm = warm_start.map(|w| &w.sigma);
     let network = match resolved.probe_network() {
         Some(n) if !p.scattering.phonons.is_empty() => n.map_err(|e| {
             RunError::Other(format!(
@@ -370,9 +402,9 @@ fn run_solve(
     let mut probes = FloatingProbes::new(network, p.left.temperature_k, p.right.temperature_k);
     let start = SelfHeatStart {
         sigma: warm,
-        ..SelfHeatStart::default()
+        lattice_temperature_k: warm_start.and_then(|w| w.lattice_temperature_k.as_deref()),
     };
-    let params = SelfHeatParams::default();
+    let params = resolved.self_heating;
     let s =
         selfheat::solve(p, &resolved.scba, &params, &mut probes, start, observer).map_err(|e| {
             match e {

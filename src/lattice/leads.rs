@@ -56,6 +56,9 @@ pub(super) struct LeadDynamics {
     contact: Mat<C64>,
     /// Top of the lead's band (rad/ps).
     pub band_top: f64,
+    /// Lowest and highest ω² of the lead's Bloch bands ((rad/ps)²); a
+    /// stable lead has no ω² below zero.
+    pub band_range: (f64, f64),
     /// Subband edges at q = 0 and q = π (rad/ps).
     pub edges: Vec<f64>,
 }
@@ -88,6 +91,20 @@ impl PhononLead {
             onsite,
             coupling: diag(-longitudinal_n_per_m),
             contact: diag(-contact_n_per_m),
+        }
+    }
+
+    /// A lead that continues a device end cell: its cells repeat the end
+    /// cell's masses and force constants (`onsite` holding the springs of
+    /// every bond on its diagonal), `coupling` is the block from a cell to
+    /// its neighbour along +x, and the lead joins the device with that
+    /// same block.
+    pub fn continuing(masses_u: &[f64], onsite: &Mat<f64>, coupling: &Mat<f64>) -> Self {
+        Self {
+            masses_u: masses_u.to_vec(),
+            onsite: onsite.clone(),
+            coupling: coupling.clone(),
+            contact: coupling.clone(),
         }
     }
 
@@ -153,7 +170,7 @@ impl PhononLead {
             PhononSide::Left => mass_weight(&self.contact, m, device_masses),
             PhononSide::Right => mass_weight(&self.contact, device_masses, m),
         };
-        let (_, top) = crate::device::band_range(&phi00, &phi01);
+        let (bottom, top) = crate::device::band_range(&phi00, &phi01);
         let edges = band_edges(&phi00, &phi01);
         LeadDynamics {
             bulk: Lead::Periodic {
@@ -163,6 +180,7 @@ impl PhononLead {
             surface,
             contact,
             band_top: top.max(0.0).sqrt(),
+            band_range: (bottom, top),
             edges,
         }
     }

@@ -42,7 +42,9 @@
 //!
 //! - [`Lattice`]: the device's force constants, masses, leads and damping;
 //!   constructors [`Lattice::chain`], [`Lattice::chain_with_leads`],
-//!   [`Lattice::strip`] and the general [`Lattice::new`] for user blocks.
+//!   [`Lattice::strip`], the general [`Lattice::new`] for user blocks and
+//!   [`Lattice::continued_blocks`] for user blocks whose leads continue
+//!   the end cells.
 //! - [`PhononLead`]: a periodic lead and how it joins the device.
 //! - [`Lattice::transmission`]: Ξ(ω) at one frequency.
 //! - [`PhononSpectrum`]: Ξ on quadrature nodes, reused for κ_ph(T) and the
@@ -291,6 +293,47 @@ impl Lattice {
             .flat_map(|&m| std::iter::repeat_n(m, width))
             .collect();
         Self::new(masses, onsite, coupling, lead(0), lead(n - 1))
+    }
+
+    /// A lattice of user blocks whose leads continue its end cells.
+    ///
+    /// Unlike [`Lattice::new`], `force_onsite` holds the full on-site
+    /// blocks K_ii (N/m), the springs of every bond of a site on its
+    /// diagonal, the bonds to the leads included, as in a periodic crystal.
+    /// `force_coupling` holds K_i,i+1 (N − 1 blocks) and `ends` the blocks
+    /// that continue the lattice beyond the first and the last cell (the
+    /// bond from lead cell −1 to cell 0, and from cell N − 1 to lead cell
+    /// N). Each lead repeats its end cell (masses, on-site block) with the
+    /// end block as its cell-to-cell coupling.
+    pub fn continued_blocks(
+        masses_u: Vec<f64>,
+        force_onsite: Vec<Mat<f64>>,
+        force_coupling: Vec<Mat<f64>>,
+        ends: (Mat<f64>, Mat<f64>),
+    ) -> Result<Self, LatticeError> {
+        build::validate(&masses_u, &force_onsite, &force_coupling)?;
+        let (n, b) = (force_onsite.len(), force_onsite[0].nrows());
+        build::check_block("left end coupling".into(), &ends.0, b, false)?;
+        build::check_block("right end coupling".into(), &ends.1, b, false)?;
+        let left = PhononLead::continuing(&masses_u[..b], &force_onsite[0], &ends.0);
+        let right = PhononLead::continuing(&masses_u[(n - 1) * b..], &force_onsite[n - 1], &ends.1);
+        // `new` adds the lead bonds to the end blocks; these blocks hold
+        // them already.
+        let mut onsite = force_onsite;
+        let minus = |m: &Mat<f64>| Mat::from_fn(m.nrows(), m.ncols(), |r, c| -m[(r, c)]);
+        build::add_lead_bonds(&mut onsite[0], &minus(&ends.0), PhononSide::Left);
+        build::add_lead_bonds(&mut onsite[n - 1], &minus(&ends.1), PhononSide::Right);
+        Self::new(masses_u, onsite, force_coupling, left, right)
+    }
+
+    /// Lowest and highest ω² ((rad/ps)²) of the Bloch bands of one lead.
+    /// A lowest value below zero (beyond rounding) means the lead's force
+    /// constants are unstable: some wave would grow instead of travel.
+    pub fn lead_band_range_rad2_per_ps2(&self, side: PhononSide) -> (f64, f64) {
+        match side {
+            PhononSide::Left => self.left_dyn.band_range,
+            PhononSide::Right => self.right_dyn.band_range,
+        }
     }
 
     /// Adds a damping γ_i (1/ps, one per site, ≥ 0): the self-energy

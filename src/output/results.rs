@@ -250,7 +250,33 @@ pub fn write_solve_files(
     if !sol.problem.scattering.is_coherent() {
         write_self_energy(stage, sol)?;
     }
+    if let Some(t) = &sol.lattice_temperature_k {
+        let a = ndarray::Array1::from_vec(t.clone());
+        stage.write(
+            LATTICE_TEMPERATURE_FILE,
+            &npy_bytes(&a, &stage.path(LATTICE_TEMPERATURE_FILE))?,
+        )?;
+    }
     Ok(())
+}
+
+/// File name of the stored lattice temperatures of a self-heating solve
+/// (one per orbital site, K), kept beside the self-energy for warm starts.
+pub const LATTICE_TEMPERATURE_FILE: &str = "lattice_temperature.npy";
+
+/// Read the lattice temperatures stored by a self-heating solve; `None`
+/// when the folder has none (a solve without a heated lattice).
+pub fn read_lattice_temperature(dir: &std::path::Path) -> Result<Option<Vec<f64>>, OutputError> {
+    let path = dir.join(LATTICE_TEMPERATURE_FILE);
+    if !path.exists() {
+        return Ok(None);
+    }
+    let t: ndarray::Array1<f64> =
+        ndarray_npy::read_npy(&path).map_err(|e| OutputError::Encode {
+            path: path.clone(),
+            message: e.to_string(),
+        })?;
+    Ok(Some(t.to_vec()))
 }
 
 /// The bond-current map with its axes as named arrays: `map`, `bond_x_nm`

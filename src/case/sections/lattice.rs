@@ -16,19 +16,24 @@
 //! Each phonon lead continues its end site unless `[lattice.left]` or
 //! `[lattice.right]` names its own mass and/or spring; the bond joining a
 //! lead to the device has the lead's spring.
+//! A device of blocks takes force-constant blocks instead of springs
+//! (see [`super::lattice_blocks`]); damping and regions work the same way.
 
+use super::super::blocks_file::BlockFiles;
 use super::super::check::Checker;
 use super::super::error::CaseError;
 use super::super::raw::{Opt, RawCase, RawLattice, RawLatticeLead, RawLatticeRegion};
 use super::device::{DeviceKind, DeviceSpec};
+pub(crate) use super::lattice_blocks::ForceBlocks;
 use crate::lattice::{Lattice, LatticeError, PhononLead};
+use crate::selfheat::SelfHeatParams;
 use faer::Mat;
 use std::ops::Range;
 use toml::Spanned;
 
 /// Largest mass (u) and spring (N/m) accepted: far beyond any solid, and
 /// it keeps ω²-scale numbers of the solve finite and well scaled.
-const MAX_MASS_U: f64 = 1e6;
+pub(super) const MAX_MASS_U: f64 = 1e6;
 const MAX_SPRING_N_PER_M: f64 = 1e6;
 /// Largest damping accepted (1/ps): far above any phonon frequency, so
 /// far beyond an overdamped lattice.
@@ -52,28 +57,47 @@ pub(crate) struct LatticeLeadSpec {
     pub spring_n_per_m: Option<f64>,
 }
 
-/// A validated `[lattice]` table.
+/// The masses and springs of a chain or strip lattice.
 #[derive(Clone, Debug, PartialEq)]
-pub(crate) struct LatticeSpec {
+pub(crate) struct SpringForces {
     pub mass_u: f64,
     pub spring_n_per_m: f64,
     pub transverse_spring_n_per_m: f64,
+    pub left: LatticeLeadSpec,
+    pub right: LatticeLeadSpec,
+}
+
+/// Where the lattice's masses and force constants come from.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) enum LatticeForces {
+    /// Uniform masses and springs of a chain or strip, region by region.
+    Springs(SpringForces),
+    /// The user's force-constant blocks of a blocks device.
+    Blocks(ForceBlocks),
+}
+
+/// A validated `[lattice]` table.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct LatticeSpec {
+    pub forces: LatticeForces,
     /// Uniform damping γ (1/ps).
     pub damping_per_ps: f64,
     pub regions: Vec<LatticeRegion>,
-    pub left: LatticeLeadSpec,
-    pub right: LatticeLeadSpec,
+    /// Settings of the joint electron–lattice loop.
+    pub self_heating: SelfHeatParams,
     /// Span of the `[lattice]` table.
     pub span: Option<Range<usize>>,
 }
 
 impl LatticeSpec {
     /// Validate `[lattice]` against the device; `None` when the file has
-    /// no lattice. Regions that cover no cell add a warning.
+    /// no lattice. Regions that cover no cell add a warning; force blocks
+    /// come from (or go into) `files`.
     pub fn from_raw(
         raw: &RawCase,
         ck: &Checker<'_>,
         device: &DeviceSpec,
+        files: &mut BlockFiles,
         warnings: &mut Vec<String>,
     ) -> Result<Option<Self>, CaseError> {
         let Some(lat) = raw.lattice.as_ref() else {
@@ -81,51 +105,29 @@ impl LatticeSpec {
         };
         let span = Some(lat.span());
         let l = lat.get_ref();
-        if let DeviceKind::Blocks { .. } = device.kind {
-            return Err(ck.ctx.invalid(
-                span,
-                "lattice",
-                "no [lattice] section with device.kind = \"blocks\" (force-constant blocks \
-                 cannot be given yet; hint: describe the device as a chain or strip, or give \
-                 thermal.phonon_conductance_w_per_k instead)",
-                "a [lattice] table",
-            ));
-        }
-        let mass_u = ck.required(
-            mass(ck, &l.mass_u, "lattice.mass_u")?,
-            span.clone(),
-            "lattice.mass_u",
-            "the mass of every lattice site in u (atomic mass units; there is no material \
-             default, hint: 28.09 for silicon)",
-        )?;
-        let spring_n_per_m = ck.required(
-            spring(ck, &l.spring_n_per_m, "lattice.spring_n_per_m")?,
-            span.clone(),
-            "lattice.spring_n_per_m",
-            "the nearest-neighbour spring in N/m (there is no material default, hint: typical \
-             solids have 5 to 100 N/m)",
-        )?;
-        let transverse = transverse(l, ck, device)?.unwrap_or(spring_n_per_m);
+        let forces = if let DeviceKind::Blocks { .. } = device.kind {
+            let blocks = ForceBlocks::from_raw(l, ck, device, &span, files, warnings)?;
+            LatticeForces::Blocks(blocks)
+        } else {
+            LatticeForces::Springs(springs(l, ck, device, &span)?)
+        };
         let damping_per_ps = damping(ck, &l.damping_per_ps, "lattice.damping_per_ps")?;
         let regions = regions(l, ck, device, warnings)?;
         Ok(Some(Self {
-            mass_u,
-            spring_n_per_m,
-            transverse_spring_n_per_m: transverse,
+            forces,
             damping_per_ps: damping_per_ps.unwrap_or(0.0),
             regions,
-            left: lead(ck, &l.left, "lattice.left")?,
-            right: lead(ck, &l.right, "lattice.right")?,
+            self_heating: self_heating(l, ck)?,
             span,
         }))
     }
 
-    /// Mass and spring of every cell (one value per cell; a strip has the
-    /// same values across).
-    pub fn per_cell(&self, device: &DeviceSpec) -> (Vec<f64>, Vec<f64>) {
+    /// Mass and spring of every cell of a chain or strip (one value per
+    /// cell; a strip has the same values across).
+    fn per_cell(&self, f: &SpringForces, device: &DeviceSpec) -> (Vec<f64>, Vec<f64>) {
         let n = device.cells;
-        let mut masses = vec![self.mass_u; n];
-        let mut springs = vec![self.spring_n_per_m; n];
+        let mut masses = vec![f.mass_u; n];
+        let mut springs = vec![f.spring_n_per_m; n];
         for r in &self.regions {
             for c in cells_in(device, r.from_nm, r.to_nm) {
                 if let Some(m) = r.mass_u {
@@ -155,7 +157,10 @@ impl LatticeSpec {
     /// The lattice of the device and its two phonon leads, with the
     /// damping of every site.
     pub fn build(&self, device: &DeviceSpec) -> Result<Lattice, LatticeError> {
-        let lattice = self.build_undamped(device)?;
+        let lattice = match &self.forces {
+            LatticeForces::Springs(f) => self.build_springs(f, device)?,
+            LatticeForces::Blocks(f) => f.build(&self.cell_masses(device))?,
+        };
         let per_site = lattice.sites_per_cell();
         let gamma = self
             .damping_per_cell(device)
@@ -165,20 +170,38 @@ impl LatticeSpec {
         lattice.with_damping(gamma)
     }
 
-    fn build_undamped(&self, device: &DeviceSpec) -> Result<Lattice, LatticeError> {
-        let (masses, springs) = self.per_cell(device);
+    /// The mass that `[[lattice.region]]` entries put on every site of a
+    /// cell (`None` where no region sets one).
+    fn cell_masses(&self, device: &DeviceSpec) -> Vec<Option<f64>> {
+        let mut masses = vec![None; device.cells];
+        for r in &self.regions {
+            if let Some(m) = r.mass_u {
+                for c in cells_in(device, r.from_nm, r.to_nm) {
+                    masses[c] = Some(m);
+                }
+            }
+        }
+        masses
+    }
+
+    fn build_springs(
+        &self,
+        f: &SpringForces,
+        device: &DeviceSpec,
+    ) -> Result<Lattice, LatticeError> {
+        let (masses, springs) = self.per_cell(f, device);
         let n = masses.len();
         let (ml, kl) = (
-            self.left.mass_u.unwrap_or(masses[0]),
-            self.left.spring_n_per_m.unwrap_or(springs[0]),
+            f.left.mass_u.unwrap_or(masses[0]),
+            f.left.spring_n_per_m.unwrap_or(springs[0]),
         );
         let (mr, kr) = (
-            self.right.mass_u.unwrap_or(masses[n - 1]),
-            self.right.spring_n_per_m.unwrap_or(springs[n - 1]),
+            f.right.mass_u.unwrap_or(masses[n - 1]),
+            f.right.spring_n_per_m.unwrap_or(springs[n - 1]),
         );
         match device.kind {
             DeviceKind::Strip { width, .. } => {
-                let kt = self.transverse_spring_n_per_m;
+                let kt = f.transverse_spring_n_per_m;
                 let lead = |m, k| PhononLead::strip(width, m, k, kt, k);
                 let (onsite, coupling) = strip_blocks(width, &springs[..n - 1], kt, n);
                 let masses = masses
@@ -195,6 +218,93 @@ impl LatticeSpec {
             ),
         }
     }
+}
+
+/// Largest tolerance (K), outer iteration limit and Anderson depth of the
+/// joint loop accepted from a case.
+const MAX_SELFHEAT_TOLERANCE_K: f64 = 100.0;
+const MAX_SELFHEAT_ITERATIONS: i64 = 10_000;
+const MAX_SELFHEAT_HISTORY: i64 = 20;
+
+/// `self_heating_*`: the settings of the joint electron–lattice loop, each
+/// defaulting to [`SelfHeatParams::default`].
+fn self_heating(l: &RawLattice, ck: &Checker<'_>) -> Result<SelfHeatParams, CaseError> {
+    let mut p = SelfHeatParams::default();
+    if let Some(t) = ck.ranged(
+        &l.self_heating_tolerance_k,
+        "lattice.self_heating_tolerance_k",
+        &format!(
+            "a tolerance in K, > 0 and ≤ {MAX_SELFHEAT_TOLERANCE_K} (hint: the default is {:e} K)",
+            SelfHeatParams::DEFAULT_TOLERANCE_K
+        ),
+        |x| x > 0.0 && x <= MAX_SELFHEAT_TOLERANCE_K,
+    )? {
+        p = p.with_tolerance_k(t);
+    }
+    if let Some(n) = ck.int(
+        &l.self_heating_max_iterations,
+        "lattice.self_heating_max_iterations",
+        &format!("an outer iteration limit from 1 to {MAX_SELFHEAT_ITERATIONS}"),
+        |n| (1..=MAX_SELFHEAT_ITERATIONS).contains(&n),
+    )? {
+        p = p.with_max_iterations(n);
+    }
+    if let Some(b) = ck.ranged(
+        &l.self_heating_mixing,
+        "lattice.self_heating_mixing",
+        "a mixing factor in (0, 1] (1 takes the whole update; smaller damps a strong feedback)",
+        |x| x > 0.0 && x <= 1.0,
+    )? {
+        p = p.with_mixing_factor(b);
+    }
+    if let Some(d) = ck.int(
+        &l.self_heating_history,
+        "lattice.self_heating_history",
+        &format!("an Anderson history depth from 0 to {MAX_SELFHEAT_HISTORY} (0: linear mixing)"),
+        |n| (0..=MAX_SELFHEAT_HISTORY).contains(&n),
+    )? {
+        p = p.with_anderson_depth(d);
+    }
+    Ok(p)
+}
+
+/// The masses and springs of a chain or strip: `mass_u` and
+/// `spring_n_per_m` are required; the keys of a blocks lattice are
+/// refused.
+fn springs(
+    l: &RawLattice,
+    ck: &Checker<'_>,
+    device: &DeviceSpec,
+    span: &Option<Range<usize>>,
+) -> Result<SpringForces, CaseError> {
+    let why = "with device.kind = \"chain\" or \"strip\" (only for \"blocks\"; hint: use \
+               mass_u and spring_n_per_m)";
+    ck.unused(&l.masses_u, "lattice.masses_u", why)?;
+    ck.unused(&l.masses_file, "lattice.masses_file", why)?;
+    ck.unused(&l.force_onsite_file, "lattice.force_onsite_file", why)?;
+    ck.unused(&l.force_coupling_file, "lattice.force_coupling_file", why)?;
+    let mass_u = ck.required(
+        mass(ck, &l.mass_u, "lattice.mass_u")?,
+        span.clone(),
+        "lattice.mass_u",
+        "the mass of every lattice site in u (atomic mass units; there is no material \
+         default, hint: 28.09 for silicon)",
+    )?;
+    let spring_n_per_m = ck.required(
+        spring(ck, &l.spring_n_per_m, "lattice.spring_n_per_m")?,
+        span.clone(),
+        "lattice.spring_n_per_m",
+        "the nearest-neighbour spring in N/m (there is no material default, hint: typical \
+         solids have 5 to 100 N/m)",
+    )?;
+    let transverse = transverse(l, ck, device)?.unwrap_or(spring_n_per_m);
+    Ok(SpringForces {
+        mass_u,
+        spring_n_per_m,
+        transverse_spring_n_per_m: transverse,
+        left: lead(ck, &l.left, "lattice.left")?,
+        right: lead(ck, &l.right, "lattice.right")?,
+    })
 }
 
 /// The cells whose position c·a lies in [from, to).
@@ -237,7 +347,7 @@ fn strip_blocks(
     (onsite, coupling)
 }
 
-fn damping(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+pub(super) fn damping(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
     ck.ranged(
         v,
         key,
@@ -246,7 +356,7 @@ fn damping(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, Cas
     )
 }
 
-fn mass(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+pub(super) fn mass(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
     ck.ranged(
         v,
         key,
@@ -255,7 +365,7 @@ fn mass(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseEr
     )
 }
 
-fn spring(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
+pub(super) fn spring(ck: &Checker<'_>, v: &Opt<f64>, key: &str) -> Result<Option<f64>, CaseError> {
     ck.ranged(
         v,
         key,

@@ -4,6 +4,7 @@
 pub(crate) mod bias;
 pub(crate) mod device;
 pub(crate) mod lattice;
+pub(crate) mod lattice_blocks;
 pub(crate) mod leads;
 pub(crate) mod regions;
 pub(crate) mod scattering;

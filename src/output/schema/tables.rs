@@ -785,6 +785,19 @@ pub fn array_docs() -> Vec<FileDoc> {
             )],
         },
         FileDoc {
+            file: "lattice_temperature.npy".into(),
+            written_by: "`qheat solve` when the damped lattice heats up (the joint loop)",
+            about: "Stored for warm starts (`--warm-start DIR` starts the joint loop from it)."
+                .into(),
+            fields: vec![f(
+                "(the array)",
+                "K",
+                "lattice temperature of each orbital site used by the last Born solve \
+                 (the self-consistent profile), shape (sites), cell-major as \
+                 self_energy_retarded.npy",
+            )],
+        },
+        FileDoc {
             file: "self_energy_in.npy".into(),
             written_by: "`qheat solve` with scattering",
             about: "Stored for warm starts (`--warm-start DIR`).".into(),
