@@ -3,6 +3,7 @@
 
 pub(crate) mod bias;
 pub(crate) mod device;
+pub(crate) mod electrostatics;
 pub(crate) mod lattice;
 pub(crate) mod leads;
 pub(crate) mod regions;
