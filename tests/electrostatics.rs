@@ -213,3 +213,63 @@ fn doped_wire_ledger_under_bias() {
         sc.report.outer_iterations, sc.report.born_passes
     );
 }
+
+/// `qheat solve` on the demo at zero bias runs the electrostatics: exit 0,
+/// summary.json says the computed drop replaces the imposed one and gives
+/// both residuals and the outer iteration count, and the electron numbers
+/// of sites.csv neutralise the doping as a whole (zero field at both ends:
+/// Gauss's law), to 1e-3 of the doping, since the default outer tolerance
+/// (1e-5 eV) leaves each cell out of balance by ~1e-5 electrons.
+#[test]
+fn cli_solve_reports_the_computed_potential() {
+    let dir = std::env::temp_dir().join(format!("qheat-es-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let text = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("cases-demo/doped-barrier-cooler.toml"),
+    )
+    .unwrap()
+    .replace("voltage_v = 0.05", "voltage_v = 0.0");
+    let case = dir.join("case.toml");
+    std::fs::write(&case, text).unwrap();
+    let out = dir.join("out");
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["solve", case.to_str().unwrap(), "-o", out.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(stdout.contains("replaces the imposed one"), "{stdout}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let e = &s["electrostatics"];
+    assert_eq!(e["computed_drop_replaces_imposed"], true);
+    assert_eq!(e["converged"], true);
+    assert!(e["outer_iterations"].as_u64().unwrap() >= 2, "{e}");
+    assert!(e["poisson_residual"].as_f64().unwrap() < 1e-3, "{e}");
+    assert!(e["born_residual"].as_f64().unwrap() < 1e-6, "{e}");
+    let sites = std::fs::read_to_string(out.join("sites.csv")).unwrap();
+    let mut lines = sites.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|&h| h == name).unwrap();
+    let (cx, cn) = (col("x_nm"), col("electron_density_per_nm"));
+    let (mut electrons, mut donors) = (0.0, 0.0);
+    for l in lines {
+        let v: Vec<f64> = l.split(',').map(|x| x.parse().unwrap()).collect();
+        electrons += v[cn] * 0.5;
+        // 2e18 cm⁻³ × 25 nm² × 0.5 nm outside the undoped [9, 15) nm layer.
+        if !(9.0..15.0).contains(&v[cx]) {
+            donors += 2e18 * 25.0 * 0.5 * 1e-21;
+        }
+    }
+    assert!(
+        (electrons / donors - 1.0).abs() < 1e-3,
+        "electrons {electrons}, donors {donors}"
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}

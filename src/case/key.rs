@@ -246,6 +246,9 @@ impl CaseKey {
 
     /// The dotted name with `#` for the array index, as in the key table.
     pub fn pattern(self) -> &'static str {
+        if let Some(p) = self.es_pattern() {
+            return p;
+        }
         match self {
             K::SpinDegeneracy => "spin_degeneracy",
             K::DeviceSpacing => "device.spacing_nm",
@@ -297,6 +300,28 @@ impl CaseKey {
                 "lattice.left.spring_n_per_m",
                 "lattice.right.spring_n_per_m",
             ),
+            K::LeadFermiLevel(s) => {
+                lead_pattern(s, "leads.left.fermi_level_ev", "leads.right.fermi_level_ev")
+            }
+            K::LeadTemperature(s) => {
+                lead_pattern(s, "leads.left.temperature_k", "leads.right.temperature_k")
+            }
+            K::LeadBandEdge(s) => {
+                lead_pattern(s, "leads.left.band_edge_ev", "leads.right.band_edge_ev")
+            }
+            K::LeadEffectiveMass(s) => {
+                lead_pattern(s, "leads.left.effective_mass", "leads.right.effective_mass")
+            }
+            K::LeadWideBand(s) => {
+                lead_pattern(s, "leads.left.wide_band_ev", "leads.right.wide_band_ev")
+            }
+            _ => unreachable!("the electrostatics keys are named by es_pattern"),
+        }
+    }
+
+    /// The dotted names of the `[electrostatics]` keys.
+    fn es_pattern(self) -> Option<&'static str> {
+        let p = match self {
             K::EsPermittivity => "electrostatics.permittivity",
             K::EsArea => "electrostatics.area_nm2",
             K::EsDonors => "electrostatics.donors_cm3",
@@ -315,22 +340,9 @@ impl CaseKey {
             K::EsRegionPermittivity(_) => "electrostatics.region.#.permittivity",
             K::EsRegionDonors(_) => "electrostatics.region.#.donors_cm3",
             K::EsRegionAcceptors(_) => "electrostatics.region.#.acceptors_cm3",
-            K::LeadFermiLevel(s) => {
-                lead_pattern(s, "leads.left.fermi_level_ev", "leads.right.fermi_level_ev")
-            }
-            K::LeadTemperature(s) => {
-                lead_pattern(s, "leads.left.temperature_k", "leads.right.temperature_k")
-            }
-            K::LeadBandEdge(s) => {
-                lead_pattern(s, "leads.left.band_edge_ev", "leads.right.band_edge_ev")
-            }
-            K::LeadEffectiveMass(s) => {
-                lead_pattern(s, "leads.left.effective_mass", "leads.right.effective_mass")
-            }
-            K::LeadWideBand(s) => {
-                lead_pattern(s, "leads.left.wide_band_ev", "leads.right.wide_band_ev")
-            }
-        }
+            _ => return None,
+        };
+        Some(p)
     }
 
     /// The array index of a `[[device.region]]`, `[[phonon]]` or

@@ -860,6 +860,24 @@ fn check_damping_covers_modes(
     Ok(())
 }
 
+/// With `[electrostatics]`: the note that the drop is computed, and a
+/// warning when the file also asks for a linear drop.
+fn electrostatics_remarks(spec: &CaseSpec, remarks: &mut Remarks) {
+    if spec.electrostatics.is_none() {
+        return;
+    }
+    {
+        remarks.notes.push(
+            "[electrostatics]: the potential inside the device is solved with the transport; the bias drop is computed from the charge, not imposed".into(),
+        );
+        if let BiasDrop::Linear { .. } = spec.bias.drop {
+            remarks.warnings.push(
+                "bias.drop = { linear = … } is not used with [electrostatics]: the computed drop replaces it".into(),
+            );
+        }
+    }
+}
+
 /// The resolved case from its parts, with the last checks and notes.
 fn assemble(
     spec: &CaseSpec,
@@ -871,16 +889,7 @@ fn assemble(
     mut remarks: Remarks,
 ) -> Result<Resolved, CaseError> {
     let lattice = build_lattice(spec, ctx)?;
-    if spec.electrostatics.is_some() {
-        remarks.notes.push(
-            "[electrostatics]: the potential inside the device is solved with the transport; the bias drop is computed from the charge, not imposed".into(),
-        );
-        if let BiasDrop::Linear { .. } = spec.bias.drop {
-            remarks.warnings.push(
-                "bias.drop = { linear = … } is not used with [electrostatics]: the computed drop replaces it".into(),
-            );
-        }
-    }
+    electrostatics_remarks(spec, &mut remarks);
     if let (Some(l), Some(ls)) = (&lattice, &spec.lattice) {
         let at = (ls.span.clone(), spec.device.spacing_nm);
         check_damping_covers_modes(l, &scattering, at, ctx)?;

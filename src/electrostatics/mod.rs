@@ -36,13 +36,20 @@
 //! spectral weight and its quasi-Fermi level and its states move rigidly
 //! with the potential (the predictor–corrector idea of A. Trellakis,
 //! A. T. Galick, A. Pacelli, U. Ravaioli, J. Appl. Phys. 81, 7880 (1997)):
-//! the derivative of that density gives Newton its Jacobian. The next
-//! outer iteration solves the transport at the new potential, starting the
-//! Born loop from the previous Σ0. The loop stops when the Newton update
+//! the derivative of that density gives Newton its Jacobian. The Newton
+//! answer is mixed into the next potential by Anderson acceleration over
+//! the outer iterates (`mixing.rs`), and the next outer iteration solves
+//! the transport there, starting the Born loop from the previous Σ0. The loop stops when the Newton update
 //! of the potential is below the tolerance (eV) and the Born loop of that
 //! point converged. Both residuals are reported: the largest charge
 //! imbalance of a cell in the Poisson equation with the transport density,
 //! and the Born loop's own residual.
+//!
+//! On a uniform energy grid the 1/√(E − Ec) density of states of a long,
+//! flat, coherent region is sampled point by point; where a band edge
+//! sits just below a grid energy the sampled electron number grows as the
+//! band rises, and the loop can stall at a change of the order of the grid
+//! step. Broadening in the device or short flat regions avoid it.
 
 mod density;
 mod mixing;
@@ -120,7 +127,7 @@ pub struct Electrostatics {
 
 impl Electrostatics {
     /// Default outer tolerance (eV).
-    pub const DEFAULT_TOLERANCE_EV: f64 = 1e-6;
+    pub const DEFAULT_TOLERANCE_EV: f64 = 1e-5;
     /// Default outer iteration limit.
     pub const DEFAULT_MAX_ITERATIONS: usize = 60;
     /// Default Anderson depth of the outer iteration.

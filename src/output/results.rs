@@ -195,6 +195,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         scba: to_json(&sol.report),
         lattice: None,
         self_heating: None,
+        electrostatics: None,
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),

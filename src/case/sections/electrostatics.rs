@@ -109,7 +109,7 @@ impl ElectrostaticsSpec {
                 .ranged(
                     &e.tolerance_ev,
                     "electrostatics.tolerance_ev",
-                    "a potential tolerance in eV, > 0 and ≤ 0.01 (hint: 1e-6 resolves µeV)",
+                    "a potential tolerance in eV, > 0 and ≤ 0.01 (hint: 1e-5 is 0.04 % of kT at 300 K)",
                     |x| x > 0.0 && x <= 0.01,
                 )?
                 .unwrap_or(Electrostatics::DEFAULT_TOLERANCE_EV),
