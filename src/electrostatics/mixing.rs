@@ -69,6 +69,8 @@ impl PotentialMixer {
 
     /// γ of the least-squares problem (None when the normal equations are
     /// singular).
+    // A small dense elimination reads best by index.
+    #[allow(clippy::needless_range_loop)]
     fn coefficients(&self, r: &[f64]) -> Option<Vec<f64>> {
         let m = self.dr.len();
         let mut a = vec![vec![0.0; m + 1]; m];
