@@ -46,6 +46,8 @@
 //! Thermoelectric coefficients: [`thermo`].
 //! The lattice's own heat transport (phonon transmission, κ_ph): [`lattice`].
 //! Electrons and lattice temperatures solved together: [`selfheat`].
+//! Transport and the electrostatic potential of the device's own charge
+//! solved together: [`electrostatics`].
 //!
 //! ## Example
 //!
@@ -109,6 +111,7 @@ pub type C64 = num_complex::Complex64;
 
 pub mod case;
 pub mod device;
+pub mod electrostatics;
 pub mod grid;
 pub mod lattice;
 pub mod leads;

@@ -7,8 +7,8 @@ use qheat::case::{Case, CaseErrorKind, CaseKey, KEYS, ValueType};
 use qheat::leads::Side;
 use std::path::Path;
 
-/// A small valid chain with one region, one phonon and one lattice
-/// region, so that every array key has an entry 0.
+/// A small valid chain with one region, one phonon, one lattice region
+/// and one electrostatics region, so that every array key has an entry 0.
 const BASE: &str = r#"
 name = "keys"
 
@@ -46,6 +46,17 @@ spring_n_per_m = 30.0
 from_nm = 4.0
 to_nm = 6.0
 mass_u = 72.6
+
+[electrostatics]
+permittivity = 11.7
+area_nm2 = 20.0
+gate_potential_v = 0.0
+gate_length_nm = 10.0
+
+[[electrostatics.region]]
+from_nm = 4.0
+to_nm = 6.0
+donors_cm3 = 1e18
 "#;
 
 fn base() -> Case {

@@ -385,6 +385,9 @@ fn solve_summary_keys_and_documentation_agree() {
     std::fs::write(&damped, DAMPED).unwrap();
     solve(&damped, &tmp.path().join("damped"));
     paths(&summary(&tmp.path().join("damped")), "", &mut found);
+    // The electrostatics object comes from a case with [electrostatics].
+    solve(&demo("doped-barrier-cooler"), &tmp.path().join("es"));
+    paths(&summary(&tmp.path().join("es")), "", &mut found);
     found.sort();
     found.dedup();
     let docs = qheat::output::schema::keys::summary_docs();

@@ -4,7 +4,10 @@
 
 use super::error::close_matches;
 use super::keys::{KEYS, KeyInfo, ValueType};
-use super::raw::{Opt, RawCase, RawLatticeLead, RawLatticeRegion, RawLead, RawPhonon, RawRegion};
+use super::raw::{
+    Opt, RawCase, RawElectrostaticsRegion, RawLatticeLead, RawLatticeRegion, RawLead, RawPhonon,
+    RawRegion,
+};
 use crate::leads::Side;
 use std::fmt;
 use std::str::FromStr;
@@ -125,6 +128,34 @@ pub enum CaseKey {
     LatticeLeadMass(Side),
     /// `lattice.<side>.spring_n_per_m`
     LatticeLeadSpring(Side),
+    /// `electrostatics.permittivity`
+    EsPermittivity,
+    /// `electrostatics.area_nm2`
+    EsArea,
+    /// `electrostatics.donors_cm3`
+    EsDonors,
+    /// `electrostatics.acceptors_cm3`
+    EsAcceptors,
+    /// `electrostatics.<side>_potential_v`
+    EsEndPotential(Side),
+    /// `electrostatics.gate_potential_v`
+    EsGatePotential,
+    /// `electrostatics.gate_length_nm`
+    EsGateLength,
+    /// `electrostatics.tolerance_ev`
+    EsTolerance,
+    /// `electrostatics.max_iterations`
+    EsMaxIterations,
+    /// `electrostatics.region.#.from_nm`
+    EsRegionFrom(usize),
+    /// `electrostatics.region.#.to_nm`
+    EsRegionTo(usize),
+    /// `electrostatics.region.#.permittivity`
+    EsRegionPermittivity(usize),
+    /// `electrostatics.region.#.donors_cm3`
+    EsRegionDonors(usize),
+    /// `electrostatics.region.#.acceptors_cm3`
+    EsRegionAcceptors(usize),
 }
 
 use CaseKey as K;
@@ -194,6 +225,21 @@ const TEMPLATES: &[CaseKey] = &[
     K::LatticeLeadSpring(Side::Left),
     K::LatticeLeadMass(Side::Right),
     K::LatticeLeadSpring(Side::Right),
+    K::EsPermittivity,
+    K::EsArea,
+    K::EsDonors,
+    K::EsAcceptors,
+    K::EsEndPotential(Side::Left),
+    K::EsEndPotential(Side::Right),
+    K::EsGatePotential,
+    K::EsGateLength,
+    K::EsTolerance,
+    K::EsMaxIterations,
+    K::EsRegionFrom(0),
+    K::EsRegionTo(0),
+    K::EsRegionPermittivity(0),
+    K::EsRegionDonors(0),
+    K::EsRegionAcceptors(0),
 ];
 
 fn lead_pattern(side: Side, left: &'static str, right: &'static str) -> &'static str {
@@ -212,6 +258,9 @@ impl CaseKey {
 
     /// The dotted name with `#` for the array index, as in the key table.
     pub fn pattern(self) -> &'static str {
+        if let Some(p) = self.es_pattern() {
+            return p;
+        }
         match self {
             K::SpinDegeneracy => "spin_degeneracy",
             K::DeviceSpacing => "device.spacing_nm",
@@ -282,7 +331,34 @@ impl CaseKey {
             K::LeadWideBand(s) => {
                 lead_pattern(s, "leads.left.wide_band_ev", "leads.right.wide_band_ev")
             }
+            _ => unreachable!("the electrostatics keys are named by es_pattern"),
         }
+    }
+
+    /// The dotted names of the `[electrostatics]` keys.
+    fn es_pattern(self) -> Option<&'static str> {
+        let p = match self {
+            K::EsPermittivity => "electrostatics.permittivity",
+            K::EsArea => "electrostatics.area_nm2",
+            K::EsDonors => "electrostatics.donors_cm3",
+            K::EsAcceptors => "electrostatics.acceptors_cm3",
+            K::EsEndPotential(s) => lead_pattern(
+                s,
+                "electrostatics.left_potential_v",
+                "electrostatics.right_potential_v",
+            ),
+            K::EsGatePotential => "electrostatics.gate_potential_v",
+            K::EsGateLength => "electrostatics.gate_length_nm",
+            K::EsTolerance => "electrostatics.tolerance_ev",
+            K::EsMaxIterations => "electrostatics.max_iterations",
+            K::EsRegionFrom(_) => "electrostatics.region.#.from_nm",
+            K::EsRegionTo(_) => "electrostatics.region.#.to_nm",
+            K::EsRegionPermittivity(_) => "electrostatics.region.#.permittivity",
+            K::EsRegionDonors(_) => "electrostatics.region.#.donors_cm3",
+            K::EsRegionAcceptors(_) => "electrostatics.region.#.acceptors_cm3",
+            _ => return None,
+        };
+        Some(p)
     }
 
     /// The array index of a `[[device.region]]`, `[[phonon]]` or
@@ -303,7 +379,12 @@ impl CaseKey {
             | K::LatticeRegionTo(i)
             | K::LatticeRegionMass(i)
             | K::LatticeRegionSpring(i)
-            | K::LatticeRegionDamping(i) => Some(i),
+            | K::LatticeRegionDamping(i)
+            | K::EsRegionFrom(i)
+            | K::EsRegionTo(i)
+            | K::EsRegionPermittivity(i)
+            | K::EsRegionDonors(i)
+            | K::EsRegionAcceptors(i) => Some(i),
             _ => None,
         }
     }
@@ -326,6 +407,11 @@ impl CaseKey {
             K::LatticeRegionMass(_) => K::LatticeRegionMass(i),
             K::LatticeRegionSpring(_) => K::LatticeRegionSpring(i),
             K::LatticeRegionDamping(_) => K::LatticeRegionDamping(i),
+            K::EsRegionFrom(_) => K::EsRegionFrom(i),
+            K::EsRegionTo(_) => K::EsRegionTo(i),
+            K::EsRegionPermittivity(_) => K::EsRegionPermittivity(i),
+            K::EsRegionDonors(_) => K::EsRegionDonors(i),
+            K::EsRegionAcceptors(_) => K::EsRegionAcceptors(i),
             other => other,
         }
     }
@@ -504,6 +590,14 @@ fn lattice_region(raw: &mut RawCase, i: usize) -> Result<&mut RawLatticeRegion, 
     entry(&mut table(&mut raw.lattice).region, "lattice.region", i)
 }
 
+fn es_region(raw: &mut RawCase, i: usize) -> Result<&mut RawElectrostaticsRegion, String> {
+    entry(
+        &mut table(&mut raw.electrostatics).region,
+        "electrostatics.region",
+        i,
+    )
+}
+
 fn lattice_lead(raw: &mut RawCase, side: Side) -> &mut RawLatticeLead {
     let lattice = table(&mut raw.lattice);
     match side {
@@ -550,6 +644,11 @@ impl CaseKey {
             K::LatticeRegionMass(n) => lattice_region(raw, n)?.mass_u = f,
             K::LatticeRegionSpring(n) => lattice_region(raw, n)?.spring_n_per_m = f,
             K::LatticeRegionDamping(n) => lattice_region(raw, n)?.damping_per_ps = f,
+            K::EsRegionFrom(n) => es_region(raw, n)?.from_nm = f,
+            K::EsRegionTo(n) => es_region(raw, n)?.to_nm = f,
+            K::EsRegionPermittivity(n) => es_region(raw, n)?.permittivity = f,
+            K::EsRegionDonors(n) => es_region(raw, n)?.donors_cm3 = f,
+            K::EsRegionAcceptors(n) => es_region(raw, n)?.acceptors_cm3 = f,
             _ => self.set_setting(raw, f, i),
         }
         Ok(())
@@ -586,6 +685,16 @@ impl CaseKey {
             K::LatticeSelfHeatingHistory => table(&mut raw.lattice).self_heating_history = i,
             K::LatticeLeadMass(s) => lattice_lead(raw, s).mass_u = f,
             K::LatticeLeadSpring(s) => lattice_lead(raw, s).spring_n_per_m = f,
+            K::EsPermittivity => table(&mut raw.electrostatics).permittivity = f,
+            K::EsArea => table(&mut raw.electrostatics).area_nm2 = f,
+            K::EsDonors => table(&mut raw.electrostatics).donors_cm3 = f,
+            K::EsAcceptors => table(&mut raw.electrostatics).acceptors_cm3 = f,
+            K::EsEndPotential(Side::Left) => table(&mut raw.electrostatics).left_potential_v = f,
+            K::EsEndPotential(Side::Right) => table(&mut raw.electrostatics).right_potential_v = f,
+            K::EsGatePotential => table(&mut raw.electrostatics).gate_potential_v = f,
+            K::EsGateLength => table(&mut raw.electrostatics).gate_length_nm = f,
+            K::EsTolerance => table(&mut raw.electrostatics).tolerance_ev = f,
+            K::EsMaxIterations => table(&mut raw.electrostatics).max_iterations = i,
             // The keys of the device, leads, bias and phonons are set in
             // `set`.
             _ => {}

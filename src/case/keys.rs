@@ -124,6 +124,12 @@ fn spin_default() -> f64 {
 fn zero() -> f64 {
     0.0
 }
+fn es_tolerance() -> f64 {
+    crate::electrostatics::Electrostatics::DEFAULT_TOLERANCE_EV
+}
+fn es_max_iterations() -> f64 {
+    crate::electrostatics::Electrostatics::DEFAULT_MAX_ITERATIONS as f64
+}
 fn tolerance_default() -> f64 {
     ScbaParams::DEFAULT_TOLERANCE
 }
@@ -714,6 +720,111 @@ pub static KEYS: &[KeyInfo] = &[
         Text("spring of the last site"),
         "spring of the right phonon lead, and of the bond joining it to the device",
     ),
+    key(
+        "electrostatics.permittivity",
+        Float,
+        "",
+        Required,
+        "relative permittivity ε_r of every cell; required when [electrostatics] is given",
+    ),
+    key(
+        "electrostatics.area_nm2",
+        Float,
+        "nm²",
+        Required,
+        "cross-section A of the wire or slab; turns doping per cm³ into donors per cell",
+    ),
+    key(
+        "electrostatics.donors_cm3",
+        Float,
+        "cm⁻³",
+        Number(zero),
+        "donor density N_D of every cell",
+    ),
+    key(
+        "electrostatics.acceptors_cm3",
+        Float,
+        "cm⁻³",
+        Number(zero),
+        "acceptor density N_A of every cell (a fixed negative charge: the model has no holes)",
+    ),
+    key(
+        "electrostatics.left_potential_v",
+        Float,
+        "V",
+        Text("none: a charge-neutral end (zero field)"),
+        "electrostatic potential φ held at the first cell",
+    ),
+    key(
+        "electrostatics.right_potential_v",
+        Float,
+        "V",
+        Text("none: a charge-neutral end (zero field)"),
+        "electrostatic potential φ held at the last cell",
+    ),
+    key(
+        "electrostatics.gate_potential_v",
+        Float,
+        "V",
+        Text("no gate"),
+        "gate potential φ_gate; the gate adds the screening term ε(φ − φ_gate)/λ²; needs gate_length_nm",
+    ),
+    key(
+        "electrostatics.gate_length_nm",
+        Float,
+        "nm",
+        Text("no gate"),
+        "gate screening length λ; needs gate_potential_v",
+    ),
+    key(
+        "electrostatics.tolerance_ev",
+        Float,
+        "eV",
+        Number(es_tolerance),
+        "outer tolerance: largest change of the electrostatic potential energy accepted as converged",
+    ),
+    key(
+        "electrostatics.max_iterations",
+        Int,
+        "",
+        Number(es_max_iterations),
+        "limit of outer iterations (transport solve, then Newton on the Poisson equation); reaching it is a flagged, non-converged result",
+    ),
+    key(
+        "electrostatics.region.#.from_nm",
+        Float,
+        "nm",
+        Required,
+        "electrostatics region start; selects cells with from ≤ x < to, like [[device.region]]",
+    ),
+    key(
+        "electrostatics.region.#.to_nm",
+        Float,
+        "nm",
+        Required,
+        "electrostatics region end (exclusive)",
+    ),
+    key(
+        "electrostatics.region.#.permittivity",
+        Float,
+        "",
+        Text("uniform value"),
+        "relative permittivity of the region's cells; replaces the uniform value (a later region wins)",
+    ),
+    key(
+        "electrostatics.region.#.donors_cm3",
+        Float,
+        "cm⁻³",
+        Text("uniform value"),
+        "donor density of the region's cells; replaces the uniform value (a later region wins)",
+    ),
+    key(
+        "electrostatics.region.#.acceptors_cm3",
+        Float,
+        "cm⁻³",
+        Text("uniform value"),
+        "acceptor density of the region's cells; replaces the uniform value (a later region wins)",
+    ),
 ];
 
 /// Tables of the file and what each holds (for messages about a value of
@@ -743,6 +854,11 @@ pub(crate) const SECTIONS: &[(&str, &str)] = &[
     ),
     ("lattice.left", "a table of phonon lead settings"),
     ("lattice.right", "a table of phonon lead settings"),
+    ("electrostatics", "a table of electrostatics settings"),
+    (
+        "electrostatics.region.#",
+        "a table with from_nm, to_nm and donors_cm3, acceptors_cm3 and/or permittivity",
+    ),
 ];
 
 /// What sits at a place of the file.
@@ -822,9 +938,9 @@ pub fn keys_markdown() -> String {
 #[cfg(test)]
 mod tests {
     use super::super::raw::{
-        RawBias, RawCase, RawDephasing, RawDevice, RawGrid, RawLattice, RawLatticeLead,
-        RawLatticeRegion, RawLead, RawLeads, RawPhonon, RawProfile, RawRegion, RawResponse,
-        RawSolver, RawThermal,
+        RawBias, RawCase, RawDephasing, RawDevice, RawElectrostatics, RawElectrostaticsRegion,
+        RawGrid, RawLattice, RawLatticeLead, RawLatticeRegion, RawLead, RawLeads, RawPhonon,
+        RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
     };
     use super::*;
     use serde::Deserialize;
@@ -897,6 +1013,11 @@ mod tests {
             ("lattice.region.#", fields_of::<RawLatticeRegion>()),
             ("lattice.left", fields_of::<RawLatticeLead>()),
             ("lattice.right", fields_of::<RawLatticeLead>()),
+            ("electrostatics", fields_of::<RawElectrostatics>()),
+            (
+                "electrostatics.region.#",
+                fields_of::<RawElectrostaticsRegion>(),
+            ),
         ];
         for (pattern, fields) in &structs {
             assert!(!fields.is_empty(), "no fields recorded for `{pattern}`");

@@ -27,6 +27,7 @@ pub(crate) struct RawCase {
     pub thermal: Opt<RawThermal>,
     pub profile: Opt<RawProfile>,
     pub lattice: Opt<RawLattice>,
+    pub electrostatics: Opt<RawElectrostatics>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -190,6 +191,35 @@ pub(crate) struct RawLatticeLead {
     pub spring_n_per_m: Opt<f64>,
 }
 
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(deny_unknown_fields, expecting = "a table of electrostatics settings")]
+pub(crate) struct RawElectrostatics {
+    pub permittivity: Opt<f64>,
+    pub area_nm2: Opt<f64>,
+    pub donors_cm3: Opt<f64>,
+    pub acceptors_cm3: Opt<f64>,
+    pub left_potential_v: Opt<f64>,
+    pub right_potential_v: Opt<f64>,
+    pub gate_potential_v: Opt<f64>,
+    pub gate_length_nm: Opt<f64>,
+    pub tolerance_ev: Opt<f64>,
+    pub max_iterations: Opt<i64>,
+    pub region: Option<Vec<Spanned<RawElectrostaticsRegion>>>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with from_nm, to_nm and donors_cm3, acceptors_cm3 and/or permittivity"
+)]
+pub(crate) struct RawElectrostaticsRegion {
+    pub from_nm: Opt<f64>,
+    pub to_nm: Opt<f64>,
+    pub permittivity: Opt<f64>,
+    pub donors_cm3: Opt<f64>,
+    pub acceptors_cm3: Opt<f64>,
+}
+
 /// Parse the text: TOML syntax first (with positions), then the schema.
 pub(crate) fn parse_raw(text: &str, ctx: &ErrorContext<'_>) -> Result<RawCase, CaseError> {
     let index = match toml::de::DeTable::parse(text) {
@@ -249,11 +279,17 @@ const TABLE_KEYS: &[&str] = &[
     "lattice",
     "lattice.left",
     "lattice.right",
+    "electrostatics",
 ];
 
 /// Keys that hold a list of tables, each entry written under its own
 /// `[[key]]` header.
-const ARRAY_KEYS: &[&str] = &["phonon", "device.region", "lattice.region"];
+const ARRAY_KEYS: &[&str] = &[
+    "phonon",
+    "device.region",
+    "lattice.region",
+    "electrostatics.region",
+];
 
 /// The value at a dotted path and the span of its key.
 fn lookup<'t, 'a>(

@@ -55,8 +55,13 @@ pub struct Resolved {
     pub phonon_spectrum_cache: super::phonons::SpectrumCache,
     /// How linear response splits the perturbation between the contacts.
     pub response_split: ResponseSplit,
-    /// Where the bias drops.
+    /// Where the bias drops (with `electrostatics` the drop inside the
+    /// device is computed instead, and this says what the file asked for).
     pub bias_drop: BiasDrop,
+    /// The self-consistent electrostatics of `[electrostatics]`, when the
+    /// case has one: `problem` then carries the band offsets without any
+    /// imposed bias drop, and the solve computes the potential.
+    pub electrostatics: Option<crate::electrostatics::Electrostatics>,
     /// Things that are allowed but probably not meant, or that limit accuracy.
     pub warnings: Vec<String>,
     /// Defaults that matter for the results (e.g. κ_ph = 0).
@@ -215,7 +220,13 @@ fn build_device(
 ) -> Result<Built, CaseError> {
     let d = &spec.device;
     let x = device::cell_positions(d.cells, d.spacing_nm);
-    let drop = &spec.bias.drop;
+    // With [electrostatics] the drop inside the device is computed from
+    // the charge: the imposed one is left out.
+    let drop = if spec.electrostatics.is_some() {
+        &BiasDrop::Leads
+    } else {
+        &spec.bias.drop
+    };
     let potential = device::potential_profile(&x, &spec.regions.regions, drop, mu_l, mu_r);
     let bias_only = device::potential_profile(&x, &[], drop, mu_l, mu_r);
     let (dev, hopping, lead_couplings) = match &d.kind {
@@ -401,6 +412,9 @@ struct WindowInput {
     lead_lows: Vec<f64>,
     /// Largest wide-band Γ.
     gamma_max: f64,
+    /// Lowest band bottom of a charge-neutral doped region, with
+    /// `[electrostatics]`.
+    neutral_low: Option<f64>,
 }
 
 /// The lower end of the window: the file's, or half a step above the
@@ -433,8 +447,46 @@ fn window_min(spec: &CaseSpec, w: &WindowInput, remarks: &mut Remarks) -> f64 {
             ));
             lo
         }
-        None => lowest_edge + 0.5 * w.step,
+        None => match w.neutral_low {
+            // Doping can pull the band below the imposed edge: start the
+            // window 5 kT below where a neutral doped region puts it.
+            Some(low) if low - 5.0 * w.kt_max < lowest_edge => {
+                let lo = low - 5.0 * w.kt_max;
+                remarks.notes.push(format!(
+                    "grid.min_ev not given: the window starts at {lo:.4} eV, 5 kT_max below the band bottom {low:.4} eV of a charge-neutral doped region ([electrostatics])"
+                ));
+                lo
+            }
+            _ => lowest_edge + 0.5 * w.step,
+        },
     }
+}
+
+/// With `[electrostatics]`: the grid must hold the occupied states of the
+/// doped regions; refused when a neutral doped region's band bottom lies
+/// more than 3 kT below the grid's first energy.
+fn check_neutral_coverage(
+    spec: &CaseSpec,
+    ctx: &ErrorContext<'_>,
+    w: &WindowInput,
+    grid: &EnergyGrid,
+) -> Result<(), CaseError> {
+    let Some(low) = w.neutral_low else {
+        return Ok(());
+    };
+    let first = grid.energy(0);
+    if first <= low + 3.0 * w.kt_max {
+        return Ok(());
+    }
+    Err(ctx.invalid(
+        spec.grid.min_ev.as_ref().and_then(|m| m.span.clone()),
+        "grid.min_ev",
+        &format!(
+            "a window that starts at or below {:.4} eV, 3 kT above the band bottom {low:.4} eV of a charge-neutral doped region (hint: lower grid.min_ev or leave it out)",
+            low + 3.0 * w.kt_max
+        ),
+        format!("{first:.4} eV"),
+    ))
 }
 
 /// The upper end of the window: the file's, or 20 kT_max above the higher
@@ -725,8 +777,13 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                 _ => None,
             })
             .fold(0.0, f64::max),
+        neutral_low: spec.electrostatics.as_ref().and_then(|e| {
+            let gs = f64::from(spec.spin_degeneracy);
+            e.lowest_neutral_band_bottom(&spec.device, mu_l.max(mu_r), kt_max, gs)
+        }),
     };
     let grid = energy_grid(spec, ctx, &window, &mut remarks)?;
+    check_neutral_coverage(spec, ctx, &window, &grid)?;
     dispersion_warning(spec, &built, &grid, &mut remarks);
     // A zero coupling block cuts the device in two: nothing can pass.
     let dev = &built.dev;
@@ -806,6 +863,24 @@ fn check_damping_covers_modes(
     Ok(())
 }
 
+/// With `[electrostatics]`: the note that the drop is computed, and a
+/// warning when the file also asks for a linear drop.
+fn electrostatics_remarks(spec: &CaseSpec, remarks: &mut Remarks) {
+    if spec.electrostatics.is_none() {
+        return;
+    }
+    {
+        remarks.notes.push(
+            "[electrostatics]: the potential inside the device is solved with the transport; the bias drop is computed from the charge, not imposed".into(),
+        );
+        if let BiasDrop::Linear { .. } = spec.bias.drop {
+            remarks.warnings.push(
+                "bias.drop = { linear = … } is not used with [electrostatics]: the computed drop replaces it".into(),
+            );
+        }
+    }
+}
+
 /// The resolved case from its parts, with the last checks and notes.
 fn assemble(
     spec: &CaseSpec,
@@ -817,6 +892,7 @@ fn assemble(
     mut remarks: Remarks,
 ) -> Result<Resolved, CaseError> {
     let lattice = build_lattice(spec, ctx)?;
+    electrostatics_remarks(spec, &mut remarks);
     if let (Some(l), Some(ls)) = (&lattice, &spec.lattice) {
         let at = (ls.span.clone(), spec.device.spacing_nm);
         check_damping_covers_modes(l, &scattering, at, ctx)?;
@@ -881,6 +957,7 @@ fn assemble(
         allow_coarse_phonon_snap: spec.grid.allow_coarse_snap,
         response_split: spec.response.split,
         bias_drop: spec.bias.drop.clone(),
+        electrostatics: spec.electrostatics.as_ref().map(|e| e.build(&spec.device)),
         warnings: remarks.warnings,
         notes: remarks.notes,
         device_kind: spec.device.kind.name(),

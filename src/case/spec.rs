@@ -9,6 +9,7 @@ use super::error::{CaseError, ErrorContext};
 use super::raw::RawCase;
 use super::sections::bias::BiasSpec;
 use super::sections::device::DeviceSpec;
+use super::sections::electrostatics::ElectrostaticsSpec;
 use super::sections::lattice::LatticeSpec;
 use super::sections::leads::LeadsSpec;
 use super::sections::regions::RegionsSpec;
@@ -35,6 +36,7 @@ pub(crate) struct CaseSpec {
     pub thermal: ThermalSpec,
     pub profile: ProfileSpec,
     pub lattice: Option<LatticeSpec>,
+    pub electrostatics: Option<ElectrostaticsSpec>,
     pub warnings: Vec<String>,
 }
 
@@ -67,6 +69,7 @@ pub(crate) fn validate(
     let grid = GridSpec::from_raw(raw, &ck)?;
     let solver = SolverSpec::from_raw(raw, &ck, &mut warnings)?;
     let lattice = LatticeSpec::from_raw(raw, &ck, &device, files, &mut warnings)?;
+    let electrostatics = ElectrostaticsSpec::from_raw(raw, &ck, &device, &mut warnings)?;
     Ok(CaseSpec {
         name,
         spin_degeneracy,
@@ -82,6 +85,7 @@ pub(crate) fn validate(
         thermal: ThermalSpec::from_raw(raw, &ck)?,
         profile: ProfileSpec::from_raw(raw, &ck)?,
         lattice,
+        electrostatics,
         warnings,
     })
 }

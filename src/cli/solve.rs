@@ -4,6 +4,7 @@ use super::format::{number, residual, si};
 use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
+use qheat::electrostatics;
 use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::{
@@ -11,8 +12,8 @@ use qheat::output::results::{
     solve_summary, write_solve_files,
 };
 use qheat::output::schema::summary::{
-    CheckOutput, CheckPhonon, FailedSolveSummary, Fault, FermiLevelInfo, SelfHeatingSummary,
-    SolveResults, SolveSummary, to_text,
+    CheckOutput, CheckPhonon, ElectrostaticsSummary, FailedSolveSummary, Fault, FermiLevelInfo,
+    SelfHeatingSummary, SolveResults, SolveSummary, to_text,
 };
 use qheat::output::schema::tables::cell_lattice_temperature;
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
@@ -120,6 +121,9 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     }
     if let Some(h) = &summary.self_heating {
         print_self_heating(h);
+    }
+    if let Some(e) = &summary.electrostatics {
+        print_electrostatics(e);
     }
     let l = &o.ledger;
     println!(
@@ -248,7 +252,14 @@ pub fn solve(
         None => None,
     };
     let mut bar = BornProgress::new(enabled(common.quiet), resolved.scba.tolerance, &case.name);
-    let result = run_solve(&resolved, warm.as_ref(), &mut bar);
+    let mut es_run = None;
+    let result = match &resolved.electrostatics {
+        Some(es) => run_electrostatics(&resolved, es, &mut bar).map(|(s, r)| {
+            es_run = Some(r);
+            (s, None)
+        }),
+        None => run_solve(&resolved, warm.as_ref(), &mut bar),
+    };
     bar.finish();
     let case_toml = case.to_toml_string();
     let info = RunInfo {
@@ -279,7 +290,9 @@ pub fn solve(
     );
     let mut summary = solve_summary(&sol, &o, &info);
     summary.self_heating = heat.as_ref().map(|h| self_heating_summary(&sol, &o, h));
-    if heat.as_ref().is_some_and(|h| !h.report.converged) {
+    summary.electrostatics = es_run.as_ref().map(|r| electrostatics_summary(&sol, r));
+    let es_stopped_short = es_run.as_ref().is_some_and(|r| !r.report.converged);
+    if heat.as_ref().is_some_and(|h| !h.report.converged) || es_stopped_short {
         summary.converged = false;
         summary.trustworthy = false;
     }
@@ -299,7 +312,95 @@ pub fn solve(
     } else if !common.quiet {
         print_summary(&sol, &o, &summary, &out_dir);
     }
+    if let Some(r) = es_run.as_ref().filter(|r| !r.report.converged) {
+        return Err(Failure::Solver(format!(
+            "the electrostatics did not converge in {} outer iterations (last potential change \
+             {:.3e} eV against a tolerance of {:.1e} eV, Poisson residual {:.3e} electrons); \
+             results in {} are flagged as not converged",
+            r.report.outer_iterations,
+            r.report.potential_change_ev,
+            r.report.tolerance_ev,
+            r.report.poisson_residual,
+            out_dir.display()
+        )));
+    }
     not_converged(&sol, heat.as_ref(), &out_dir)
+}
+
+/// The transport solved with the potential of `[electrostatics]`; a
+/// damped lattice (self-heating) is not combined with it yet.
+fn run_electrostatics(
+    resolved: &Resolved,
+    es: &electrostatics::Electrostatics,
+    observer: &mut dyn Observer,
+) -> Result<(Solution, EsRun), RunError> {
+    let p = &resolved.problem;
+    if resolved.probe_network().is_some() && !p.scattering.phonons.is_empty() {
+        return Err(RunError::Other(
+            "[electrostatics] with a damped [lattice] (self-heating) is not available yet \
+             (hint: set lattice.damping_per_ps = 0 or leave out [electrostatics]); nothing was written"
+                .into(),
+        ));
+    }
+    let sc = electrostatics::solve(p, es, &resolved.scba, None, None, observer)
+        .map_err(RunError::Born)?;
+    let run = EsRun {
+        potential_ev: sc.potential_ev,
+        report: sc.report,
+    };
+    Ok((sc.solution, run))
+}
+
+/// What the self-consistent electrostatics adds to a solve.
+struct EsRun {
+    potential_ev: Vec<f64>,
+    report: electrostatics::ElectrostaticsReport,
+}
+
+/// The `electrostatics` object of summary.json.
+fn electrostatics_summary(sol: &Solution, r: &EsRun) -> ElectrostaticsSummary {
+    let u = &r.potential_ev;
+    let fold = |f: fn(f64, f64) -> f64, init: f64| u.iter().copied().fold(init, f);
+    ElectrostaticsSummary {
+        computed_drop_replaces_imposed: true,
+        potential_drop_v: u.last().copied().unwrap_or(0.0) - u.first().copied().unwrap_or(0.0),
+        lowest_potential_energy_ev: fold(f64::min, f64::INFINITY),
+        highest_potential_energy_ev: fold(f64::max, f64::NEG_INFINITY),
+        highest_band_edge_ev: sol
+            .problem
+            .device
+            .band_edge_ev
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max),
+        outer_iterations: r.report.outer_iterations,
+        born_passes: r.report.born_passes,
+        potential_change_ev: r.report.potential_change_ev,
+        tolerance_ev: r.report.tolerance_ev,
+        poisson_residual: r.report.poisson_residual,
+        born_residual: r.report.born_residual,
+        converged: r.report.converged,
+    }
+}
+
+/// Terminal lines of the self-consistent electrostatics.
+fn print_electrostatics(e: &ElectrostaticsSummary) {
+    println!(
+        "electrostatics    computed drop {:.4} V replaces the imposed one; U_es from {:.4} to {:.4} eV, highest band edge {:.4} eV",
+        e.potential_drop_v,
+        e.lowest_potential_energy_ev,
+        e.highest_potential_energy_ev,
+        e.highest_band_edge_ev
+    );
+    println!(
+        "                  {} outer iterations, {} Born passes; Poisson residual {:.2e} electrons, Born residual {}, last change {:.2e} eV{}",
+        e.outer_iterations,
+        e.born_passes,
+        e.poisson_residual,
+        residual(e.born_residual),
+        e.potential_change_ev,
+        if e.converged { "" } else { " (NOT converged)" }
+    );
 }
 
 /// Exit 2 when the joint loop or the Born loop stopped short (the results

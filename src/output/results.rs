@@ -197,6 +197,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         lattice: None,
         self_heating: None,
         movers: o.sites.movers.as_ref().map(movers_summary),
+        electrostatics: None,
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),

@@ -3,6 +3,7 @@
 
 pub(crate) mod bias;
 pub(crate) mod device;
+pub(crate) mod electrostatics;
 pub(crate) mod lattice;
 pub(crate) mod lattice_blocks;
 pub(crate) mod leads;

@@ -816,6 +816,69 @@ const COOLER: [Key; 20] = [
     ("solves", "1", "operating points solved"),
 ];
 
+const ELECTROSTATICS: [Key; 12] = [
+    (
+        "computed_drop_replaces_imposed",
+        "-",
+        "true: the potential inside the device, and with it the bias drop, is computed from the charge; bias.drop is not imposed",
+    ),
+    (
+        "potential_drop_v",
+        "V",
+        "electrostatic potential of the first cell minus that of the last, φ(x_0) − φ(x_N−1)",
+    ),
+    (
+        "lowest_potential_energy_ev",
+        "eV",
+        "lowest electrostatic potential energy U_es of a cell (sites.csv potential_ev includes it)",
+    ),
+    (
+        "highest_potential_energy_ev",
+        "eV",
+        "highest electrostatic potential energy U_es of a cell",
+    ),
+    (
+        "highest_band_edge_ev",
+        "eV",
+        "highest local band bottom with the computed potential (the top of a barrier)",
+    ),
+    (
+        "outer_iterations",
+        "1",
+        "outer iterations: a Born solve at a fixed potential, then Newton on the Poisson equation",
+    ),
+    (
+        "born_passes",
+        "1",
+        "passes over the energy grid summed over all outer iterations",
+    ),
+    (
+        "potential_change_ev",
+        "eV",
+        "largest change of the potential Newton asked for in the last outer iteration",
+    ),
+    (
+        "tolerance_ev",
+        "eV",
+        "the loop stops when potential_change_ev is at most this and the Born loop converged",
+    ),
+    (
+        "poisson_residual",
+        "1",
+        "largest charge imbalance of a cell in the Poisson equation with the transport density (electrons)",
+    ),
+    (
+        "born_residual",
+        "1",
+        "last relative change of Σ0 of the returned Born solve (0 without scattering)",
+    ),
+    (
+        "converged",
+        "-",
+        "whether the potential and the last Born loop both converged",
+    ),
+];
+
 fn keys(out: &mut Vec<FieldDoc>, prefix: &str, list: &[Key]) {
     out.extend(list.iter().map(|(k, u, m)| FieldDoc {
         name: format!("{prefix}{k}"),
@@ -843,6 +906,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "lattice.", &LATTICE);
     keys(&mut f, "self_heating.", &SELF_HEATING);
     keys(&mut f, "movers.", &MOVERS);
+    keys(&mut f, "electrostatics.", &ELECTROSTATICS);
     keys(&mut f, "", &RUN);
     f
 }

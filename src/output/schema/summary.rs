@@ -188,6 +188,8 @@ pub struct SolveSummary {
     pub self_heating: Option<SelfHeatingSummary>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub movers: Option<MoversSummary>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub electrostatics: Option<ElectrostaticsSummary>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
@@ -220,6 +222,25 @@ pub struct SelfHeatingSummary {
     pub born_iterations: usize,
     pub last_change_k: f64,
     pub tolerance_k: f64,
+    pub converged: bool,
+}
+
+/// The `electrostatics` object of summary.json for a solve with
+/// `[electrostatics]` (the potential solved with the transport).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct ElectrostaticsSummary {
+    pub computed_drop_replaces_imposed: bool,
+    pub potential_drop_v: f64,
+    pub lowest_potential_energy_ev: f64,
+    pub highest_potential_energy_ev: f64,
+    pub highest_band_edge_ev: f64,
+    pub outer_iterations: usize,
+    pub born_passes: usize,
+    pub potential_change_ev: f64,
+    pub tolerance_ev: f64,
+    pub poisson_residual: f64,
+    pub born_residual: f64,
     pub converged: bool,
 }
 

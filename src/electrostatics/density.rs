@@ -1,0 +1,228 @@
+//! Electron numbers per cell from a transport pass, the density predictor
+//! that gives the Poisson–Newton step its Jacobian, and the neutral band
+//! edge of a uniformly doped band.
+
+use crate::scba::Solution;
+use rayon::prelude::*;
+
+/// Logistic occupation 1/(1 + e^x) without overflow.
+#[inline]
+fn logistic(x: f64) -> f64 {
+    if x > 0.0 {
+        let e = (-x).exp();
+        e / (1.0 + e)
+    } else {
+        1.0 / (1.0 + x.exp())
+    }
+}
+
+/// What the last transport pass says about each cell: its electron number
+/// and its spectral weight per energy, with the quasi-Fermi level that
+/// reproduces the electron number from that weight.
+///
+/// The predictor keeps the spectral weight and the quasi-Fermi level of
+/// each cell and moves the states rigidly with the potential: after a
+/// change δU_i of the potential energy of cell i the cell holds
+///
+/// ```text
+/// n_i(δU_i) = Σ_k w_ik f((E_k + δU_i − µ_i)/k_B T),   w_ik = g_s ΔE/(2π) Σ_o A_oo(E_k)
+/// ```
+///
+/// so n_i(0) is the electron number of the pass and dn_i/dδU_i < 0 is
+/// known in closed form (the predictor–corrector idea of A. Trellakis,
+/// A. T. Galick, A. Pacelli, U. Ravaioli, J. Appl. Phys. 81, 7880 (1997)).
+#[derive(Clone, Debug)]
+pub struct CellDensity {
+    energies: Vec<f64>,
+    /// w_ik, cell-major (cells × energies).
+    weight: Vec<f64>,
+    /// Electrons per cell from G^n of the pass.
+    pub electrons: Vec<f64>,
+    /// Quasi-Fermi level µ_i of each cell (eV).
+    pub fermi_level_ev: Vec<f64>,
+    kt: f64,
+}
+
+impl CellDensity {
+    /// Read the electron numbers and spectral weights of a solved point
+    /// and fit each cell's quasi-Fermi level at temperature `temperature_k`.
+    pub fn new(sol: &Solution, temperature_k: f64) -> Self {
+        let p = &sol.problem;
+        let b = p.device.orbitals;
+        let n = p.device.cells();
+        let ns = n * b;
+        let ne = p.grid.count;
+        let scale = p.spin_degeneracy * p.grid.step_ev / (2.0 * std::f64::consts::PI);
+        let g = &sol.pass.green;
+        let energies: Vec<f64> = (0..ne).map(|k| p.grid.energy(k)).collect();
+        let kt = crate::units::thermal_energy_ev(temperature_k);
+        let rows: Vec<(Vec<f64>, f64)> = (0..n)
+            .into_par_iter()
+            .map(|c| {
+                let mut w = vec![0.0; ne];
+                let mut filled = 0.0;
+                for (k, wk) in w.iter_mut().enumerate() {
+                    for o in 0..b {
+                        let idx = k * ns + c * b + o;
+                        *wk += scale * g.spectral(idx);
+                        filled += scale * g.filled[idx];
+                    }
+                }
+                (w, filled)
+            })
+            .collect();
+        let mut weight = Vec::with_capacity(n * ne);
+        let mut electrons = Vec::with_capacity(n);
+        for (w, e) in rows {
+            weight.extend(w);
+            electrons.push(e);
+        }
+        let mut out = Self {
+            energies,
+            weight,
+            electrons,
+            fermi_level_ev: vec![0.0; n],
+            kt,
+        };
+        out.fermi_level_ev = (0..n)
+            .into_par_iter()
+            .map(|c| out.fit(c))
+            .collect::<Vec<_>>();
+        out
+    }
+
+    /// Number of cells.
+    pub fn cells(&self) -> usize {
+        self.electrons.len()
+    }
+
+    fn row(&self, cell: usize) -> &[f64] {
+        let ne = self.energies.len();
+        &self.weight[cell * ne..(cell + 1) * ne]
+    }
+
+    /// Electrons of cell `cell` with quasi-Fermi level `mu` and the states
+    /// moved by `shift` (eV), and the derivative with respect to `shift`.
+    fn count(&self, cell: usize, mu: f64, shift: f64) -> (f64, f64) {
+        let (mut n, mut dn) = (0.0, 0.0);
+        for (&w, &e) in self.row(cell).iter().zip(&self.energies) {
+            if w == 0.0 {
+                continue;
+            }
+            let f = logistic((e + shift - mu) / self.kt);
+            n += w * f;
+            dn -= w * f * (1.0 - f) / self.kt;
+        }
+        (n, dn)
+    }
+
+    /// The quasi-Fermi level that reproduces the electron number of the
+    /// cell (bisection; clamped to 60 k_B T beyond the grid when the
+    /// number lies outside what the grid can hold).
+    fn fit(&self, cell: usize) -> f64 {
+        let target = self.electrons[cell];
+        let first = self.energies.first().copied().unwrap_or(0.0);
+        let last = self.energies.last().copied().unwrap_or(0.0);
+        let (mut lo, mut hi) = (first - 60.0 * self.kt, last + 60.0 * self.kt);
+        if self.count(cell, lo, 0.0).0 >= target {
+            return lo;
+        }
+        if self.count(cell, hi, 0.0).0 <= target {
+            return hi;
+        }
+        for _ in 0..200 {
+            let mid = 0.5 * (lo + hi);
+            if self.count(cell, mid, 0.0).0 < target {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+            if hi - lo < 1e-14 * (1.0 + mid.abs()) {
+                break;
+            }
+        }
+        0.5 * (lo + hi)
+    }
+
+    /// Predicted electrons of cell `cell` after its potential energy moved
+    /// by `shift` (eV), and the derivative (electrons per eV, ≤ 0).
+    pub fn predict(&self, cell: usize, shift: f64) -> (f64, f64) {
+        let (n, dn) = self.count(cell, self.fermi_level_ev[cell], shift);
+        // At zero shift the fitted level reproduces the pass to the
+        // bisection's rounding; use the pass's own number there so that a
+        // converged potential sees exactly the transport density.
+        let n0 = self.count(cell, self.fermi_level_ev[cell], 0.0).0;
+        (n + (self.electrons[cell] - n0), dn)
+    }
+}
+
+/// Electrons per cell of an infinite uniform band at Fermi level `mu`:
+/// a chain or strip with band bottom `edge` (eV), hopping `t` (eV),
+/// transverse mode energies `modes` above the edge (one entry, 0, for a
+/// chain), spin degeneracy `gs`. With E = edge + ε_m + 2t(1 − cos θ) the
+/// one-dimensional density of states of each mode turns into dθ/π:
+/// n = (g_s/π) Σ_m ∫_0^π f(E(θ)) dθ, integrated by the midpoint rule on
+/// 4000 points (the integrand is smooth in θ).
+pub fn uniform_band_electrons(edge: f64, t: f64, modes: &[f64], mu: f64, kt: f64, gs: f64) -> f64 {
+    const POINTS: usize = 4000;
+    let h = std::f64::consts::PI / POINTS as f64;
+    let mut sum = 0.0;
+    for &m in modes {
+        for j in 0..POINTS {
+            let theta = (j as f64 + 0.5) * h;
+            let e = edge + m + 2.0 * t * (1.0 - theta.cos());
+            sum += logistic((e - mu) / kt);
+        }
+    }
+    gs * sum * h / std::f64::consts::PI
+}
+
+/// The band bottom (eV) at which a uniform band holds `electrons` per cell
+/// at Fermi level `mu` (see [`uniform_band_electrons`]); `None` when the
+/// band cannot hold that many (more than g_s per mode) or none are asked.
+pub fn neutral_band_edge(
+    electrons: f64,
+    t: f64,
+    modes: &[f64],
+    mu: f64,
+    kt: f64,
+    gs: f64,
+) -> Option<f64> {
+    let full = gs * modes.len() as f64;
+    if !(electrons > 0.0 && electrons < full) {
+        return None;
+    }
+    let span = 4.0 * t + modes.iter().copied().fold(0.0, f64::max) + 80.0 * kt;
+    let (mut lo, mut hi) = (mu - span, mu + 80.0 * kt);
+    // More electrons the lower the edge.
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if uniform_band_electrons(mid, t, modes, mu, kt, gs) > electrons {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+        if hi - lo < 1e-13 {
+            break;
+        }
+    }
+    Some(0.5 * (lo + hi))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Deep below the Fermi level a mode holds g_s electrons; far above it,
+    /// the Boltzmann tail of a one-dimensional band.
+    #[test]
+    fn uniform_band_limits() {
+        let (t, kt) = (0.1, 0.025);
+        let full = uniform_band_electrons(-2.0, t, &[0.0], 0.0, kt, 2.0);
+        assert!((full - 2.0).abs() < 1e-12, "{full}");
+        let edge = neutral_band_edge(0.5, t, &[0.0], 0.0, kt, 2.0).unwrap();
+        let back = uniform_band_electrons(edge, t, &[0.0], 0.0, kt, 2.0);
+        assert!((back - 0.5).abs() < 1e-9, "{back}");
+        assert!(neutral_band_edge(2.5, t, &[0.0], 0.0, kt, 2.0).is_none());
+    }
+}

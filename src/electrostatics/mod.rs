@@ -1,0 +1,381 @@
+//! Self-consistent electrostatics: the potential that the charge of the
+//! device puts on its own band, solved together with the Born loop.
+//!
+//! # Model
+//!
+//! The electrostatic potential energy U_es(x_i) of an electron (eV; the
+//! potential φ in V is −U_es numerically) adds to the on-site energies of
+//! cell i on top of the band-offset regions. Along the transport direction
+//! of a wire or slab of cross-section A, Gauss's law for each cell of
+//! length a reads
+//!
+//! ```text
+//! d/dx(ε_r ε0 dφ/dx) − ε_r ε0 (φ − φ_gate)/λ² = −ρ,   ρ_i = e (N_D,i − N_A,i − n_i/(A a))
+//! ```
+//!
+//! with n_i the electrons of cell i (spin included) from G^n of the
+//! transport solution, N_D and N_A the donor and acceptor densities, and
+//! the screening term present only with a gate (gate potential φ_gate,
+//! screening length λ). The discrete form is in `poisson.rs`: one
+//! equation per cell in electrons, with the harmonic mean of the
+//! permittivities on each bond.
+//!
+//! Ends: a charge-neutral end has zero field (no flux through its outer
+//! face), so the potential there is wherever the charge of the device puts
+//! it; a fixed end holds U_es at a given value. Each lead continues its
+//! end cell, so its band moves with the potential of that end cell: under
+//! bias the drop across the device is computed from the charge, not
+//! imposed. Without a gate and with both ends neutral the total charge of
+//! the device is zero at the solution.
+//!
+//! # Solution
+//!
+//! Two nested loops. Outer: the Born loop at a fixed U_es gives G^n and
+//! the spectral function of every cell. Inner: Newton's method on the
+//! Poisson equation with a predicted density, in which each cell keeps its
+//! spectral weight and its quasi-Fermi level and its states move rigidly
+//! with the potential (the predictor–corrector idea of A. Trellakis,
+//! A. T. Galick, A. Pacelli, U. Ravaioli, J. Appl. Phys. 81, 7880 (1997)):
+//! the derivative of that density gives Newton its Jacobian. The Newton
+//! answer is mixed into the next potential by Anderson acceleration over
+//! the outer iterates (`mixing.rs`), and the next outer iteration solves
+//! the transport there, starting the Born loop from the previous Σ0. The loop stops when the Newton update
+//! of the potential is below the tolerance (eV) and the Born loop of that
+//! point converged. Both residuals are reported: the largest charge
+//! imbalance of a cell in the Poisson equation with the transport density,
+//! and the Born loop's own residual.
+//!
+//! On a uniform energy grid the 1/√(E − Ec) density of states of a long,
+//! flat, coherent region is sampled point by point; where a band edge
+//! sits just below a grid energy the sampled electron number grows as the
+//! band rises, and the loop can stall at a change of the order of the grid
+//! step. Broadening in the device or short flat regions avoid it.
+
+mod density;
+mod mixing;
+mod poisson;
+
+pub use density::{CellDensity, neutral_band_edge, uniform_band_electrons};
+
+use crate::C64;
+use crate::leads::Lead;
+use crate::model::Problem;
+use crate::scattering::ScatteringSelfEnergy;
+use crate::scba::{self, LeadTable, Observer, ScbaParams, Solution, SolveError};
+use poisson::Poisson;
+
+/// Charge imbalance of a cell (electrons) below which the Poisson
+/// equation counts as solved whatever the potential change: far below any
+/// doping a case can hold (1e-12 electrons in a cell of 1 nm³ is
+/// 1e9 cm⁻³).
+pub const CHARGE_FLOOR: f64 = 1e-12;
+
+/// Vacuum permittivity ε0 (F/m), CODATA 2018.
+pub const VACUUM_PERMITTIVITY: f64 = 8.854_187_812_8e-12;
+
+/// What holds the potential at one end of the device.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Boundary {
+    /// Zero field at the end: the end is charge-neutral and its potential
+    /// follows from the charge.
+    Neutral,
+    /// The electrostatic potential φ (V) of the end cell is fixed.
+    Fixed {
+        /// φ at the end cell (V); U_es = −e φ.
+        potential_v: f64,
+    },
+}
+
+/// A gate that screens the potential towards its own.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct Gate {
+    /// Gate potential φ_gate (V).
+    pub potential_v: f64,
+    /// Screening length λ (nm).
+    pub length_nm: f64,
+}
+
+/// Everything the electrostatics needs besides the transport problem.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Electrostatics {
+    /// Relative permittivity ε_r of each cell.
+    pub permittivity: Vec<f64>,
+    /// Donor density N_D of each cell (cm⁻³).
+    pub donors_cm3: Vec<f64>,
+    /// Acceptor density N_A of each cell (cm⁻³).
+    pub acceptors_cm3: Vec<f64>,
+    /// Cross-section A of the wire or slab (nm²).
+    pub area_nm2: f64,
+    /// Optional gate.
+    pub gate: Option<Gate>,
+    /// Left end.
+    pub left: Boundary,
+    /// Right end.
+    pub right: Boundary,
+    /// Outer tolerance: largest Newton update of U_es (eV) accepted as
+    /// converged.
+    pub tolerance_ev: f64,
+    /// Outer iteration limit; reaching it is a flagged, non-converged
+    /// result.
+    pub max_iterations: usize,
+    /// Anderson history depth of the outer iteration (0: linear mixing).
+    pub mixing_depth: usize,
+    /// Mixing factor β of the outer iteration.
+    pub mixing_factor: f64,
+}
+
+impl Electrostatics {
+    /// Default outer tolerance (eV).
+    pub const DEFAULT_TOLERANCE_EV: f64 = 1e-5;
+    /// Default outer iteration limit.
+    pub const DEFAULT_MAX_ITERATIONS: usize = 60;
+    /// Default Anderson depth of the outer iteration.
+    pub const DEFAULT_MIXING_DEPTH: usize = 5;
+    /// Default mixing factor β of the outer iteration.
+    pub const DEFAULT_MIXING_FACTOR: f64 = 0.5;
+
+    /// Net donors (N_D − N_A)·A·a of each cell (electrons per cell) for
+    /// cell spacing `spacing_nm`.
+    pub fn net_doping_per_cell(&self, spacing_nm: f64) -> Vec<f64> {
+        let volume_cm3 = self.area_nm2 * spacing_nm * 1e-21;
+        self.donors_cm3
+            .iter()
+            .zip(&self.acceptors_cm3)
+            .map(|(d, a)| (d - a) * volume_cm3)
+            .collect()
+    }
+
+    fn check(&self, cells: usize) -> Result<(), SolveError> {
+        let lens = [
+            self.permittivity.len(),
+            self.donors_cm3.len(),
+            self.acceptors_cm3.len(),
+        ];
+        if lens.iter().any(|&l| l != cells) {
+            return Err(SolveError::Invalid(format!(
+                "electrostatics has {lens:?} values per cell (permittivity, donors, acceptors), the device {cells} cells"
+            )));
+        }
+        let good = |x: f64| x.is_finite() && x > 0.0;
+        if !good(self.area_nm2) || !self.permittivity.iter().all(|&e| good(e)) {
+            return Err(SolveError::Invalid(
+                "electrostatics needs a positive area and positive permittivities".into(),
+            ));
+        }
+        Ok(())
+    }
+
+    /// The discrete Poisson problem on cells of spacing `spacing_nm`.
+    fn poisson(&self, spacing_nm: f64) -> Poisson {
+        let e = crate::units::ELEMENTARY_CHARGE;
+        let area = self.area_nm2 * 1e-18;
+        let a = spacing_nm * 1e-9;
+        let eps = |r: f64| VACUUM_PERMITTIVITY * r;
+        let coupling = self
+            .permittivity
+            .windows(2)
+            .map(|w| eps(2.0 * w[0] * w[1] / (w[0] + w[1])) * area / (e * a))
+            .collect();
+        let (screening, gate_ev) = match self.gate {
+            Some(g) => {
+                let l = g.length_nm * 1e-9;
+                let s = self
+                    .permittivity
+                    .iter()
+                    .map(|&r| eps(r) * area * a / (e * l * l))
+                    .collect();
+                (s, -g.potential_v)
+            }
+            None => (vec![0.0; self.permittivity.len()], 0.0),
+        };
+        let fixed = |b: Boundary| match b {
+            Boundary::Neutral => None,
+            Boundary::Fixed { potential_v } => Some(-potential_v),
+        };
+        Poisson {
+            coupling,
+            screening,
+            gate_ev,
+            doping: self.net_doping_per_cell(spacing_nm),
+            fixed: (fixed(self.left), fixed(self.right)),
+        }
+    }
+}
+
+/// The transport problem with the electrostatic potential energy `u` (eV,
+/// one value per cell) added to every orbital of each cell, and each
+/// periodic lead moved with the potential of its end cell.
+pub fn with_potential(problem: &Problem, u: &[f64]) -> Problem {
+    let mut p = problem.clone();
+    let dev = &mut p.device;
+    for (i, &ui) in u.iter().enumerate() {
+        let h = &mut dev.onsite[i];
+        for o in 0..h.nrows() {
+            h[(o, o)] += C64::new(ui, 0.0);
+        }
+        dev.potential_ev[i] += ui;
+        dev.band_edge_ev[i] += ui;
+    }
+    let shift = |lead: &mut Lead, ui: f64| {
+        if let Lead::Periodic { onsite, .. } = lead {
+            for o in 0..onsite.nrows() {
+                onsite[(o, o)] += C64::new(ui, 0.0);
+            }
+        }
+    };
+    if let (Some(&first), Some(&last)) = (u.first(), u.last()) {
+        shift(&mut p.left.lead, first);
+        shift(&mut p.right.lead, last);
+    }
+    p
+}
+
+/// One outer iteration: a Born solve at a potential, then Newton.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct OuterRecord {
+    /// Outer iteration (1-based).
+    pub iteration: usize,
+    /// Largest change of U_es that Newton asked for (eV).
+    pub potential_change_ev: f64,
+    /// Largest charge imbalance of a cell in the Poisson equation with
+    /// the transport density at the potential used (electrons).
+    pub poisson_residual: f64,
+    /// Born iterations of the solve.
+    pub born_iterations: usize,
+    /// Whether that Born solve converged.
+    pub born_converged: bool,
+    /// Newton iterations on the predicted density.
+    pub newton_iterations: usize,
+}
+
+/// The convergence record of the self-consistent electrostatics.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct ElectrostaticsReport {
+    /// True when the potential and the last Born loop both converged.
+    pub converged: bool,
+    /// Outer iterations done.
+    pub outer_iterations: usize,
+    /// Largest potential change of the last outer iteration (eV).
+    pub potential_change_ev: f64,
+    /// Poisson residual of the returned point (largest charge imbalance of
+    /// a cell, electrons).
+    pub poisson_residual: f64,
+    /// Last Born residual of the returned point (relative change of Σ0; 0
+    /// for a coherent device).
+    pub born_residual: f64,
+    /// Born passes over the energy grid in all outer iterations.
+    pub born_passes: usize,
+    /// The outer tolerance (eV).
+    pub tolerance_ev: f64,
+    /// Every outer iteration.
+    pub history: Vec<OuterRecord>,
+}
+
+/// A self-consistent point: the transport solution at the final potential.
+#[derive(Clone, Debug)]
+pub struct SelfConsistent {
+    /// The solution; its problem carries the potential in its device and
+    /// leads.
+    pub solution: Solution,
+    /// U_es of each cell (eV).
+    pub potential_ev: Vec<f64>,
+    /// Convergence record.
+    pub report: ElectrostaticsReport,
+}
+
+/// Put the fixed end values into `u`.
+fn pin_fixed_ends(u: &mut [f64], poisson: &Poisson) {
+    let n = u.len();
+    if let Some(f) = poisson.fixed.0 {
+        u[0] = f;
+    }
+    if let Some(f) = poisson.fixed.1 {
+        u[n - 1] = f;
+    }
+}
+
+/// Solve transport and electrostatics together (see the module text).
+/// `problem` carries the imposed potential (band offsets) without any
+/// bias drop inside the device; `start` is a first U_es (zero when
+/// `None`); `lattice_temperature_k` is handed to every Born solve.
+pub fn solve(
+    problem: &Problem,
+    es: &Electrostatics,
+    params: &ScbaParams,
+    lattice_temperature_k: Option<&[f64]>,
+    start: Option<&[f64]>,
+    observer: &mut dyn Observer,
+) -> Result<SelfConsistent, SolveError> {
+    let cells = problem.device.cells();
+    es.check(cells)?;
+    let poisson = es.poisson(problem.device.spacing_nm);
+    let temperature = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
+    let mut u = match start {
+        Some(s) if s.len() == cells => s.to_vec(),
+        Some(_) => return Err(SolveError::Invalid("start potential length".into())),
+        None => vec![0.0; cells],
+    };
+    pin_fixed_ends(&mut u, &poisson);
+    let mut history = Vec::new();
+    let mut warm: Option<ScatteringSelfEnergy> = None;
+    let mut born_passes = 0;
+    let mut mixer = mixing::PotentialMixer::new(es.mixing_depth, es.mixing_factor);
+    for iteration in 1..=es.max_iterations.max(1) {
+        let p = with_potential(problem, &u);
+        let leads = LeadTable::new(&p)?;
+        let sol = scba::solve_in_lattice(
+            &p,
+            &leads,
+            lattice_temperature_k,
+            params,
+            warm.as_ref(),
+            observer,
+        )?;
+        born_passes += sol.report.iterations.max(1);
+        let density = CellDensity::new(&sol, temperature);
+        let poisson_residual = poisson.largest_residual(&u, &density.electrons);
+        let newton = poisson.newton(&u, &density, 0.1 * es.tolerance_ev, CHARGE_FLOOR, 200);
+        let change = newton
+            .potential
+            .iter()
+            .zip(&u)
+            .fold(0.0, |m: f64, (a, b)| m.max((a - b).abs()));
+        history.push(OuterRecord {
+            iteration,
+            potential_change_ev: change,
+            poisson_residual,
+            born_iterations: sol.report.iterations,
+            born_converged: sol.report.converged,
+            newton_iterations: newton.iterations,
+        });
+        let done = change <= es.tolerance_ev && sol.report.converged && newton.converged;
+        if done || iteration == es.max_iterations.max(1) {
+            let report = ElectrostaticsReport {
+                converged: done,
+                outer_iterations: iteration,
+                potential_change_ev: change,
+                poisson_residual,
+                born_residual: sol.report.history.last().map_or(0.0, |r| r.residual),
+                born_passes,
+                tolerance_ev: es.tolerance_ev,
+                history,
+            };
+            return Ok(SelfConsistent {
+                solution: sol,
+                potential_ev: u,
+                report,
+            });
+        }
+        warm = (!sol.problem.scattering.is_coherent()).then(|| sol.sigma.clone());
+        let residual: Vec<f64> = newton
+            .potential
+            .iter()
+            .zip(&u)
+            .map(|(a, b)| a - b)
+            .collect();
+        u = mixer.next(&u, &residual);
+        pin_fixed_ends(&mut u, &poisson);
+    }
+    unreachable!("the loop returns on its last iteration")
+}
