@@ -46,6 +46,10 @@ spring_n_per_m = 30.0
 from_nm = 4.0
 to_nm = 6.0
 mass_u = 72.6
+
+[[channel]]
+name = "first"
+orbitals = [0]
 "#;
 
 fn base() -> Case {
@@ -92,6 +96,8 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::Drop => toml::Value::String("leads".into()),
             // the old name is read, then refused by name
             ValueType::Renamed => toml::Value::String("chain".into()),
+            ValueType::Names => toml::Value::Array(vec![toml::Value::String("up".into())]),
+            ValueType::Indices => toml::Value::Array(vec![toml::Value::Integer(0)]),
         };
         let mut doc: toml::Table = toml::from_str(BASE).unwrap();
         let parts: Vec<&str> = info.name.split('.').collect();

@@ -27,6 +27,17 @@ pub(crate) struct RawCase {
     pub thermal: Opt<RawThermal>,
     pub profile: Opt<RawProfile>,
     pub lattice: Opt<RawLattice>,
+    pub channel: Option<Vec<Spanned<RawChannel>>>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with a name and the orbitals it holds"
+)]
+pub(crate) struct RawChannel {
+    pub name: Opt<String>,
+    pub orbitals: Opt<Vec<i64>>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -44,6 +55,7 @@ pub(crate) struct RawDevice {
     pub coupling_file: Opt<String>,
     pub cells: Opt<i64>,
     pub region: Option<Vec<Spanned<RawRegion>>>,
+    pub spin: Opt<String>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -57,6 +69,9 @@ pub(crate) struct RawRegion {
     pub offset_ev: Opt<f64>,
     pub start_ev: Opt<f64>,
     pub end_ev: Opt<f64>,
+    /// Names of the channels whose orbitals the region shifts (all
+    /// orbitals when left out).
+    pub channels: Opt<Vec<String>>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -245,7 +260,7 @@ const TABLE_KEYS: &[&str] = &[
 
 /// Keys that hold a list of tables, each entry written under its own
 /// `[[key]]` header.
-const ARRAY_KEYS: &[&str] = &["phonon", "device.region", "lattice.region"];
+const ARRAY_KEYS: &[&str] = &["phonon", "device.region", "lattice.region", "channel"];
 
 /// The value at a dotted path and the span of its key.
 fn lookup<'t, 'a>(
@@ -414,6 +429,12 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
         (ValueType::Bool, DeValue::Boolean(_)) => true,
         (ValueType::Text | ValueType::Choice(_), DeValue::String(_)) => true,
         (ValueType::Drop | ValueType::Renamed, _) => true,
+        (ValueType::Names, DeValue::Array(a)) => {
+            a.iter().all(|x| matches!(x.get_ref(), DeValue::String(_)))
+        }
+        (ValueType::Indices, DeValue::Array(a)) => a
+            .iter()
+            .all(|x| matches!(x.get_ref(), DeValue::Integer(i) if int_ok(i))),
         _ => false,
     }
 }
@@ -424,6 +445,8 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::Float => "a number",
         ValueType::Int => "an integer",
         ValueType::Bool => "a boolean",
+        ValueType::Names => "a list of strings",
+        ValueType::Indices => "a list of whole numbers",
         _ => "a string",
     }
 }

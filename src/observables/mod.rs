@@ -13,8 +13,12 @@
 //! - the conservation ledger; the local Fermi level by density matching;
 //!   the energy-resolved bond current.
 //!
+//! - every one of these split by channel (a named group of the orbitals of
+//!   a cell), in [`channels`].
+//!
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
+pub mod channels;
 mod fermi_level;
 mod ledger;
 pub use fermi_level::{
