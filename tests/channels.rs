@@ -428,3 +428,128 @@ fn bad_channels_are_refused() {
         assert_eq!(e.key.as_deref(), Some(key), "{e}");
     }
 }
+
+/// Non-mixing channels are conductors in parallel: G = Σ G_c and the
+/// Seebeck coefficient of the whole is the conductance-weighted average
+/// Σ G_c S_c / Σ G_c (common practice for parallel thermoelectric
+/// conductors; exact here because the moments L0, L1 of T = Σ T_c add).
+/// Rounding only: 1e-9. The spin valve of the demo, parallel and flipped to
+/// antiparallel.
+#[test]
+fn channel_seebeck_of_a_spin_valve_weights_to_the_total() {
+    use qheat::thermo::channels::ChannelSeebeck;
+    use qheat::thermo::of_case::{case_channel_seebeck, case_coefficients};
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/spin-valve-seebeck.toml");
+    let parallel = Case::load(&path).unwrap();
+    let flip = |c: &Case, i: usize, v: f64| -> Case {
+        c.with(format!("device.region.{i}.offset_ev").parse().unwrap(), v)
+            .unwrap()
+    };
+    let anti = flip(&flip(&parallel, 2, 0.1), 3, -0.1);
+    let mut seebeck = Vec::new();
+    for c in [&parallel, &anti] {
+        let total = case_coefficients(c, &mut Silent).unwrap().coefficients;
+        let Some(ChannelSeebeck::Given(list)) = case_channel_seebeck(c).unwrap() else {
+            panic!("spin channels of a chain do not mix")
+        };
+        assert_eq!(list.len(), 2);
+        let g: f64 = list.iter().map(|c| c.conductance_s).sum();
+        let gs: f64 = list
+            .iter()
+            .map(|c| c.conductance_s * c.seebeck_v_per_k)
+            .sum();
+        assert!(
+            (g - total.conductance_s).abs() <= 1e-9 * g,
+            "{g} {}",
+            total.conductance_s
+        );
+        let s = gs / g;
+        assert!(
+            (s - total.seebeck_v_per_k).abs() <= 1e-9 * s.abs(),
+            "{s} vs {}",
+            total.seebeck_v_per_k
+        );
+        seebeck.push(total.seebeck_v_per_k);
+    }
+    // the point of the demo: antiparallel |S| is several times the parallel
+    assert!(seebeck[1] / seebeck[0] > 2.5, "{seebeck:?}");
+}
+
+/// Channels that the Hamiltonian mixes get no Seebeck coefficient of
+/// their own, and the reason names the element that mixes them.
+#[test]
+fn mixing_channels_get_no_channel_seebeck() {
+    use qheat::thermo::channels::{ChannelSeebeck, channel_seebeck};
+    let text = r#"
+name = "strip"
+[device]
+kind = "strip"
+spacing_nm = 0.5
+length_nm = 1.0
+effective_mass = 0.2
+width_sites = 2
+[[channel]]
+name = "a"
+orbitals = [0]
+[leads.left]
+fermi_level_ev = 0.25
+temperature_k = 300
+[leads.right]
+fermi_level_ev = 0.25
+temperature_k = 300
+"#;
+    let r = case(text).resolve().unwrap();
+    let got = channel_seebeck(&r.problem, r.channels.as_ref().unwrap()).unwrap();
+    let ChannelSeebeck::NotGiven(why) = got else {
+        panic!("{got:?}")
+    };
+    assert!(why.contains("on-site block of cell 0"), "{why}");
+}
+
+/// `qheat solve` writes the channel tables and the `channels` summary
+/// object when the case names channels, and nothing of them otherwise.
+#[test]
+fn solve_writes_channel_files_only_for_cases_with_channels() {
+    let tmp = tempfile::tempdir().unwrap();
+    let run = |text: &str, name: &str| -> std::path::PathBuf {
+        let file = tmp.path().join(format!("{name}.toml"));
+        std::fs::write(&file, text).unwrap();
+        let out = tmp.path().join(name);
+        let st = std::process::Command::new(env!("CARGO_BIN_EXE_qheat"))
+            .args(["solve", "--quiet", "-o"])
+            .arg(&out)
+            .arg(&file)
+            .output()
+            .unwrap();
+        assert!(
+            st.status.success(),
+            "{}",
+            String::from_utf8_lossy(&st.stderr)
+        );
+        out
+    };
+    let with = run(&chain("spin = \"explicit\"", ""), "with");
+    let without = run(&chain("", ""), "without");
+    let summary = |dir: &Path| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap()
+    };
+    let s = summary(&with);
+    let ch = &s["channels"];
+    assert_eq!(ch["names"], serde_json::json!(["up", "down"]));
+    let i: f64 = ch["current_left_a"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .sum();
+    let total = s["results"]["current_left_a"].as_f64().unwrap();
+    assert!((i - total).abs() <= 1e-12 * total.abs(), "{i} {total}");
+    let sites = std::fs::read_to_string(with.join("channel_sites.csv")).unwrap();
+    assert_eq!(sites.lines().count(), 1 + 2 * 12);
+    let spectrum = std::fs::read_to_string(with.join("channel_spectrum.csv")).unwrap();
+    assert!(spectrum.starts_with("energy_ev,channel,"));
+    assert!(spectrum.lines().next().unwrap().ends_with(",transmission"));
+    assert!(summary(&without).get("channels").is_none());
+    assert!(!without.join("channel_sites.csv").exists());
+    assert!(!without.join("channel_spectrum.csv").exists());
+}

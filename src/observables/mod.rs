@@ -134,6 +134,10 @@ pub struct Observables {
     pub sites: SiteProfile,
     /// Energy-resolved flows.
     pub spectrum: Spectrum,
+    /// Results split by channel, when the case names channels (filled by
+    /// [`channels::observe_channels`]; `None` from [`observe`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub channels: Option<channels::ChannelObservables>,
 }
 
 /// g_s/h in 1/(eV s).
@@ -345,5 +349,6 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         ledger,
         sites,
         spectrum,
+        channels: None,
     }
 }
