@@ -3,7 +3,7 @@
 
 use super::super::check::Checker;
 use super::super::error::CaseError;
-use super::super::raw::RawCase;
+use super::super::raw::{RawCase, RawChannel};
 use super::device::DeviceSpec;
 use crate::device::{Channel, Channels, OTHER_CHANNEL};
 
@@ -44,43 +44,11 @@ impl ChannelsSpec {
         if entries.is_empty() {
             return Ok(Self::default());
         }
-        let mut named = Vec::with_capacity(entries.len());
-        for (i, e) in entries.iter().enumerate() {
-            let span = e.span();
-            let e = e.get_ref();
-            let key = |k: &str| format!("channel.{i}.{k}");
-            let Some(name) = &e.name else {
-                return Err(ck
-                    .ctx
-                    .missing(Some(span), &key("name"), "the channel's name"));
-            };
-            if name.get_ref().trim().is_empty() {
-                return Err(ck.ctx.invalid(
-                    Some(name.span()),
-                    &key("name"),
-                    "a non-empty name",
-                    "\"\"",
-                ));
-            }
-            let Some(list) = &e.orbitals else {
-                return Err(ck.ctx.missing(
-                    Some(span),
-                    &key("orbitals"),
-                    &format!(
-                        "the orbitals of a cell the channel holds, e.g. [0, 1] (a cell has {b})"
-                    ),
-                ));
-            };
-            let orbitals = list
-                .get_ref()
-                .iter()
-                .map(|&o| usize::try_from(o).unwrap_or(usize::MAX))
-                .collect();
-            named.push(Channel {
-                name: name.get_ref().clone(),
-                orbitals,
-            });
-        }
+        let named = entries
+            .iter()
+            .enumerate()
+            .map(|(i, e)| one_channel(i, e, ck, b))
+            .collect::<Result<Vec<_>, _>>()?;
         let channels = Channels::new(b, named).map_err(|err| {
             ck.ctx.invalid(
                 raw.channel
@@ -108,4 +76,42 @@ impl ChannelsSpec {
             channels: Some(channels),
         })
     }
+}
+
+/// Entry `i` of `[[channel]]`: its name and orbitals (range and overlap
+/// are checked on the whole set).
+fn one_channel(
+    i: usize,
+    e: &toml::Spanned<RawChannel>,
+    ck: &Checker<'_>,
+    b: usize,
+) -> Result<Channel, CaseError> {
+    let span = e.span();
+    let e = e.get_ref();
+    let key = |k: &str| format!("channel.{i}.{k}");
+    let Some(name) = &e.name else {
+        return Err(ck
+            .ctx
+            .missing(Some(span), &key("name"), "the channel's name"));
+    };
+    if name.get_ref().trim().is_empty() {
+        return Err(ck
+            .ctx
+            .invalid(Some(name.span()), &key("name"), "a non-empty name", "\"\""));
+    }
+    let Some(list) = &e.orbitals else {
+        return Err(ck.ctx.missing(
+            Some(span),
+            &key("orbitals"),
+            &format!("the orbitals of a cell the channel holds, e.g. [0, 1] (a cell has {b})"),
+        ));
+    };
+    Ok(Channel {
+        name: name.get_ref().clone(),
+        orbitals: list
+            .get_ref()
+            .iter()
+            .map(|&o| usize::try_from(o).unwrap_or(usize::MAX))
+            .collect(),
+    })
 }

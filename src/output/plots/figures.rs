@@ -699,6 +699,30 @@ fn draw_flows(
     Ok(())
 }
 
+/// The transmission of each channel, dashed, one colour per channel.
+fn draw_channel_transmissions(
+    chart: &mut Chart<'_, '_>,
+    energies: &[f64],
+    channel_t: &Option<Vec<(&String, &Vec<f64>)>>,
+    x: (f64, f64),
+    ef: f64,
+) -> Result<(), DrawError> {
+    for (i, (_, tc)) in channel_t.iter().flatten().enumerate() {
+        let colour = SERIES[i % SERIES.len()];
+        chart.draw_series(DashedLineSeries::new(
+            energies
+                .iter()
+                .zip(tc.iter())
+                .filter(|(en, _)| **en * ef >= x.0 && **en * ef <= x.1)
+                .map(|(en, tv)| (en * ef, *tv)),
+            6,
+            4,
+            colour.stroke_width(2),
+        ))?;
+    }
+    Ok(())
+}
+
 /// spectrum.svg: energy-resolved flows into the device from each lead and
 /// from the scattering bath, the net flow through the device coloured by
 /// its direction, the lead Fermi windows; transmission below when the
@@ -769,20 +793,7 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
                     .map(|(en, tv)| (en * ef, *tv)),
                 TRANSMISSION.stroke_width(2),
             ))?;
-            // Per channel, dashed: the parts of T arriving in each channel.
-            for (i, (_, tc)) in channel_t.iter().flatten().enumerate() {
-                let colour = SERIES[i % SERIES.len()];
-                chart.draw_series(DashedLineSeries::new(
-                    sp.energy_ev
-                        .iter()
-                        .zip(tc.iter())
-                        .filter(|(en, _)| **en * ef >= x.0 && **en * ef <= x.1)
-                        .map(|(en, tv)| (en * ef, *tv)),
-                    6,
-                    4,
-                    colour.stroke_width(2),
-                ))?;
-            }
+            draw_channel_transmissions(&mut chart, &sp.energy_ev, &channel_t, x, ef)?;
         }
         Ok(())
     })
