@@ -58,21 +58,21 @@ pub struct ChannelObservables {
     /// when there are exactly two channels (NaN at zero current).
     pub polarization: Option<f64>,
     /// j_1,c(E): particle flow per unit energy from the left lead,
-    /// [channel][energy] (1/(eV s)).
+    /// `[channel][energy]` (1/(eV s)).
     pub flow_left: Vec<Vec<f64>>,
-    /// j_2,c(E) from the right lead, [channel][energy] (1/(eV s)).
+    /// j_2,c(E) from the right lead, `[channel][energy]` (1/(eV s)).
     pub flow_right: Vec<Vec<f64>>,
     /// Coherent transmission per channel, projected at the right lead,
-    /// [channel][energy]; `None` with scattering.
+    /// `[channel][energy]`; `None` with scattering.
     pub transmission: Option<Vec<Vec<f64>>>,
-    /// Electrons per cell, [channel][cell].
+    /// Electrons per cell, `[channel][cell]`.
     pub electrons: Vec<Vec<f64>>,
-    /// The channel's local Fermi level per cell (eV), [channel][cell]; NaN
+    /// The channel's local Fermi level per cell (eV), `[channel][cell]`; NaN
     /// where the status is not matched.
     pub fermi_level_ev: Vec<Vec<f64>>,
-    /// How each match ended, [channel][cell].
+    /// How each match ended, `[channel][cell]`.
     pub fermi_level_status: Vec<Vec<FermiLevelStatus>>,
-    /// Lattice power per cell, [channel][cell] (W).
+    /// Lattice power per cell, `[channel][cell]` (W).
     pub cell_lattice_power_w: Vec<Vec<f64>>,
 }
 
@@ -175,8 +175,8 @@ fn energy_traces(
     Ok((left, right, transmission))
 }
 
-/// Per-channel flows per unit energy: ([c][k] left, [c][k] right,
-/// [c][k] transmission) in 1/(eV s) (transmission dimensionless).
+/// Per-channel flows per unit energy: (`[c][k]` left, `[c][k]` right,
+/// `[c][k]` transmission) in 1/(eV s) (transmission dimensionless).
 type ChannelSpectra = (Vec<Vec<f64>>, Vec<Vec<f64>>, Option<Vec<Vec<f64>>>);
 
 fn channel_spectra(sol: &Solution, channels: &Channels) -> Result<ChannelSpectra, SolveError> {
@@ -210,7 +210,7 @@ fn channel_spectra(sol: &Solution, channels: &Channels) -> Result<ChannelSpectra
 }
 
 /// Per cell and channel: electrons, the local Fermi match and the lattice
-/// power, each [channel][cell].
+/// power, each `[channel][cell]`.
 type CellProfiles = (
     Vec<Vec<f64>>,
     Vec<Vec<(f64, FermiLevelStatus)>>,
