@@ -57,6 +57,10 @@ gate_length_nm = 10.0
 from_nm = 4.0
 to_nm = 6.0
 donors_cm3 = 1e18
+
+[[channel]]
+name = "first"
+orbitals = [0]
 "#;
 
 fn base() -> Case {
@@ -104,6 +108,8 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::FloatList => toml::Value::Array(vec![toml::Value::Float(28.0)]),
             // the old name is read, then refused by name
             ValueType::Renamed => toml::Value::String("chain".into()),
+            ValueType::Names => toml::Value::Array(vec![toml::Value::String("up".into())]),
+            ValueType::Indices => toml::Value::Array(vec![toml::Value::Integer(0)]),
         };
         let mut doc: toml::Table = toml::from_str(BASE).unwrap();
         let parts: Vec<&str> = info.name.split('.').collect();

@@ -388,6 +388,12 @@ fn solve_summary_keys_and_documentation_agree() {
     // The electrostatics object comes from a case with [electrostatics].
     solve(&demo("doped-barrier-cooler"), &tmp.path().join("es"));
     paths(&summary(&tmp.path().join("es")), "", &mut found);
+    // a case with channels writes the `channels` object
+    let spin = tmp.path().join("spin");
+    solve(&demo("spin-valve-seebeck"), &spin);
+    let mut spin_paths = Vec::new();
+    paths(&summary(&spin), "", &mut spin_paths);
+    found.extend(spin_paths.into_iter().filter(|p| p.starts_with("channels")));
     found.sort();
     found.dedup();
     let docs = qheat::output::schema::keys::summary_docs();

@@ -5,7 +5,7 @@
 //! ([`keys_markdown`]).
 
 use super::check::{choice_name, choice_names, show};
-use super::sections::device::KindName;
+use super::sections::device::{KindName, SpinMode};
 use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, ResponseSplit};
 use super::spec::DEFAULT_SPIN_DEGENERACY;
 use crate::leads::DecimationParams;
@@ -31,6 +31,10 @@ pub enum ValueType {
     /// A key of earlier versions, refused with a message naming its
     /// replacement.
     Renamed,
+    /// A list of names (`["up", "down"]`).
+    Names,
+    /// A list of whole numbers (`[0, 2]`).
+    Indices,
 }
 
 impl ValueType {
@@ -55,6 +59,8 @@ impl ValueType {
             ValueType::Drop => "`\"leads\"` or `{ linear = { from_nm, to_nm } }`".into(),
             ValueType::FloatList => "array of numbers".into(),
             ValueType::Renamed => "—".into(),
+            ValueType::Names => "list of strings".into(),
+            ValueType::Indices => "list of integers".into(),
         }
     }
 }
@@ -181,6 +187,9 @@ fn split_default() -> &'static str {
 fn profile_default() -> &'static str {
     choice_name(ProfileMode::DEFAULT)
 }
+fn spin_mode_default() -> &'static str {
+    choice_name(SpinMode::Degenerate)
+}
 
 /// Every key, in the order of the file's sections.
 pub static KEYS: &[KeyInfo] = &[
@@ -290,6 +299,20 @@ pub static KEYS: &[KeyInfo] = &[
         "eV",
         Text("none"),
         "ramp: potential at to_nm",
+    ),
+    key(
+        "device.region.#.channels",
+        ValueType::Names,
+        "",
+        Text("all orbitals"),
+        "names of the channels ([[channel]], or \"up\"/\"down\" with explicit spin) whose orbitals the region shifts; the others keep their energy",
+    ),
+    key(
+        "device.spin",
+        ValueType::Choice(choice_names::<SpinMode>),
+        "",
+        Word(spin_mode_default),
+        "\"explicit\" doubles every cell into up and down orbitals (H → diag(H, H)), sets g_s = 1 and defines the channels \"up\" and \"down\"",
     ),
     key(
         "leads.left.fermi_level_ev",
@@ -825,6 +848,20 @@ pub static KEYS: &[KeyInfo] = &[
         Text("uniform value"),
         "acceptor density of the region's cells; replaces the uniform value (a later region wins)",
     ),
+    key(
+        "channel.#.name",
+        ValueType::Text,
+        "",
+        Required,
+        "name of a channel: a group of orbitals of a cell whose results are reported apart",
+    ),
+    key(
+        "channel.#.orbitals",
+        ValueType::Indices,
+        "",
+        Required,
+        "orbitals of a cell the channel holds (indices from 0); channels must not overlap, orbitals left out form the channel \"other\"",
+    ),
 ];
 
 /// Tables of the file and what each holds (for messages about a value of
@@ -859,6 +896,7 @@ pub(crate) const SECTIONS: &[(&str, &str)] = &[
         "electrostatics.region.#",
         "a table with from_nm, to_nm and donors_cm3, acceptors_cm3 and/or permittivity",
     ),
+    ("channel.#", "a table with a name and the orbitals it holds"),
 ];
 
 /// What sits at a place of the file.
@@ -917,7 +955,7 @@ pub fn keys_markdown() -> String {
          Generated from the key table in `src/case/keys.rs`; do not edit by hand. \
          Regenerate with `QHEAT_REGEN=1 cargo test --test case_keys_doc`.\n\n\
          `#` stands for the index of an entry of a list of tables \
-         (`[[device.region]]`, `[[phonon]]`, `[[lattice.region]]`), counted from 0. Numeric keys \
+         (`[[device.region]]`, `[[phonon]]`, `[[lattice.region]]`, `[[channel]]`), counted from 0. Numeric keys \
          (number or integer) are the ones `qheat sweep --vary` and \
          `qheat screen --vary` accept.\n\n\
          | key | type | unit | default | meaning |\n|---|---|---|---|---|\n",
@@ -938,9 +976,9 @@ pub fn keys_markdown() -> String {
 #[cfg(test)]
 mod tests {
     use super::super::raw::{
-        RawBias, RawCase, RawDephasing, RawDevice, RawElectrostatics, RawElectrostaticsRegion,
-        RawGrid, RawLattice, RawLatticeLead, RawLatticeRegion, RawLead, RawLeads, RawPhonon,
-        RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
+        RawBias, RawCase, RawChannel, RawDephasing, RawDevice, RawElectrostatics,
+        RawElectrostaticsRegion, RawGrid, RawLattice, RawLatticeLead, RawLatticeRegion, RawLead,
+        RawLeads, RawPhonon, RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
     };
     use super::*;
     use serde::Deserialize;
@@ -1018,6 +1056,7 @@ mod tests {
                 "electrostatics.region.#",
                 fields_of::<RawElectrostaticsRegion>(),
             ),
+            ("channel.#", fields_of::<RawChannel>()),
         ];
         for (pattern, fields) in &structs {
             assert!(!fields.is_empty(), "no fields recorded for `{pattern}`");

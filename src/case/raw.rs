@@ -28,6 +28,17 @@ pub(crate) struct RawCase {
     pub profile: Opt<RawProfile>,
     pub lattice: Opt<RawLattice>,
     pub electrostatics: Opt<RawElectrostatics>,
+    pub channel: Option<Vec<Spanned<RawChannel>>>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with a name and the orbitals it holds"
+)]
+pub(crate) struct RawChannel {
+    pub name: Opt<String>,
+    pub orbitals: Opt<Vec<i64>>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -45,6 +56,7 @@ pub(crate) struct RawDevice {
     pub coupling_file: Opt<String>,
     pub cells: Opt<i64>,
     pub region: Option<Vec<Spanned<RawRegion>>>,
+    pub spin: Opt<String>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -58,6 +70,9 @@ pub(crate) struct RawRegion {
     pub offset_ev: Opt<f64>,
     pub start_ev: Opt<f64>,
     pub end_ev: Opt<f64>,
+    /// Names of the channels whose orbitals the region shifts (all
+    /// orbitals when left out).
+    pub channels: Opt<Vec<String>>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -289,6 +304,7 @@ const ARRAY_KEYS: &[&str] = &[
     "device.region",
     "lattice.region",
     "electrostatics.region",
+    "channel",
 ];
 
 /// The value at a dotted path and the span of its key.
@@ -463,6 +479,12 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
             DeValue::Integer(i) => int_ok(i),
             _ => false,
         }),
+        (ValueType::Names, DeValue::Array(a)) => {
+            a.iter().all(|x| matches!(x.get_ref(), DeValue::String(_)))
+        }
+        (ValueType::Indices, DeValue::Array(a)) => a
+            .iter()
+            .all(|x| matches!(x.get_ref(), DeValue::Integer(i) if int_ok(i))),
         _ => false,
     }
 }
@@ -474,6 +496,8 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::Int => "an integer",
         ValueType::Bool => "a boolean",
         ValueType::FloatList => "an array of numbers",
+        ValueType::Names => "a list of strings",
+        ValueType::Indices => "a list of whole numbers",
         _ => "a string",
     }
 }

@@ -76,6 +76,9 @@ pub struct Resolved {
     /// `grid.allow_coarse_phonon_snap`: phonon energies may move by more
     /// than 5 % when snapped to the grid.
     pub allow_coarse_phonon_snap: bool,
+    /// The channels of a cell (`[[channel]]` or explicit spin), `None`
+    /// when the case names none: results are then not split by channel.
+    pub channels: Option<crate::device::Channels>,
 }
 
 /// Largest relative change of a phonon energy that the default step
@@ -229,7 +232,7 @@ fn build_device(
     };
     let potential = device::potential_profile(&x, &spec.regions.regions, drop, mu_l, mu_r);
     let bias_only = device::potential_profile(&x, &[], drop, mu_l, mu_r);
-    let (dev, hopping, lead_couplings) = match &d.kind {
+    let (mut dev, hopping, lead_couplings) = match &d.kind {
         DeviceKind::Chain {
             effective_mass,
             band_edge_ev,
@@ -256,12 +259,44 @@ fn build_device(
             (dev, None, Some(ends))
         }
     };
+    let lead_couplings = if d.spin_explicit {
+        dev = device::channels::spin_doubled(&dev);
+        let double = |m: Option<Mat<C64>>| m.map(|m| device::channels::spin_doubled_block(&m));
+        lead_couplings.map(|(a, b)| (double(a), double(b)))
+    } else {
+        lead_couplings
+    };
+    if !spec.regions.selective.is_empty() {
+        let offsets = orbital_offsets(&dev, &spec.regions.selective);
+        device::channels::add_orbital_offsets(&mut dev, &offsets);
+    }
     Ok(Built {
         dev,
         hopping,
         lead_couplings,
         bias_only,
     })
+}
+
+/// The shift of each orbital of each cell by the regions that act on some
+/// orbitals only (eV): cells × orbitals.
+fn orbital_offsets(
+    dev: &Device,
+    selective: &[(device::PotentialRegion, Vec<usize>)],
+) -> Vec<Vec<f64>> {
+    dev.x_nm
+        .iter()
+        .map(|&x| {
+            let mut off = vec![0.0; dev.orbitals];
+            for (region, orbitals) in selective {
+                let v = region.value_at(x);
+                for &o in orbitals {
+                    off[o] += v;
+                }
+            }
+            off
+        })
+        .collect()
 }
 
 /// The lead of one side, from its model.
@@ -317,7 +352,18 @@ fn make_lead(
             };
             let mass = effective_mass.unwrap_or(device_mass);
             let t = crate::units::hopping_ev(mass, spec.device.spacing_nm);
-            Ok(lattice_lead(&spec.device.kind, edge, t))
+            let lead = lattice_lead(&spec.device.kind, edge, t);
+            match lead {
+                // Both spins see the lead's own band (regions that act on
+                // some channels do not reach into a lead with its own band).
+                Lead::Periodic { onsite, hopping } if spec.device.spin_explicit => {
+                    Ok(Lead::Periodic {
+                        onsite: device::channels::spin_doubled_block(&onsite),
+                        hopping: device::channels::spin_doubled_block(&hopping),
+                    })
+                }
+                lead => Ok(lead),
+            }
         }
     }
 }
@@ -737,7 +783,7 @@ fn scattering(
 pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolved, CaseError> {
     let mut remarks = Remarks {
         warnings: spec.warnings.clone(),
-        notes: Vec::new(),
+        notes: spec.notes.clone(),
     };
     let (mu_l, mu_r) = biased_levels(spec);
     let built = build_device(spec, ctx, (mu_l, mu_r))?;
@@ -817,6 +863,16 @@ fn build_lattice(
     let Some(l) = &spec.lattice else {
         return Ok(None);
     };
+    if spec.device.spin_explicit {
+        return Err(ctx.invalid(
+            l.span.clone(),
+            "lattice",
+            "no [lattice] with device.spin = \"explicit\" (the lattice has one site per \
+             spinless orbital; hint: drop device.spin and use spin_degeneracy = 2, or drop \
+             [lattice] and give thermal.phonon_conductance_w_per_k)",
+            "a [lattice] table",
+        ));
+    }
     l.build(&spec.device).map(Some).map_err(|e| {
         ctx.invalid(
             l.span.clone(),
@@ -962,6 +1018,7 @@ fn assemble(
         notes: remarks.notes,
         device_kind: spec.device.kind.name(),
         hopping_ev: built.hopping,
+        channels: spec.channels.channels.clone(),
     })
 }
 

@@ -8,6 +8,7 @@ use super::check::Checker;
 use super::error::{CaseError, ErrorContext};
 use super::raw::RawCase;
 use super::sections::bias::BiasSpec;
+use super::sections::channels::ChannelsSpec;
 use super::sections::device::DeviceSpec;
 use super::sections::electrostatics::ElectrostaticsSpec;
 use super::sections::lattice::LatticeSpec;
@@ -26,6 +27,7 @@ pub(crate) struct CaseSpec {
     pub spin_degeneracy: u8,
     pub device: DeviceSpec,
     pub regions: RegionsSpec,
+    pub channels: ChannelsSpec,
     pub leads: LeadsSpec,
     pub bias: BiasSpec,
     pub phonons: Vec<PhononSpec>,
@@ -38,6 +40,8 @@ pub(crate) struct CaseSpec {
     pub lattice: Option<LatticeSpec>,
     pub electrostatics: Option<ElectrostaticsSpec>,
     pub warnings: Vec<String>,
+    /// Notes gathered while validating (defaults that matter).
+    pub notes: Vec<String>,
 }
 
 /// Validate a raw case, section by section; block files come from (or go
@@ -50,14 +54,13 @@ pub(crate) fn validate(
     let ck = Checker { ctx };
     let mut warnings = Vec::new();
     let name = name(raw, &ck)?;
-    let spin_degeneracy = ck
-        .int(&raw.spin_degeneracy, "spin_degeneracy", "1 or 2", |g| {
-            g == 1 || g == 2
-        })?
-        .unwrap_or(DEFAULT_SPIN_DEGENERACY as usize) as u8;
+    let mut notes = Vec::new();
     let device = DeviceSpec::from_raw(raw, &ck, files)?;
+    let spin_degeneracy = spin_degeneracy(raw, &ck, &device)?;
     let length_nm = device.length_nm();
-    let regions = RegionsSpec::from_raw(raw, &ck, &device, &mut warnings)?;
+    let channels = ChannelsSpec::from_raw(raw, &ck, &device, &mut notes)?;
+    let regions =
+        RegionsSpec::from_raw(raw, &ck, &device, channels.channels.as_ref(), &mut warnings)?;
     let is_blocks = matches!(
         device.kind,
         super::sections::device::DeviceKind::Blocks { .. }
@@ -75,6 +78,7 @@ pub(crate) fn validate(
         spin_degeneracy,
         device,
         regions,
+        channels,
         leads,
         bias,
         phonons,
@@ -87,7 +91,28 @@ pub(crate) fn validate(
         lattice,
         electrostatics,
         warnings,
+        notes,
     })
+}
+
+/// `spin_degeneracy`: 1 or 2, default 2; with explicit spin 1 (a given 2
+/// is refused: the spin is then in the orbitals).
+fn spin_degeneracy(raw: &RawCase, ck: &Checker<'_>, device: &DeviceSpec) -> Result<u8, CaseError> {
+    let given = ck.int(&raw.spin_degeneracy, "spin_degeneracy", "1 or 2", |g| {
+        g == 1 || g == 2
+    })?;
+    if !device.spin_explicit {
+        return Ok(given.unwrap_or(DEFAULT_SPIN_DEGENERACY as usize) as u8);
+    }
+    match given {
+        Some(2) => Err(ck.ctx.invalid(
+            raw.spin_degeneracy.as_ref().map(|s| s.span()),
+            "spin_degeneracy",
+            "1 (or no value) with device.spin = \"explicit\": each orbital then holds one spin",
+            "2 (hint: remove spin_degeneracy, or device.spin)",
+        )),
+        _ => Ok(1),
+    }
 }
 
 /// `name`: required and not blank.

@@ -69,6 +69,24 @@ pub fn print_coefficients(c: &Coefficients) {
     println!("Kelvin/Onsager    residual {:.1e}", c.kelvin_residual);
 }
 
+/// Terminal lines of the channel Seebeck coefficients.
+fn print_channel_seebeck(ch: &qheat::thermo::channels::ChannelSeebeck) {
+    use qheat::thermo::channels::ChannelSeebeck;
+    match ch {
+        ChannelSeebeck::Given(list) => {
+            for c in list {
+                println!(
+                    "  channel {:<8} G = {}  S = {:.3} µV/K",
+                    c.name,
+                    si(c.conductance_s, "S", 5),
+                    c.seebeck_v_per_k * 1e6
+                );
+            }
+        }
+        ChannelSeebeck::NotGiven(why) => println!("  channel Seebeck not given: {why}"),
+    }
+}
+
 /// `qheat coefficients CASE`.
 pub fn coefficients(
     path: &Path,
@@ -84,6 +102,10 @@ pub fn coefficients(
     let options = folder("coefficients", other_files);
     check_folder(&out_dir, &options)?;
     let (c, detail, grid) = case_coefficients(&case, common.quiet)?;
+    let channels = of_case::case_channel_seebeck(&case).map_err(|e| match e {
+        of_case::CoefficientError::Case(e) => Failure::from(e),
+        other => Failure::Solver(format!("channel coefficients: {other}")),
+    })?;
     let phonons = super::lattice::spectrum(&resolved)?;
     let lattice = phonons.map(|s| lattice_summary(&resolved, s, c.temperature_k));
     let summary = CoefficientsSummary {
@@ -93,6 +115,7 @@ pub fn coefficients(
         response: detail,
         energy_grid: grid.clone(),
         lattice: lattice.clone(),
+        channels: channels.clone(),
         warnings: resolved.warnings.clone(),
         notes: resolved.notes.clone(),
         resolved_case: case.to_toml_string(),
@@ -108,6 +131,9 @@ pub fn coefficients(
         println!("{text}");
     } else if !common.quiet {
         print_coefficients(&c);
+        if let Some(ch) = &channels {
+            print_channel_seebeck(ch);
+        }
         println!("energy grid       {}", grid_line(&grid));
         if let Some(l) = &lattice {
             super::lattice::print_lattice(l);

@@ -114,6 +114,9 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
             );
         }
     }
+    if let Some(c) = &summary.channels {
+        print_channels(c);
+    }
     print_drops(r);
     print_fermi_level_flags(&summary.local_fermi_level);
     if let Some(l) = &summary.lattice {
@@ -137,6 +140,26 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     );
     println!("results           {}", out.display());
 }
+/// Terminal lines of the results split by channel.
+fn print_channels(c: &qheat::output::schema::summary::ChannelSummary) {
+    for (i, name) in c.names.iter().enumerate() {
+        println!(
+            "  channel {name:<8} I = {}  heat current left {}  right {}  lattice {}",
+            si(c.current_left_a[i], "A", 4),
+            si(c.heat_current_left_w[i], "W", 4),
+            si(c.heat_current_right_w[i], "W", 4),
+            si(c.lattice_power_w[i], "W", 3)
+        );
+    }
+    if let Some(p) = c.polarization {
+        println!(
+            "  polarisation      (I_{a} − I_{b})/(I_{a} + I_{b}) = {p:.4}",
+            a = c.names[0],
+            b = c.names[1]
+        );
+    }
+}
+
 /// Terminal lines of the joint electron–lattice loop.
 fn print_self_heating(h: &SelfHeatingSummary) {
     println!(
@@ -281,13 +304,18 @@ pub fn solve(
             )));
         }
     };
-    let o = observe_with(
+    let mut o = observe_with(
         &sol,
         &ObserveOptions {
             electron_temperature: resolved.fit_electron_temperature,
             movers: true,
         },
     );
+    if let Some(set) = &resolved.channels {
+        let split = qheat::observables::channels::observe_channels(&sol, set)
+            .map_err(|e| Failure::Solver(format!("splitting the results by channel: {e}")))?;
+        o.channels = Some(split);
+    }
     let mut summary = solve_summary(&sol, &o, &info);
     summary.self_heating = heat.as_ref().map(|h| self_heating_summary(&sol, &o, h));
     summary.electrostatics = es_run.as_ref().map(|r| electrostatics_summary(&sol, r));

@@ -8,6 +8,9 @@
 use crate::C64;
 use faer::Mat;
 
+pub mod channels;
+pub use channels::{Channel, ChannelError, Channels, OTHER_CHANNEL};
+
 /// A block-tridiagonal device Hamiltonian plus the geometry needed to report
 /// results along the transport direction.
 #[derive(Clone, Debug)]

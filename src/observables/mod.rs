@@ -16,8 +16,12 @@
 //! - the levels µ₊, µ₋ to which the right- and the left-moving electrons
 //!   are filled, where the device is locally uniform.
 //!
+//! - every one of these split by channel (a named group of the orbitals of
+//!   a cell), in [`channels`].
+//!
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
+pub mod channels;
 mod fermi_level;
 mod ledger;
 mod movers;
@@ -142,6 +146,10 @@ pub struct Observables {
     pub sites: SiteProfile,
     /// Energy-resolved flows.
     pub spectrum: Spectrum,
+    /// Results split by channel, when the case names channels (filled by
+    /// [`channels::observe_channels`]; `None` from [`observe`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub channels: Option<channels::ChannelObservables>,
 }
 
 /// g_s/h in 1/(eV s).
@@ -292,6 +300,7 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         ledger,
         sites,
         spectrum,
+        channels: None,
     }
 }
 

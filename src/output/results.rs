@@ -1,11 +1,13 @@
 //! The files of a solved operating point.
 
 use super::schema::summary::{
-    CellValue, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint, PhononInfo,
+    CellValue, ChannelSummary, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint,
+    PhononInfo,
     Program, SolveResults, SolveSummary, to_text,
 };
 use super::schema::tables::{self, SolvePoint};
 use super::{OutputError, Staging, npy_bytes};
+use crate::observables::channels::ChannelObservables;
 use crate::observables::{
     FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables, POWER_SCALE,
     bond_current_map, occupation_map,
@@ -201,6 +203,21 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         warnings: info.warnings.to_vec(),
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),
+        channels: o.channels.as_ref().map(channel_summary),
+    }
+}
+
+/// The `channels` object of summary.json.
+pub fn channel_summary(c: &ChannelObservables) -> ChannelSummary {
+    ChannelSummary {
+        names: c.names.clone(),
+        orbitals: c.orbitals.clone(),
+        current_left_a: c.current_left_a.clone(),
+        current_right_a: c.current_right_a.clone(),
+        heat_current_left_w: c.heat_current_left_w.clone(),
+        heat_current_right_w: c.heat_current_right_w.clone(),
+        lattice_power_w: c.lattice_power_w.clone(),
+        polarization: c.polarization,
     }
 }
 
@@ -240,6 +257,11 @@ pub fn write_solve_files(
     let point = SolvePoint { sol, o };
     for table in [tables::sites(), tables::spectrum(), tables::convergence()] {
         stage.write(table.file, &table.csv(&point))?;
+    }
+    if o.channels.is_some() {
+        for table in [tables::channel_sites(), tables::channel_spectrum()] {
+            stage.write(table.file, &table.csv(&point))?;
+        }
     }
     let map = bond_current_map(sol);
     stage.write(

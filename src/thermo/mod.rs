@@ -12,6 +12,7 @@
 //! central finite differences through converged Born solutions, see
 //! [`response`].
 
+pub mod channels;
 pub mod common_grid;
 pub mod cooler;
 pub mod generator;

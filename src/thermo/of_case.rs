@@ -133,3 +133,21 @@ pub fn case_coefficients(
         grid,
     })
 }
+
+/// Seebeck coefficient of each channel of a case around its reference
+/// point (see [`super::channels`]); `None` when the case names no channels.
+pub fn case_channel_seebeck(
+    case: &Case,
+) -> Result<Option<super::channels::ChannelSeebeck>, CoefficientError> {
+    let resolved = case.resolve()?;
+    let Some(channels) = &resolved.channels else {
+        return Ok(None);
+    };
+    let (mu, t) = reference_point(case)?;
+    let eq = case_at(
+        case,
+        &operating_point(mu, t, 0.0, 0.0, ResponseSplit::Symmetric),
+    )?;
+    let problem = eq.resolve()?.problem;
+    Ok(Some(super::channels::channel_seebeck(&problem, channels)?))
+}

@@ -33,6 +33,22 @@ impl Choice for KindName {
     ];
 }
 
+/// The words of `device.spin`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum SpinMode {
+    /// Spin is a degeneracy factor g_s on spinless orbitals.
+    Degenerate,
+    /// Every cell is doubled into up and down orbitals, g_s = 1.
+    Explicit,
+}
+
+impl Choice for SpinMode {
+    const CHOICES: &'static [(&'static str, Self)] = &[
+        ("degenerate", SpinMode::Degenerate),
+        ("explicit", SpinMode::Explicit),
+    ];
+}
+
 /// The device kind with its own settings.
 #[derive(Clone, Debug)]
 pub(crate) enum DeviceKind {
@@ -69,6 +85,8 @@ pub(crate) struct DeviceSpec {
     pub kind: DeviceKind,
     pub spacing_nm: f64,
     pub cells: usize,
+    /// `device.spin = "explicit"`: every cell doubled into up and down.
+    pub spin_explicit: bool,
     /// Span of the [device] table, for errors about the device as a whole.
     pub span: Option<Range<usize>>,
 }
@@ -77,6 +95,16 @@ impl DeviceSpec {
     /// Device length N·a in nm.
     pub fn length_nm(&self) -> f64 {
         self.cells as f64 * self.spacing_nm
+    }
+
+    /// Orbitals per cell of the built device (spin doubling included).
+    pub fn orbitals(&self) -> usize {
+        let b = match &self.kind {
+            DeviceKind::Chain { .. } => 1,
+            DeviceKind::Strip { width, .. } => *width,
+            DeviceKind::Blocks { onsite, .. } => onsite.first().map_or(0, |m| m.nrows()),
+        };
+        if self.spin_explicit { 2 * b } else { b }
     }
 
     /// Validate `[device]`; block files come from (or go into) `files`.
@@ -111,10 +139,13 @@ impl DeviceSpec {
             KindName::Blocks => blocks(dev, ck, &span, files)?,
             KindName::Chain | KindName::Strip => lattice(dev, ck, &span, kind, spacing_nm)?,
         };
+        let spin_explicit =
+            ck.choice::<SpinMode>(&dev.spin, "device.spin")? == Some(SpinMode::Explicit);
         Ok(Self {
             kind,
             spacing_nm,
             cells,
+            spin_explicit,
             span,
         })
     }

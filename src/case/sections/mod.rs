@@ -2,6 +2,7 @@
 //! raw table, owns its defaults and writes its own messages.
 
 pub(crate) mod bias;
+pub(crate) mod channels;
 pub(crate) mod device;
 pub(crate) mod electrostatics;
 pub(crate) mod lattice;

@@ -739,6 +739,30 @@ fn draw_flows(
     Ok(())
 }
 
+/// The transmission of each channel, dashed, one colour per channel.
+fn draw_channel_transmissions(
+    chart: &mut Chart<'_, '_>,
+    energies: &[f64],
+    channel_t: &Option<Vec<(&String, &Vec<f64>)>>,
+    x: (f64, f64),
+    ef: f64,
+) -> Result<(), DrawError> {
+    for (i, (_, tc)) in channel_t.iter().flatten().enumerate() {
+        let colour = SERIES[i % SERIES.len()];
+        chart.draw_series(DashedLineSeries::new(
+            energies
+                .iter()
+                .zip(tc.iter())
+                .filter(|(en, _)| **en * ef >= x.0 && **en * ef <= x.1)
+                .map(|(en, tv)| (en * ef, *tv)),
+            6,
+            4,
+            colour.stroke_width(2),
+        ))?;
+    }
+    Ok(())
+}
+
 /// spectrum.svg: energy-resolved flows into the device from each lead and
 /// from the scattering bath, the net flow through the device coloured by
 /// its direction, the lead Fermi windows; transmission below when the
@@ -768,7 +792,15 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
     // Room at the top for the two window bars.
     let y = padded(r.0 * ff, r.1 * ff, 0.06);
     let y = (y.0, y.1 + 0.2 * (y.1 - y.0));
-    let entries = spectrum_entries(coherent);
+    let mut entries = spectrum_entries(coherent);
+    let channel_t = o.channels.as_ref().and_then(|c| {
+        let t = c.transmission.as_ref()?;
+        Some(c.names.iter().zip(t).collect::<Vec<_>>())
+    });
+    for (i, (name, _)) in channel_t.iter().flatten().enumerate() {
+        let colour = SERIES[i % SERIES.len()];
+        entries.push((Mark::Line(colour, true), format!("T of channel {name}")));
+    }
     let left = (MARGIN_LEFT + Y_AREA) as i32;
     let lh = legend_height(&entries, left, WIDTH as i32);
     let h_flow = 400u32;
@@ -801,6 +833,7 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
                     .map(|(en, tv)| (en * ef, *tv)),
                 TRANSMISSION.stroke_width(2),
             ))?;
+            draw_channel_transmissions(&mut chart, &sp.energy_ev, &channel_t, x, ef)?;
         }
         Ok(())
     })

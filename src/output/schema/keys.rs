@@ -908,8 +908,75 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "movers.", &MOVERS);
     keys(&mut f, "electrostatics.", &ELECTROSTATICS);
     keys(&mut f, "", &RUN);
+    keys(&mut f, "channels.", &CHANNELS);
     f
 }
+
+/// The `channels` object of coefficients (only when the case names
+/// channels): either `given` or `not_given`.
+const CHANNEL_SEEBECK: [Key; 5] = [
+    (
+        "given[]",
+        "-",
+        "one entry per channel when the channels do not mix (no element of H, the leads or the scattering couples two of them) and transport is coherent; each channel is then a conductor of its own in parallel with the others, so coefficients.seebeck_v_per_k = Σ G_c S_c / Σ G_c",
+    ),
+    ("given[].name", "-", "channel name"),
+    (
+        "given[].conductance_s",
+        "S",
+        "conductance of the channel from its own transmission, (g_s e²/h) L0_c",
+    ),
+    (
+        "given[].seebeck_v_per_k",
+        "V/K",
+        "Seebeck coefficient of the channel, −L1_c/(e T L0_c)",
+    ),
+    (
+        "not_given",
+        "-",
+        "why no channel coefficients are given: the first element that couples two channels, or scattering in the device",
+    ),
+];
+
+/// The `channels` object of a solve (only when the case names channels).
+const CHANNELS: [Key; 8] = [
+    (
+        "names",
+        "-",
+        "channel names: the [[channel]] entries in order, then \"other\" for the orbitals none holds; \"up\", \"down\" with explicit spin. Every list below has one entry per name; the `channel` column of channel_sites.csv and channel_spectrum.csv indexes this list",
+    ),
+    ("orbitals", "1", "orbitals of a cell each channel holds"),
+    (
+        "current_left_a",
+        "A",
+        "current out of the left contact into the device carried in each channel, −e∫ Re Tr[P_c(Σ^in_1 A − Γ_1 G^n)] dE g_s/h on the first cell; the entries add up to results.current_left_a",
+    ),
+    (
+        "current_right_a",
+        "A",
+        "the same out of the right contact (last cell); adds up to results.current_right_a",
+    ),
+    (
+        "heat_current_left_w",
+        "W",
+        "heat current out of the left contact per channel, ∫(E − µ_1) j_1,c dE; adds up to results.heat_current_left_w",
+    ),
+    (
+        "heat_current_right_w",
+        "W",
+        "heat current out of the right contact per channel; adds up to results.heat_current_right_w",
+    ),
+    (
+        "lattice_power_w",
+        "W",
+        "power handed to the lattice on the orbitals of each channel, all cells; adds up to results.lattice_power_w",
+    ),
+    (
+        "polarization",
+        "1",
+        "(I_a − I_b)/(I_a + I_b) of the left-contact currents when there are exactly two channels (a = the first), else null; NaN (null) at zero current",
+    ),
+];
 
 fn grid_keys() -> Vec<FieldDoc> {
     let mut f = Vec::new();
@@ -964,6 +1031,7 @@ pub fn summary_docs() -> Vec<FileDoc> {
     keys(&mut coefficients, "energy_grid.", &COMMON_GRID);
     keys(&mut coefficients, "lattice.", &LATTICE);
     keys(&mut coefficients, "", &RUN);
+    keys(&mut coefficients, "channels.", &CHANNEL_SEEBECK);
     vec![
         doc(
             "summary.json of solve",

@@ -193,6 +193,24 @@ pub struct SolveSummary {
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub channels: Option<ChannelSummary>,
+}
+
+/// The `channels` object of summary.json when the case names channels:
+/// one entry per channel in each list, in the order of `names`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct ChannelSummary {
+    pub names: Vec<String>,
+    pub orbitals: Vec<Vec<usize>>,
+    pub current_left_a: Vec<f64>,
+    pub current_right_a: Vec<f64>,
+    pub heat_current_left_w: Vec<f64>,
+    pub heat_current_right_w: Vec<f64>,
+    pub lattice_power_w: Vec<f64>,
+    /// (I_a − I_b)/(I_a + I_b) with exactly two channels, else null.
+    pub polarization: Option<f64>,
 }
 
 /// The `movers` object of summary.json: the range of the right- and
@@ -293,6 +311,8 @@ pub struct CoefficientsSummary {
     pub energy_grid: crate::thermo::common_grid::CommonGrid,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub lattice: Option<LatticeSummary>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub channels: Option<crate::thermo::channels::ChannelSeebeck>,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
     pub resolved_case: String,

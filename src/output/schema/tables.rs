@@ -233,6 +233,136 @@ pub fn spectrum<'a>() -> Table<SolvePoint<'a>> {
     }
 }
 
+/// The channel results of a solve point (panics without them: the
+/// channel tables are written only when the case names channels).
+fn ch<'p>(p: &'p SolvePoint<'_>) -> &'p crate::observables::channels::ChannelObservables {
+    p.o.channels.as_ref().expect("channel results")
+}
+
+/// Rows of a long table over (outer, channel): outer-major.
+fn channel_rows(p: &SolvePoint<'_>, outer: usize) -> usize {
+    p.o.channels.as_ref().map_or(0, |c| c.names.len() * outer)
+}
+
+/// channel_sites.csv: one row per cell and channel (only when the case
+/// names channels).
+pub fn channel_sites<'a>() -> Table<SolvePoint<'a>> {
+    Table {
+        file: "channel_sites.csv",
+        written_by: "`qheat solve` when the case names channels",
+        rows: "cell and channel: cell 0 with every channel, then cell 1, …",
+        len: |p| channel_rows(p, p.o.sites.x_nm.len()),
+        columns: vec![
+            col("x_nm", "nm", "position of the cell", |p, r| {
+                Cell::Num(p.o.sites.x_nm[r / ch(p).names.len()])
+            }),
+            col(
+                "channel",
+                "1",
+                "channel index into channels.names of summary.json",
+                |p, r| Cell::Int((r % ch(p).names.len()) as i64),
+            ),
+            col(
+                "electrons",
+                "1",
+                "electrons in the cell on the channel's orbitals, g_s Σ G^n ΔE/2π (spin included when g_s = 2); the channels of a cell add up to electron_density_per_nm × spacing of sites.csv",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(ch(p).electrons[r % n][r / n])
+                },
+            ),
+            col(
+                "fermi_level_local_ev",
+                "eV",
+                "the channel's own local Fermi level: its equilibrium occupation of the channel's states holds the channel's electrons; NaN where fermi_level_status is not 0",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(ch(p).fermi_level_ev[r % n][r / n])
+                },
+            ),
+            col(
+                "fermi_level_status",
+                "1",
+                "how the channel's density match ended, coded as in sites.csv",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Int(ch(p).fermi_level_status[r % n][r / n].code() as i64)
+                },
+            ),
+            col(
+                "lattice_power_w",
+                "W",
+                "power the electrons hand to the lattice on the channel's orbitals in the cell; the channels of a cell add up to lattice_power_w of sites.csv",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(ch(p).cell_lattice_power_w[r % n][r / n])
+                },
+            ),
+        ],
+    }
+}
+
+/// channel_spectrum.csv: one row per energy and channel (only when the
+/// case names channels).
+pub fn channel_spectrum<'a>() -> Table<SolvePoint<'a>> {
+    Table {
+        file: "channel_spectrum.csv",
+        written_by: "`qheat solve` when the case names channels",
+        rows: "energy and channel: the lowest energy with every channel, then the next, …",
+        len: |p| channel_rows(p, p.o.spectrum.energy_ev.len()),
+        columns: vec![
+            col("energy_ev", "eV", "energy of the grid point", |p, r| {
+                Cell::Num(p.o.spectrum.energy_ev[r / ch(p).names.len()])
+            }),
+            col(
+                "channel",
+                "1",
+                "channel index into channels.names of summary.json",
+                |p, r| Cell::Int((r % ch(p).names.len()) as i64),
+            ),
+            col(
+                "electron_flow_left_a_per_ev",
+                "A/eV",
+                "electron flow per unit energy out of the left contact into the device in the channel, e·(g_s/h) Re Tr[P_c(Σ^in_1 A − Γ_1 G^n)] on the first cell; the channels add up to the column of spectrum.csv",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(ELEMENTARY_CHARGE * ch(p).flow_left[r % n][r / n])
+                },
+            ),
+            col(
+                "electron_flow_right_a_per_ev",
+                "A/eV",
+                "the same out of the right contact (last cell)",
+                |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(ELEMENTARY_CHARGE * ch(p).flow_right[r % n][r / n])
+                },
+            ),
+            Column {
+                name: "transmission",
+                unit: "1",
+                meaning: "coherent transmission of the channel, projected at the receiving (right) \
+                          lead: Re Tr[P_c Γ_2 G^r_N1 Γ_1 G^a_1N], the part of the flux from the left \
+                          lead that arrives in the channel; the channels add up to T(E)",
+                only_when: Some(("without scattering", |p| {
+                    p.o.channels
+                        .as_ref()
+                        .is_some_and(|c| c.transmission.is_some())
+                })),
+                value: |p, r| {
+                    let n = ch(p).names.len();
+                    Cell::Num(
+                        ch(p)
+                            .transmission
+                            .as_ref()
+                            .map_or(f64::NAN, |t| t[r % n][r / n]),
+                    )
+                },
+            },
+        ],
+    }
+}
+
 /// convergence.csv: one row per Born iteration.
 pub fn convergence<'a>() -> Table<SolvePoint<'a>> {
     Table {
@@ -676,6 +806,8 @@ pub fn table_docs() -> Vec<FileDoc> {
         cooler().doc(),
         phonon_spectrum().doc(),
     ];
+    docs.push(channel_sites().doc());
+    docs.push(channel_spectrum().doc());
     docs.push(grid_doc(
         "sweep.csv",
         "`qheat sweep`",
