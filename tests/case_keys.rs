@@ -87,6 +87,7 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::Float => toml::Value::Float(0.5),
             ValueType::Int => toml::Value::Integer(1),
             ValueType::Bool => toml::Value::Boolean(true),
+            ValueType::Numbers => toml::Value::Array(vec![toml::Value::Float(0.5)]),
             ValueType::Text => toml::Value::String("x.csv".into()),
             ValueType::Choice(names) => toml::Value::String(names()[0].into()),
             ValueType::Drop => toml::Value::String("leads".into()),

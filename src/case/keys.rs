@@ -20,6 +20,8 @@ pub enum ValueType {
     Int,
     /// `true` or `false`.
     Bool,
+    /// An array of numbers.
+    Numbers,
     /// Free text (a name, a file path).
     Text,
     /// One word of a closed set.
@@ -44,6 +46,7 @@ impl ValueType {
             ValueType::Float => "number".into(),
             ValueType::Int => "integer".into(),
             ValueType::Bool => "boolean".into(),
+            ValueType::Numbers => "array of numbers".into(),
             ValueType::Text => "string".into(),
             ValueType::Choice(names) => names()
                 .iter()
@@ -113,7 +116,7 @@ const fn key(
 }
 
 use DefaultValue::{Number, Required, Text, Word};
-use ValueType::{Bool, Drop, Float, Int, Renamed};
+use ValueType::{Bool, Drop, Float, Int, Numbers, Renamed};
 
 fn spin_default() -> f64 {
     DEFAULT_SPIN_DEGENERACY as f64
@@ -379,8 +382,15 @@ pub static KEYS: &[KeyInfo] = &[
         "phonon.#.coupling_ev2",
         Float,
         "eV²",
-        Required,
-        "electron-phonon coupling D",
+        Text("required unless coupling_per_orbital_ev2 is given"),
+        "electron-phonon coupling D, the same on every orbital",
+    ),
+    key(
+        "phonon.#.coupling_per_orbital_ev2",
+        Numbers,
+        "eV²",
+        Text("none"),
+        "one coupling D per orbital of a cell (b values ≥ 0), in place of coupling_ev2",
     ),
     key(
         "phonon.#.from_nm",
@@ -407,8 +417,15 @@ pub static KEYS: &[KeyInfo] = &[
         "dephasing.strength_ev2",
         Float,
         "eV²",
-        Required,
-        "elastic dephasing strength (a [dephasing] table needs it)",
+        Text("required unless strength_per_orbital_ev2 is given"),
+        "elastic dephasing strength, the same on every orbital",
+    ),
+    key(
+        "dephasing.strength_per_orbital_ev2",
+        Numbers,
+        "eV²",
+        Text("none"),
+        "one dephasing strength per orbital of a cell (b values ≥ 0), in place of strength_ev2",
     ),
     key(
         "dephasing.from_nm",

@@ -93,6 +93,8 @@ pub(crate) struct RawBias {
 pub(crate) struct RawPhonon {
     pub energy_ev: Opt<f64>,
     pub coupling_ev2: Opt<f64>,
+    /// One coupling per orbital of a cell (eV²), read by hand.
+    pub coupling_per_orbital_ev2: Opt<toml::Value>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
     pub bath_temperature_k: Opt<f64>,
@@ -102,6 +104,8 @@ pub(crate) struct RawPhonon {
 #[serde(deny_unknown_fields, expecting = "a table of dephasing settings")]
 pub(crate) struct RawDephasing {
     pub strength_ev2: Opt<f64>,
+    /// One strength per orbital of a cell (eV²), read by hand.
+    pub strength_per_orbital_ev2: Opt<toml::Value>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
 }
@@ -414,6 +418,9 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
         (ValueType::Bool, DeValue::Boolean(_)) => true,
         (ValueType::Text | ValueType::Choice(_), DeValue::String(_)) => true,
         (ValueType::Drop | ValueType::Renamed, _) => true,
+        (ValueType::Numbers, DeValue::Array(items)) => {
+            items.iter().all(|x| fits(x.get_ref(), ValueType::Float))
+        }
         _ => false,
     }
 }
@@ -424,6 +431,7 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::Float => "a number",
         ValueType::Int => "an integer",
         ValueType::Bool => "a boolean",
+        ValueType::Numbers => "an array of numbers",
         _ => "a string",
     }
 }

@@ -5,7 +5,7 @@ use super::check::MAX_ENERGY_EV;
 use super::error::{CaseError, CaseErrorKind, ErrorContext};
 use super::sections::device::DeviceKind;
 use super::sections::leads::LeadModel;
-use super::sections::scattering::PhononSpec;
+use super::sections::scattering::{CouplingSpec, PhononSpec};
 use super::sections::settings::{HermitianPart, ProfileMode, ResponseSplit};
 use super::spec::CaseSpec;
 use crate::C64;
@@ -129,15 +129,41 @@ fn identity_times(b: usize, g: f64) -> Mat<C64> {
 }
 
 /// Per-site vector (N·b): `value` on the orbitals of cells with from ≤ x < to.
-fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, value: f64) -> Vec<f64> {
+fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, per_orbital: &[f64]) -> Vec<f64> {
     let b = dev.orbitals;
     let mut v = vec![0.0; dev.cells() * b];
     for (i, &x) in dev.x_nm.iter().enumerate() {
         if x >= from_nm && x < to_nm {
-            v[i * b..(i + 1) * b].fill(value);
+            v[i * b..(i + 1) * b].copy_from_slice(per_orbital);
         }
     }
     v
+}
+
+/// The strength of a scattering mechanism on every orbital site of the
+/// cells in [from_nm, to_nm): a uniform value on each orbital, or a list
+/// that must hold one value per orbital of a cell.
+fn coupling_sites(
+    ctx: &ErrorContext<'_>,
+    dev: &Device,
+    (from_nm, to_nm): (f64, f64),
+    coupling: &CouplingSpec,
+) -> Result<Vec<f64>, CaseError> {
+    let b = dev.orbitals;
+    match coupling {
+        CouplingSpec::Uniform(d) => Ok(site_vector(dev, from_nm, to_nm, &vec![*d; b])),
+        CouplingSpec::PerOrbital { values, key, span } if values.len() != b => Err(ctx.invalid(
+            span.clone(),
+            key,
+            &format!("one value per orbital of a cell: {b} (the device's orbitals per cell)"),
+            format!(
+                "{} values (hint: list a strength for each of the {b} orbitals, 0 where \
+                 the orbital does not couple)",
+                values.len()
+            ),
+        )),
+        CouplingSpec::PerOrbital { values, .. } => Ok(site_vector(dev, from_nm, to_nm, values)),
+    }
 }
 
 fn device_error(ctx: &ErrorContext<'_>, spec: &CaseSpec, e: DeviceError) -> CaseError {
@@ -571,8 +597,8 @@ fn phonon_mode(
         ));
     }
     check_snap(spec, ctx, (i, p), (steps, energy), grid.step_ev, remarks)?;
-    let coupling = site_vector(dev, p.from_nm, p.to_nm, p.coupling_ev2);
-    if coupling.iter().all(|&d| d == 0.0) && p.coupling_ev2 > 0.0 {
+    let coupling = coupling_sites(ctx, dev, (p.from_nm, p.to_nm), &p.coupling)?;
+    if coupling.iter().all(|&d| d == 0.0) && !p.coupling.is_zero() {
         remarks.warnings.push(format!(
             "phonon.{i} region [{}, {}) nm covers no cell",
             p.from_nm, p.to_nm
@@ -655,7 +681,9 @@ fn scattering(
         .map(|(ip, &s)| phonon_mode(spec, ctx, ip, s, dev, grid, remarks))
         .collect::<Result<Vec<_>, _>>()?;
     let dephasing_ev2 = match &spec.dephasing {
-        Some(d) if d.strength_ev2 > 0.0 => site_vector(dev, d.from_nm, d.to_nm, d.strength_ev2),
+        Some(d) if !d.strength.is_zero() => {
+            coupling_sites(ctx, dev, (d.from_nm, d.to_nm), &d.strength)?
+        }
         _ => Vec::new(),
     };
     let hermitian_part = spec.solver.hermitian_part == HermitianPart::Include;
