@@ -609,6 +609,7 @@ fn phonon_mode(
         energy_ev: energy,
         steps,
         coupling_ev2: coupling,
+        coupling_matrices: Default::default(),
         bath_temperature_k: p.bath_temperature_k,
     })
 }
@@ -701,6 +702,7 @@ fn scattering(
     }
     Ok(Scattering {
         dephasing_ev2,
+        dephasing_matrices: Default::default(),
         phonons,
         hermitian_part,
     })
