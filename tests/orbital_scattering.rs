@@ -538,3 +538,40 @@ fn a_warm_start_of_the_other_layout_is_refused() {
         .to_string();
     assert!(e.contains("warm start") && e.contains("2×2 blocks"), "{e}");
 }
+
+/// The demo's coupling matrices file reaches every cell of the region as
+/// one source, and its phonon-assisted interband current flows; with the
+/// diagonal file of the same strength no electron changes band and the
+/// current vanishes to rounding.
+#[test]
+fn the_demo_junction_carries_only_interband_current() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo");
+    let case = Case::load(&dir.join("interband-junction.toml")).unwrap();
+    let r = case.resolve().unwrap();
+    let m = &r.problem.scattering.phonons[0].coupling_matrices;
+    assert_eq!(m.per_cell.len(), 12);
+    assert!(m.per_cell.iter().all(|c| c.len() == 1));
+    assert_eq!(m.per_cell[5][0][(0, 1)], C64::new(0.03, 0.0));
+    let inter = solve(&r);
+    let text = std::fs::read_to_string(dir.join("interband-junction.toml"))
+        .unwrap()
+        .replace("phonon-interband.csv", "phonon-diagonal.csv");
+    let diag = Case::parse(&text, "diag.toml", &dir)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert_eq!(
+        diag.problem.scattering.phonons[0]
+            .coupling_matrices
+            .per_cell[0]
+            .len(),
+        2
+    );
+    let within = solve(&diag);
+    let (i1, i0) = (current(&inter), current(&within));
+    assert!(i1.abs() > 1e-9, "interband current {i1}");
+    assert!(
+        i0.abs() < 1e-10 * i1.abs(),
+        "diagonal coupling moved {i0} A"
+    );
+}

@@ -393,6 +393,15 @@ pub static KEYS: &[KeyInfo] = &[
         "one coupling D per orbital of a cell (b values ≥ 0), in place of coupling_ev2",
     ),
     key(
+        "phonon.#.coupling_matrices_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks file (.npy or .csv, shape (K, b, b)) of K Hermitian coupling matrices M, \
+         each an independent source adding M G M in every cell of the region (interband, \
+         intervalley, spin-flip); in place of coupling_ev2",
+    ),
+    key(
         "phonon.#.from_nm",
         Float,
         "nm",
@@ -426,6 +435,14 @@ pub static KEYS: &[KeyInfo] = &[
         "eV²",
         Text("none"),
         "one dephasing strength per orbital of a cell (b values ≥ 0), in place of strength_ev2",
+    ),
+    key(
+        "dephasing.coupling_matrices_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks file (.npy or .csv, shape (K, b, b)) of K Hermitian coupling matrices M, \
+         each adding M G M in every cell of the region; in place of strength_ev2",
     ),
     key(
         "dephasing.from_nm",

@@ -95,6 +95,8 @@ pub(crate) struct RawPhonon {
     pub coupling_ev2: Opt<f64>,
     /// One coupling per orbital of a cell (eV²), read by hand.
     pub coupling_per_orbital_ev2: Opt<toml::Value>,
+    /// A blocks file of coupling matrices (eV), one source each.
+    pub coupling_matrices_file: Opt<String>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
     pub bath_temperature_k: Opt<f64>,
@@ -106,6 +108,8 @@ pub(crate) struct RawDephasing {
     pub strength_ev2: Opt<f64>,
     /// One strength per orbital of a cell (eV²), read by hand.
     pub strength_per_orbital_ev2: Opt<toml::Value>,
+    /// A blocks file of coupling matrices (eV), one source each.
+    pub coupling_matrices_file: Opt<String>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
 }

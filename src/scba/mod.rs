@@ -56,6 +56,13 @@
 //! - w: the per-thread RGF workspace, 48·N·b² + 128·b² bytes for b > 1 and
 //!   24·N for b = 1.
 //!
+//! With coupling matrices (Σ0 on b × b blocks, see
+//! [`crate::scattering::GreenBlocks`]) Σ0, its image and the kept
+//! diagonal blocks of G^r and G^n take N·b² numbers per energy instead of
+//! S: bytes ≈ E·N·b²·(48 + 32 + 24·A + 16·h) + 24·E·S + the same fixed
+//! terms, A counted with P = 3 (the real part of the off-diagonal Σ^r_0 is
+//! always mixed).
+//!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
 mod mixing;

@@ -1,8 +1,12 @@
 //! `[[phonon]]` (Einstein modes) and `[dephasing]` (elastic dephasing).
 
+use super::super::blocks_file::BlockFiles;
 use super::super::check::{Checker, MAX_ENERGY_EV, show};
 use super::super::error::CaseError;
 use super::super::raw::{Opt, RawCase, RawPhonon};
+use super::device::read_named;
+use crate::C64;
+use faer::Mat;
 use std::ops::Range;
 use toml::Spanned;
 
@@ -23,6 +27,15 @@ pub(crate) enum CouplingSpec {
         key: String,
         span: Option<Range<usize>>,
     },
+    /// Hermitian coupling matrices (eV) from a blocks file, each an
+    /// independent source in every cell of the region; their size is
+    /// checked against the device later (a .csv file's is a lower bound).
+    Matrices {
+        matrices: Vec<Mat<C64>>,
+        from_csv: bool,
+        key: String,
+        span: Option<Range<usize>>,
+    },
 }
 
 impl CouplingSpec {
@@ -31,6 +44,9 @@ impl CouplingSpec {
         match self {
             CouplingSpec::Uniform(d) => *d == 0.0,
             CouplingSpec::PerOrbital { values, .. } => values.iter().all(|&d| d == 0.0),
+            CouplingSpec::Matrices { matrices, .. } => matrices.iter().all(|m| {
+                (0..m.nrows()).all(|r| (0..m.ncols()).all(|c| m[(r, c)] == C64::new(0.0, 0.0)))
+            }),
         }
     }
 }
@@ -54,13 +70,22 @@ impl PhononSpec {
         ck: &Checker<'_>,
         length_nm: f64,
         mean_lead_t: f64,
+        files: &mut BlockFiles,
     ) -> Result<Vec<Self>, CaseError> {
-        raw.phonon
-            .iter()
-            .flatten()
-            .enumerate()
-            .map(|(i, p)| Self::one(p, &format!("phonon.{i}"), ck, length_nm, mean_lead_t))
-            .collect()
+        let mut out = Vec::new();
+        for (i, p) in raw.phonon.iter().flatten().enumerate() {
+            let prefix = format!("phonon.{i}");
+            let mut mode = Self::one(p, &prefix, ck, length_nm, mean_lead_t)?;
+            let key = format!("{prefix}.coupling_matrices_file");
+            let given = p.get_ref().coupling_ev2.is_some()
+                || p.get_ref().coupling_per_orbital_ev2.is_some();
+            if let Some(m) = matrices(&p.get_ref().coupling_matrices_file, &key, given, ck, files)?
+            {
+                mode.coupling = m;
+            }
+            out.push(mode);
+        }
+        Ok(out)
     }
 
     fn one(
@@ -89,16 +114,21 @@ impl PhononSpec {
                 format!("{} eV", show(e.value)),
             ));
         }
-        let coupling = coupling(
-            ck,
-            (&p.coupling_ev2, &p.coupling_per_orbital_ev2),
-            (
-                &format!("{prefix}.coupling_ev2"),
-                &format!("{prefix}.coupling_per_orbital_ev2"),
-            ),
-            span,
-            "the coupling in eV² (≥ 0)",
-        )?;
+        // With a matrices file the caller sets the coupling from it.
+        let coupling = if p.coupling_matrices_file.is_some() {
+            CouplingSpec::Uniform(0.0)
+        } else {
+            coupling(
+                ck,
+                (&p.coupling_ev2, &p.coupling_per_orbital_ev2),
+                (
+                    &format!("{prefix}.coupling_ev2"),
+                    &format!("{prefix}.coupling_per_orbital_ev2"),
+                ),
+                span,
+                "the coupling in eV² (≥ 0)",
+            )?
+        };
         let (from, to) = ck.region(&p.from_nm, &p.to_nm, prefix, length_nm, None)?;
         let bath = ck
             .temperature(
@@ -130,12 +160,23 @@ impl DephasingSpec {
         raw: &RawCase,
         ck: &Checker<'_>,
         length_nm: f64,
+        files: &mut BlockFiles,
     ) -> Result<Option<Self>, CaseError> {
         let Some(d) = &raw.dephasing else {
             return Ok(None);
         };
         let span = d.span();
         let d = d.get_ref();
+        let key = "dephasing.coupling_matrices_file";
+        let given = d.strength_ev2.is_some() || d.strength_per_orbital_ev2.is_some();
+        if let Some(m) = matrices(&d.coupling_matrices_file, key, given, ck, files)? {
+            let (from, to) = ck.region(&d.from_nm, &d.to_nm, "dephasing", length_nm, None)?;
+            return Ok(Some(Self {
+                strength: m,
+                from_nm: from,
+                to_nm: to,
+            }));
+        }
         let strength = coupling(
             ck,
             (&d.strength_ev2, &d.strength_per_orbital_ev2),
@@ -207,6 +248,60 @@ fn coupling(
             Ok(CouplingSpec::Uniform(d))
         }
     }
+}
+
+/// The coupling matrices of `key` when the file is given (refused next to
+/// a scalar or per-orbital strength, `other_given`): a blocks file of
+/// Hermitian b × b matrices, one source each.
+fn matrices(
+    name: &Opt<String>,
+    key: &str,
+    other_given: bool,
+    ck: &Checker<'_>,
+    files: &mut BlockFiles,
+) -> Result<Option<CouplingSpec>, CaseError> {
+    let Some(name) = name else {
+        return Ok(None);
+    };
+    let span = Some(name.span());
+    if other_given {
+        return Err(ck.ctx.invalid(
+            span,
+            key,
+            "coupling matrices or a strength (scalar or per orbital), not both",
+            "both set (hint: keep one of the two)",
+        ));
+    }
+    let (_, file) = read_named(name, key, ck, files)?;
+    for (k, m) in file.blocks.iter().enumerate() {
+        let scale = (0..m.nrows())
+            .flat_map(|r| (0..m.ncols()).map(move |c| (r, c)))
+            .fold(0.0f64, |s, (r, c)| s.max(m[(r, c)].norm()));
+        let worst = (0..m.nrows())
+            .flat_map(|r| (0..m.ncols()).map(move |c| (r, c)))
+            .fold(0.0f64, |s, (r, c)| {
+                s.max((m[(r, c)] - m[(c, r)].conj()).norm())
+            });
+        if worst > 1e-12 * scale.max(1e-300) || scale > 1e3 {
+            return Err(ck.ctx.invalid(
+                span,
+                key,
+                "Hermitian coupling matrices (M = M†) with entries of at most 1e3 eV",
+                format!(
+                    "matrix {k} with largest entry {} eV and |M − M†| up to {} eV \
+                     (hint: a complex entry's mirror must be its conjugate)",
+                    show(scale),
+                    show(worst)
+                ),
+            ));
+        }
+    }
+    Ok(Some(CouplingSpec::Matrices {
+        matrices: file.blocks,
+        from_csv: file.from_csv,
+        key: key.to_string(),
+        span,
+    }))
 }
 
 /// The numbers of a TOML array (integers accepted), or `None` when it is
