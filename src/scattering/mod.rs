@@ -193,13 +193,18 @@ impl ScatteringSelfEnergy {
         }
     }
 
-    /// All zero in the layout the scattering of `problem` needs.
-    pub fn zeros_for(problem: &crate::model::Problem) -> Self {
-        let ne = problem.grid.count;
-        if problem.scattering.uses_blocks() {
-            Self::zeros_blocks(ne, problem.device.cells(), problem.device.orbitals)
+    /// All zero in the layout `scattering` needs, for `energies` energies
+    /// and `cells` cells of `orbitals` orbitals.
+    pub fn zeros_for(
+        scattering: &Scattering,
+        energies: usize,
+        cells: usize,
+        orbitals: usize,
+    ) -> Self {
+        if scattering.uses_blocks() {
+            Self::zeros_blocks(energies, cells, orbitals)
         } else {
-            Self::zeros(ne, problem.sites())
+            Self::zeros(energies, cells * orbitals)
         }
     }
 

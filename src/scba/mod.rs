@@ -366,10 +366,21 @@ fn pass_rows(
         )
 }
 
+/// An all-zero Σ0 in the layout the scattering of `problem` needs.
+fn sigma_zeros(problem: &Problem) -> ScatteringSelfEnergy {
+    let d = &problem.device;
+    ScatteringSelfEnergy::zeros_for(
+        &problem.scattering,
+        problem.grid.count,
+        d.cells(),
+        d.orbitals,
+    )
+}
+
 /// Fails when Σ0's layout (diagonal or blocks) is not the one the
 /// scattering of `problem` needs, or its size does not fit the device.
 fn check_layout(problem: &Problem, sigma0: &ScatteringSelfEnergy) -> Result<(), SolveError> {
-    let want = ScatteringSelfEnergy::zeros_for(problem);
+    let want = sigma_zeros(problem);
     let want = ScatteringSelfEnergy {
         retarded: Vec::new(),
         inscatter: Vec::new(),
@@ -650,7 +661,7 @@ pub fn solve_in_lattice(
     };
     let lattice = lattice_temperature_k.map(<[f64]>::to_vec);
     if coherent {
-        let sigma = ScatteringSelfEnergy::zeros_for(problem);
+        let sigma = sigma_zeros(problem);
         let pass = pass(problem, leads, &sigma, true)?;
         return Ok(Solution {
             problem: problem.clone(),
@@ -673,7 +684,7 @@ pub fn solve_in_lattice(
             }
             w.clone()
         }
-        None => ScatteringSelfEnergy::zeros_for(problem),
+        None => sigma_zeros(problem),
     };
     let born = BornLoop::new(problem, leads, lattice, params, report, warm.is_some());
     born.run(x, observer)
@@ -754,7 +765,7 @@ impl<'a> BornLoop<'a> {
         // place every iteration. `black_ready`: the black rows of `p` hold G
         // from an earlier pass (or may count as zero, see `new`).
         let mut p = Pass::zeros(problem);
-        let mut fx = ScatteringSelfEnergy::zeros_for(problem);
+        let mut fx = sigma_zeros(problem);
         let mut black_ready = self.black_ready_at_start;
         loop {
             let maps = BornMaps {
@@ -905,7 +916,7 @@ pub fn born_map(
         .then(|| HilbertTransform::new(ne));
     let mut x = sigma.clone();
     let mut p = pass(problem, leads, &x, false)?;
-    let mut fx = ScatteringSelfEnergy::zeros_for(problem);
+    let mut fx = sigma_zeros(problem);
     let colour = red_black_colouring(problem, order).map(|(w, _)| w);
     let maps = BornMaps {
         problem,

@@ -291,7 +291,8 @@ fn born_loop(p: &Problem, tol: f64, max_iter: usize, must_converge: bool) -> Den
     let leads = LeadTable::new(p).unwrap();
     let ne = p.grid.count;
     let ns = p.sites();
-    let mut sigma = ScatteringSelfEnergy::zeros_for(p);
+    let mut sigma =
+        ScatteringSelfEnergy::zeros_for(&p.scattering, ne, p.device.cells(), p.device.orbitals);
     let blocked = p.scattering.uses_blocks();
     let (n, b) = (p.device.cells(), p.device.orbitals);
     let mut iterations = 0;
