@@ -87,6 +87,7 @@ fn empty_device_keeps_the_imposed_potential() {
         steps: 10,
         coupling_ev2: vec![1e-3; cells],
         bath_temperature_k: T,
+        coupling_matrices: Default::default(),
     });
     let es = settings(cells, 11.7, 20.0, vec![0.0; cells]);
     let params = ScbaParams::default();
@@ -136,6 +137,7 @@ fn doped_wire(mu: (f64, f64), phonon: bool) -> (Problem, Electrostatics) {
             steps: 10,
             coupling_ev2: vec![2e-3; cells],
             bath_temperature_k: T,
+            coupling_matrices: Default::default(),
         });
     }
     // 6e20 cm⁻³ in 1 nm² × 0.5 nm: 0.3 donors per cell, more on the right.

@@ -171,6 +171,7 @@ fn self_energy_carries_the_principal_value() {
         steps,
         coupling_ev2: vec![d],
         bath_temperature_k: 1.0,
+        ..Default::default()
     };
     assert!(mode.occupation() < 1e-100);
     let green = LocalGreen {
@@ -187,6 +188,7 @@ fn self_energy_carries_the_principal_value() {
         dephasing_ev2: vec![],
         phonons: vec![mode],
         hermitian_part: true,
+        ..Default::default()
     };
     let plan = HilbertTransform::new(n);
     let sigma = scattering.self_energy(&green, n, Some(&plan));

@@ -104,6 +104,7 @@ fn phonon_side_power_matches_electron_side_with_two_modes() {
             dephasing_ev2: Vec::new(),
             phonons: vec![p.scattering.phonons[m].clone()],
             hermitian_part: false,
+            ..Default::default()
         };
         let sigma = only.self_energy(&sol.pass.green, p.grid.count, None);
         let direct = electron_side_power(&sol, &sigma);

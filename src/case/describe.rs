@@ -115,9 +115,20 @@ impl Resolved {
         for (i, m) in phonons.iter().enumerate() {
             let sites = m.coupling_ev2.iter().filter(|&&x| x > 0.0).count();
             let dmax = m.coupling_ev2.iter().copied().fold(0.0, f64::max);
+            let per_cell = &m.coupling_matrices.per_cell;
+            let coupling = if m.coupling_matrices.is_empty() {
+                format!("coupling {dmax:e} eV² on {sites} orbital sites")
+            } else {
+                format!(
+                    "{} coupling matri(x/ces) per cell in {} cells (full {b}×{b} blocks)",
+                    per_cell.iter().map(Vec::len).max().unwrap_or(0),
+                    per_cell.iter().filter(|c| !c.is_empty()).count(),
+                    b = self.problem.device.orbitals
+                )
+            };
             let _ = writeln!(
                 s,
-                "phonon {i}    ħω {:.3} meV -> {:.3} meV ({} grid steps), coupling {dmax:e} eV² on {sites} orbital sites, bath {} K, occupation {:.4}",
+                "phonon {i}    ħω {:.3} meV -> {:.3} meV ({} grid steps), {coupling}, bath {} K, occupation {:.4}",
                 m.requested_energy_ev * 1e3,
                 m.energy_ev * 1e3,
                 m.steps,

@@ -423,8 +423,24 @@ pub static KEYS: &[KeyInfo] = &[
         "phonon.#.coupling_ev2",
         Float,
         "eV²",
-        Required,
-        "electron-phonon coupling D",
+        Text("required unless coupling_per_orbital_ev2 is given"),
+        "electron-phonon coupling D, the same on every orbital",
+    ),
+    key(
+        "phonon.#.coupling_per_orbital_ev2",
+        FloatList,
+        "eV²",
+        Text("none"),
+        "one coupling D per orbital of a cell (b values ≥ 0), in place of coupling_ev2",
+    ),
+    key(
+        "phonon.#.coupling_matrices_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks file (.npy or .csv, shape (K, b, b)) of K Hermitian coupling matrices M, \
+         each an independent source adding M G M in every cell of the region (interband, \
+         intervalley, spin-flip); in place of coupling_ev2",
     ),
     key(
         "phonon.#.from_nm",
@@ -451,8 +467,23 @@ pub static KEYS: &[KeyInfo] = &[
         "dephasing.strength_ev2",
         Float,
         "eV²",
-        Required,
-        "elastic dephasing strength (a [dephasing] table needs it)",
+        Text("required unless strength_per_orbital_ev2 is given"),
+        "elastic dephasing strength, the same on every orbital",
+    ),
+    key(
+        "dephasing.strength_per_orbital_ev2",
+        FloatList,
+        "eV²",
+        Text("none"),
+        "one dephasing strength per orbital of a cell (b values ≥ 0), in place of strength_ev2",
+    ),
+    key(
+        "dephasing.coupling_matrices_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks file (.npy or .csv, shape (K, b, b)) of K Hermitian coupling matrices M, \
+         each adding M G M in every cell of the region; in place of strength_ev2",
     ),
     key(
         "dephasing.from_nm",

@@ -109,6 +109,10 @@ pub(crate) struct RawBias {
 pub(crate) struct RawPhonon {
     pub energy_ev: Opt<f64>,
     pub coupling_ev2: Opt<f64>,
+    /// One coupling per orbital of a cell (eV²), read by hand.
+    pub coupling_per_orbital_ev2: Opt<toml::Value>,
+    /// A blocks file of coupling matrices (eV), one source each.
+    pub coupling_matrices_file: Opt<String>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
     pub bath_temperature_k: Opt<f64>,
@@ -118,6 +122,10 @@ pub(crate) struct RawPhonon {
 #[serde(deny_unknown_fields, expecting = "a table of dephasing settings")]
 pub(crate) struct RawDephasing {
     pub strength_ev2: Opt<f64>,
+    /// One strength per orbital of a cell (eV²), read by hand.
+    pub strength_per_orbital_ev2: Opt<toml::Value>,
+    /// A blocks file of coupling matrices (eV), one source each.
+    pub coupling_matrices_file: Opt<String>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
 }

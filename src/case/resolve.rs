@@ -5,7 +5,7 @@ use super::check::MAX_ENERGY_EV;
 use super::error::{CaseError, CaseErrorKind, ErrorContext};
 use super::sections::device::DeviceKind;
 use super::sections::leads::LeadModel;
-use super::sections::scattering::PhononSpec;
+use super::sections::scattering::{CouplingSpec, PhononSpec};
 use super::sections::settings::{HermitianPart, ProfileMode, ResponseSplit};
 use super::spec::CaseSpec;
 use crate::C64;
@@ -13,7 +13,7 @@ use crate::device::{self, BiasDrop, Device, DeviceError};
 use crate::grid::EnergyGrid;
 use crate::leads::{Lead, Side};
 use crate::model::{Contact, Problem};
-use crate::scattering::{PhononMode, Scattering};
+use crate::scattering::{CouplingMatrices, PhononMode, Scattering};
 use crate::scba::{EnergyOrder, Mixing, ScbaParams};
 use crate::units::thermal_energy_ev;
 use faer::Mat;
@@ -140,15 +140,96 @@ fn identity_times(b: usize, g: f64) -> Mat<C64> {
 }
 
 /// Per-site vector (N·b): `value` on the orbitals of cells with from ≤ x < to.
-fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, value: f64) -> Vec<f64> {
+fn site_vector(dev: &Device, from_nm: f64, to_nm: f64, per_orbital: &[f64]) -> Vec<f64> {
     let b = dev.orbitals;
     let mut v = vec![0.0; dev.cells() * b];
     for (i, &x) in dev.x_nm.iter().enumerate() {
         if x >= from_nm && x < to_nm {
-            v[i * b..(i + 1) * b].fill(value);
+            v[i * b..(i + 1) * b].copy_from_slice(per_orbital);
         }
     }
     v
+}
+
+/// The coupling matrices of a mechanism on every cell in [from_nm, to_nm)
+/// (none elsewhere); empty without matrices. A .csv file's blocks, whose
+/// size is only the largest index it lists, are padded with zeros to b.
+fn coupling_cells(
+    ctx: &ErrorContext<'_>,
+    dev: &Device,
+    (from_nm, to_nm): (f64, f64),
+    coupling: &CouplingSpec,
+) -> Result<CouplingMatrices, CaseError> {
+    let CouplingSpec::Matrices {
+        matrices,
+        from_csv,
+        key,
+        span,
+    } = coupling
+    else {
+        return Ok(CouplingMatrices::default());
+    };
+    let b = dev.orbitals;
+    let size = matrices.first().map_or(b, |m| m.nrows());
+    if size > b || (size < b && !from_csv) {
+        return Err(ctx.invalid(
+            span.clone(),
+            key,
+            &format!("{b}×{b} coupling matrices (the device's orbitals per cell)"),
+            format!("{size}×{size} matrices (hint: one row and column per orbital of a cell)"),
+        ));
+    }
+    let padded: Vec<faer::Mat<crate::C64>> = matrices
+        .iter()
+        .map(|m| {
+            faer::Mat::from_fn(b, b, |r, c| {
+                if r < size && c < size {
+                    m[(r, c)]
+                } else {
+                    crate::C64::new(0.0, 0.0)
+                }
+            })
+        })
+        .collect();
+    let per_cell = dev
+        .x_nm
+        .iter()
+        .map(|&x| {
+            if x >= from_nm && x < to_nm {
+                padded.clone()
+            } else {
+                Vec::new()
+            }
+        })
+        .collect();
+    Ok(CouplingMatrices { per_cell })
+}
+
+/// The strength of a scattering mechanism on every orbital site of the
+/// cells in [from_nm, to_nm): a uniform value on each orbital, or a list
+/// that must hold one value per orbital of a cell.
+fn coupling_sites(
+    ctx: &ErrorContext<'_>,
+    dev: &Device,
+    (from_nm, to_nm): (f64, f64),
+    coupling: &CouplingSpec,
+) -> Result<Vec<f64>, CaseError> {
+    let b = dev.orbitals;
+    match coupling {
+        CouplingSpec::Uniform(d) => Ok(site_vector(dev, from_nm, to_nm, &vec![*d; b])),
+        CouplingSpec::Matrices { .. } => Ok(vec![0.0; dev.cells() * b]),
+        CouplingSpec::PerOrbital { values, key, span } if values.len() != b => Err(ctx.invalid(
+            span.clone(),
+            key,
+            &format!("one value per orbital of a cell: {b} (the device's orbitals per cell)"),
+            format!(
+                "{} values (hint: list a strength for each of the {b} orbitals, 0 where \
+                 the orbital does not couple)",
+                values.len()
+            ),
+        )),
+        CouplingSpec::PerOrbital { values, .. } => Ok(site_vector(dev, from_nm, to_nm, values)),
+    }
 }
 
 fn device_error(ctx: &ErrorContext<'_>, spec: &CaseSpec, e: DeviceError) -> CaseError {
@@ -672,8 +753,9 @@ fn phonon_mode(
         ));
     }
     check_snap(spec, ctx, (i, p), (steps, energy), grid.step_ev, remarks)?;
-    let coupling = site_vector(dev, p.from_nm, p.to_nm, p.coupling_ev2);
-    if coupling.iter().all(|&d| d == 0.0) && p.coupling_ev2 > 0.0 {
+    let coupling = coupling_sites(ctx, dev, (p.from_nm, p.to_nm), &p.coupling)?;
+    let matrices = coupling_cells(ctx, dev, (p.from_nm, p.to_nm), &p.coupling)?;
+    if coupling.iter().all(|&d| d == 0.0) && matrices.is_empty() && !p.coupling.is_zero() {
         remarks.warnings.push(format!(
             "phonon.{i} region [{}, {}) nm covers no cell",
             p.from_nm, p.to_nm
@@ -684,6 +766,7 @@ fn phonon_mode(
         energy_ev: energy,
         steps,
         coupling_ev2: coupling,
+        coupling_matrices: matrices,
         bath_temperature_k: p.bath_temperature_k,
     })
 }
@@ -756,8 +839,14 @@ fn scattering(
         .map(|(ip, &s)| phonon_mode(spec, ctx, ip, s, dev, grid, remarks))
         .collect::<Result<Vec<_>, _>>()?;
     let dephasing_ev2 = match &spec.dephasing {
-        Some(d) if d.strength_ev2 > 0.0 => site_vector(dev, d.from_nm, d.to_nm, d.strength_ev2),
+        Some(d) if !d.strength.is_zero() => {
+            coupling_sites(ctx, dev, (d.from_nm, d.to_nm), &d.strength)?
+        }
         _ => Vec::new(),
+    };
+    let dephasing_matrices = match &spec.dephasing {
+        Some(d) => coupling_cells(ctx, dev, (d.from_nm, d.to_nm), &d.strength)?,
+        None => CouplingMatrices::default(),
     };
     let hermitian_part = spec.solver.hermitian_part == HermitianPart::Include;
     if hermitian_part && phonons.is_empty() {
@@ -774,6 +863,7 @@ fn scattering(
     }
     Ok(Scattering {
         dephasing_ev2,
+        dephasing_matrices,
         phonons,
         hermitian_part,
     })
@@ -1059,7 +1149,14 @@ impl Resolved {
             Mixing::Linear { .. } => 0,
         };
         let h = u64::from(p.scattering.hermitian_part && !p.scattering.phonons.is_empty());
-        let real_part = h == 1 || p.scattering.dephasing_ev2.iter().any(|&d| d != 0.0);
+        if p.scattering.uses_blocks() {
+            // Σ0 and F(Σ0) on N·b² numbers (24 bytes each), the diagonal
+            // blocks of G^r and G^n (32 bytes each), the diagonals of the
+            // pass (24 per site), Anderson on 3 parts, the Hilbert buffers.
+            let sb = n * b * b;
+            return e * (sb * (48 + 32 + 24 * a + 16 * h) + 24 * s) + fixed;
+        }
+        let real_part = h == 1 || p.scattering.has_dephasing();
         let parts = if real_part { 3 } else { 2 };
         e * s * (72 + 8 * parts * a + 16 * h) + fixed
     }

@@ -67,8 +67,8 @@ pub(crate) fn validate(
     );
     let leads = LeadsSpec::from_raw(raw, &ck, is_blocks, device.spacing_nm)?;
     let bias = BiasSpec::from_raw(raw, &ck, length_nm)?;
-    let phonons = PhononSpec::all_from_raw(raw, &ck, length_nm, leads.mean_temperature_k())?;
-    let dephasing = DephasingSpec::from_raw(raw, &ck, length_nm)?;
+    let phonons = PhononSpec::all_from_raw(raw, &ck, length_nm, leads.mean_temperature_k(), files)?;
+    let dephasing = DephasingSpec::from_raw(raw, &ck, length_nm, files)?;
     let grid = GridSpec::from_raw(raw, &ck)?;
     let solver = SolverSpec::from_raw(raw, &ck, &mut warnings)?;
     let lattice = LatticeSpec::from_raw(raw, &ck, &device, files, &mut warnings)?;

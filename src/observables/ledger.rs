@@ -31,6 +31,8 @@
 //! residual I_1 + I_2 also measures the distance from the fixed point.
 
 use super::flow_scale;
+use crate::C64;
+use crate::scattering::{GreenBlocks, PhononMode, add_sandwich, spectral_into, trace_product_re};
 use crate::scba::Solution;
 use crate::units::ELEMENTARY_CHARGE;
 
@@ -58,6 +60,9 @@ impl ModePower {
 /// Emission, absorption and lattice power of every phonon mode, computed
 /// from the Green's functions of the last pass alone (module docs).
 pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
+    if let Some(blocks) = &sol.pass.blocks {
+        return phonon_side_power_blocks(sol, blocks);
+    }
     let p = &sol.problem;
     let g = &sol.pass.green;
     let ns = g.sites;
@@ -97,6 +102,80 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
             }
         })
         .collect()
+}
+
+/// [`phonon_side_power`] with sources on b × b blocks: a source M of cell
+/// i emits at the rate (N + 1) Tr[M G^n(E) M G^p(E − ħω)] and absorbs at
+/// N Tr[M G^n(E) M G^p(E + ħω)] (a per-site strength D: the diagonal
+/// element alone), N at the cell's lattice temperature.
+fn phonon_side_power_blocks(sol: &Solution, blocks: &GreenBlocks) -> Vec<ModePower> {
+    let p = &sol.problem;
+    let (ne, b) = (p.grid.count, blocks.orbitals);
+    let cells = p.device.cells();
+    let rate = flow_scale(p) * p.grid.step_ev;
+    let lattice = sol.lattice_temperature_k.as_deref();
+    p.scattering
+        .phonons
+        .iter()
+        .map(|m| {
+            let occupation = m.cell_occupations(cells, b, lattice);
+            let (mut emit, mut absorb) = (0.0, 0.0);
+            for (i, &n) in occupation.iter().enumerate() {
+                let (e_i, a_i) = cell_exchange(blocks, m, i, ne);
+                emit += (n + 1.0) * e_i;
+                absorb += n * a_i;
+            }
+            let (emission_per_s, absorption_per_s) = (emit * rate, absorb * rate);
+            ModePower {
+                energy_ev: m.energy_ev,
+                emission_per_s,
+                absorption_per_s,
+                power_w: m.energy_ev * ELEMENTARY_CHARGE * (emission_per_s - absorption_per_s),
+            }
+        })
+        .collect()
+}
+
+/// Σ_k over sources of cell i of Tr[M G^n(E_k) M G^p(E_k ∓ ħω)]: (the
+/// emission sum, the absorption sum), without Bose factors.
+fn cell_exchange(blocks: &GreenBlocks, m: &PhononMode, i: usize, ne: usize) -> (f64, f64) {
+    let b = blocks.orbitals;
+    let bb = b * b;
+    let diag = m.coupling_ev2.get(i * b..(i + 1) * b).unwrap_or(&[]);
+    let mats = m.coupling_matrices.cell(i);
+    let zero = C64::new(0.0, 0.0);
+    let (mut left, mut tmp, mut empty) = (vec![zero; bb], vec![zero; bb], vec![zero; bb]);
+    let block = |k: usize| k * blocks.per_energy + i * bb;
+    let mut trace = |k: usize, kk: usize| -> f64 {
+        let (gn, g) = (block(k), block(kk));
+        let gn = &blocks.filled[gn..gn + bb];
+        spectral_into(&blocks.retarded[g..g + bb], b, &mut empty);
+        for (e, f) in empty.iter_mut().zip(&blocks.filled[g..g + bb]) {
+            *e -= f;
+        }
+        let mut t: f64 = diag
+            .iter()
+            .enumerate()
+            .map(|(o, d)| d * (gn[o * b + o] * empty[o * b + o]).re)
+            .sum();
+        for mm in mats {
+            left.fill(zero);
+            add_sandwich(mm, gn, 1.0, &mut left, &mut tmp);
+            t += trace_product_re(&left, &empty, b);
+        }
+        t
+    };
+    let w = m.steps;
+    let (mut e_s, mut a_s) = (0.0, 0.0);
+    for k in 0..ne {
+        if k >= w {
+            e_s += trace(k, k - w);
+        }
+        if k + w < ne {
+            a_s += trace(k, k + w);
+        }
+    }
+    (e_s, a_s)
 }
 
 /// What a ledger entry compares and relative to what; the same words go

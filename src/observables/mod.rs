@@ -158,7 +158,13 @@ pub fn flow_scale(problem: &Problem) -> f64 {
 }
 
 /// Bath particle flow per orbital site j_0 / (g_s/h) at energy index k.
+/// With Σ0 on b × b blocks, the diagonal element s of
+/// Σ^in_0 A − Γ0 G^n of its cell: summed over the orbitals of a cell it is
+/// the trace, the cell's bath flow.
 fn bath_trace(sol: &Solution, k: usize, s: usize) -> f64 {
+    if let Some(b) = sol.sigma.blocks {
+        return block_bath_terms(sol, k, s, b).0;
+    }
     let idx = k * sol.pass.green.sites + s;
     let sin = sol.sigma.inscatter[idx];
     let gamma = sol.sigma.gamma(idx);
@@ -168,9 +174,43 @@ fn bath_trace(sol: &Solution, k: usize, s: usize) -> f64 {
 /// Inflow plus outflow of the bath at one orbital site, Σ^in_0 A + Γ0 G^n
 /// over g_s/h (the gross exchange).
 fn bath_gross(sol: &Solution, k: usize, s: usize) -> f64 {
+    if let Some(b) = sol.sigma.blocks {
+        return block_bath_terms(sol, k, s, b).1;
+    }
     let idx = k * sol.pass.green.sites + s;
     (sol.sigma.inscatter[idx] * sol.pass.green.spectral(idx)).abs()
         + (sol.sigma.gamma(idx) * sol.pass.green.filled[idx]).abs()
+}
+
+/// (Re[Σ^in_0 A − Γ0 G^n]_ss, |Re[Σ^in_0 A]_ss| + |Re[Γ0 G^n]_ss|) for
+/// orbital site s = i·b + o at energy k, from the blocks of cell i.
+fn block_bath_terms(sol: &Solution, k: usize, s: usize, b: usize) -> (f64, f64) {
+    let (i, o) = (s / b, s % b);
+    let bb = b * b;
+    let base = k * sol.sigma.sites + i * bb;
+    let blocks = sol
+        .pass
+        .blocks
+        .as_ref()
+        .expect("diagonal blocks of G with a block Σ0");
+    let sig = &sol.sigma.retarded[base..base + bb];
+    let sin = &sol.sigma.inscatter[base..base + bb];
+    let g = &blocks.retarded[base..base + bb];
+    let gn = &blocks.filled[base..base + bb];
+    let hermitian = |p: &[f64], r: usize, c: usize| match r.cmp(&c) {
+        std::cmp::Ordering::Equal => crate::C64::new(p[r * b + c], 0.0),
+        std::cmp::Ordering::Less => crate::C64::new(p[r * b + c], p[c * b + r]),
+        std::cmp::Ordering::Greater => crate::C64::new(p[c * b + r], -p[r * b + c]),
+    };
+    let (mut inflow, mut outflow) = (0.0, 0.0);
+    for c in 0..b {
+        let a = (g[c * b + o] - g[o * b + c].conj()) * crate::C64::new(0.0, 1.0);
+        // Γ0_oc = i(Σ^r_oc − conj Σ^r_co)
+        let gamma = (sig[o * b + c] - sig[c * b + o].conj()) * crate::C64::new(0.0, 1.0);
+        inflow += (hermitian(sin, o, c) * a).re;
+        outflow += (gamma * gn[c * b + o]).re;
+    }
+    (inflow - outflow, inflow.abs() + outflow.abs())
 }
 
 /// Lattice power per orbital site (W): P_s = −∫ E j_0,s dE, positive where

@@ -354,19 +354,28 @@ fn write_occupation_npz(
 /// File names of a stored scattering self-energy.
 pub const SELF_ENERGY_FILES: [&str; 2] = ["self_energy_retarded.npy", "self_energy_in.npy"];
 
+/// File names of a stored scattering self-energy on b × b blocks (coupling
+/// matrices): shape (energies, cells, b, b), Σ^in_0 packed (the diagonal
+/// as it is, above it the real parts, below it the imaginary parts of the
+/// element above). Other names than the diagonal files, so that neither
+/// is read as the other.
+pub const SELF_ENERGY_BLOCK_FILES: [&str; 2] = [
+    "self_energy_blocks_retarded.npy",
+    "self_energy_blocks_in.npy",
+];
+
 fn write_self_energy(stage: &Staging, sol: &Solution) -> Result<(), OutputError> {
     let ns = sol.sigma.sites;
     let ne = sol.sigma.energies();
-    let r = ndarray::Array2::from_shape_vec((ne, ns), sol.sigma.retarded.clone()).expect("shape");
-    let i = ndarray::Array2::from_shape_vec((ne, ns), sol.sigma.inscatter.clone()).expect("shape");
-    stage.write(
-        SELF_ENERGY_FILES[0],
-        &npy_bytes(&r, &stage.path(SELF_ENERGY_FILES[0]))?,
-    )?;
-    stage.write(
-        SELF_ENERGY_FILES[1],
-        &npy_bytes(&i, &stage.path(SELF_ENERGY_FILES[1]))?,
-    )?;
+    let (names, shape) = match sol.sigma.blocks {
+        None => (SELF_ENERGY_FILES, vec![ne, ns]),
+        Some(b) => (SELF_ENERGY_BLOCK_FILES, vec![ne, ns / (b * b), b, b]),
+    };
+    let r =
+        ndarray::ArrayD::from_shape_vec(shape.clone(), sol.sigma.retarded.clone()).expect("shape");
+    let i = ndarray::ArrayD::from_shape_vec(shape, sol.sigma.inscatter.clone()).expect("shape");
+    stage.write(names[0], &npy_bytes(&r, &stage.path(names[0]))?)?;
+    stage.write(names[1], &npy_bytes(&i, &stage.path(names[1]))?)?;
     Ok(())
 }
 
@@ -375,13 +384,19 @@ pub fn read_self_energy(
     dir: &std::path::Path,
 ) -> Result<crate::scattering::ScatteringSelfEnergy, OutputError> {
     use ndarray_npy::read_npy;
-    let rp = dir.join(SELF_ENERGY_FILES[0]);
-    let ip = dir.join(SELF_ENERGY_FILES[1]);
-    let r: ndarray::Array2<crate::C64> = read_npy(&rp).map_err(|e| OutputError::Encode {
+    let blocks = dir.join(SELF_ENERGY_BLOCK_FILES[0]).exists();
+    let names = if blocks {
+        SELF_ENERGY_BLOCK_FILES
+    } else {
+        SELF_ENERGY_FILES
+    };
+    let rp = dir.join(names[0]);
+    let ip = dir.join(names[1]);
+    let r: ndarray::ArrayD<crate::C64> = read_npy(&rp).map_err(|e| OutputError::Encode {
         path: rp.clone(),
         message: e.to_string(),
     })?;
-    let i: ndarray::Array2<f64> = read_npy(&ip).map_err(|e| OutputError::Encode {
+    let i: ndarray::ArrayD<f64> = read_npy(&ip).map_err(|e| OutputError::Encode {
         path: ip.clone(),
         message: e.to_string(),
     })?;
@@ -391,10 +406,25 @@ pub fn read_self_energy(
             message: "the two self-energy files have different shapes".into(),
         });
     }
-    let sites = r.ncols();
+    let shape = r.shape().to_vec();
+    let (sites, blocks) = match (blocks, shape.as_slice()) {
+        (false, [_, ns]) => (*ns, None),
+        (true, [_, n, b, c]) if b == c => (n * b * b, Some(*b)),
+        _ => {
+            return Err(OutputError::Encode {
+                path: rp,
+                message: format!(
+                    "a self-energy of shape {shape:?}; expected (energies, sites) in {} or \
+                     (energies, cells, b, b) in {}",
+                    SELF_ENERGY_FILES[0], SELF_ENERGY_BLOCK_FILES[0]
+                ),
+            });
+        }
+    };
     Ok(crate::scattering::ScatteringSelfEnergy {
         sites,
         retarded: r.into_iter().collect(),
         inscatter: i.into_iter().collect(),
+        blocks,
     })
 }

@@ -96,9 +96,12 @@ impl PointStore for PointFolder {
     }
 }
 
+/// Layout: values per energy and value count (u64 each), Σ^r_0 (re, im
+/// pairs), Σ^in_0, then for blocks one more u64 holding b (a diagonal
+/// self-energy has no such word, so the two never read as each other).
 fn encode_sigma(s: &ScatteringSelfEnergy) -> Vec<u8> {
     let n = s.inscatter.len();
-    let mut out = Vec::with_capacity(16 + 24 * n);
+    let mut out = Vec::with_capacity(24 + 24 * n);
     out.extend_from_slice(&(s.sites as u64).to_le_bytes());
     out.extend_from_slice(&(n as u64).to_le_bytes());
     for z in &s.retarded {
@@ -108,6 +111,9 @@ fn encode_sigma(s: &ScatteringSelfEnergy) -> Vec<u8> {
     for v in &s.inscatter {
         out.extend_from_slice(&v.to_le_bytes());
     }
+    if let Some(b) = s.blocks {
+        out.extend_from_slice(&(b as u64).to_le_bytes());
+    }
     out
 }
 
@@ -115,9 +121,13 @@ fn decode_sigma(b: &[u8]) -> Option<ScatteringSelfEnergy> {
     let word = |i: usize| -> Option<[u8; 8]> { b.get(8 * i..8 * i + 8)?.try_into().ok() };
     let sites = u64::from_le_bytes(word(0)?) as usize;
     let n = u64::from_le_bytes(word(1)?) as usize;
-    if b.len() != 16 + 24 * n {
+    let blocks = if b.len() == 16 + 24 * n {
+        None
+    } else if b.len() == 24 + 24 * n {
+        Some(u64::from_le_bytes(word(2 + 3 * n)?) as usize)
+    } else {
         return None;
-    }
+    };
     let f = |i: usize| f64::from_le_bytes(word(i).expect("length checked"));
     let retarded = (0..n)
         .map(|k| C64::new(f(2 + 2 * k), f(3 + 2 * k)))
@@ -127,6 +137,7 @@ fn decode_sigma(b: &[u8]) -> Option<ScatteringSelfEnergy> {
         sites,
         retarded,
         inscatter,
+        blocks,
     })
 }
 
@@ -140,6 +151,7 @@ mod tests {
             sites: 2,
             retarded: vec![C64::new(0.1, -1e-300), C64::new(-3.0, 1.0 / 3.0)],
             inscatter: vec![std::f64::consts::PI, -0.0],
+            blocks: None,
         };
         let back = decode_sigma(&encode_sigma(&s)).unwrap();
         assert_eq!(back.sites, 2);
@@ -152,6 +164,17 @@ mod tests {
             s.inscatter.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
         );
         assert!(decode_sigma(&encode_sigma(&s)[..20]).is_none());
+        // A block self-energy keeps its block size and never reads as a
+        // diagonal one.
+        let blocks = ScatteringSelfEnergy {
+            sites: 4,
+            retarded: vec![C64::new(0.5, -0.25); 4],
+            inscatter: vec![0.125; 4],
+            blocks: Some(2),
+        };
+        let back = decode_sigma(&encode_sigma(&blocks)).unwrap();
+        assert_eq!(back, blocks);
+        assert_eq!(decode_sigma(&encode_sigma(&s)).unwrap().blocks, None);
     }
 
     /// The on-disk layout other runs resume from: file names, row text.

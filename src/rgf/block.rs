@@ -23,7 +23,9 @@
 //! G^r and G^n. Every matrix lives in the [`Workspace`]: the loop over cells
 //! does not allocate.
 
-use super::{EnergyInput, EnergyOutput, FullBlocks, RgfError, TerminalFlows, Workspace};
+use super::{
+    BlockExchange, EnergyInput, EnergyOutput, FullBlocks, RgfError, TerminalFlows, Workspace,
+};
 use crate::C64;
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::lu::partial_pivoting::{factor, inverse};
@@ -170,32 +172,112 @@ pub(super) fn solve_energy_blocks(
     input: &EnergyInput<'_>,
     ws: &mut Workspace,
     mut out: EnergyOutput<'_>,
+    exchange: Option<&mut BlockExchange<'_>>,
 ) -> Result<TerminalFlows, RgfError> {
     let n = input.onsite.len();
     let b = input.onsite[0].nrows();
     let last = n - 1;
-    let e = C64::new(input.energy_ev, 0.0);
-    let not_finite = |cell| RgfError::NotFinite {
-        energy_ev: input.energy_ev,
-        cell,
-    };
     let Workspace { g, gn, block, .. } = ws;
     let s = block.as_mut().expect("block scratch for b > 1");
-    let [t0, t1, t2, t3, t4, t5, t6] = &mut s.t;
+    forward_sweep(input, exchange.as_deref(), g, gn, s)?;
+    let transmission = if input.want_transmission {
+        transmission(input, g, s)
+    } else {
+        0.0
+    };
+    if let Some(f) = out.full.as_deref_mut() {
+        prepare_full(f, n, b);
+    }
+    backward_sweep(input, g, gn, s, &mut out)?;
+    if let Some(f) = out.full.as_deref_mut() {
+        for i in 0..n {
+            f.retarded_diagonal[i].copy_from(&g[i]);
+            f.filled_diagonal[i].copy_from(&gn[i]);
+        }
+    }
+    if let Some(x) = exchange {
+        for i in 0..n {
+            for r in 0..b {
+                for c in 0..b {
+                    x.green_retarded[i * b * b + r * b + c] = g[i][(r, c)];
+                    x.green_filled[i * b * b + r * b + c] = gn[i][(r, c)];
+                }
+            }
+        }
+    }
+    let left = terminal_flow(input.sigma_left, input.inscatter_left, &g[0], &gn[0]);
+    let right = terminal_flow(
+        input.sigma_right,
+        input.inscatter_right,
+        &g[last],
+        &gn[last],
+    );
+    Ok(TerminalFlows {
+        left: left.0,
+        right: right.0,
+        transmission,
+        left_gross: left.1,
+        right_gross: right.1,
+    })
+}
 
-    // Forward sweep.
+/// M = E − H_ii − Σ_ii and S = Σ^in_ii of cell `i` from the scattering
+/// self-energy alone (diagonal, or the block of `exchange`); the leads and
+/// the left-connected part are added by the caller.
+fn cell_inputs(
+    input: &EnergyInput<'_>,
+    exchange: Option<&BlockExchange<'_>>,
+    i: usize,
+    m: &mut Mat<C64>,
+    sin: &mut Mat<C64>,
+) {
+    let h = &input.onsite[i];
+    let b = h.nrows();
+    let e = C64::new(input.energy_ev, 0.0);
+    match exchange {
+        None => {
+            for c in 0..b {
+                for r in 0..b {
+                    m[(r, c)] = -h[(r, c)];
+                    sin[(r, c)] = ZERO;
+                }
+                m[(c, c)] += e - input.scatter_retarded[i * b + c];
+                sin[(c, c)] = C64::new(input.scatter_in[i * b + c], 0.0);
+            }
+        }
+        Some(x) => {
+            let base = i * b * b;
+            let p = &x.scatter_in[base..base + b * b];
+            for c in 0..b {
+                for r in 0..b {
+                    m[(r, c)] = -h[(r, c)] - x.scatter_retarded[base + r * b + c];
+                    sin[(r, c)] = match r.cmp(&c) {
+                        std::cmp::Ordering::Equal => C64::new(p[r * b + c], 0.0),
+                        std::cmp::Ordering::Less => C64::new(p[r * b + c], p[c * b + r]),
+                        std::cmp::Ordering::Greater => C64::new(p[c * b + r], -p[r * b + c]),
+                    };
+                }
+                m[(c, c)] += e;
+            }
+        }
+    }
+}
+
+/// Forward sweep: g_i, g^n_i and X_i = g_i τ_i for every cell.
+fn forward_sweep(
+    input: &EnergyInput<'_>,
+    exchange: Option<&BlockExchange<'_>>,
+    g: &mut [Mat<C64>],
+    gn: &mut [Mat<C64>],
+    s: &mut BlockScratch,
+) -> Result<(), RgfError> {
+    let n = input.onsite.len();
+    let last = n - 1;
+    let [t0, t1, ..] = &mut s.t;
     for i in 0..n {
-        let h = &input.onsite[i];
         let m = &mut s.m;
         let sin = &mut *t0;
-        for c in 0..b {
-            for r in 0..b {
-                m[(r, c)] = -h[(r, c)];
-                sin[(r, c)] = ZERO;
-            }
-            m[(c, c)] += e - input.scatter_retarded[i * b + c];
-            sin[(c, c)] = C64::new(input.scatter_in[i * b + c], 0.0);
-        }
+        cell_inputs(input, exchange, i, m, sin);
         if i == 0 {
             *m -= input.sigma_left;
             *sin += input.inscatter_left;
@@ -206,13 +288,8 @@ pub(super) fn solve_energy_blocks(
         }
         if i > 0 {
             let tau = input.coupling[i - 1].as_ref();
-            mul(
-                m.as_mut(),
-                Accum::Add,
-                Op::H(tau.as_ref()),
-                Op::N(s.x[i - 1].as_ref()),
-                MINUS_ONE,
-            );
+            let x = s.x[i - 1].as_ref();
+            mul(m.as_mut(), Accum::Add, Op::H(tau), Op::N(x), MINUS_ONE);
             mul(
                 t1.as_mut(),
                 Accum::Replace,
@@ -223,24 +300,23 @@ pub(super) fn solve_energy_blocks(
             mul(
                 sin.as_mut(),
                 Accum::Add,
-                Op::H(tau.as_ref()),
+                Op::H(tau),
                 Op::N(t1.as_ref()),
                 ONE,
             );
         }
-        let mut stack = MemStack::new(&mut s.stack);
-        let (_, perm) = factor::lu_in_place(
-            m.as_mut(),
+        invert_into(
+            &mut s.m,
+            &mut g[i],
             &mut s.perm,
             &mut s.perm_inv,
-            Par::Seq,
-            stack,
-            Default::default(),
+            &mut s.stack,
         );
-        stack = MemStack::new(&mut s.stack);
-        inverse::inverse(g[i].as_mut(), m.as_ref(), m.as_ref(), perm, Par::Seq, stack);
         if !finite(&g[i]) {
-            return Err(not_finite(i));
+            return Err(RgfError::NotFinite {
+                energy_ev: input.energy_ev,
+                cell: i,
+            });
         }
         mul(
             t1.as_mut(),
@@ -257,58 +333,94 @@ pub(super) fn solve_energy_blocks(
             ONE,
         );
         if i < last {
+            let tau = input.coupling[i].as_ref();
             mul(
                 s.x[i].as_mut(),
                 Accum::Replace,
                 Op::N(g[i].as_ref()),
-                Op::N(input.coupling[i].as_ref()),
+                Op::N(tau),
                 ONE,
             );
         }
     }
+    Ok(())
+}
 
-    // Transmission: G^r_iN = X_i G^r_{i+1,N}, starting from g_N.
-    let mut transmission = 0.0;
-    if input.want_transmission {
-        let (q, qt) = (&mut *t5, &mut *t6);
-        q.copy_from(&g[last]);
-        for i in (0..last).rev() {
-            mul(
-                qt.as_mut(),
-                Accum::Replace,
-                Op::N(s.x[i].as_ref()),
-                Op::N(q.as_ref()),
-                ONE,
-            );
-            std::mem::swap(q, qt);
-        }
-        broadening_into(input.sigma_left, t1);
-        broadening_into(input.sigma_right, t2);
+/// g ← M⁻¹ by one LU factorisation of `m` (overwritten).
+fn invert_into(
+    m: &mut Mat<C64>,
+    g: &mut Mat<C64>,
+    perm: &mut [usize],
+    perm_inv: &mut [usize],
+    stack: &mut MemBuffer,
+) {
+    let (_, p) = factor::lu_in_place(
+        m.as_mut(),
+        perm,
+        perm_inv,
+        Par::Seq,
+        MemStack::new(stack),
+        Default::default(),
+    );
+    inverse::inverse(
+        g.as_mut(),
+        m.as_ref(),
+        m.as_ref(),
+        p,
+        Par::Seq,
+        MemStack::new(stack),
+    );
+}
+
+/// Tr[Γ1 G^r_1N Γ2 G^a_N1] with G^r_iN = X_i G^r_{i+1,N}, from g_N.
+fn transmission(input: &EnergyInput<'_>, g: &[Mat<C64>], s: &mut BlockScratch) -> f64 {
+    let last = input.onsite.len() - 1;
+    let [_, t1, t2, t3, t4, t5, t6] = &mut s.t;
+    let (q, qt) = (&mut *t5, &mut *t6);
+    q.copy_from(&g[last]);
+    for i in (0..last).rev() {
         mul(
-            t3.as_mut(),
+            qt.as_mut(),
             Accum::Replace,
-            Op::N(t1.as_ref()),
+            Op::N(s.x[i].as_ref()),
             Op::N(q.as_ref()),
             ONE,
         );
-        mul(
-            t4.as_mut(),
-            Accum::Replace,
-            Op::N(t2.as_ref()),
-            Op::H(q.as_ref()),
-            ONE,
-        );
-        transmission = trace_product(t3.as_ref(), t4.as_ref()).re;
+        std::mem::swap(q, qt);
     }
+    broadening_into(input.sigma_left, t1);
+    broadening_into(input.sigma_right, t2);
+    mul(
+        t3.as_mut(),
+        Accum::Replace,
+        Op::N(t1.as_ref()),
+        Op::N(q.as_ref()),
+        ONE,
+    );
+    mul(
+        t4.as_mut(),
+        Accum::Replace,
+        Op::N(t2.as_ref()),
+        Op::H(q.as_ref()),
+        ONE,
+    );
+    trace_product(t3.as_ref(), t4.as_ref()).re
+}
 
-    // Backward sweep: g / gn are overwritten with the full G, G^n.
-    for o in 0..b {
-        out.retarded[last * b + o] = g[last][(o, o)];
-        out.filled[last * b + o] = gn[last][(o, o)].re;
-    }
-    if let Some(f) = out.full.as_deref_mut() {
-        prepare_full(f, n, b);
-    }
+/// Backward sweep: `g` / `gn` are overwritten with the full G_ii, G^n_ii;
+/// the diagonals, bond flows and (when asked) the lower blocks go to `out`.
+fn backward_sweep(
+    input: &EnergyInput<'_>,
+    g: &mut [Mat<C64>],
+    gn: &mut [Mat<C64>],
+    s: &mut BlockScratch,
+    out: &mut EnergyOutput<'_>,
+) -> Result<(), RgfError> {
+    let n = input.onsite.len();
+    let b = input.onsite[0].nrows();
+    let last = n - 1;
+    let [t0, t1, t2, t3, t4, ..] = &mut s.t;
+    write_diagonal(out, last, &g[last], &gn[last]);
     for i in (0..last).rev() {
         let tau = input.coupling[i].as_ref();
         let x = s.x[i].as_ref();
@@ -320,7 +432,7 @@ pub(super) fn solve_energy_blocks(
         mul(
             w.as_mut(),
             Accum::Replace,
-            Op::H(tau.as_ref()),
+            Op::H(tau),
             Op::N(gi.as_ref()),
             ONE,
         );
@@ -334,7 +446,7 @@ pub(super) fn solve_energy_blocks(
         mul(
             q.as_mut(),
             Accum::Replace,
-            Op::H(tau.as_ref()),
+            Op::H(tau),
             Op::N(gni.as_ref()),
             ONE,
         );
@@ -365,34 +477,23 @@ pub(super) fn solve_energy_blocks(
             f.filled_lower[i].copy_from(&*p);
         }
         if !finite(gi) || !finite(gni) {
-            return Err(not_finite(i));
+            return Err(RgfError::NotFinite {
+                energy_ev: input.energy_ev,
+                cell: i,
+            });
         }
-        for o in 0..b {
-            out.retarded[i * b + o] = gi[(o, o)];
-            out.filled[i * b + o] = gni[(o, o)].re;
-        }
+        write_diagonal(out, i, gi, gni);
     }
+    Ok(())
+}
 
-    if let Some(f) = out.full.as_deref_mut() {
-        for i in 0..n {
-            f.retarded_diagonal[i].copy_from(&g[i]);
-            f.filled_diagonal[i].copy_from(&gn[i]);
-        }
+/// The diagonals of G_ii and G^n_ii into the per-site outputs.
+fn write_diagonal(out: &mut EnergyOutput<'_>, i: usize, g: &Mat<C64>, gn: &Mat<C64>) {
+    let b = g.nrows();
+    for o in 0..b {
+        out.retarded[i * b + o] = g[(o, o)];
+        out.filled[i * b + o] = gn[(o, o)].re;
     }
-    let left = terminal_flow(input.sigma_left, input.inscatter_left, &g[0], &gn[0]);
-    let right = terminal_flow(
-        input.sigma_right,
-        input.inscatter_right,
-        &g[last],
-        &gn[last],
-    );
-    Ok(TerminalFlows {
-        left: left.0,
-        right: right.0,
-        transmission,
-        left_gross: left.1,
-        right_gross: right.1,
-    })
 }
 
 fn prepare_full(f: &mut FullBlocks, n: usize, b: usize) {

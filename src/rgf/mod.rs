@@ -165,5 +165,36 @@ pub fn solve_energy(
         return scalar::solve_energy_scalar(input, ws, out);
     }
     ws.ensure_blocks(b);
-    block::solve_energy_blocks(input, ws, out)
+    block::solve_energy_blocks(input, ws, out, None)
+}
+
+/// The scattering self-energy as full b × b blocks per cell, and where the
+/// diagonal blocks of G go: the exchange of the block path of the Born
+/// loop. Every slice holds N·b² numbers, block i at i·b², row-major.
+pub struct BlockExchange<'a> {
+    /// Σ^r_0,ii (eV).
+    pub scatter_retarded: &'a [C64],
+    /// Σ^in_0,ii packed as b² reals: the diagonal, above it the real parts
+    /// of the elements, below it (at the mirrored place) their imaginary
+    /// parts.
+    pub scatter_in: &'a [f64],
+    /// Out: G^r_ii (1/eV).
+    pub green_retarded: &'a mut [C64],
+    /// Out: G^n_ii (1/eV).
+    pub green_filled: &'a mut [C64],
+}
+
+/// [`solve_energy`] with the scattering self-energy given as blocks
+/// (`exchange`; `input.scatter_retarded` and `input.scatter_in` are not
+/// read) and the diagonal blocks of G^r and G^n written back into
+/// `exchange`. Any b, b = 1 included, takes the block recursion.
+pub fn solve_energy_with_blocks(
+    input: &EnergyInput<'_>,
+    ws: &mut Workspace,
+    out: EnergyOutput<'_>,
+    exchange: &mut BlockExchange<'_>,
+) -> Result<TerminalFlows, RgfError> {
+    let b = input.onsite[0].nrows();
+    ws.ensure_blocks(b);
+    block::solve_energy_blocks(input, ws, out, Some(exchange))
 }

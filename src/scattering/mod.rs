@@ -33,11 +33,17 @@
 
 use crate::C64;
 
+mod block_rebuild;
+mod blocks;
 mod hilbert;
+pub use blocks::{
+    CouplingMatrices, GreenBlocks, add_sandwich, pack_hermitian, packed_broadening, spectral_into,
+    trace_product_re, unpack_hermitian,
+};
 pub use hilbert::HilbertTransform;
 
 /// One Einstein phonon mode.
-#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
 pub struct PhononMode {
     /// Energy asked for (eV).
     pub requested_energy_ev: f64,
@@ -45,8 +51,13 @@ pub struct PhononMode {
     pub energy_ev: f64,
     /// ħω in grid steps.
     pub steps: usize,
-    /// Coupling D_m on each orbital site (eV²), length N·b.
+    /// Coupling D_m on each orbital site (eV²), length N·b: one
+    /// single-orbital source per site (see [`CouplingMatrices`]).
     pub coupling_ev2: Vec<f64>,
+    /// Sources that act on several orbitals of a cell (coupling matrices in
+    /// eV, per cell); empty for the diagonal model. Any source here puts
+    /// the Born loop on full b × b blocks.
+    pub coupling_matrices: CouplingMatrices,
     /// Bath temperature (K).
     pub bath_temperature_k: f64,
 }
@@ -105,6 +116,9 @@ pub struct Scattering {
     /// Elastic dephasing strength on each orbital site (eV²), length N·b;
     /// empty when there is none.
     pub dephasing_ev2: Vec<f64>,
+    /// Dephasing sources that act on several orbitals of a cell (coupling
+    /// matrices in eV, per cell), besides `dephasing_ev2`.
+    pub dephasing_matrices: CouplingMatrices,
     /// Phonon modes.
     pub phonons: Vec<PhononMode>,
     /// Include the Hermitian (principal-value) part of the phonon self-energy.
@@ -115,10 +129,23 @@ impl Scattering {
     /// True when nothing scatters (the coherent case).
     pub fn is_coherent(&self) -> bool {
         self.dephasing_ev2.iter().all(|&d| d == 0.0)
+            && self.dephasing_matrices.is_zero()
             && self
                 .phonons
                 .iter()
-                .all(|m| m.coupling_ev2.iter().all(|&d| d == 0.0))
+                .all(|m| m.coupling_ev2.iter().all(|&d| d == 0.0) && m.coupling_matrices.is_zero())
+    }
+
+    /// True when some source is a coupling matrix: Σ0 is then kept as full
+    /// b × b blocks per cell ([`ScatteringSelfEnergy::blocks`]).
+    pub fn uses_blocks(&self) -> bool {
+        !self.dephasing_matrices.is_empty()
+            || self.phonons.iter().any(|m| !m.coupling_matrices.is_empty())
+    }
+
+    /// True when dephasing acts anywhere (per-site strengths or matrices).
+    pub fn has_dephasing(&self) -> bool {
+        self.dephasing_ev2.iter().any(|&d| d != 0.0) || !self.dephasing_matrices.is_zero()
     }
 
     /// Largest phonon energy (eV), 0 without phonons.
@@ -127,15 +154,24 @@ impl Scattering {
     }
 }
 
-/// Σ0 on every energy and orbital site, stored flat: index k·(N·b) + s.
+/// Σ0 on every energy, stored flat. Two layouts:
+///
+/// - diagonal (`blocks` = None): one value per orbital site, index
+///   k·(N·b) + s;
+/// - blocks (`blocks` = Some(b)): the b × b block of every cell, index
+///   k·(N·b²) + i·b² + r·b + c, Σ^in_0 packed as b² reals (see
+///   [`pack_hermitian`]).
 #[derive(Clone, Debug, PartialEq)]
 pub struct ScatteringSelfEnergy {
-    /// Orbital sites per energy (N·b).
+    /// Values per energy: orbital sites N·b, or N·b² with blocks.
     pub sites: usize,
     /// Retarded Σ^r_0 (eV).
     pub retarded: Vec<C64>,
-    /// In-scattering Σ^in_0 = −iΣ^< (eV), real on the diagonal.
+    /// In-scattering Σ^in_0 = −iΣ^< (eV): real on the diagonal; packed
+    /// Hermitian blocks with blocks.
     pub inscatter: Vec<f64>,
+    /// `Some(b)` when the values are the b × b blocks of every cell.
+    pub blocks: Option<usize>,
 }
 
 impl ScatteringSelfEnergy {
@@ -145,6 +181,41 @@ impl ScatteringSelfEnergy {
             sites,
             retarded: vec![C64::new(0.0, 0.0); energies * sites],
             inscatter: vec![0.0; energies * sites],
+            blocks: None,
+        }
+    }
+
+    /// All zero, as b × b blocks of `cells` cells.
+    pub fn zeros_blocks(energies: usize, cells: usize, b: usize) -> Self {
+        Self {
+            blocks: Some(b),
+            ..Self::zeros(energies, cells * b * b)
+        }
+    }
+
+    /// All zero in the layout `scattering` needs, for `energies` energies
+    /// and `cells` cells of `orbitals` orbitals.
+    pub fn zeros_for(
+        scattering: &Scattering,
+        energies: usize,
+        cells: usize,
+        orbitals: usize,
+    ) -> Self {
+        if scattering.uses_blocks() {
+            Self::zeros_blocks(energies, cells, orbitals)
+        } else {
+            Self::zeros(energies, cells * orbitals)
+        }
+    }
+
+    /// The layout in words, for messages.
+    pub fn layout(&self) -> String {
+        match self.blocks {
+            None => format!("{} orbital-site values per energy (diagonal)", self.sites),
+            Some(b) => format!(
+                "{b}×{b} blocks of {} cells per energy (coupling matrices)",
+                self.sites / (b * b).max(1)
+            ),
         }
     }
 
@@ -153,10 +224,18 @@ impl ScatteringSelfEnergy {
         self.inscatter.len() / self.sites.max(1)
     }
 
-    /// Broadening Γ0 = −2 Im Σ^r_0 at flat index.
+    /// Broadening Γ0 = −2 Im Σ^r_0 at flat index; with blocks, the
+    /// packed element of Γ0 = i(Σ^r_0 − Σ^r_0†) (the layout of Σ^in_0).
     #[inline]
     pub fn gamma(&self, idx: usize) -> f64 {
-        -2.0 * self.retarded[idx].im
+        match self.blocks {
+            None => -2.0 * self.retarded[idx].im,
+            Some(b) => {
+                let o = idx % (b * b);
+                let base = idx - o;
+                packed_broadening(&self.retarded[base..base + b * b], b, o / b, o % b)
+            }
+        }
     }
 
     /// Out-scattering Σ^out_0 = Γ0 − Σ^in_0 at flat index.
@@ -208,7 +287,9 @@ impl Scattering {
     }
 
     /// [`Scattering::self_energy`] written into `out`, whose storage is
-    /// reused (the Born loop rebuilds Σ0 every iteration).
+    /// reused (the Born loop rebuilds Σ0 every iteration). Diagonal layout
+    /// only: sources with coupling matrices need
+    /// [`Scattering::self_energy_blocks_into`].
     pub fn self_energy_into(
         &self,
         green: &LocalGreen,

@@ -56,6 +56,13 @@
 //! - w: the per-thread RGF workspace, 48·N·b² + 128·b² bytes for b > 1 and
 //!   24·N for b = 1.
 //!
+//! With coupling matrices (Σ0 on b × b blocks, see
+//! [`crate::scattering::GreenBlocks`]) Σ0, its image and the kept
+//! diagonal blocks of G^r and G^n take N·b² numbers per energy instead of
+//! S: bytes ≈ E·N·b²·(48 + 32 + 24·A + 16·h) + 24·E·S + the same fixed
+//! terms, A counted with P = 3 (the real part of the off-diagonal Σ^r_0 is
+//! always mixed).
+//!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
 mod mixing;
@@ -69,7 +76,7 @@ use crate::leads::{LeadError, Side};
 use crate::model::Problem;
 pub use crate::progress::{IterationRecord, Observer, Silent};
 use crate::rgf::{self, EnergyInput, EnergyOutput, RgfError, TerminalFlows, Workspace};
-use crate::scattering::{HilbertTransform, LocalGreen, ScatteringSelfEnergy};
+use crate::scattering::{GreenBlocks, HilbertTransform, LocalGreen, ScatteringSelfEnergy};
 use faer::Mat;
 use rayon::prelude::*;
 
@@ -155,6 +162,10 @@ fn ensure_finite(
     iteration: usize,
 ) -> Result<(), SolveError> {
     let ns = sigma.sites.max(1);
+    let per_cell = match sigma.blocks {
+        Some(b) => b * b,
+        None => problem.device.orbitals,
+    };
     let bad_r = sigma
         .retarded
         .iter()
@@ -169,7 +180,7 @@ fn ensure_finite(
     Err(SolveError::SelfEnergyNotFinite {
         iteration,
         energy_ev: problem.grid.energy(idx / ns),
-        cell: (idx % ns) / problem.device.orbitals.max(1),
+        cell: (idx % ns) / per_cell.max(1),
         part,
     })
 }
@@ -228,6 +239,10 @@ pub struct Pass {
     pub bond: Vec<f64>,
     /// Terminal flows per energy.
     pub flows: Vec<TerminalFlows>,
+    /// The diagonal blocks G^r_ii, G^n_ii of every cell and energy, kept
+    /// when the scattering has coupling matrices (the block Born update
+    /// needs them); `None` otherwise.
+    pub blocks: Option<GreenBlocks>,
 }
 
 /// Run the recursion at every energy with the scattering self-energy
@@ -238,6 +253,7 @@ pub fn pass(
     sigma0: &ScatteringSelfEnergy,
     want_transmission: bool,
 ) -> Result<Pass, SolveError> {
+    check_layout(problem, sigma0)?;
     let mut out = Pass::zeros(problem);
     pass_rows(
         problem,
@@ -265,6 +281,10 @@ impl Pass {
             },
             bond: vec![0.0; ne * nb],
             flows: vec![TerminalFlows::default(); ne],
+            blocks: problem
+                .scattering
+                .uses_blocks()
+                .then(|| GreenBlocks::zeros(ne, n, problem.device.orbitals)),
         }
     }
 }
@@ -279,6 +299,9 @@ fn pass_rows(
     rows: impl Fn(usize) -> bool + Sync,
     out: &mut Pass,
 ) -> Result<(), SolveError> {
+    if sigma0.blocks.is_some() {
+        return pass_rows_blocks(problem, leads, sigma0, want_transmission, rows, out);
+    }
     let dev = &problem.device;
     let n = dev.cells();
     let b = dev.orbitals;
@@ -338,6 +361,115 @@ fn pass_rows(
                         full: None,
                     },
                 )?;
+                Ok(())
+            },
+        )
+}
+
+/// An all-zero Σ0 in the layout the scattering of `problem` needs.
+fn sigma_zeros(problem: &Problem) -> ScatteringSelfEnergy {
+    let d = &problem.device;
+    ScatteringSelfEnergy::zeros_for(
+        &problem.scattering,
+        problem.grid.count,
+        d.cells(),
+        d.orbitals,
+    )
+}
+
+/// Fails when Σ0's layout (diagonal or blocks) is not the one the
+/// scattering of `problem` needs, or its size does not fit the device.
+fn check_layout(problem: &Problem, sigma0: &ScatteringSelfEnergy) -> Result<(), SolveError> {
+    let want = sigma_zeros(problem);
+    let want = ScatteringSelfEnergy {
+        retarded: Vec::new(),
+        inscatter: Vec::new(),
+        ..want
+    };
+    if sigma0.blocks != want.blocks || sigma0.sites != want.sites {
+        return Err(SolveError::Invalid(format!(
+            "the scattering self-energy holds {}, but this device and scattering need {} \
+             (hint: a self-energy from a case with coupling matrices fits only such a case, \
+             and one from per-orbital couplings only those; start without it)",
+            sigma0.layout(),
+            want.layout()
+        )));
+    }
+    Ok(())
+}
+
+/// [`pass_rows`] for Σ0 on b × b blocks: the block recursion at every
+/// energy, which also keeps the diagonal blocks of G in `out.blocks`.
+fn pass_rows_blocks(
+    problem: &Problem,
+    leads: &LeadTable,
+    sigma0: &ScatteringSelfEnergy,
+    want_transmission: bool,
+    rows: impl Fn(usize) -> bool + Sync,
+    out: &mut Pass,
+) -> Result<(), SolveError> {
+    let dev = &problem.device;
+    let (n, b) = (dev.cells(), dev.orbitals);
+    let (ns, per) = (n * b, sigma0.sites);
+    let nb = n.saturating_sub(1);
+    let mut empty_bonds = vec![0.0; problem.grid.count];
+    let bond_rows: Vec<&mut [f64]> = if nb == 0 {
+        empty_bonds.chunks_mut(1).map(|c| &mut c[..0]).collect()
+    } else {
+        out.bond.chunks_mut(nb).collect()
+    };
+    let blocks = out.blocks.as_mut().ok_or_else(|| {
+        SolveError::Invalid("a block self-energy for a pass without block storage".into())
+    })?;
+    let green = &mut out.green;
+    green
+        .retarded
+        .par_chunks_mut(ns)
+        .zip(green.filled.par_chunks_mut(ns))
+        .zip(bond_rows.into_par_iter())
+        .zip(out.flows.par_iter_mut())
+        .zip(blocks.retarded.par_chunks_mut(per))
+        .zip(blocks.filled.par_chunks_mut(per))
+        .enumerate()
+        .filter(|(k, _)| rows(*k))
+        .try_for_each_init(
+            || {
+                (
+                    Workspace::new(n, b),
+                    Mat::<C64>::zeros(b, b),
+                    Mat::<C64>::zeros(b, b),
+                )
+            },
+            |(ws, inl, inr), (k, (((((gr, gn), bd), fl), br), bn))| -> Result<(), SolveError> {
+                let e = problem.grid.energy(k);
+                let (sl, sr) = (&leads.left[k], &leads.right[k]);
+                inscatter_into(sl, problem.left.occupation(e), inl);
+                inscatter_into(sr, problem.right.occupation(e), inr);
+                let input = EnergyInput {
+                    energy_ev: e,
+                    onsite: &dev.onsite,
+                    coupling: &dev.coupling,
+                    sigma_left: sl,
+                    sigma_right: sr,
+                    inscatter_left: inl,
+                    inscatter_right: inr,
+                    scatter_retarded: &[],
+                    scatter_in: &[],
+                    want_transmission,
+                };
+                let mut exchange = rgf::BlockExchange {
+                    scatter_retarded: &sigma0.retarded[k * per..(k + 1) * per],
+                    scatter_in: &sigma0.inscatter[k * per..(k + 1) * per],
+                    green_retarded: br,
+                    green_filled: bn,
+                };
+                let out = EnergyOutput {
+                    retarded: gr,
+                    filled: gn,
+                    bond: bd,
+                    full: None,
+                };
+                *fl = rgf::solve_energy_with_blocks(&input, ws, out, &mut exchange)?;
                 Ok(())
             },
         )
@@ -529,7 +661,7 @@ pub fn solve_in_lattice(
     };
     let lattice = lattice_temperature_k.map(<[f64]>::to_vec);
     if coherent {
-        let sigma = ScatteringSelfEnergy::zeros(ne, ns);
+        let sigma = sigma_zeros(problem);
         let pass = pass(problem, leads, &sigma, true)?;
         return Ok(Solution {
             problem: problem.clone(),
@@ -540,13 +672,19 @@ pub fn solve_in_lattice(
         });
     }
     let x = match warm {
-        Some(w) if w.sites == ns && w.energies() == ne => w.clone(),
-        Some(_) => {
-            return Err(SolveError::Invalid(
-                "warm-start self-energy does not match this grid and device".into(),
-            ));
+        Some(w) => {
+            check_layout(problem, w).map_err(|e| match e {
+                SolveError::Invalid(m) => SolveError::Invalid(format!("warm start: {m}")),
+                other => other,
+            })?;
+            if w.energies() != ne {
+                return Err(SolveError::Invalid(
+                    "warm-start self-energy does not match this grid and device".into(),
+                ));
+            }
+            w.clone()
         }
-        None => ScatteringSelfEnergy::zeros(ne, ns),
+        None => sigma_zeros(problem),
     };
     let born = BornLoop::new(problem, leads, lattice, params, report, warm.is_some());
     born.run(x, observer)
@@ -584,7 +722,7 @@ impl<'a> BornLoop<'a> {
             .then(|| HilbertTransform::new(problem.grid.count));
         // Re Σ^r_0 stays zero unless the Hermitian part or dephasing (whose
         // Σ^r is D·G^r) puts something there; then it need not be mixed.
-        let has_dephasing = scat.dephasing_ev2.iter().any(|&d| d != 0.0);
+        let has_dephasing = scat.has_dephasing();
         let colouring = red_black_colouring(problem, params.energy_order);
         report.energy_order = if colouring.is_some() {
             EnergyOrder::RedBlack
@@ -605,7 +743,8 @@ impl<'a> BornLoop<'a> {
             leads,
             lattice,
             params,
-            mix_real_part: report.hermitian_part || has_dephasing,
+            // On blocks Σ^r_0 = −iΓ0/2 has real off-diagonal elements.
+            mix_real_part: report.hermitian_part || has_dephasing || scat.uses_blocks(),
             report,
             hilbert,
             colour: colouring.map(|(w, _)| w),
@@ -620,14 +759,13 @@ impl<'a> BornLoop<'a> {
         observer: &mut dyn Observer,
     ) -> Result<Solution, SolveError> {
         let (problem, params) = (self.problem, self.params);
-        let (ne, ns) = (problem.grid.count, problem.sites());
         let mut mixer = Mixer::with_real_part(params.mixing, self.mix_real_part);
         let mut previous: Option<(f64, f64)> = None;
         // The Green's functions of the pass and the image F(Σ0) are rebuilt in
         // place every iteration. `black_ready`: the black rows of `p` hold G
         // from an earlier pass (or may count as zero, see `new`).
         let mut p = Pass::zeros(problem);
-        let mut fx = ScatteringSelfEnergy::zeros(ne, ns);
+        let mut fx = sigma_zeros(problem);
         let mut black_ready = self.black_ready_at_start;
         loop {
             let maps = BornMaps {
@@ -716,12 +854,18 @@ struct BornMaps<'a> {
 }
 
 impl BornMaps<'_> {
-    /// Rebuild Σ0 from the local Green's functions into `out`.
-    fn rebuild(&self, green: &LocalGreen, out: &mut ScatteringSelfEnergy) {
+    /// Rebuild Σ0 from the local Green's functions of `pass` into `out`
+    /// (from the diagonal blocks when the scattering has coupling
+    /// matrices).
+    fn rebuild(&self, pass: &Pass, out: &mut ScatteringSelfEnergy) {
         let ne = self.problem.grid.count;
-        self.problem
-            .scattering
-            .self_energy_at_into(green, ne, self.hilbert, self.lattice, out);
+        let scat = &self.problem.scattering;
+        match &pass.blocks {
+            Some(blocks) => {
+                scat.self_energy_blocks_into(blocks, ne, self.hilbert, self.lattice, out)
+            }
+            None => scat.self_energy_at_into(&pass.green, ne, self.hilbert, self.lattice, out),
+        }
     }
 }
 
@@ -743,14 +887,14 @@ fn sweep(
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
             pass_rows(problem, leads, x, false, red, p)?;
-            maps.rebuild(&p.green, fx);
+            maps.rebuild(p, fx);
             ensure_finite(fx, problem, iteration)?;
             copy_rows(fx, x, |k| !red(k));
             pass_rows(problem, leads, x, false, |k| !red(k), p)?;
         }
         None => pass_rows(problem, leads, x, false, |_| true, p)?,
     }
-    maps.rebuild(&p.green, fx);
+    maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
     // values, the mixer); stop here and say where it appeared.
     ensure_finite(fx, problem, iteration)
@@ -772,7 +916,7 @@ pub fn born_map(
         .then(|| HilbertTransform::new(ne));
     let mut x = sigma.clone();
     let mut p = pass(problem, leads, &x, false)?;
-    let mut fx = ScatteringSelfEnergy::zeros(ne, problem.sites());
+    let mut fx = sigma_zeros(problem);
     let colour = red_black_colouring(problem, order).map(|(w, _)| w);
     let maps = BornMaps {
         problem,

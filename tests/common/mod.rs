@@ -168,6 +168,7 @@ pub fn phonon(grid: &EnergyGrid, energy: f64, d: f64, mask: &[bool], bath_k: f64
         steps,
         coupling_ev2: mask.iter().map(|&m| if m { d } else { 0.0 }).collect(),
         bath_temperature_k: bath_k,
+        ..Default::default()
     }
 }
 

@@ -170,7 +170,7 @@ fn refuse_old_builder_key(dev: &RawDevice, ck: &Checker<'_>) -> Result<(), CaseE
 }
 
 /// A block file named by `key`, read through `files`.
-fn read_named(
+pub(crate) fn read_named(
     name: &Spanned<String>,
     key: &str,
     ck: &Checker<'_>,

@@ -1,8 +1,12 @@
 //! `[[phonon]]` (Einstein modes) and `[dephasing]` (elastic dephasing).
 
-use super::super::check::{Checker, MAX_ENERGY_EV, show, span_of};
+use super::super::blocks_file::BlockFiles;
+use super::super::check::{Checker, MAX_ENERGY_EV, show};
 use super::super::error::CaseError;
-use super::super::raw::{RawCase, RawPhonon};
+use super::super::raw::{Opt, RawCase, RawPhonon};
+use super::device::read_named;
+use crate::C64;
+use faer::Mat;
 use std::ops::Range;
 use toml::Spanned;
 
@@ -11,12 +15,48 @@ use toml::Spanned;
 /// unit slip (meV for eV) or a typo.
 pub(crate) const MAX_PHONON_EV: f64 = 0.5;
 
+/// How strongly a mechanism couples on the orbitals of a cell.
+#[derive(Clone, Debug)]
+pub(crate) enum CouplingSpec {
+    /// The same strength (eV²) on every orbital.
+    Uniform(f64),
+    /// One strength (eV²) per orbital of a cell; the length is checked
+    /// against the device once its orbital count is known.
+    PerOrbital {
+        values: Vec<f64>,
+        key: String,
+        span: Option<Range<usize>>,
+    },
+    /// Hermitian coupling matrices (eV) from a blocks file, each an
+    /// independent source in every cell of the region; their size is
+    /// checked against the device later (a .csv file's is a lower bound).
+    Matrices {
+        matrices: Vec<Mat<C64>>,
+        from_csv: bool,
+        key: String,
+        span: Option<Range<usize>>,
+    },
+}
+
+impl CouplingSpec {
+    /// True when the mechanism couples nowhere (every strength zero).
+    pub fn is_zero(&self) -> bool {
+        match self {
+            CouplingSpec::Uniform(d) => *d == 0.0,
+            CouplingSpec::PerOrbital { values, .. } => values.iter().all(|&d| d == 0.0),
+            CouplingSpec::Matrices { matrices, .. } => matrices.iter().all(|m| {
+                (0..m.nrows()).all(|r| (0..m.ncols()).all(|c| m[(r, c)] == C64::new(0.0, 0.0)))
+            }),
+        }
+    }
+}
+
 /// One validated phonon mode.
 #[derive(Clone, Debug)]
 pub(crate) struct PhononSpec {
     pub energy_ev: f64,
     pub energy_span: Option<Range<usize>>,
-    pub coupling_ev2: f64,
+    pub coupling: CouplingSpec,
     pub from_nm: f64,
     pub to_nm: f64,
     pub bath_temperature_k: f64,
@@ -30,13 +70,22 @@ impl PhononSpec {
         ck: &Checker<'_>,
         length_nm: f64,
         mean_lead_t: f64,
+        files: &mut BlockFiles,
     ) -> Result<Vec<Self>, CaseError> {
-        raw.phonon
-            .iter()
-            .flatten()
-            .enumerate()
-            .map(|(i, p)| Self::one(p, &format!("phonon.{i}"), ck, length_nm, mean_lead_t))
-            .collect()
+        let mut out = Vec::new();
+        for (i, p) in raw.phonon.iter().flatten().enumerate() {
+            let prefix = format!("phonon.{i}");
+            let mut mode = Self::one(p, &prefix, ck, length_nm, mean_lead_t)?;
+            let key = format!("{prefix}.coupling_matrices_file");
+            let given = p.get_ref().coupling_ev2.is_some()
+                || p.get_ref().coupling_per_orbital_ev2.is_some();
+            if let Some(m) = matrices(&p.get_ref().coupling_matrices_file, &key, given, ck, files)?
+            {
+                mode.coupling = m;
+            }
+            out.push(mode);
+        }
+        Ok(out)
     }
 
     fn one(
@@ -65,17 +114,21 @@ impl PhononSpec {
                 format!("{} eV", show(e.value)),
             ));
         }
-        let coupling = ck.required(
-            ck.ranged(
-                &p.coupling_ev2,
-                &format!("{prefix}.coupling_ev2"),
-                "a coupling in eV² ≥ 0",
-                |x| (0.0..=MAX_ENERGY_EV).contains(&x),
-            )?,
-            Some(span),
-            &format!("{prefix}.coupling_ev2"),
-            "the coupling in eV² (≥ 0)",
-        )?;
+        // With a matrices file the caller sets the coupling from it.
+        let coupling = if p.coupling_matrices_file.is_some() {
+            CouplingSpec::Uniform(0.0)
+        } else {
+            coupling(
+                ck,
+                (&p.coupling_ev2, &p.coupling_per_orbital_ev2),
+                (
+                    &format!("{prefix}.coupling_ev2"),
+                    &format!("{prefix}.coupling_per_orbital_ev2"),
+                ),
+                span,
+                "the coupling in eV² (≥ 0)",
+            )?
+        };
         let (from, to) = ck.region(&p.from_nm, &p.to_nm, prefix, length_nm, None)?;
         let bath = ck
             .temperature(
@@ -86,7 +139,7 @@ impl PhononSpec {
         Ok(Self {
             energy_ev: e.value,
             energy_span: e.span,
-            coupling_ev2: coupling,
+            coupling,
             from_nm: from,
             to_nm: to,
             bath_temperature_k: bath,
@@ -97,7 +150,7 @@ impl PhononSpec {
 /// A validated `[dephasing]` table.
 #[derive(Clone, Debug)]
 pub(crate) struct DephasingSpec {
-    pub strength_ev2: f64,
+    pub strength: CouplingSpec,
     pub from_nm: f64,
     pub to_nm: f64,
 }
@@ -107,35 +160,160 @@ impl DephasingSpec {
         raw: &RawCase,
         ck: &Checker<'_>,
         length_nm: f64,
+        files: &mut BlockFiles,
     ) -> Result<Option<Self>, CaseError> {
         let Some(d) = &raw.dephasing else {
             return Ok(None);
         };
         let span = d.span();
         let d = d.get_ref();
-        let strength = ck.required(
-            ck.non_negative(
-                &d.strength_ev2,
+        let key = "dephasing.coupling_matrices_file";
+        let given = d.strength_ev2.is_some() || d.strength_per_orbital_ev2.is_some();
+        if let Some(m) = matrices(&d.coupling_matrices_file, key, given, ck, files)? {
+            let (from, to) = ck.region(&d.from_nm, &d.to_nm, "dephasing", length_nm, None)?;
+            return Ok(Some(Self {
+                strength: m,
+                from_nm: from,
+                to_nm: to,
+            }));
+        }
+        let strength = coupling(
+            ck,
+            (&d.strength_ev2, &d.strength_per_orbital_ev2),
+            (
                 "dephasing.strength_ev2",
-                "a dephasing strength in eV²",
-            )?,
-            Some(span),
-            "dephasing.strength_ev2",
+                "dephasing.strength_per_orbital_ev2",
+            ),
+            span,
             "the dephasing strength in eV² (≥ 0)",
         )?;
-        if strength > MAX_ENERGY_EV {
-            return Err(ck.ctx.invalid(
-                span_of(&d.strength_ev2),
-                "dephasing.strength_ev2",
-                "a dephasing strength in eV² ≤ 1e6",
-                show(strength),
-            ));
-        }
         let (from, to) = ck.region(&d.from_nm, &d.to_nm, "dephasing", length_nm, None)?;
         Ok(Some(Self {
-            strength_ev2: strength,
+            strength,
             from_nm: from,
             to_nm: to,
         }))
     }
+}
+
+/// The strength of a mechanism from its scalar key or its per-orbital
+/// list (exactly one of the two); `keys` names them in that order.
+fn coupling(
+    ck: &Checker<'_>,
+    (scalar, list): (&Opt<f64>, &Opt<toml::Value>),
+    (scalar_key, list_key): (&str, &str),
+    table: Range<usize>,
+    what: &str,
+) -> Result<CouplingSpec, CaseError> {
+    let in_range = |x: f64| (0.0..=MAX_ENERGY_EV).contains(&x);
+    let expected = format!("a strength in eV² ≥ 0 and ≤ {}", show(MAX_ENERGY_EV));
+    match (scalar, list) {
+        (Some(_), Some(l)) => Err(ck.ctx.invalid(
+            Some(l.span()),
+            list_key,
+            &format!("either {scalar_key} or {list_key}, not both"),
+            "both set (hint: keep one of the two)",
+        )),
+        (_, Some(l)) => {
+            let span = Some(l.span());
+            let values = numbers(l.get_ref()).ok_or_else(|| {
+                ck.ctx
+                    .invalid(span.clone(), list_key, "an array of numbers", l.get_ref())
+            })?;
+            if values.is_empty() {
+                return Err(ck.ctx.invalid(
+                    span,
+                    list_key,
+                    "one value per orbital of a cell",
+                    "an empty array",
+                ));
+            }
+            if let Some(i) = values.iter().position(|&x| !in_range(x)) {
+                return Err(ck.ctx.invalid(
+                    span,
+                    list_key,
+                    &format!("{expected} for every orbital"),
+                    format!("{} at orbital {i}", show(values[i])),
+                ));
+            }
+            Ok(CouplingSpec::PerOrbital {
+                values,
+                key: list_key.to_string(),
+                span,
+            })
+        }
+        (_, None) => {
+            let d = ck.ranged(scalar, scalar_key, &expected, in_range)?;
+            let d = ck.required(d, Some(table), scalar_key, what)?;
+            Ok(CouplingSpec::Uniform(d))
+        }
+    }
+}
+
+/// The coupling matrices of `key` when the file is given (refused next to
+/// a scalar or per-orbital strength, `other_given`): a blocks file of
+/// Hermitian b × b matrices, one source each.
+fn matrices(
+    name: &Opt<String>,
+    key: &str,
+    other_given: bool,
+    ck: &Checker<'_>,
+    files: &mut BlockFiles,
+) -> Result<Option<CouplingSpec>, CaseError> {
+    let Some(name) = name else {
+        return Ok(None);
+    };
+    let span = Some(name.span());
+    if other_given {
+        return Err(ck.ctx.invalid(
+            span,
+            key,
+            "coupling matrices or a strength (scalar or per orbital), not both",
+            "both set (hint: keep one of the two)",
+        ));
+    }
+    let (_, file) = read_named(name, key, ck, files)?;
+    for (k, m) in file.blocks.iter().enumerate() {
+        let scale = (0..m.nrows())
+            .flat_map(|r| (0..m.ncols()).map(move |c| (r, c)))
+            .fold(0.0f64, |s, (r, c)| s.max(m[(r, c)].norm()));
+        let worst = (0..m.nrows())
+            .flat_map(|r| (0..m.ncols()).map(move |c| (r, c)))
+            .fold(0.0f64, |s, (r, c)| {
+                s.max((m[(r, c)] - m[(c, r)].conj()).norm())
+            });
+        if worst > 1e-12 * scale.max(1e-300) || scale > 1e3 {
+            return Err(ck.ctx.invalid(
+                span,
+                key,
+                "Hermitian coupling matrices (M = M†) with entries of at most 1e3 eV",
+                format!(
+                    "matrix {k} with largest entry {} eV and |M − M†| up to {} eV \
+                     (hint: a complex entry's mirror must be its conjugate)",
+                    show(scale),
+                    show(worst)
+                ),
+            ));
+        }
+    }
+    Ok(Some(CouplingSpec::Matrices {
+        matrices: file.blocks,
+        from_csv: file.from_csv,
+        key: key.to_string(),
+        span,
+    }))
+}
+
+/// The numbers of a TOML array (integers accepted), or `None` when it is
+/// not an array of finite numbers.
+fn numbers(v: &toml::Value) -> Option<Vec<f64>> {
+    let items = v.as_array()?;
+    items
+        .iter()
+        .map(|x| match x {
+            toml::Value::Float(f) if f.is_finite() => Some(*f),
+            toml::Value::Integer(i) => Some(*i as f64),
+            _ => None,
+        })
+        .collect()
 }
