@@ -506,6 +506,49 @@ temperature_k = 300
     assert!(why.contains("on-site block of cell 0"), "{why}");
 }
 
+/// A coupling matrix that joins two channels (a spin-flip source) makes
+/// them mix, even where H and the leads keep them apart; the same source
+/// without the off-diagonal element does not.
+#[test]
+fn a_spin_flip_coupling_matrix_mixes_the_channels() {
+    use qheat::scattering::CouplingMatrices;
+    use qheat::thermo::channels::channel_mixing;
+    let text = r#"
+name = "spin chain"
+[device]
+kind = "chain"
+spacing_nm = 0.5
+length_nm = 2.0
+effective_mass = 0.2
+spin = "explicit"
+[leads.left]
+fermi_level_ev = 0.25
+temperature_k = 300
+[leads.right]
+fermi_level_ev = 0.25
+temperature_k = 300
+"#;
+    let r = case(text).resolve().unwrap();
+    let channels = r.channels.as_ref().unwrap();
+    let mut p = r.problem.clone();
+    assert_eq!(channel_mixing(&p, channels), None);
+    let source = |flip: f64| {
+        faer::Mat::from_fn(2, 2, |i, j| {
+            qheat::C64::new(if i == j { 0.01 } else { flip }, 0.0)
+        })
+    };
+    let cells = p.device.cells();
+    p.scattering.dephasing_matrices = CouplingMatrices {
+        per_cell: vec![vec![source(0.0)]; cells],
+    };
+    assert_eq!(channel_mixing(&p, channels), None);
+    p.scattering.dephasing_matrices = CouplingMatrices {
+        per_cell: vec![vec![source(0.01)]; cells],
+    };
+    let why = channel_mixing(&p, channels).expect("a spin-flip source mixes up and down");
+    assert!(why.contains("coupling matrix of the dephasing"), "{why}");
+}
+
 /// `qheat solve` writes the channel tables and the `channels` summary
 /// object when the case names channels, and nothing of them otherwise.
 #[test]

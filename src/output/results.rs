@@ -2,8 +2,7 @@
 
 use super::schema::summary::{
     CellValue, ChannelSummary, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint,
-    PhononInfo,
-    Program, SolveResults, SolveSummary, to_text,
+    PhononInfo, Program, SolveResults, SolveSummary, to_text,
 };
 use super::schema::tables::{self, SolvePoint};
 use super::{OutputError, Staging, npy_bytes};

@@ -52,7 +52,7 @@ fn mixing_in(m: &Mat<C64>, channels: &Channels, what: &str, scale: f64) -> Optio
         .mixing_element(m, MIXING_TOLERANCE * scale)
         .map(|(r, c, v)| {
             format!(
-                "{what} couples orbital {r} (channel `{}`) to orbital {c} (channel `{}`) with |H| = {v:.3e} eV",
+                "{what} couples orbital {r} (channel `{}`) to orbital {c} (channel `{}`) with an element of {v:.3e} eV",
                 channels.list[channels.channel_of(r)].name,
                 channels.list[channels.channel_of(c)].name
             )
@@ -60,9 +60,9 @@ fn mixing_in(m: &Mat<C64>, channels: &Channels, what: &str, scale: f64) -> Optio
 }
 
 /// Why the channels of `problem` mix, or `None` when they do not: every
-/// device block, both leads' blocks and the scattering are checked (the
-/// scattering self-energies are diagonal per orbital site, so they never
-/// mix channels).
+/// device block, both leads' blocks and the scattering's coupling matrices
+/// are checked (per-orbital couplings never mix channels; a coupling
+/// matrix with an element between two channels does).
 pub fn channel_mixing(problem: &Problem, channels: &Channels) -> Option<String> {
     let dev = &problem.device;
     let scale = dev
@@ -88,6 +88,9 @@ pub fn channel_mixing(problem: &Problem, channels: &Channels) -> Option<String> 
             return Some(why);
         }
     }
+    if let Some(why) = scattering_mixing(problem, channels, scale) {
+        return Some(why);
+    }
     for (name, contact) in [("left", &problem.left), ("right", &problem.right)] {
         let blocks: Vec<(&str, &Mat<C64>)> = match &contact.lead {
             Lead::Periodic { onsite, hopping } => vec![("cell", onsite), ("coupling", hopping)],
@@ -97,6 +100,28 @@ pub fn channel_mixing(problem: &Problem, channels: &Channels) -> Option<String> 
             let what = format!("the {name} lead's {part} block");
             if let Some(why) = mixing_in(m, channels, &what, scale) {
                 return Some(why);
+            }
+        }
+    }
+    None
+}
+
+/// Where a coupling matrix of the dephasing or of a phonon mode couples
+/// two channels.
+fn scattering_mixing(problem: &Problem, channels: &Channels, scale: f64) -> Option<String> {
+    let sc = &problem.scattering;
+    let mechanisms = std::iter::once(("the dephasing", &sc.dephasing_matrices)).chain(
+        sc.phonons
+            .iter()
+            .map(|m| ("a phonon mode", &m.coupling_matrices)),
+    );
+    for (name, matrices) in mechanisms {
+        for (i, sources) in matrices.per_cell.iter().enumerate() {
+            for m in sources {
+                let what = format!("a coupling matrix of {name} in cell {i}");
+                if let Some(why) = mixing_in(m, channels, &what, scale) {
+                    return Some(why);
+                }
             }
         }
     }
