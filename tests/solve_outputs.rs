@@ -97,7 +97,7 @@ fn at<'a>(v: &'a Value, path: &str) -> &'a Value {
 /// numbers, in the order printed. A line that is not listed, or a line
 /// with more or fewer numbers, fails the test: a new terminal number must
 /// get its key here and in summary.json.
-const LINES: [(&str, &[&str]); 15] = [
+const LINES: [(&str, &[&str]); 16] = [
     (
         "operating point",
         &[
@@ -128,14 +128,22 @@ const LINES: [(&str, &[&str]); 15] = [
         ],
     ),
     (
-        "hottest cell",
+        "most heated",
         &[
             "results.hottest_cell_w.x_nm",
             "results.hottest_cell_w.value",
         ],
     ),
+    // The cell of least lattice power: cooled (negative) or heated least.
     (
-        "coolest cell",
+        "most cooled",
+        &[
+            "results.coolest_cell_w.x_nm",
+            "results.coolest_cell_w.value",
+        ],
+    ),
+    (
+        "least heated",
         &[
             "results.coolest_cell_w.x_nm",
             "results.coolest_cell_w.value",

@@ -102,9 +102,15 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
             si(r.lattice_power_phonon_side_w, "W", 4)
         );
     }
+    // Lattice power, not temperature: the lattice temperature has lines of
+    // its own with self-heating.
+    let least = match &r.coolest_cell_w {
+        Some(c) if c.value < 0.0 => "  most cooled  ",
+        _ => "  least heated ",
+    };
     for (label, cell) in [
-        ("  hottest cell ", &r.hottest_cell_w),
-        ("  coolest cell ", &r.coolest_cell_w),
+        ("  most heated  ", &r.hottest_cell_w),
+        (least, &r.coolest_cell_w),
     ] {
         if let Some(c) = cell {
             println!(
