@@ -107,6 +107,31 @@ impl DeviceSpec {
         if self.spin_explicit { 2 * b } else { b }
     }
 
+    /// The cells whose position x = c·a lies in [from_nm, to_nm).
+    pub fn cells_in(&self, from_nm: f64, to_nm: f64) -> impl Iterator<Item = usize> + '_ {
+        (0..self.cells).filter(move |&c| {
+            let x = c as f64 * self.spacing_nm;
+            x >= from_nm && x < to_nm
+        })
+    }
+
+    /// Warn when the region `prefix` over [from_nm, to_nm) holds no cell
+    /// (cells sit at multiples of the spacing), so it would have no effect.
+    pub fn warn_if_no_cell(
+        &self,
+        prefix: &str,
+        from_nm: f64,
+        to_nm: f64,
+        warnings: &mut Vec<String>,
+    ) {
+        if self.cells_in(from_nm, to_nm).next().is_none() {
+            warnings.push(format!(
+                "{prefix} [{from_nm}, {to_nm}) nm covers no cell (cells sit at multiples of {} nm): it has no effect",
+                self.spacing_nm
+            ));
+        }
+    }
+
     /// Validate `[device]`; block files come from (or go into) `files`.
     pub fn from_raw(
         raw: &RawCase,

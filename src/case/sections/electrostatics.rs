@@ -277,16 +277,7 @@ fn regions(
     for (i, r) in e.region.iter().flatten().enumerate() {
         let prefix = format!("electrostatics.region.{i}");
         let region = one_region(r, &prefix, ck, device.length_nm())?;
-        let covers = (0..device.cells).any(|c| {
-            let x = c as f64 * device.spacing_nm;
-            x >= region.from_nm && x < region.to_nm
-        });
-        if !covers {
-            warnings.push(format!(
-                "{prefix} [{}, {}) nm covers no cell (cells sit at multiples of {} nm): it has no effect",
-                region.from_nm, region.to_nm, device.spacing_nm
-            ));
-        }
+        device.warn_if_no_cell(&prefix, region.from_nm, region.to_nm, warnings);
         out.push(region);
     }
     Ok(out)

@@ -129,7 +129,7 @@ impl LatticeSpec {
         let mut masses = vec![f.mass_u; n];
         let mut springs = vec![f.spring_n_per_m; n];
         for r in &self.regions {
-            for c in cells_in(device, r.from_nm, r.to_nm) {
+            for c in device.cells_in(r.from_nm, r.to_nm) {
                 if let Some(m) = r.mass_u {
                     masses[c] = m;
                 }
@@ -146,7 +146,7 @@ impl LatticeSpec {
         let mut gamma = vec![self.damping_per_ps; device.cells];
         for r in &self.regions {
             if let Some(g) = r.damping_per_ps {
-                for c in cells_in(device, r.from_nm, r.to_nm) {
+                for c in device.cells_in(r.from_nm, r.to_nm) {
                     gamma[c] = g;
                 }
             }
@@ -176,7 +176,7 @@ impl LatticeSpec {
         let mut masses = vec![None; device.cells];
         for r in &self.regions {
             if let Some(m) = r.mass_u {
-                for c in cells_in(device, r.from_nm, r.to_nm) {
+                for c in device.cells_in(r.from_nm, r.to_nm) {
                     masses[c] = Some(m);
                 }
             }
@@ -307,14 +307,6 @@ fn springs(
     })
 }
 
-/// The cells whose position c·a lies in [from, to).
-fn cells_in(device: &DeviceSpec, from_nm: f64, to_nm: f64) -> impl Iterator<Item = usize> + '_ {
-    (0..device.cells).filter(move |&c| {
-        let x = c as f64 * device.spacing_nm;
-        x >= from_nm && x < to_nm
-    })
-}
-
 /// K_ii (without the lead bonds, which [`Lattice::new`] adds) and K_i,i+1
 /// of a strip W wide with free edges: `longitudinal` holds the N − 1
 /// internal bonds along x, `kt` the spring across.
@@ -413,15 +405,7 @@ fn regions(
     for (i, r) in l.region.iter().flatten().enumerate() {
         let prefix = format!("lattice.region.{i}");
         let region = one_region(r, &prefix, ck, device.length_nm())?;
-        if cells_in(device, region.from_nm, region.to_nm)
-            .next()
-            .is_none()
-        {
-            warnings.push(format!(
-                "{prefix} [{}, {}) nm covers no cell (cells sit at multiples of {} nm): it has no effect",
-                region.from_nm, region.to_nm, device.spacing_nm
-            ));
-        }
+        device.warn_if_no_cell(&prefix, region.from_nm, region.to_nm, warnings);
         out.push(region);
     }
     Ok(out)

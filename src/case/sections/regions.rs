@@ -117,18 +117,7 @@ fn regions_from_raw(
     for (i, r) in entries.into_iter().flatten().enumerate() {
         let prefix = format!("device.region.{i}");
         let region = one_region(r, &prefix, ck, device.length_nm())?;
-        let covered = (0..device.cells)
-            .filter(|&c| {
-                let x = c as f64 * device.spacing_nm;
-                x >= region.from_nm && x < region.to_nm
-            })
-            .count();
-        if covered == 0 {
-            warnings.push(format!(
-                "{prefix} [{}, {}) nm covers no cell (cells sit at multiples of {} nm): it has no effect",
-                region.from_nm, region.to_nm, device.spacing_nm
-            ));
-        }
+        device.warn_if_no_cell(&prefix, region.from_nm, region.to_nm, warnings);
         let names = r.get_ref().channels.as_ref().map(|c| c.get_ref().clone());
         regions.push((region, names));
     }
