@@ -387,11 +387,24 @@ ul.notes li{margin:0.3em 0}
 .banner{background:#fbe9e4;border:1px solid #d9a89a;padding:10px 14px;margin:1em 0}
 ";
 
-/// Build the HTML page of a result folder.
-///
-/// Errors when the folder cannot be read, holds nothing to show (no
-/// summary.json, figure or CSV table) or a file in it cannot be read.
-pub fn build_report(dir: &Path) -> Result<String, OutputError> {
+/// The file name of `p` as text (empty when it has none).
+fn name_of(p: &Path) -> String {
+    p.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
+}
+
+/// Read a text file of the folder.
+fn read_text(p: &Path) -> Result<String, OutputError> {
+    std::fs::read_to_string(p).map_err(|source| OutputError::Io {
+        action: "reading",
+        path: p.to_path_buf(),
+        source,
+    })
+}
+
+/// The visible files of the folder, sorted by name.
+fn folder_files(dir: &Path) -> Result<Vec<PathBuf>, OutputError> {
     let entries = std::fs::read_dir(dir).map_err(|source| OutputError::Io {
         action: "listing",
         path: dir.to_path_buf(),
@@ -407,37 +420,33 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
         })
         .collect();
     files.sort();
-    let name_of = |p: &Path| {
-        p.file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_default()
-    };
-    let read = |p: &Path| {
-        std::fs::read_to_string(p).map_err(|source| OutputError::Io {
-            action: "reading",
-            path: p.to_path_buf(),
-            source,
-        })
-    };
+    Ok(files)
+}
 
-    let summary_path = dir.join("summary.json");
-    let mut summary_problem = None;
-    let summary: Option<Map<String, Value>> = if summary_path.is_file() {
-        match serde_json::from_str::<Value>(&read(&summary_path)?) {
-            Ok(Value::Object(m)) => Some(m),
-            Ok(_) => {
-                summary_problem = Some("summary.json does not hold a JSON object".to_string());
-                None
-            }
-            Err(e) => {
-                summary_problem = Some(format!("summary.json cannot be read as JSON: {e}"));
-                None
-            }
-        }
-    } else {
-        None
-    };
+/// summary.json as an object, or the reason it cannot be shown (neither
+/// when the folder has none).
+type SummaryRead = (Option<Map<String, Value>>, Option<String>);
 
+fn read_summary(dir: &Path) -> Result<SummaryRead, OutputError> {
+    let path = dir.join("summary.json");
+    if !path.is_file() {
+        return Ok((None, None));
+    }
+    Ok(match serde_json::from_str::<Value>(&read_text(&path)?) {
+        Ok(Value::Object(m)) => (Some(m), None),
+        Ok(_) => (
+            None,
+            Some("summary.json does not hold a JSON object".to_string()),
+        ),
+        Err(e) => (
+            None,
+            Some(format!("summary.json cannot be read as JSON: {e}")),
+        ),
+    })
+}
+
+/// The SVG figures of the folder, the headline ones first.
+fn ordered_figures(files: &[PathBuf]) -> Vec<PathBuf> {
     let mut figures: Vec<PathBuf> = files
         .iter()
         .filter(|p| p.extension().is_some_and(|e| e == "svg"))
@@ -453,6 +462,128 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
             n,
         )
     });
+    figures
+}
+
+/// A string value at the top level of the summary.
+fn summary_str(summary: Option<&Map<String, Value>>, key: &str) -> Option<String> {
+    summary
+        .and_then(|s| s.get(key))
+        .and_then(Value::as_str)
+        .map(str::to_string)
+}
+
+/// The page head, title, meta line and the failure or not-converged banner.
+fn page_head(
+    html: &mut String,
+    summary: Option<&Map<String, Value>>,
+    summary_problem: Option<&str>,
+    folder_name: &str,
+) {
+    let case_name = summary_str(summary, "case_name").unwrap_or_else(|| folder_name.to_string());
+    let _ = write!(
+        html,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
+         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+         <title>{} — qheat report</title>\n<style>{CSS}</style>\n</head>\n<body>\n<main>\n",
+        escape(&case_name)
+    );
+    let _ = writeln!(html, "<h1>{}</h1>", escape(&case_name));
+    let mut meta = Vec::new();
+    if let Some(k) = summary_str(summary, "kind") {
+        meta.push(format!("{} run", escape(&k)));
+    }
+    if let Some(f) = summary_str(summary, "case_file") {
+        meta.push(format!("case file <code>{}</code>", escape(&f)));
+    }
+    if let Some(Value::Object(p)) = summary.and_then(|s| s.get("program")) {
+        meta.push(format!(
+            "{} {}",
+            escape(p.get("name").and_then(Value::as_str).unwrap_or("")),
+            escape(p.get("version").and_then(Value::as_str).unwrap_or(""))
+        ));
+    }
+    meta.push(format!("folder <code>{}</code>", escape(folder_name)));
+    let _ = writeln!(html, "<p class=\"meta\">{}</p>", meta.join(" · "));
+
+    if let Some(problem) = summary_problem {
+        let _ = writeln!(html, "<div class=\"banner\">{}</div>", escape(problem));
+    }
+    let Some(s) = summary else { return };
+    if let Some(e) = s.get("error").and_then(Value::as_str) {
+        let _ = writeln!(
+            html,
+            "<div class=\"banner\"><strong>This run failed:</strong> {}</div>",
+            escape(e)
+        );
+    } else if s.get("trustworthy") == Some(&Value::Bool(false)) {
+        html.push_str(
+            "<div class=\"banner\"><strong>Not converged:</strong> the values below are \
+             flagged as not trustworthy.</div>\n",
+        );
+    }
+}
+
+/// Every figure inlined, each with its file name as caption.
+fn figures_html(figures: &[PathBuf]) -> Result<String, OutputError> {
+    let mut html = String::new();
+    if figures.is_empty() {
+        return Ok(html);
+    }
+    html.push_str("<h2>Figures</h2>\n");
+    for f in figures {
+        let svg = read_text(f)?;
+        let Some(i) = svg.find("<svg") else {
+            return Err(report_error(f, "not an SVG figure: no <svg> element found"));
+        };
+        let _ = writeln!(
+            html,
+            "<figure id=\"{}\"><figcaption>{}</figcaption>\n{}\n</figure>",
+            escape(&name_of(f)),
+            escape(&name_of(f)),
+            svg[i..].trim_end()
+        );
+    }
+    Ok(html)
+}
+
+/// The known data files present in the folder, with what each holds and
+/// its size.
+fn data_files_html(html: &mut String, dir: &Path) {
+    let data: Vec<(String, &str, u64)> = DATA_FILES
+        .iter()
+        .filter_map(|(n, what)| {
+            let p = dir.join(n);
+            std::fs::metadata(&p)
+                .ok()
+                .filter(|m| m.is_file())
+                .map(|m| (n.to_string(), *what, m.len()))
+        })
+        .collect();
+    if data.is_empty() {
+        return;
+    }
+    html.push_str("<h2>Data files in this folder</h2>\n<table class=\"values\"><tbody>\n");
+    for (n, what, len) in &data {
+        let _ = writeln!(
+            html,
+            "<tr><th><code>{}</code></th><td>{}</td><td>{}</td></tr>",
+            escape(n),
+            escape(what),
+            escape(&si(*len as f64, "B"))
+        );
+    }
+    html.push_str("</tbody></table>\n");
+}
+
+/// Build the HTML page of a result folder.
+///
+/// Errors when the folder cannot be read, holds nothing to show (no
+/// summary.json, figure or CSV table) or a file in it cannot be read.
+pub fn build_report(dir: &Path) -> Result<String, OutputError> {
+    let files = folder_files(dir)?;
+    let (summary, summary_problem) = read_summary(dir)?;
+    let figures = ordered_figures(&files);
     let known_data = |n: &str| DATA_FILES.iter().any(|(f, _)| *f == n);
     let tables: Vec<PathBuf> = files
         .iter()
@@ -465,124 +596,33 @@ pub fn build_report(dir: &Path) -> Result<String, OutputError> {
             "nothing to report: the folder has no summary.json, no .svg figure and no .csv table",
         ));
     }
-
     let folder_name = dir
         .canonicalize()
         .ok()
         .and_then(|p| p.file_name().map(|n| n.to_string_lossy().into_owned()))
         .unwrap_or_else(|| dir.display().to_string());
-    let get_str = |k: &str| {
-        summary
-            .as_ref()
-            .and_then(|s| s.get(k))
-            .and_then(Value::as_str)
-            .map(str::to_string)
-    };
-    let case_name = get_str("case_name").unwrap_or_else(|| folder_name.clone());
-    let kind = get_str("kind");
 
     let mut html = String::with_capacity(1 << 20);
-    let _ = write!(
-        html,
-        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
-         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
-         <title>{} — qheat report</title>\n<style>{CSS}</style>\n</head>\n<body>\n<main>\n",
-        escape(&case_name)
+    page_head(
+        &mut html,
+        summary.as_ref(),
+        summary_problem.as_deref(),
+        &folder_name,
     );
-    let _ = writeln!(html, "<h1>{}</h1>", escape(&case_name));
-    let mut meta = Vec::new();
-    if let Some(k) = &kind {
-        meta.push(format!("{} run", escape(k)));
-    }
-    if let Some(f) = get_str("case_file") {
-        meta.push(format!("case file <code>{}</code>", escape(&f)));
-    }
-    if let Some(Value::Object(p)) = summary.as_ref().and_then(|s| s.get("program")) {
-        meta.push(format!(
-            "{} {}",
-            escape(p.get("name").and_then(Value::as_str).unwrap_or("")),
-            escape(p.get("version").and_then(Value::as_str).unwrap_or(""))
-        ));
-    }
-    meta.push(format!("folder <code>{}</code>", escape(&folder_name)));
-    let _ = writeln!(html, "<p class=\"meta\">{}</p>", meta.join(" · "));
-
-    if let Some(problem) = &summary_problem {
-        let _ = writeln!(html, "<div class=\"banner\">{}</div>", escape(problem));
-    }
-    if let Some(s) = &summary {
-        if let Some(e) = s.get("error").and_then(Value::as_str) {
-            let _ = writeln!(
-                html,
-                "<div class=\"banner\"><strong>This run failed:</strong> {}</div>",
-                escape(e)
-            );
-        } else if s.get("trustworthy") == Some(&Value::Bool(false)) {
-            html.push_str(
-                "<div class=\"banner\"><strong>Not converged:</strong> the values below are \
-                 flagged as not trustworthy.</div>\n",
-            );
-        }
-    }
     // The figures come right after the headline values: the page answers
     // where the heat goes and where the resistance sits before it turns to
     // convergence, the ledger and the other recorded values.
-    let mut figure_html = String::new();
-    if !figures.is_empty() {
-        let html = &mut figure_html;
-        html.push_str("<h2>Figures</h2>\n");
-        for f in &figures {
-            let svg = read(f)?;
-            let body = match svg.find("<svg") {
-                Some(i) => &svg[i..],
-                None => {
-                    return Err(report_error(f, "not an SVG figure: no <svg> element found"));
-                }
-            };
-            let _ = writeln!(
-                html,
-                "<figure id=\"{}\"><figcaption>{}</figcaption>\n{}\n</figure>",
-                escape(&name_of(f)),
-                escape(&name_of(f)),
-                body.trim_end()
-            );
-        }
-    }
+    let figure_html = figures_html(&figures)?;
     match summary.as_ref() {
         Some(s) => summary_sections(&mut html, s, &figure_html),
         None => html.push_str(&figure_html),
     }
-
     for t in &tables {
         let _ = writeln!(html, "<h2>Table {}</h2>", escape(&name_of(t)));
-        csv_table(&mut html, t, &read(t)?)?;
+        csv_table(&mut html, t, &read_text(t)?)?;
     }
-
-    let data: Vec<(String, &str, u64)> = DATA_FILES
-        .iter()
-        .filter_map(|(n, what)| {
-            let p = dir.join(n);
-            std::fs::metadata(&p)
-                .ok()
-                .filter(|m| m.is_file())
-                .map(|m| (n.to_string(), *what, m.len()))
-        })
-        .collect();
-    if !data.is_empty() {
-        html.push_str("<h2>Data files in this folder</h2>\n<table class=\"values\"><tbody>\n");
-        for (n, what, len) in &data {
-            let _ = writeln!(
-                html,
-                "<tr><th><code>{}</code></th><td>{}</td><td>{}</td></tr>",
-                escape(n),
-                escape(what),
-                escape(&si(*len as f64, "B"))
-            );
-        }
-        html.push_str("</tbody></table>\n");
-    }
-
-    if let Some(case) = get_str("resolved_case") {
+    data_files_html(&mut html, dir);
+    if let Some(case) = summary_str(summary.as_ref(), "resolved_case") {
         html.push_str("<h2>Resolved case</h2>\n");
         let _ = writeln!(html, "<pre>{}</pre>", escape(&case));
     }
@@ -708,6 +748,12 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
         table(html, &rows);
         shown.push("ledger");
     }
+    warnings_and_notes(html, s);
+    other_values(html, s, &shown);
+}
+
+/// The warnings and notes of the summary as a list.
+fn warnings_and_notes(html: &mut String, s: &Map<String, Value>) {
     let list = |k: &str| -> Vec<String> {
         s.get(k)
             .and_then(Value::as_array)
@@ -740,6 +786,10 @@ fn summary_sections(html: &mut String, s: &Map<String, Value>, figures: &str) {
         }
         html.push_str("</ul>\n");
     }
+}
+
+/// Every value of the summary not shown in a section of its own.
+fn other_values(html: &mut String, s: &Map<String, Value>, shown: &[&str]) {
     let mut rest = Vec::new();
     for (k, v) in s {
         if shown.contains(&k.as_str()) {
