@@ -286,6 +286,32 @@ pub fn blocks(
             )));
         }
     };
+    check_blocks(&onsite, &coupling, b)?;
+    let onsite: Vec<Mat<C64>> = onsite
+        .into_iter()
+        .zip(&potential_ev)
+        .map(|(mut m, &u)| {
+            for o in 0..b {
+                m[(o, o)] += C64::new(u, 0.0);
+            }
+            m
+        })
+        .collect();
+    let band_edge_ev = block_band_edges(&onsite, &coupling);
+    Ok(Device {
+        spacing_nm,
+        orbitals: b,
+        onsite,
+        coupling,
+        x_nm: cell_positions(cells, spacing_nm),
+        potential_ev,
+        band_edge_ev,
+    })
+}
+
+/// Every on-site block b×b and Hermitian (1e-10 relative to its largest
+/// element), every coupling block b×b.
+fn check_blocks(onsite: &[Mat<C64>], coupling: &[Mat<C64>], b: usize) -> Result<(), DeviceError> {
     for (cell, m) in onsite.iter().enumerate() {
         if m.nrows() != b || m.ncols() != b {
             return Err(DeviceError::BlockShape {
@@ -318,17 +344,14 @@ pub fn blocks(
             });
         }
     }
-    let onsite: Vec<Mat<C64>> = onsite
-        .into_iter()
-        .zip(&potential_ev)
-        .map(|(mut m, &u)| {
-            for o in 0..b {
-                m[(o, o)] += C64::new(u, 0.0);
-            }
-            m
-        })
-        .collect();
-    let band_edge_ev = (0..cells)
+    Ok(())
+}
+
+/// The lowest band energy of each cell continued periodically with the
+/// coupling on its right (on its left for the last cell).
+fn block_band_edges(onsite: &[Mat<C64>], coupling: &[Mat<C64>]) -> Vec<f64> {
+    let cells = onsite.len();
+    (0..cells)
         .map(|i| {
             let hop = if i + 1 < cells {
                 &coupling[i]
@@ -337,20 +360,12 @@ pub fn blocks(
             } else {
                 // A single cell: no periodic continuation is known; use the
                 // lowest level of the cell itself.
+                let b = onsite[i].nrows();
                 return lowest_band_energy(&onsite[i], &Mat::zeros(b, b));
             };
             lowest_band_energy(&onsite[i], hop)
         })
-        .collect();
-    Ok(Device {
-        spacing_nm,
-        orbitals: b,
-        onsite,
-        coupling,
-        x_nm: cell_positions(cells, spacing_nm),
-        potential_ev,
-        band_edge_ev,
-    })
+        .collect()
 }
 
 /// Largest element modulus of a block.
