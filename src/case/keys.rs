@@ -35,6 +35,9 @@ pub enum ValueType {
     Names,
     /// A list of whole numbers (`[0, 2]`).
     Indices,
+    /// A list of square matrices, each a list of rows whose entries are
+    /// numbers or `[re, im]` pairs.
+    Matrices,
 }
 
 impl ValueType {
@@ -61,6 +64,7 @@ impl ValueType {
             ValueType::Renamed => "—".into(),
             ValueType::Names => "list of strings".into(),
             ValueType::Indices => "list of integers".into(),
+            ValueType::Matrices => "list of matrices (rows of numbers or `[re, im]` pairs)".into(),
         }
     }
 }
@@ -443,6 +447,15 @@ pub static KEYS: &[KeyInfo] = &[
          intervalley, spin-flip); in place of coupling_ev2",
     ),
     key(
+        "phonon.#.coupling_matrices_ev",
+        ValueType::Matrices,
+        "eV",
+        Text("none"),
+        "the coupling matrices written in the case: a list of K Hermitian b × b matrices, \
+         each a list of rows, an entry a number or `[re, im]`; the same as \
+         coupling_matrices_file, in place of it or of coupling_ev2",
+    ),
+    key(
         "phonon.#.from_nm",
         Float,
         "nm",
@@ -484,6 +497,15 @@ pub static KEYS: &[KeyInfo] = &[
         Text("none"),
         "blocks file (.npy or .csv, shape (K, b, b)) of K Hermitian coupling matrices M, \
          each adding M G M in every cell of the region; in place of strength_ev2",
+    ),
+    key(
+        "dephasing.coupling_matrices_ev",
+        ValueType::Matrices,
+        "eV",
+        Text("none"),
+        "the coupling matrices written in the case: a list of K Hermitian b × b matrices, \
+         each a list of rows, an entry a number or `[re, im]`; the same as \
+         coupling_matrices_file, in place of it or of strength_ev2",
     ),
     key(
         "dephasing.from_nm",

@@ -113,6 +113,8 @@ pub(crate) struct RawPhonon {
     pub coupling_per_orbital_ev2: Opt<toml::Value>,
     /// A blocks file of coupling matrices (eV), one source each.
     pub coupling_matrices_file: Opt<String>,
+    /// The coupling matrices (eV) written in the case, read by hand.
+    pub coupling_matrices_ev: Opt<toml::Value>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
     pub bath_temperature_k: Opt<f64>,
@@ -126,6 +128,8 @@ pub(crate) struct RawDephasing {
     pub strength_per_orbital_ev2: Opt<toml::Value>,
     /// A blocks file of coupling matrices (eV), one source each.
     pub coupling_matrices_file: Opt<String>,
+    /// The coupling matrices (eV) written in the case, read by hand.
+    pub coupling_matrices_ev: Opt<toml::Value>,
     pub from_nm: Opt<f64>,
     pub to_nm: Opt<f64>,
 }
@@ -493,6 +497,8 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
         (ValueType::Indices, DeValue::Array(a)) => a
             .iter()
             .all(|x| matches!(x.get_ref(), DeValue::Integer(i) if int_ok(i))),
+        // The shape and the entries are checked with the scattering.
+        (ValueType::Matrices, DeValue::Array(_)) => true,
         _ => false,
     }
 }
@@ -506,6 +512,7 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::FloatList => "an array of numbers",
         ValueType::Names => "a list of strings",
         ValueType::Indices => "a list of whole numbers",
+        ValueType::Matrices => "a list of matrices",
         _ => "a string",
     }
 }

@@ -67,9 +67,11 @@
 
 mod mixing;
 mod params;
+mod undetermined;
 
 pub use mixing::Mixer;
 pub use params::{EnergyOrder, Mixing, ScbaParams};
+pub use undetermined::{IsolatedPart, UndeterminedOccupation};
 
 use crate::C64;
 use crate::leads::{LeadError, Side};
@@ -122,6 +124,12 @@ pub enum SolveError {
         /// Current from the right lead (A).
         current_right_a: f64,
     },
+    /// Part of the device has no path to a lead at some energies and only
+    /// elastic dephasing reaches it, so its occupation is undetermined and
+    /// the loop wanders there (the loop is stopped early, see
+    /// [`UndeterminedOccupation`]).
+    #[error("{0}")]
+    Undetermined(Box<UndeterminedOccupation>),
 }
 
 impl SolveError {
@@ -138,6 +146,7 @@ impl SolveError {
             SolveError::SelfEnergyNotFinite {
                 energy_ev, cell, ..
             } => Some((*energy_ev, Some(*cell))),
+            SolveError::Undetermined(u) => u.location(),
             SolveError::Invalid(_) | SolveError::Diverged { .. } => None,
         }
     }
@@ -149,6 +158,7 @@ impl SolveError {
             SolveError::Rgf(_) => "non-finite Green's function",
             SolveError::SelfEnergyNotFinite { .. } => "non-finite scattering self-energy",
             SolveError::Diverged { .. } => "diverged",
+            SolveError::Undetermined(_) => "undetermined occupation",
             SolveError::Invalid(_) => "invalid input",
         }
     }
@@ -705,6 +715,9 @@ struct BornLoop<'a> {
     colour: Option<usize>,
     /// `black_ready` of the first iteration (see [`BornLoop::run`]).
     black_ready_at_start: bool,
+    /// The watch over parts of the device cut off from the leads (None
+    /// when there are none).
+    isolation: Option<undetermined::Isolation>,
 }
 
 impl<'a> BornLoop<'a> {
@@ -749,6 +762,7 @@ impl<'a> BornLoop<'a> {
             hilbert,
             colour: colouring.map(|(w, _)| w),
             black_ready_at_start: !warm || !black_needs_black,
+            isolation: undetermined::Isolation::new(problem, leads, params.tolerance),
         }
     }
 
@@ -799,6 +813,9 @@ impl<'a> BornLoop<'a> {
             previous = Some((il, ir));
             self.report.iterations = iteration;
             let done = residual <= params.tolerance && current_change <= 1.0;
+            if let (Some(watch), false) = (self.isolation.as_mut(), done) {
+                watch.observe(problem, &x, &fx, iteration, residual)?;
+            }
             let out_of_budget = iteration >= params.max_iterations;
             let step = if done || out_of_budget {
                 "final"

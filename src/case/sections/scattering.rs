@@ -76,11 +76,14 @@ impl PhononSpec {
         for (i, p) in raw.phonon.iter().flatten().enumerate() {
             let prefix = format!("phonon.{i}");
             let mut mode = Self::one(p, &prefix, ck, length_nm, mean_lead_t)?;
-            let key = format!("{prefix}.coupling_matrices_file");
-            let given = p.get_ref().coupling_ev2.is_some()
-                || p.get_ref().coupling_per_orbital_ev2.is_some();
-            if let Some(m) = matrices(&p.get_ref().coupling_matrices_file, &key, given, ck, files)?
-            {
+            let raw = p.get_ref();
+            let keys = (
+                format!("{prefix}.coupling_matrices_file"),
+                format!("{prefix}.coupling_matrices_ev"),
+            );
+            let given = raw.coupling_ev2.is_some() || raw.coupling_per_orbital_ev2.is_some();
+            let sources = (&raw.coupling_matrices_file, &raw.coupling_matrices_ev);
+            if let Some(m) = matrices(sources, (&keys.0, &keys.1), given, ck, files)? {
                 mode.coupling = m;
             }
             out.push(mode);
@@ -114,8 +117,8 @@ impl PhononSpec {
                 format!("{} eV", show(e.value)),
             ));
         }
-        // With a matrices file the caller sets the coupling from it.
-        let coupling = if p.coupling_matrices_file.is_some() {
+        // With coupling matrices the caller sets the coupling from them.
+        let coupling = if p.coupling_matrices_file.is_some() || p.coupling_matrices_ev.is_some() {
             CouplingSpec::Uniform(0.0)
         } else {
             coupling(
@@ -167,9 +170,13 @@ impl DephasingSpec {
         };
         let span = d.span();
         let d = d.get_ref();
-        let key = "dephasing.coupling_matrices_file";
+        let keys = (
+            "dephasing.coupling_matrices_file",
+            "dephasing.coupling_matrices_ev",
+        );
         let given = d.strength_ev2.is_some() || d.strength_per_orbital_ev2.is_some();
-        if let Some(m) = matrices(&d.coupling_matrices_file, key, given, ck, files)? {
+        let sources = (&d.coupling_matrices_file, &d.coupling_matrices_ev);
+        if let Some(m) = matrices(sources, keys, given, ck, files)? {
             let (from, to) = ck.region(&d.from_nm, &d.to_nm, "dephasing", length_nm, None)?;
             return Ok(Some(Self {
                 strength: m,
@@ -250,20 +257,30 @@ fn coupling(
     }
 }
 
-/// The coupling matrices of `key` when the file is given (refused next to
-/// a scalar or per-orbital strength, `other_given`): a blocks file of
-/// Hermitian b × b matrices, one source each.
+/// The coupling matrices of a mechanism when a file (`keys.0`) or the
+/// inline list (`keys.1`) gives them (one of the two, and refused next to
+/// a scalar or per-orbital strength, `other_given`): Hermitian b × b
+/// matrices, one source each.
 fn matrices(
-    name: &Opt<String>,
-    key: &str,
+    (file, inline): (&Opt<String>, &Opt<toml::Value>),
+    (file_key, inline_key): (&str, &str),
     other_given: bool,
     ck: &Checker<'_>,
     files: &mut BlockFiles,
 ) -> Result<Option<CouplingSpec>, CaseError> {
-    let Some(name) = name else {
-        return Ok(None);
+    let (key, span) = match (file, inline) {
+        (None, None) => return Ok(None),
+        (Some(_), Some(v)) => {
+            return Err(ck.ctx.invalid(
+                Some(v.span()),
+                inline_key,
+                &format!("either {file_key} or {inline_key}, not both"),
+                "both set (hint: keep one of the two)",
+            ));
+        }
+        (Some(f), None) => (file_key, Some(f.span())),
+        (None, Some(v)) => (inline_key, Some(v.span())),
     };
-    let span = Some(name.span());
     if other_given {
         return Err(ck.ctx.invalid(
             span,
@@ -272,8 +289,45 @@ fn matrices(
             "both set (hint: keep one of the two)",
         ));
     }
-    let (_, file) = read_named(name, key, ck, files)?;
-    for (k, m) in file.blocks.iter().enumerate() {
+    let (blocks, from_csv) = match (file, inline) {
+        (Some(name), _) => {
+            let (_, file) = read_named(name, key, ck, files)?;
+            (file.blocks, file.from_csv)
+        }
+        (None, Some(v)) => {
+            let blocks = inline_matrices(v.get_ref()).map_err(|found| {
+                ck.ctx.invalid(
+                    span.clone(),
+                    key,
+                    "a list of square matrices of one size, each a list of rows whose \
+                     entries are numbers or [re, im] pairs (eV)",
+                    format!(
+                        "{found} (hint: one matrix is written [[a, b], [c, d]] for two \
+                         orbitals, a complex entry as [re, im])"
+                    ),
+                )
+            })?;
+            (blocks, false)
+        }
+        (None, None) => return Ok(None),
+    };
+    check_hermitian(&blocks, key, span.clone(), ck)?;
+    Ok(Some(CouplingSpec::Matrices {
+        matrices: blocks,
+        from_csv,
+        key: key.to_string(),
+        span,
+    }))
+}
+
+/// Refuses a matrix that is not Hermitian or has an entry above 1e3 eV.
+fn check_hermitian(
+    blocks: &[Mat<C64>],
+    key: &str,
+    span: Option<Range<usize>>,
+    ck: &Checker<'_>,
+) -> Result<(), CaseError> {
+    for (k, m) in blocks.iter().enumerate() {
         let scale = (0..m.nrows())
             .flat_map(|r| (0..m.ncols()).map(move |c| (r, c)))
             .fold(0.0f64, |s, (r, c)| s.max(m[(r, c)].norm()));
@@ -296,12 +350,57 @@ fn matrices(
             ));
         }
     }
-    Ok(Some(CouplingSpec::Matrices {
-        matrices: file.blocks,
-        from_csv: file.from_csv,
-        key: key.to_string(),
-        span,
-    }))
+    Ok(())
+}
+
+/// One entry of an inline matrix: a number or a `[re, im]` pair.
+fn entry(v: &toml::Value) -> Option<C64> {
+    match v {
+        toml::Value::Array(pair) if pair.len() == 2 => {
+            let n = numbers(v)?;
+            Some(C64::new(n[0], n[1]))
+        }
+        toml::Value::Float(f) if f.is_finite() => Some(C64::new(*f, 0.0)),
+        toml::Value::Integer(i) => Some(C64::new(*i as f64, 0.0)),
+        _ => None,
+    }
+}
+
+/// The matrices of an inline list, or what is wrong with it (in words).
+fn inline_matrices(v: &toml::Value) -> Result<Vec<Mat<C64>>, String> {
+    let list = v
+        .as_array()
+        .filter(|l| !l.is_empty())
+        .ok_or_else(|| "not a non-empty list of matrices".to_string())?;
+    let mut out = Vec::with_capacity(list.len());
+    for (k, m) in list.iter().enumerate() {
+        let rows = m
+            .as_array()
+            .filter(|r| !r.is_empty())
+            .ok_or_else(|| format!("matrix {k} is not a non-empty list of rows"))?;
+        let b = rows.len();
+        if let Some(first) = out
+            .first()
+            .map(|x: &Mat<C64>| x.nrows())
+            .filter(|&f| f != b)
+        {
+            return Err(format!("matrix {k} has {b} rows, matrix 0 {first}"));
+        }
+        let mut mat = Mat::<C64>::zeros(b, b);
+        for (r, row) in rows.iter().enumerate() {
+            let cols = row
+                .as_array()
+                .filter(|c| c.len() == b)
+                .ok_or_else(|| format!("row {r} of matrix {k} is not a list of {b} entries"))?;
+            for (c, x) in cols.iter().enumerate() {
+                mat[(r, c)] = entry(x).ok_or_else(|| {
+                    format!("entry ({r}, {c}) of matrix {k} is {x}, not a number or [re, im]")
+                })?;
+            }
+        }
+        out.push(mat);
+    }
+    Ok(out)
 }
 
 /// The numbers of a TOML array (integers accepted), or `None` when it is
