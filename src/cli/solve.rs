@@ -380,6 +380,7 @@ fn run_electrostatics(
         .map_err(RunError::Born)?;
     let run = EsRun {
         potential_ev: sc.potential_ev,
+        electrons: sc.electrons,
         report: sc.report,
     };
     Ok((sc.solution, run))
@@ -388,6 +389,7 @@ fn run_electrostatics(
 /// What the self-consistent electrostatics adds to a solve.
 struct EsRun {
     potential_ev: Vec<f64>,
+    electrons: Vec<f64>,
     report: electrostatics::ElectrostaticsReport,
 }
 
@@ -414,6 +416,8 @@ fn electrostatics_summary(sol: &Solution, r: &EsRun) -> ElectrostaticsSummary {
         poisson_residual: r.report.poisson_residual,
         born_residual: r.report.born_residual,
         converged: r.report.converged,
+        potential_energy_per_cell_ev: r.potential_ev.clone(),
+        electrons_per_cell: r.electrons.clone(),
     }
 }
 

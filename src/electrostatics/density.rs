@@ -20,12 +20,16 @@ fn logistic(x: f64) -> f64 {
 /// and its spectral weight per energy, with the quasi-Fermi level that
 /// reproduces the electron number from that weight.
 ///
-/// The predictor keeps the spectral weight and the quasi-Fermi level of
-/// each cell and moves the states rigidly with the potential: after a
-/// change δU_i of the potential energy of cell i the cell holds
+/// Both are integrated over energy with the band-edge-aware weights
+/// q_ik of [`edge_weights`] for the band edges of cell i (the bottoms of
+/// the subbands of its periodic continuation, potential included):
+/// n_i = g_s/(2π) Σ_k q_ik Σ_o G^n_oo(E_k). The predictor keeps the
+/// spectral weight and the quasi-Fermi level of each cell and moves the
+/// states rigidly with the potential: after a change δU_i of the
+/// potential energy of cell i the cell holds
 ///
 /// ```text
-/// n_i(δU_i) = Σ_k w_ik f((E_k + δU_i − µ_i)/k_B T),   w_ik = g_s ΔE/(2π) Σ_o A_oo(E_k)
+/// n_i(δU_i) = Σ_k w_ik f((E_k + δU_i − µ_i)/k_B T),   w_ik = g_s q_ik/(2π) Σ_o A_oo(E_k)
 /// ```
 ///
 /// so n_i(0) is the electron number of the pass and dn_i/dδU_i < 0 is
@@ -52,20 +56,21 @@ impl CellDensity {
         let n = p.device.cells();
         let ns = n * b;
         let ne = p.grid.count;
-        let scale = p.spin_degeneracy * p.grid.step_ev / (2.0 * std::f64::consts::PI);
+        let scale = p.spin_degeneracy / (2.0 * std::f64::consts::PI);
         let g = &sol.pass.green;
         let energies: Vec<f64> = (0..ne).map(|k| p.grid.energy(k)).collect();
         let kt = crate::units::thermal_energy_ev(temperature_k);
         let rows: Vec<(Vec<f64>, f64)> = (0..n)
             .into_par_iter()
             .map(|c| {
+                let q = edge_weights(&energies, &cell_band_edges(&p.device, c));
                 let mut w = vec![0.0; ne];
                 let mut filled = 0.0;
                 for (k, wk) in w.iter_mut().enumerate() {
                     for o in 0..b {
                         let idx = k * ns + c * b + o;
-                        *wk += scale * g.spectral(idx);
-                        filled += scale * g.filled[idx];
+                        *wk += scale * q[k] * g.spectral(idx);
+                        filled += scale * q[k] * g.filled[idx];
                     }
                 }
                 (w, filled)
@@ -154,6 +159,136 @@ impl CellDensity {
         let n0 = self.count(cell, self.fermi_level_ev[cell], 0.0).0;
         (n + (self.electrons[cell] - n0), dn)
     }
+}
+
+/// Share of a grid step, measured above a band edge, within which a node
+/// hands its value over to the next node up (see [`edge_weights`]).
+const HANDOVER: f64 = 0.5;
+
+/// A value of the smooth factor s at one node: a linear combination of
+/// grid nodes.
+type NodeValue = [(usize, f64); 2];
+
+/// ∫ ω and ∫ t ω over [x0, x1] for ω(E) = Σ_m (E − c_m)^(−1/2) over the
+/// edges `active` (all ≤ x0), t = (E − x0)/(x1 − x0); written with
+/// d = √y1 − √y0 = (y1 − y0)/(√y1 + √y0) so that no difference of large
+/// numbers is formed.
+fn singular_moments(active: &[f64], x0: f64, x1: f64) -> (f64, f64) {
+    let (mut whole, mut tilted) = (0.0, 0.0);
+    for &c in active {
+        let (r0, r1) = ((x0 - c).max(0.0).sqrt(), (x1 - c).max(0.0).sqrt());
+        if r0 + r1 == 0.0 {
+            continue;
+        }
+        let d = (x1 - x0) / (r1 + r0);
+        whole += 2.0 * d;
+        tilted += 2.0 / 3.0 * d * (r1 + 2.0 * r0) / (r1 + r0);
+    }
+    (whole, tilted)
+}
+
+/// 1/ω(E) for the edges `active` (0 on an edge).
+fn inverse_weight(active: &[f64], e: f64) -> f64 {
+    let w: f64 = active.iter().map(|&c| 1.0 / (e - c).max(0.0).sqrt()).sum();
+    if w.is_finite() { 1.0 / w } else { 0.0 }
+}
+
+/// The smooth factor s = g/ω at node `j` for the edges `active`, handed
+/// over linearly to node j + 1 as the nearest edge comes within
+/// `HANDOVER` steps below node j: a node that sits on an edge samples the
+/// singular density where it is least reliable, and its weight must fall
+/// to zero continuously as the edge reaches it. Every weight stays
+/// positive, so more states or more occupation never mean fewer electrons.
+fn node_value(energies: &[f64], active: &[f64], j: usize, step: f64) -> NodeValue {
+    let nearest = active.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let own = inverse_weight(active, energies[j]);
+    if j + 1 >= energies.len() {
+        return [(j, own), (j, 0.0)];
+    }
+    let lambda = ((energies[j] - nearest) / (HANDOVER * step)).clamp(0.0, 1.0);
+    let next = inverse_weight(active, energies[j + 1]);
+    [(j, lambda * own), (j + 1, (1.0 - lambda) * next)]
+}
+
+/// Quadrature weights q_k (eV) for the integral over energy of a density
+/// g sampled on the uniform grid `energies`, ∫ g dE ≈ Σ_k q_k g(E_k), for
+/// a density with the one-dimensional band-edge singularity
+/// g ∝ (E − c_m)^(−1/2) just above each edge c_m of `edges`.
+///
+/// Above the lowest edge the density is written g = s·ω with
+/// ω(E) = Σ_{c_m ≤ E} (E − c_m)^(−1/2); s is smooth and is interpolated
+/// linearly between the nodes (and held at the first node's value down to
+/// an edge), and the
+/// product with ω is integrated exactly on every piece between grid
+/// energies and edges. Below the lowest edge each node holds its value up
+/// to the next node or edge (the rectangle rule of the grid). The weights
+/// are continuous functions of the edges, so the electrons of a cell
+/// change smoothly when its potential moves its band edges across the
+/// grid, which sampling the singularity point by point does not do.
+pub fn edge_weights(energies: &[f64], edges: &[f64]) -> Vec<f64> {
+    let ne = energies.len();
+    let mut q = vec![0.0; ne];
+    if ne < 2 {
+        return q;
+    }
+    let step = energies[1] - energies[0];
+    let mut edges = edges.to_vec();
+    edges.sort_by(f64::total_cmp);
+    let mut cuts = Vec::with_capacity(edges.len() + 2);
+    for k in 0..ne - 1 {
+        let (a, b) = (energies[k], energies[k + 1]);
+        cuts.clear();
+        cuts.push(a);
+        cuts.extend(edges.iter().copied().filter(|&c| c > a && c < b));
+        cuts.push(b);
+        for w in cuts.windows(2) {
+            let (x0, x1) = (w[0], w[1]);
+            let active = &edges[..edges.partition_point(|&c| c <= x0)];
+            if active.is_empty() {
+                q[k] += x1 - x0;
+                continue;
+            }
+            let left = (x0 == a).then(|| node_value(energies, active, k, step));
+            let right = (x1 == b).then(|| node_value(energies, active, k + 1, step));
+            let (whole, tilted) = singular_moments(active, x0, x1);
+            let (l, r, wl, wr) = match (left, right) {
+                (Some(l), Some(r)) => (l, r, whole - tilted, tilted),
+                (Some(v), None) | (None, Some(v)) => (v, v, whole, 0.0),
+                (None, None) => {
+                    let v = node_value(energies, active, k + 1, step);
+                    (v, v, whole, 0.0)
+                }
+            };
+            for (j, c) in l {
+                q[j] += wl * c;
+            }
+            for (j, c) in r {
+                q[j] += wr * c;
+            }
+        }
+    }
+    q
+}
+
+/// The band edges of cell `cell`: the bottoms of the subbands of its
+/// periodic continuation, the eigenvalues of H_ii + H_c + H_c† with H_c
+/// the coupling to a neighbour (exact for chains and strips, whose
+/// coupling is −t·1).
+pub fn cell_band_edges(device: &crate::device::Device, cell: usize) -> Vec<f64> {
+    let Some(hop) = device
+        .coupling
+        .get(cell)
+        .or_else(|| device.coupling.get(cell.wrapping_sub(1)))
+    else {
+        return vec![device.band_edge_ev[cell]];
+    };
+    let h = &device.onsite[cell];
+    let m = h + hop + hop.adjoint();
+    if m.nrows() == 1 {
+        return vec![m[(0, 0)].re];
+    }
+    m.self_adjoint_eigenvalues(faer::Side::Lower)
+        .unwrap_or_else(|_| vec![device.band_edge_ev[cell]])
 }
 
 /// Electrons per cell of an infinite uniform band at Fermi level `mu`:

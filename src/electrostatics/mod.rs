@@ -45,17 +45,20 @@
 //! imbalance of a cell in the Poisson equation with the transport density,
 //! and the Born loop's own residual.
 //!
-//! On a uniform energy grid the 1/√(E − Ec) density of states of a long,
-//! flat, coherent region is sampled point by point; where a band edge
-//! sits just below a grid energy the sampled electron number grows as the
-//! band rises, and the loop can stall at a change of the order of the grid
-//! step. Broadening in the device or short flat regions avoid it.
+//! The electrons of each cell are integrated over energy with weights
+//! that know where the cell's band edges are (`density.rs`,
+//! [`edge_weights`]): summed point by point on the uniform grid, the
+//! 1/√(E − Ec) density of states of a flat region makes the electron
+//! number a jagged, non-monotone function of the potential, and the loop
+//! crawls; with the weights it is continuous and monotone.
 
 mod density;
 mod mixing;
 mod poisson;
 
-pub use density::{CellDensity, neutral_band_edge, uniform_band_electrons};
+pub use density::{
+    CellDensity, cell_band_edges, edge_weights, neutral_band_edge, uniform_band_electrons,
+};
 
 use crate::C64;
 use crate::leads::Lead;
@@ -280,6 +283,10 @@ pub struct SelfConsistent {
     pub solution: Solution,
     /// U_es of each cell (eV).
     pub potential_ev: Vec<f64>,
+    /// Electrons of each cell as the Poisson equation counts them: G^n of
+    /// the solution integrated with the band-edge-aware weights of
+    /// [`edge_weights`].
+    pub electrons: Vec<f64>,
     /// Convergence record.
     pub report: ElectrostaticsReport,
 }
@@ -364,6 +371,7 @@ pub fn solve(
             return Ok(SelfConsistent {
                 solution: sol,
                 potential_ev: u,
+                electrons: density.electrons,
                 report,
             });
         }

@@ -253,7 +253,11 @@ pub fn write_solve_files(
     summary: &SolveSummary,
 ) -> Result<(), OutputError> {
     stage.write("summary.json", to_text(summary).as_bytes())?;
-    let point = SolvePoint { sol, o };
+    let point = SolvePoint {
+        sol,
+        o,
+        electrostatics: summary.electrostatics.as_ref(),
+    };
     for table in [tables::sites(), tables::spectrum(), tables::convergence()] {
         stage.write(table.file, &table.csv(&point))?;
     }

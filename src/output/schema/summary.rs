@@ -260,6 +260,15 @@ pub struct ElectrostaticsSummary {
     pub poisson_residual: f64,
     pub born_residual: f64,
     pub converged: bool,
+    /// Electrostatic potential energy U_es of each cell (eV); written to
+    /// sites.csv, not to summary.json.
+    #[serde(skip, default)]
+    pub potential_energy_per_cell_ev: Vec<f64>,
+    /// Electrons of each cell as the Poisson equation counts them
+    /// (band-edge-aware energy weights); written to sites.csv, not to
+    /// summary.json.
+    #[serde(skip, default)]
+    pub electrons_per_cell: Vec<f64>,
 }
 
 /// Where a failed solve broke down.

@@ -14,6 +14,8 @@ pub struct SolvePoint<'a> {
     pub sol: &'a Solution,
     /// Its observables.
     pub o: &'a Observables,
+    /// The self-consistent electrostatics of the point, when it has one.
+    pub electrostatics: Option<&'a super::summary::ElectrostaticsSummary>,
 }
 
 fn col<S>(
@@ -84,6 +86,60 @@ fn mover_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
                       direction, 4 a match outside the search interval, 5 kernel failure",
             only_when: Some((WHEN, present)),
             value: |p, i| Cell::Int(movers(p).map_or(5, |m| m.status[i].code())),
+        },
+    ]
+}
+
+/// The electrostatics columns of sites.csv, written when the potential was
+/// solved with the transport (`[electrostatics]`).
+fn electrostatics_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
+    const WHEN: &str = "with [electrostatics]";
+    fn cell(v: &[f64], i: usize) -> f64 {
+        v.get(i).copied().unwrap_or(f64::NAN)
+    }
+    let present: fn(&SolvePoint<'_>) -> bool = |p| p.electrostatics.is_some();
+    vec![
+        Column {
+            name: "electrostatic_potential_energy_ev",
+            unit: "eV",
+            meaning: "electrostatic potential energy U_es = −eφ of the cell that the device's \
+                      charge puts there; band_edge_ev and potential_ev include it",
+            only_when: Some((WHEN, present)),
+            value: |p, i| {
+                Cell::Num(
+                    p.electrostatics
+                        .map_or(f64::NAN, |e| cell(&e.potential_energy_per_cell_ev, i)),
+                )
+            },
+        },
+        Column {
+            name: "band_edge_imposed_ev",
+            unit: "eV",
+            meaning: "local band bottom without the computed potential: band_edge_ev − \
+                      electrostatic_potential_energy_ev (the band-offset regions only)",
+            only_when: Some((WHEN, present)),
+            value: |p, i| {
+                Cell::Num(p.electrostatics.map_or(f64::NAN, |e| {
+                    p.o.sites.band_edge_ev[i] - cell(&e.potential_energy_per_cell_ev, i)
+                }))
+            },
+        },
+        Column {
+            name: "electrons_poisson",
+            unit: "1",
+            meaning: "electrons of the cell (spin included) as the Poisson equation counts \
+                      them: G^n integrated over energy with weights that follow the \
+                      (E − Ec)^(−1/2) band edge of the cell between grid points. Its sum \
+                      neutralises the doping (Gauss's law) where electron_density_per_nm × \
+                      spacing, summed point by point on the grid, is off by the sampling error \
+                      of the band edge",
+            only_when: Some((WHEN, present)),
+            value: |p, i| {
+                Cell::Num(
+                    p.electrostatics
+                        .map_or(f64::NAN, |e| cell(&e.electrons_per_cell, i)),
+                )
+            },
         },
     ]
 }
@@ -174,6 +230,7 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
         },
     });
     columns.extend(mover_columns());
+    columns.extend(electrostatics_columns());
     Table {
         file: "sites.csv",
         written_by: "`qheat solve`",
