@@ -58,6 +58,15 @@ pub enum Command {
         /// Start the Born loop from the self-energy stored in this result folder.
         #[arg(long, value_name = "DIR")]
         warm_start: Option<PathBuf>,
+        /// Write every array whole (maps and the self-energy for warm
+        /// starts), whatever their size; by default larger maps are
+        /// written as block means and a large self-energy is left out.
+        #[arg(long)]
+        full_arrays: bool,
+        /// Size budget of the result files in MB (10^6 bytes): each map at
+        /// most an eighth of it, each figure at most a tenth (and 5 MB).
+        #[arg(long, value_name = "MB", default_value_t = 50.0)]
+        result_budget_mb: f64,
     },
     /// Linear response: G, S, Π, κe, Lorenz ratio, power factor, ZT and the
     /// Onsager (Kelvin) residual.
@@ -325,11 +334,14 @@ fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
             out,
             overwrite,
             warm_start,
+            full_arrays,
+            result_budget_mb,
         } => solve::solve(
             case,
             out.as_deref(),
             others(*overwrite),
             warm_start.as_deref(),
+            &solve::result_limits(*result_budget_mb, *full_arrays)?,
             common,
         ),
         Command::Coefficients {

@@ -9,13 +9,14 @@ use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::{
     LATTICE_TEMPERATURE_FILE, RunInfo, header, read_lattice_temperature, read_self_energy,
-    solve_summary, write_solve_files,
+    solve_summary, write_solve_files_within,
 };
 use qheat::output::schema::summary::{
     CheckOutput, CheckPhonon, ElectrostaticsSummary, FailedSolveSummary, Fault, FermiLevelInfo,
     SelfHeatingSummary, SolveResults, SolveSummary, to_text,
 };
 use qheat::output::schema::tables::cell_lattice_temperature;
+use qheat::output::sizes::ResultLimits;
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::progress::Observer;
 use qheat::scattering::ScatteringSelfEnergy;
@@ -261,12 +262,28 @@ fn print_fermi_level_flags(f: &FermiLevelInfo) {
     );
 }
 
+/// The size limits of `--result-budget-mb` and `--full-arrays`.
+pub fn result_limits(budget_mb: f64, full_arrays: bool) -> Result<ResultLimits, Failure> {
+    if !(budget_mb.is_finite() && budget_mb >= 1.0) {
+        return Err(Failure::BadInput(format!(
+            "--result-budget-mb {budget_mb}: expected a size of at least 1 MB; hint: the \
+             default is {} MB, and --full-arrays writes every array whole",
+            ResultLimits::DEFAULT_BUDGET_BYTES / 1_000_000
+        )));
+    }
+    Ok(ResultLimits {
+        budget_bytes: (budget_mb * 1e6) as u64,
+        full_arrays,
+    })
+}
+
 /// `qheat solve CASE`.
 pub fn solve(
     path: &Path,
     out: Option<&Path>,
     other_files: OtherFiles,
     warm_start: Option<&Path>,
+    limits: &ResultLimits,
     common: &Common,
 ) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
@@ -335,11 +352,11 @@ pub fn solve(
     let phonons = super::lattice::spectrum(&resolved)?;
     summary.lattice = phonons.map(|s| lattice_summary(&resolved, s, t));
     let stage = Staging::with_options(&out_dir, &folder("solve", other_files))?;
-    write_solve_files(&stage, &sol, &o, &summary)?;
+    write_solve_files_within(&stage, &sol, &o, &mut summary, limits)?;
     if let Some(s) = phonons {
         write_phonon_files(&stage, s, t)?;
     }
-    qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
+    qheat::output::plots::write_solve_plots_within(&stage, &sol, &o, limits)?;
     stage.commit()?;
     if common.json {
         println!("{}", to_text(&summary));
