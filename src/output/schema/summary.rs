@@ -427,6 +427,10 @@ pub struct CheckOutput {
     pub memory_estimate_bytes: u64,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
+    /// Estimated wall time of the solve (s): a guess.
+    pub time_estimate_s: f64,
+    /// Born iterations the time estimate assumes.
+    pub iteration_guess: usize,
 }
 
 /// A phonon mode as `qheat check --json` lists it.
