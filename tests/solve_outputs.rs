@@ -402,6 +402,17 @@ fn solve_summary_keys_and_documentation_agree() {
     let mut spin_paths = Vec::new();
     paths(&summary(&spin), "", &mut spin_paths);
     found.extend(spin_paths.into_iter().filter(|p| p.starts_with("channels")));
+    // A result reduced to a small size budget has the `result_files` object.
+    let small = tmp.path().join("small");
+    let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["--threads", "1", "--quiet", "solve"])
+        .arg(demo("peltier-barrier"))
+        .args(["--result-budget-mb", "1", "-o"])
+        .arg(&small)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    paths(&summary(&small), "", &mut found);
     found.sort();
     found.dedup();
     let docs = qheat::output::schema::keys::summary_docs();

@@ -290,5 +290,26 @@ impl Resolved {
         );
         let mem = self.memory_estimate_bytes() as f64;
         let _ = writeln!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));
+        let threads = rayon::current_num_threads();
+        let _ = writeln!(
+            s,
+            "time        about {} on {threads} thread(s) (a guess: {} iteration(s) of about {} each)",
+            duration(self.time_estimate_seconds(threads)),
+            self.iteration_guess(),
+            duration(self.iteration_time_estimate_seconds(threads))
+        );
+    }
+}
+
+/// A duration in s, min or h with two or three significant digits.
+fn duration(seconds: f64) -> String {
+    if seconds < 1.0 {
+        format!("{:.2} s", seconds)
+    } else if seconds < 120.0 {
+        format!("{:.0} s", seconds)
+    } else if seconds < 7200.0 {
+        format!("{:.0} min", seconds / 60.0)
+    } else {
+        format!("{:.1} h", seconds / 3600.0)
     }
 }

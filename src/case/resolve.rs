@@ -1160,4 +1160,90 @@ impl Resolved {
         let parts = if real_part { 3 } else { 2 };
         e * s * (72 + 8 * parts * a + 16 * h) + fixed
     }
+
+    /// How many Born iterations the time estimate assumes: 1 without
+    /// scattering; otherwise a guess from the mixing (Anderson mixing
+    /// typically converges in 10–30 iterations on the cases measured,
+    /// linear mixing can need hundreds), never more than the limit.
+    pub fn iteration_guess(&self) -> usize {
+        if self.problem.scattering.is_coherent() {
+            return 1;
+        }
+        let guess = match self.scba.mixing {
+            Mixing::Anderson { .. } => 30,
+            Mixing::Linear { .. } => 100,
+        };
+        guess.min(self.scba.max_iterations.max(1))
+    }
+
+    /// Estimated wall time of one Born iteration on `threads` threads (s):
+    /// E·N·(10 + 6·b³ + 70·b) ns on one thread, divided by 0.9·threads.
+    ///
+    /// Calibration (2-core Xeon, release build): the recursion of one
+    /// energy costs about 16 ns per cell for b = 1 and 5.9 ns per cell and
+    /// orbital³ for b = 16 (benches/rgf.rs), hence 10 + 6·b³ ns; a whole
+    /// Born iteration of a b = 1 chain costs 86 ns per cell and energy
+    /// (benches/scba.rs, N = 400, 1000 energies), the other 70 ns per
+    /// orbital site going to mixing and rebuilding Σ0. Two threads gave
+    /// 1.8× (hence 0.9 per thread).
+    pub fn iteration_time_estimate_seconds(&self, threads: usize) -> f64 {
+        let p = &self.problem;
+        let (e, n, b) = (
+            p.grid.count as f64,
+            p.device.cells() as f64,
+            p.device.orbitals as f64,
+        );
+        let ns = e * n * (10.0 + 6.0 * b.powi(3) + 70.0 * b);
+        ns * 1e-9 / (0.9 * threads.max(1) as f64)
+    }
+
+    /// Estimated wall time of the solve (s): [`Self::iteration_guess`]
+    /// iterations of [`Self::iteration_time_estimate_seconds`]. A guess:
+    /// the iteration count is not known before the run, and the cost per
+    /// iteration varies with the machine by a factor of about two.
+    pub fn time_estimate_seconds(&self, threads: usize) -> f64 {
+        self.iteration_guess() as f64 * self.iteration_time_estimate_seconds(threads)
+    }
+
+    /// Settings that need less memory than these, each as the case keys to
+    /// set and its memory estimate (bytes), smallest change first: a
+    /// shallower Anderson history (depth halved, then depth 1), linear
+    /// mixing, and half the energies (twice the grid step).
+    pub fn memory_alternatives(&self) -> Vec<(String, u64)> {
+        let with_mixing = |m: Mixing| {
+            let mut r = self.clone();
+            r.scba = r.scba.with_mixing(m);
+            r.memory_estimate_bytes()
+        };
+        let mut out = Vec::new();
+        if let Mixing::Anderson { depth, .. } = self.scba.mixing {
+            for d in [depth / 2, 1] {
+                if d >= 1 && d < depth && !out.iter().any(|(k, _)| k == &depth_key(d)) {
+                    let m = Mixing::Anderson {
+                        depth: d,
+                        damping: Mixing::DEFAULT_ANDERSON_DAMPING,
+                    };
+                    out.push((depth_key(d), with_mixing(m)));
+                }
+            }
+            let linear = Mixing::Linear {
+                factor: Mixing::DEFAULT_LINEAR_FACTOR,
+            };
+            out.push(("solver.mixing = \"linear\"".into(), with_mixing(linear)));
+        }
+        let mut half = self.clone();
+        half.problem.grid.count = self.problem.grid.count.div_ceil(2);
+        out.push((
+            format!(
+                "grid.step_ev = {} (a coarser grid.step_ev: half the energies)",
+                2.0 * self.problem.grid.step_ev
+            ),
+            half.memory_estimate_bytes(),
+        ));
+        out
+    }
+}
+
+fn depth_key(d: usize) -> String {
+    format!("solver.anderson_depth = {d}")
 }

@@ -58,6 +58,19 @@ pub enum Command {
         /// Start the Born loop from the self-energy stored in this result folder.
         #[arg(long, value_name = "DIR")]
         warm_start: Option<PathBuf>,
+        /// Write every array whole (maps and the self-energy for warm
+        /// starts), whatever their size; by default larger maps are
+        /// written as block means and a large self-energy is left out.
+        #[arg(long)]
+        full_arrays: bool,
+        /// Size budget of the result files in MB (10^6 bytes): each map at
+        /// most an eighth of it, each figure at most a tenth (and 5 MB).
+        #[arg(long, value_name = "MB", default_value_t = 50.0)]
+        result_budget_mb: f64,
+        /// Run even when the memory estimate (shown by `qheat check`)
+        /// exceeds 80 % of the memory available.
+        #[arg(long)]
+        ignore_memory_estimate: bool,
     },
     /// Linear response: G, S, Π, κe, Lorenz ratio, power factor, ZT and the
     /// Onsager (Kelvin) residual.
@@ -325,11 +338,18 @@ fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
             out,
             overwrite,
             warm_start,
+            full_arrays,
+            result_budget_mb,
+            ignore_memory_estimate,
         } => solve::solve(
             case,
             out.as_deref(),
             others(*overwrite),
             warm_start.as_deref(),
+            &solve::SolveLimits {
+                files: solve::result_limits(*result_budget_mb, *full_arrays)?,
+                ignore_memory: *ignore_memory_estimate,
+            },
             common,
         ),
         Command::Coefficients {
@@ -513,7 +533,9 @@ pub fn check_memory(estimate_bytes: u64) -> Result<(), Failure> {
     Ok(())
 }
 
-/// MemAvailable from /proc/meminfo (Linux); `None` elsewhere.
+/// The memory a run may use: QHEAT_MEMORY_LIMIT_BYTES when set (a budget
+/// override), else MemAvailable from /proc/meminfo (Linux, or MemTotal
+/// where the kernel gives no MemAvailable); `None` elsewhere.
 pub fn available_memory_bytes() -> Option<u64> {
     if let Ok(v) = std::env::var("QHEAT_MEMORY_LIMIT_BYTES")
         && let Ok(n) = v.parse::<u64>()
@@ -521,9 +543,12 @@ pub fn available_memory_bytes() -> Option<u64> {
         return Some(n);
     }
     let text = std::fs::read_to_string("/proc/meminfo").ok()?;
-    text.lines()
-        .find(|l| l.starts_with("MemAvailable:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|kb| kb.parse::<u64>().ok())
-        .map(|kb| kb * 1024)
+    let field = |name: &str| {
+        text.lines()
+            .find(|l| l.starts_with(name))
+            .and_then(|l| l.split_whitespace().nth(1))
+            .and_then(|kb| kb.parse::<u64>().ok())
+            .map(|kb| kb * 1024)
+    };
+    field("MemAvailable:").or_else(|| field("MemTotal:"))
 }

@@ -2,20 +2,21 @@
 
 use super::format::{number, residual, si};
 use super::progress::{BornProgress, enabled};
-use super::{Common, Failure, check_memory, default_out, folder, print_warnings};
+use super::{Common, Failure, available_memory_bytes, default_out, folder, print_warnings};
 use qheat::case::{Case, Resolved};
 use qheat::electrostatics;
 use qheat::observables::{Observables, ObserveOptions, observe_with};
 use qheat::output::phonons::{lattice_summary, write_phonon_files};
 use qheat::output::results::{
     LATTICE_TEMPERATURE_FILE, RunInfo, header, read_lattice_temperature, read_self_energy,
-    solve_summary, write_solve_files,
+    solve_summary, write_solve_files_within,
 };
 use qheat::output::schema::summary::{
     CheckOutput, CheckPhonon, ElectrostaticsSummary, FailedSolveSummary, Fault, FermiLevelInfo,
     SelfHeatingSummary, SolveResults, SolveSummary, to_text,
 };
 use qheat::output::schema::tables::cell_lattice_temperature;
+use qheat::output::sizes::ResultLimits;
 use qheat::output::{OtherFiles, Staging, manifest::check_folder};
 use qheat::progress::Observer;
 use qheat::scattering::ScatteringSelfEnergy;
@@ -56,6 +57,8 @@ pub fn check(path: &Path, common: &Common) -> Result<(), Failure> {
             memory_estimate_bytes: resolved.memory_estimate_bytes(),
             warnings: resolved.warnings.clone(),
             notes: resolved.notes.clone(),
+            time_estimate_s: resolved.time_estimate_seconds(common.threads),
+            iteration_guess: resolved.iteration_guess(),
         };
         println!("{}", to_text(&v));
     } else if !common.quiet {
@@ -261,16 +264,91 @@ fn print_fermi_level_flags(f: &FermiLevelInfo) {
     );
 }
 
+/// What `qheat solve` may write and use: the size limits of the result
+/// files and whether the memory estimate is checked.
+pub struct SolveLimits {
+    /// Size limits of the result files.
+    pub files: ResultLimits,
+    /// Run even when the memory estimate exceeds the memory available.
+    pub ignore_memory: bool,
+}
+
+impl std::ops::Deref for SolveLimits {
+    type Target = ResultLimits;
+    fn deref(&self) -> &ResultLimits {
+        &self.files
+    }
+}
+
+/// The size limits of `--result-budget-mb` and `--full-arrays`.
+pub fn result_limits(budget_mb: f64, full_arrays: bool) -> Result<ResultLimits, Failure> {
+    if !(budget_mb.is_finite() && budget_mb >= 1.0) {
+        return Err(Failure::BadInput(format!(
+            "--result-budget-mb {budget_mb}: expected a size of at least 1 MB; hint: the \
+             default is {} MB, and --full-arrays writes every array whole",
+            ResultLimits::DEFAULT_BUDGET_BYTES / 1_000_000
+        )));
+    }
+    Ok(ResultLimits {
+        budget_bytes: (budget_mb * 1e6) as u64,
+        full_arrays,
+    })
+}
+
+/// Refuse, before any work, a solve whose memory estimate exceeds 80 % of
+/// `available` bytes, naming the settings that would fit with their
+/// estimates and the flag that runs it anyway.
+pub fn refuse_beyond_memory(resolved: &Resolved, available: Option<u64>) -> Result<(), Failure> {
+    let Some(available) = available else {
+        return Ok(());
+    };
+    let limit = available / 10 * 8;
+    let need = resolved.memory_estimate_bytes();
+    if need <= limit {
+        return Ok(());
+    }
+    let options: Vec<String> = resolved
+        .memory_alternatives()
+        .into_iter()
+        .map(|(keys, bytes)| {
+            let fits = if bytes <= limit { "fits" } else { "too much" };
+            format!("  {keys}: about {} ({fits})", memory_size(bytes))
+        })
+        .collect();
+    Err(Failure::BadInput(format!(
+        "this solve needs about {} by the memory estimate (`qheat check` shows it), more \
+         than 80 % of the {} available (GiB = 2^30 bytes); nothing was run. Settings that \
+         need less:\n{}\nhint: set one of them in the case (or use fewer cells), or pass \
+         --ignore-memory-estimate to run anyway",
+        memory_size(need),
+        memory_size(available),
+        options.join("\n")
+    )))
+}
+
+/// Bytes in GiB (2^30), or MiB (2^20) below one GiB.
+pub fn memory_size(bytes: u64) -> String {
+    let b = bytes as f64;
+    if b >= (1u64 << 30) as f64 {
+        format!("{:.2} GiB", b / (1u64 << 30) as f64)
+    } else {
+        format!("{:.1} MiB", b / (1u64 << 20) as f64)
+    }
+}
+
 /// `qheat solve CASE`.
 pub fn solve(
     path: &Path,
     out: Option<&Path>,
     other_files: OtherFiles,
     warm_start: Option<&Path>,
+    limits: &SolveLimits,
     common: &Common,
 ) -> Result<(), Failure> {
     let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
+    if !limits.ignore_memory {
+        refuse_beyond_memory(&resolved, available_memory_bytes())?;
+    }
     let out_dir = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, ""));
@@ -310,18 +388,7 @@ pub fn solve(
             )));
         }
     };
-    let mut o = observe_with(
-        &sol,
-        &ObserveOptions {
-            electron_temperature: resolved.fit_electron_temperature,
-            movers: true,
-        },
-    );
-    if let Some(set) = &resolved.channels {
-        let split = qheat::observables::channels::observe_channels(&sol, set)
-            .map_err(|e| Failure::Solver(format!("splitting the results by channel: {e}")))?;
-        o.channels = Some(split);
-    }
+    let o = observe_solution(&resolved, &sol)?;
     let mut summary = solve_summary(&sol, &o, &info);
     summary.self_heating = heat.as_ref().map(|h| self_heating_summary(&sol, &o, h));
     summary.electrostatics = es_run.as_ref().map(|r| electrostatics_summary(&sol, r));
@@ -335,18 +402,43 @@ pub fn solve(
     let phonons = super::lattice::spectrum(&resolved)?;
     summary.lattice = phonons.map(|s| lattice_summary(&resolved, s, t));
     let stage = Staging::with_options(&out_dir, &folder("solve", other_files))?;
-    write_solve_files(&stage, &sol, &o, &summary)?;
+    write_solve_files_within(&stage, &sol, &o, &mut summary, limits)?;
     if let Some(s) = phonons {
         write_phonon_files(&stage, s, t)?;
     }
-    qheat::output::plots::write_solve_plots(&stage, &sol, &o)?;
+    qheat::output::plots::write_solve_plots_within(&stage, &sol, &o, limits)?;
     stage.commit()?;
     if common.json {
         println!("{}", to_text(&summary));
     } else if !common.quiet {
         print_summary(&sol, &o, &summary, &out_dir);
     }
-    if let Some(r) = es_run.as_ref().filter(|r| !r.report.converged) {
+    electrostatics_converged(es_run.as_ref(), &out_dir)?;
+    not_converged(&sol, heat.as_ref(), &out_dir)
+}
+
+/// The observables of a solution, split by channel when the case names
+/// channels.
+fn observe_solution(resolved: &Resolved, sol: &Solution) -> Result<Observables, Failure> {
+    let mut o = observe_with(
+        sol,
+        &ObserveOptions {
+            electron_temperature: resolved.fit_electron_temperature,
+            movers: true,
+        },
+    );
+    if let Some(set) = &resolved.channels {
+        let split = qheat::observables::channels::observe_channels(sol, set)
+            .map_err(|e| Failure::Solver(format!("splitting the results by channel: {e}")))?;
+        o.channels = Some(split);
+    }
+    Ok(o)
+}
+
+/// Exit 2 when the self-consistent electrostatics stopped short (the
+/// results are written and flagged by then).
+fn electrostatics_converged(es_run: Option<&EsRun>, out_dir: &Path) -> Result<(), Failure> {
+    if let Some(r) = es_run.filter(|r| !r.report.converged) {
         return Err(Failure::Solver(format!(
             "the electrostatics did not converge in {} outer iterations (last potential change \
              {:.3e} eV against a tolerance of {:.1e} eV, Poisson residual {:.3e} electrons); \
@@ -358,7 +450,7 @@ pub fn solve(
             out_dir.display()
         )));
     }
-    not_converged(&sol, heat.as_ref(), &out_dir)
+    Ok(())
 }
 
 /// The transport solved with the potential of `[electrostatics]`; a

@@ -13,6 +13,7 @@ pub mod plots;
 pub mod report;
 pub mod results;
 pub mod schema;
+pub mod sizes;
 pub mod sweep;
 
 use std::fs;

@@ -1,10 +1,12 @@
 //! The files of a solved operating point.
 
 use super::schema::summary::{
-    CellValue, ChannelSummary, DeviceInfo, FermiLevelInfo, Header, MoversSummary, OperatingPoint,
-    PhononInfo, Program, SolveResults, SolveSummary, to_text,
+    CellValue, ChannelSummary, DeviceInfo, FermiLevelInfo, Header, LeftOutFile, MoversSummary,
+    OperatingPoint, PhononInfo, Program, ReducedFile, ResultFiles, SolveResults, SolveSummary,
+    to_text,
 };
 use super::schema::tables::{self, SolvePoint};
+use super::sizes::{BlockMeans, ResultLimits, axis_means, block_means, block_sizes};
 use super::{OutputError, Staging, npy_bytes};
 use crate::observables::channels::ChannelObservables;
 use crate::observables::{
@@ -203,6 +205,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),
         channels: o.channels.as_ref().map(channel_summary),
+        result_files: None,
     }
 }
 
@@ -243,15 +246,37 @@ fn movers_summary(m: &MoverLevels) -> MoversSummary {
     }
 }
 
-/// Write the files of a solve into a staging folder: summary.json,
-/// sites.csv, spectrum.csv, bond_current.npy and .npz, occupation.npz,
-/// convergence.csv and, with scattering, the self-energy for warm starts.
+/// Write the files of a solve into a staging folder within the default
+/// [`ResultLimits`]; see [`write_solve_files_within`].
 pub fn write_solve_files(
     stage: &Staging,
     sol: &Solution,
     o: &Observables,
     summary: &SolveSummary,
 ) -> Result<(), OutputError> {
+    let mut summary = summary.clone();
+    write_solve_files_within(stage, sol, o, &mut summary, &ResultLimits::default())
+}
+
+/// Write the files of a solve into a staging folder: summary.json,
+/// sites.csv, spectrum.csv, bond_current.npy and .npz, occupation.npz,
+/// convergence.csv and, with scattering, the self-energy for warm starts.
+///
+/// Maps larger than `limits` allow are written as block means and a
+/// self-energy larger than they allow is left out (see
+/// [`super::sizes`]); `summary.result_files` is set to say which, by how
+/// much and how to get all of it, before summary.json is written.
+pub fn write_solve_files_within(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+    summary: &mut SolveSummary,
+    limits: &ResultLimits,
+) -> Result<(), OutputError> {
+    let bond = bond_current_map(sol);
+    let occupation = occupation_map(sol);
+    let plan = SizePlan::new(sol, &bond, &occupation, limits);
+    summary.result_files = plan.report(limits);
     stage.write("summary.json", to_text(summary).as_bytes())?;
     let point = SolvePoint {
         sol,
@@ -266,14 +291,14 @@ pub fn write_solve_files(
             stage.write(table.file, &table.csv(&point))?;
         }
     }
-    let map = bond_current_map(sol);
+    let bond = block_means(&bond, plan.bond);
     stage.write(
         "bond_current.npy",
-        &npy_bytes(&map, &stage.path("bond_current.npy"))?,
+        &npy_bytes(&bond.map, &stage.path("bond_current.npy"))?,
     )?;
-    write_bond_current_npz(stage, sol, o, &map)?;
-    write_occupation_npz(stage, sol, o)?;
-    if !sol.problem.scattering.is_coherent() {
+    write_bond_current_npz(stage, sol, o, &bond)?;
+    write_occupation_npz(stage, sol, o, &block_means(&occupation, plan.occupation))?;
+    if !sol.problem.scattering.is_coherent() && plan.self_energy {
         write_self_energy(stage, sol)?;
     }
     if let Some(t) = &sol.lattice_temperature_k {
@@ -284,6 +309,106 @@ pub fn write_solve_files(
         )?;
     }
     Ok(())
+}
+
+/// What of the arrays of a solve is written whole, reduced or left out.
+struct SizePlan {
+    /// Block sizes of the bond-current map ([1, 1]: whole).
+    bond: [usize; 2],
+    bond_shape: [usize; 2],
+    /// Block sizes of the occupation map.
+    occupation: [usize; 2],
+    occupation_shape: [usize; 2],
+    /// Whether the self-energy is written.
+    self_energy: bool,
+    /// Bytes of the two self-energy files when left out.
+    self_energy_bytes: u64,
+}
+
+impl SizePlan {
+    fn new(
+        sol: &Solution,
+        bond: &ndarray::Array2<f64>,
+        occupation: &ndarray::Array2<f64>,
+        limits: &ResultLimits,
+    ) -> Self {
+        let fit = |m: &ndarray::Array2<f64>| -> [usize; 2] {
+            let (n0, n1) = m.dim();
+            if limits.full_arrays {
+                return [1, 1];
+            }
+            // The map's numbers plus its two axes and the file headers.
+            let room = limits
+                .array_bytes()
+                .saturating_sub(8 * (n0 + n1) as u64 + 4096);
+            block_sizes([n0, n1], usize::try_from(room / 8).unwrap_or(usize::MAX))
+        };
+        let self_energy_bytes = 24 * sol.sigma.inscatter.len() as u64;
+        let scattering = !sol.problem.scattering.is_coherent();
+        Self {
+            bond: fit(bond),
+            bond_shape: bond.dim().into(),
+            occupation: fit(occupation),
+            occupation_shape: occupation.dim().into(),
+            self_energy: limits.full_arrays || self_energy_bytes <= limits.array_bytes(),
+            self_energy_bytes: if scattering { self_energy_bytes } else { 0 },
+        }
+    }
+
+    /// The `result_files` object, or `None` when everything is whole.
+    fn report(&self, limits: &ResultLimits) -> Option<ResultFiles> {
+        let mut reduced = Vec::new();
+        let maps = [
+            ("bond_current.npy", self.bond, self.bond_shape, "bonds"),
+            (
+                tables::BOND_CURRENT_NPZ,
+                self.bond,
+                self.bond_shape,
+                "bonds",
+            ),
+            (
+                tables::OCCUPATION_NPZ,
+                self.occupation,
+                self.occupation_shape,
+                "cells",
+            ),
+        ];
+        for (file, block, shape, along) in maps {
+            if block == [1, 1] {
+                continue;
+            }
+            reduced.push(ReducedFile {
+                file: file.into(),
+                full_shape: shape.to_vec(),
+                written_shape: vec![shape[0].div_ceil(block[0]), shape[1].div_ceil(block[1])],
+                block: block.to_vec(),
+                full_bytes: 8 * (shape[0] * shape[1]) as u64,
+                reduction: format!(
+                    "block means over {} {along} × {} energies (the last block of an axis may \
+                     be shorter); the axes are the means of each block's coordinates; a \
+                     block's mean times its size is its sum, so sums and energy integrals are kept",
+                    block[0], block[1]
+                ),
+            });
+        }
+        let mut left_out = Vec::new();
+        if !self.self_energy && self.self_energy_bytes > 0 {
+            left_out.push(LeftOutFile {
+                file: SELF_ENERGY_FILES.join(", "),
+                bytes: self.self_energy_bytes,
+                consequence: "this folder cannot be used with --warm-start".into(),
+            });
+        }
+        (!reduced.is_empty() || !left_out.is_empty()).then(|| ResultFiles {
+            budget_bytes: limits.budget_bytes,
+            reduced,
+            left_out,
+            how_to_get_all: "solve again with `qheat solve --full-arrays` (every array whole, \
+                 the self-energy for warm starts included), or raise the budget with \
+                 --result-budget-mb"
+                .into(),
+        })
+    }
 }
 
 /// File name of the stored lattice temperatures of a self-heating solve
@@ -311,7 +436,7 @@ fn write_bond_current_npz(
     stage: &Staging,
     sol: &Solution,
     o: &Observables,
-    map: &ndarray::Array2<f64>,
+    map: &BlockMeans,
 ) -> Result<(), OutputError> {
     let path = stage.path(tables::BOND_CURRENT_NPZ);
     let encode = |e: &dyn std::fmt::Display| OutputError::Encode {
@@ -319,10 +444,12 @@ fn write_bond_current_npz(
         message: e.to_string(),
     };
     let x = &o.sites.x_nm;
-    let bonds: ndarray::Array1<f64> = x.windows(2).map(|w| 0.5 * (w[0] + w[1])).collect();
-    let energies = ndarray::Array1::from(sol.problem.grid.energies());
+    let bonds: Vec<f64> = x.windows(2).map(|w| 0.5 * (w[0] + w[1])).collect();
+    let bonds = ndarray::Array1::from(axis_means(&bonds, map.blocks[0]));
+    let energies = axis_means(&sol.problem.grid.energies(), map.blocks[1]);
+    let energies = ndarray::Array1::from(energies);
     let mut npz = ndarray_npy::NpzWriter::new(std::io::Cursor::new(Vec::new()));
-    npz.add_array("map", map).map_err(|e| encode(&e))?;
+    npz.add_array("map", &map.map).map_err(|e| encode(&e))?;
     npz.add_array("bond_x_nm", &bonds).map_err(|e| encode(&e))?;
     npz.add_array("energy_ev", &energies)
         .map_err(|e| encode(&e))?;
@@ -336,17 +463,18 @@ fn write_occupation_npz(
     stage: &Staging,
     sol: &Solution,
     o: &Observables,
+    map: &BlockMeans,
 ) -> Result<(), OutputError> {
     let path = stage.path(tables::OCCUPATION_NPZ);
     let encode = |e: &dyn std::fmt::Display| OutputError::Encode {
         path: path.clone(),
         message: e.to_string(),
     };
-    let map = occupation_map(sol);
-    let x = ndarray::Array1::from(o.sites.x_nm.clone());
-    let energies = ndarray::Array1::from(sol.problem.grid.energies());
+    let x = ndarray::Array1::from(axis_means(&o.sites.x_nm, map.blocks[0]));
+    let energies = axis_means(&sol.problem.grid.energies(), map.blocks[1]);
+    let energies = ndarray::Array1::from(energies);
     let mut npz = ndarray_npy::NpzWriter::new(std::io::Cursor::new(Vec::new()));
-    npz.add_array("map", &map).map_err(|e| encode(&e))?;
+    npz.add_array("map", &map.map).map_err(|e| encode(&e))?;
     npz.add_array("x_nm", &x).map_err(|e| encode(&e))?;
     npz.add_array("energy_ev", &energies)
         .map_err(|e| encode(&e))?;

@@ -8,6 +8,7 @@ use super::{
 };
 use crate::observables::{Observables, Spectrum, bond_current_map, occupation_map};
 use crate::output::OutputError;
+use crate::output::sizes::ResultLimits;
 use crate::scba::Solution;
 use crate::units::{BOLTZMANN_EV_PER_K, ELEMENTARY_CHARGE};
 use plotters::coord::types::RangedCoordf64;
@@ -847,6 +848,16 @@ pub fn spectrum_svg(sol: &Solution, o: &Observables) -> Result<String, OutputErr
 /// electrons moving to +x and brown for −x: a current flowing against the
 /// main stream a thousand times weaker still shows its colour.
 pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    bond_current_svg_within(sol, o, ResultLimits::default().map_pixels())
+}
+
+/// [`bond_current_svg`] with a raster image of at most `max_pixels`
+/// pixels (block means of the map where it has more values).
+pub fn bond_current_svg_within(
+    sol: &Solution,
+    o: &Observables,
+    max_pixels: usize,
+) -> Result<String, OutputError> {
     const FIGURE: &str = "bond_current.svg";
     let p = &sol.problem;
     let s = &o.sites;
@@ -915,6 +926,7 @@ pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, Outpu
             },
         ],
         size: (WIDTH, 640),
+        max_pixels,
     })
 }
 
@@ -926,6 +938,16 @@ pub fn bond_current_svg(sol: &Solution, o: &Observables) -> Result<String, Outpu
 /// electrons (down to 0.1 % of the fullest) and both contacts' Fermi
 /// levels.
 pub fn occupation_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    occupation_svg_within(sol, o, ResultLimits::default().map_pixels())
+}
+
+/// [`occupation_svg`] with a raster image of at most `max_pixels` pixels
+/// (means of the cells with states where the map has more values).
+pub fn occupation_svg_within(
+    sol: &Solution,
+    o: &Observables,
+    max_pixels: usize,
+) -> Result<String, OutputError> {
     const FIGURE: &str = "occupation.svg";
     let p = &sol.problem;
     let s = &o.sites;
@@ -988,6 +1010,7 @@ pub fn occupation_svg(sol: &Solution, o: &Observables) -> Result<String, OutputE
             },
         ],
         size: (WIDTH, 640),
+        max_pixels,
     })
 }
 

@@ -27,9 +27,11 @@ pub mod style;
 
 pub use curves::{cooler_figures, generator_figures, grid_figures, ranking_figure};
 pub use figures::{
-    bond_current_svg, convergence_svg, device_svg, net_flow, occupation_svg, spectrum_svg,
+    bond_current_svg, bond_current_svg_within, convergence_svg, device_svg, net_flow,
+    occupation_svg, occupation_svg_within, spectrum_svg,
 };
 
+use super::sizes::ResultLimits;
 use super::{OutputError, Staging};
 use crate::observables::Observables;
 use crate::scba::Solution;
@@ -614,6 +616,8 @@ pub(crate) struct MapSpec<'a> {
     pub scale: MapScale,
     pub overlays: Vec<Overlay<'a>>,
     pub size: (u32, u32),
+    /// Most pixels of the raster image (see [`raster::pixel_means`]).
+    pub max_pixels: usize,
 }
 
 /// The shape and coordinates of a map are usable: values of shape
@@ -692,8 +696,10 @@ fn map_panel(
             [(x0, y1), (x1, y0)],
             RASTER_MARK.filled(),
         )))?;
-        rasters.push(raster_uri(nx, ny, |r, c| {
-            scale.colour(spec.values[(ny - 1 - r, c)])
+        let pixels = raster::pixel_means(spec.values, spec.max_pixels);
+        let (py, px) = pixels.dim();
+        rasters.push(raster_uri(px, py, |r, c| {
+            scale.colour(pixels[(py - 1 - r, c)])
         }));
     } else {
         chart.draw_series((0..ny).flat_map(|r| {
@@ -819,6 +825,7 @@ pub fn heat_map_svg(
         },
         overlays: Vec::new(),
         size: (1000, 620),
+        max_pixels: crate::output::sizes::ResultLimits::default().map_pixels(),
     })
 }
 
@@ -935,10 +942,26 @@ pub fn write_solve_plots(
     sol: &Solution,
     o: &Observables,
 ) -> Result<(), OutputError> {
+    write_solve_plots_within(stage, sol, o, &ResultLimits::default())
+}
+
+/// [`write_solve_plots`] with the maps' raster images sized to the
+/// figure limit of `limits`.
+pub fn write_solve_plots_within(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+    limits: &ResultLimits,
+) -> Result<(), OutputError> {
+    let pixels = limits.map_pixels();
     stage.write("device.svg", device_svg(sol, o)?.as_bytes())?;
     stage.write("spectrum.svg", spectrum_svg(sol, o)?.as_bytes())?;
-    stage.write("bond_current.svg", bond_current_svg(sol, o)?.as_bytes())?;
-    stage.write("occupation.svg", occupation_svg(sol, o)?.as_bytes())?;
+    let bond = bond_current_svg_within(sol, o, pixels)?;
+    stage.write("bond_current.svg", bond.as_bytes())?;
+    stage.write(
+        "occupation.svg",
+        occupation_svg_within(sol, o, pixels)?.as_bytes(),
+    )?;
     if let Some(svg) = convergence_svg(sol)? {
         stage.write("convergence.svg", svg.as_bytes())?;
     }

@@ -83,6 +83,37 @@ pub fn png_rgb(width: usize, height: usize, rgb: &[u8]) -> Vec<u8> {
     out
 }
 
+/// A map of at most `max_pixels` values for a raster image of `values`:
+/// the map itself when it is small enough, otherwise each pixel the mean
+/// of the finite values of the block of rows × columns it covers (NaN
+/// when none is finite). Both axes are reduced by about the same factor;
+/// the blocks of an axis differ in length by at most one value, so every
+/// pixel stands for nearly the same width and height and the image keeps
+/// its geometry to within one value of the map.
+pub fn pixel_means(values: &ndarray::Array2<f64>, max_pixels: usize) -> ndarray::Array2<f64> {
+    let (ny, nx) = values.dim();
+    if ny * nx <= max_pixels.max(1) {
+        return values.clone();
+    }
+    let [ky, kx] = crate::output::sizes::block_sizes([ny, nx], max_pixels);
+    let (py, px) = (ny.div_ceil(ky), nx.div_ceil(kx));
+    // Pixel p covers values [p·n/m, (p+1)·n/m).
+    let owner = |n: usize, m: usize| -> Vec<usize> { (0..n).map(|i| i * m / n).collect() };
+    let (row_of, col_of) = (owner(ny, py), owner(nx, px));
+    let mut sum = ndarray::Array2::<f64>::zeros((py, px));
+    let mut count = ndarray::Array2::<u32>::zeros((py, px));
+    for ((r, c), v) in values.indexed_iter() {
+        if v.is_finite() {
+            sum[(row_of[r], col_of[c])] += v;
+            count[(row_of[r], col_of[c])] += 1;
+        }
+    }
+    ndarray::Zip::from(&mut sum).and(&count).for_each(|s, &n| {
+        *s = if n > 0 { *s / f64::from(n) } else { f64::NAN };
+    });
+    sum
+}
+
 /// Standard base64 (RFC 4648, with padding).
 pub fn base64(bytes: &[u8]) -> String {
     const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
@@ -121,6 +152,24 @@ mod tests {
         assert_eq!(base64(b"fo"), "Zm8=");
         assert_eq!(base64(b"foo"), "Zm9v");
         assert_eq!(base64(b"foobar"), "Zm9vYmFy");
+    }
+
+    #[test]
+    fn pixel_means_average_what_each_pixel_covers() {
+        let v = ndarray::Array2::from_shape_fn((6, 9), |(r, c)| (r * 9 + c) as f64);
+        assert_eq!(pixel_means(&v, 54), v);
+        let p = pixel_means(&v, 6);
+        assert_eq!(p.dim(), (2, 3));
+        // Pixel (0, 0) covers rows 0..3 and columns 0..3.
+        let want: f64 = v.slice(ndarray::s![0..3, 0..3]).iter().sum::<f64>() / 9.0;
+        assert_eq!(p[(0, 0)], want);
+        // NaN values (no states) are left out of a mean; a block of NaN only is NaN.
+        let mut w = v.clone();
+        w[(0, 0)] = f64::NAN;
+        let q = pixel_means(&w, 6);
+        assert_eq!(q[(0, 0)], (want * 9.0) / 8.0);
+        let nan = ndarray::Array2::from_elem((4, 4), f64::NAN);
+        assert!(pixel_means(&nan, 4).iter().all(|x| x.is_nan()));
     }
 
     #[test]

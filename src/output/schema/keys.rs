@@ -879,6 +879,58 @@ const ELECTROSTATICS: [Key; 12] = [
     ),
 ];
 
+/// The `result_files` object of a solve (present only when an array was
+/// reduced or left out to stay within the size budget).
+const RESULT_FILES: [Key; 11] = [
+    (
+        "budget_bytes",
+        "bytes",
+        "size budget of the result files (`--result-budget-mb`): each map at most an eighth, each figure at most a tenth and 5 MB",
+    ),
+    (
+        "reduced",
+        "-",
+        "the maps written as block means instead of whole, one entry per file",
+    ),
+    ("reduced[].file", "-", "file name"),
+    (
+        "reduced[].full_shape",
+        "1",
+        "shape of the whole map (positions, energies)",
+    ),
+    ("reduced[].written_shape", "1", "shape of the written map"),
+    (
+        "reduced[].block",
+        "1",
+        "values per block along each axis (the last block of an axis may be shorter)",
+    ),
+    (
+        "reduced[].full_bytes",
+        "bytes",
+        "size of the whole map's numbers",
+    ),
+    (
+        "reduced[].reduction",
+        "-",
+        "how the map was reduced: block means, whose mean × size is the block's sum, so sums and energy integrals are kept",
+    ),
+    (
+        "left_out",
+        "-",
+        "arrays not written (file, bytes, consequence), such as the self-energy for warm starts",
+    ),
+    (
+        "how_to_get_all",
+        "-",
+        "how to write every array whole (`qheat solve --full-arrays`)",
+    ),
+    (
+        "left_out[].consequence",
+        "-",
+        "what is lost without the file",
+    ),
+];
+
 fn keys(out: &mut Vec<FieldDoc>, prefix: &str, list: &[Key]) {
     out.extend(list.iter().map(|(k, u, m)| FieldDoc {
         name: format!("{prefix}{k}"),
@@ -909,6 +961,7 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "electrostatics.", &ELECTROSTATICS);
     keys(&mut f, "", &RUN);
     keys(&mut f, "channels.", &CHANNELS);
+    keys(&mut f, "result_files.", &RESULT_FILES);
     f
 }
 

@@ -195,6 +195,40 @@ pub struct SolveSummary {
     pub resolved_case: String,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub channels: Option<ChannelSummary>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub result_files: Option<ResultFiles>,
+}
+
+/// The `result_files` object of summary.json: present when some array
+/// was reduced or left out to keep the result within its size budget.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct ResultFiles {
+    pub budget_bytes: u64,
+    pub reduced: Vec<ReducedFile>,
+    pub left_out: Vec<LeftOutFile>,
+    pub how_to_get_all: String,
+}
+
+/// A map written as block means instead of whole.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct ReducedFile {
+    pub file: String,
+    pub full_shape: Vec<usize>,
+    pub written_shape: Vec<usize>,
+    pub block: Vec<usize>,
+    pub full_bytes: u64,
+    pub reduction: String,
+}
+
+/// An array not written at all.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct LeftOutFile {
+    pub file: String,
+    pub bytes: u64,
+    pub consequence: String,
 }
 
 /// The `channels` object of summary.json when the case names channels:
@@ -402,6 +436,10 @@ pub struct CheckOutput {
     pub memory_estimate_bytes: u64,
     pub warnings: Vec<String>,
     pub notes: Vec<String>,
+    /// Estimated wall time of the solve (s): a guess.
+    pub time_estimate_s: f64,
+    /// Born iterations the time estimate assumes.
+    pub iteration_guess: usize,
 }
 
 /// A phonon mode as `qheat check --json` lists it.

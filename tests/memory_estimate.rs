@@ -1,0 +1,117 @@
+//! The estimate before a run: `qheat check` shows peak memory and a time
+//! guess, and `qheat solve` refuses (exit 1, nothing run) a case whose
+//! memory estimate exceeds what is available, naming the settings that
+//! would fit, unless told to run anyway. The memory available is set with
+//! QHEAT_MEMORY_LIMIT_BYTES so that the test does not depend on the machine.
+
+use qheat::case::Case;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+fn demo() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("cases-demo/peltier-barrier.toml")
+}
+
+fn qheat(limit: u64, args: &[&str], case: &Path, out: &Path) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .env("QHEAT_MEMORY_LIMIT_BYTES", limit.to_string())
+        .args(["--threads", "1", "--quiet", "solve"])
+        .arg(case)
+        .args(args)
+        .arg("-o")
+        .arg(out)
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn solve_refuses_beyond_the_memory_and_names_what_would_fit() {
+    let resolved = Case::load(&demo()).unwrap().resolve().unwrap();
+    let need = resolved.memory_estimate_bytes();
+    let alternatives = resolved.memory_alternatives();
+    let (_, linear) = alternatives
+        .iter()
+        .find(|(k, _)| k.contains("\"linear\""))
+        .expect("linear mixing offered")
+        .clone();
+    assert!(linear < need);
+    // Room for linear mixing but not for the Anderson history (80 % of it).
+    let limit = (linear + need) / 2 * 10 / 8;
+    assert!(limit / 10 * 8 < need && limit / 10 * 8 >= linear);
+    let tmp = tempfile::tempdir().unwrap();
+    let out = tmp.path().join("refused");
+    let o = qheat(limit, &[], &demo(), &out);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(!out.exists(), "nothing may be written");
+    // Sizes as the message writes them: GiB from one GiB on, else MiB.
+    let gib = |b: u64| {
+        if b >= 1 << 30 {
+            format!("{:.2} GiB", b as f64 / (1u64 << 30) as f64)
+        } else {
+            format!("{:.1} MiB", b as f64 / (1u64 << 20) as f64)
+        }
+    };
+    assert!(err.contains(&gib(need)), "{err}");
+    assert!(
+        err.contains(&format!(
+            "solver.mixing = \"linear\": about {} (fits)",
+            gib(linear)
+        )),
+        "{err}"
+    );
+    assert!(err.contains("--ignore-memory-estimate"), "{err}");
+    // Forced, it runs.
+    let o = qheat(limit, &["--ignore-memory-estimate"], &demo(), &out);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(out.join("summary.json").exists());
+}
+
+#[test]
+fn check_shows_memory_and_a_time_guess() {
+    let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["--threads", "1", "check"])
+        .arg(demo())
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success());
+    assert!(text.contains("memory      about"), "{text}");
+    let time = text
+        .lines()
+        .find(|l| l.starts_with("time "))
+        .expect("a time line");
+    assert!(
+        time.contains("a guess") && time.contains("iteration"),
+        "{time}"
+    );
+    let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["--threads", "1", "--json", "check"])
+        .arg(demo())
+        .output()
+        .unwrap();
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let resolved = Case::load(&demo()).unwrap().resolve().unwrap();
+    assert_eq!(v["time_estimate_s"], resolved.time_estimate_seconds(1));
+    assert_eq!(v["iteration_guess"], resolved.iteration_guess());
+}
+
+/// The time estimate is linear in the energies and the cells (the
+/// recursion and the mixing are), grows as b³ for wide cells, and assumes
+/// no more iterations than the limit.
+#[test]
+fn the_time_estimate_scales_with_the_work() {
+    let resolved = Case::load(&demo()).unwrap().resolve().unwrap();
+    let t = resolved.iteration_time_estimate_seconds(1);
+    let mut twice = resolved.clone();
+    twice.problem.grid.count *= 2;
+    let t2 = twice.iteration_time_estimate_seconds(1);
+    assert!((t2 / t - 2.0).abs() < 1e-12);
+    // Two threads at 90 % efficiency each.
+    assert!((resolved.iteration_time_estimate_seconds(2) * 2.0 - t).abs() < 1e-12 * t);
+    let g = resolved.iteration_guess();
+    assert!(g >= 1 && g <= resolved.scba.max_iterations);
+    for (keys, bytes) in resolved.memory_alternatives() {
+        assert!(bytes < resolved.memory_estimate_bytes(), "{keys}");
+    }
+}
