@@ -1082,6 +1082,7 @@ fn assemble(
         grid,
         spin_degeneracy: f64::from(spec.spin_degeneracy),
         decimation: spec.solver.decimation,
+        contacts: Vec::new(),
     };
     Ok(Resolved {
         problem,
