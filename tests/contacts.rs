@@ -2,6 +2,8 @@
 //! multi-terminal reciprocity, polarised contacts, and the ledger with
 //! every contact.
 
+#![allow(clippy::needless_range_loop)] // conductance matrices read best by index
+
 mod common;
 
 use common::coherent_problem;

@@ -203,6 +203,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         notes: info.notes.to_vec(),
         resolved_case: info.case_toml.into(),
         channels: o.channels.as_ref().map(channel_summary),
+        contacts: super::schema::summary::ContactSummary::all(p, &o.contacts),
     }
 }
 

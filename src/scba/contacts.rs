@@ -435,8 +435,8 @@ fn probe_system(
             let (Unknown::Mu(p) | Unknown::T(p)) = *u;
             let pi = fl.iter().position(|&q| q == p).unwrap_or(0);
             let mut j = flows.net(k, p) + flows.spectral(k, p) * delta[pi];
-            for qi in 0..fl.len() {
-                j -= flows.response(k, p, qi) * delta[qi];
+            for (qi, d) in delta.iter().enumerate() {
+                j -= flows.response(k, p, qi) * d;
             }
             let heat = matches!(u, Unknown::T(_));
             let weight = if heat { e - levels[p].0 } else { 1.0 };
@@ -476,18 +476,25 @@ fn solve_dense(mut a: Vec<Vec<f64>>, mut r: Vec<f64>) -> Option<Vec<f64>> {
         }
         a.swap(col, piv);
         r.swap(col, piv);
-        for row in col + 1..n {
-            let f = a[row][col] / a[col][col];
-            for c in col..n {
-                a[row][c] -= f * a[col][c];
+        let (top, bottom) = a.split_at_mut(col + 1);
+        let pivot = &top[col];
+        for (i, row) in bottom.iter_mut().enumerate() {
+            let f = row[col] / pivot[col];
+            for (x, p) in row[col..].iter_mut().zip(&pivot[col..]) {
+                *x -= f * p;
             }
-            r[row] -= f * r[col];
+            let rc = r[col];
+            r[col + 1 + i] -= f * rc;
         }
     }
     let mut x = vec![0.0; n];
-    for row in (0..n).rev() {
-        let s: f64 = (row + 1..n).map(|c| a[row][c] * x[c]).sum();
-        x[row] = (r[row] - s) / a[row][row];
+    for (i, row) in a.iter().enumerate().rev() {
+        let s: f64 = row[i + 1..]
+            .iter()
+            .zip(&x[i + 1..])
+            .map(|(a, x)| a * x)
+            .sum();
+        x[i] = (r[i] - s) / row[i];
     }
     x.iter().all(|v| v.is_finite()).then_some(x)
 }

@@ -579,35 +579,129 @@ impl<'a> RowContext<'a> {
             return Ok(fl);
         }
         contacts::record_diagonal(problem, self.levels, e, gr, gn, self.per_contact, crow);
+        let spare = Spare {
+            ws,
+            zero,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            br2: &mut [],
+            bn2: &mut [],
+        };
+        self.responses_diagonal(&input, spare, crow)?;
+        Ok(fl)
+    }
+}
+
+/// The scratch a response recursion writes into (see [`contacts`]).
+struct Spare<'s> {
+    ws: &'s mut Workspace,
+    zero: &'s Mat<C64>,
+    resp_in: &'s mut [f64],
+    gr2: &'s mut [C64],
+    gn2: &'s mut [f64],
+    bond2: &'s mut [f64],
+    br2: &'s mut [C64],
+    bn2: &'s mut [C64],
+}
+
+impl RowContext<'_> {
+    /// R_pq = Tr[Γ_p G Γ_q G†] for every probe q on the diagonal route: the
+    /// G^n of a recursion whose only in-scattering is Γ_q, traced with Γ_p.
+    fn responses_diagonal(
+        &self,
+        input: &EnergyInput<'_>,
+        sp: Spare<'_>,
+        crow: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let problem = self.problem;
         let b = problem.device.orbitals;
         for (qi, &q) in self.floating.iter().enumerate() {
-            resp_in.fill(0.0);
+            sp.resp_in.fill(0.0);
             let cq = &problem.contacts[q];
             for s in contacts::contact_sites(cq, b) {
-                resp_in[s] = cq.gamma_ev;
+                sp.resp_in[s] = cq.gamma_ev;
             }
             let only_q = EnergyInput {
-                inscatter_left: zero,
-                inscatter_right: zero,
-                scatter_in: resp_in,
+                inscatter_left: sp.zero,
+                inscatter_right: sp.zero,
+                scatter_in: sp.resp_in,
                 want_transmission: false,
-                ..input
+                ..*input
             };
             let o2 = EnergyOutput {
-                retarded: gr2,
-                filled: gn2,
-                bond: bond2,
+                retarded: &mut *sp.gr2,
+                filled: &mut *sp.gn2,
+                bond: &mut *sp.bond2,
                 full: None,
             };
-            rgf::solve_energy(&only_q, ws, o2)?;
+            rgf::solve_energy(&only_q, &mut *sp.ws, o2)?;
             for (p, c) in problem.contacts.iter().enumerate() {
                 let r: f64 = contacts::contact_sites(c, b)
-                    .map(|s| c.gamma_ev * gn2[s])
+                    .map(|s| c.gamma_ev * sp.gn2[s])
                     .sum();
                 crow[p * self.per_contact + 3 + qi] = r;
             }
         }
-        Ok(fl)
+        Ok(())
+    }
+
+    /// [`RowContext::responses_diagonal`] on the block route (Σ^r as
+    /// blocks in `r`).
+    fn responses_blocks(
+        &self,
+        input: &EnergyInput<'_>,
+        r: &[C64],
+        sp: Spare<'_>,
+        crow: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let problem = self.problem;
+        let b = problem.device.orbitals;
+        let bb = b * b;
+        for (qi, &q) in self.floating.iter().enumerate() {
+            sp.resp_in.fill(0.0);
+            for &c in &problem.contacts[q].cells {
+                let cell = &mut sp.resp_in[c * bb..(c + 1) * bb];
+                contacts::add_block(&self.gammas[q], b, 1.0, None, cell);
+            }
+            let only_q = EnergyInput {
+                inscatter_left: sp.zero,
+                inscatter_right: sp.zero,
+                want_transmission: false,
+                ..*input
+            };
+            let mut x2 = rgf::BlockExchange {
+                scatter_retarded: r,
+                scatter_in: sp.resp_in,
+                green_retarded: &mut *sp.br2,
+                green_filled: &mut *sp.bn2,
+            };
+            let o2 = EnergyOutput {
+                retarded: &mut *sp.gr2,
+                filled: &mut *sp.gn2,
+                bond: &mut *sp.bond2,
+                full: None,
+            };
+            rgf::solve_energy_with_blocks(&only_q, &mut *sp.ws, o2, &mut x2)?;
+            for (p, c) in problem.contacts.iter().enumerate() {
+                let gamma = &self.gammas[p];
+                let r: f64 = (c.cells.iter())
+                    .map(|&i| {
+                        let at = i * bb..(i + 1) * bb;
+                        contacts::block_traces(
+                            gamma,
+                            &x2.green_retarded[at.clone()],
+                            &x2.green_filled[at],
+                            b,
+                        )
+                        .1
+                    })
+                    .sum();
+                crow[p * self.per_contact + 3 + qi] = r;
+            }
+        }
+        Ok(())
     }
 }
 
@@ -760,55 +854,17 @@ impl RowContext<'_> {
         }
         let e = problem.grid.energy(k);
         contacts::record_blocks(problem, self.levels, e, g, gn, self.per_contact, crow);
-        let b = problem.device.orbitals;
-        let bb = b * b;
-        for (qi, &q) in self.floating.iter().enumerate() {
-            resp_in.fill(0.0);
-            for &c in &problem.contacts[q].cells {
-                contacts::add_block(
-                    &self.gammas[q],
-                    b,
-                    1.0,
-                    None,
-                    &mut resp_in[c * bb..(c + 1) * bb],
-                );
-            }
-            let only_q = EnergyInput {
-                inscatter_left: zero,
-                inscatter_right: zero,
-                want_transmission: false,
-                ..input
-            };
-            let mut x2 = rgf::BlockExchange {
-                scatter_retarded: r,
-                scatter_in: resp_in,
-                green_retarded: br2,
-                green_filled: bn2,
-            };
-            let o2 = EnergyOutput {
-                retarded: gr2,
-                filled: gn2,
-                bond: bond2,
-                full: None,
-            };
-            rgf::solve_energy_with_blocks(&only_q, ws, o2, &mut x2)?;
-            for (p, c) in problem.contacts.iter().enumerate() {
-                let r: f64 = c
-                    .cells
-                    .iter()
-                    .map(|&i| {
-                        contacts::block_traces(
-                            &self.gammas[p],
-                            &br2[i * bb..(i + 1) * bb],
-                            &bn2[i * bb..(i + 1) * bb],
-                            b,
-                        )
-                        .1
-                    })
-                    .sum();
-                crow[p * self.per_contact + 3 + qi] = r;
-            }
-        }
+        let spare = Spare {
+            ws,
+            zero,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            br2,
+            bn2,
+        };
+        self.responses_blocks(&input, r, spare, crow)?;
         Ok(fl)
     }
 }
