@@ -203,9 +203,10 @@ fn solve_reports_the_probe_in_summary_and_terminal() {
         op["fermi_level_left_ev"].as_f64().unwrap(),
         op["fermi_level_right_ev"].as_f64().unwrap(),
     );
+    // V > 0 puts the left lead below the right one (V = −(µ_L − µ_R)/e)
     assert!(
-        mu > mr && mu < ml,
-        "probe reads {mu}, not between {mr} and {ml}"
+        mu > ml.min(mr) && mu < ml.max(mr),
+        "probe reads {mu}, not between {ml} and {mr}"
     );
     let i = c["current_a"].as_f64().unwrap();
     let i1 = s["results"]["current_a"].as_f64().unwrap();
