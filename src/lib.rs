@@ -76,6 +76,7 @@
 //!     grid: EnergyGrid::covering(0.001, 0.9, 0.002),
 //!     spin_degeneracy: 2.0,
 //!     decimation: DecimationParams::default(),
+//!     contacts: Vec::new(),
 //! };
 //! let sol = solve(&problem, &ScbaParams::default(), None, &mut Silent).unwrap();
 //! assert!(sol.pass.flows.iter().all(|f| (f.transmission - 1.0).abs() < 1e-9));

@@ -7,8 +7,9 @@ use qheat::case::{Case, CaseErrorKind, CaseKey, KEYS, ValueType};
 use qheat::leads::Side;
 use std::path::Path;
 
-/// A small valid chain with one region, one phonon, one lattice region
-/// and one electrostatics region, so that every array key has an entry 0.
+/// A small valid chain with one region, one phonon, one lattice region,
+/// one electrostatics region and one contact, so that every array key has
+/// an entry 0.
 const BASE: &str = r#"
 name = "keys"
 
@@ -61,6 +62,12 @@ donors_cm3 = 1e18
 [[channel]]
 name = "first"
 orbitals = [0]
+
+[[contact]]
+name = "probe"
+first_cell = 5
+gamma_ev = 0.001
+mode = "voltage"
 "#;
 
 fn base() -> Case {

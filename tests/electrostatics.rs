@@ -42,6 +42,7 @@ fn chain(
         grid: EnergyGrid::covering(grid.0, grid.1, grid.2),
         spin_degeneracy: 2.0,
         decimation: DecimationParams::default(),
+        contacts: Vec::new(),
     }
 }
 

@@ -285,6 +285,7 @@ fn recursion_matches_dense_born_loop() {
             hermitian_part: false,
             warm_start: false,
             energy_order: qheat::scba::EnergyOrder::Simultaneous,
+            probe_residual: None,
         },
         lattice_temperature_k: None,
     };

@@ -413,6 +413,16 @@ fn solve_summary_keys_and_documentation_agree() {
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     paths(&summary(&small), "", &mut found);
+    // a case with attached (polarised) contacts writes the `contacts` list
+    let attached = tmp.path().join("attached");
+    solve(&demo("spin-detector"), &attached);
+    let mut contact_paths = Vec::new();
+    paths(&summary(&attached), "", &mut contact_paths);
+    found.extend(
+        contact_paths
+            .into_iter()
+            .filter(|p| p.starts_with("contacts")),
+    );
     found.sort();
     found.dedup();
     let docs = qheat::output::schema::keys::summary_docs();

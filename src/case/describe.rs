@@ -25,6 +25,7 @@ impl Resolved {
         let mut s = String::new();
         self.describe_device(&mut s);
         self.describe_contacts(&mut s);
+        s.push_str(&super::sections::contacts::describe(&self.problem.contacts));
         self.describe_phonons(&mut s);
         self.describe_lattice(&mut s);
         self.describe_scattering(&mut s);

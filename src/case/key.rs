@@ -5,8 +5,8 @@
 use super::error::close_matches;
 use super::keys::{KEYS, KeyInfo, ValueType};
 use super::raw::{
-    Opt, RawCase, RawElectrostaticsRegion, RawLatticeLead, RawLatticeRegion, RawLead, RawPhonon,
-    RawRegion,
+    Opt, RawCase, RawContact, RawElectrostaticsRegion, RawLatticeLead, RawLatticeRegion, RawLead,
+    RawPhonon, RawRegion,
 };
 use crate::leads::Side;
 use std::fmt;
@@ -156,6 +156,18 @@ pub enum CaseKey {
     EsRegionDonors(usize),
     /// `electrostatics.region.#.acceptors_cm3`
     EsRegionAcceptors(usize),
+    /// `contact.#.first_cell`
+    ContactFirstCell(usize),
+    /// `contact.#.cell_count`
+    ContactCellCount(usize),
+    /// `contact.#.gamma_ev`
+    ContactGamma(usize),
+    /// `contact.#.fermi_level_ev`
+    ContactFermiLevel(usize),
+    /// `contact.#.temperature_k`
+    ContactTemperature(usize),
+    /// `contact.#.polarisation`
+    ContactPolarisation(usize),
 }
 
 use CaseKey as K;
@@ -240,6 +252,12 @@ const TEMPLATES: &[CaseKey] = &[
     K::EsRegionPermittivity(0),
     K::EsRegionDonors(0),
     K::EsRegionAcceptors(0),
+    K::ContactFirstCell(0),
+    K::ContactCellCount(0),
+    K::ContactGamma(0),
+    K::ContactFermiLevel(0),
+    K::ContactTemperature(0),
+    K::ContactPolarisation(0),
 ];
 
 fn lead_pattern(side: Side, left: &'static str, right: &'static str) -> &'static str {
@@ -258,7 +276,7 @@ impl CaseKey {
 
     /// The dotted name with `#` for the array index, as in the key table.
     pub fn pattern(self) -> &'static str {
-        if let Some(p) = self.es_pattern() {
+        if let Some(p) = self.es_pattern().or_else(|| self.contact_pattern()) {
             return p;
         }
         match self {
@@ -335,6 +353,19 @@ impl CaseKey {
         }
     }
 
+    /// The dotted names of the `[[contact]]` keys.
+    fn contact_pattern(self) -> Option<&'static str> {
+        Some(match self {
+            K::ContactFirstCell(_) => "contact.#.first_cell",
+            K::ContactCellCount(_) => "contact.#.cell_count",
+            K::ContactGamma(_) => "contact.#.gamma_ev",
+            K::ContactFermiLevel(_) => "contact.#.fermi_level_ev",
+            K::ContactTemperature(_) => "contact.#.temperature_k",
+            K::ContactPolarisation(_) => "contact.#.polarisation",
+            _ => return None,
+        })
+    }
+
     /// The dotted names of the `[electrostatics]` keys.
     fn es_pattern(self) -> Option<&'static str> {
         let p = match self {
@@ -384,7 +415,13 @@ impl CaseKey {
             | K::EsRegionTo(i)
             | K::EsRegionPermittivity(i)
             | K::EsRegionDonors(i)
-            | K::EsRegionAcceptors(i) => Some(i),
+            | K::EsRegionAcceptors(i)
+            | K::ContactFirstCell(i)
+            | K::ContactCellCount(i)
+            | K::ContactGamma(i)
+            | K::ContactFermiLevel(i)
+            | K::ContactTemperature(i)
+            | K::ContactPolarisation(i) => Some(i),
             _ => None,
         }
     }
@@ -412,6 +449,12 @@ impl CaseKey {
             K::EsRegionPermittivity(_) => K::EsRegionPermittivity(i),
             K::EsRegionDonors(_) => K::EsRegionDonors(i),
             K::EsRegionAcceptors(_) => K::EsRegionAcceptors(i),
+            K::ContactFirstCell(_) => K::ContactFirstCell(i),
+            K::ContactCellCount(_) => K::ContactCellCount(i),
+            K::ContactGamma(_) => K::ContactGamma(i),
+            K::ContactFermiLevel(_) => K::ContactFermiLevel(i),
+            K::ContactTemperature(_) => K::ContactTemperature(i),
+            K::ContactPolarisation(_) => K::ContactPolarisation(i),
             other => other,
         }
     }
@@ -590,6 +633,11 @@ fn lattice_region(raw: &mut RawCase, i: usize) -> Result<&mut RawLatticeRegion, 
     entry(&mut table(&mut raw.lattice).region, "lattice.region", i)
 }
 
+/// Entry `i` of `[[contact]]`.
+fn contact(raw: &mut RawCase, i: usize) -> Result<&mut RawContact, String> {
+    entry(&mut raw.contact, "contact", i)
+}
+
 fn es_region(raw: &mut RawCase, i: usize) -> Result<&mut RawElectrostaticsRegion, String> {
     entry(
         &mut table(&mut raw.electrostatics).region,
@@ -649,6 +697,12 @@ impl CaseKey {
             K::EsRegionPermittivity(n) => es_region(raw, n)?.permittivity = f,
             K::EsRegionDonors(n) => es_region(raw, n)?.donors_cm3 = f,
             K::EsRegionAcceptors(n) => es_region(raw, n)?.acceptors_cm3 = f,
+            K::ContactFirstCell(n) => contact(raw, n)?.first_cell = i,
+            K::ContactCellCount(n) => contact(raw, n)?.cell_count = i,
+            K::ContactGamma(n) => contact(raw, n)?.gamma_ev = f,
+            K::ContactFermiLevel(n) => contact(raw, n)?.fermi_level_ev = f,
+            K::ContactTemperature(n) => contact(raw, n)?.temperature_k = f,
+            K::ContactPolarisation(n) => contact(raw, n)?.polarisation = f,
             _ => self.set_setting(raw, f, i),
         }
         Ok(())

@@ -915,6 +915,76 @@ pub static KEYS: &[KeyInfo] = &[
         Required,
         "orbitals of a cell the channel holds (indices from 0); channels must not overlap, orbitals left out form the channel \"other\"",
     ),
+    key(
+        "contact.#.name",
+        ValueType::Text,
+        "",
+        Required,
+        "name of a contact attached along the channel (a wide-band reservoir on the orbital sites of some cells), unique",
+    ),
+    key(
+        "contact.#.cells",
+        ValueType::Indices,
+        "",
+        Text("or first_cell + cell_count"),
+        "cells the contact touches (indices from 0, ascending)",
+    ),
+    key(
+        "contact.#.first_cell",
+        Int,
+        "",
+        Text("or cells"),
+        "first cell the contact touches (sweep it to move a probe along the channel)",
+    ),
+    key(
+        "contact.#.cell_count",
+        Int,
+        "",
+        Number(|| 1.0),
+        "number of consecutive cells from first_cell",
+    ),
+    key(
+        "contact.#.gamma_ev",
+        Float,
+        "eV",
+        Required,
+        "coupling γ: broadening Γ = γ on every orbital site of its cells (Σ^r = −iΓ/2, Σ^in = Γ f)",
+    ),
+    key(
+        "contact.#.mode",
+        ValueType::Choice(choice_names::<crate::model::ContactMode>),
+        "",
+        Word(|| "fixed"),
+        "\"fixed\": µ and T given; \"voltage\": a voltage probe (T given, µ solved for zero current); \"temperature\": a temperature probe (µ and T solved for zero particle and heat current)",
+    ),
+    key(
+        "contact.#.fermi_level_ev",
+        Float,
+        "eV",
+        Text("required for a fixed contact; refused for probes"),
+        "Fermi level of a fixed contact",
+    ),
+    key(
+        "contact.#.temperature_k",
+        Float,
+        "K",
+        Text("mean of the leads' temperatures; refused for a temperature probe"),
+        "temperature of a fixed contact or voltage probe",
+    ),
+    key(
+        "contact.#.polarisation",
+        Float,
+        "",
+        Text("unpolarised"),
+        "spin polarisation strength P, 0 to 1, with device.spin = \"explicit\" only: Γ = γ (1 + P σ·n̂) on each (up, down) pair",
+    ),
+    key(
+        "contact.#.polarisation_direction",
+        ValueType::FloatList,
+        "",
+        Text("[0, 0, 1]"),
+        "direction n̂ = [x, y, z] of the majority spin (normalised; z is the spin axis of the orbitals, \"up\" = +z)",
+    ),
 ];
 
 /// Tables of the file and what each holds (for messages about a value of
@@ -950,6 +1020,10 @@ pub(crate) const SECTIONS: &[(&str, &str)] = &[
         "a table with from_nm, to_nm and donors_cm3, acceptors_cm3 and/or permittivity",
     ),
     ("channel.#", "a table with a name and the orbitals it holds"),
+    (
+        "contact.#",
+        "a table with a name, cells, gamma_ev and a mode",
+    ),
 ];
 
 /// What sits at a place of the file.
@@ -1008,7 +1082,7 @@ pub fn keys_markdown() -> String {
          Generated from the key table in `src/case/keys.rs`; do not edit by hand. \
          Regenerate with `QHEAT_REGEN=1 cargo test --test case_keys_doc`.\n\n\
          `#` stands for the index of an entry of a list of tables \
-         (`[[device.region]]`, `[[phonon]]`, `[[lattice.region]]`, `[[channel]]`), counted from 0. Numeric keys \
+         (`[[device.region]]`, `[[phonon]]`, `[[lattice.region]]`, `[[channel]]`, `[[contact]]`), counted from 0. Numeric keys \
          (number or integer) are the ones `qheat sweep --vary` and \
          `qheat screen --vary` accept.\n\n\
          | key | type | unit | default | meaning |\n|---|---|---|---|---|\n",
@@ -1029,7 +1103,7 @@ pub fn keys_markdown() -> String {
 #[cfg(test)]
 mod tests {
     use super::super::raw::{
-        RawBias, RawCase, RawChannel, RawDephasing, RawDevice, RawElectrostatics,
+        RawBias, RawCase, RawChannel, RawContact, RawDephasing, RawDevice, RawElectrostatics,
         RawElectrostaticsRegion, RawGrid, RawLattice, RawLatticeLead, RawLatticeRegion, RawLead,
         RawLeads, RawPhonon, RawProfile, RawRegion, RawResponse, RawSolver, RawThermal,
     };
@@ -1110,6 +1184,7 @@ mod tests {
                 fields_of::<RawElectrostaticsRegion>(),
             ),
             ("channel.#", fields_of::<RawChannel>()),
+            ("contact.#", fields_of::<RawContact>()),
         ];
         for (pattern, fields) in &structs {
             assert!(!fields.is_empty(), "no fields recorded for `{pattern}`");

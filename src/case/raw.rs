@@ -29,6 +29,25 @@ pub(crate) struct RawCase {
     pub lattice: Opt<RawLattice>,
     pub electrostatics: Opt<RawElectrostatics>,
     pub channel: Option<Vec<Spanned<RawChannel>>>,
+    pub contact: Option<Vec<Spanned<RawContact>>>,
+}
+
+#[derive(Deserialize, Debug, Clone, Default)]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a table with a name, cells, gamma_ev and a mode"
+)]
+pub(crate) struct RawContact {
+    pub name: Opt<String>,
+    pub cells: Opt<Vec<i64>>,
+    pub first_cell: Opt<i64>,
+    pub cell_count: Opt<i64>,
+    pub gamma_ev: Opt<f64>,
+    pub mode: Opt<String>,
+    pub fermi_level_ev: Opt<f64>,
+    pub temperature_k: Opt<f64>,
+    pub polarisation: Opt<f64>,
+    pub polarisation_direction: Opt<Vec<f64>>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -317,6 +336,7 @@ const ARRAY_KEYS: &[&str] = &[
     "lattice.region",
     "electrostatics.region",
     "channel",
+    "contact",
 ];
 
 /// The value at a dotted path and the span of its key.

@@ -619,7 +619,10 @@ fn check_neutral_coverage(
 /// The upper end of the window: the file's, or 20 kT_max above the higher
 /// Fermi level plus the largest phonon energy.
 fn window_max(spec: &CaseSpec, w: &WindowInput, remarks: &mut Remarks) -> f64 {
-    let mu_max = w.mu.0.max(w.mu.1);
+    // fixed attached contacts count like leads (probes lie between)
+    let mu_max = (spec.contacts.contacts.iter())
+        .filter(|c| !c.mode.is_floating())
+        .fold(w.mu.0.max(w.mu.1), |m, c| m.max(c.fermi_level_ev));
     match &spec.grid.max_ev {
         Some(m) => {
             if m.value < mu_max + 10.0 * w.kt_max {
@@ -1082,6 +1085,11 @@ fn assemble(
         grid,
         spin_degeneracy: f64::from(spec.spin_degeneracy),
         decimation: spec.solver.decimation,
+        contacts: Vec::new(),
+    };
+    let problem = Problem {
+        contacts: attached_contacts(spec, &problem),
+        ..problem
     };
     Ok(Resolved {
         problem,
@@ -1246,4 +1254,22 @@ impl Resolved {
 
 fn depth_key(d: usize) -> String {
     format!("solver.anderson_depth = {d}")
+}
+
+/// The attached contacts of the case; a probe's level starts at the mean
+/// of the two leads' levels (the solve starts there too and writes the
+/// solved level into its solution).
+fn attached_contacts(spec: &CaseSpec, problem: &Problem) -> Vec<crate::model::AttachedContact> {
+    let mu = 0.5 * (problem.left.fermi_level_ev + problem.right.fermi_level_ev);
+    let t = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
+    let mut out = spec.contacts.contacts.clone();
+    for c in &mut out {
+        if c.mode.is_floating() {
+            c.fermi_level_ev = mu;
+        }
+        if c.mode == crate::model::ContactMode::Temperature {
+            c.temperature_k = t;
+        }
+    }
+    out
 }

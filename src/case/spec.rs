@@ -9,6 +9,7 @@ use super::error::{CaseError, ErrorContext};
 use super::raw::RawCase;
 use super::sections::bias::BiasSpec;
 use super::sections::channels::ChannelsSpec;
+use super::sections::contacts::ContactsSpec;
 use super::sections::device::DeviceSpec;
 use super::sections::electrostatics::ElectrostaticsSpec;
 use super::sections::lattice::LatticeSpec;
@@ -39,6 +40,8 @@ pub(crate) struct CaseSpec {
     pub profile: ProfileSpec,
     pub lattice: Option<LatticeSpec>,
     pub electrostatics: Option<ElectrostaticsSpec>,
+    /// Contacts attached along the channel.
+    pub contacts: ContactsSpec,
     pub warnings: Vec<String>,
     /// Notes gathered while validating (defaults that matter).
     pub notes: Vec<String>,
@@ -73,6 +76,7 @@ pub(crate) fn validate(
     let solver = SolverSpec::from_raw(raw, &ck, &mut warnings)?;
     let lattice = LatticeSpec::from_raw(raw, &ck, &device, files, &mut warnings)?;
     let electrostatics = ElectrostaticsSpec::from_raw(raw, &ck, &device, &mut warnings)?;
+    let contacts = ContactsSpec::from_raw(raw, &ck, &device, leads.mean_temperature_k())?;
     Ok(CaseSpec {
         name,
         spin_degeneracy,
@@ -90,6 +94,7 @@ pub(crate) fn validate(
         profile: ProfileSpec::from_raw(raw, &ck)?,
         lattice,
         electrostatics,
+        contacts,
         warnings,
         notes,
     })

@@ -2,6 +2,7 @@
 //! only part of the crate that prints.
 
 mod coefficients;
+mod contacts;
 mod curves;
 mod format;
 mod lattice;

@@ -126,6 +126,7 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
     if let Some(c) = &summary.channels {
         print_channels(c);
     }
+    super::contacts::print_contacts(&summary.contacts, sol.report.probe_residual);
     print_drops(r);
     print_fermi_level_flags(&summary.local_fermi_level);
     if let Some(l) = &summary.lattice {

@@ -183,14 +183,16 @@ fn cell_exchange(blocks: &GreenBlocks, m: &PhononMode, i: usize, ne: usize) -> (
 pub const LEDGER_COMPARES: [(&str, &str); 5] = [
     (
         "charge",
-        "I_1 + I_2 (current into the device from both contacts), relative to \
-         max(|I_1|, the solver's current floor): zero at the fixed point of the Born loop",
+        "I_1 + I_2 (current into the device from both contacts, plus Σ_p I_p of the \
+         contacts attached along the channel), relative to max(|I_1|, the solver's current \
+         floor): zero at the fixed point of the Born loop",
     ),
     (
         "energy",
-        "J_E,1 + J_E,2 − Σ_i P_i (leads' energy loss against the electron-side lattice \
-         power), relative to the gross energy exchange Σ_k |E_k| (inflow + outflow of \
-         leads and bath) e ΔE: an identity of every pass, not a convergence check",
+        "J_E,1 + J_E,2 (+ Σ_p J_E,p) − Σ_i P_i (energy loss of leads and attached contacts \
+         against the electron-side lattice power), relative to the gross energy exchange \
+         Σ_k |E_k| (inflow + outflow of leads, contacts and bath) e ΔE: an identity of every \
+         pass, not a convergence check",
     ),
     (
         "lattice",
@@ -200,14 +202,15 @@ pub const LEDGER_COMPARES: [(&str, &str); 5] = [
     ),
     (
         "leads_lattice",
-        "J_E,1 + J_E,2 − Σ_m P_m (leads' energy loss against the phonon-side lattice \
-         power), relative to the power scale",
+        "J_E,1 + J_E,2 (+ Σ_p J_E,p) − Σ_m P_m (energy loss of leads and attached contacts \
+         against the phonon-side lattice power), relative to the power scale",
     ),
     (
         "heat",
-        "Σ_i P_i − (I·V + J_Q,1 + J_Q,2), relative to the gross heat exchange \
-         Σ_k (|E_k − µ_1| g_1 + |E_k − µ_2| g_2) e ΔE + |I·V| (g_α: inflow plus outflow \
-         of lead α)",
+        "Σ_i P_i − (P_el + J_Q,1 + J_Q,2 + Σ_p J_Q,p), P_el = I·V − Σ_p (µ_p − µ_2) I_p/e \
+         (I·V for two terminals), relative to the gross heat exchange \
+         Σ_k Σ_α |E_k − µ_α| g_α e ΔE + |P_el| (g_α: inflow plus outflow of lead or \
+         attached contact α)",
     ),
 ];
 

@@ -22,6 +22,7 @@
 //! All energy integrals are plain sums Σ_k g(E_k) ΔE.
 
 pub mod channels;
+pub mod contacts;
 mod fermi_level;
 mod ledger;
 mod movers;
@@ -129,7 +130,9 @@ pub struct Observables {
     pub lattice_power_phonon_side_w: f64,
     /// Emission, absorption and power of each phonon mode.
     pub phonon_modes: Vec<ModePower>,
-    /// Power delivered by the contacts to the device, I·V (W).
+    /// Power delivered by the contacts to the device, I·V (W); with
+    /// attached contacts −Σ_α µ_α I_α/e over all of them, which is
+    /// I·V − Σ_p (µ_p − µ_2) I_p/e.
     pub electrical_power_w: f64,
     /// Conductance I/V when V ≠ 0 (S).
     pub conductance_s: Option<f64>,
@@ -150,6 +153,10 @@ pub struct Observables {
     /// [`channels::observe_channels`]; `None` from [`observe`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub channels: Option<channels::ChannelObservables>,
+    /// The contacts attached along the channel: levels and currents
+    /// (empty for a two-terminal device).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub contacts: Vec<contacts::ContactReading>,
 }
 
 /// g_s/h in 1/(eV s).
@@ -287,26 +294,29 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let lattice = lattice_power(sol);
     let lattice_power_w: f64 = lattice.iter().sum();
     let voltage_v = p.voltage_v();
-    let electrical_power_w = current_left_a * voltage_v;
-    let charge_a = current_left_a + current_right_a;
-    let energy_w = energy_current_left_w + energy_current_right_w - lattice_power_w;
+    // The attached contacts' sums (all zero without them).
+    let readings = contacts::contact_readings(sol);
+    let [c_i, c_e, c_q, c_p, c_gross_q, c_gross_e] = contacts::ledger_terms(sol, &readings);
+    let electrical_power_w = current_left_a * voltage_v + c_p;
+    let charge_a = current_left_a + current_right_a + c_i;
+    let energy_w = energy_current_left_w + energy_current_right_w + c_e - lattice_power_w;
     let heat_w =
-        lattice_power_w - (electrical_power_w + heat_current_left_w + heat_current_right_w);
+        lattice_power_w - (electrical_power_w + heat_current_left_w + heat_current_right_w + c_q);
     let phonon_modes = phonon_side_power(sol);
     let lattice_power_phonon_side_w: f64 = phonon_modes.iter().map(|m| m.power_w).sum();
     let gross_phonon_w: f64 = phonon_modes.iter().map(ModePower::gross_w).sum();
-    let heat_scale_w = gross_q * e_c * de + electrical_power_w.abs();
+    let heat_scale_w = gross_q * e_c * de + c_gross_q + electrical_power_w.abs();
     let power_scale_w = gross_phonon_w + heat_scale_w;
     let charge_scale_a = current_left_a.abs().max(sol.report.params.current_floor_a);
     let lattice_w = lattice_power_phonon_side_w - lattice_power_w;
     let leads_lattice_w =
-        energy_current_left_w + energy_current_right_w - lattice_power_phonon_side_w;
+        energy_current_left_w + energy_current_right_w + c_e - lattice_power_phonon_side_w;
     let ledger = Ledger {
         charge_a,
         charge_scale_a,
         charge_relative: relative(charge_a, charge_scale_a),
         energy_w,
-        energy_relative: relative(energy_w, gross_e * e_c * de),
+        energy_relative: relative(energy_w, gross_e * e_c * de + c_gross_e),
         lattice_w,
         lattice_relative: relative(lattice_w, power_scale_w),
         leads_lattice_w,
@@ -341,6 +351,7 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
         sites,
         spectrum,
         channels: None,
+        contacts: readings,
     }
 }
 

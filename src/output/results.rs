@@ -206,6 +206,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         resolved_case: info.case_toml.into(),
         channels: o.channels.as_ref().map(channel_summary),
         result_files: None,
+        contacts: super::schema::summary::ContactSummary::all(p, &o.contacts),
     }
 }
 

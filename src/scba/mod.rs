@@ -65,10 +65,12 @@
 //!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
+pub mod contacts;
 mod mixing;
 mod params;
 mod undetermined;
 
+pub use contacts::ContactFlows;
 pub use mixing::Mixer;
 pub use params::{EnergyOrder, Mixing, ScbaParams};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
@@ -253,10 +255,13 @@ pub struct Pass {
     /// when the scattering has coupling matrices (the block Born update
     /// needs them); `None` otherwise.
     pub blocks: Option<GreenBlocks>,
+    /// Flows of the attached contacts per energy (empty without them).
+    pub contact_flows: ContactFlows,
 }
 
 /// Run the recursion at every energy with the scattering self-energy
-/// `sigma0`, in parallel over energies with one workspace per thread.
+/// `sigma0`, in parallel over energies with one workspace per thread. The
+/// attached contacts sit at the levels written in `problem`.
 pub fn pass(
     problem: &Problem,
     leads: &LeadTable,
@@ -265,10 +270,12 @@ pub fn pass(
 ) -> Result<Pass, SolveError> {
     check_layout(problem, sigma0)?;
     let mut out = Pass::zeros(problem);
+    let levels = contacts::given_levels(problem);
     pass_rows(
         problem,
         leads,
         sigma0,
+        &levels,
         want_transmission,
         |_| true,
         &mut out,
@@ -295,85 +302,9 @@ impl Pass {
                 .scattering
                 .uses_blocks()
                 .then(|| GreenBlocks::zeros(ne, n, problem.device.orbitals)),
+            contact_flows: ContactFlows::zeros(problem),
         }
     }
-}
-
-/// Run the recursion at the energies `k` with `rows(k)` true, writing their
-/// rows of `out` (other rows are left as they are).
-fn pass_rows(
-    problem: &Problem,
-    leads: &LeadTable,
-    sigma0: &ScatteringSelfEnergy,
-    want_transmission: bool,
-    rows: impl Fn(usize) -> bool + Sync,
-    out: &mut Pass,
-) -> Result<(), SolveError> {
-    if sigma0.blocks.is_some() {
-        return pass_rows_blocks(problem, leads, sigma0, want_transmission, rows, out);
-    }
-    let dev = &problem.device;
-    let n = dev.cells();
-    let b = dev.orbitals;
-    let ns = n * b;
-    // A one-cell device has no bonds: give each energy an empty row.
-    let nb = n.saturating_sub(1);
-    let mut empty_bonds = vec![0.0; problem.grid.count];
-    let bond_rows: Vec<&mut [f64]> = if nb == 0 {
-        empty_bonds.chunks_mut(1).map(|c| &mut c[..0]).collect()
-    } else {
-        out.bond.chunks_mut(nb).collect()
-    };
-    let green = &mut out.green;
-    green
-        .retarded
-        .par_chunks_mut(ns)
-        .zip(green.filled.par_chunks_mut(ns))
-        .zip(bond_rows.into_par_iter())
-        .zip(out.flows.par_iter_mut())
-        .enumerate()
-        .filter(|(k, _)| rows(*k))
-        .try_for_each_init(
-            // Per thread: the RGF workspace and the two lead in-scattering
-            // blocks, filled in place at each energy (no allocation per energy).
-            || {
-                (
-                    Workspace::new(n, b),
-                    Mat::<C64>::zeros(b, b),
-                    Mat::<C64>::zeros(b, b),
-                )
-            },
-            |(ws, inl, inr), (k, (((gr, gn), bd), fl))| -> Result<(), SolveError> {
-                let e = problem.grid.energy(k);
-                let sl = &leads.left[k];
-                let sr = &leads.right[k];
-                inscatter_into(sl, problem.left.occupation(e), inl);
-                inscatter_into(sr, problem.right.occupation(e), inr);
-                let input = EnergyInput {
-                    energy_ev: e,
-                    onsite: &dev.onsite,
-                    coupling: &dev.coupling,
-                    sigma_left: sl,
-                    sigma_right: sr,
-                    inscatter_left: inl,
-                    inscatter_right: inr,
-                    scatter_retarded: &sigma0.retarded[k * ns..(k + 1) * ns],
-                    scatter_in: &sigma0.inscatter[k * ns..(k + 1) * ns],
-                    want_transmission,
-                };
-                *fl = rgf::solve_energy(
-                    &input,
-                    ws,
-                    EnergyOutput {
-                        retarded: gr,
-                        filled: gn,
-                        bond: bd,
-                        full: None,
-                    },
-                )?;
-                Ok(())
-            },
-        )
 }
 
 /// An all-zero Σ0 in the layout the scattering of `problem` needs.
@@ -408,29 +339,28 @@ fn check_layout(problem: &Problem, sigma0: &ScatteringSelfEnergy) -> Result<(), 
     Ok(())
 }
 
-/// [`pass_rows`] for Σ0 on b × b blocks: the block recursion at every
-/// energy, which also keeps the diagonal blocks of G in `out.blocks`.
-fn pass_rows_blocks(
+/// Run the recursion at the energies `k` with `rows(k)` true, writing their
+/// rows of `out` (other rows are left as they are). The attached contacts
+/// sit at `levels` (see [`contacts`]).
+fn pass_rows(
     problem: &Problem,
     leads: &LeadTable,
     sigma0: &ScatteringSelfEnergy,
+    levels: &[(f64, f64)],
     want_transmission: bool,
     rows: impl Fn(usize) -> bool + Sync,
     out: &mut Pass,
 ) -> Result<(), SolveError> {
+    if sigma0.blocks.is_some() || contacts::needs_blocks(problem) {
+        let ctx = RowContext::new(problem, leads, sigma0, levels, want_transmission);
+        return pass_rows_blocks(&ctx, rows, out);
+    }
+    let ctx = RowContext::new(problem, leads, sigma0, levels, want_transmission);
     let dev = &problem.device;
-    let (n, b) = (dev.cells(), dev.orbitals);
-    let (ns, per) = (n * b, sigma0.sites);
-    let nb = n.saturating_sub(1);
+    let ns = dev.cells() * dev.orbitals;
     let mut empty_bonds = vec![0.0; problem.grid.count];
-    let bond_rows: Vec<&mut [f64]> = if nb == 0 {
-        empty_bonds.chunks_mut(1).map(|c| &mut c[..0]).collect()
-    } else {
-        out.bond.chunks_mut(nb).collect()
-    };
-    let blocks = out.blocks.as_mut().ok_or_else(|| {
-        SolveError::Invalid("a block self-energy for a pass without block storage".into())
-    })?;
+    let bond_rows = bond_rows(problem, &mut out.bond, &mut empty_bonds);
+    let crow_len = out.contact_flows.row_len().max(1);
     let green = &mut out.green;
     green
         .retarded
@@ -438,51 +368,515 @@ fn pass_rows_blocks(
         .zip(green.filled.par_chunks_mut(ns))
         .zip(bond_rows.into_par_iter())
         .zip(out.flows.par_iter_mut())
-        .zip(blocks.retarded.par_chunks_mut(per))
-        .zip(blocks.filled.par_chunks_mut(per))
+        .zip(out.contact_flows.data.par_chunks_mut(crow_len))
         .enumerate()
         .filter(|(k, _)| rows(*k))
         .try_for_each_init(
-            || {
-                (
-                    Workspace::new(n, b),
-                    Mat::<C64>::zeros(b, b),
-                    Mat::<C64>::zeros(b, b),
-                )
-            },
-            |(ws, inl, inr), (k, (((((gr, gn), bd), fl), br), bn))| -> Result<(), SolveError> {
-                let e = problem.grid.energy(k);
-                let (sl, sr) = (&leads.left[k], &leads.right[k]);
-                inscatter_into(sl, problem.left.occupation(e), inl);
-                inscatter_into(sr, problem.right.occupation(e), inr);
-                let input = EnergyInput {
-                    energy_ev: e,
-                    onsite: &dev.onsite,
-                    coupling: &dev.coupling,
-                    sigma_left: sl,
-                    sigma_right: sr,
-                    inscatter_left: inl,
-                    inscatter_right: inr,
-                    scatter_retarded: &[],
-                    scatter_in: &[],
-                    want_transmission,
-                };
-                let mut exchange = rgf::BlockExchange {
-                    scatter_retarded: &sigma0.retarded[k * per..(k + 1) * per],
-                    scatter_in: &sigma0.inscatter[k * per..(k + 1) * per],
-                    green_retarded: br,
-                    green_filled: bn,
-                };
+            // Per thread: the RGF workspace, the lead in-scattering blocks
+            // and the contacts' buffers, filled in place at each energy (no
+            // allocation per energy).
+            || RowScratch::new(problem, false),
+            |sc, (k, ((((gr, gn), bd), fl), crow))| -> Result<(), SolveError> {
                 let out = EnergyOutput {
                     retarded: gr,
                     filled: gn,
                     bond: bd,
                     full: None,
                 };
-                *fl = rgf::solve_energy_with_blocks(&input, ws, out, &mut exchange)?;
+                *fl = ctx.solve_diagonal(k, sc, out, crow)?;
                 Ok(())
             },
         )
+}
+
+/// The bond-flow row of every energy (empty rows for a one-cell device,
+/// which has no bonds; `empty` holds one number per energy for that).
+fn bond_rows<'a>(
+    problem: &Problem,
+    bond: &'a mut [f64],
+    empty: &'a mut [f64],
+) -> Vec<&'a mut [f64]> {
+    let nb = problem.device.cells().saturating_sub(1);
+    if nb == 0 {
+        empty.chunks_mut(1).map(|c| &mut c[..0]).collect()
+    } else {
+        bond.chunks_mut(nb).collect()
+    }
+}
+
+/// What every energy of a pass shares.
+struct RowContext<'a> {
+    problem: &'a Problem,
+    leads: &'a LeadTable,
+    sigma0: &'a ScatteringSelfEnergy,
+    levels: &'a [(f64, f64)],
+    want_transmission: bool,
+    /// Γ of one cell of each attached contact (b × b, row-major).
+    gammas: Vec<Vec<C64>>,
+    /// The floating contacts (one response recursion each).
+    floating: Vec<usize>,
+    /// Numbers per contact in a row of [`contacts::ContactFlows`].
+    per_contact: usize,
+}
+
+/// Per-thread scratch of a pass: the RGF workspace, the lead in-scattering
+/// blocks and the buffers of the attached contacts.
+struct RowScratch {
+    ws: Workspace,
+    inl: Mat<C64>,
+    inr: Mat<C64>,
+    zero: Mat<C64>,
+    sr: Vec<C64>,
+    si: Vec<f64>,
+    resp_in: Vec<f64>,
+    gr2: Vec<C64>,
+    gn2: Vec<f64>,
+    bond2: Vec<f64>,
+    br: Vec<C64>,
+    bn: Vec<C64>,
+    br2: Vec<C64>,
+    bn2: Vec<C64>,
+}
+
+impl RowScratch {
+    fn new(problem: &Problem, blocks: bool) -> Self {
+        let (n, b) = (problem.device.cells(), problem.device.orbitals);
+        let z = C64::new(0.0, 0.0);
+        let with = !problem.contacts.is_empty();
+        let len = if with {
+            if blocks { n * b * b } else { n * b }
+        } else {
+            0
+        };
+        let resp = if problem.has_floating_contacts() {
+            len
+        } else {
+            0
+        };
+        let own_blocks = with && blocks && problem.scattering.uses_blocks();
+        let green_len = if blocks && !own_blocks { n * b * b } else { 0 };
+        Self {
+            ws: Workspace::new(n, b),
+            inl: Mat::zeros(b, b),
+            inr: Mat::zeros(b, b),
+            zero: Mat::zeros(b, b),
+            sr: vec![z; len],
+            si: vec![0.0; len],
+            resp_in: vec![0.0; resp],
+            gr2: vec![z; if resp > 0 { n * b } else { 0 }],
+            gn2: vec![0.0; if resp > 0 { n * b } else { 0 }],
+            bond2: vec![0.0; if resp > 0 { n.saturating_sub(1) } else { 0 }],
+            br: vec![z; green_len],
+            bn: vec![z; green_len],
+            br2: vec![z; if resp > 0 && blocks { n * b * b } else { 0 }],
+            bn2: vec![z; if resp > 0 && blocks { n * b * b } else { 0 }],
+        }
+    }
+}
+
+impl<'a> RowContext<'a> {
+    fn new(
+        problem: &'a Problem,
+        leads: &'a LeadTable,
+        sigma0: &'a ScatteringSelfEnergy,
+        levels: &'a [(f64, f64)],
+        want_transmission: bool,
+    ) -> Self {
+        let b = problem.device.orbitals;
+        let floating = contacts::floating_indices(problem);
+        Self {
+            problem,
+            leads,
+            sigma0,
+            levels,
+            want_transmission,
+            gammas: problem
+                .contacts
+                .iter()
+                .map(|c| contacts::gamma_block(c, b))
+                .collect(),
+            per_contact: 3 + floating.len(),
+            floating,
+        }
+    }
+
+    /// The lead part of the input at energy k (in-scattering written into
+    /// the scratch); the scattering slices are left empty.
+    fn lead_input<'s>(
+        &'s self,
+        k: usize,
+        inl: &'s mut Mat<C64>,
+        inr: &'s mut Mat<C64>,
+    ) -> EnergyInput<'s> {
+        let (problem, e) = (self.problem, self.problem.grid.energy(k));
+        let (sl, sr) = (&self.leads.left[k], &self.leads.right[k]);
+        inscatter_into(sl, problem.left.occupation(e), inl);
+        inscatter_into(sr, problem.right.occupation(e), inr);
+        EnergyInput {
+            energy_ev: e,
+            onsite: &problem.device.onsite,
+            coupling: &problem.device.coupling,
+            sigma_left: sl,
+            sigma_right: sr,
+            inscatter_left: inl,
+            inscatter_right: inr,
+            scatter_retarded: &[],
+            scatter_in: &[],
+            want_transmission: self.want_transmission,
+        }
+    }
+
+    /// One energy on the diagonal route: Σ0 plus the contacts on the
+    /// orbital sites, the recursion, and the contacts' records in `crow`.
+    fn solve_diagonal(
+        &self,
+        k: usize,
+        sc: &mut RowScratch,
+        out: EnergyOutput<'_>,
+        crow: &mut [f64],
+    ) -> Result<TerminalFlows, SolveError> {
+        let problem = self.problem;
+        let ns = problem.sites();
+        let e = problem.grid.energy(k);
+        let sr_row = &self.sigma0.retarded[k * ns..(k + 1) * ns];
+        let si_row = &self.sigma0.inscatter[k * ns..(k + 1) * ns];
+        let with = !problem.contacts.is_empty();
+        if with {
+            sc.sr.copy_from_slice(sr_row);
+            sc.si.copy_from_slice(si_row);
+            contacts::add_diagonal(problem, self.levels, e, &mut sc.sr, &mut sc.si);
+        }
+        let RowScratch {
+            ws,
+            inl,
+            inr,
+            zero,
+            sr,
+            si,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            ..
+        } = sc;
+        let (r, i) = if with {
+            (&sr[..], &si[..])
+        } else {
+            (sr_row, si_row)
+        };
+        let input = EnergyInput {
+            scatter_retarded: r,
+            scatter_in: i,
+            ..self.lead_input(k, inl, inr)
+        };
+        let EnergyOutput {
+            retarded: gr,
+            filled: gn,
+            bond,
+            full,
+        } = out;
+        let fl = rgf::solve_energy(
+            &input,
+            ws,
+            EnergyOutput {
+                retarded: &mut *gr,
+                filled: &mut *gn,
+                bond,
+                full,
+            },
+        )?;
+        if !with {
+            return Ok(fl);
+        }
+        contacts::record_diagonal(problem, self.levels, e, gr, gn, self.per_contact, crow);
+        let spare = Spare {
+            ws,
+            zero,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            br2: &mut [],
+            bn2: &mut [],
+        };
+        self.responses_diagonal(&input, spare, crow)?;
+        Ok(fl)
+    }
+}
+
+/// The scratch a response recursion writes into (see [`contacts`]).
+struct Spare<'s> {
+    ws: &'s mut Workspace,
+    zero: &'s Mat<C64>,
+    resp_in: &'s mut [f64],
+    gr2: &'s mut [C64],
+    gn2: &'s mut [f64],
+    bond2: &'s mut [f64],
+    br2: &'s mut [C64],
+    bn2: &'s mut [C64],
+}
+
+impl RowContext<'_> {
+    /// R_pq = Tr[Γ_p G Γ_q G†] for every probe q on the diagonal route: the
+    /// G^n of a recursion whose only in-scattering is Γ_q, traced with Γ_p.
+    fn responses_diagonal(
+        &self,
+        input: &EnergyInput<'_>,
+        sp: Spare<'_>,
+        crow: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let problem = self.problem;
+        let b = problem.device.orbitals;
+        for (qi, &q) in self.floating.iter().enumerate() {
+            sp.resp_in.fill(0.0);
+            let cq = &problem.contacts[q];
+            for s in contacts::contact_sites(cq, b) {
+                sp.resp_in[s] = cq.gamma_ev;
+            }
+            let only_q = EnergyInput {
+                inscatter_left: sp.zero,
+                inscatter_right: sp.zero,
+                scatter_in: sp.resp_in,
+                want_transmission: false,
+                ..*input
+            };
+            let o2 = EnergyOutput {
+                retarded: &mut *sp.gr2,
+                filled: &mut *sp.gn2,
+                bond: &mut *sp.bond2,
+                full: None,
+            };
+            rgf::solve_energy(&only_q, &mut *sp.ws, o2)?;
+            for (p, c) in problem.contacts.iter().enumerate() {
+                let r: f64 = contacts::contact_sites(c, b)
+                    .map(|s| c.gamma_ev * sp.gn2[s])
+                    .sum();
+                crow[p * self.per_contact + 3 + qi] = r;
+            }
+        }
+        Ok(())
+    }
+
+    /// [`RowContext::responses_diagonal`] on the block route (Σ^r as
+    /// blocks in `r`).
+    fn responses_blocks(
+        &self,
+        input: &EnergyInput<'_>,
+        r: &[C64],
+        sp: Spare<'_>,
+        crow: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let problem = self.problem;
+        let b = problem.device.orbitals;
+        let bb = b * b;
+        for (qi, &q) in self.floating.iter().enumerate() {
+            sp.resp_in.fill(0.0);
+            for &c in &problem.contacts[q].cells {
+                let cell = &mut sp.resp_in[c * bb..(c + 1) * bb];
+                contacts::add_block(&self.gammas[q], b, 1.0, None, cell);
+            }
+            let only_q = EnergyInput {
+                inscatter_left: sp.zero,
+                inscatter_right: sp.zero,
+                want_transmission: false,
+                ..*input
+            };
+            let mut x2 = rgf::BlockExchange {
+                scatter_retarded: r,
+                scatter_in: sp.resp_in,
+                green_retarded: &mut *sp.br2,
+                green_filled: &mut *sp.bn2,
+            };
+            let o2 = EnergyOutput {
+                retarded: &mut *sp.gr2,
+                filled: &mut *sp.gn2,
+                bond: &mut *sp.bond2,
+                full: None,
+            };
+            rgf::solve_energy_with_blocks(&only_q, &mut *sp.ws, o2, &mut x2)?;
+            for (p, c) in problem.contacts.iter().enumerate() {
+                let gamma = &self.gammas[p];
+                let r: f64 = (c.cells.iter())
+                    .map(|&i| {
+                        let at = i * bb..(i + 1) * bb;
+                        contacts::block_traces(
+                            gamma,
+                            &x2.green_retarded[at.clone()],
+                            &x2.green_filled[at],
+                            b,
+                        )
+                        .1
+                    })
+                    .sum();
+                crow[p * self.per_contact + 3 + qi] = r;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// [`pass_rows`] on b × b blocks: for Σ0 on blocks, or for contacts with
+/// spin-off-diagonal broadening. Keeps the diagonal blocks of G in
+/// `out.blocks` when the scattering has coupling matrices.
+fn pass_rows_blocks(
+    ctx: &RowContext<'_>,
+    rows: impl Fn(usize) -> bool + Sync,
+    out: &mut Pass,
+) -> Result<(), SolveError> {
+    let problem = ctx.problem;
+    let dev = &problem.device;
+    let (n, b) = (dev.cells(), dev.orbitals);
+    let ns = n * b;
+    let ne = problem.grid.count;
+    let mut empty_bonds = vec![0.0; ne];
+    let bond_rows = bond_rows(problem, &mut out.bond, &mut empty_bonds);
+    if ctx.sigma0.blocks.is_some() && out.blocks.is_none() {
+        return Err(SolveError::Invalid(
+            "a block self-energy for a pass without block storage".into(),
+        ));
+    }
+    let kept: Vec<Option<(&mut [C64], &mut [C64])>> = match out.blocks.as_mut() {
+        Some(blocks) => {
+            let per = blocks.per_energy;
+            blocks
+                .retarded
+                .chunks_mut(per)
+                .zip(blocks.filled.chunks_mut(per))
+                .map(Some)
+                .collect()
+        }
+        None => (0..ne).map(|_| None).collect(),
+    };
+    let crow_len = out.contact_flows.row_len().max(1);
+    let green = &mut out.green;
+    green
+        .retarded
+        .par_chunks_mut(ns)
+        .zip(green.filled.par_chunks_mut(ns))
+        .zip(bond_rows.into_par_iter())
+        .zip(out.flows.par_iter_mut())
+        .zip(kept.into_par_iter())
+        .zip(out.contact_flows.data.par_chunks_mut(crow_len))
+        .enumerate()
+        .filter(|(k, _)| rows(*k))
+        .try_for_each_init(
+            || RowScratch::new(problem, true),
+            |sc, (k, (((((gr, gn), bd), fl), kept), crow))| -> Result<(), SolveError> {
+                let out = EnergyOutput {
+                    retarded: gr,
+                    filled: gn,
+                    bond: bd,
+                    full: None,
+                };
+                *fl = ctx.solve_blocks(k, sc, out, kept, crow)?;
+                Ok(())
+            },
+        )
+}
+
+impl RowContext<'_> {
+    /// Σ0 of energy k as blocks (Σ^r row-major, Σ^in packed) plus the
+    /// contacts, written into the scratch (Σ0 on the diagonal when it has
+    /// no blocks).
+    fn fill_blocks(&self, k: usize, sr: &mut [C64], si: &mut [f64]) {
+        let problem = self.problem;
+        let (n, b) = (problem.device.cells(), problem.device.orbitals);
+        let bb = b * b;
+        let s0 = self.sigma0;
+        if s0.blocks.is_some() {
+            let per = s0.sites;
+            sr.copy_from_slice(&s0.retarded[k * per..(k + 1) * per]);
+            si.copy_from_slice(&s0.inscatter[k * per..(k + 1) * per]);
+        } else {
+            sr.fill(C64::new(0.0, 0.0));
+            si.fill(0.0);
+            let ns = n * b;
+            for s in 0..ns {
+                let (i, o) = (s / b, s % b);
+                sr[i * bb + o * b + o] = s0.retarded[k * ns + s];
+                si[i * bb + o * b + o] = s0.inscatter[k * ns + s];
+            }
+        }
+        let e = problem.grid.energy(k);
+        for ((c, &level), gamma) in problem.contacts.iter().zip(self.levels).zip(&self.gammas) {
+            let f = crate::units::fermi(e, level.0, level.1);
+            for &i in &c.cells {
+                let cell = i * bb..(i + 1) * bb;
+                contacts::add_block(gamma, b, f, Some(&mut sr[cell.clone()]), &mut si[cell]);
+            }
+        }
+    }
+
+    /// One energy on the block route, the contacts' records in `crow`.
+    fn solve_blocks(
+        &self,
+        k: usize,
+        sc: &mut RowScratch,
+        out: EnergyOutput<'_>,
+        kept: Option<(&mut [C64], &mut [C64])>,
+        crow: &mut [f64],
+    ) -> Result<TerminalFlows, SolveError> {
+        let problem = self.problem;
+        let with = !problem.contacts.is_empty();
+        if with {
+            self.fill_blocks(k, &mut sc.sr, &mut sc.si);
+        }
+        let RowScratch {
+            ws,
+            inl,
+            inr,
+            zero,
+            sr,
+            si,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            br,
+            bn,
+            br2,
+            bn2,
+        } = sc;
+        let per = self.sigma0.sites;
+        let (r, i): (&[C64], &[f64]) = if with {
+            (sr, si)
+        } else {
+            let s0 = self.sigma0;
+            (
+                &s0.retarded[k * per..(k + 1) * per],
+                &s0.inscatter[k * per..(k + 1) * per],
+            )
+        };
+        let (g, gn) = match kept {
+            Some((g, gn)) => (g, gn),
+            None => (&mut br[..], &mut bn[..]),
+        };
+        let input = self.lead_input(k, inl, inr);
+        let mut exchange = rgf::BlockExchange {
+            scatter_retarded: r,
+            scatter_in: i,
+            green_retarded: &mut *g,
+            green_filled: &mut *gn,
+        };
+        let fl = rgf::solve_energy_with_blocks(&input, ws, out, &mut exchange)?;
+        if !with {
+            return Ok(fl);
+        }
+        let e = problem.grid.energy(k);
+        contacts::record_blocks(problem, self.levels, e, g, gn, self.per_contact, crow);
+        let spare = Spare {
+            ws,
+            zero,
+            resp_in,
+            gr2,
+            gn2,
+            bond2,
+            br2,
+            bn2,
+        };
+        self.responses_blocks(&input, r, spare, crow)?;
+        Ok(fl)
+    }
 }
 
 /// Σ^in = Γ f with Γ = i(Σ − Σ†), written into `dst` (scalar for b = 1).
@@ -517,6 +911,12 @@ pub struct ScbaReport {
     pub warm_start: bool,
     /// The energy order used (`Simultaneous` for a coherent device).
     pub energy_order: EnergyOrder,
+    /// With voltage or temperature probes: the largest relative residual
+    /// of their zero-current conditions in the last pass (particle flow
+    /// over its gross exchange, and heat flow likewise); `None` without
+    /// probes.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub probe_residual: Option<f64>,
 }
 
 /// A solved operating point: the Green's functions and the Σ0 they were
@@ -668,9 +1068,11 @@ pub fn solve_in_lattice(
         hermitian_part: scat.hermitian_part && !scat.phonons.is_empty(),
         warm_start: warm.is_some() && !coherent,
         energy_order: EnergyOrder::Simultaneous,
+        probe_residual: None,
     };
     let lattice = lattice_temperature_k.map(<[f64]>::to_vec);
-    if coherent {
+    // Probes depend on G^n: a coherent device with probes iterates too.
+    if coherent && !problem.has_floating_contacts() {
         let sigma = sigma_zeros(problem);
         let pass = pass(problem, leads, &sigma, true)?;
         return Ok(Solution {
@@ -781,12 +1183,17 @@ impl<'a> BornLoop<'a> {
         let mut p = Pass::zeros(problem);
         let mut fx = sigma_zeros(problem);
         let mut black_ready = self.black_ready_at_start;
+        // The levels of the attached contacts: probes float (see `contacts`).
+        let mut levels = contacts::starting_levels(problem);
+        let probes = problem.has_floating_contacts();
         loop {
             let maps = BornMaps {
                 problem,
                 leads: self.leads,
                 hilbert: self.hilbert.as_ref(),
                 lattice: self.lattice.as_deref(),
+                levels: &levels,
+                transmission: problem.scattering.is_coherent(),
             };
             let order = self.colour.filter(|_| black_ready);
             sweep(
@@ -812,7 +1219,11 @@ impl<'a> BornLoop<'a> {
             let current_change = current_change(params, (il, ir), previous);
             previous = Some((il, ir));
             self.report.iterations = iteration;
-            let done = residual <= params.tolerance && current_change <= 1.0;
+            let probe = probes.then(|| contacts::probe_residual(problem, &levels, &p));
+            self.report.probe_residual = probe;
+            let done = residual <= params.tolerance
+                && current_change <= 1.0
+                && probe.is_none_or(|r| r <= params.tolerance);
             if let (Some(watch), false) = (self.isolation.as_mut(), done) {
                 watch.observe(problem, &x, &fx, iteration, residual)?;
             }
@@ -820,6 +1231,7 @@ impl<'a> BornLoop<'a> {
             let step = if done || out_of_budget {
                 "final"
             } else {
+                contacts::float_levels(problem, &p, &mut levels);
                 mixer.update(&mut x, &fx)
             };
             let record = IterationRecord {
@@ -835,7 +1247,7 @@ impl<'a> BornLoop<'a> {
             if done || out_of_budget {
                 self.report.converged = done;
                 return Ok(Solution {
-                    problem: problem.clone(),
+                    problem: contacts::with_levels(problem, &levels),
                     pass: p,
                     sigma: x,
                     report: self.report,
@@ -868,6 +1280,11 @@ struct BornMaps<'a> {
     leads: &'a LeadTable,
     hilbert: Option<&'a HilbertTransform>,
     lattice: Option<&'a [f64]>,
+    /// The levels of the attached contacts in this iteration.
+    levels: &'a [(f64, f64)],
+    /// Also compute the coherent transmission (no scattering: a device
+    /// that iterates only for its probes).
+    transmission: bool,
 }
 
 impl BornMaps<'_> {
@@ -899,17 +1316,18 @@ fn sweep(
     fx: &mut ScatteringSelfEnergy,
     iteration: usize,
 ) -> Result<(), SolveError> {
-    let (problem, leads) = (maps.problem, maps.leads);
+    let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
+    let tr = maps.transmission;
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
-            pass_rows(problem, leads, x, false, red, p)?;
+            pass_rows(problem, leads, x, levels, tr, red, p)?;
             maps.rebuild(p, fx);
             ensure_finite(fx, problem, iteration)?;
             copy_rows(fx, x, |k| !red(k));
-            pass_rows(problem, leads, x, false, |k| !red(k), p)?;
+            pass_rows(problem, leads, x, levels, tr, |k| !red(k), p)?;
         }
-        None => pass_rows(problem, leads, x, false, |_| true, p)?,
+        None => pass_rows(problem, leads, x, levels, tr, |_| true, p)?,
     }
     maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
@@ -935,11 +1353,14 @@ pub fn born_map(
     let mut p = pass(problem, leads, &x, false)?;
     let mut fx = sigma_zeros(problem);
     let colour = red_black_colouring(problem, order).map(|(w, _)| w);
+    let levels = contacts::given_levels(problem);
     let maps = BornMaps {
         problem,
         leads,
         hilbert: hilbert.as_ref(),
         lattice: None,
+        levels: &levels,
+        transmission: false,
     };
     sweep(&maps, colour, &mut x, &mut p, &mut fx, 1)?;
     Ok((x, fx))

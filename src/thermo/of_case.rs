@@ -90,7 +90,9 @@ pub fn case_coefficients(
     // κ_ph at the reference temperature: given, from the lattice, or 0.
     let kph = resolved.phonon_conductance_at(t)?;
     let source = resolved.phonon_conductance_source();
-    if resolved.problem.scattering.is_coherent() {
+    // Landauer formulas hold for two terminals only: attached contacts take
+    // the finite-difference route.
+    if resolved.problem.scattering.is_coherent() && resolved.problem.contacts.is_empty() {
         let eq = case_at(
             case,
             &operating_point(mu, t, 0.0, 0.0, ResponseSplit::Symmetric),

@@ -343,6 +343,7 @@ fn born_loop(p: &Problem, tol: f64, max_iter: usize, must_converge: bool) -> Den
                     bond,
                     flows,
                     blocks,
+                    contact_flows: Default::default(),
                 },
                 sigma,
                 iterations,

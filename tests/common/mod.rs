@@ -136,6 +136,7 @@ pub fn coherent_problem(
         grid,
         spin_degeneracy: 2.0,
         decimation: DecimationParams::default(),
+        contacts: Vec::new(),
     }
 }
 

@@ -3,6 +3,7 @@
 
 pub(crate) mod bias;
 pub(crate) mod channels;
+pub(crate) mod contacts;
 pub(crate) mod device;
 pub(crate) mod electrostatics;
 pub(crate) mod lattice;

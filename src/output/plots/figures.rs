@@ -154,6 +154,7 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
             .copied()
             .chain([mu_l, mu_r])
             .chain(movers.iter().flatten().flatten().map(|p| p.1))
+            .chain(o.contacts.iter().map(|c| c.fermi_level_ev))
     };
     let (factor, unit) = energy_unit(levels());
     let r = finite_range(&levels().collect::<Vec<_>>()).unwrap_or((0.0, 1.0));
@@ -181,6 +182,12 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
         if !runs.is_empty() {
             entries.push((Mark::Line(colour, true), label.to_string()));
         }
+    }
+    if !o.contacts.is_empty() {
+        entries.push((
+            Mark::Line(BATH, false),
+            "attached contacts: µ over their cells".to_string(),
+        ));
     }
     EnergyPanel {
         range: padded(r.0 * factor, r.1 * factor, 0.08),
@@ -249,6 +256,31 @@ fn draw_energy_panel(
         for run in runs {
             chart.draw_series(DashedLineSeries::new(run, 5, 4, colour.stroke_width(2)))?;
         }
+    }
+    draw_attached_contacts(&mut chart, o, span.a, ef)
+}
+
+/// Each attached contact as a thick bar at its level µ_p (given or read)
+/// over its cells, with a dot at each cell: a probe's reading beside the
+/// local Fermi level.
+fn draw_attached_contacts(
+    chart: &mut Chart<'_, '_>,
+    o: &Observables,
+    a: f64,
+    ef: f64,
+) -> Result<(), DrawError> {
+    let x = &o.sites.x_nm;
+    for c in &o.contacts {
+        let y = c.fermi_level_ev * ef;
+        let xs: Vec<f64> = c.cells.iter().filter_map(|&i| x.get(i).copied()).collect();
+        let (Some(lo), Some(hi)) = (xs.first(), xs.last()) else {
+            continue;
+        };
+        chart.draw_series(std::iter::once(PathElement::new(
+            vec![(lo - 0.5 * a, y), (hi + 0.5 * a, y)],
+            BATH.stroke_width(4),
+        )))?;
+        chart.draw_series(xs.iter().map(|&xi| Circle::new((xi, y), 3, BATH.filled())))?;
     }
     Ok(())
 }

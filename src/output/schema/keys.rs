@@ -962,8 +962,76 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "", &RUN);
     keys(&mut f, "channels.", &CHANNELS);
     keys(&mut f, "result_files.", &RESULT_FILES);
+    keys(&mut f, "", &CONTACTS);
     f
 }
+
+/// The `contacts` list of a solve (only with `[[contact]]` entries).
+const CONTACTS: [Key; 15] = [
+    (
+        "contacts[]",
+        "-",
+        "one entry per contact attached along the channel ([[contact]], in file order)",
+    ),
+    ("contacts[].name", "-", "contact name"),
+    (
+        "contacts[].mode",
+        "-",
+        "\"fixed\" (µ, T given), \"voltage\" (µ solved for zero current) or \"temperature\" (µ and T solved for zero particle and heat current)",
+    ),
+    ("contacts[].cells", "1", "cells the contact touches"),
+    ("contacts[].x_nm", "nm", "position of its first cell"),
+    (
+        "contacts[].gamma_ev",
+        "eV",
+        "coupling γ (broadening per orbital site)",
+    ),
+    (
+        "contacts[].fermi_level_ev",
+        "eV",
+        "Fermi level µ_p: given, or the probe's reading",
+    ),
+    (
+        "contacts[].temperature_k",
+        "K",
+        "temperature T_p: given, or a temperature probe's reading",
+    ),
+    (
+        "contacts[].solved",
+        "-",
+        "true when µ_p (and for a temperature probe T_p) was solved",
+    ),
+    (
+        "contacts[].particle_current_per_s",
+        "1/s",
+        "particles into the device from the contact, ∫ j_p dE with j_p = (g_s/h)(Tr[Γ_p A] f_p − Tr[Γ_p G^n]); zero for a probe to the solver tolerance",
+    ),
+    (
+        "contacts[].current_a",
+        "A",
+        "electric current into the device, I_p = −e ∫ j_p dE; the currents of the leads and all contacts add up to zero (ledger.charge_a)",
+    ),
+    (
+        "contacts[].heat_current_w",
+        "W",
+        "heat current out of the contact into the device, ∫ (E − µ_p) j_p dE; zero for a temperature probe",
+    ),
+    (
+        "contacts[].energy_current_w",
+        "W",
+        "energy current into the device, ∫ E j_p dE",
+    ),
+    (
+        "contacts[].polarisation",
+        "1",
+        "spin polarisation strength P (polarised contacts only)",
+    ),
+    (
+        "contacts[].polarisation_direction",
+        "1",
+        "unit vector n̂ = [x, y, z] of the majority spin (polarised contacts only)",
+    ),
+];
 
 /// The `channels` object of coefficients (only when the case names
 /// channels): either `given` or `not_given`.

@@ -197,6 +197,64 @@ pub struct SolveSummary {
     pub channels: Option<ChannelSummary>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub result_files: Option<ResultFiles>,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub contacts: Vec<ContactSummary>,
+}
+
+impl ContactSummary {
+    /// The entries of summary.json: each reading with its contact's
+    /// coupling and polarisation.
+    pub fn all(
+        problem: &crate::model::Problem,
+        readings: &[crate::observables::contacts::ContactReading],
+    ) -> Vec<Self> {
+        problem
+            .contacts
+            .iter()
+            .zip(readings)
+            .map(|(c, r)| ContactSummary {
+                name: r.name.clone(),
+                mode: c.mode.name().into(),
+                cells: r.cells.clone(),
+                x_nm: r.x_nm,
+                gamma_ev: c.gamma_ev,
+                fermi_level_ev: r.fermi_level_ev,
+                temperature_k: r.temperature_k,
+                solved: c.mode.is_floating(),
+                particle_current_per_s: r.particle_current_per_s,
+                current_a: r.current_a,
+                heat_current_w: r.heat_current_w,
+                energy_current_w: r.energy_current_w,
+                polarisation: c.polarisation.map(|p| p.strength),
+                polarisation_direction: c.polarisation.map(|p| p.direction),
+            })
+            .collect()
+    }
+}
+
+/// One entry of the `contacts` list of summary.json: a contact attached
+/// along the channel, its level (given or solved) and what it carries.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[allow(missing_docs)] // each key is documented in super::keys
+pub struct ContactSummary {
+    pub name: String,
+    pub mode: String,
+    pub cells: Vec<usize>,
+    pub x_nm: f64,
+    pub gamma_ev: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub fermi_level_ev: f64,
+    #[serde(deserialize_with = "nan_from_null")]
+    pub temperature_k: f64,
+    pub solved: bool,
+    pub particle_current_per_s: f64,
+    pub current_a: f64,
+    pub heat_current_w: f64,
+    pub energy_current_w: f64,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub polarisation: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub polarisation_direction: Option<[f64; 3]>,
 }
 
 /// The `result_files` object of summary.json: present when some array
