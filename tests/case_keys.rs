@@ -110,6 +110,9 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::Renamed => toml::Value::String("chain".into()),
             ValueType::Names => toml::Value::Array(vec![toml::Value::String("up".into())]),
             ValueType::Indices => toml::Value::Array(vec![toml::Value::Integer(0)]),
+            ValueType::FloatRows => {
+                toml::Value::Array(vec![toml::Value::Array(vec![toml::Value::Float(0.1)])])
+            }
         };
         let mut doc: toml::Table = toml::from_str(BASE).unwrap();
         let parts: Vec<&str> = info.name.split('.').collect();
