@@ -149,6 +149,7 @@ fn a_lead_from_files_equal_to_the_continuation_is_the_continuation() {
             .zip(&t)
             .map(|(a, b)| (a - b).abs())
             .fold(0.0, f64::max);
+        println!("continuation vs files ({join:?}): largest |ΔT| = {worst:e}");
         assert!(worst <= 1e-14, "{join}: {worst:e}");
     }
 }
@@ -201,6 +202,7 @@ fn a_chain_joined_to_a_lead_of_another_band_gives_the_junction_transmission() {
     let t = transmissions(&r);
     let energies = r.problem.grid.energies();
     let mut inside = 0;
+    let mut worst: f64 = 0.0;
     for (e, got) in energies.iter().zip(&t) {
         let gl = chain_surface(*e, eps_l, t_l);
         let gr = chain_surface(*e, eps_d, t_d);
@@ -210,7 +212,12 @@ fn a_chain_joined_to_a_lead_of_another_band_gives_the_junction_transmission() {
             inside += 1;
         }
         assert!((got - want).abs() <= 1e-8, "E = {e}: {got} vs {want}");
+        worst = worst.max((got - want).abs());
     }
+    println!(
+        "junction: largest |ΔT| = {worst:e} over {} energies",
+        energies.len()
+    );
     assert!(inside > 20, "only {inside} energies in both bands");
 }
 
@@ -338,5 +345,6 @@ fn joined_leads_of_their_own_match_explicit_lead_cells() {
         worst = worst.max((got - want).abs());
     }
     assert!(conducting > 20, "only {conducting} conducting energies");
+    println!("explicit lead cells: largest |ΔT| = {worst:e}");
     assert!(worst <= 1e-8, "largest difference {worst:e}");
 }

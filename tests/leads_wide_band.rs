@@ -125,6 +125,7 @@ fn worst_against_dense(
         worst = worst.max((got - want).abs());
     }
     assert!(conducting > 20, "only {conducting} conducting energies");
+    println!("wide band against dense: largest |ΔT| = {worst:e}");
     worst
 }
 
@@ -201,6 +202,9 @@ fn gamma_per_spin_orbital_makes_a_spin_selective_lead() {
         worst = worst.max((got - (up + down)).abs());
         spin_split = spin_split.max((up - down).abs());
     }
+    println!(
+        "spin-selective wide band: largest |ΔT| = {worst:e}, largest |T_up − T_down| = {spin_split}"
+    );
     assert!(spin_split > 0.05, "the spins do not differ: {spin_split}");
     assert!(worst <= 1e-10, "{worst:e}");
 }
