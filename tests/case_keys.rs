@@ -120,6 +120,9 @@ fn every_table_key_is_accepted_by_the_parser() {
             ValueType::Matrices => toml::Value::Array(vec![toml::Value::Array(vec![
                 toml::Value::Array(vec![toml::Value::Float(0.01)]),
             ])]),
+            ValueType::FloatRows => {
+                toml::Value::Array(vec![toml::Value::Array(vec![toml::Value::Float(0.1)])])
+            }
         };
         let mut doc: toml::Table = toml::from_str(BASE).unwrap();
         let parts: Vec<&str> = info.name.split('.').collect();

@@ -13,10 +13,35 @@ fn lead_text(lead: &Lead) -> String {
             let (lo, hi) = lead.band_range().unwrap_or((f64::NAN, f64::NAN));
             format!("periodic, band {lo:.4} to {hi:.4} eV")
         }
-        Lead::WideBand { gamma } => {
-            format!("wide band, Γ = {:.4} eV per orbital", gamma[(0, 0)].re)
+        Lead::Joined { .. } => {
+            let (lo, hi) = lead.band_range().unwrap_or((f64::NAN, f64::NAN));
+            format!("periodic, band {lo:.4} to {hi:.4} eV, joined to the device by its own block")
         }
+        Lead::WideBand { gamma } => wide_band_text(gamma),
     }
+}
+
+/// A wide-band Γ as people read it: one value for all orbitals, one per
+/// orbital, or the range of the eigenvalues of a full matrix.
+fn wide_band_text(gamma: &faer::Mat<crate::C64>) -> String {
+    let b = gamma.nrows();
+    let diagonal = (0..b).all(|r| (0..b).all(|c| r == c || gamma[(r, c)].norm() == 0.0));
+    let values: Vec<f64> = (0..b).map(|o| gamma[(o, o)].re).collect();
+    if diagonal && values.iter().all(|&g| g == values[0]) {
+        return format!("wide band, Γ = {:.4} eV per orbital", values[0]);
+    }
+    if diagonal {
+        let list: Vec<String> = values.iter().map(|g| format!("{g:.4}")).collect();
+        return format!("wide band, Γ per orbital = [{}] eV", list.join(", "));
+    }
+    let ev = gamma
+        .self_adjoint_eigenvalues(faer::Side::Lower)
+        .unwrap_or_default();
+    let (lo, hi) = (
+        ev.iter().copied().fold(f64::INFINITY, f64::min),
+        ev.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+    );
+    format!("wide band, Γ a {b}×{b} matrix with eigenvalues {lo:.4} to {hi:.4} eV")
 }
 
 impl Resolved {

@@ -38,6 +38,8 @@ pub enum ValueType {
     /// A list of square matrices, each a list of rows whose entries are
     /// numbers or `[re, im]` pairs.
     Matrices,
+    /// A matrix of numbers as an array of rows (`[[1, 0], [0, 1]]`).
+    FloatRows,
 }
 
 impl ValueType {
@@ -65,6 +67,7 @@ impl ValueType {
             ValueType::Names => "list of strings".into(),
             ValueType::Indices => "list of integers".into(),
             ValueType::Matrices => "list of matrices (rows of numbers or `[re, im]` pairs)".into(),
+            ValueType::FloatRows => "array of rows of numbers".into(),
         }
     }
 }
@@ -354,6 +357,48 @@ pub static KEYS: &[KeyInfo] = &[
         "Γ of a wide-band left lead (Σ = −iΓ/2 on each orbital of the end cell)",
     ),
     key(
+        "leads.left.wide_band_orbitals_ev",
+        FloatList,
+        "eV",
+        Text("none"),
+        "blocks: wide-band left lead with one Γ per orbital of the end cell (Σ = −iΓ_o/2 on orbital o); with device.spin = \"explicit\" one value per spatial orbital (both spins) or per spin-orbital (up orbitals first)",
+    ),
+    key(
+        "leads.left.wide_band_matrix_ev",
+        ValueType::FloatRows,
+        "eV",
+        Text("none"),
+        "blocks: wide-band left lead with a full real symmetric, positive semi-definite Γ matrix (rows of the end cell's orbitals; Σ = −iΓ/2)",
+    ),
+    key(
+        "leads.left.wide_band_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks: wide-band left lead with a Hermitian, positive semi-definite Γ matrix from a file (one block; same formats as `device.onsite_file`)",
+    ),
+    key(
+        "leads.left.onsite_file",
+        ValueType::Text,
+        "eV",
+        Text("none (the end cell continued)"),
+        "blocks: the left lead's own Hermitian cell block (one block, as many orbitals as a device cell; same formats as `device.onsite_file`); needs `coupling_file`",
+    ),
+    key(
+        "leads.left.coupling_file",
+        ValueType::Text,
+        "eV",
+        Text("none (the end cell continued)"),
+        "blocks: the left lead's own coupling H_n,n+1 between its cells along +x (one block)",
+    ),
+    key(
+        "leads.left.join_file",
+        ValueType::Text,
+        "eV",
+        Text("the lead's `coupling_file`"),
+        "blocks: the block joining the left lead and the device along +x (H from the lead's last cell to the device's first)",
+    ),
+    key(
         "leads.right.fermi_level_ev",
         Float,
         "eV",
@@ -387,6 +432,48 @@ pub static KEYS: &[KeyInfo] = &[
         "eV",
         Text("none (periodic lead)"),
         "Γ of a wide-band right lead",
+    ),
+    key(
+        "leads.right.wide_band_orbitals_ev",
+        FloatList,
+        "eV",
+        Text("none"),
+        "blocks: wide-band right lead with one Γ per orbital of the end cell (Σ = −iΓ_o/2 on orbital o); with device.spin = \"explicit\" one value per spatial orbital (both spins) or per spin-orbital (up orbitals first)",
+    ),
+    key(
+        "leads.right.wide_band_matrix_ev",
+        ValueType::FloatRows,
+        "eV",
+        Text("none"),
+        "blocks: wide-band right lead with a full real symmetric, positive semi-definite Γ matrix (rows of the end cell's orbitals; Σ = −iΓ/2)",
+    ),
+    key(
+        "leads.right.wide_band_file",
+        ValueType::Text,
+        "eV",
+        Text("none"),
+        "blocks: wide-band right lead with a Hermitian, positive semi-definite Γ matrix from a file (one block; same formats as `device.onsite_file`)",
+    ),
+    key(
+        "leads.right.onsite_file",
+        ValueType::Text,
+        "eV",
+        Text("none (the end cell continued)"),
+        "blocks: the right lead's own Hermitian cell block (one block, as many orbitals as a device cell; same formats as `device.onsite_file`); needs `coupling_file`",
+    ),
+    key(
+        "leads.right.coupling_file",
+        ValueType::Text,
+        "eV",
+        Text("none (the end cell continued)"),
+        "blocks: the right lead's own coupling H_n,n+1 between its cells along +x (one block)",
+    ),
+    key(
+        "leads.right.join_file",
+        ValueType::Text,
+        "eV",
+        Text("the lead's `coupling_file`"),
+        "blocks: the block joining the right lead and the device along +x (H from the device's last cell to the lead's first)",
     ),
     key(
         "bias.voltage_v",

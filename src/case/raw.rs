@@ -112,6 +112,12 @@ pub(crate) struct RawLead {
     pub band_edge_ev: Opt<f64>,
     pub effective_mass: Opt<f64>,
     pub wide_band_ev: Opt<f64>,
+    pub wide_band_orbitals_ev: Opt<Vec<f64>>,
+    pub wide_band_matrix_ev: Opt<Vec<Vec<f64>>>,
+    pub wide_band_file: Opt<String>,
+    pub onsite_file: Opt<String>,
+    pub coupling_file: Opt<String>,
+    pub join_file: Opt<String>,
 }
 
 #[derive(Deserialize, Debug, Clone, Default)]
@@ -519,6 +525,9 @@ fn fits(v: &toml::de::DeValue<'_>, ty: ValueType) -> bool {
             .all(|x| matches!(x.get_ref(), DeValue::Integer(i) if int_ok(i))),
         // The shape and the entries are checked with the scattering.
         (ValueType::Matrices, DeValue::Array(_)) => true,
+        (ValueType::FloatRows, DeValue::Array(rows)) => rows
+            .iter()
+            .all(|row| fits(row.get_ref(), ValueType::FloatList)),
         _ => false,
     }
 }
@@ -533,6 +542,7 @@ fn expected(ty: ValueType) -> &'static str {
         ValueType::Names => "a list of strings",
         ValueType::Indices => "a list of whole numbers",
         ValueType::Matrices => "a list of matrices",
+        ValueType::FloatRows => "an array of rows of numbers",
         _ => "a string",
     }
 }

@@ -4,6 +4,7 @@
 use super::check::MAX_ENERGY_EV;
 use super::error::{CaseError, CaseErrorKind, ErrorContext};
 use super::sections::device::DeviceKind;
+use super::sections::lead_blocks::OwnBlocks;
 use super::sections::leads::LeadModel;
 use super::sections::scattering::{CouplingSpec, PhononSpec};
 use super::sections::settings::{HermitianPart, ProfileMode, ResponseSplit};
@@ -397,6 +398,10 @@ fn make_lead(
         LeadModel::WideBand { gamma_ev } => Ok(Lead::WideBand {
             gamma: identity_times(built.dev.orbitals, *gamma_ev),
         }),
+        LeadModel::WideBandMatrix { gamma, .. } => Ok(Lead::WideBand {
+            gamma: spin_doubled_if(spec, gamma, built.dev.orbitals),
+        }),
+        LeadModel::OwnBlocks(own) => Ok(own_lead(spec, own, built.bias_only[end])),
         LeadModel::Continuation => Ok(Lead::Periodic {
             onsite: built.dev.onsite[end].clone(),
             hopping: continuation_hopping(spec, ctx, built, side, name)?,
@@ -446,6 +451,44 @@ fn make_lead(
                 lead => Ok(lead),
             }
         }
+    }
+}
+
+/// A block of a lead beside the built device: doubled into diag(M, M)
+/// when the device doubles its cells by spin and `m` is given per
+/// spatial orbital (`orbitals` is the built device's count).
+fn spin_doubled_if(spec: &CaseSpec, m: &Mat<C64>, orbitals: usize) -> Mat<C64> {
+    if spec.device.spin_explicit && m.nrows() != orbitals {
+        device::channels::spin_doubled_block(m)
+    } else {
+        m.clone()
+    }
+}
+
+/// A periodic lead with blocks of its own. Its band is its own: of the
+/// end cell's potential only the bias part (a linear drop) moves it, as
+/// for a chain lead with its own band edge. A joining block equal to the
+/// lead's coupling (or none) gives the plain periodic lead.
+fn own_lead(spec: &CaseSpec, own: &OwnBlocks, bias_ev: f64) -> Lead {
+    let double = |m: &Mat<C64>| {
+        if spec.device.spin_explicit {
+            device::channels::spin_doubled_block(m)
+        } else {
+            m.clone()
+        }
+    };
+    let mut onsite = double(&own.onsite);
+    for o in 0..onsite.nrows() {
+        onsite[(o, o)] += C64::new(bias_ev, 0.0);
+    }
+    let hopping = double(&own.coupling);
+    match &own.join {
+        Some(join) if join != &own.coupling => Lead::Joined {
+            onsite,
+            hopping,
+            join: double(join),
+        },
+        _ => Lead::Periodic { onsite, hopping },
     }
 }
 
@@ -913,6 +956,10 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
             .iter()
             .filter_map(|m| match m {
                 LeadModel::WideBand { gamma_ev } => Some(*gamma_ev),
+                // The largest eigenvalue of Γ.
+                LeadModel::WideBandMatrix { gamma, .. } => Some(-device::lowest_eigenvalue(
+                    &Mat::from_fn(gamma.nrows(), gamma.ncols(), |r, c| -gamma[(r, c)]),
+                )),
                 _ => None,
             })
             .fold(0.0, f64::max),

@@ -64,11 +64,7 @@ pub(crate) fn validate(
     let channels = ChannelsSpec::from_raw(raw, &ck, &device, &mut notes)?;
     let regions =
         RegionsSpec::from_raw(raw, &ck, &device, channels.channels.as_ref(), &mut warnings)?;
-    let is_blocks = matches!(
-        device.kind,
-        super::sections::device::DeviceKind::Blocks { .. }
-    );
-    let leads = LeadsSpec::from_raw(raw, &ck, is_blocks, device.spacing_nm)?;
+    let leads = LeadsSpec::from_raw(raw, &ck, &device, files)?;
     let bias = BiasSpec::from_raw(raw, &ck, length_nm)?;
     let phonons = PhononSpec::all_from_raw(raw, &ck, length_nm, leads.mean_temperature_k(), files)?;
     let dephasing = DephasingSpec::from_raw(raw, &ck, length_nm, files)?;

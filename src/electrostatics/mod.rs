@@ -221,7 +221,7 @@ pub fn with_potential(problem: &Problem, u: &[f64]) -> Problem {
         dev.band_edge_ev[i] += ui;
     }
     let shift = |lead: &mut Lead, ui: f64| {
-        if let Lead::Periodic { onsite, .. } = lead {
+        if let Some(onsite) = lead.cell_block_mut() {
             for o in 0..onsite.nrows() {
                 onsite[(o, o)] += C64::new(ui, 0.0);
             }

@@ -10,10 +10,19 @@
 //!   positive imaginary energy η, iterated until the renormalised couplings
 //!   fall below a tolerance.
 //! - wide-band leads: Σ = −iΓ/2 with a constant matrix Γ.
+//! - periodic leads of their own, joined to the device by a block of their
+//!   own (see [`Lead::Joined`]): the surface Green's function of the lead
+//!   follows from the periodic self-energy of its own blocks by one Dyson
+//!   step, g_s = (E − H_L − Σ_bulk)⁻¹, and the joining block carries it
+//!   onto the device.
 //!
 //! Conventions: a periodic lead is given by its cell block `onsite` and its
-//! coupling `hopping` = H_n,n+1 along +x. The same block couples the lead to
-//! the device, so Σ_left = τ† g_s τ and Σ_right = τ g_s τ†.
+//! coupling `hopping` = H_n,n+1 along +x. For [`Lead::Periodic`] the same
+//! block couples the lead to the device; for [`Lead::Joined`] the block
+//! `join` does, also taken along +x (left: from the lead's last cell to
+//! the device's first, right: from the device's last cell to the lead's
+//! first). With τ the joining block, Σ_left = τ† g_s τ and
+//! Σ_right = τ g_s τ†.
 
 use crate::C64;
 use faer::Mat;
@@ -75,6 +84,18 @@ pub enum Lead {
         onsite: Mat<C64>,
         /// Coupling H_n,n+1 along +x (eV); also couples lead and device.
         hopping: Mat<C64>,
+    },
+    /// Semi-infinite periodic lead with blocks of its own, joined to the
+    /// device by a block of its own.
+    Joined {
+        /// Cell Hamiltonian of the lead (eV).
+        onsite: Mat<C64>,
+        /// Coupling H_n,n+1 between lead cells along +x (eV).
+        hopping: Mat<C64>,
+        /// Block joining lead and device along +x (eV): H_-1,0 from the
+        /// left lead's last cell to the device's first cell, or
+        /// H_N-1,N from the device's last cell to the right lead's first.
+        join: Mat<C64>,
     },
     /// Energy-independent broadening Γ (eV): Σ = −iΓ/2.
     WideBand {
@@ -210,7 +231,7 @@ impl Lead {
     /// Orbitals per lead cell.
     pub fn orbitals(&self) -> usize {
         match self {
-            Lead::Periodic { onsite, .. } => onsite.nrows(),
+            Lead::Periodic { onsite, .. } | Lead::Joined { onsite, .. } => onsite.nrows(),
             Lead::WideBand { gamma } => gamma.nrows(),
         }
     }
@@ -218,7 +239,30 @@ impl Lead {
     /// Band range of the lead (eV); `None` for a wide-band lead.
     pub fn band_range(&self) -> Option<(f64, f64)> {
         match self {
-            Lead::Periodic { onsite, hopping } => Some(crate::device::band_range(onsite, hopping)),
+            Lead::Periodic { onsite, hopping }
+            | Lead::Joined {
+                onsite, hopping, ..
+            } => Some(crate::device::band_range(onsite, hopping)),
+            Lead::WideBand { .. } => None,
+        }
+    }
+
+    /// The block that couples the lead to the device end cell along +x
+    /// (the lead's own coupling for [`Lead::Periodic`]); `None` for a
+    /// wide-band lead.
+    pub fn joining_block(&self) -> Option<&Mat<C64>> {
+        match self {
+            Lead::Periodic { hopping, .. } => Some(hopping),
+            Lead::Joined { join, .. } => Some(join),
+            Lead::WideBand { .. } => None,
+        }
+    }
+
+    /// The cell block of a periodic lead, to move it with a potential;
+    /// `None` for a wide-band lead.
+    pub fn cell_block_mut(&mut self) -> Option<&mut Mat<C64>> {
+        match self {
+            Lead::Periodic { onsite, .. } | Lead::Joined { onsite, .. } => Some(onsite),
             Lead::WideBand { .. } => None,
         }
     }
@@ -234,33 +278,87 @@ impl Lead {
             Lead::WideBand { gamma } => Ok(Mat::from_fn(gamma.nrows(), gamma.ncols(), |r, c| {
                 gamma[(r, c)] * C64::new(0.0, -0.5)
             })),
-            Lead::Periodic { onsite, hopping } if onsite.nrows() == 1 => {
-                let s = chain_self_energy(energy_ev, onsite[(0, 0)].re, hopping[(0, 0)].norm());
-                Ok(Mat::from_fn(1, 1, |_, _| s))
-            }
             Lead::Periodic { onsite, hopping } => {
-                if let Some(s) = mode_self_energy(energy_ev, onsite, hopping, side) {
-                    return Ok(s);
-                }
-                let (g, _) = match side {
-                    Side::Left => surface_green_function(
-                        energy_ev,
-                        onsite,
-                        &hopping.adjoint().to_owned(),
-                        params,
-                        side,
-                    )?,
-                    Side::Right => {
-                        surface_green_function(energy_ev, onsite, hopping, params, side)?
-                    }
-                };
-                Ok(match side {
-                    Side::Left => hopping.adjoint() * &g * hopping,
-                    Side::Right => hopping * &g * hopping.adjoint(),
-                })
+                periodic_self_energy(onsite, hopping, side, energy_ev, params)
             }
+            Lead::Joined {
+                onsite,
+                hopping,
+                join,
+            } => joined_self_energy(onsite, hopping, join, side, energy_ev, params),
         }
     }
+}
+
+/// Σ on the device end cell of a periodic lead whose own coupling also
+/// joins it to the device.
+fn periodic_self_energy(
+    onsite: &Mat<C64>,
+    hopping: &Mat<C64>,
+    side: Side,
+    energy_ev: f64,
+    params: &DecimationParams,
+) -> Result<Mat<C64>, LeadError> {
+    if onsite.nrows() == 1 {
+        let s = chain_self_energy(energy_ev, onsite[(0, 0)].re, hopping[(0, 0)].norm());
+        return Ok(Mat::from_fn(1, 1, |_, _| s));
+    }
+    if let Some(s) = mode_self_energy(energy_ev, onsite, hopping, side) {
+        return Ok(s);
+    }
+    let (g, _) = match side {
+        Side::Left => surface_green_function(
+            energy_ev,
+            onsite,
+            &hopping.adjoint().to_owned(),
+            params,
+            side,
+        )?,
+        Side::Right => surface_green_function(energy_ev, onsite, hopping, params, side)?,
+    };
+    Ok(match side {
+        Side::Left => hopping.adjoint() * &g * hopping,
+        Side::Right => hopping * &g * hopping.adjoint(),
+    })
+}
+
+/// Σ on the device end cell of a periodic lead joined by its own block τ.
+/// The rest of the lead acts on the lead's surface cell as the periodic
+/// self-energy Σ_bulk of the lead's own blocks (the lead beyond its first
+/// cell is the same semi-infinite lead), so the surface Green's function
+/// is g_s = (E − H_L − Σ_bulk)⁻¹, and Σ = τ† g_s τ (left) or τ g_s τ†
+/// (right).
+fn joined_self_energy(
+    onsite: &Mat<C64>,
+    hopping: &Mat<C64>,
+    join: &Mat<C64>,
+    side: Side,
+    energy_ev: f64,
+    params: &DecimationParams,
+) -> Result<Mat<C64>, LeadError> {
+    let bulk = periodic_self_energy(onsite, hopping, side, energy_ev, params)?;
+    let b = onsite.nrows();
+    let e = C64::new(energy_ev, 0.0);
+    let inverse = Mat::from_fn(b, b, |r, c| {
+        let diag = if r == c { e } else { C64::new(0.0, 0.0) };
+        diag - onsite[(r, c)] - bulk[(r, c)]
+    });
+    let g = if b == 1 {
+        Mat::from_fn(1, 1, |_, _| inverse[(0, 0)].inv())
+    } else {
+        inverse.partial_piv_lu().inverse()
+    };
+    if !all_finite(&g) {
+        return Err(LeadError::NotFinite { side, energy_ev });
+    }
+    let sigma = match side {
+        Side::Left => join.adjoint() * &g * join,
+        Side::Right => join * &g * join.adjoint(),
+    };
+    if !all_finite(&sigma) {
+        return Err(LeadError::NotFinite { side, energy_ev });
+    }
+    Ok(sigma)
 }
 
 /// Broadening Γ = i(Σ − Σ†).
@@ -286,5 +384,93 @@ mod side_tests {
             assert_eq!(name.parse::<Side>(), Ok(side));
         }
         assert!("middle".parse::<Side>().unwrap_err().contains("middle"));
+    }
+}
+
+#[cfg(test)]
+mod joined_tests {
+    use super::{DecimationParams, Lead, Side};
+    use crate::C64;
+    use faer::Mat;
+
+    fn c(re: f64, im: f64) -> C64 {
+        C64::new(re, im)
+    }
+
+    /// A two-orbital lead with complex couplings, so that a transposed or
+    /// missing adjoint shows.
+    fn blocks() -> (Mat<C64>, Mat<C64>) {
+        let onsite = Mat::from_fn(2, 2, |r, k| match (r, k) {
+            (0, 0) => c(0.1, 0.0),
+            (1, 1) => c(0.4, 0.0),
+            (0, 1) => c(0.05, 0.02),
+            _ => c(0.05, -0.02),
+        });
+        let hopping = Mat::from_fn(2, 2, |r, k| match (r, k) {
+            (0, 0) => c(-0.3, 0.0),
+            (1, 1) => c(-0.25, 0.0),
+            (0, 1) => c(0.04, 0.03),
+            _ => c(-0.02, 0.01),
+        });
+        (onsite, hopping)
+    }
+
+    /// A lead joined by its own coupling is the plain periodic lead: the
+    /// one Dyson step g_s = (E − H − Σ_bulk)⁻¹ followed by τ† g_s τ must
+    /// give Σ_bulk back. Both sides, inside and outside the band, b = 1
+    /// (closed form) and b = 2 (modes). The two paths differ by one
+    /// inversion, so they agree to rounding: 1e-12 relative.
+    #[test]
+    fn joined_by_its_own_coupling_is_the_periodic_lead() {
+        let (on2, hop2) = blocks();
+        let on1 = Mat::from_fn(1, 1, |_, _| c(0.2, 0.0));
+        let hop1 = Mat::from_fn(1, 1, |_, _| c(-0.3, 0.0));
+        let params = DecimationParams::default();
+        for (onsite, hopping) in [(on1, hop1), (on2, hop2)] {
+            let periodic = Lead::Periodic {
+                onsite: onsite.clone(),
+                hopping: hopping.clone(),
+            };
+            let joined = Lead::Joined {
+                onsite,
+                hopping: hopping.clone(),
+                join: hopping,
+            };
+            for side in Side::ALL {
+                for e in [-0.9, -0.35, 0.05, 0.3, 0.61, 1.4] {
+                    let a = periodic.self_energy(side, e, &params).unwrap();
+                    let b = joined.self_energy(side, e, &params).unwrap();
+                    let scale = a.norm_max().max(1e-3);
+                    let diff = (&a - &b).norm_max();
+                    assert!(diff <= 1e-12 * scale, "{side} E = {e}: {diff:e}");
+                }
+            }
+        }
+    }
+
+    /// The joining block scales the self-energy of a one-orbital lead by
+    /// |τ_join|²/|t|² against the plain lead (Σ = |τ|² g_s with the same
+    /// g_s): a direct check of the τ† g τ form (common practice).
+    #[test]
+    fn the_join_scales_a_chain_self_energy() {
+        let onsite = Mat::from_fn(1, 1, |_, _| c(0.0, 0.0));
+        let hopping = Mat::from_fn(1, 1, |_, _| c(-0.5, 0.0));
+        let join = Mat::from_fn(1, 1, |_, _| c(0.1, -0.2));
+        let params = DecimationParams::default();
+        let periodic = Lead::Periodic {
+            onsite: onsite.clone(),
+            hopping: hopping.clone(),
+        };
+        let joined = Lead::Joined {
+            onsite,
+            hopping,
+            join,
+        };
+        for e in [-1.3, -0.2, 0.7] {
+            let a = periodic.self_energy(Side::Left, e, &params).unwrap()[(0, 0)];
+            let b = joined.self_energy(Side::Right, e, &params).unwrap()[(0, 0)];
+            let want = a * (0.05 / 0.25);
+            assert!((b - want).norm() <= 1e-14, "E = {e}: {b} vs {want}");
+        }
     }
 }

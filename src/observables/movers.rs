@@ -135,10 +135,7 @@ fn same(a: &Mat<C64>, b: &Mat<C64>) -> bool {
 pub fn uniform_pairs(p: &Problem) -> Vec<bool> {
     let d = &p.device;
     let n = d.cells();
-    let lead_hop = |lead: &Lead| match lead {
-        Lead::Periodic { hopping, .. } => Some(hopping.clone()),
-        Lead::WideBand { .. } => None,
-    };
+    let lead_hop = |lead: &Lead| lead.joining_block().cloned();
     let left = lead_hop(&p.left.lead);
     let right = lead_hop(&p.right.lead);
     (0..n.saturating_sub(1))

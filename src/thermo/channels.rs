@@ -94,6 +94,11 @@ pub fn channel_mixing(problem: &Problem, channels: &Channels) -> Option<String> 
     for (name, contact) in [("left", &problem.left), ("right", &problem.right)] {
         let blocks: Vec<(&str, &Mat<C64>)> = match &contact.lead {
             Lead::Periodic { onsite, hopping } => vec![("cell", onsite), ("coupling", hopping)],
+            Lead::Joined {
+                onsite,
+                hopping,
+                join,
+            } => vec![("cell", onsite), ("coupling", hopping), ("joining", join)],
             Lead::WideBand { gamma } => vec![("broadening", gamma)],
         };
         for (part, m) in blocks {

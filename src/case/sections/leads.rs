@@ -1,9 +1,15 @@
 //! `[leads.left]`, `[leads.right]`: Fermi level, temperature and the lead
-//! model (continuation of the end cell, energy-selective, or wide band).
+//! model (continuation of the end cell, energy-selective, wide band, or a
+//! lead of its own: see [`super::lead_blocks`]).
 
+use super::super::blocks_file::BlockFiles;
 use super::super::check::{Checker, MAX_ENERGY_EV, span_of};
 use super::super::error::CaseError;
 use super::super::raw::{Opt, RawCase, RawLead};
+use super::device::{DeviceKind, DeviceSpec};
+use super::lead_blocks::{OwnBlocks, own_model};
+use crate::C64;
+use faer::Mat;
 use std::ops::Range;
 
 /// The lead model of one contact.
@@ -18,6 +24,15 @@ pub(crate) enum LeadModel {
     },
     /// Constant broadening Γ·I on the end cell.
     WideBand { gamma_ev: f64 },
+    /// Constant broadening with a Γ of its own per orbital or as a full
+    /// matrix (blocks devices): b×b, or 2b×2b with explicit spin.
+    WideBandMatrix {
+        gamma: Mat<C64>,
+        /// Where Γ came from (the key or the file), for descriptions.
+        source: String,
+    },
+    /// A periodic lead with blocks of its own (blocks devices).
+    OwnBlocks(OwnBlocks),
 }
 
 /// One validated lead.
@@ -36,13 +51,15 @@ pub(crate) struct LeadsSpec {
 }
 
 impl LeadsSpec {
-    /// Validate `[leads]`; `is_blocks` refuses energy-selective leads and
-    /// `spacing_nm` bounds a lead's hopping.
+    /// Validate `[leads]` beside `device` (a blocks device refuses
+    /// energy-selective leads; a chain or strip refuses leads of their
+    /// own; the spacing bounds a lead's hopping); a lead's block files
+    /// come from (or go into) `files`.
     pub fn from_raw(
         raw: &RawCase,
         ck: &Checker<'_>,
-        is_blocks: bool,
-        spacing_nm: f64,
+        device: &DeviceSpec,
+        files: &mut BlockFiles,
     ) -> Result<Self, CaseError> {
         let span = span_of(&raw.leads);
         let Some(leads) = raw.leads.as_ref().map(|l| l.get_ref()) else {
@@ -52,10 +69,10 @@ impl LeadsSpec {
                 "[leads.left] and [leads.right] tables",
             ));
         };
-        let read = |l: &Opt<RawLead>, side: &str| {
+        let mut read = |l: &Opt<RawLead>, side: &str| {
             let p = format!("leads.{side}");
             match l {
-                Some(l) => lead(l.get_ref(), Some(l.span()), &p, ck, is_blocks, spacing_nm),
+                Some(l) => lead(l.get_ref(), Some(l.span()), &p, ck, device, files),
                 None => Err(ck.ctx.missing(span.clone(), &p, &format!("a [{p}] table"))),
             }
         };
@@ -76,8 +93,8 @@ fn lead(
     span: Option<Range<usize>>,
     p: &str,
     ck: &Checker<'_>,
-    is_blocks: bool,
-    spacing_nm: f64,
+    device: &DeviceSpec,
+    files: &mut BlockFiles,
 ) -> Result<LeadSpec, CaseError> {
     let fermi_level_ev = ck.required(
         ck.energy(&l.fermi_level_ev, &format!("{p}.fermi_level_ev"))?,
@@ -94,8 +111,38 @@ fn lead(
     Ok(LeadSpec {
         fermi_level_ev,
         temperature_k,
-        model: model(l, p, ck, is_blocks, spacing_nm)?,
+        model: match own_model(l, p, ck, device, files)? {
+            Some(own) => alone(own, l, p, ck)?,
+            None => {
+                let is_blocks = matches!(device.kind, DeviceKind::Blocks { .. });
+                model(l, p, ck, is_blocks, device.spacing_nm)?
+            }
+        },
     })
+}
+
+/// A lead of its own refuses the keys of the other lead models.
+fn alone(own: LeadModel, l: &RawLead, p: &str, ck: &Checker<'_>) -> Result<LeadModel, CaseError> {
+    let others = [
+        ("wide_band_ev", span_of(&l.wide_band_ev)),
+        ("band_edge_ev", span_of(&l.band_edge_ev)),
+        ("effective_mass", span_of(&l.effective_mass)),
+    ];
+    match others.into_iter().find(|(_, s)| s.is_some()) {
+        None => Ok(own),
+        Some((key, s)) => {
+            let what = match &own {
+                LeadModel::OwnBlocks(_) => "onsite_file/coupling_file",
+                _ => "a wide-band Γ per orbital or as a matrix",
+            };
+            Err(ck.ctx.invalid(
+                s,
+                &format!("{p}.{key}"),
+                &format!("one kind of lead (this lead already has {what})"),
+                format!("`{key}` set too"),
+            ))
+        }
+    }
 }
 
 /// Wide band, energy-selective or the continuation of the end cell.

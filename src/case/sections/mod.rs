@@ -8,6 +8,7 @@ pub(crate) mod device;
 pub(crate) mod electrostatics;
 pub(crate) mod lattice;
 pub(crate) mod lattice_blocks;
+pub(crate) mod lead_blocks;
 pub(crate) mod leads;
 pub(crate) mod regions;
 pub(crate) mod scattering;
