@@ -172,6 +172,27 @@ fn a_nearly_cut_off_orbital_is_not_stopped() {
     }
 }
 
+/// A weak contact attached along the channel (γ = 0.1 meV on one cell) is
+/// a path to a reservoir like a lead: orbital 1 is then reached and its
+/// filling determined, however slowly the loop settles, so it is not
+/// stopped as undetermined.
+#[test]
+fn a_contact_along_the_channel_is_a_path_out() {
+    let tmp = tempfile::tempdir().unwrap();
+    let extra = format!(
+        "{FULL_GRID}[solver]\nmax_iterations = 40\n[[contact]]\nname = \"tap\"\n\
+         cells = [3]\ngamma_ev = 1e-4\nfermi_level_ev = 0.5\n"
+    );
+    let r = resolved(tmp.path(), 0.0, &extra);
+    match scba::solve(&r.problem, &r.scba, None, &mut Silent) {
+        Ok(s) => println!(
+            "weak contact: converged {} after {} iterations",
+            s.report.converged, s.report.iterations
+        ),
+        Err(e) => panic!("refused: {e}"),
+    }
+}
+
 /// The command line exits with 2, says why, and writes a summary that
 /// flags the run and names the fault.
 #[test]

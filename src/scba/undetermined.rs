@@ -164,7 +164,8 @@ fn join(parent: &mut [usize], a: usize, b: usize) {
 }
 
 /// Joins the sites coupled by a nonzero entry of the Hamiltonian, of a
-/// coupling matrix of the scattering or of a lead self-energy.
+/// coupling matrix of the scattering, of a lead self-energy or of an
+/// attached contact's broadening.
 fn connect(problem: &Problem, leads: &LeadTable, parent: &mut [usize]) {
     let dev = &problem.device;
     let (n, b) = (dev.cells(), dev.orbitals);
@@ -192,6 +193,20 @@ fn connect(problem: &Problem, leads: &LeadTable, parent: &mut [usize]) {
                 for c in 0..b {
                     if nz(t[(r, c)]) {
                         join(parent, i * b + r, (i + 1) * b + c);
+                    }
+                }
+            }
+        }
+    }
+    // A contact attached along the channel couples the spin orbitals of its
+    // cells when it is polarised off the quantisation axis.
+    for c in &problem.contacts {
+        let g = super::contacts::gamma_block(c, b);
+        for &cell in &c.cells {
+            for r in 0..b {
+                for col in 0..b {
+                    if r != col && nz(g[r * b + col]) {
+                        join(parent, cell * b + r, cell * b + col);
                     }
                 }
             }
@@ -292,7 +307,7 @@ impl Isolation {
 }
 
 /// L/(L + S) per grid energy for the part of `sites`: L its lead
-/// broadening, S its dephasing scale.
+/// broadening (leads and attached contacts), S its dephasing scale.
 fn lead_ratios(problem: &Problem, leads: &LeadTable, sites: &[usize], scale: f64) -> Vec<f64> {
     let (n, b) = (problem.device.cells(), problem.device.orbitals);
     (0..problem.grid.count)
@@ -300,6 +315,10 @@ fn lead_ratios(problem: &Problem, leads: &LeadTable, sites: &[usize], scale: f64
             let mut lead = 0.0;
             for &s in sites {
                 let (cell, o) = (s / b, s % b);
+                // Contacts attached along the channel broaden like leads.
+                for c in problem.contacts.iter().filter(|c| c.cells.contains(&cell)) {
+                    lead += super::contacts::gamma_block(c, b)[o * b + o].re.max(0.0);
+                }
                 if cell == 0 {
                     lead += (-2.0 * leads.left[k][(o, o)].im).max(0.0);
                 }
