@@ -34,6 +34,7 @@ fn chain(cells: usize, mass: f64, grid: (f64, f64, f64)) -> Problem {
         grid: EnergyGrid::covering(grid.0, grid.1, grid.2),
         spin_degeneracy: 2.0,
         decimation: DecimationParams::default(),
+        contacts: Vec::new(),
     }
 }
 

@@ -56,7 +56,7 @@ fn current_is_odd_in_voltage_and_zero_at_zero_bias() {
         let t = run(
             &case,
             &grid,
-            &ObservablesTask,
+            &ObservablesTask::default(),
             &MemoryStore::new(),
             SweepOptions::default(),
             &mut Silent,
@@ -106,7 +106,7 @@ fn grid_order_and_inputs() {
     let t = run(
         &case,
         &grid,
-        &ObservablesTask,
+        &ObservablesTask::default(),
         &MemoryStore::new(),
         SweepOptions {
             max_parallel_lines: Some(2),
@@ -199,4 +199,75 @@ fn cli_sweep_end_to_end() {
         .unwrap();
     assert_eq!(o.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&o.stderr).contains("START:STOP:COUNT"));
+}
+
+/// A voltage probe scanned along the channel: every point of the sweep
+/// carries the probe's level, temperature, current and heat current. A
+/// floating probe draws no net current (its defining condition, solved to
+/// the loop's tolerance) and, in a coherent device under a small bias, reads
+/// a level between the two leads' (it averages what the two leads inject;
+/// M. Büttiker, Phys. Rev. Lett. 57, 1761 (1986)).
+#[test]
+fn a_probe_scan_reads_the_probe_at_every_point() {
+    let mut text = String::from(
+        r#"
+name = "scan"
+[device]
+kind = "chain"
+spacing_nm = 0.25
+length_nm = 5.0
+effective_mass = 0.1
+[leads.left]
+fermi_level_ev = 0.04
+temperature_k = 300.0
+[leads.right]
+fermi_level_ev = 0.04
+temperature_k = 300.0
+[bias]
+voltage_v = -0.01
+[grid]
+step_ev = 0.004
+[solver]
+tolerance = 1e-11
+"#,
+    );
+    text.push_str(
+        "[[contact]]\nname = \"p\"\nfirst_cell = 3\ngamma_ev = 0.002\nmode = \"voltage\"\n",
+    );
+    let case = Case::parse(&text, "scan.toml", Path::new(".")).unwrap();
+    let task = ObservablesTask::of(&case.resolve().unwrap());
+    let grid = Grid::new(vec![Axis::parse("contact.0.first_cell=3:15:3").unwrap()]).unwrap();
+    let t = run(
+        &case,
+        &grid,
+        &task,
+        &MemoryStore::new(),
+        SweepOptions::default(),
+        &mut Silent,
+    )
+    .unwrap();
+    let col = |n: &str| {
+        t.column(n)
+            .unwrap_or_else(|| panic!("no column {n} in {:?}", t.columns))
+    };
+    let (mu, cur) = (col("contact_p_fermi_level_ev"), col("contact_p_current_a"));
+    let gross = col("current_a");
+    col("contact_p_temperature_k");
+    col("contact_p_heat_current_w");
+    assert_eq!(t.rows.len(), 3);
+    for row in &t.rows {
+        // µ_L = 0.045 eV, µ_R = 0.035 eV with V = −0.01 V split evenly.
+        assert!(
+            row[mu] > 0.035 && row[mu] < 0.045,
+            "probe reads {}",
+            row[mu]
+        );
+        // Zero net current: the Born loop's tolerance (1e-11) on the
+        // probe's residual, relative to the device current.
+        assert!(
+            row[cur].abs() <= 1e-9 * row[gross].abs(),
+            "probe draws {}",
+            row[cur]
+        );
+    }
 }

@@ -61,7 +61,15 @@ fn a_second_run_computes_only_missing_points() {
         memory_budget_bytes: None,
     };
     let mut first = Events::default();
-    let full = run(&case, &grid, &ObservablesTask, &store, options, &mut first).unwrap();
+    let full = run(
+        &case,
+        &grid,
+        &ObservablesTask::default(),
+        &store,
+        options,
+        &mut first,
+    )
+    .unwrap();
     assert_eq!(full.computed, 6);
     assert_eq!(store.stored_rows(), (0..6).collect::<Vec<_>>());
     assert!(
@@ -73,7 +81,15 @@ fn a_second_run_computes_only_missing_points() {
     store.remove_row(1);
     store.remove_row(5);
     let mut second = Events::default();
-    let again = run(&case, &grid, &ObservablesTask, &store, options, &mut second).unwrap();
+    let again = run(
+        &case,
+        &grid,
+        &ObservablesTask::default(),
+        &store,
+        options,
+        &mut second,
+    )
+    .unwrap();
     assert_eq!(again.computed, 2);
     let mut recomputed: Vec<usize> = second
         .0
@@ -96,7 +112,7 @@ fn a_second_run_computes_only_missing_points() {
     // The fingerprint that keys a store follows the grid.
     let other = Grid::new(vec![Axis::parse("bias.voltage_v=0:0.02:4").unwrap()]).unwrap();
     assert_ne!(
-        sweep_fingerprint(&case, &grid, &ObservablesTask),
-        sweep_fingerprint(&case, &other, &ObservablesTask)
+        sweep_fingerprint(&case, &grid, &ObservablesTask::default()),
+        sweep_fingerprint(&case, &other, &ObservablesTask::default())
     );
 }

@@ -199,15 +199,8 @@ pub fn sweep(
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-sweep"));
     let options = folder("sweep", other_files).keeping_store();
-    let table = run_grid(
-        &case,
-        &grid,
-        &sweep::ObservablesTask,
-        &out_dir,
-        &options,
-        common,
-        &case.name,
-    )?;
+    let task = sweep::ObservablesTask::of(&resolved);
+    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
     let stage = Staging::with_options(&out_dir, &options)?;
     stage.write("sweep.csv", &grid_csv(&table.columns, &table.rows))?;
     let quantities = [

@@ -387,8 +387,38 @@ impl LineRunner<'_, '_> {
     }
 }
 
-/// The plain sweep: one solve per point and every scalar observable.
-pub struct ObservablesTask;
+/// The plain sweep: one solve per point and every scalar observable, and
+/// for each contact attached along the channel its level, temperature,
+/// current and heat current (a probe scanned along the channel reads out
+/// here).
+#[derive(Clone, Debug, Default)]
+pub struct ObservablesTask {
+    /// Names of the contacts attached along the channel, in case order
+    /// (empty for a two-terminal device).
+    pub contacts: Vec<String>,
+}
+
+/// Per-contact columns, each `contact_<name>_<quantity>`.
+const CONTACT_COLUMNS: [&str; 4] = [
+    "fermi_level_ev",
+    "temperature_k",
+    "current_a",
+    "heat_current_w",
+];
+
+impl ObservablesTask {
+    /// The task for the contacts of a resolved case.
+    pub fn of(resolved: &crate::case::Resolved) -> Self {
+        Self {
+            contacts: resolved
+                .problem
+                .contacts
+                .iter()
+                .map(|c| c.name.clone())
+                .collect(),
+        }
+    }
+}
 
 /// Result columns of [`ObservablesTask`].
 pub const OBSERVABLE_COLUMNS: [&str; 16] = [
@@ -412,11 +442,24 @@ pub const OBSERVABLE_COLUMNS: [&str; 16] = [
 
 impl PointTask for ObservablesTask {
     fn columns(&self) -> Vec<String> {
-        OBSERVABLE_COLUMNS.iter().map(|s| s.to_string()).collect()
+        let mut c: Vec<String> = OBSERVABLE_COLUMNS.iter().map(|s| s.to_string()).collect();
+        for name in &self.contacts {
+            c.extend(
+                CONTACT_COLUMNS
+                    .iter()
+                    .map(|q| format!("contact_{name}_{q}")),
+            );
+        }
+        c
     }
 
     fn describe(&self) -> String {
-        "observables".into()
+        // A two-terminal sweep keeps the description (and so the store
+        // fingerprint) it always had.
+        match self.contacts.is_empty() {
+            true => "observables".into(),
+            false => format!("observables with contacts {}", self.contacts.join(",")),
+        }
     }
 
     fn run(
@@ -436,7 +479,7 @@ impl PointTask for ObservablesTask {
             })?;
         let o = observe(&sol);
         let rep = &sol.report;
-        let values = vec![
+        let mut values = vec![
             o.voltage_v,
             o.current_a,
             o.current_right_a,
@@ -455,6 +498,24 @@ impl PointTask for ObservablesTask {
             rep.history.last().map(|h| h.residual).unwrap_or(0.0),
             if rep.converged { 1.0 } else { 0.0 },
         ];
+        if o.contacts.len() != self.contacts.len() {
+            return Err(SweepError::Task {
+                point: index,
+                message: format!(
+                    "{} contacts along the channel, the sweep's columns are for {}",
+                    o.contacts.len(),
+                    self.contacts.len()
+                ),
+            });
+        }
+        for c in &o.contacts {
+            values.extend([
+                c.fermi_level_ev,
+                c.temperature_k,
+                c.current_a,
+                c.heat_current_w,
+            ]);
+        }
         let coherent = sol.problem.scattering.is_coherent();
         Ok(PointOutcome {
             values,
