@@ -94,99 +94,130 @@ impl Mixer {
         x: &mut ScatteringSelfEnergy,
         fx: &ScatteringSelfEnergy,
     ) -> &'static str {
-        use rayon::prelude::*;
         let (depth, beta) = match self.kind {
             Mixing::Linear { factor } => {
-                x.retarded
-                    .par_iter_mut()
-                    .zip(x.inscatter.par_iter_mut())
-                    .zip(fx.retarded.par_iter().zip(&fx.inscatter))
-                    .for_each(|((r, i), (fr, fi))| {
-                        *r += (fr - *r) * factor;
-                        *i += factor * (fi - *i);
-                    });
+                linear_step(x, fx, factor);
                 return "linear";
             }
             Mixing::Anderson { depth, damping } => (depth, damping),
         };
-        let parts = self.parts;
-        let len = parts * x.inscatter.len();
+        let len = self.parts * x.inscatter.len();
         let mut r = self.buffer(len);
         let mut prev = self.prev.take();
         let old = if prev.is_some() { self.dr.len() } else { 0 };
-        // Pass 1, per site chunk: r = F(x) − x; with a previous step also
-        // ΔR_new = r − r_prev (in r_prev's buffer) and U_new = x − x_prev +
-        // β ΔR_new (in x_prev's buffer). Sums: ‖r‖², ΔR_new·ΔR_new,
-        // ΔR_new·r, then ΔR_j·ΔR_new and ΔR_j·r for every stored j.
-        let width = 3 + 2 * old;
-        let sums = {
-            let dr = &self.dr;
-            let xr = &*x;
-            let cs = parts * CHUNK_SITES;
-            let body = |c: usize, rc: &mut [f64], pair: Option<(&mut [f64], &mut [f64])>| {
-                let mut acc = vec![0.0; width];
-                let first = c * CHUNK_SITES;
-                let sites = first..first + rc.len() / parts;
-                for ((t, xs), fs) in rc
-                    .chunks_exact_mut(parts)
-                    .zip(site_values(xr, sites.clone(), parts))
-                    .zip(site_values(fx, sites.clone(), parts))
-                {
-                    for p in 0..parts {
-                        t[p] = fs[p] - xs[p];
-                    }
-                }
-                acc[0] = dot(rc, rc);
-                if let Some((xp, rp)) = pair {
-                    for (t, xs) in xp
-                        .chunks_exact_mut(parts)
-                        .zip(site_values(xr, sites, parts))
-                    {
-                        for p in 0..parts {
-                            t[p] = xs[p] - t[p];
-                        }
-                    }
-                    for ((d, u), ri) in rp.iter_mut().zip(xp.iter_mut()).zip(rc.iter()) {
-                        *d = ri - *d;
-                        *u += beta * *d;
-                    }
-                    let (dd, dr_) = dot2(rp, rp, rc);
-                    acc[1] = dd;
-                    acc[2] = dr_;
-                    let g = c * cs..c * cs + rc.len();
-                    for (j, drj) in dr.iter().enumerate() {
-                        let (a, b) = dot2(&drj[g.clone()], rp, rc);
-                        acc[3 + 2 * j] = a;
-                        acc[4 + 2 * j] = b;
-                    }
-                }
-                acc
-            };
-            let parts: Vec<Vec<f64>> = match prev.as_mut() {
-                Some((xp, rp)) => r
-                    .par_chunks_mut(cs)
-                    .zip(xp.par_chunks_mut(cs).zip(rp.par_chunks_mut(cs)))
-                    .enumerate()
-                    .map(|(c, (rc, (xc, pc)))| body(c, rc, Some((xc, pc))))
-                    .collect(),
-                None => r
-                    .par_chunks_mut(cs)
-                    .enumerate()
-                    .map(|(c, rc)| body(c, rc, None))
-                    .collect(),
-            };
-            let mut tot = vec![0.0; width];
-            for part in &parts {
-                for (t, v) in tot.iter_mut().zip(part) {
-                    *t += v;
-                }
-            }
-            tot
-        };
+        let sums = self.residual_pass(x, fx, &mut r, prev.as_mut(), beta, old);
         let norm = sums[0].sqrt();
         let grew = norm > self.last_norm;
         self.last_norm = norm;
-        // ΔR_j·r for the steps kept for this update.
+        let rhs = self.record_step(&sums, prev, grew, depth, old);
+        let m = self.dr.len();
+        let gamma = least_squares(&self.gram, &rhs);
+        // Pass 2: x_{k+1} = x_k + β r_k − Σ_j γ_j U_j, keeping x_k.
+        let step = if m == 0 && grew { 0.5 * beta } else { beta };
+        let mut keep = self.buffer(len);
+        self.step_pass(x, fx, &r, &gamma, step, &mut keep);
+        self.prev = Some((keep, r));
+        if m > 0 {
+            "anderson"
+        } else if grew {
+            "restart"
+        } else {
+            "linear"
+        }
+    }
+
+    /// Pass 1, per site chunk: r = F(x) − x; with a previous step also
+    /// ΔR_new = r − r_prev (in r_prev's buffer) and U_new = x − x_prev +
+    /// β ΔR_new (in x_prev's buffer). Returns the sums ‖r‖²,
+    /// ΔR_new·ΔR_new, ΔR_new·r, then ΔR_j·ΔR_new and ΔR_j·r for each of
+    /// the `old` stored steps j.
+    fn residual_pass(
+        &self,
+        x: &ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+        r: &mut [f64],
+        prev: Option<&mut (Vec<f64>, Vec<f64>)>,
+        beta: f64,
+        old: usize,
+    ) -> Vec<f64> {
+        use rayon::prelude::*;
+        let parts = self.parts;
+        let width = 3 + 2 * old;
+        let dr = &self.dr;
+        let xr = x;
+        let cs = parts * CHUNK_SITES;
+        let body = |c: usize, rc: &mut [f64], pair: Option<(&mut [f64], &mut [f64])>| {
+            let mut acc = vec![0.0; width];
+            let first = c * CHUNK_SITES;
+            let sites = first..first + rc.len() / parts;
+            for ((t, xs), fs) in rc
+                .chunks_exact_mut(parts)
+                .zip(site_values(xr, sites.clone(), parts))
+                .zip(site_values(fx, sites.clone(), parts))
+            {
+                for p in 0..parts {
+                    t[p] = fs[p] - xs[p];
+                }
+            }
+            acc[0] = dot(rc, rc);
+            if let Some((xp, rp)) = pair {
+                for (t, xs) in xp
+                    .chunks_exact_mut(parts)
+                    .zip(site_values(xr, sites, parts))
+                {
+                    for p in 0..parts {
+                        t[p] = xs[p] - t[p];
+                    }
+                }
+                for ((d, u), ri) in rp.iter_mut().zip(xp.iter_mut()).zip(rc.iter()) {
+                    *d = ri - *d;
+                    *u += beta * *d;
+                }
+                let (dd, dr_) = dot2(rp, rp, rc);
+                acc[1] = dd;
+                acc[2] = dr_;
+                let g = c * cs..c * cs + rc.len();
+                for (j, drj) in dr.iter().enumerate() {
+                    let (a, b) = dot2(&drj[g.clone()], rp, rc);
+                    acc[3 + 2 * j] = a;
+                    acc[4 + 2 * j] = b;
+                }
+            }
+            acc
+        };
+        let parts: Vec<Vec<f64>> = match prev {
+            Some((xp, rp)) => r
+                .par_chunks_mut(cs)
+                .zip(xp.par_chunks_mut(cs).zip(rp.par_chunks_mut(cs)))
+                .enumerate()
+                .map(|(c, (rc, (xc, pc)))| body(c, rc, Some((xc, pc))))
+                .collect(),
+            None => r
+                .par_chunks_mut(cs)
+                .enumerate()
+                .map(|(c, rc)| body(c, rc, None))
+                .collect(),
+        };
+        let mut tot = vec![0.0; width];
+        for part in &parts {
+            for (t, v) in tot.iter_mut().zip(part) {
+                *t += v;
+            }
+        }
+        tot
+    }
+
+    /// Keep the step just formed (`prev`: U_new and ΔR_new) in the
+    /// history, or drop the whole history when the residual grew; returns
+    /// ΔR_j·r for the steps kept.
+    fn record_step(
+        &mut self,
+        sums: &[f64],
+        mut prev: Option<(Vec<f64>, Vec<f64>)>,
+        grew: bool,
+        depth: usize,
+        old: usize,
+    ) -> Vec<f64> {
         let mut rhs: Vec<f64> = (0..old).map(|j| sums[4 + 2 * j]).collect();
         if grew {
             // Drop the whole history, the step just formed included.
@@ -223,15 +254,23 @@ impl Mixer {
                 self.spare.push(dr_new);
             }
         }
-        let m = self.dr.len();
-        let gamma = least_squares(&self.gram, &rhs);
-        // Pass 2: x_{k+1} = x_k + β r_k − Σ_j γ_j U_j, keeping x_k.
-        let step = if m == 0 && grew { 0.5 * beta } else { beta };
-        let mut keep = self.buffer(len);
+        rhs
+    }
+
+    /// Pass 2: x ← x + step·r − Σ_j γ_j U_j, the old x kept in `keep`.
+    fn step_pass(
+        &self,
+        x: &mut ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+        r: &[f64],
+        gamma: &[f64],
+        step: f64,
+        keep: &mut [f64],
+    ) {
+        use rayon::prelude::*;
+        let parts = self.parts;
         {
             let u = &self.u;
-            let r = &r;
-            let gamma = &gamma;
             x.retarded
                 .par_chunks_mut(CHUNK_SITES)
                 .zip(x.inscatter.par_chunks_mut(CHUNK_SITES))
@@ -275,15 +314,20 @@ impl Mixer {
                     }
                 });
         }
-        self.prev = Some((keep, r));
-        if m > 0 {
-            "anderson"
-        } else if grew {
-            "restart"
-        } else {
-            "linear"
-        }
     }
+}
+
+/// x ← x + factor·(F(x) − x) on every number.
+fn linear_step(x: &mut ScatteringSelfEnergy, fx: &ScatteringSelfEnergy, factor: f64) {
+    use rayon::prelude::*;
+    x.retarded
+        .par_iter_mut()
+        .zip(x.inscatter.par_iter_mut())
+        .zip(fx.retarded.par_iter().zip(&fx.inscatter))
+        .for_each(|((r, i), (fr, fi))| {
+            *r += (fr - *r) * factor;
+            *i += factor * (fi - *i);
+        });
 }
 
 /// The mixed numbers of the orbital sites `sites` of `s`: (Re Σ^r_0,
