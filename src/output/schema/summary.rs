@@ -519,7 +519,65 @@ pub struct ReportOutput {
     pub bytes: usize,
 }
 
-/// JSON text of a summary (pretty-printed).
+/// JSON text of a summary (pretty-printed). A negative zero (a sum that
+/// is exactly zero, times −1, as the lattice power of a coherent device)
+/// is written as 0.0: the sign of a zero carries no meaning and `-0.0`
+/// only puzzles a reader.
 pub fn to_text<T: Serialize>(summary: &T) -> String {
-    serde_json::to_string_pretty(summary).expect("JSON of plain values")
+    positive_zeros(&serde_json::to_string_pretty(summary).expect("JSON of plain values"))
+}
+
+/// `json` with every number token `-0.0` (outside strings) written `0.0`.
+fn positive_zeros(json: &str) -> String {
+    let bytes = json.as_bytes();
+    let mut out = String::with_capacity(json.len());
+    let (mut in_string, mut escaped, mut start) = (false, false, 0);
+    for (i, &c) in bytes.iter().enumerate() {
+        if in_string {
+            match (escaped, c) {
+                (true, _) => escaped = false,
+                (false, b'\\') => escaped = true,
+                (false, b'"') => in_string = false,
+                _ => {}
+            }
+            continue;
+        }
+        if c == b'"' {
+            in_string = true;
+        } else if c == b'-'
+            && bytes[i..].starts_with(b"-0.0")
+            && bytes
+                .get(i + 4)
+                .is_none_or(|d| matches!(d, b',' | b']' | b'}' | b' ' | b'\n'))
+        {
+            out.push_str(&json[start..i]);
+            start = i + 1;
+        }
+    }
+    out.push_str(&json[start..]);
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn negative_zeros_are_written_as_zeros() {
+        let text = super::to_text(&serde_json::json!({
+            "a": -0.0, "b": [1.5, -0.0], "c": -2.0, "d": -0.05, "e": "x = -0.0 V"
+        }));
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(
+            v["a"].as_f64().map(f64::is_sign_negative),
+            Some(false),
+            "{text}"
+        );
+        assert_eq!(
+            v["b"][1].as_f64().map(f64::is_sign_negative),
+            Some(false),
+            "{text}"
+        );
+        assert_eq!(v["c"], -2.0);
+        assert_eq!(v["d"], -0.05);
+        assert_eq!(v["e"], "x = -0.0 V");
+    }
 }
