@@ -943,23 +943,29 @@ pub fn bond_current_svg_within(
         scale: MapScale::SignedLog {
             decades: SIGNED_LOG_DECADES,
         },
-        overlays: vec![
-            Overlay {
-                label: "band edge".into(),
-                points: &band,
-                colour: INK,
-                dashed: false,
-            },
-            Overlay {
-                label: "local Fermi level".into(),
-                points: &fermi,
-                colour: LOCAL_FERMI,
-                dashed: true,
-            },
-        ],
+        overlays: band_and_fermi(&band, &fermi),
         size: (WIDTH, 640),
         max_pixels,
     })
+}
+
+/// The band edge (solid) and the local Fermi level (dashed) drawn over a
+/// position–energy map.
+fn band_and_fermi<'a>(band: &'a [(f64, f64)], fermi: &'a [(f64, f64)]) -> Vec<Overlay<'a>> {
+    vec![
+        Overlay {
+            label: "band edge".into(),
+            points: band,
+            colour: INK,
+            dashed: false,
+        },
+        Overlay {
+            label: "local Fermi level".into(),
+            points: fermi,
+            colour: LOCAL_FERMI,
+            dashed: true,
+        },
+    ]
 }
 
 /// occupation.svg: how full the states of each cell are at each energy,
@@ -1027,20 +1033,7 @@ pub fn occupation_svg_within(
         values: &values,
         colour_label: "occupation f (0 empty, 1 full)",
         scale: MapScale::Bounded { lo: 0.0, hi: 1.0 },
-        overlays: vec![
-            Overlay {
-                label: "band edge".into(),
-                points: &band,
-                colour: INK,
-                dashed: false,
-            },
-            Overlay {
-                label: "local Fermi level".into(),
-                points: &fermi,
-                colour: LOCAL_FERMI,
-                dashed: true,
-            },
-        ],
+        overlays: band_and_fermi(&band, &fermi),
         size: (WIDTH, 640),
         max_pixels,
     })
