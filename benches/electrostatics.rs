@@ -1,0 +1,103 @@
+//! A self-consistent electrostatics solve against the same Born solve with
+//! the potential frozen at its converged value: a 400-cell doped chain
+//! (0.5 nm cells, m* = 0.07, 25 nm², 2e18 cm⁻³ donors with an undoped
+//! 20 nm layer in the middle), one 36 meV phonon (D = 2e-3 eV²) everywhere,
+//! 20 mV bias, 2 meV energy step. The ratio of the two medians is the cost
+//! of the electrostatics; its target is at most 3.
+//!
+//! Run: `cargo bench --bench electrostatics -- --sample-size 10 --warm-up-time 1 --measurement-time 20`
+
+use criterion::{Criterion, criterion_group, criterion_main};
+use qheat::device;
+use qheat::electrostatics::{self, Boundary, Electrostatics};
+use qheat::grid::EnergyGrid;
+use qheat::leads::{DecimationParams, Lead};
+use qheat::model::{Contact, Problem};
+use qheat::scattering::{PhononMode, Scattering};
+use qheat::scba::{self, ScbaParams, Silent};
+use std::hint::black_box;
+
+const CELLS: usize = 400;
+const SPACING_NM: f64 = 0.5;
+const T: f64 = 300.0;
+
+fn problem() -> Problem {
+    let t = qheat::units::hopping_ev(0.07, SPACING_NM);
+    let dev = device::chain(SPACING_NM, t, 0.0, vec![0.0; CELLS]);
+    let lead = Lead::Periodic {
+        onsite: dev.onsite[0].clone(),
+        hopping: dev.coupling[0].clone(),
+    };
+    let contact = |mu| Contact {
+        lead: lead.clone(),
+        fermi_level_ev: mu,
+        temperature_k: T,
+    };
+    let step = 0.002;
+    Problem {
+        device: dev,
+        left: contact(0.01),
+        right: contact(-0.01),
+        scattering: Scattering {
+            phonons: vec![PhononMode {
+                requested_energy_ev: 0.036,
+                energy_ev: 0.036,
+                steps: 18,
+                coupling_ev2: vec![2e-3; CELLS],
+                bath_temperature_k: T,
+                coupling_matrices: Default::default(),
+            }],
+            ..Default::default()
+        },
+        grid: EnergyGrid::covering(-0.1507, 0.35, step),
+        spin_degeneracy: 2.0,
+        decimation: DecimationParams::default(),
+        contacts: Vec::new(),
+    }
+}
+
+fn settings() -> Electrostatics {
+    let undoped = |i: usize| (180..220).contains(&i);
+    Electrostatics {
+        permittivity: vec![12.0; CELLS],
+        donors_cm3: (0..CELLS)
+            .map(|i| if undoped(i) { 0.0 } else { 2e18 })
+            .collect(),
+        acceptors_cm3: vec![0.0; CELLS],
+        area_nm2: 25.0,
+        gate: None,
+        left: Boundary::Neutral,
+        right: Boundary::Neutral,
+        tolerance_ev: Electrostatics::DEFAULT_TOLERANCE_EV,
+        max_iterations: Electrostatics::DEFAULT_MAX_ITERATIONS,
+        mixing_depth: Electrostatics::DEFAULT_MIXING_DEPTH,
+        mixing_factor: Electrostatics::DEFAULT_MIXING_FACTOR,
+    }
+}
+
+fn bench(c: &mut Criterion) {
+    let (p, es, params) = (problem(), settings(), ScbaParams::default());
+    let sc = electrostatics::solve(&p, &es, &params, None, None, &mut Silent).expect("solves");
+    assert!(sc.report.converged, "{:?}", sc.report.history);
+    eprintln!(
+        "electrostatics: {} outer iterations, {} Born passes",
+        sc.report.outer_iterations, sc.report.born_passes
+    );
+    let frozen = electrostatics::with_potential(&p, &sc.potential_ev);
+    let fixed = scba::solve(&frozen, &params, None, &mut Silent).expect("solves");
+    eprintln!("frozen potential: {} Born passes", fixed.report.iterations);
+    let mut g = c.benchmark_group("electrostatics_400_cells_one_phonon");
+    g.bench_function("self_consistent", |b| {
+        b.iter(|| {
+            electrostatics::solve(black_box(&p), &es, &params, None, None, &mut Silent)
+                .expect("solves")
+        })
+    });
+    g.bench_function("frozen_potential", |b| {
+        b.iter(|| scba::solve(black_box(&frozen), &params, None, &mut Silent).expect("solves"))
+    });
+    g.finish();
+}
+
+criterion_group!(benches, bench);
+criterion_main!(benches);
