@@ -130,9 +130,9 @@ fn electrostatics_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
             meaning: "electrons of the cell (spin included) as the Poisson equation counts \
                       them: G^n integrated over energy with weights that follow the \
                       (E − Ec)^(−1/2) band edge of the cell between grid points. Its sum \
-                      neutralises the doping (Gauss's law) where electron_density_per_nm × \
-                      spacing, summed point by point on the grid, is off by the sampling error \
-                      of the band edge",
+                      neutralises the doping (Gauss's law), where G^n summed point by point \
+                      on the grid is off by the sampling error of the band edge (about 1 %); \
+                      electron_density_per_nm is this count divided by the spacing",
             only_when: Some((WHEN, present)),
             value: |p, i| {
                 Cell::Num(
@@ -193,8 +193,18 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
         col(
             "electron_density_per_nm",
             "1/nm",
-            "electrons per nm, spin included",
-            |p, i| Cell::Num(p.o.sites.electron_density_per_nm[i]),
+            "electrons per nm, spin included: G^n summed over the energy grid; with \
+             [electrostatics] the count the Poisson equation sees, electrons_poisson / spacing \
+             (band-edge-aware energy weights), so both columns agree",
+            |p, i| {
+                Cell::Num(match p.electrostatics {
+                    Some(e) => {
+                        e.electrons_per_cell.get(i).copied().unwrap_or(f64::NAN)
+                            / p.sol.problem.device.spacing_nm
+                    }
+                    None => p.o.sites.electron_density_per_nm[i],
+                })
+            },
         ),
         col(
             "voltage_drop_v",
