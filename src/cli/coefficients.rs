@@ -69,6 +69,24 @@ pub fn print_coefficients(c: &Coefficients) {
     println!("Kelvin/Onsager    residual {:.1e}", c.kelvin_residual);
 }
 
+/// The line that says the potential was solved at every run, when the
+/// case solves it with the transport.
+fn print_electrostatics(detail: &serde_json::Value) {
+    let Some(e) = detail.get("electrostatics") else {
+        return;
+    };
+    let drop = e["potential_drop_v"]
+        .get(0)
+        .and_then(serde_json::Value::as_f64)
+        .unwrap_or(f64::NAN);
+    println!(
+        "electrostatics    potential solved at every run, none imposed (outer iterations {}, unperturbed point first; tolerance {:.1e} eV); computed drop at equilibrium {:.3e} V",
+        e["outer_iterations"],
+        e["tolerance_ev"].as_f64().unwrap_or(f64::NAN),
+        drop
+    );
+}
+
 /// Terminal lines of the channel Seebeck coefficients.
 fn print_channel_seebeck(ch: &qheat::thermo::channels::ChannelSeebeck) {
     use qheat::thermo::channels::ChannelSeebeck;
@@ -131,6 +149,7 @@ pub fn coefficients(
         println!("{text}");
     } else if !common.quiet {
         print_coefficients(&c);
+        print_electrostatics(&summary.response);
         if let Some(ch) = &channels {
             print_channel_seebeck(ch);
         }

@@ -58,7 +58,7 @@ fn flag(converged: bool, out_dir: &Path) -> Result<(), Failure> {
         Ok(())
     } else {
         Err(Failure::Solver(format!(
-            "a Born loop did not converge; results in {} are flagged (converged = false)",
+            "a Born loop (or a solve of the potential) did not converge; results in {} are flagged (converged = false)",
             out_dir.display()
         )))
     }
@@ -109,6 +109,57 @@ pub fn check_curve_options(
     Ok(())
 }
 
+/// Terminal lines of a generator curve (all but the results folder).
+fn print_generator(r: &qheat::thermo::generator::GeneratorReport, hot: f64, cold: f64) {
+    println!(
+        "generator         hot lead left at {hot} K, cold lead right at {cold} K, µ = {:.4} eV",
+        r.fermi_level_ev
+    );
+    println!(
+        "device            S = {:.3} µV/K, ZT = {:.4} at {} K (linear response)",
+        r.coefficients.seebeck_v_per_k * 1e6,
+        r.coefficients.zt,
+        number(0.5 * (hot + cold))
+    );
+    println!(
+        "open circuit      V_oc = {}  (linear estimate −SΔT = {}); short circuit I = {}",
+        si(r.open_circuit_voltage_v, "V", 5),
+        si(r.open_circuit_voltage_estimate_v, "V", 5),
+        si(r.short_circuit_current_a, "A", 4)
+    );
+    println!(
+        "maximum power     P = {} at V = {} (I = {})",
+        si(r.max_power_w, "W", 5),
+        si(r.voltage_at_max_power_v, "V", 5),
+        si(r.current_at_max_power_a, "A", 4)
+    );
+    println!(
+        "efficiency        at maximum power {:.6}  (linear response (η_C/2)ZT/(ZT+2) = {:.6})",
+        r.efficiency_at_max_power, r.efficiency_at_max_power_linear
+    );
+    println!(
+        "                  maximum {:.6} at V = {}  (Ioffe with this ZT {:.6})",
+        r.max_efficiency,
+        si(r.voltage_at_max_efficiency_v, "V", 5),
+        r.ioffe_max_efficiency
+    );
+    println!(
+        "bounds            Carnot η_C = {:.6}, Curzon-Ahlborn η_CA = {:.6}",
+        r.carnot_efficiency, r.curzon_ahlborn_efficiency
+    );
+    print_leak(
+        r.lattice_heat_leak_w,
+        r.phonon_conductance_source,
+        "added to the heat drawn from the hot side",
+    );
+    print_electrostatics(r.electrostatics.as_ref(), r.solves);
+    println!("energy grid       curve: {}", r.energy_grid.describe());
+    println!(
+        "                  linear response: {}",
+        r.coefficient_grid.describe()
+    );
+}
+
 /// `qheat generator CASE --hot K --cold K`.
 pub fn generator(
     path: &Path,
@@ -144,55 +195,54 @@ pub fn generator(
     if common.json {
         println!("{text}");
     } else if !common.quiet {
-        println!(
-            "generator         hot lead left at {hot} K, cold lead right at {cold} K, µ = {:.4} eV",
-            r.fermi_level_ev
-        );
-        println!(
-            "device            S = {:.3} µV/K, ZT = {:.4} at {} K (linear response)",
-            r.coefficients.seebeck_v_per_k * 1e6,
-            r.coefficients.zt,
-            number(0.5 * (hot + cold))
-        );
-        println!(
-            "open circuit      V_oc = {}  (linear estimate −SΔT = {}); short circuit I = {}",
-            si(r.open_circuit_voltage_v, "V", 5),
-            si(r.open_circuit_voltage_estimate_v, "V", 5),
-            si(r.short_circuit_current_a, "A", 4)
-        );
-        println!(
-            "maximum power     P = {} at V = {} (I = {})",
-            si(r.max_power_w, "W", 5),
-            si(r.voltage_at_max_power_v, "V", 5),
-            si(r.current_at_max_power_a, "A", 4)
-        );
-        println!(
-            "efficiency        at maximum power {:.6}  (linear response (η_C/2)ZT/(ZT+2) = {:.6})",
-            r.efficiency_at_max_power, r.efficiency_at_max_power_linear
-        );
-        println!(
-            "                  maximum {:.6} at V = {}  (Ioffe with this ZT {:.6})",
-            r.max_efficiency,
-            si(r.voltage_at_max_efficiency_v, "V", 5),
-            r.ioffe_max_efficiency
-        );
-        println!(
-            "bounds            Carnot η_C = {:.6}, Curzon-Ahlborn η_CA = {:.6}",
-            r.carnot_efficiency, r.curzon_ahlborn_efficiency
-        );
-        print_leak(
-            r.lattice_heat_leak_w,
-            r.phonon_conductance_source,
-            "added to the heat drawn from the hot side",
-        );
-        println!("energy grid       curve: {}", r.energy_grid.describe());
-        println!(
-            "                  linear response: {}",
-            r.coefficient_grid.describe()
-        );
+        print_generator(&r, hot, cold);
         println!("results           {}", out_dir.display());
     }
     flag(r.converged, &out_dir)
+}
+
+/// Terminal lines of a cooler curve (all but the results folder).
+fn print_cooler(
+    r: &qheat::thermo::cooler::CoolerReport,
+    hot: f64,
+    cold: f64,
+    (cold_name, hot_name): (&str, &str),
+) {
+    println!(
+        "cooler            cold lead {cold_name} at {cold} K, hot lead {hot_name} at {hot} K, µ = {:.4} eV",
+        r.fermi_level_ev
+    );
+    println!(
+        "maximum cooling   {} at V = {}, I = {}",
+        si(r.max_cooling_power_w, "W", 5),
+        si(r.voltage_at_max_v, "V", 5),
+        si(r.current_at_max_a, "A", 4)
+    );
+    println!(
+        "at zero bias      {} (heat leaking into the cold lead is negative)",
+        si(r.cooling_power_at_zero_bias_w, "W", 4)
+    );
+    println!(
+        "COP               {:.4} at maximum cooling, {:.4} at best (V = {}); Carnot {:.4}{}",
+        r.cop_at_max,
+        r.max_cop,
+        si(r.voltage_at_max_cop_v, "V", 5),
+        r.carnot_cop,
+        match (r.ioffe_max_cop, &r.coefficients) {
+            (Some(i), Some(c)) => format!(", Ioffe {i:.4} with ZT = {:.4}", c.zt),
+            _ => String::new(),
+        }
+    );
+    print_leak(
+        r.lattice_heat_leak_w,
+        r.phonon_conductance_source,
+        "subtracted from the cooling power",
+    );
+    print_electrostatics(r.electrostatics.as_ref(), r.solves);
+    println!("energy grid       curve: {}", r.energy_grid.describe());
+    if let Some(g) = &r.coefficient_grid {
+        println!("                  linear response: {}", g.describe());
+    }
 }
 
 /// `qheat cooler CASE --hot K --cold K`.
@@ -240,43 +290,25 @@ pub fn cooler(
     if common.json {
         println!("{text}");
     } else if !common.quiet {
-        println!(
-            "cooler            cold lead {cold_name} at {cold} K, hot lead {hot_name} at {hot} K, µ = {:.4} eV",
-            r.fermi_level_ev
-        );
-        println!(
-            "maximum cooling   {} at V = {}, I = {}",
-            si(r.max_cooling_power_w, "W", 5),
-            si(r.voltage_at_max_v, "V", 5),
-            si(r.current_at_max_a, "A", 4)
-        );
-        println!(
-            "at zero bias      {} (heat leaking into the cold lead is negative)",
-            si(r.cooling_power_at_zero_bias_w, "W", 4)
-        );
-        println!(
-            "COP               {:.4} at maximum cooling, {:.4} at best (V = {}); Carnot {:.4}{}",
-            r.cop_at_max,
-            r.max_cop,
-            si(r.voltage_at_max_cop_v, "V", 5),
-            r.carnot_cop,
-            match (r.ioffe_max_cop, &r.coefficients) {
-                (Some(i), Some(c)) => format!(", Ioffe {i:.4} with ZT = {:.4}", c.zt),
-                _ => String::new(),
-            }
-        );
-        print_leak(
-            r.lattice_heat_leak_w,
-            r.phonon_conductance_source,
-            "subtracted from the cooling power",
-        );
-        println!("energy grid       curve: {}", r.energy_grid.describe());
-        if let Some(g) = &r.coefficient_grid {
-            println!("                  linear response: {}", g.describe());
-        }
+        print_cooler(&r, hot, cold, (cold_name, hot_name));
         println!("results           {}", out_dir.display());
     }
     flag(r.converged, &out_dir)
+}
+
+/// The line that says the potential was solved at every point of a curve.
+fn print_electrostatics(e: Option<&qheat::thermo::generator::CurveElectrostatics>, solves: usize) {
+    if let Some(e) = e {
+        println!(
+            "electrostatics    potential solved at every point ({solves} solves, {} outer iterations in all), none imposed; the curve's potential_drop_v gives the computed drop{}",
+            e.outer_iterations,
+            if e.converged {
+                ""
+            } else {
+                " (NOT converged everywhere)"
+            }
+        );
+    }
 }
 
 /// The lattice's heat leak line of a generator or cooler.

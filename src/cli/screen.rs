@@ -45,7 +45,9 @@ pub fn screen(
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-screen"));
-    let task = ScreenTask::new(rank, cooling).expect("a cooler curve exactly for --rank cooling");
+    let task = ScreenTask::new(rank, cooling)
+        .expect("a cooler curve exactly for --rank cooling")
+        .with_electrostatics(resolved.electrostatics.is_some());
     let options = folder("screen", other_files).keeping_store();
     let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
     let order = ranking(&table, rank.column())?;
@@ -75,6 +77,11 @@ pub fn screen(
     if common.json {
         println!("{text}");
     } else if !common.quiet {
+        if task.electrostatics() {
+            println!(
+                "electrostatics    potential solved at every run of every point, none imposed"
+            );
+        }
         print_ranking(&grid, &table, &order, rank, kph_source.as_ref(), &out_dir);
     }
     convergence_outcome(&table, &out_dir)

@@ -214,9 +214,11 @@ pub fn sweep(
         stage.write(&name, svg.as_bytes())?;
     }
     let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
-    summary.warm_start = Some(
-        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match".into(),
-    );
+    summary.warm_start = Some(if task.electrostatics {
+        "the potential is solved at every point ([electrostatics]; columns potential_drop_v, outer_iterations, potential_change_ev, poisson_residual); each point starts from the converged potential and self-energy of the previous point along the last axis when the energy grid and device size match".into()
+    } else {
+        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match".into()
+    });
     let text = to_text(&summary);
     stage.write("summary.json", text.as_bytes())?;
     stage.commit()?;
@@ -240,6 +242,11 @@ pub fn sweep(
                 format!("NOT CONVERGED at {} point(s): {:?}", bad.len(), bad)
             }
         );
+        if task.electrostatics {
+            println!(
+                "electrostatics    potential solved at every point, none imposed (sweep.csv: potential_drop_v, outer_iterations)"
+            );
+        }
         println!("results           {}", out_dir.join("sweep.csv").display());
     }
     convergence_outcome(&table, &out_dir)

@@ -314,6 +314,28 @@ pub fn solve(
     start: Option<&[f64]>,
     observer: &mut dyn Observer,
 ) -> Result<SelfConsistent, SolveError> {
+    solve_warm(
+        problem,
+        es,
+        params,
+        lattice_temperature_k,
+        start,
+        None,
+        observer,
+    )
+}
+
+/// [`solve`] with the first Born loop started from `sigma`, the Σ0 of a
+/// nearby point (it must fit the problem's sites and energy grid).
+pub fn solve_warm(
+    problem: &Problem,
+    es: &Electrostatics,
+    params: &ScbaParams,
+    lattice_temperature_k: Option<&[f64]>,
+    start: Option<&[f64]>,
+    sigma: Option<&ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<SelfConsistent, SolveError> {
     let cells = problem.device.cells();
     es.check(cells)?;
     let poisson = es.poisson(problem.device.spacing_nm);
@@ -325,7 +347,7 @@ pub fn solve(
     };
     pin_fixed_ends(&mut u, &poisson);
     let mut history = Vec::new();
-    let mut warm: Option<ScatteringSelfEnergy> = None;
+    let mut warm: Option<ScatteringSelfEnergy> = sigma.cloned();
     let mut born_passes = 0;
     let mut mixer = mixing::PotentialMixer::new(es.mixing_depth, es.mixing_factor);
     for iteration in 1..=es.max_iterations.max(1) {

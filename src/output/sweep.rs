@@ -4,7 +4,9 @@
 //! under `points/<fingerprint>/`: one file per finished point
 //! (`<index>.row`, the row's numbers in shortest round-trip text) and, for
 //! sweeps that warm-start the Born loop, the converged Σ0 of the latest
-//! points of each line (`<index>.sigma`, raw little-endian doubles). Every
+//! points of each line (`<index>.sigma`, raw little-endian doubles), and
+//! for sweeps that solve the potential at every point their potentials
+//! (`<index>.potential`, U_es of each cell as little-endian doubles). Every
 //! file is written to a temporary name, synced and renamed
 //! ([`atomic_write`]), so a file that exists is whole. The fingerprint
 //! ([`crate::sweep::sweep_fingerprint`]) hashes the case text, the grid and
@@ -55,6 +57,10 @@ impl PointFolder {
     fn sigma_path(&self, index: usize) -> PathBuf {
         self.dir.join(format!("{index:08}.sigma"))
     }
+
+    fn potential_path(&self, index: usize) -> PathBuf {
+        self.dir.join(format!("{index:08}.potential"))
+    }
 }
 
 impl PointStore for PointFolder {
@@ -89,6 +95,24 @@ impl PointStore for PointFolder {
 
     fn remove_sigma(&self, index: usize) {
         let _ = std::fs::remove_file(self.sigma_path(index));
+    }
+
+    fn potential(&self, index: usize) -> Option<Vec<f64>> {
+        let bytes = std::fs::read(self.potential_path(index)).ok()?;
+        if bytes.len() % 8 != 0 {
+            return None;
+        }
+        let value = |c: &[u8]| f64::from_le_bytes(c.try_into().expect("8 bytes"));
+        Some(bytes.chunks_exact(8).map(value).collect())
+    }
+
+    fn put_potential(&self, index: usize, potential_ev: &[f64]) -> Result<(), StoreError> {
+        let bytes: Vec<u8> = potential_ev.iter().flat_map(|v| v.to_le_bytes()).collect();
+        Ok(atomic_write(&self.potential_path(index), &bytes)?)
+    }
+
+    fn remove_potential(&self, index: usize) {
+        let _ = std::fs::remove_file(self.potential_path(index));
     }
 
     fn location(&self) -> String {

@@ -29,7 +29,8 @@ use crate::case::{Case, CaseError};
 use crate::observables::observe;
 use crate::progress::{Observer, PointEvent, Silent};
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::{SolveError, solve};
+use crate::scba::SolveError;
+use crate::thermo::point::{PointStart, solve_point};
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
@@ -80,6 +81,9 @@ pub struct PointOutcome {
     pub values: Vec<f64>,
     /// The converged Σ0, offered as warm start to the next point of the line.
     pub sigma: Option<ScatteringSelfEnergy>,
+    /// The converged electrostatic potential energy (eV per cell) of a
+    /// point whose potential was solved, offered to the next point too.
+    pub potential_ev: Option<Vec<f64>>,
 }
 
 /// The computation done at each grid point.
@@ -90,12 +94,13 @@ pub trait PointTask: Sync {
     /// A text that changes whenever the task would compute something else
     /// (mode, temperatures, …); part of the store fingerprint.
     fn describe(&self) -> String;
-    /// Compute one point; `warm` is the predecessor's Σ0 when it fits.
+    /// Compute one point; `warm` holds the predecessor's Σ0 when it fits
+    /// and its potential when it has one.
     fn run(
         &self,
         index: usize,
         case: &Case,
-        warm: Option<&ScatteringSelfEnergy>,
+        warm: PointStart<'_>,
     ) -> Result<PointOutcome, SweepError>;
 }
 
@@ -302,50 +307,63 @@ impl LineRunner<'_, '_> {
     }
 
     /// The points of one line in order, each warm-started from its
-    /// predecessor's Σ0 (kept in memory, or read back from the store when
-    /// the predecessor finished in an earlier run).
+    /// predecessor's Σ0 and potential (kept in memory, or read back from
+    /// the store when the predecessor finished in an earlier run).
     fn work_line(&self, line: usize) -> Result<(), SweepError> {
         let line_len = self.grid.line_length();
         let first = line * line_len;
         let mut warm: Option<ScatteringSelfEnergy> = None;
+        let mut potential: Option<Vec<f64>> = None;
         for index in first..first + line_len {
             if self.stop.load(Ordering::Relaxed) {
                 return Ok(());
             }
             if let Some(row) = self.store.row(index, self.width) {
-                warm = None;
+                (warm, potential) = (None, None);
                 self.report(index, false, &row);
                 continue;
             }
-            if warm.is_none() && index > first {
+            if warm.is_none() && potential.is_none() && index > first {
                 warm = self.store.sigma(index - 1);
+                potential = self.store.potential(index - 1);
             }
-            let (row, sigma) = self.compute(index, warm.as_ref())?;
-            if let Some(s) = &sigma {
+            let start = PointStart {
+                sigma: warm.as_ref(),
+                potential_ev: potential.as_deref(),
+            };
+            let (row, outcome) = self.compute(index, start)?;
+            if let Some(s) = &outcome.sigma {
                 self.store.put_sigma(index, s).map_err(SweepError::Store)?;
+            }
+            if let Some(u) = &outcome.potential_ev {
+                self.store
+                    .put_potential(index, u)
+                    .map_err(SweepError::Store)?;
             }
             self.store.put_row(index, &row).map_err(SweepError::Store)?;
             if index >= first + 2 {
                 self.store.remove_sigma(index - 2);
+                self.store.remove_potential(index - 2);
             }
-            warm = sigma;
+            (warm, potential) = (outcome.sigma, outcome.potential_ev);
             self.computed.fetch_add(1, Ordering::SeqCst);
             self.report(index, true, &row);
         }
         // The line is whole: its warm starts are no longer needed.
         for index in first..first + line_len {
             self.store.remove_sigma(index);
+            self.store.remove_potential(index);
         }
         Ok(())
     }
 
     /// Run the task at point `index`; its row (axes, then the task's
-    /// values) and Σ0.
+    /// values) and what it offers the next point.
     fn compute(
         &self,
         index: usize,
-        warm: Option<&ScatteringSelfEnergy>,
-    ) -> Result<(Vec<f64>, Option<ScatteringSelfEnergy>), SweepError> {
+        warm: PointStart<'_>,
+    ) -> Result<(Vec<f64>, PointOutcome), SweepError> {
         let c = self.grid.case_at(self.case, index)?;
         let problem = &c
             .resolve()
@@ -354,9 +372,16 @@ impl LineRunner<'_, '_> {
                 source: Box::new(e),
             })?
             .problem;
-        let fits =
-            warm.is_some_and(|w| w.sites == problem.sites() && w.energies() == problem.grid.count);
-        let outcome = self.task.run(index, &c, if fits { warm } else { None })?;
+        let fits = |w: &&ScatteringSelfEnergy| {
+            w.sites == problem.sites() && w.energies() == problem.grid.count
+        };
+        let start = PointStart {
+            sigma: warm.sigma.filter(fits),
+            potential_ev: warm
+                .potential_ev
+                .filter(|u| u.len() == problem.device.cells()),
+        };
+        let outcome = self.task.run(index, &c, start)?;
         let axes = self.grid.axes.len();
         if outcome.values.len() + axes != self.width {
             return Err(SweepError::Task {
@@ -370,7 +395,7 @@ impl LineRunner<'_, '_> {
         }
         let mut row = self.grid.values(index);
         row.extend_from_slice(&outcome.values);
-        Ok((row, outcome.sigma))
+        Ok((row, outcome))
     }
 
     /// Tell the observer that point `index` is stored.
@@ -396,6 +421,10 @@ pub struct ObservablesTask {
     /// Names of the contacts attached along the channel, in case order
     /// (empty for a two-terminal device).
     pub contacts: Vec<String>,
+    /// The case solves its potential with the transport (`[electrostatics]`):
+    /// every point solves its own, and the [`ELECTROSTATICS_COLUMNS`] say
+    /// how.
+    pub electrostatics: bool,
 }
 
 /// Per-contact columns, each `contact_<name>_<quantity>`.
@@ -416,9 +445,21 @@ impl ObservablesTask {
                 .iter()
                 .map(|c| c.name.clone())
                 .collect(),
+            electrostatics: resolved.electrostatics.is_some(),
         }
     }
 }
+
+/// Columns a sweep adds when every point solves its potential: the
+/// computed drop φ(first cell) − φ(last cell), the outer iterations, the
+/// last potential change and the Poisson residual of the point
+/// (`converged` then also needs the potential to have converged).
+pub const ELECTROSTATICS_COLUMNS: [&str; 4] = [
+    "potential_drop_v",
+    "outer_iterations",
+    "potential_change_ev",
+    "poisson_residual",
+];
 
 /// Result columns of [`ObservablesTask`].
 pub const OBSERVABLE_COLUMNS: [&str; 16] = [
@@ -450,33 +491,50 @@ impl PointTask for ObservablesTask {
                     .map(|q| format!("contact_{name}_{q}")),
             );
         }
+        if self.electrostatics {
+            c.extend(ELECTROSTATICS_COLUMNS.iter().map(|s| s.to_string()));
+        }
         c
     }
 
     fn describe(&self) -> String {
         // A two-terminal sweep keeps the description (and so the store
         // fingerprint) it always had.
-        match self.contacts.is_empty() {
-            true => "observables".into(),
+        let mut d = match self.contacts.is_empty() {
+            true => "observables".to_string(),
             false => format!("observables with contacts {}", self.contacts.join(",")),
+        };
+        if self.electrostatics {
+            d.push_str(" with the potential solved at every point");
         }
+        d
     }
 
     fn run(
         &self,
         index: usize,
         case: &Case,
-        warm: Option<&ScatteringSelfEnergy>,
+        warm: PointStart<'_>,
     ) -> Result<PointOutcome, SweepError> {
         let r = case.resolve().map_err(|e| SweepError::Case {
             point: index,
             source: Box::new(e),
         })?;
-        let sol =
-            solve(&r.problem, &r.scba, warm, &mut Silent).map_err(|source| SweepError::Solve {
+        let es = r.electrostatics.as_ref();
+        if es.is_some() != self.electrostatics {
+            return Err(SweepError::Task {
+                point: index,
+                message: "the case's [electrostatics] differs from the sweep's columns".into(),
+            });
+        }
+        let point = solve_point(&r.problem, es, &r.scba, warm, &mut Silent).map_err(|source| {
+            SweepError::Solve {
                 point: index,
                 source,
-            })?;
+            }
+        })?;
+        let converged = point.converged();
+        let sol = point.solution;
         let o = observe(&sol);
         let rep = &sol.report;
         let mut values = vec![
@@ -496,7 +554,7 @@ impl PointTask for ObservablesTask {
             o.ledger.heat_relative,
             rep.iterations as f64,
             rep.history.last().map(|h| h.residual).unwrap_or(0.0),
-            if rep.converged { 1.0 } else { 0.0 },
+            if converged { 1.0 } else { 0.0 },
         ];
         if o.contacts.len() != self.contacts.len() {
             return Err(SweepError::Task {
@@ -516,10 +574,19 @@ impl PointTask for ObservablesTask {
                 c.heat_current_w,
             ]);
         }
+        if let Some(e) = &point.electrostatics {
+            values.extend([
+                e.potential_drop_v(),
+                e.report.outer_iterations as f64,
+                e.report.potential_change_ev,
+                e.report.poisson_residual,
+            ]);
+        }
         let coherent = sol.problem.scattering.is_coherent();
         Ok(PointOutcome {
             values,
             sigma: (!coherent).then_some(sol.sigma),
+            potential_ev: point.electrostatics.map(|e| e.potential_ev),
         })
     }
 }

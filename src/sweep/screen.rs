@@ -5,7 +5,6 @@ use super::{PointOutcome, PointTask, SweepError, SweepTable};
 use crate::case::Case;
 use crate::leads::Side;
 use crate::progress::Silent;
-use crate::scattering::ScatteringSelfEnergy;
 use crate::thermo::cooler::{CoolerSettings, cooler};
 use crate::thermo::of_case::{CoefficientError, case_coefficients};
 
@@ -75,6 +74,7 @@ pub struct CoolingCurve {
 pub struct ScreenTask {
     rank: Rank,
     cooling: Option<CoolingCurve>,
+    electrostatics: bool,
 }
 
 impl ScreenTask {
@@ -82,7 +82,27 @@ impl ScreenTask {
     /// point, given exactly when `rank` is [`Rank::Cooling`] (`None`
     /// otherwise: a cooling screen needs its curve, the others have none).
     pub fn new(rank: Rank, cooling: Option<CoolingCurve>) -> Option<Self> {
-        (cooling.is_some() == (rank == Rank::Cooling)).then_some(Self { rank, cooling })
+        (cooling.is_some() == (rank == Rank::Cooling)).then_some(Self {
+            rank,
+            cooling,
+            electrostatics: false,
+        })
+    }
+
+    /// The same task for a case that solves its potential with the
+    /// transport (`[electrostatics]`): every point's coefficients or
+    /// cooler curve then solve the potential at each of their runs, and
+    /// the description (so the store fingerprint) says so.
+    pub fn with_electrostatics(self, electrostatics: bool) -> Self {
+        Self {
+            electrostatics,
+            ..self
+        }
+    }
+
+    /// Whether the points solve their potential with the transport.
+    pub fn electrostatics(&self) -> bool {
+        self.electrostatics
     }
 
     /// The ranking quantity.
@@ -147,13 +167,17 @@ impl PointTask for ScreenTask {
     fn describe(&self) -> String {
         // ZT and power factor share their columns, so they share points
         // (κph joined the columns: stores written before it are not reused).
-        match self.cooling {
-            None => "screen coefficients with phonon conductance".into(),
+        let d = match self.cooling {
+            None => "screen coefficients with phonon conductance".to_string(),
             Some(CoolingCurve {
                 hot_k,
                 cold_k,
                 points,
             }) => format!("screen cooling {hot_k:e} {cold_k:e} {points}"),
+        };
+        match self.electrostatics {
+            true => format!("{d} with the potential solved at every run"),
+            false => d,
         }
     }
 
@@ -161,7 +185,7 @@ impl PointTask for ScreenTask {
         &self,
         index: usize,
         case: &Case,
-        _warm: Option<&ScatteringSelfEnergy>,
+        _warm: crate::thermo::point::PointStart<'_>,
     ) -> Result<PointOutcome, SweepError> {
         let values = match self.cooling {
             None => match case_coefficients(case, &mut Silent) {
@@ -220,6 +244,7 @@ impl PointTask for ScreenTask {
         Ok(PointOutcome {
             values,
             sigma: None,
+            potential_ev: None,
         })
     }
 }

@@ -3,7 +3,8 @@
 //!
 //! The sweep sees its store through [`PointStore`]: one row of numbers per
 //! finished point and, for sweeps that warm-start the Born loop, the
-//! converged Σ0 of the latest points of each line. A store must make a
+//! converged Σ0 of the latest points of each line (and, when the potential
+//! is solved at every point, their potentials). A store must make a
 //! point it has accepted durable before `put_row` returns (the sweep
 //! reports a point only after that), and must never return a row it did
 //! not receive whole. The result folder's implementation, one file per
@@ -36,6 +37,14 @@ pub trait PointStore: Sync {
     fn put_sigma(&self, index: usize, sigma: &ScatteringSelfEnergy) -> Result<(), StoreError>;
     /// Forget the Σ0 of point `index` (nothing happens when it is absent).
     fn remove_sigma(&self, index: usize);
+    /// The stored electrostatic potential (eV per cell) of point `index`,
+    /// if any (sweeps that solve the potential at every point).
+    fn potential(&self, index: usize) -> Option<Vec<f64>>;
+    /// Keep the potential of point `index` (exact bits).
+    fn put_potential(&self, index: usize, potential_ev: &[f64]) -> Result<(), StoreError>;
+    /// Forget the potential of point `index` (nothing happens when it is
+    /// absent).
+    fn remove_potential(&self, index: usize);
     /// Where the points are kept, for summaries (a folder, "memory", …).
     fn location(&self) -> String;
 }
@@ -46,6 +55,7 @@ pub trait PointStore: Sync {
 pub struct MemoryStore {
     rows: Mutex<BTreeMap<usize, Vec<f64>>>,
     sigmas: Mutex<BTreeMap<usize, ScatteringSelfEnergy>>,
+    potentials: Mutex<BTreeMap<usize, Vec<f64>>>,
 }
 
 impl MemoryStore {
@@ -62,6 +72,11 @@ impl MemoryStore {
     /// Indices of the stored Σ0, ascending.
     pub fn stored_sigmas(&self) -> Vec<usize> {
         lock(&self.sigmas).keys().copied().collect()
+    }
+
+    /// Indices of the stored potentials, ascending.
+    pub fn stored_potentials(&self) -> Vec<usize> {
+        lock(&self.potentials).keys().copied().collect()
     }
 
     /// Forget the row of point `index` (as if that point had never
@@ -101,6 +116,19 @@ impl PointStore for MemoryStore {
 
     fn remove_sigma(&self, index: usize) {
         lock(&self.sigmas).remove(&index);
+    }
+
+    fn potential(&self, index: usize) -> Option<Vec<f64>> {
+        lock(&self.potentials).get(&index).cloned()
+    }
+
+    fn put_potential(&self, index: usize, potential_ev: &[f64]) -> Result<(), StoreError> {
+        lock(&self.potentials).insert(index, potential_ev.to_vec());
+        Ok(())
+    }
+
+    fn remove_potential(&self, index: usize) {
+        lock(&self.potentials).remove(&index);
     }
 
     fn location(&self) -> String {

@@ -32,8 +32,8 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::generator::{
-    BiasedCase, CurveError, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved, carnot_cop,
-    ioffe_max_cop, refine_max,
+    BiasedCase, CurveElectrostatics, CurveError, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved,
+    carnot_cop, ioffe_max_cop, refine_max,
 };
 use super::of_case::{case_coefficients, reference_point};
 use crate::case::Case;
@@ -103,8 +103,15 @@ pub struct CoolerPoint {
     pub heat_current_hot_w: f64,
     /// J_Q,cold/(I·V) where both are positive, NaN elsewhere.
     pub cop: f64,
-    /// Born loop converged.
+    /// Born loop (and with electrostatics the potential) converged.
     pub converged: bool,
+    /// With electrostatics: the computed drop φ(first cell) − φ(last
+    /// cell) (V) of the point.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub potential_drop_v: Option<f64>,
+    /// With electrostatics: outer iterations of the point's potential.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub outer_iterations: Option<usize>,
 }
 
 impl CoolerPoint {
@@ -127,6 +134,8 @@ impl CoolerPoint {
                 f64::NAN
             },
             converged: s.converged,
+            potential_drop_v: s.electrostatics.map(|e| e.0),
+            outer_iterations: s.electrostatics.map(|e| e.1),
         }
     }
 }
@@ -177,6 +186,9 @@ pub struct CoolerReport {
     pub converged: bool,
     /// Solves done.
     pub solves: usize,
+    /// With electrostatics: the potential solved at every point.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub electrostatics: Option<CurveElectrostatics>,
 }
 
 /// Refuse temperatures and point counts no cooler curve can use.
@@ -363,5 +375,6 @@ pub fn cooler(
         coefficient_grid,
         converged: dev.all_converged,
         solves: dev.solves,
+        electrostatics: dev.electrostatics,
     })
 }

@@ -30,12 +30,14 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::of_case::{CoefficientError, case_coefficients};
+use super::point::{PointStart, solve_point};
 use crate::case::{Case, CaseError, CaseKey};
+use crate::electrostatics::Electrostatics;
 use crate::leads::Side;
 use crate::observables::{Observables, observe};
 use crate::progress::{Observer, Silent};
 use crate::scattering::ScatteringSelfEnergy;
-use crate::scba::{SolveError, solve};
+use crate::scba::SolveError;
 
 /// Carnot efficiency 1 − T_c/T_h.
 pub fn carnot_efficiency(hot_k: f64, cold_k: f64) -> f64 {
@@ -139,6 +141,21 @@ pub(crate) struct Solved {
     pub generation: usize,
     /// Heat the lattice carries from the hotter lead to the colder (W).
     pub heat_leak_w: f64,
+    /// With electrostatics: the computed drop (V) and the outer
+    /// iterations of the point.
+    pub electrostatics: Option<(f64, usize)>,
+}
+
+/// The electrostatics of a generator or cooler curve: the potential of the
+/// device's charge was solved at every point of it.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct CurveElectrostatics {
+    /// True: the potential was solved at every point, none was imposed.
+    pub potential_solved_at_every_point: bool,
+    /// Outer iterations of all solves of the curve.
+    pub outer_iterations: usize,
+    /// True when the potential converged at every point.
+    pub converged: bool,
 }
 
 /// Solves a case at voltages around µ with fixed lead temperatures,
@@ -161,6 +178,11 @@ pub(crate) struct BiasedCase {
     covered_v: f64,
     pub generation: usize,
     warm: Option<ScatteringSelfEnergy>,
+    /// With electrostatics: its settings and the last point's potential.
+    es: Option<Electrostatics>,
+    potential: Option<Vec<f64>>,
+    /// With electrostatics: what the curve's solves did.
+    pub electrostatics: Option<CurveElectrostatics>,
     pub all_converged: bool,
     pub solves: usize,
     /// Heat the lattice carries from the hotter lead to the colder (W):
@@ -184,8 +206,17 @@ impl BiasedCase {
         let zero = base.with(CaseKey::BiasVoltage, 0.0)?;
         let grid = CommonGrid::choose(std::slice::from_ref(&zero))?;
         let (hot, cold) = (t.left_k.max(t.right_k), t.left_k.min(t.right_k));
-        let heat_leak_w = base.resolve()?.phonon_heat_leak(hot, cold)?;
+        let resolved = base.resolve()?;
+        let heat_leak_w = resolved.phonon_heat_leak(hot, cold)?;
+        let es = resolved.electrostatics;
         Ok(Self {
+            electrostatics: es.as_ref().map(|_| CurveElectrostatics {
+                potential_solved_at_every_point: true,
+                outer_iterations: 0,
+                converged: true,
+            }),
+            es,
+            potential: None,
             heat_leak_w,
             fixed: grid.apply(&base)?,
             base,
@@ -245,18 +276,28 @@ impl BiasedCase {
                 self.grid.describe()
             )));
         }
-        let warm = self
-            .warm
-            .as_ref()
-            .filter(|w| w.sites == r.problem.sites() && w.energies() == r.problem.grid.count);
-        let sol =
-            solve(&r.problem, &r.scba, warm, &mut Silent).map_err(|source| CurveError::Solve {
+        let start = PointStart {
+            sigma: self.warm.as_ref(),
+            potential_ev: self.potential.as_deref(),
+        };
+        let point = solve_point(&r.problem, self.es.as_ref(), &r.scba, start, &mut Silent)
+            .map_err(|source| CurveError::Solve {
                 voltage_v: v,
                 source,
             })?;
-        let converged = sol.report.converged;
+        let converged = point.converged();
         self.all_converged &= converged;
         self.solves += 1;
+        let electrostatics = point.electrostatics.map(|e| {
+            if let Some(c) = &mut self.electrostatics {
+                c.outer_iterations += e.report.outer_iterations;
+                c.converged &= e.report.converged;
+            }
+            let drop = (e.potential_drop_v(), e.report.outer_iterations);
+            self.potential = Some(e.potential_ev);
+            drop
+        });
+        let sol = point.solution;
         let obs = observe(&sol);
         if !sol.problem.scattering.is_coherent() {
             self.warm = Some(sol.sigma);
@@ -268,6 +309,7 @@ impl BiasedCase {
             converged,
             generation: self.generation,
             heat_leak_w: self.heat_leak_w,
+            electrostatics,
         })
     }
 
@@ -416,8 +458,15 @@ pub struct LoadPoint {
     pub heat_current_hot_w: f64,
     /// η = P/(heat drawn from the hot side).
     pub efficiency: f64,
-    /// Born loop converged.
+    /// Born loop (and with electrostatics the potential) converged.
     pub converged: bool,
+    /// With electrostatics: the computed drop φ(first cell) − φ(last
+    /// cell) (V) of the point.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub potential_drop_v: Option<f64>,
+    /// With electrostatics: outer iterations of the point's potential.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub outer_iterations: Option<usize>,
 }
 
 impl LoadPoint {
@@ -431,6 +480,8 @@ impl LoadPoint {
             heat_current_hot_w: q,
             efficiency: if q > 0.0 { p / q } else { f64::NAN },
             converged: s.converged,
+            potential_drop_v: s.electrostatics.map(|e| e.0),
+            outer_iterations: s.electrostatics.map(|e| e.1),
         }
     }
 }
@@ -490,6 +541,9 @@ pub struct GeneratorReport {
     pub converged: bool,
     /// Solves done (root search, curve, refinements).
     pub solves: usize,
+    /// With electrostatics: the potential solved at every point.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub electrostatics: Option<CurveElectrostatics>,
 }
 
 /// The open-circuit voltage V_oc, I(V_oc) = 0: the bracket [0, b] grows
@@ -675,7 +729,6 @@ pub fn generator(
     let zero = dev.current(zero, "short circuit", observer)?;
     let i0 = zero.obs.current_a;
     let (curve, best_p, best_e) = load_curve(&mut dev, zero, voc, settings.points, observer)?;
-    let zt = coefficients.zt;
     Ok(GeneratorReport {
         settings: *settings,
         hot_lead: Side::Left,
@@ -691,8 +744,8 @@ pub fn generator(
         voltage_at_max_efficiency_v: best_e.voltage_v,
         carnot_efficiency: carnot_efficiency(th, tc),
         curzon_ahlborn_efficiency: curzon_ahlborn_efficiency(th, tc),
-        ioffe_max_efficiency: ioffe_max_efficiency(zt, th, tc),
-        efficiency_at_max_power_linear: efficiency_at_max_power_linear(zt, th, tc),
+        ioffe_max_efficiency: ioffe_max_efficiency(coefficients.zt, th, tc),
+        efficiency_at_max_power_linear: efficiency_at_max_power_linear(coefficients.zt, th, tc),
         lattice_heat_leak_w: dev.heat_leak_w,
         phonon_conductance_source: coefficients.phonon_conductance_source,
         coefficients,
@@ -701,6 +754,7 @@ pub fn generator(
         coefficient_grid,
         converged: dev.all_converged,
         solves: dev.solves,
+        electrostatics: dev.electrostatics,
     })
 }
 

@@ -11,12 +11,18 @@
 //! With scattering inside the device, the linear-response matrix is taken by
 //! central finite differences through converged Born solutions, see
 //! [`response`].
+//!
+//! Every operating point goes through [`point::solve_point`]: with
+//! self-consistent electrostatics the potential of the device's charge is
+//! solved again at each point (each finite-difference run, each point of a
+//! generator or cooler curve), never imposed.
 
 pub mod channels;
 pub mod common_grid;
 pub mod cooler;
 pub mod generator;
 pub mod of_case;
+pub mod point;
 pub mod response;
 
 use crate::units::{ELEMENTARY_CHARGE, LORENZ_NUMBER, PLANCK, fermi_window};

@@ -6,7 +6,8 @@
 use super::Coefficients;
 use super::common_grid::CommonGrid;
 use super::response::{
-    OperatingPoint, ResponseMatrix, difference_points, linear_response, operating_point,
+    Around, OperatingPoint, ResponseMatrix, difference_points, linear_response_with,
+    operating_point,
 };
 use crate::case::{Case, CaseError, CaseKey, ResponseSplit};
 use crate::leads::Side;
@@ -91,8 +92,13 @@ pub fn case_coefficients(
     let kph = resolved.phonon_conductance_at(t)?;
     let source = resolved.phonon_conductance_source();
     // Landauer formulas hold for two terminals only: attached contacts take
-    // the finite-difference route.
-    if resolved.problem.scattering.is_coherent() && resolved.problem.contacts.is_empty() {
+    // the finite-difference route. So does a device whose potential is
+    // solved with its charge: every run solves its own potential.
+    let es = resolved.electrostatics.as_ref();
+    if resolved.problem.scattering.is_coherent()
+        && resolved.problem.contacts.is_empty()
+        && es.is_none()
+    {
         let eq = case_at(
             case,
             &operating_point(mu, t, 0.0, 0.0, ResponseSplit::Symmetric),
@@ -121,11 +127,23 @@ pub fn case_coefficients(
             .map(|r| r.problem)
             .map_err(|e| e.to_string())
     };
-    let (c, m, _) = linear_response(&build, mu, t, split, &resolved.scba, kph, observer)
+    let at = Around {
+        mu_ev: mu,
+        temperature_k: t,
+        split,
+    };
+    let (c, m, _) = linear_response_with(&build, es, at, &resolved.scba, kph, observer)
         .map_err(|e| CoefficientError::Response(e.to_string()))?;
     if !m.converged {
+        let outer = match &m.electrostatics {
+            Some(e) => format!(
+                ", outer iterations of the potential {:?} (unperturbed point first)",
+                e.outer_iterations
+            ),
+            None => String::new(),
+        };
         return Err(CoefficientError::Response(format!(
-            "a linear-response run did not converge (Born iterations {:?}); coefficients not trustworthy",
+            "a linear-response run did not converge (Born iterations {:?}{outer}); coefficients not trustworthy",
             m.iterations
         )));
     }
@@ -150,6 +168,29 @@ pub fn case_channel_seebeck(
         case,
         &operating_point(mu, t, 0.0, 0.0, ResponseSplit::Symmetric),
     )?;
-    let problem = eq.resolve()?.problem;
+    let r = eq.resolve()?;
+    // With electrostatics the channels see the potential the charge puts
+    // there at equilibrium, solved here, not the imposed one.
+    let problem = match &r.electrostatics {
+        // (A scattering device gets no channel coefficients: no solve.)
+        Some(es) if r.problem.scattering.is_coherent() => {
+            let start = super::point::PointStart::default();
+            let point = super::point::solve_point(
+                &r.problem,
+                Some(es),
+                &r.scba,
+                start,
+                &mut crate::progress::Silent,
+            )?;
+            if !point.converged() {
+                return Err(CoefficientError::Response(
+                    "the equilibrium potential for the channel coefficients did not converge"
+                        .into(),
+                ));
+            }
+            point.solution.problem
+        }
+        _ => r.problem,
+    };
     Ok(Some(super::channels::channel_seebeck(&problem, channels)?))
 }

@@ -17,11 +17,14 @@
 //! runs (V = ±δV, ΔT = 0 and ΔT = ±δT, V = 0) is a full converged solve.
 
 use super::Coefficients;
+use super::point::{PointSolution, PointStart, solve_point};
 use crate::case::ResponseSplit;
+use crate::electrostatics::Electrostatics;
 use crate::grid::EnergyGrid;
 use crate::model::Problem;
 use crate::observables::observe;
-use crate::scba::{Observer, ScbaParams, ScbaReport, SolveError, solve};
+use crate::scattering::ScatteringSelfEnergy;
+use crate::scba::{Observer, ScbaParams, ScbaReport, SolveError};
 use crate::units::thermal_energy_ev;
 
 /// The operating point of one finite-difference run.
@@ -70,6 +73,9 @@ pub struct ResponseMatrix {
     pub grid: EnergyGrid,
     /// The phonon energies, snapped to that grid, all four runs shared (eV).
     pub phonon_energies_ev: Vec<f64>,
+    /// With electrostatics: the potential solved at every run.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub electrostatics: Option<ResponseElectrostatics>,
 }
 
 /// Operating point for (V, ΔT) around (µ, T) with a split.
@@ -228,43 +234,106 @@ pub fn linear_response(
     phonon_conductance_w_per_k: f64,
     observer: &mut dyn Observer,
 ) -> Result<(Coefficients, ResponseMatrix, Vec<ScbaReport>), ResponseError> {
+    let at = Around {
+        mu_ev,
+        temperature_k,
+        split,
+    };
+    linear_response_with(
+        build,
+        None,
+        at,
+        params,
+        phonon_conductance_w_per_k,
+        observer,
+    )
+}
+
+/// The reference point of a linear response and how it is perturbed.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Around {
+    /// Reference Fermi level µ (eV).
+    pub mu_ev: f64,
+    /// Reference temperature T (K).
+    pub temperature_k: f64,
+    /// How the perturbation is split between the leads.
+    pub split: ResponseSplit,
+}
+
+/// The electrostatics of a linear response: every run solved its own
+/// potential, warm-started from that of the unperturbed point.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct ResponseElectrostatics {
+    /// True: the potential was solved at every run, none was imposed.
+    pub potential_solved_at_every_run: bool,
+    /// Outer iterations of the unperturbed point, then of the four runs.
+    pub outer_iterations: Vec<usize>,
+    /// Computed drop φ(first cell) − φ(last cell) (V) of the unperturbed
+    /// point, then of the four runs.
+    pub potential_drop_v: Vec<f64>,
+    /// The outer tolerance the runs used (eV): the case's, tightened to
+    /// 1e-3 δV so the potential's error moves G by well under 1e-6.
+    pub tolerance_ev: f64,
+    /// True when the potential converged in all five solves.
+    pub converged: bool,
+}
+
+/// [`linear_response`] with the electrostatics of the device's own charge:
+/// with `electrostatics`, the unperturbed point is solved first and every
+/// perturbed run solves its own potential, starting from that point's
+/// potential and Σ0; the outer tolerance is tightened to 1e-3 δV (an error
+/// ε of the potential moves the currents by about ε/kT of themselves, and
+/// 1e-3 δV/kT = 1e-6). Without it, exactly [`linear_response`].
+pub fn linear_response_with(
+    build: &dyn Fn(&OperatingPoint) -> Result<Problem, String>,
+    electrostatics: Option<&Electrostatics>,
+    at: Around,
+    params: &ScbaParams,
+    phonon_conductance_w_per_k: f64,
+    observer: &mut dyn Observer,
+) -> Result<(Coefficients, ResponseMatrix, Vec<ScbaReport>), ResponseError> {
+    let Around {
+        mu_ev,
+        temperature_k,
+        split,
+    } = at;
     let (dv, dt) = difference_steps(temperature_k);
     let points = difference_points(mu_ev, temperature_k, split);
     let mut tight = *params;
     tight.tolerance = params.tolerance.min(1e-12);
     tight.current_floor_a = params.current_floor_a.min(1e-24);
     tight.max_iterations = params.max_iterations.max(100);
-    let mut warm = None;
-    let mut reports = Vec::new();
-    let mut first: Option<Problem> = None;
-    let mut run = |op: &OperatingPoint| -> Result<(f64, f64), ResponseError> {
-        let problem = build(op).map_err(ResponseError::Build)?;
-        match &first {
-            None => first = Some(problem.clone()),
-            Some(f) => same_grid(f, &problem, reports.len() + 1)?,
-        }
-        let sol = solve(&problem, &tight, warm.as_ref(), observer)?;
-        let o = observe(&sol);
-        let jq = match split {
-            ResponseSplit::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
-            ResponseSplit::LeftOnly => o.heat_current_left_w,
-        };
-        if !problem.scattering.is_coherent() {
-            warm = Some(sol.sigma.clone());
-        }
-        reports.push(sol.report);
-        Ok((o.current_a, jq))
+    let es = electrostatics.map(|e| Electrostatics {
+        tolerance_ev: e.tolerance_ev.min(1e-3 * dv),
+        ..e.clone()
+    });
+    let mut runs = Runs {
+        build,
+        es: es.as_ref(),
+        params: &tight,
+        split,
+        first: None,
+        warm: None,
+        base: None,
+        reports: Vec::new(),
+        outer: Vec::new(),
     };
-    let (ip, qp) = run(&points[0])?;
-    let (im, qm) = run(&points[1])?;
-    let (it_, qt) = run(&points[2])?;
-    let (itm, qtm) = run(&points[3])?;
-    let shared = first.expect("four runs were built");
+    if es.is_some() {
+        let base = operating_point(mu_ev, temperature_k, 0.0, 0.0, split);
+        runs.base(&base, observer)?;
+    }
+    let (ip, qp) = runs.run(&points[0], observer)?;
+    let (im, qm) = runs.run(&points[1], observer)?;
+    let (it_, qt) = runs.run(&points[2], observer)?;
+    let (itm, qtm) = runs.run(&points[3], observer)?;
+    let shared = runs.first.take().expect("four runs were built");
     let m11 = (ip - im) / (2.0 * dv);
     let m21 = (qp - qm) / (2.0 * dv);
     let m12 = temperature_k * (it_ - itm) / (2.0 * dt);
     let m22 = temperature_k * (qt - qtm) / (2.0 * dt);
-    let onsager = (m12 - m21).abs() / m12.abs();
+    let electrostatics = es.as_ref().map(|e| runs.electrostatics(e.tolerance_ev));
+    let es_converged = electrostatics.as_ref().is_none_or(|e| e.converged);
+    let reports = runs.reports;
     let matrix = ResponseMatrix {
         m11,
         m12,
@@ -273,8 +342,8 @@ pub fn linear_response(
         delta_v: dv,
         delta_t_k: dt,
         split,
-        onsager_residual: onsager,
-        converged: reports.iter().all(|r| r.converged),
+        onsager_residual: (m12 - m21).abs() / m12.abs(),
+        converged: reports.iter().all(|r| r.converged) && es_converged,
         iterations: reports.iter().map(|r| r.iterations).collect(),
         grid: shared.grid.clone(),
         phonon_energies_ev: shared
@@ -283,7 +352,106 @@ pub fn linear_response(
             .iter()
             .map(|m| m.energy_ev)
             .collect(),
+        electrostatics,
     };
     let c = coefficients_of(&matrix, mu_ev, temperature_k, phonon_conductance_w_per_k);
     Ok((c, matrix, reports))
+}
+
+/// The runs of one linear response: the problems they were built on, the
+/// starts they hand on and what they report.
+struct Runs<'a> {
+    build: &'a dyn Fn(&OperatingPoint) -> Result<Problem, String>,
+    es: Option<&'a Electrostatics>,
+    params: &'a ScbaParams,
+    split: ResponseSplit,
+    /// The first problem built: every later one must share its grid.
+    first: Option<Problem>,
+    /// Without electrostatics: the Σ0 of the previous run.
+    warm: Option<ScatteringSelfEnergy>,
+    /// With electrostatics: the unperturbed point, every run's start.
+    base: Option<PointSolution>,
+    /// Born records of the four runs.
+    reports: Vec<ScbaReport>,
+    /// With electrostatics: outer iterations, computed drop and
+    /// convergence of the unperturbed point and of each run.
+    outer: Vec<(usize, f64, bool)>,
+}
+
+impl Runs<'_> {
+    /// Build the problem at `op`; it must share the first one's grid.
+    fn problem(&mut self, op: &OperatingPoint) -> Result<Problem, ResponseError> {
+        let problem = (self.build)(op).map_err(ResponseError::Build)?;
+        match &self.first {
+            None => self.first = Some(problem.clone()),
+            Some(f) => same_grid(f, &problem, self.reports.len() + 1)?,
+        }
+        Ok(problem)
+    }
+
+    /// Solve `op` from `start`, noting the electrostatics record.
+    fn solve(
+        &mut self,
+        op: &OperatingPoint,
+        start: PointStart<'_>,
+        observer: &mut dyn Observer,
+    ) -> Result<PointSolution, ResponseError> {
+        let problem = self.problem(op)?;
+        let point = solve_point(&problem, self.es, self.params, start, observer)?;
+        if let Some(e) = &point.electrostatics {
+            let r = &e.report;
+            self.outer
+                .push((r.outer_iterations, e.potential_drop_v(), r.converged));
+        }
+        Ok(point)
+    }
+
+    /// Solve the unperturbed point, the start of every run.
+    fn base(
+        &mut self,
+        op: &OperatingPoint,
+        observer: &mut dyn Observer,
+    ) -> Result<(), ResponseError> {
+        let point = self.solve(op, PointStart::default(), observer)?;
+        self.base = Some(point);
+        Ok(())
+    }
+
+    /// One run: its current and the heat current conjugate to the split.
+    fn run(
+        &mut self,
+        op: &OperatingPoint,
+        observer: &mut dyn Observer,
+    ) -> Result<(f64, f64), ResponseError> {
+        let base = self.base.take();
+        let warm = self.warm.take();
+        let start = match &base {
+            Some(b) => b.as_start(),
+            None => PointStart::sigma(warm.as_ref()),
+        };
+        let point = self.solve(op, start, observer);
+        self.base = base;
+        let sol = point?.solution;
+        let o = observe(&sol);
+        let jq = match self.split {
+            ResponseSplit::Symmetric => 0.5 * (o.heat_current_left_w - o.heat_current_right_w),
+            ResponseSplit::LeftOnly => o.heat_current_left_w,
+        };
+        if !sol.problem.scattering.is_coherent() {
+            self.warm = Some(sol.sigma.clone());
+        }
+        self.reports.push(sol.report);
+        Ok((o.current_a, jq))
+    }
+
+    /// The electrostatics record of the five solves.
+    fn electrostatics(&self, tolerance_ev: f64) -> ResponseElectrostatics {
+        ResponseElectrostatics {
+            potential_solved_at_every_run: true,
+            outer_iterations: self.outer.iter().map(|o| o.0).collect(),
+            potential_drop_v: self.outer.iter().map(|o| o.1).collect(),
+            tolerance_ev,
+            converged: self.outer.iter().all(|o| o.2),
+        }
+    }
 }

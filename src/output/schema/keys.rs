@@ -671,7 +671,7 @@ const SELF_HEATING: [Key; 10] = [
     ),
 ];
 
-const GENERATOR: [Key; 23] = [
+const GENERATOR: [Key; 26] = [
     ("settings.hot_k", "K", "temperature of the hot (left) lead"),
     (
         "settings.cold_k",
@@ -751,9 +751,31 @@ const GENERATOR: [Key; 23] = [
     ),
     ("converged", "-", "whether every Born loop converged"),
     ("solves", "1", "operating points solved"),
+    CURVE_ES[0],
+    CURVE_ES[1],
+    CURVE_ES[2],
 ];
 
-const COOLER: [Key; 20] = [
+/// The `electrostatics` object of a generator or cooler summary.
+const CURVE_ES: [Key; 3] = [
+    (
+        "electrostatics.potential_solved_at_every_point",
+        "-",
+        "with [electrostatics]: true, the potential of the device's charge was solved at every point of the curve (none imposed); each curve[] row gives its potential_drop_v and outer_iterations",
+    ),
+    (
+        "electrostatics.outer_iterations",
+        "1",
+        "outer iterations of the potential in all solves of the curve",
+    ),
+    (
+        "electrostatics.converged",
+        "-",
+        "whether the potential converged at every point",
+    ),
+];
+
+const COOLER: [Key; 23] = [
     ("settings.hot_k", "K", "temperature of the hot lead"),
     ("settings.cold_k", "K", "temperature of the cold lead"),
     ("settings.points", "1", "bias voltages on the curve"),
@@ -814,6 +836,9 @@ const COOLER: [Key; 20] = [
     ),
     ("converged", "-", "whether every Born loop converged"),
     ("solves", "1", "operating points solved"),
+    CURVE_ES[0],
+    CURVE_ES[1],
+    CURVE_ES[2],
 ];
 
 const ELECTROSTATICS: [Key; 12] = [
@@ -1146,7 +1171,7 @@ pub fn summary_docs() -> Vec<FileDoc> {
         &[(
             "response",
             "-",
-            "how the coefficients were obtained: {method} for transmission moments, else the finite-difference runs (converged, delta_t_k in K, delta_v in V, grid, iterations, the response matrix m11 = ∂I/∂V in S, m12 = T ∂I/∂ΔT in A, m21 = ∂J_Q/∂V in A (W/V), m22 = T ∂J_Q/∂ΔT in W, onsager_residual |m12 − m21|/|m12|, phonon_energies_ev in eV, split)",
+            "how the coefficients were obtained: {method} for transmission moments, else the finite-difference runs (converged, delta_t_k in K, delta_v in V, grid, iterations, the response matrix m11 = ∂I/∂V in S, m12 = T ∂I/∂ΔT in A, m21 = ∂J_Q/∂V in A (W/V), m22 = T ∂J_Q/∂ΔT in W, onsager_residual |m12 − m21|/|m12|, phonon_energies_ev in eV, split; with [electrostatics] also electrostatics: potential_solved_at_every_run, outer_iterations and potential_drop_v in V of the unperturbed point then the four runs, tolerance_ev, converged)",
         )],
     );
     keys(&mut coefficients, "energy_grid.", &COMMON_GRID);

@@ -130,9 +130,9 @@ fn electrostatics_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
             meaning: "electrons of the cell (spin included) as the Poisson equation counts \
                       them: G^n integrated over energy with weights that follow the \
                       (E − Ec)^(−1/2) band edge of the cell between grid points. Its sum \
-                      neutralises the doping (Gauss's law) where electron_density_per_nm × \
-                      spacing, summed point by point on the grid, is off by the sampling error \
-                      of the band edge",
+                      neutralises the doping (Gauss's law), where G^n summed point by point \
+                      on the grid is off by the sampling error of the band edge (about 1 %); \
+                      electron_density_per_nm is this count divided by the spacing",
             only_when: Some((WHEN, present)),
             value: |p, i| {
                 Cell::Num(
@@ -193,8 +193,18 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
         col(
             "electron_density_per_nm",
             "1/nm",
-            "electrons per nm, spin included",
-            |p, i| Cell::Num(p.o.sites.electron_density_per_nm[i]),
+            "electrons per nm, spin included: G^n summed over the energy grid; with \
+             [electrostatics] the count the Poisson equation sees, electrons_poisson / spacing \
+             (band-edge-aware energy weights), so both columns agree",
+            |p, i| {
+                Cell::Num(match p.electrostatics {
+                    Some(e) => {
+                        e.electrons_per_cell.get(i).copied().unwrap_or(f64::NAN)
+                            / p.sol.problem.device.spacing_nm
+                    }
+                    None => p.o.sites.electron_density_per_nm[i],
+                })
+            },
         ),
         col(
             "voltage_drop_v",
@@ -560,9 +570,27 @@ pub fn generator() -> Table<GeneratorReport> {
                 "whether the point's Born loop converged",
                 |r, i| Cell::Bool(r.curve[i].converged),
             ),
+            Column {
+                name: "potential_drop_v",
+                unit: "V",
+                meaning: "computed drop φ(first cell) − φ(last cell) of the potential solved at \
+                          the point ([electrostatics]: the potential is solved at every point)",
+                only_when: Some((CURVE_ES, |r: &G| r.electrostatics.is_some())),
+                value: |r, i| Cell::Num(r.curve[i].potential_drop_v.unwrap_or(f64::NAN)),
+            },
+            Column {
+                name: "outer_iterations",
+                unit: "1",
+                meaning: "outer iterations of the potential at the point",
+                only_when: Some((CURVE_ES, |r: &G| r.electrostatics.is_some())),
+                value: |r, i| Cell::Int(r.curve[i].outer_iterations.unwrap_or(0) as i64),
+            },
         ],
     }
 }
+
+/// When the curve tables carry the columns of the potential.
+const CURVE_ES: &str = "with [electrostatics]";
 
 /// cooler.csv: one row per bias voltage.
 pub fn cooler() -> Table<CoolerReport> {
@@ -616,6 +644,21 @@ pub fn cooler() -> Table<CoolerReport> {
                 "whether the point's Born loop converged",
                 |r, i| Cell::Bool(r.curve[i].converged),
             ),
+            Column {
+                name: "potential_drop_v",
+                unit: "V",
+                meaning: "computed drop φ(first cell) − φ(last cell) of the potential solved at \
+                          the point ([electrostatics]: the potential is solved at every point)",
+                only_when: Some((CURVE_ES, |r: &CoolerReport| r.electrostatics.is_some())),
+                value: |r, i| Cell::Num(r.curve[i].potential_drop_v.unwrap_or(f64::NAN)),
+            },
+            Column {
+                name: "outer_iterations",
+                unit: "1",
+                meaning: "outer iterations of the potential at the point",
+                only_when: Some((CURVE_ES, |r: &CoolerReport| r.electrostatics.is_some())),
+                value: |r, i| Cell::Int(r.curve[i].outer_iterations.unwrap_or(0) as i64),
+            },
         ],
     }
 }
@@ -625,7 +668,7 @@ pub fn cooler() -> Table<CoolerReport> {
 pub type GridColumn = (&'static str, &'static str, CellKind, &'static str);
 
 /// Every result column a grid table can hold, after its axis columns.
-pub const GRID_COLUMNS: [GridColumn; 32] = [
+pub const GRID_COLUMNS: [GridColumn; 36] = [
     (
         "rank",
         "1",
@@ -729,6 +772,30 @@ pub const GRID_COLUMNS: [GridColumn; 32] = [
         "residual of the last Born iteration (sweep)",
     ),
     (
+        "potential_drop_v",
+        "V",
+        CellKind::Num,
+        "computed drop φ(first cell) − φ(last cell) of the potential solved at the point (sweep, with [electrostatics])",
+    ),
+    (
+        "outer_iterations",
+        "1",
+        CellKind::Int,
+        "outer iterations of the potential at the point (sweep, with [electrostatics])",
+    ),
+    (
+        "potential_change_ev",
+        "eV",
+        CellKind::Num,
+        "last Newton update of the potential at the point (sweep, with [electrostatics])",
+    ),
+    (
+        "poisson_residual",
+        "1",
+        CellKind::Num,
+        "largest charge imbalance of a cell, electrons (sweep, with [electrostatics])",
+    ),
+    (
         "fermi_level_ev",
         "eV",
         CellKind::Num,
@@ -805,7 +872,7 @@ pub const GRID_COLUMNS: [GridColumn; 32] = [
         "converged",
         "-",
         CellKind::Bool,
-        "whether the point's Born loops converged",
+        "whether the point's Born loops (and with [electrostatics] its potential) converged",
     ),
     (
         "<axis key>",
