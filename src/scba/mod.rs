@@ -39,16 +39,20 @@
 //! m, the peak of a Born solve is
 //!
 //! ```text
-//! bytes ≈ E·S·(72 + 8·P·A + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+//! bytes ≈ E·S·(72 + 16·h) + E_m·S·P·A·q + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
 //! ```
 //!
 //! - 72 = 3 × 24: the input Σ0, its image F(Σ0) (Σ^r_0 complex + Σ^in_0
 //!   real) and the local G^r, G^n of the pass;
-//! - A = 2m + 3 vectors of P numbers per site for Anderson mixing (last
-//!   input and residual, m residual differences and m update directions,
-//!   one residual buffer); P = 3 (Re Σ^r, Im Σ^r, Σ^in) with dephasing or
-//!   the Hermitian part, P = 2 otherwise, when Re Σ^r is zero and not
-//!   mixed; A = 0 for linear mixing, which keeps no history;
+//! - A = 2m + 2 vectors of P numbers per site and mixed energy for
+//!   Anderson mixing (m residual differences, m update directions, the
+//!   last residual and the last step), q = 4 bytes per number for the
+//!   compact history (f32, the default) and 8 for the full one; P = 3
+//!   (Re Σ^r, Im Σ^r, Σ^in) with dephasing or the Hermitian part, P = 2
+//!   otherwise, when Re Σ^r is zero and not mixed; A = 0 for linear
+//!   mixing, which keeps no history;
+//! - E_m: the energies mixed, E or only the red half (see
+//!   [`red_rows_only`]);
 //! - 16·h: the phonon broadening and its Hilbert transform while Σ0 is
 //!   rebuilt, when the Hermitian part (h = 1) is on;
 //! - 8·E·(N − 1): the bond flows of the pass;
@@ -59,9 +63,9 @@
 //! With coupling matrices (Σ0 on b × b blocks, see
 //! [`crate::scattering::GreenBlocks`]) Σ0, its image and the kept
 //! diagonal blocks of G^r and G^n take N·b² numbers per energy instead of
-//! S: bytes ≈ E·N·b²·(48 + 32 + 24·A + 16·h) + 24·E·S + the same fixed
-//! terms, A counted with P = 3 (the real part of the off-diagonal Σ^r_0 is
-//! always mixed).
+//! S: bytes ≈ E·N·b²·(48 + 32 + 16·h) + E_m·N·b²·3·A·q + 24·E·S + the
+//! same fixed terms, with P = 3 (the real part of the off-diagonal Σ^r_0
+//! is always mixed).
 //!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
@@ -72,7 +76,7 @@ mod undetermined;
 
 pub use contacts::ContactFlows;
 pub use mixing::Mixer;
-pub use params::{EnergyOrder, Mixing, ScbaParams};
+pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
 
 use crate::C64;
@@ -1017,6 +1021,31 @@ pub fn red_black_colouring(problem: &Problem, order: EnergyOrder) -> Option<(usi
     (two_colours || order == EnergyOrder::RedBlack).then_some((w, two_colours))
 }
 
+/// The band width w when the Anderson mixer needs only the red energy
+/// rows (⌊k/w⌋ even): in red-black order with phonons that two-colour the
+/// grid and neither dephasing nor the Hermitian part, every black row of
+/// Σ0 is rebuilt from red Green's functions before it is used, so its
+/// residual is zero and a mixed value there would be overwritten. `None`:
+/// every row is mixed.
+pub fn red_rows_only(problem: &Problem, order: EnergyOrder) -> Option<usize> {
+    let scat = &problem.scattering;
+    let hermitian = scat.hermitian_part && !scat.phonons.is_empty();
+    match red_black_colouring(problem, order) {
+        Some((w, true)) if !scat.has_dephasing() && !hermitian => Some(w),
+        _ => None,
+    }
+}
+
+/// How many energy rows the Anderson mixer keeps a history for (see
+/// [`red_rows_only`]).
+pub fn mixed_energy_rows(problem: &Problem, order: EnergyOrder) -> usize {
+    let ne = problem.grid.count;
+    match red_rows_only(problem, order) {
+        Some(w) => (0..ne).filter(|k| (k / w).is_multiple_of(2)).count(),
+        None => ne,
+    }
+}
+
 /// Solve one operating point: a single pass for a coherent device, the Born
 /// loop otherwise. `warm` is a Σ0 from a neighbouring operating point.
 pub fn solve(
@@ -1168,6 +1197,14 @@ impl<'a> BornLoop<'a> {
         }
     }
 
+    /// A fresh mixer for this loop (only the red rows when the black ones
+    /// are rebuilt from them before use, see [`red_rows_only`]).
+    fn mixer(&self) -> Mixer {
+        let (problem, params) = (self.problem, self.params);
+        let red_only = red_rows_only(problem, params.energy_order);
+        Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only)
+    }
+
     /// Iterate from Σ0 = `x` until converged or out of budget.
     fn run(
         mut self,
@@ -1175,7 +1212,7 @@ impl<'a> BornLoop<'a> {
         observer: &mut dyn Observer,
     ) -> Result<Solution, SolveError> {
         let (problem, params) = (self.problem, self.params);
-        let mut mixer = Mixer::with_real_part(params.mixing, self.mix_real_part);
+        let mut mixer = self.mixer();
         let mut previous: Option<(f64, f64)> = None;
         // The Green's functions of the pass and the image F(Σ0) are rebuilt in
         // place every iteration. `black_ready`: the black rows of `p` hold G
