@@ -56,7 +56,8 @@ fn compact_and_full_history_reach_the_same_answer() {
 /// energies is mixed, with P = 2.
 #[test]
 fn the_estimate_drops_by_half_the_history() {
-    let compact = demo();
+    let mut compact = demo();
+    compact.scba = compact.scba.with_history(MixerHistory::Compact);
     let mut full = compact.clone();
     full.scba = full.scba.with_history(MixerHistory::Full);
     let (hc, hf) = (compact.mixer_history_bytes(), full.mixer_history_bytes());

@@ -154,7 +154,7 @@ impl Layout<'_> {
 }
 
 impl Mixer {
-    /// A fresh mixer (all energies, compact history).
+    /// A fresh mixer (all energies, the default history).
     pub fn new(kind: Mixing) -> Self {
         Self::with_real_part(kind, true)
     }

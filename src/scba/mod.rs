@@ -177,11 +177,6 @@ fn ensure_finite(
     problem: &Problem,
     iteration: usize,
 ) -> Result<(), SolveError> {
-    let ns = sigma.sites.max(1);
-    let per_cell = match sigma.blocks {
-        Some(b) => b * b,
-        None => problem.device.orbitals,
-    };
     let bad_r = sigma
         .retarded
         .iter()
@@ -193,12 +188,68 @@ fn ensure_finite(
         (Some(r), _) => (r, "Σ^r_0"),
         (None, Some(i)) => (i, "Σ^in_0"),
     };
-    Err(SolveError::SelfEnergyNotFinite {
+    Err(self_energy_fault(problem, sigma, iteration, idx, part))
+}
+
+/// The error for a non-finite Σ0 `part` at flat index `idx` of `sigma`'s
+/// layout.
+fn self_energy_fault(
+    problem: &Problem,
+    sigma: &ScatteringSelfEnergy,
+    iteration: usize,
+    idx: usize,
+    part: &'static str,
+) -> SolveError {
+    let ns = sigma.sites.max(1);
+    let per_cell = match sigma.blocks {
+        Some(b) => b * b,
+        None => problem.device.orbitals,
+    };
+    SolveError::SelfEnergyNotFinite {
         iteration,
         energy_ev: problem.grid.energy(idx / ns),
         cell: (idx % ns) / per_cell.max(1),
         part,
-    })
+    }
+}
+
+/// The first non-finite value of energy row k of Σ0 (rows `r` of Σ^r_0,
+/// `i` of Σ^in_0), as [`ensure_finite`] picks it: (flat index, part).
+fn first_bad(k: usize, r: &[C64], i: &[f64]) -> Option<(usize, &'static str)> {
+    let bad_r = r
+        .iter()
+        .position(|z| !(z.re.is_finite() && z.im.is_finite()));
+    let bad_in = i.iter().position(|v| !v.is_finite());
+    let (pos, part) = match (bad_r, bad_in) {
+        (None, None) => return None,
+        (Some(r), Some(i)) if i < r => (i, "Σ^in_0"),
+        (Some(r), _) => (r, "Σ^r_0"),
+        (None, Some(i)) => (i, "Σ^in_0"),
+    };
+    Some((k * r.len() + pos, part))
+}
+
+/// The sums of squares of [`relative_change`] over energy row k, from Σ0
+/// `a` to the row (`r`, `i`) of its image (diagonal layout).
+fn change_sums(a: &ScatteringSelfEnergy, k: usize, r: &[C64], i: &[f64]) -> [f64; 6] {
+    let ns = r.len();
+    let (ar, ai) = (
+        &a.retarded[k * ns..(k + 1) * ns],
+        &a.inscatter[k * ns..(k + 1) * ns],
+    );
+    let mut acc = [0.0; 6];
+    for s in 0..ns {
+        let (bi, aiv) = (i[s], ai[s]);
+        let (bo, ao) = (-2.0 * r[s].im - bi, -2.0 * ar[s].im - aiv);
+        let (br, arv) = (r[s].re, ar[s].re);
+        acc[0] += (bi - aiv) * (bi - aiv);
+        acc[1] += (bo - ao) * (bo - ao);
+        acc[2] += (br - arv) * (br - arv);
+        acc[3] += bi * bi;
+        acc[4] += bo * bo;
+        acc[5] += br * br;
+    }
+    acc
 }
 
 /// Lead self-energies on every grid energy (they do not change during the
@@ -981,6 +1032,12 @@ pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f6
             *t += v;
         }
     }
+    change_ratio(tot)
+}
+
+/// The relative change from the sums of squares (ΔΣ^in, ΔΣ^out, ΔRe Σ^r,
+/// Σ^in, Σ^out, Re Σ^r) of [`relative_change`].
+fn change_ratio(tot: [f64; 6]) -> f64 {
     let [d_in, d_out, d_re, s_in, s_out, s_re] = tot.map(f64::sqrt);
     let scale = s_in + s_out + s_re;
     let change = d_in + d_out + d_re;
@@ -1233,7 +1290,7 @@ impl<'a> BornLoop<'a> {
                 transmission: problem.scattering.is_coherent(),
             };
             let order = self.colour.filter(|_| black_ready);
-            sweep(
+            let residual = sweep(
                 &maps,
                 order,
                 &mut x,
@@ -1243,7 +1300,6 @@ impl<'a> BornLoop<'a> {
             )?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
-            let residual = relative_change(&x, &fx);
             let iteration = self.report.iterations + 1;
             if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
                 return Err(SolveError::Diverged {
@@ -1325,6 +1381,20 @@ struct BornMaps<'a> {
 }
 
 impl BornMaps<'_> {
+    /// Rebuild the rows k of Σ0 with `rows(k)` true into `out`, handing
+    /// each to `each` (see [`crate::scattering::Scattering::self_energy_rows_into`]).
+    fn rebuild_rows<R: Send>(
+        &self,
+        pass: &Pass,
+        out: &mut ScatteringSelfEnergy,
+        rows: impl Fn(usize) -> bool + Sync,
+        each: impl Fn(usize, &[C64], &[f64]) -> R + Sync,
+    ) -> Vec<R> {
+        let ne = self.problem.grid.count;
+        let scat = &self.problem.scattering;
+        scat.self_energy_rows_into(&pass.green, ne, self.lattice, out, rows, each)
+    }
+
     /// Rebuild Σ0 from the local Green's functions of `pass` into `out`
     /// (from the diagonal blocks when the scattering has coupling
     /// matrices).
@@ -1341,10 +1411,17 @@ impl BornMaps<'_> {
 }
 
 /// One Born iteration's passes: the Green's functions `p` of Σ0 = `x`
-/// and the image F(x) in `fx`. With `red_black = Some(w)` the red energies
-/// are solved first and the black rows of `x` are replaced by Σ0 rebuilt
-/// from every G at hand (the black rows of `p` are taken from the previous
-/// sweep) before the black energies are solved.
+/// and the image F(x) in `fx`; returns the relative change from `x` to
+/// F(x) (see [`relative_change`]). With `red_black = Some(w)` the red
+/// energies are solved first and the black rows of `x` are replaced by Σ0
+/// rebuilt from every G at hand (the black rows of `p` are taken from the
+/// previous sweep) before the black energies are solved.
+///
+/// When each row of Σ0 needs G only at E and E ± ħω (no Hermitian part,
+/// diagonal layout), the black rows are rebuilt straight into `x`, and the
+/// finiteness check and the relative change are taken on each rebuilt row
+/// while it is in cache: no separate passes over Σ0 and F(Σ0), the same
+/// numbers (the change summed row by row).
 fn sweep(
     maps: &BornMaps<'_>,
     red_black: Option<usize>,
@@ -1352,24 +1429,52 @@ fn sweep(
     p: &mut Pass,
     fx: &mut ScatteringSelfEnergy,
     iteration: usize,
-) -> Result<(), SolveError> {
+) -> Result<f64, SolveError> {
     let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
     let tr = maps.transmission;
+    let local = p.blocks.is_none() && problem.scattering.row_local();
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
             pass_rows(problem, leads, x, levels, tr, red, p)?;
-            maps.rebuild(p, fx);
-            ensure_finite(fx, problem, iteration)?;
-            copy_rows(fx, x, |k| !red(k));
+            if local {
+                let bad = maps.rebuild_rows(p, x, |k| !red(k), first_bad);
+                if let Some((idx, part)) = bad.into_iter().flatten().next() {
+                    // Report it where a rebuild of every row shows it
+                    // first (the lowest energy), as the other route does.
+                    maps.rebuild(p, fx);
+                    ensure_finite(fx, problem, iteration)?;
+                    return Err(self_energy_fault(problem, x, iteration, idx, part));
+                }
+            } else {
+                maps.rebuild(p, fx);
+                ensure_finite(fx, problem, iteration)?;
+                copy_rows(fx, x, |k| !red(k));
+            }
             pass_rows(problem, leads, x, levels, tr, |k| !red(k), p)?;
         }
         None => pass_rows(problem, leads, x, levels, tr, |_| true, p)?,
     }
+    if local {
+        let a: &ScatteringSelfEnergy = x;
+        let each = |k: usize, r: &[C64], i: &[f64]| (first_bad(k, r, i), change_sums(a, k, r, i));
+        let rows = maps.rebuild_rows(p, fx, |_| true, each);
+        if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
+            return Err(self_energy_fault(problem, fx, iteration, idx, part));
+        }
+        let mut tot = [0.0; 6];
+        for (_, sums) in &rows {
+            for (t, v) in tot.iter_mut().zip(sums) {
+                *t += v;
+            }
+        }
+        return Ok(change_ratio(tot));
+    }
     maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
     // values, the mixer); stop here and say where it appeared.
-    ensure_finite(fx, problem, iteration)
+    ensure_finite(fx, problem, iteration)?;
+    Ok(relative_change(x, fx))
 }
 
 /// The Born map as the loop applies it in `order`, at Σ0 = `sigma`: the Σ0

@@ -46,9 +46,11 @@ impl Default for Mixing {
 #[serde(rename_all = "lowercase")]
 pub enum MixerHistory {
     /// In f32: half the memory and half the bytes streamed per iteration.
-    #[default]
     Compact,
-    /// In f64.
+    /// In f64 (the default: on a device whose occupation is undetermined
+    /// in places, the compact history let the loop wander longer before
+    /// the watch stopped it).
+    #[default]
     Full,
 }
 
