@@ -428,7 +428,7 @@ impl Scattering {
     /// E ± ħω (diagonal layout, no Hermitian part): then
     /// [`Scattering::self_energy_rows_into`] may build any set of rows.
     pub fn row_local(&self) -> bool {
-        !self.uses_blocks() && !(self.hermitian_part && !self.phonons.is_empty())
+        !self.uses_blocks() && (!self.hermitian_part || self.phonons.is_empty())
     }
 
     /// [`Scattering::self_energy_at_into`] on the energy rows k with
