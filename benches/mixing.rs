@@ -9,7 +9,7 @@
 //! Run: `cargo bench --bench mixing`
 
 use qheat::case::{Case, CaseKey};
-use qheat::scba::{self, EnergyOrder, Mixing, Silent};
+use qheat::scba::{self, EnergyOrder, MixerHistory, Mixing, Silent};
 use std::path::Path;
 
 fn main() {
@@ -67,6 +67,19 @@ fn table(case: &Case) {
         }
     }
     println!();
+    // The compact (f32, default) and full (f64) Anderson history.
+    for order in [EnergyOrder::Simultaneous, EnergyOrder::RedBlack] {
+        for h in [MixerHistory::Compact, MixerHistory::Full] {
+            let p = base.with_energy_order(order).with_history(h);
+            let s = scba::solve(&r.problem, &p, None, &mut Silent).unwrap();
+            println!(
+                "history {h:?}, {order:?} order: {} iterations, converged {}, Σ0 vs case settings {:.3e}",
+                s.report.iterations,
+                s.report.converged,
+                scba::relative_change(&s.sigma, &reference.sigma)
+            );
+        }
+    }
     for (order, f, n) in &best_linear {
         println!("best linear factor, {order:?} order: {f:.1} with {n} iterations");
     }

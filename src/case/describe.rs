@@ -315,7 +315,23 @@ impl Resolved {
             }
         );
         let mem = self.memory_estimate_bytes() as f64;
-        let _ = writeln!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));
+        let _ = write!(s, "memory      about {:.1} MiB", mem / (1024.0 * 1024.0));
+        let history = self.mixer_history_bytes();
+        if history > 0 {
+            let rows = crate::scba::mixed_energy_rows(p, self.scba.energy_order);
+            let _ = write!(
+                s,
+                " ({:.1} MiB of it the mixer history, {} numbers, {} of {} energies)",
+                history as f64 / (1024.0 * 1024.0),
+                match self.scba.history {
+                    crate::scba::MixerHistory::Compact => "f32",
+                    crate::scba::MixerHistory::Full => "f64",
+                },
+                rows,
+                p.grid.count
+            );
+        }
+        let _ = writeln!(s);
         let threads = rayon::current_num_threads();
         let _ = writeln!(
             s,

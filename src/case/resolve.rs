@@ -1174,15 +1174,18 @@ impl Resolved {
     /// E energies, N cells, b orbitals per cell, S = N·b, Anderson depth m
     /// and T threads,
     ///
-    /// bytes = E·S·(72 + 8·P·A + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+    /// bytes = E·S·(72 + 16·h) + E_m·S·P·A·q + 8·E·(N − 1)
+    ///         + 2·E·(16·b² + 64) + T·w
     ///
-    /// with A = 2m + 3 for Anderson mixing (0 for linear), P = 3 numbers
-    /// mixed per site with dephasing or the Hermitian part and 2 otherwise,
+    /// with A = 2m + 2 history vectors for Anderson mixing (0 for linear)
+    /// of q = 4 bytes per number (compact history) or 8 (full), E_m the
+    /// energies mixed (the red half when only those need it, see
+    /// [`crate::scba::mixed_energy_rows`], else E), P = 3 numbers mixed
+    /// per site with dephasing or the Hermitian part and 2 otherwise,
     /// h = 1 when the Hermitian part of the phonon self-energy is on, and
-    /// w the RGF
-    /// workspace of one thread (48·N·b² + 128·b² for b > 1, 24·N for b = 1).
-    /// A coherent device needs one pass only: E·S·24 + 8·E·(N − 1) plus the
-    /// leads and workspaces.
+    /// w the RGF workspace of one thread (48·N·b² + 128·b² for b > 1, 24·N
+    /// for b = 1). A coherent device needs one pass only: E·S·24 +
+    /// 8·E·(N − 1) plus the leads and workspaces.
     pub fn memory_estimate_bytes(&self) -> u64 {
         let p = &self.problem;
         let e = p.grid.count as u64;
@@ -1199,21 +1202,46 @@ impl Resolved {
         if p.scattering.is_coherent() {
             return e * s * 24 + fixed;
         }
-        let a = match self.scba.mixing {
-            Mixing::Anderson { depth, .. } => 2 * depth as u64 + 3,
-            Mixing::Linear { .. } => 0,
-        };
         let h = u64::from(p.scattering.hermitian_part && !p.scattering.phonons.is_empty());
+        let history = self.mixer_history_bytes();
         if p.scattering.uses_blocks() {
             // Σ0 and F(Σ0) on N·b² numbers (24 bytes each), the diagonal
             // blocks of G^r and G^n (32 bytes each), the diagonals of the
-            // pass (24 per site), Anderson on 3 parts, the Hilbert buffers.
+            // pass (24 per site), the Hilbert buffers.
             let sb = n * b * b;
-            return e * (sb * (48 + 32 + 24 * a + 16 * h) + 24 * s) + fixed;
+            return e * (sb * (48 + 32 + 16 * h) + 24 * s) + history + fixed;
         }
-        let real_part = h == 1 || p.scattering.has_dephasing();
-        let parts = if real_part { 3 } else { 2 };
-        e * s * (72 + 8 * parts * a + 16 * h) + fixed
+        e * s * (72 + 16 * h) + history + fixed
+    }
+
+    /// The part of [`Self::memory_estimate_bytes`] that is the Anderson
+    /// history: E_m·S·P·A·q bytes (N·b² values per energy in place of S
+    /// with coupling matrices, P = 3 there); 0 for linear mixing or a
+    /// coherent device.
+    pub fn mixer_history_bytes(&self) -> u64 {
+        let p = &self.problem;
+        if p.scattering.is_coherent() {
+            return 0;
+        }
+        let q = match self.scba.history {
+            crate::scba::MixerHistory::Compact => 4,
+            crate::scba::MixerHistory::Full => 8,
+        };
+        let a = match self.scba.mixing {
+            Mixing::Anderson { depth, .. } => 2 * depth as u64 + 2,
+            Mixing::Linear { .. } => 0,
+        };
+        let mixed = crate::scba::mixed_energy_rows(p, self.scba.energy_order) as u64;
+        let (n, b) = (p.device.cells() as u64, p.device.orbitals as u64);
+        let h = p.scattering.hermitian_part && !p.scattering.phonons.is_empty();
+        let (values, parts) = if p.scattering.uses_blocks() {
+            (n * b * b, 3)
+        } else if h || p.scattering.has_dephasing() {
+            (n * b, 3)
+        } else {
+            (n * b, 2)
+        };
+        mixed * values * parts * a * q
     }
 
     /// How many Born iterations the time estimate assumes: 1 without

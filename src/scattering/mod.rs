@@ -339,46 +339,141 @@ impl Scattering {
         let ns = green.sites;
         // Rows (one energy each) are independent: built in parallel, each
         // element summing the modes in the same order whatever the thread
-        // count. The phonon broadening Γ goes into Im Σ^r = −Γ/2 as it is
-        // summed (halving is exact, so this equals −(Σ Γ_mode)/2).
-        let occupations: Vec<Vec<f64>> = self
-            .phonons
-            .iter()
-            .map(|m| m.site_occupations(ns, lattice_temperature_k))
-            .collect();
+        // count.
+        let occupations = self.occupations(ns, lattice_temperature_k);
         out.inscatter
             .par_chunks_mut(ns.max(1))
             .zip(out.retarded.par_chunks_mut(ns.max(1)))
             .enumerate()
             .for_each(|(k, (sin_row, ret_row))| {
-                sin_row.fill(0.0);
-                ret_row.fill(C64::new(0.0, 0.0));
-                for (mode, occ) in self.phonons.iter().zip(&occupations) {
-                    let w = mode.steps;
-                    for s in 0..ns {
-                        let d = mode.coupling_ev2[s];
-                        if d == 0.0 {
-                            continue;
-                        }
-                        let n = occ[s];
-                        let mut sin = 0.0;
-                        let mut sout = 0.0;
-                        if k + w < energies {
-                            let up = (k + w) * ns + s;
-                            // emission into E from E + ħω; absorption out of E to E + ħω
-                            sin += (n + 1.0) * green.filled[up];
-                            sout += n * green.empty(up);
-                        }
-                        if k >= w {
-                            let down = (k - w) * ns + s;
-                            sin += n * green.filled[down];
-                            sout += (n + 1.0) * green.empty(down);
-                        }
-                        sin_row[s] += d * sin;
-                        ret_row[s].im -= 0.5 * (d * (sin + sout));
-                    }
-                }
+                self.phonon_row(green, energies, &occupations, k, sin_row, ret_row);
             });
+    }
+
+    /// N_m at every orbital site, per mode.
+    fn occupations(&self, ns: usize, lattice_temperature_k: Option<&[f64]>) -> Vec<Vec<f64>> {
+        self.phonons
+            .iter()
+            .map(|m| m.site_occupations(ns, lattice_temperature_k))
+            .collect()
+    }
+
+    /// The phonon part of row k: Σ^in_0 and Im Σ^r_0 = −Γ0/2 from G at
+    /// E_k ± ħω, overwriting the row. The broadening goes into
+    /// Im Σ^r = −Γ/2 as it is summed (halving is exact, so this equals
+    /// −(Σ Γ_mode)/2).
+    fn phonon_row(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        occupations: &[Vec<f64>],
+        k: usize,
+        sin_row: &mut [f64],
+        ret_row: &mut [C64],
+    ) {
+        let ns = green.sites;
+        sin_row.fill(0.0);
+        ret_row.fill(C64::new(0.0, 0.0));
+        for (mode, occ) in self.phonons.iter().zip(occupations) {
+            let w = mode.steps;
+            for s in 0..ns {
+                let d = mode.coupling_ev2[s];
+                if d == 0.0 {
+                    continue;
+                }
+                let n = occ[s];
+                let mut sin = 0.0;
+                let mut sout = 0.0;
+                if k + w < energies {
+                    let up = (k + w) * ns + s;
+                    // emission into E from E + ħω; absorption out of E to E + ħω
+                    sin += (n + 1.0) * green.filled[up];
+                    sout += n * green.empty(up);
+                }
+                if k >= w {
+                    let down = (k - w) * ns + s;
+                    sin += n * green.filled[down];
+                    sout += (n + 1.0) * green.empty(down);
+                }
+                sin_row[s] += d * sin;
+                ret_row[s].im -= 0.5 * (d * (sin + sout));
+            }
+        }
+    }
+
+    /// Adds the elastic dephasing of row k (Σ^r_0 += d G^r, Σ^in_0 +=
+    /// d G^n) to the row.
+    fn dephasing_row(
+        &self,
+        green: &LocalGreen,
+        k: usize,
+        ret_row: &mut [C64],
+        sin_row: &mut [f64],
+    ) {
+        let ns = green.sites;
+        let (gr, gn) = (
+            &green.retarded[k * ns..(k + 1) * ns],
+            &green.filled[k * ns..(k + 1) * ns],
+        );
+        for s in 0..ns {
+            let d = self.dephasing_ev2[s];
+            if d != 0.0 {
+                ret_row[s] += gr[s] * d;
+                sin_row[s] += d * gn[s];
+            }
+        }
+    }
+
+    /// True when each energy row of Σ0 needs G only at that energy and
+    /// E ± ħω (diagonal layout, no Hermitian part): then
+    /// [`Scattering::self_energy_rows_into`] may build any set of rows.
+    pub fn row_local(&self) -> bool {
+        !self.uses_blocks() && (!self.hermitian_part || self.phonons.is_empty())
+    }
+
+    /// [`Scattering::self_energy_at_into`] on the energy rows k with
+    /// `rows(k)` true only (other rows of `out` are left as they are), for
+    /// a [`Scattering::row_local`] model, with the same numbers. Each row
+    /// is built in parallel and handed, while still in cache, to
+    /// `each(k, Σ^r_0 row, Σ^in_0 row)`; what `each` returns comes back in
+    /// row order. `out` must already hold every energy.
+    ///
+    /// # Panics
+    ///
+    /// When the model is not row-local, `out` is too short, or the
+    /// lattice-temperature profile does not hold one value per site.
+    pub fn self_energy_rows_into<R: Send>(
+        &self,
+        green: &LocalGreen,
+        energies: usize,
+        lattice_temperature_k: Option<&[f64]>,
+        out: &mut ScatteringSelfEnergy,
+        rows: impl Fn(usize) -> bool + Sync,
+        each: impl Fn(usize, &[C64], &[f64]) -> R + Sync,
+    ) -> Vec<R> {
+        use rayon::prelude::*;
+        assert!(self.row_local(), "row-by-row rebuild of a non-local model");
+        let ns = green.sites;
+        assert!(out.sites == ns && out.inscatter.len() >= energies * ns);
+        if let Some(t) = lattice_temperature_k {
+            assert_eq!(t.len(), ns, "lattice-temperature profile length");
+        }
+        let occupations = self.occupations(ns, lattice_temperature_k);
+        let dephasing = !self.dephasing_ev2.is_empty();
+        out.inscatter
+            .par_chunks_mut(ns.max(1))
+            .zip(out.retarded.par_chunks_mut(ns.max(1)))
+            .enumerate()
+            .take(energies)
+            .filter(|(k, _)| rows(*k))
+            .map(|(k, (sin_row, ret_row))| {
+                self.phonon_row(green, energies, &occupations, k, sin_row, ret_row);
+                if dephasing {
+                    self.dephasing_row(green, k, ret_row, sin_row);
+                }
+                each(k, ret_row, sin_row)
+            })
+            .collect()
     }
 
     /// Adds the Hermitian part of the phonon self-energy (when on) and the
@@ -403,16 +498,11 @@ impl Scattering {
         }
         if !self.dephasing_ev2.is_empty() {
             out.retarded
-                .par_iter_mut()
-                .zip(out.inscatter.par_iter_mut())
+                .par_chunks_mut(ns.max(1))
+                .zip(out.inscatter.par_chunks_mut(ns.max(1)))
                 .enumerate()
-                .for_each(|(idx, (r, sin))| {
-                    let d = self.dephasing_ev2[idx % ns];
-                    if d != 0.0 {
-                        *r += green.retarded[idx] * d;
-                        *sin += d * green.filled[idx];
-                    }
-                });
+                .take(energies)
+                .for_each(|(k, (r, sin))| self.dephasing_row(green, k, r, sin));
         }
     }
 }

@@ -39,16 +39,20 @@
 //! m, the peak of a Born solve is
 //!
 //! ```text
-//! bytes ≈ E·S·(72 + 8·P·A + 16·h) + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
+//! bytes ≈ E·S·(72 + 16·h) + E_m·S·P·A·q + 8·E·(N − 1) + 2·E·(16·b² + 64) + T·w
 //! ```
 //!
 //! - 72 = 3 × 24: the input Σ0, its image F(Σ0) (Σ^r_0 complex + Σ^in_0
 //!   real) and the local G^r, G^n of the pass;
-//! - A = 2m + 3 vectors of P numbers per site for Anderson mixing (last
-//!   input and residual, m residual differences and m update directions,
-//!   one residual buffer); P = 3 (Re Σ^r, Im Σ^r, Σ^in) with dephasing or
-//!   the Hermitian part, P = 2 otherwise, when Re Σ^r is zero and not
-//!   mixed; A = 0 for linear mixing, which keeps no history;
+//! - A = 2m + 2 vectors of P numbers per site and mixed energy for
+//!   Anderson mixing (m residual differences, m update directions, the
+//!   last residual and the last step), q = 4 bytes per number for the
+//!   compact history (f32, the default) and 8 for the full one; P = 3
+//!   (Re Σ^r, Im Σ^r, Σ^in) with dephasing or the Hermitian part, P = 2
+//!   otherwise, when Re Σ^r is zero and not mixed; A = 0 for linear
+//!   mixing, which keeps no history;
+//! - E_m: the energies mixed, E or only the red half (see
+//!   [`red_rows_only`]);
 //! - 16·h: the phonon broadening and its Hilbert transform while Σ0 is
 //!   rebuilt, when the Hermitian part (h = 1) is on;
 //! - 8·E·(N − 1): the bond flows of the pass;
@@ -59,9 +63,9 @@
 //! With coupling matrices (Σ0 on b × b blocks, see
 //! [`crate::scattering::GreenBlocks`]) Σ0, its image and the kept
 //! diagonal blocks of G^r and G^n take N·b² numbers per energy instead of
-//! S: bytes ≈ E·N·b²·(48 + 32 + 24·A + 16·h) + 24·E·S + the same fixed
-//! terms, A counted with P = 3 (the real part of the off-diagonal Σ^r_0 is
-//! always mixed).
+//! S: bytes ≈ E·N·b²·(48 + 32 + 16·h) + E_m·N·b²·3·A·q + 24·E·S + the
+//! same fixed terms, with P = 3 (the real part of the off-diagonal Σ^r_0
+//! is always mixed).
 //!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
@@ -72,7 +76,7 @@ mod undetermined;
 
 pub use contacts::ContactFlows;
 pub use mixing::Mixer;
-pub use params::{EnergyOrder, Mixing, ScbaParams};
+pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
 
 use crate::C64;
@@ -173,11 +177,6 @@ fn ensure_finite(
     problem: &Problem,
     iteration: usize,
 ) -> Result<(), SolveError> {
-    let ns = sigma.sites.max(1);
-    let per_cell = match sigma.blocks {
-        Some(b) => b * b,
-        None => problem.device.orbitals,
-    };
     let bad_r = sigma
         .retarded
         .iter()
@@ -189,12 +188,68 @@ fn ensure_finite(
         (Some(r), _) => (r, "Σ^r_0"),
         (None, Some(i)) => (i, "Σ^in_0"),
     };
-    Err(SolveError::SelfEnergyNotFinite {
+    Err(self_energy_fault(problem, sigma, iteration, idx, part))
+}
+
+/// The error for a non-finite Σ0 `part` at flat index `idx` of `sigma`'s
+/// layout.
+fn self_energy_fault(
+    problem: &Problem,
+    sigma: &ScatteringSelfEnergy,
+    iteration: usize,
+    idx: usize,
+    part: &'static str,
+) -> SolveError {
+    let ns = sigma.sites.max(1);
+    let per_cell = match sigma.blocks {
+        Some(b) => b * b,
+        None => problem.device.orbitals,
+    };
+    SolveError::SelfEnergyNotFinite {
         iteration,
         energy_ev: problem.grid.energy(idx / ns),
         cell: (idx % ns) / per_cell.max(1),
         part,
-    })
+    }
+}
+
+/// The first non-finite value of energy row k of Σ0 (rows `r` of Σ^r_0,
+/// `i` of Σ^in_0), as [`ensure_finite`] picks it: (flat index, part).
+fn first_bad(k: usize, r: &[C64], i: &[f64]) -> Option<(usize, &'static str)> {
+    let bad_r = r
+        .iter()
+        .position(|z| !(z.re.is_finite() && z.im.is_finite()));
+    let bad_in = i.iter().position(|v| !v.is_finite());
+    let (pos, part) = match (bad_r, bad_in) {
+        (None, None) => return None,
+        (Some(r), Some(i)) if i < r => (i, "Σ^in_0"),
+        (Some(r), _) => (r, "Σ^r_0"),
+        (None, Some(i)) => (i, "Σ^in_0"),
+    };
+    Some((k * r.len() + pos, part))
+}
+
+/// The sums of squares of [`relative_change`] over energy row k, from Σ0
+/// `a` to the row (`r`, `i`) of its image (diagonal layout).
+fn change_sums(a: &ScatteringSelfEnergy, k: usize, r: &[C64], i: &[f64]) -> [f64; 6] {
+    let ns = r.len();
+    let (ar, ai) = (
+        &a.retarded[k * ns..(k + 1) * ns],
+        &a.inscatter[k * ns..(k + 1) * ns],
+    );
+    let mut acc = [0.0; 6];
+    for s in 0..ns {
+        let (bi, aiv) = (i[s], ai[s]);
+        let (bo, ao) = (-2.0 * r[s].im - bi, -2.0 * ar[s].im - aiv);
+        let (br, arv) = (r[s].re, ar[s].re);
+        acc[0] += (bi - aiv) * (bi - aiv);
+        acc[1] += (bo - ao) * (bo - ao);
+        acc[2] += (br - arv) * (br - arv);
+        acc[3] += bi * bi;
+        acc[4] += bo * bo;
+        acc[5] += br * br;
+    }
+    acc
 }
 
 /// Lead self-energies on every grid energy (they do not change during the
@@ -977,6 +1032,12 @@ pub fn relative_change(a: &ScatteringSelfEnergy, b: &ScatteringSelfEnergy) -> f6
             *t += v;
         }
     }
+    change_ratio(tot)
+}
+
+/// The relative change from the sums of squares (ΔΣ^in, ΔΣ^out, ΔRe Σ^r,
+/// Σ^in, Σ^out, Re Σ^r) of [`relative_change`].
+fn change_ratio(tot: [f64; 6]) -> f64 {
     let [d_in, d_out, d_re, s_in, s_out, s_re] = tot.map(f64::sqrt);
     let scale = s_in + s_out + s_re;
     let change = d_in + d_out + d_re;
@@ -1015,6 +1076,31 @@ pub fn red_black_colouring(problem: &Problem, order: EnergyOrder) -> Option<(usi
     let w = steps.iter().fold(0, |g, &s| gcd(g, s));
     let two_colours = steps.iter().all(|&s| (s / w) % 2 == 1);
     (two_colours || order == EnergyOrder::RedBlack).then_some((w, two_colours))
+}
+
+/// The band width w when the Anderson mixer needs only the red energy
+/// rows (⌊k/w⌋ even): in red-black order with phonons that two-colour the
+/// grid and neither dephasing nor the Hermitian part, every black row of
+/// Σ0 is rebuilt from red Green's functions before it is used, so its
+/// residual is zero and a mixed value there would be overwritten. `None`:
+/// every row is mixed.
+pub fn red_rows_only(problem: &Problem, order: EnergyOrder) -> Option<usize> {
+    let scat = &problem.scattering;
+    let hermitian = scat.hermitian_part && !scat.phonons.is_empty();
+    match red_black_colouring(problem, order) {
+        Some((w, true)) if !scat.has_dephasing() && !hermitian => Some(w),
+        _ => None,
+    }
+}
+
+/// How many energy rows the Anderson mixer keeps a history for (see
+/// [`red_rows_only`]).
+pub fn mixed_energy_rows(problem: &Problem, order: EnergyOrder) -> usize {
+    let ne = problem.grid.count;
+    match red_rows_only(problem, order) {
+        Some(w) => (0..ne).filter(|k| (k / w).is_multiple_of(2)).count(),
+        None => ne,
+    }
 }
 
 /// Solve one operating point: a single pass for a coherent device, the Born
@@ -1168,6 +1254,14 @@ impl<'a> BornLoop<'a> {
         }
     }
 
+    /// A fresh mixer for this loop (only the red rows when the black ones
+    /// are rebuilt from them before use, see [`red_rows_only`]).
+    fn mixer(&self) -> Mixer {
+        let (problem, params) = (self.problem, self.params);
+        let red_only = red_rows_only(problem, params.energy_order);
+        Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only)
+    }
+
     /// Iterate from Σ0 = `x` until converged or out of budget.
     fn run(
         mut self,
@@ -1175,7 +1269,7 @@ impl<'a> BornLoop<'a> {
         observer: &mut dyn Observer,
     ) -> Result<Solution, SolveError> {
         let (problem, params) = (self.problem, self.params);
-        let mut mixer = Mixer::with_real_part(params.mixing, self.mix_real_part);
+        let mut mixer = self.mixer();
         let mut previous: Option<(f64, f64)> = None;
         // The Green's functions of the pass and the image F(Σ0) are rebuilt in
         // place every iteration. `black_ready`: the black rows of `p` hold G
@@ -1196,7 +1290,7 @@ impl<'a> BornLoop<'a> {
                 transmission: problem.scattering.is_coherent(),
             };
             let order = self.colour.filter(|_| black_ready);
-            sweep(
+            let residual = sweep(
                 &maps,
                 order,
                 &mut x,
@@ -1206,7 +1300,6 @@ impl<'a> BornLoop<'a> {
             )?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
-            let residual = relative_change(&x, &fx);
             let iteration = self.report.iterations + 1;
             if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
                 return Err(SolveError::Diverged {
@@ -1288,6 +1381,20 @@ struct BornMaps<'a> {
 }
 
 impl BornMaps<'_> {
+    /// Rebuild the rows k of Σ0 with `rows(k)` true into `out`, handing
+    /// each to `each` (see [`crate::scattering::Scattering::self_energy_rows_into`]).
+    fn rebuild_rows<R: Send>(
+        &self,
+        pass: &Pass,
+        out: &mut ScatteringSelfEnergy,
+        rows: impl Fn(usize) -> bool + Sync,
+        each: impl Fn(usize, &[C64], &[f64]) -> R + Sync,
+    ) -> Vec<R> {
+        let ne = self.problem.grid.count;
+        let scat = &self.problem.scattering;
+        scat.self_energy_rows_into(&pass.green, ne, self.lattice, out, rows, each)
+    }
+
     /// Rebuild Σ0 from the local Green's functions of `pass` into `out`
     /// (from the diagonal blocks when the scattering has coupling
     /// matrices).
@@ -1304,10 +1411,17 @@ impl BornMaps<'_> {
 }
 
 /// One Born iteration's passes: the Green's functions `p` of Σ0 = `x`
-/// and the image F(x) in `fx`. With `red_black = Some(w)` the red energies
-/// are solved first and the black rows of `x` are replaced by Σ0 rebuilt
-/// from every G at hand (the black rows of `p` are taken from the previous
-/// sweep) before the black energies are solved.
+/// and the image F(x) in `fx`; returns the relative change from `x` to
+/// F(x) (see [`relative_change`]). With `red_black = Some(w)` the red
+/// energies are solved first and the black rows of `x` are replaced by Σ0
+/// rebuilt from every G at hand (the black rows of `p` are taken from the
+/// previous sweep) before the black energies are solved.
+///
+/// When each row of Σ0 needs G only at E and E ± ħω (no Hermitian part,
+/// diagonal layout), the black rows are rebuilt straight into `x`, and the
+/// finiteness check and the relative change are taken on each rebuilt row
+/// while it is in cache: no separate passes over Σ0 and F(Σ0), the same
+/// numbers (the change summed row by row).
 fn sweep(
     maps: &BornMaps<'_>,
     red_black: Option<usize>,
@@ -1315,24 +1429,52 @@ fn sweep(
     p: &mut Pass,
     fx: &mut ScatteringSelfEnergy,
     iteration: usize,
-) -> Result<(), SolveError> {
+) -> Result<f64, SolveError> {
     let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
     let tr = maps.transmission;
+    let local = p.blocks.is_none() && problem.scattering.row_local();
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
             pass_rows(problem, leads, x, levels, tr, red, p)?;
-            maps.rebuild(p, fx);
-            ensure_finite(fx, problem, iteration)?;
-            copy_rows(fx, x, |k| !red(k));
+            if local {
+                let bad = maps.rebuild_rows(p, x, |k| !red(k), first_bad);
+                if let Some((idx, part)) = bad.into_iter().flatten().next() {
+                    // Report it where a rebuild of every row shows it
+                    // first (the lowest energy), as the other route does.
+                    maps.rebuild(p, fx);
+                    ensure_finite(fx, problem, iteration)?;
+                    return Err(self_energy_fault(problem, x, iteration, idx, part));
+                }
+            } else {
+                maps.rebuild(p, fx);
+                ensure_finite(fx, problem, iteration)?;
+                copy_rows(fx, x, |k| !red(k));
+            }
             pass_rows(problem, leads, x, levels, tr, |k| !red(k), p)?;
         }
         None => pass_rows(problem, leads, x, levels, tr, |_| true, p)?,
     }
+    if local {
+        let a: &ScatteringSelfEnergy = x;
+        let each = |k: usize, r: &[C64], i: &[f64]| (first_bad(k, r, i), change_sums(a, k, r, i));
+        let rows = maps.rebuild_rows(p, fx, |_| true, each);
+        if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
+            return Err(self_energy_fault(problem, fx, iteration, idx, part));
+        }
+        let mut tot = [0.0; 6];
+        for (_, sums) in &rows {
+            for (t, v) in tot.iter_mut().zip(sums) {
+                *t += v;
+            }
+        }
+        return Ok(change_ratio(tot));
+    }
     maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
     // values, the mixer); stop here and say where it appeared.
-    ensure_finite(fx, problem, iteration)
+    ensure_finite(fx, problem, iteration)?;
+    Ok(relative_change(x, fx))
 }
 
 /// The Born map as the loop applies it in `order`, at Σ0 = `sigma`: the Σ0

@@ -39,6 +39,21 @@ impl Default for Mixing {
     }
 }
 
+/// How the Anderson mixer stores its history of residual differences and
+/// steps. The residual and the base of each update stay in f64 either way,
+/// so the fixed point, and so the converged answer, is the same.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum MixerHistory {
+    /// In f32: half the memory and half the bytes streamed per iteration.
+    Compact,
+    /// In f64 (the default: on a device whose occupation is undetermined
+    /// in places, the compact history let the loop wander longer before
+    /// the watch stopped it).
+    #[default]
+    Full,
+}
+
 /// In which order the energies of one Born iteration are solved.
 ///
 /// The phonon self-energy at E is built from G at E ± ħω only. Colour the
@@ -85,6 +100,8 @@ pub struct ScbaParams {
     pub mixing: Mixing,
     /// Order of the energies within an iteration.
     pub energy_order: EnergyOrder,
+    /// Storage of the Anderson history.
+    pub history: MixerHistory,
 }
 
 impl ScbaParams {
@@ -104,6 +121,7 @@ impl Default for ScbaParams {
             max_iterations: Self::DEFAULT_MAX_ITERATIONS,
             mixing: Mixing::default(),
             energy_order: EnergyOrder::Auto,
+            history: MixerHistory::default(),
         }
     }
 }
@@ -133,6 +151,11 @@ impl ScbaParams {
     /// These settings with mixing scheme `mixing`.
     pub fn with_mixing(self, mixing: Mixing) -> Self {
         Self { mixing, ..self }
+    }
+
+    /// These settings with the Anderson history stored as `history`.
+    pub fn with_history(self, history: MixerHistory) -> Self {
+        Self { history, ..self }
     }
 
     /// These settings with energy order `energy_order`.

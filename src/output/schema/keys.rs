@@ -372,7 +372,7 @@ const LEDGER: [Key; 19] = [
     ),
 ];
 
-const SOLVE_TAIL: [Key; 22] = [
+const SOLVE_TAIL: [Key; 23] = [
     (
         "ledger.worst_relative_of",
         "-",
@@ -454,6 +454,11 @@ const SOLVE_TAIL: [Key; 22] = [
         "scba.params.mixing.depth",
         "1",
         "history depth of Anderson mixing",
+    ),
+    (
+        "scba.params.history",
+        "-",
+        "storage of the Anderson history: compact (f32) or full (f64)",
     ),
     (
         "scba.hermitian_part",
