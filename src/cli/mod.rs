@@ -251,6 +251,7 @@ impl From<qheat::session::SessionError> for Failure {
             E::Case(e) => e.into(),
             E::BadInput(m) => Failure::BadInput(m),
             E::Output(e) => e.into(),
+            E::Io(m) => Failure::Io(m),
             other => Failure::Solver(other.to_string()),
         }
     }

@@ -15,9 +15,11 @@
 //! can also stop a long solve between Born iterations; a stopped solve
 //! returns [`SessionError::Cancelled`] and has written nothing.
 
+mod grids;
 mod solve;
 mod tables;
 
+pub use grids::{GridKind, GridPlace, GridRun, MAX_GRID_POINTS, grid_run, parse_grid};
 pub use solve::{SolveOptions, Solved, solve, write_failure};
 pub use tables::{BondCurrentMap, columns};
 
@@ -55,6 +57,9 @@ pub enum SessionError {
     /// take the result.
     #[error(transparent)]
     Output(#[from] OutputError),
+    /// Reading or writing a grid's point store failed.
+    #[error("{0}")]
+    Io(String),
     /// The observer asked the run to stop; nothing was returned or written.
     #[error("the run was cancelled before it finished; nothing was written")]
     Cancelled,
