@@ -48,6 +48,9 @@
 //! Electrons and lattice temperatures solved together: [`selfheat`].
 //! Transport and the electrostatic potential of the device's own charge
 //! solved together: [`electrostatics`].
+//! Whole commands (check, solve, coefficients, curves, sweeps, screens) as
+//! calls that return results and write their folders when asked:
+//! [`session`].
 //!
 //! ## Example
 //!
@@ -124,6 +127,7 @@ pub mod rgf;
 pub mod scattering;
 pub mod scba;
 pub mod selfheat;
+pub mod session;
 pub mod sweep;
 pub mod thermo;
 pub mod units;

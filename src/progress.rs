@@ -6,7 +6,8 @@
 //! runs them passes an [`Observer`] (the command line draws progress bars
 //! with it; tests and library users pass [`Silent`]). Every method has a
 //! default that does nothing, so an observer implements only the events it
-//! wants.
+//! wants. An observer can also stop a Born loop between iterations
+//! ([`Observer::cancelled`]).
 
 /// What one Born iteration did.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
@@ -77,6 +78,13 @@ pub trait Observer {
     fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {}
     /// A sweep point is stored (computed now or found from an earlier run).
     fn point_finished(&mut self, _event: &PointEvent) {}
+    /// Whether whoever runs the computation asked it to stop (an interrupt
+    /// from the user). The Born loop asks once per iteration, right after
+    /// reporting it, and stops with an error that says it was cancelled;
+    /// nothing it computed is returned.
+    fn cancelled(&self) -> bool {
+        false
+    }
 }
 
 /// The observer that ignores every event.

@@ -244,6 +244,19 @@ impl From<qheat::output::OutputError> for Failure {
     }
 }
 
+impl From<qheat::session::SessionError> for Failure {
+    fn from(e: qheat::session::SessionError) -> Self {
+        use qheat::session::SessionError as E;
+        match e {
+            E::Case(e) => e.into(),
+            E::BadInput(m) => Failure::BadInput(m),
+            E::Output(e) => e.into(),
+            E::Io(m) => Failure::Io(m),
+            other => Failure::Solver(other.to_string()),
+        }
+    }
+}
+
 /// What `--overwrite` says about files in the result folder that qheat did
 /// not write.
 fn others(overwrite: bool) -> qheat::output::OtherFiles {
@@ -256,7 +269,7 @@ fn others(overwrite: bool) -> qheat::output::OtherFiles {
 
 /// How a result of `kind` goes into its folder.
 pub fn folder(kind: &str, other_files: qheat::output::OtherFiles) -> qheat::output::FolderOptions {
-    qheat::output::FolderOptions::new(kind).other_files(other_files)
+    qheat::session::folder(kind, other_files)
 }
 
 /// Options every command shares.

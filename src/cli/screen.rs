@@ -2,14 +2,13 @@
 
 use super::curves::check_curve_options;
 use super::format::{number, si};
-use super::solve::load;
-use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
-use super::{Common, Failure, check_memory, default_out, folder};
+use super::solve::load_case;
+use super::sweep::{convergence_outcome, run_grid};
+use super::{Common, Failure, check_memory, default_out};
 use qheat::case::PhononConductanceSource;
-use qheat::output::schema::summary::{BestPoint, Ranking, to_text};
-use qheat::output::schema::tables::grid_csv;
-use qheat::output::{OtherFiles, Staging};
-use qheat::sweep::screen::{CoolingCurve, Rank, ScreenTask, ranking, ranking_table};
+use qheat::output::OtherFiles;
+use qheat::session::GridKind;
+use qheat::sweep::screen::{CoolingCurve, Rank};
 use qheat::sweep::{Grid, SweepTable};
 use std::path::{Path, PathBuf};
 
@@ -39,52 +38,27 @@ pub fn screen(
     common: &Common,
 ) -> Result<(), Failure> {
     let cooling = cooling_curve(rank, hot, cold, points)?;
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let grid = parse_grid(&case, vary)?;
+    let loaded = load_case(path, common)?;
+    check_memory(loaded.resolved.memory_estimate_bytes())?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-screen"));
-    let task = ScreenTask::new(rank, cooling)
-        .expect("a cooler curve exactly for --rank cooling")
-        .with_electrostatics(resolved.electrostatics.is_some());
-    let options = folder("screen", other_files).keeping_store();
-    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
-    let order = ranking(&table, rank.column())?;
-    let stage = Staging::with_options(&out_dir, &options)?;
-    let (rcols, rrows) = ranking_table(&table, &order);
-    stage.write("screen.csv", &grid_csv(&table.columns, &table.rows))?;
-    stage.write("ranking.csv", &grid_csv(&rcols, &rrows))?;
-    for (name, svg) in
-        qheat::output::plots::grid_figures(&grid, &table, &[rank.column()], "screen")?
-    {
-        stage.write(&name, svg.as_bytes())?;
-    }
-    if let Some(svg) = qheat::output::plots::ranking_figure(&grid, &table, &order, rank.column())? {
-        stage.write("ranking.svg", svg.as_bytes())?;
-    }
-    let kph_source = match rank {
-        Rank::Cooling => None,
-        _ => Some(qheat::sweep::screen::phonon_conductance_source(
-            &case, &grid.axes,
-        )?),
-    };
-    let mut summary = grid_summary("screen", &case, path, &grid, &table, common);
-    summary.ranking = Some(ranking_summary(&grid, &table, &order, task, kph_source));
-    let text = to_text(&summary);
-    stage.write("summary.json", text.as_bytes())?;
-    stage.commit()?;
+        .unwrap_or_else(|| default_out(&loaded.case.name, "-screen"));
+    let kind = GridKind::Screen { rank, cooling };
+    let run = run_grid(&loaded, vary, kind, &out_dir, other_files, common)?;
     if common.json {
-        println!("{text}");
+        println!("{}", qheat::output::schema::summary::to_text(&run.summary));
     } else if !common.quiet {
-        if task.electrostatics() {
+        if loaded.resolved.electrostatics.is_some() {
             println!(
                 "electrostatics    potential solved at every run of every point, none imposed"
             );
         }
-        print_ranking(&grid, &table, &order, rank, kph_source.as_ref(), &out_dir);
+        let kph_source = run.phonon_conductance_source.as_ref();
+        print_ranking(
+            &run.grid, &run.table, &run.order, rank, kph_source, &out_dir,
+        );
     }
-    convergence_outcome(&table, &out_dir)
+    convergence_outcome(&run, &out_dir)
 }
 
 /// The cooler curve behind `--rank cooling`, from `--hot`, `--cold` and
@@ -131,36 +105,6 @@ fn cooling_curve(
         cold_k,
         points,
     }))
-}
-
-/// The `ranking` object of summary.json: the five best points.
-fn ranking_summary(
-    grid: &Grid,
-    table: &SweepTable,
-    order: &[usize],
-    task: ScreenTask,
-    kph_source: Option<PhononConductanceSource>,
-) -> Ranking {
-    let column = task.rank().column();
-    let c = table.column(column).expect("ranked column exists");
-    Ranking {
-        phonon_conductance_source: kph_source,
-        rank_by: task,
-        ranked_column: column.into(),
-        best: order
-            .iter()
-            .take(5)
-            .map(|&i| BestPoint {
-                point: i,
-                values: grid
-                    .names()
-                    .into_iter()
-                    .zip(table.rows[i].iter().copied())
-                    .collect(),
-                score: [(column.to_string(), table.rows[i][c])].into(),
-            })
-            .collect(),
-    }
 }
 
 /// Terminal lines: the five best points and where the ranking is.

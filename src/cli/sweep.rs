@@ -8,179 +8,40 @@
 //! previous result and keeping the store.
 
 use super::progress::{PointProgress, enabled};
-use super::solve::load;
-use super::{Common, Failure, available_memory_bytes, check_memory, default_out, folder};
-use qheat::case::{Case, CaseKey};
-use qheat::output::manifest::claim_store;
-use qheat::output::results::header;
-use qheat::output::schema::summary::{GridSummary, to_text};
-use qheat::output::schema::tables::grid_csv;
-use qheat::output::sweep::PointFolder;
-use qheat::output::{FolderOptions, OtherFiles, Staging};
-use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
+use super::solve::load_case;
+use super::{Common, Failure, available_memory_bytes, check_memory, default_out};
+use qheat::session::{GridKind, GridPlace, GridRun, Loaded, grid_run};
 use std::path::{Path, PathBuf};
 
-impl From<SweepError> for Failure {
-    fn from(e: SweepError) -> Self {
-        match e {
-            SweepError::BadAxis { .. } | SweepError::Case { .. } => {
-                Failure::BadInput(e.to_string())
-            }
-            SweepError::Solve { .. } | SweepError::Task { .. } => Failure::Solver(e.to_string()),
-            SweepError::Store(_) => Failure::Io(e.to_string()),
-        }
-    }
-}
-
-/// Most points in one grid: each is a full solve, and every point is
-/// checked before the first is computed.
-pub const MAX_GRID_POINTS: usize = 100_000;
-
-/// Parse the --vary options into a grid, checking the keys against the case.
-pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
-    // Key names become typed keys here, once; an unknown one is reported
-    // with the close matches among this case's keys (or all of them).
-    let read_key = |k: &str| {
-        k.parse::<CaseKey>().map_err(|e| {
-            let e = case.unknown_key_error(&e);
-            let listing = if e.suggestion.is_none() {
-                format!(
-                    "; numeric keys of this case: {}",
-                    case.numeric_keys().join(", ")
-                )
-            } else {
-                String::new()
-            };
-            format!("{e}{listing}")
-        })
-    };
-    let axes = vary
-        .iter()
-        .map(|s| Axis::parse_with(s, read_key))
-        .collect::<Result<Vec<_>, _>>()?;
-    let grid = Grid::new(axes)?;
-    let mut seen: Vec<CaseKey> = Vec::new();
-    let mut points: usize = 1;
-    for (axis, spec) in grid.axes.iter().zip(vary) {
-        if axis.count > 1 && axis.start == axis.stop {
-            return Err(Failure::BadInput(format!(
-                "--vary `{spec}`: expected STOP different from START when COUNT > 1, found \
-                 START = STOP = {} (all {} points would be the same); hint: COUNT = 1 for one value",
-                axis.start, axis.count
-            )));
-        }
-        for &key in &axis.keys {
-            if seen.contains(&key) {
-                return Err(Failure::BadInput(format!(
-                    "--vary `{spec}`: expected each key on one axis only, found `{key}` twice \
-                     (the later value would overwrite the earlier); hint: one --vary per key"
-                )));
-            }
-            seen.push(key);
-        }
-        points = points.saturating_mul(axis.count);
-    }
-    if points > MAX_GRID_POINTS {
-        return Err(Failure::BadInput(format!(
-            "--vary: expected at most {MAX_GRID_POINTS} grid points (each is a full solve), found {}; \
-             hint: smaller COUNT values",
-            if points == usize::MAX {
-                "more than can be counted".to_string()
-            } else {
-                points.to_string()
-            }
-        )));
-    }
-    // Every value of every axis, one key at a time, before the folder is
-    // claimed: a value the key cannot take (a fractional count, a negative
-    // temperature, a missing [[phonon]] entry) is refused before anything
-    // is written. Combinations of axes are checked by the sweep itself.
-    for (axis, spec) in grid.axes.iter().zip(vary) {
-        for &key in &axis.keys {
-            for value in (0..axis.count).map(|i| axis.value(i)) {
-                case.with(key, value).map_err(|e| {
-                    let listing = if e.suggestion.is_none()
-                        && e.kind == qheat::case::CaseErrorKind::UnknownKey
-                    {
-                        format!(
-                            "; numeric keys of this case: {}",
-                            case.numeric_keys().join(", ")
-                        )
-                    } else {
-                        String::new()
-                    };
-                    Failure::BadInput(format!("--vary `{spec}`: {e}{listing}"))
-                })?;
-            }
-        }
-    }
-    Ok(grid)
-}
-
-/// Run a grid with a progress bar into `out_dir` (points kept there, the
-/// store first recorded in the folder's manifest).
+/// Run a grid of `kind` with a progress bar into `out_dir` (points kept
+/// there, the store first recorded in the folder's manifest), writing its
+/// table, figures and summary.
 pub fn run_grid(
-    case: &Case,
-    grid: &Grid,
-    task: &dyn PointTask,
+    loaded: &Loaded,
+    vary: &[String],
+    kind: GridKind,
     out_dir: &Path,
-    options: &FolderOptions,
+    other_files: qheat::output::OtherFiles,
     common: &Common,
-    label: &str,
-) -> Result<SweepTable, Failure> {
-    claim_store(out_dir, options)?;
-    let store = PointFolder::open(out_dir, sweep::sweep_fingerprint(case, grid, task))?;
-    let mut progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
-    let options = SweepOptions {
-        max_parallel_lines: Some(common.threads),
+) -> Result<GridRun, Failure> {
+    let grid = qheat::session::parse_grid(&loaded.case, vary)?;
+    let mut progress = PointProgress::new(enabled(common.quiet), grid.len(), &loaded.case.name);
+    let place = GridPlace {
+        dir: out_dir,
+        other_files,
+        threads: common.threads,
         memory_budget_bytes: available_memory_bytes().map(|b| b / 10 * 8),
     };
-    let table = sweep::run(case, grid, task, &store, options, &mut progress);
+    let run = grid_run(loaded, grid, kind, &place, &mut progress);
     progress.finish();
-    Ok(table?)
-}
-
-/// The common part of a grid summary.
-pub fn grid_summary(
-    kind: &str,
-    case: &Case,
-    path: &Path,
-    grid: &Grid,
-    table: &SweepTable,
-    common: &Common,
-) -> GridSummary {
-    GridSummary {
-        header: header(kind, &case.name, &path.display().to_string()),
-        threads: common.threads,
-        axes: grid.axes.clone(),
-        order: "row-major, last axis fastest".into(),
-        points: grid.len(),
-        computed_this_run: table.computed,
-        from_earlier_runs: grid.len() - table.computed,
-        parallel_lines: table.parallel_lines,
-        point_store: table.store.clone(),
-        unconverged_points: table.unconverged(),
-        converged: table.unconverged().is_empty(),
-        columns: table.columns.clone(),
-        warm_start: None,
-        ranking: None,
-        resolved_case: case.to_toml_string(),
-    }
+    Ok(run?)
 }
 
 /// Exit code 2 when some point did not converge (results written, flagged).
-pub fn convergence_outcome(table: &SweepTable, out_dir: &Path) -> Result<(), Failure> {
-    let bad = table.unconverged();
-    if bad.is_empty() {
-        Ok(())
-    } else {
-        Err(Failure::Solver(format!(
-            "{} of {} points did not converge (first: point {}); they are flagged converged = false in {}",
-            bad.len(),
-            table.rows.len(),
-            bad[0],
-            out_dir.display()
-        )))
+pub fn convergence_outcome(run: &GridRun, out_dir: &Path) -> Result<(), Failure> {
+    match run.not_converged(&out_dir.display().to_string()) {
+        Some(message) => Err(Failure::Solver(message)),
+        None => Ok(()),
     }
 }
 
@@ -189,41 +50,25 @@ pub fn sweep(
     path: &Path,
     vary: &[String],
     out: Option<&Path>,
-    other_files: OtherFiles,
+    other_files: qheat::output::OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let grid = parse_grid(&case, vary)?;
+    let loaded = load_case(path, common)?;
+    check_memory(loaded.resolved.memory_estimate_bytes())?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-sweep"));
-    let options = folder("sweep", other_files).keeping_store();
-    let task = sweep::ObservablesTask::of(&resolved);
-    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
-    let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("sweep.csv", &grid_csv(&table.columns, &table.rows))?;
-    let quantities = [
-        "current_a",
-        "heat_current_left_w",
-        "heat_current_right_w",
-        "lattice_power_w",
-        "electrical_power_w",
-    ];
-    for (name, svg) in qheat::output::plots::grid_figures(&grid, &table, &quantities, "sweep")? {
-        stage.write(&name, svg.as_bytes())?;
-    }
-    let mut summary = grid_summary("sweep", &case, path, &grid, &table, common);
-    summary.warm_start = Some(if task.electrostatics {
-        "the potential is solved at every point ([electrostatics]; columns potential_drop_v, outer_iterations, potential_change_ev, poisson_residual); each point starts from the converged potential and self-energy of the previous point along the last axis when the energy grid and device size match".into()
-    } else {
-        "each point's Born loop starts from the converged self-energy of the previous point along the last axis when the energy grid and device size match".into()
-    });
-    let text = to_text(&summary);
-    stage.write("summary.json", text.as_bytes())?;
-    stage.commit()?;
+        .unwrap_or_else(|| default_out(&loaded.case.name, "-sweep"));
+    let run = run_grid(
+        &loaded,
+        vary,
+        GridKind::Sweep,
+        &out_dir,
+        other_files,
+        common,
+    )?;
+    let (grid, table) = (&run.grid, &run.table);
     if common.json {
-        println!("{text}");
+        println!("{}", qheat::output::schema::summary::to_text(&run.summary));
     } else if !common.quiet {
         println!(
             "sweep             {} points over {} ({} computed now, {} from earlier runs, {} line(s) at once)",
@@ -242,12 +87,12 @@ pub fn sweep(
                 format!("NOT CONVERGED at {} point(s): {:?}", bad.len(), bad)
             }
         );
-        if task.electrostatics {
+        if loaded.resolved.electrostatics.is_some() {
             println!(
                 "electrostatics    potential solved at every point, none imposed (sweep.csv: potential_drop_v, outer_iterations)"
             );
         }
         println!("results           {}", out_dir.join("sweep.csv").display());
     }
-    convergence_outcome(&table, &out_dir)
+    convergence_outcome(&run, &out_dir)
 }

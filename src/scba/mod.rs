@@ -136,6 +136,12 @@ pub enum SolveError {
     /// [`UndeterminedOccupation`]).
     #[error("{0}")]
     Undetermined(Box<UndeterminedOccupation>),
+    /// The observer asked the loop to stop ([`Observer::cancelled`]).
+    #[error("the Born loop was cancelled after iteration {iteration}")]
+    Cancelled {
+        /// The last Born iteration finished (1-based).
+        iteration: usize,
+    },
 }
 
 impl SolveError {
@@ -153,7 +159,9 @@ impl SolveError {
                 energy_ev, cell, ..
             } => Some((*energy_ev, Some(*cell))),
             SolveError::Undetermined(u) => u.location(),
-            SolveError::Invalid(_) | SolveError::Diverged { .. } => None,
+            SolveError::Invalid(_) | SolveError::Diverged { .. } | SolveError::Cancelled { .. } => {
+                None
+            }
         }
     }
 
@@ -166,6 +174,7 @@ impl SolveError {
             SolveError::Diverged { .. } => "diverged",
             SolveError::Undetermined(_) => "undetermined occupation",
             SolveError::Invalid(_) => "invalid input",
+            SolveError::Cancelled { .. } => "cancelled",
         }
     }
 }
@@ -1337,6 +1346,9 @@ impl<'a> BornLoop<'a> {
             };
             observer.iteration(&record);
             self.report.history.push(record);
+            if observer.cancelled() {
+                return Err(SolveError::Cancelled { iteration });
+            }
             if done || out_of_budget {
                 self.report.converged = done;
                 return Ok(Solution {
