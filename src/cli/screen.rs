@@ -4,8 +4,9 @@ use super::curves::check_curve_options;
 use super::format::{number, si};
 use super::solve::load;
 use super::sweep::{convergence_outcome, grid_summary, parse_grid, run_grid};
-use super::{Common, Failure, check_memory, default_out, folder};
+use super::{Common, Failure, agreed, check_memory, default_out, folder};
 use qheat::case::PhononConductanceSource;
+use qheat::cluster::Cluster;
 use qheat::output::schema::summary::{BestPoint, Ranking, to_text};
 use qheat::output::schema::tables::grid_csv;
 use qheat::output::{OtherFiles, Staging};
@@ -37,17 +38,26 @@ pub fn screen(
     out: Option<&Path>,
     other_files: OtherFiles,
     common: &Common,
+    cluster: &Cluster,
 ) -> Result<(), Failure> {
     let cooling = cooling_curve(rank, hot, cold, points)?;
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let grid = parse_grid(&case, vary)?;
+    let loaded = load(path, common).and_then(|(case, resolved)| {
+        check_memory(resolved.memory_estimate_bytes())?;
+        let grid = parse_grid(&case, vary)?;
+        Ok((case, grid))
+    });
+    let (case, grid) = agreed(cluster, loaded)?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-screen"));
     let task = ScreenTask::new(rank, cooling).expect("a cooler curve exactly for --rank cooling");
     let options = folder("screen", other_files).keeping_store();
-    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
+    let table = run_grid(
+        &case, &grid, &task, &out_dir, &options, common, &case.name, cluster,
+    )?;
+    if !cluster.is_root() {
+        return convergence_outcome(&table, &out_dir);
+    }
     let order = ranking(&table, rank.column())?;
     let stage = Staging::with_options(&out_dir, &options)?;
     let (rcols, rrows) = ranking_table(&table, &order);

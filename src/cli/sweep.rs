@@ -9,15 +9,20 @@
 
 use super::progress::{PointProgress, enabled};
 use super::solve::load;
-use super::{Common, Failure, available_memory_bytes, check_memory, default_out, folder};
+use super::{
+    Common, Failure, agreed, available_memory_bytes, check_memory, default_out, folder, gathered,
+};
 use qheat::case::{Case, CaseKey};
+use qheat::cluster::Cluster;
 use qheat::output::manifest::claim_store;
 use qheat::output::results::header;
 use qheat::output::schema::summary::{GridSummary, to_text};
 use qheat::output::schema::tables::grid_csv;
 use qheat::output::sweep::PointFolder;
 use qheat::output::{FolderOptions, OtherFiles, Staging};
-use qheat::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
+use qheat::sweep::{
+    self, Axis, Grid, PointStore, PointTask, Share, SharePart, SweepError, SweepOptions, SweepTable,
+};
 use std::path::{Path, PathBuf};
 
 impl From<SweepError> for Failure {
@@ -119,6 +124,15 @@ pub fn parse_grid(case: &Case, vary: &[String]) -> Result<Grid, Failure> {
 
 /// Run a grid with a progress bar into `out_dir` (points kept there, the
 /// store first recorded in the folder's manifest).
+///
+/// Under MPI every rank calls this: rank 0 claims the store first, then
+/// each rank runs its share of the lines (whole lines, so every point has
+/// the warm start it has in one process and its row the same bits) and
+/// keeps each finished point in the store itself; the rows meet in one
+/// gather, through which a failure on any rank ends every rank. Rank 0
+/// also stores the gathered rows it cannot see (a store on a file system
+/// the ranks do not share).
+#[allow(clippy::too_many_arguments)]
 pub fn run_grid(
     case: &Case,
     grid: &Grid,
@@ -127,17 +141,45 @@ pub fn run_grid(
     options: &FolderOptions,
     common: &Common,
     label: &str,
+    cluster: &Cluster,
 ) -> Result<SweepTable, Failure> {
-    claim_store(out_dir, options)?;
-    let store = PointFolder::open(out_dir, sweep::sweep_fingerprint(case, grid, task))?;
-    let mut progress = PointProgress::new(enabled(common.quiet), grid.len(), label);
+    let claimed = match cluster.is_root() {
+        true => claim_store(out_dir, options).map_err(Failure::from),
+        false => Ok(()),
+    };
+    agreed(cluster, claimed)?;
+    let share = Share::new(cluster.rank(), cluster.size()).expect("a rank is below the size");
+    let store = PointFolder::open(out_dir, sweep::sweep_fingerprint(case, grid, task));
+    let points = share.points(grid).count();
+    let mut progress = PointProgress::new(enabled(common.quiet), points, label);
     let options = SweepOptions {
         max_parallel_lines: Some(common.threads),
         memory_budget_bytes: available_memory_bytes().map(|b| b / 10 * 8),
     };
-    let table = sweep::run(case, grid, task, &store, options, &mut progress);
+    let part = store.map_err(Failure::from).and_then(|store| {
+        let part = sweep::run_share(case, grid, task, &store, options, share, &mut progress);
+        Ok((store, part?))
+    });
     progress.finish();
-    Ok(table?)
+    let (store, part) = match part {
+        Ok((store, part)) => (Some(store), Ok(part.to_bytes())),
+        Err(f) => (None, Err(f)),
+    };
+    let parts = gathered(cluster, part)?
+        .iter()
+        .map(|b| SharePart::from_bytes(b))
+        .collect::<Option<Vec<_>>>()
+        .ok_or_else(|| Failure::Io("a rank sent rows that could not be read".into()))?;
+    let store = store.expect("every rank that got here opened its store");
+    let table = SweepTable::assemble(grid, task, &parts, store.location())?;
+    if cluster.is_root() && cluster.size() > 1 {
+        for (index, row) in table.rows.iter().enumerate() {
+            if store.row(index, row.len()).is_none() {
+                store.put_row(index, row).map_err(SweepError::Store)?;
+            }
+        }
+    }
+    Ok(table)
 }
 
 /// The common part of a grid summary.
@@ -191,16 +233,25 @@ pub fn sweep(
     out: Option<&Path>,
     other_files: OtherFiles,
     common: &Common,
+    cluster: &Cluster,
 ) -> Result<(), Failure> {
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let grid = parse_grid(&case, vary)?;
+    let loaded = load(path, common).and_then(|(case, resolved)| {
+        check_memory(resolved.memory_estimate_bytes())?;
+        let grid = parse_grid(&case, vary)?;
+        Ok((case, resolved, grid))
+    });
+    let (case, resolved, grid) = agreed(cluster, loaded)?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&case.name, "-sweep"));
     let options = folder("sweep", other_files).keeping_store();
     let task = sweep::ObservablesTask::of(&resolved);
-    let table = run_grid(&case, &grid, &task, &out_dir, &options, common, &case.name)?;
+    let table = run_grid(
+        &case, &grid, &task, &out_dir, &options, common, &case.name, cluster,
+    )?;
+    if !cluster.is_root() {
+        return convergence_outcome(&table, &out_dir);
+    }
     let stage = Staging::with_options(&out_dir, &options)?;
     stage.write("sweep.csv", &grid_csv(&table.columns, &table.rows))?;
     let quantities = [
