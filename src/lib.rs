@@ -114,6 +114,7 @@
 pub type C64 = num_complex::Complex64;
 
 pub mod case;
+pub mod cluster;
 pub mod device;
 pub mod electrostatics;
 pub mod grid;

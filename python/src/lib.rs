@@ -410,6 +410,7 @@ fn run_grid(
     let mut observer = PyObserver::new(progress);
     let out = py.detach(|| {
         let grid = session::parse_grid(&loaded.case, &vary)?;
+        let cluster = qheat::cluster::Cluster::single();
         let place = session::GridPlace {
             dir: &folder,
             other_files: if overwrite {
@@ -419,6 +420,7 @@ fn run_grid(
             },
             threads: rayon::current_num_threads(),
             memory_budget_bytes: None,
+            cluster: &cluster,
         };
         session::grid_run(&loaded, grid, kind, &place, &mut observer)
     });

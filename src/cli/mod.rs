@@ -13,6 +13,7 @@ mod solve;
 mod sweep;
 
 use clap::{Parser, Subcommand};
+use qheat::cluster::{Cluster, Fault};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -285,23 +286,35 @@ pub struct Common {
 
 /// Parse the command line, run, and map the outcome to an exit code.
 pub fn run() -> ExitCode {
+    // Under an MPI launcher every rank runs this; rank 0 alone prints.
+    // Failures up to the command are the same on every rank (same
+    // arguments), so each rank leaves alone; past that they go through the
+    // cluster's collectives.
+    let cluster = Cluster::start();
+    let root = cluster.is_root();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
             let code = if e.use_stderr() { 1 } else { 0 };
-            let _ = e.print();
+            if root {
+                let _ = e.print();
+            }
             return ExitCode::from(code);
         }
     };
     let threads = match thread_count(cli.threads) {
         Ok(n) => n,
         Err(message) => {
-            eprintln!("error: {message}");
+            if root {
+                eprintln!("error: {message}");
+            }
             return ExitCode::from(1);
         }
     };
     if let Err(f) = check_paths(&cli.command) {
-        eprintln!("error: {}", f.message());
+        if root {
+            eprintln!("error: {}", f.message());
+        }
         return ExitCode::from(f.code());
     }
     // The global pool can be set once; tests run commands in fresh processes.
@@ -310,15 +323,70 @@ pub fn run() -> ExitCode {
         .build_global();
     let common = Common {
         threads: rayon::current_num_threads(),
-        quiet: cli.quiet,
-        json: cli.json,
+        quiet: cli.quiet || !root,
+        json: cli.json && root,
     };
-    let outcome = dispatch(&cli.command, &common);
+    let outcome = match &cli.command {
+        Command::Sweep { .. } | Command::Screen { .. } => {
+            split_points(&cli.command, &common, &cluster)
+        }
+        other => on_root(&cluster, || dispatch(other, &common, &cluster)),
+    };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
         Err(f) => {
-            eprintln!("error: {}", f.message());
+            if root {
+                eprintln!("error: {}", f.message());
+            }
             ExitCode::from(f.code())
+        }
+    }
+}
+
+/// A command that is not split over ranks: rank 0 runs it, the others wait
+/// for its outcome and end with the same exit code.
+fn on_root(
+    cluster: &Cluster,
+    command: impl FnOnce() -> Result<(), Failure>,
+) -> Result<(), Failure> {
+    if cluster.size() == 1 {
+        return command();
+    }
+    let outcome = if cluster.is_root() { command() } else { Ok(()) };
+    agreed(cluster, outcome)
+}
+
+/// `local` where every rank succeeded, else on every rank the failure of
+/// the lowest failing rank. Every rank must call it.
+pub fn agreed<T>(cluster: &Cluster, local: Result<T, Failure>) -> Result<T, Failure> {
+    match local {
+        Ok(value) => cluster.agree(Ok(())).map(|()| value).map_err(Failure::from),
+        Err(f) => {
+            let fault = Fault::from(f);
+            Err(cluster
+                .agree(Err(fault.clone()))
+                .err()
+                .unwrap_or(fault)
+                .into())
+        }
+    }
+}
+
+impl From<Failure> for Fault {
+    fn from(f: Failure) -> Self {
+        Fault {
+            code: f.code(),
+            message: f.message().to_string(),
+        }
+    }
+}
+
+impl From<Fault> for Failure {
+    fn from(f: Fault) -> Self {
+        match f.code {
+            1 => Failure::BadInput(f.message),
+            2 => Failure::Solver(f.message),
+            _ => Failure::Io(f.message),
         }
     }
 }
@@ -344,7 +412,7 @@ fn thread_count(asked: Option<usize>) -> Result<usize, String> {
 }
 
 /// Run one command.
-fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
+fn dispatch(command: &Command, common: &Common, cluster: &Cluster) -> Result<(), Failure> {
     match command {
         Command::Check { case } => solve::check(case, common),
         Command::Solve {
@@ -371,12 +439,7 @@ fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
             out,
             overwrite,
         } => coefficients::coefficients(case, out.as_deref(), others(*overwrite), common),
-        Command::Sweep {
-            case,
-            vary,
-            out,
-            overwrite,
-        } => sweep::sweep(case, vary, out.as_deref(), others(*overwrite), common),
+        Command::Sweep { .. } | Command::Screen { .. } => split_points(command, common, cluster),
         Command::Generator {
             case,
             hot,
@@ -411,6 +474,26 @@ fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
             others(*overwrite),
             common,
         ),
+        Command::Report { dir } => report::report(dir, common),
+    }
+}
+
+/// Run a command whose points are split over the ranks of a job.
+fn split_points(command: &Command, common: &Common, cluster: &Cluster) -> Result<(), Failure> {
+    match command {
+        Command::Sweep {
+            case,
+            vary,
+            out,
+            overwrite,
+        } => sweep::sweep(
+            case,
+            vary,
+            out.as_deref(),
+            others(*overwrite),
+            common,
+            cluster,
+        ),
         Command::Screen {
             case,
             vary,
@@ -430,8 +513,9 @@ fn dispatch(command: &Command, common: &Common) -> Result<(), Failure> {
             out.as_deref(),
             others(*overwrite),
             common,
+            cluster,
         ),
-        Command::Report { dir } => report::report(dir, common),
+        _ => unreachable!("only sweep and screen split their points"),
     }
 }
 

@@ -2,10 +2,10 @@
 
 use super::curves::check_curve_options;
 use super::format::{number, si};
-use super::solve::load_case;
-use super::sweep::{convergence_outcome, run_grid};
-use super::{Common, Failure, check_memory, default_out};
+use super::sweep::{checked_load, convergence_outcome, run_grid};
+use super::{Common, Failure, agreed, default_out};
 use qheat::case::PhononConductanceSource;
+use qheat::cluster::Cluster;
 use qheat::output::OtherFiles;
 use qheat::session::GridKind;
 use qheat::sweep::screen::{CoolingCurve, Rank};
@@ -36,15 +36,18 @@ pub fn screen(
     out: Option<&Path>,
     other_files: OtherFiles,
     common: &Common,
+    cluster: &Cluster,
 ) -> Result<(), Failure> {
     let cooling = cooling_curve(rank, hot, cold, points)?;
-    let loaded = load_case(path, common)?;
-    check_memory(loaded.resolved.memory_estimate_bytes())?;
+    let loaded = agreed(cluster, checked_load(path, common))?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&loaded.case.name, "-screen"));
     let kind = GridKind::Screen { rank, cooling };
-    let run = run_grid(&loaded, vary, kind, &out_dir, other_files, common)?;
+    let run = run_grid(&loaded, vary, kind, &out_dir, other_files, common, cluster)?;
+    if !cluster.is_root() {
+        return convergence_outcome(&run, &out_dir);
+    }
     if common.json {
         println!("{}", qheat::output::schema::summary::to_text(&run.summary));
     } else if !common.quiet {

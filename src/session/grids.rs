@@ -8,6 +8,7 @@
 
 use super::{Loaded, SessionError, folder};
 use crate::case::{Case, CaseErrorKind, CaseKey, PhononConductanceSource};
+use crate::cluster::{Cluster, Fault};
 use crate::output::manifest::claim_store;
 use crate::output::results::header;
 use crate::output::schema::summary::{BestPoint, GridSummary, Ranking, to_text};
@@ -16,7 +17,9 @@ use crate::output::sweep::PointFolder;
 use crate::output::{FolderOptions, OtherFiles, Staging};
 use crate::progress::Observer;
 use crate::sweep::screen::{CoolingCurve, Rank, ScreenTask, ranking, ranking_table};
-use crate::sweep::{self, Axis, Grid, PointTask, SweepError, SweepOptions, SweepTable};
+use crate::sweep::{
+    self, Axis, Grid, PointStore, PointTask, Share, SharePart, SweepError, SweepOptions, SweepTable,
+};
 use std::path::Path;
 
 /// Most points in one grid: each is a full solve, and every point is
@@ -185,6 +188,8 @@ pub struct GridPlace<'a> {
     pub threads: usize,
     /// Memory the points in flight may use (bytes), `None`: no bound.
     pub memory_budget_bytes: Option<u64>,
+    /// The processes sharing the grid ([`Cluster::single`] for one).
+    pub cluster: &'a Cluster,
 }
 
 /// Run a sweep or screen of `loaded` over `grid` into `place.dir` and
@@ -217,13 +222,7 @@ pub fn grid_run(
         ),
     };
     let options = folder(name, place.other_files).keeping_store();
-    claim_store(place.dir, &options)?;
-    let store = PointFolder::open(place.dir, sweep::sweep_fingerprint(case, &grid, &*task))?;
-    let sweep_options = SweepOptions {
-        max_parallel_lines: Some(place.threads),
-        memory_budget_bytes: place.memory_budget_bytes,
-    };
-    let table = sweep::run(case, &grid, &*task, &store, sweep_options, observer)?;
+    let table = shared_table(case, &grid, &*task, &options, place, observer)?;
     let mut run = GridRun {
         summary: grid_summary(name, loaded, &grid, &table, place.threads),
         grid,
@@ -231,6 +230,10 @@ pub fn grid_run(
         order: Vec::new(),
         phonon_conductance_source: None,
     };
+    if !place.cluster.is_root() {
+        // Rank 0 alone writes the folder.
+        return Ok(run);
+    }
     match kind {
         GridKind::Sweep => {
             let electrostatics = loaded.resolved.electrostatics.is_some();
@@ -244,6 +247,89 @@ pub fn grid_run(
         }
     }
     Ok(run)
+}
+
+/// Run the share of `grid` that this process owns and gather every share's
+/// rows into the table of the whole grid.
+///
+/// Under MPI every rank calls this: rank 0 claims the store first, then
+/// each rank runs its share of the lines (whole lines, so every point has
+/// the warm start it has in one process and its row the same bits) and
+/// keeps each finished point in the store itself; the rows meet in one
+/// gather, through which a failure on any rank ends every rank. Rank 0
+/// also stores the gathered rows it cannot see (a store on a file system
+/// the ranks do not share). With one process this is the plain run.
+fn shared_table(
+    case: &Case,
+    grid: &Grid,
+    task: &dyn PointTask,
+    options: &FolderOptions,
+    place: &GridPlace<'_>,
+    observer: &mut (dyn Observer + Send),
+) -> Result<SweepTable, SessionError> {
+    let cluster = place.cluster;
+    let claimed = match cluster.is_root() {
+        true => claim_store(place.dir, options).map_err(SessionError::from),
+        false => Ok(()),
+    };
+    cluster
+        .agree(claimed.map_err(|e| fault(&e)))
+        .map_err(from_fault)?;
+    let share = Share::new(cluster.rank(), cluster.size()).expect("a rank is below the size");
+    let sweep_options = SweepOptions {
+        max_parallel_lines: Some(place.threads),
+        memory_budget_bytes: place.memory_budget_bytes,
+    };
+    let run = PointFolder::open(place.dir, sweep::sweep_fingerprint(case, grid, task))
+        .map_err(SessionError::from)
+        .and_then(|store| {
+            let part = sweep::run_share(case, grid, task, &store, sweep_options, share, observer)?;
+            Ok((store, part))
+        });
+    let (store, part) = match run {
+        Ok((store, part)) => (Some(store), Ok(part.to_bytes())),
+        Err(e) => (None, Err(fault(&e))),
+    };
+    let parts = cluster
+        .gather(part)
+        .map_err(from_fault)?
+        .iter()
+        .map(|b| SharePart::from_bytes(b))
+        .collect::<Option<Vec<_>>>()
+        .ok_or_else(|| SessionError::Io("a rank sent rows that could not be read".into()))?;
+    let store = store.expect("every rank that got here opened its store");
+    let table = SweepTable::assemble(grid, task, &parts, store.location())?;
+    if cluster.is_root() && cluster.size() > 1 {
+        for (index, row) in table.rows.iter().enumerate() {
+            if store.row(index, row.len()).is_none() {
+                store.put_row(index, row).map_err(SweepError::Store)?;
+            }
+        }
+    }
+    Ok(table)
+}
+
+/// A failure handed to every rank, numbered like the command line's exit
+/// codes (1 bad input, 2 solver, 3 files).
+fn fault(e: &SessionError) -> Fault {
+    let code = match e {
+        SessionError::Case(_) | SessionError::BadInput(_) => 1,
+        SessionError::Output(_) | SessionError::Io(_) => 3,
+        _ => 2,
+    };
+    Fault {
+        code,
+        message: e.to_string(),
+    }
+}
+
+/// The session error of a failure another rank handed over.
+fn from_fault(f: Fault) -> SessionError {
+    match f.code {
+        1 => SessionError::BadInput(f.message),
+        2 => SessionError::Solver(f.message),
+        _ => SessionError::Io(f.message),
+    }
 }
 
 /// The common part of a grid summary.

@@ -20,9 +20,11 @@
 
 pub mod grid;
 pub mod screen;
+mod share;
 pub mod store;
 
 pub use grid::{Axis, Grid};
+pub use share::{Share, SharePart};
 pub use store::{MemoryStore, PointStore, StoreError};
 
 use crate::case::{Case, CaseError};
@@ -173,6 +175,25 @@ pub fn run(
     options: SweepOptions,
     observer: &mut (dyn Observer + Send),
 ) -> Result<SweepTable, SweepError> {
+    let part = run_share(case, grid, task, store, options, Share::WHOLE, observer)?;
+    SweepTable::assemble(grid, task, &[part], store.location())
+}
+
+/// Run (or resume) the lines of `grid` that `share` owns, as [`run`] does
+/// for the whole grid; their rows. Every point is still checked first, so
+/// bad input fails alike in every share before any point is computed. The
+/// points of a line and their warm starts are those of a whole run, so
+/// [`SweepTable::assemble`] of all shares gives the table of [`run`] to
+/// the last bit.
+pub fn run_share(
+    case: &Case,
+    grid: &Grid,
+    task: &dyn PointTask,
+    store: &dyn PointStore,
+    options: SweepOptions,
+    share: Share,
+    observer: &mut (dyn Observer + Send),
+) -> Result<SharePart, SweepError> {
     // Check every point before computing any: a bad value is bad input,
     // not a failure halfway through a long run.
     let largest = check_points(case, grid)?;
@@ -185,8 +206,8 @@ pub fn run(
             point: 0,
             message: "the task has no `converged` column".into(),
         })?;
-    let lines = grid.lines();
-    let parallel = parallel_lines(&options, lines, largest);
+    let lines = share.lines(grid.lines());
+    let parallel = parallel_lines(&options, lines.len(), largest);
     let runner = LineRunner {
         case,
         grid,
@@ -194,16 +215,19 @@ pub fn run(
         store,
         width: columns.len(),
         converged_col,
+        total: lines.len() * grid.line_length(),
         finished: AtomicUsize::new(0),
         computed: AtomicUsize::new(0),
         stop: AtomicBool::new(false),
         observer: Mutex::new(observer),
     };
-    runner.run_lines(lines, parallel)?;
-    let rows = (0..grid.len())
+    runner.run_lines(&lines, parallel)?;
+    let rows = share
+        .points(grid)
         .map(|index| {
             store
                 .row(index, columns.len())
+                .map(|row| (index, row))
                 .ok_or_else(|| SweepError::Task {
                     point: index,
                     message: format!(
@@ -213,12 +237,10 @@ pub fn run(
                 })
         })
         .collect::<Result<Vec<_>, _>>()?;
-    Ok(SweepTable {
-        columns,
+    Ok(SharePart {
         rows,
         computed: runner.computed.into_inner(),
         parallel_lines: parallel,
-        store: store.location(),
     })
 }
 
@@ -259,6 +281,8 @@ struct LineRunner<'a, 'o> {
     store: &'a dyn PointStore,
     width: usize,
     converged_col: usize,
+    /// Points this run reports (those of its share).
+    total: usize,
     finished: AtomicUsize,
     computed: AtomicUsize,
     stop: AtomicBool,
@@ -269,7 +293,7 @@ struct LineRunner<'a, 'o> {
 impl LineRunner<'_, '_> {
     /// Work through the lines on `parallel` workers; the first error stops
     /// every worker after its current point.
-    fn run_lines(&self, lines: usize, parallel: usize) -> Result<(), SweepError> {
+    fn run_lines(&self, lines: &[usize], parallel: usize) -> Result<(), SweepError> {
         let next_line = AtomicUsize::new(0);
         let failure: Mutex<Option<SweepError>> = Mutex::new(None);
         let worker = || {
@@ -277,10 +301,9 @@ impl LineRunner<'_, '_> {
                 if self.stop.load(Ordering::Relaxed) {
                     return;
                 }
-                let line = next_line.fetch_add(1, Ordering::SeqCst);
-                if line >= lines {
+                let Some(&line) = lines.get(next_line.fetch_add(1, Ordering::SeqCst)) else {
                     return;
-                }
+                };
                 if let Err(e) = self.work_line(line) {
                     self.stop.store(true, Ordering::SeqCst);
                     let mut slot = failure.lock().unwrap_or_else(|p| p.into_inner());
@@ -405,7 +428,7 @@ impl LineRunner<'_, '_> {
         observer.point_finished(&PointEvent {
             index,
             finished,
-            total: self.grid.len(),
+            total: self.total,
             computed,
             converged: row[self.converged_col] == 1.0,
         });
