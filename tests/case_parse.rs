@@ -121,7 +121,10 @@ fn memory_estimate_follows_its_formula() {
     let fixed = 8 * e * (n - 1) + 2 * e * 80 + t * 24 * n;
     let w = (0.03 / r.problem.grid.step_ev).round() as u64;
     let red = (0..e).filter(|k| (k / w) % 2 == 0).count() as u64;
-    assert!(red < e && red >= e / 2 - w, "red rows {red} of {e} (w = {w})");
+    assert!(
+        red < e && red >= e / 2 - w,
+        "red rows {red} of {e} (w = {w})"
+    );
     assert_eq!(
         r.memory_estimate_bytes(),
         e * n * 72 + red * n * 16 * 14 + fixed

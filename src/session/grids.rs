@@ -272,9 +272,11 @@ fn shared_table(
         true => claim_store(place.dir, options).map_err(SessionError::from),
         false => Ok(()),
     };
-    cluster
-        .agree(claimed.map_err(|e| fault(&e)))
-        .map_err(from_fault)?;
+    // A rank's own failure is returned as it is (its kind and hints kept);
+    // the others get it through the collective.
+    if let Err(other) = cluster.agree(claimed.as_ref().map(|_| ()).map_err(fault)) {
+        return Err(claimed.err().unwrap_or_else(|| from_fault(other)));
+    }
     let share = Share::new(cluster.rank(), cluster.size()).expect("a rank is below the size");
     let sweep_options = SweepOptions {
         max_parallel_lines: Some(place.threads),
@@ -286,13 +288,15 @@ fn shared_table(
             let part = sweep::run_share(case, grid, task, &store, sweep_options, share, observer)?;
             Ok((store, part))
         });
-    let (store, part) = match run {
-        Ok((store, part)) => (Some(store), Ok(part.to_bytes())),
-        Err(e) => (None, Err(fault(&e))),
+    let (store, part, own) = match run {
+        Ok((store, part)) => (Some(store), Ok(part.to_bytes()), None),
+        Err(e) => (None, Err(fault(&e)), Some(e)),
     };
-    let parts = cluster
-        .gather(part)
-        .map_err(from_fault)?
+    let parts = match cluster.gather(part) {
+        Ok(parts) => parts,
+        Err(other) => return Err(own.unwrap_or_else(|| from_fault(other))),
+    };
+    let parts = parts
         .iter()
         .map(|b| SharePart::from_bytes(b))
         .collect::<Option<Vec<_>>>()
