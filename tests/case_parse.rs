@@ -120,7 +120,7 @@ fn memory_estimate_follows_its_formula() {
     // E·N·72 + E_red·N·8·2·A + 8·E·(N − 1) + 2·E·(16 + 64) + T·24·N
     let fixed = 8 * e * (n - 1) + 2 * e * 80 + t * 24 * n;
     let w = (0.03 / r.problem.grid.step_ev).round() as u64;
-    let red = (0..e).filter(|k| (k / w) % 2 == 0).count() as u64;
+    let red = (0..e).filter(|k| (k / w).is_multiple_of(2)).count() as u64;
     assert!(
         red < e && red >= e / 2 - w,
         "red rows {red} of {e} (w = {w})"
