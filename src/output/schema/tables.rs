@@ -190,22 +190,7 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
              temperature (the mean contact temperature without phonons)",
             |p, i| Cell::Num(cell_lattice_temperature(p.sol, i)),
         ),
-        col(
-            "electron_density_per_nm",
-            "1/nm",
-            "electrons per nm, spin included: G^n summed over the energy grid; with \
-             [electrostatics] the count the Poisson equation sees, electrons_poisson / spacing \
-             (band-edge-aware energy weights), so both columns agree",
-            |p, i| {
-                Cell::Num(match p.electrostatics {
-                    Some(e) => {
-                        e.electrons_per_cell.get(i).copied().unwrap_or(f64::NAN)
-                            / p.sol.problem.device.spacing_nm
-                    }
-                    None => p.o.sites.electron_density_per_nm[i],
-                })
-            },
-        ),
+        electron_density_column(),
         col(
             "voltage_drop_v",
             "V",
@@ -223,7 +208,43 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
             |p, i| Cell::Num(p.o.sites.resistance_ohm[i]),
         ),
     ];
-    columns.push(Column {
+    columns.push(electron_temperature_column());
+    columns.extend(mover_columns());
+    columns.extend(electrostatics_columns());
+    Table {
+        file: "sites.csv",
+        written_by: "`qheat solve`",
+        rows: "cell of the device, left to right",
+        len: |p| p.o.sites.x_nm.len(),
+        columns,
+    }
+}
+
+/// The electron density column of sites.csv (the Poisson count with
+/// electrostatics).
+fn electron_density_column<'a>() -> Column<SolvePoint<'a>> {
+    col(
+        "electron_density_per_nm",
+        "1/nm",
+        "electrons per nm, spin included: G^n summed over the energy grid; with \
+         [electrostatics] the count the Poisson equation sees, electrons_poisson / spacing \
+         (band-edge-aware energy weights), so both columns agree",
+        |p, i| {
+            Cell::Num(match p.electrostatics {
+                Some(e) => {
+                    e.electrons_per_cell.get(i).copied().unwrap_or(f64::NAN)
+                        / p.sol.problem.device.spacing_nm
+                }
+                None => p.o.sites.electron_density_per_nm[i],
+            })
+        },
+    )
+}
+
+/// The local electron temperature column of sites.csv, written when the
+/// case asks for it.
+fn electron_temperature_column<'a>() -> Column<SolvePoint<'a>> {
+    Column {
         name: "electron_temperature_local_k",
         unit: "K",
         meaning: "temperature of the Fermi function fitted to the cell's occupation",
@@ -238,15 +259,6 @@ pub fn sites<'a>() -> Table<SolvePoint<'a>> {
                     .map_or(f64::NAN, |t| t[i]),
             )
         },
-    });
-    columns.extend(mover_columns());
-    columns.extend(electrostatics_columns());
-    Table {
-        file: "sites.csv",
-        written_by: "`qheat solve`",
-        rows: "cell of the device, left to right",
-        len: |p| p.o.sites.x_nm.len(),
-        columns,
     }
 }
 
