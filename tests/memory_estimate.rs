@@ -115,3 +115,45 @@ fn the_time_estimate_scales_with_the_work() {
         assert!(bytes < resolved.memory_estimate_bytes(), "{keys}");
     }
 }
+
+/// `solver.anderson_history = "compact"` stores the Anderson history in
+/// f32: the estimate drops by half the history's bytes, the refusal offers
+/// it first (it changes the memory and not the fixed point), and a linear
+/// mixer ignores it with a warning.
+#[test]
+fn the_compact_history_key_halves_the_history_and_is_offered_first() {
+    let text = std::fs::read_to_string(demo()).unwrap();
+    let base = demo().parent().unwrap().to_path_buf();
+    let full = Case::parse(&text, "full", &base)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    let compact_text = text.replace("[solver]", "[solver]\nanderson_history = \"compact\"");
+    assert_ne!(compact_text, text, "the demo has a [solver] table");
+    let compact = Case::parse(&compact_text, "compact", &base)
+        .unwrap()
+        .resolve()
+        .unwrap();
+    assert_eq!(compact.scba.history, qheat::scba::MixerHistory::Compact);
+    let history = full.mixer_history_bytes();
+    assert!(history > 0);
+    assert_eq!(compact.mixer_history_bytes() * 2, history);
+    assert_eq!(
+        full.memory_estimate_bytes() - compact.memory_estimate_bytes(),
+        history / 2
+    );
+    let first = &full.memory_alternatives()[0];
+    assert_eq!(first.0, "solver.anderson_history = \"compact\"");
+    assert_eq!(first.1, compact.memory_estimate_bytes());
+    assert!(
+        compact
+            .memory_alternatives()
+            .iter()
+            .all(|(k, _)| !k.contains("anderson_history"))
+    );
+    let linear_text = compact_text.replace("mixing = \"anderson\"", "mixing = \"linear\"");
+    assert_ne!(linear_text, compact_text);
+    let linear = Case::parse(&linear_text, "linear", &base).unwrap();
+    let warned = linear.resolve().unwrap().warnings.join("\n");
+    assert!(warned.contains("anderson_history is ignored"), "{warned}");
+}

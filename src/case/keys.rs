@@ -9,7 +9,7 @@ use super::sections::device::{KindName, SpinMode};
 use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, ResponseSplit};
 use super::spec::DEFAULT_SPIN_DEGENERACY;
 use crate::leads::DecimationParams;
-use crate::scba::{EnergyOrder, Mixing, ScbaParams};
+use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 
 /// What a key holds.
 #[derive(Clone, Copy)]
@@ -184,6 +184,9 @@ fn mixing_default() -> &'static str {
 }
 fn hermitian_default() -> &'static str {
     choice_name(HermitianPart::DEFAULT)
+}
+fn history_default() -> &'static str {
+    choice_name(ScbaParams::default().history)
 }
 fn order_default() -> &'static str {
     choice_name(ScbaParams::default().energy_order)
@@ -677,6 +680,13 @@ pub static KEYS: &[KeyInfo] = &[
         "",
         Number(damping_default),
         "Anderson damping, in (0, 1]",
+    ),
+    key(
+        "solver.anderson_history",
+        ValueType::Choice(choice_names::<MixerHistory>),
+        "",
+        Word(history_default),
+        "storage of the Anderson history: \"full\" (f64) or \"compact\" (f32, half the memory; the fixed point is the same)",
     ),
     key(
         "solver.hermitian_part",

@@ -180,6 +180,7 @@ pub(crate) struct RawSolver {
     pub anderson_damping: Opt<f64>,
     pub hermitian_part: Opt<String>,
     pub energy_order: Opt<String>,
+    pub anderson_history: Opt<String>,
     pub current_floor_a: Opt<f64>,
     pub decimation_eta_ev: Opt<f64>,
     pub decimation_tolerance_ev: Opt<f64>,

@@ -15,7 +15,7 @@ use crate::grid::EnergyGrid;
 use crate::leads::{Lead, Side};
 use crate::model::{Contact, Problem};
 use crate::scattering::{CouplingMatrices, PhononMode, Scattering};
-use crate::scba::{EnergyOrder, Mixing, ScbaParams};
+use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 use crate::units::thermal_energy_ev;
 use faer::Mat;
 
@@ -1290,8 +1290,8 @@ impl Resolved {
 
     /// Settings that need less memory than these, each as the case keys to
     /// set and its memory estimate (bytes), smallest change first: a
-    /// shallower Anderson history (depth halved, then depth 1), linear
-    /// mixing, and half the energies (twice the grid step).
+    /// compact (f32) Anderson history, a shallower one (depth halved, then
+    /// depth 1), linear mixing, and half the energies (twice the grid step).
     pub fn memory_alternatives(&self) -> Vec<(String, u64)> {
         let with_mixing = |m: Mixing| {
             let mut r = self.clone();
@@ -1300,6 +1300,14 @@ impl Resolved {
         };
         let mut out = Vec::new();
         if let Mixing::Anderson { depth, .. } = self.scba.mixing {
+            if self.scba.history == MixerHistory::Full {
+                let mut r = self.clone();
+                r.scba = r.scba.with_history(MixerHistory::Compact);
+                out.push((
+                    "solver.anderson_history = \"compact\"".into(),
+                    r.memory_estimate_bytes(),
+                ));
+            }
             for d in [depth / 2, 1] {
                 if d >= 1 && d < depth && !out.iter().any(|(k, _)| k == &depth_key(d)) {
                     let m = Mixing::Anderson {

@@ -5,7 +5,7 @@ use super::super::check::{At, Checker, Choice, MAX_ENERGY_EV};
 use super::super::error::CaseError;
 use super::super::raw::{RawCase, RawSolver};
 use crate::leads::DecimationParams;
-use crate::scba::{EnergyOrder, Mixing, ScbaParams};
+use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 use toml::Spanned;
 
 /// A validated `[grid]` table: what the file gives; the rest is derived
@@ -110,6 +110,13 @@ impl Choice for HermitianPart {
     ];
 }
 
+impl Choice for MixerHistory {
+    const CHOICES: &'static [(&'static str, Self)] = &[
+        ("full", MixerHistory::Full),
+        ("compact", MixerHistory::Compact),
+    ];
+}
+
 impl Choice for EnergyOrder {
     const CHOICES: &'static [(&'static str, Self)] = &[
         ("auto", EnergyOrder::Auto),
@@ -163,6 +170,12 @@ impl SolverSpec {
         }
         if let Some(o) = ck.choice(&s.energy_order, "solver.energy_order")? {
             out.scba.energy_order = o;
+        }
+        if let Some(h) = ck.choice(&s.anderson_history, "solver.anderson_history")? {
+            out.scba.history = h;
+            if matches!(out.scba.mixing, Mixing::Linear { .. }) {
+                warnings.push("solver.anderson_history is ignored with mixing = \"linear\"".into());
+            }
         }
         if let Some(f) = ck.non_negative(
             &s.current_floor_a,
