@@ -2,9 +2,10 @@
 //!
 //! µ_i is the Fermi level that, at the local temperature T_i, reproduces the
 //! electron number of cell i: Σ_k G^n_ii(E_k) = Σ_k A_ii(E_k) f(E_k; µ_i, T_i)
-//! (orbitals of the cell summed). The right side is monotone in µ_i, so
-//! bisection on the search interval [E_min − 60 k_B T, E_max + 60 k_B T]
-//! (E_min, E_max: ends of the energy grid) finds it whenever it lies there.
+//! (orbitals of the cell summed). The right side is monotone in µ_i, so a
+//! bracketed (safeguarded Newton) search on the interval
+//! [E_min − 60 k_B T, E_max + 60 k_B T] (E_min, E_max: ends of the energy
+//! grid) finds it whenever it lies there.
 //!
 //! A cell whose electron number needs a µ_i outside that interval (for
 //! example a cell whose states all sit far above a non-degenerate lead's
@@ -110,7 +111,7 @@ pub fn cell_lattice_temperatures(sol: &Solution) -> Vec<f64> {
     }
 }
 
-/// Solve Σ_k a_k f(E_k; µ, T) = target for µ by bisection on
+/// Solve Σ_k a_k f(E_k; µ, T) = target for µ on
 /// [`fermi_search_interval`]; NaN when there are no states or the match
 /// lies outside the interval ([`match_fermi_level_checked`] says which).
 pub fn match_fermi_level(
@@ -122,8 +123,38 @@ pub fn match_fermi_level(
     match_fermi_level_checked(energies, spectral, target, temperature_k).fermi_level_ev
 }
 
+/// The occupied weight Σ_k a_k f(E_k; µ, T) and its slope against µ,
+/// Σ_k a_k f(1 − f)/k_B T, in one pass.
+fn count_and_slope(energies: &[f64], spectral: &[f64], mu: f64, kt: f64) -> (f64, f64) {
+    let (mut n, mut dn) = (0.0, 0.0);
+    for (&e, &a) in energies.iter().zip(spectral) {
+        let x = (e - mu) / kt;
+        let f = if x > 0.0 {
+            let q = (-x).exp();
+            q / (1.0 + q)
+        } else {
+            1.0 / (1.0 + x.exp())
+        };
+        n += a * f;
+        dn += a * f * (1.0 - f);
+    }
+    (n, dn / kt)
+}
+
 /// Density match with the way it ended: µ (NaN unless matched) and its
 /// [`FermiLevelStatus`].
+///
+/// The occupied weight N(µ) = Σ_k a_k f(E_k; µ, T) grows monotonically with
+/// µ (a_k ≥ 0), so the root of N(µ) = target is bracketed by the search
+/// interval once its ends straddle the target. The bracket [lo, hi] keeps
+/// N(lo) < target ≤ N(hi) and shrinks at every evaluation; the next point
+/// is the Newton step from the last one (N′ is known in closed form) when
+/// that step lands inside the bracket and at least halves the step before
+/// it, and the bracket's midpoint otherwise (a safeguarded Newton
+/// iteration, W. H. Press et al., Numerical Recipes, 3rd ed. 2007, §9.4).
+/// It stops when a step moves µ by no more than a few units in the last
+/// place or the bracket cannot be split further: the same root bisection
+/// reaches, in about ten evaluations of N instead of sixty.
 pub fn match_fermi_level_checked(
     energies: &[f64],
     spectral: &[f64],
@@ -137,20 +168,15 @@ pub fn match_fermi_level_checked(
             status: FermiLevelStatus::NoStates,
         };
     }
+    let kt = thermal_energy_ev(temperature_k);
     let (mut lo, mut hi) = fermi_search_interval(energies, temperature_k);
-    let count = |mu: f64| -> f64 {
-        energies
-            .iter()
-            .zip(spectral)
-            .map(|(&e, &a)| a * fermi(e, mu, temperature_k))
-            .sum()
-    };
-    // The bisection below keeps lo at count < target and hi at
+    let count = |mu: f64| count_and_slope(energies, spectral, mu, kt);
+    // The iteration below keeps lo at count < target and hi at
     // count ≥ target; if an end already violates that, the answer is not
-    // inside and bisection would only walk to that end.
-    let outside = if count(lo) >= target {
+    // inside and the bracket would only walk to that end.
+    let outside = if count(lo).0 >= target {
         Some(FermiLevelStatus::BelowInterval)
-    } else if count(hi) < target {
+    } else if count(hi).0 < target {
         Some(FermiLevelStatus::AboveInterval)
     } else {
         None
@@ -161,19 +187,32 @@ pub fn match_fermi_level_checked(
             status,
         };
     }
+    let mut mu = 0.5 * (lo + hi);
+    let mut last_step = hi - lo;
     for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if mid == lo || mid == hi {
+        let (n, dn) = count(mu);
+        if n < target {
+            lo = mu;
+        } else {
+            hi = mu;
+        }
+        let newton = mu - (n - target) / dn;
+        let next =
+            if dn > 0.0 && newton > lo && newton < hi && (newton - mu).abs() <= 0.5 * last_step {
+                newton
+            } else {
+                0.5 * (lo + hi)
+            };
+        let step = (next - mu).abs();
+        if next <= lo || next >= hi || step <= 4.0 * f64::EPSILON * mu.abs().max(kt) {
+            mu = next.clamp(lo, hi);
             break;
         }
-        if count(mid) < target {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
+        last_step = step;
+        mu = next;
     }
     FermiMatch {
-        fermi_level_ev: 0.5 * (lo + hi),
+        fermi_level_ev: mu,
         status: FermiLevelStatus::Matched,
     }
 }
@@ -191,22 +230,36 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let cell_t = cell_lattice_temperatures(sol);
     let t = cell_t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let green = &sol.pass.green;
-    let per_cell: Vec<(FermiMatch, f64)> = (0..n)
+    // The arrays are energy-major: gather the cells a few at a time so that
+    // each energy row is read in whole cache lines, not one number per line.
+    const CELLS_AT_ONCE: usize = 16;
+    let per_cell: Vec<(FermiMatch, f64)> = (0..n.div_ceil(CELLS_AT_ONCE))
         .into_par_iter()
-        .map(|i| {
-            let mut a = vec![0.0; ne];
-            let mut filled = 0.0;
-            for (k, ak) in a.iter_mut().enumerate() {
-                for o in 0..b {
-                    let idx = k * ns + i * b + o;
-                    *ak += green.spectral(idx);
-                    filled += green.filled[idx];
+        .flat_map_iter(|chunk| {
+            let first = chunk * CELLS_AT_ONCE;
+            let cells = CELLS_AT_ONCE.min(n - first);
+            let mut a = vec![0.0; cells * ne];
+            let mut filled = vec![0.0; cells];
+            for k in 0..ne {
+                let row = k * ns + first * b;
+                for (c, fill) in filled.iter_mut().enumerate() {
+                    for o in 0..b {
+                        let idx = row + c * b + o;
+                        a[c * ne + k] += green.spectral(idx);
+                        *fill += green.filled[idx];
+                    }
                 }
             }
-            let mu = match_fermi_level_checked(&energies, &a, filled, cell_t[i]);
-            let electrons =
-                p.spin_degeneracy * filled * p.grid.step_ev / (2.0 * std::f64::consts::PI);
-            (mu, electrons)
+            let energies = &energies;
+            let cell_t = &cell_t;
+            (0..cells).map(move |c| {
+                let i = first + c;
+                let row = &a[c * ne..(c + 1) * ne];
+                let mu = match_fermi_level_checked(energies, row, filled[c], cell_t[i]);
+                let electrons =
+                    p.spin_degeneracy * filled[c] * p.grid.step_ev / (2.0 * std::f64::consts::PI);
+                (mu, electrons)
+            })
         })
         .collect();
     LocalFermiLevel {
@@ -287,4 +340,98 @@ pub fn local_electron_temperatures(sol: &Solution) -> Vec<f64> {
             fit_fermi_level_and_temperature(&energies, &a, number, energy).1
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Plain bisection to adjacent floating-point numbers: the reference
+    /// the bracketed Newton search must reproduce.
+    fn bisect(energies: &[f64], a: &[f64], target: f64, t: f64) -> f64 {
+        let (mut lo, mut hi) = fermi_search_interval(energies, t);
+        let count = |mu: f64| -> f64 {
+            energies
+                .iter()
+                .zip(a)
+                .map(|(&e, &w)| w * fermi(e, mu, t))
+                .sum()
+        };
+        loop {
+            let mid = 0.5 * (lo + hi);
+            if mid == lo || mid == hi {
+                return mid;
+            }
+            if count(mid) < target {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+    }
+
+    fn grid(n: usize, step: f64) -> Vec<f64> {
+        (0..n).map(|k| -0.2 + step * k as f64).collect()
+    }
+
+    /// A weight built from a known µ* gives µ* back; smooth, peaked, gapped
+    /// and sparse weights at room and low temperature agree with bisection.
+    /// The tolerance, 1e-12 eV, is a few hundred units in the last place of
+    /// µ: both searches stop at the root to rounding of the sum N(µ), which
+    /// is flat to ~1e-16 relative over that width.
+    #[test]
+    fn bracketed_newton_matches_bisection() {
+        let e = grid(801, 5e-4);
+        let smooth: Vec<f64> = e.iter().map(|&x| (x + 0.25).sqrt()).collect();
+        let peaked: Vec<f64> = e
+            .iter()
+            .map(|&x| 1e-3 + 1.0 / (1.0 + ((x - 0.05) / 1e-3).powi(2)))
+            .collect();
+        let gapped: Vec<f64> = e
+            .iter()
+            .map(|&x| if (-0.05..0.1).contains(&x) { 0.0 } else { 1.0 })
+            .collect();
+        let sparse: Vec<f64> = (0..e.len())
+            .map(|k| if k % 97 == 3 { 1.0 + k as f64 } else { 0.0 })
+            .collect();
+        for a in [&smooth, &peaked, &gapped, &sparse] {
+            for t in [300.0, 4.0] {
+                let total: f64 = a.iter().sum();
+                for frac in [1e-9, 0.01, 0.3, 0.5, 0.77, 0.999] {
+                    let target = frac * total;
+                    let m = match_fermi_level_checked(&e, a, target, t);
+                    assert_eq!(m.status, FermiLevelStatus::Matched);
+                    let reference = bisect(&e, a, target, t);
+                    assert!(
+                        (m.fermi_level_ev - reference).abs() <= 1e-12,
+                        "T {t} K, fraction {frac}: {} vs {reference}",
+                        m.fermi_level_ev
+                    );
+                }
+            }
+        }
+        let known = 0.0123;
+        let target: f64 = e
+            .iter()
+            .zip(&smooth)
+            .map(|(&x, &w)| w * fermi(x, known, 300.0))
+            .sum();
+        let m = match_fermi_level(&e, &smooth, target, 300.0);
+        assert!((m - known).abs() < 1e-12, "{m}");
+    }
+
+    /// Targets no µ in the interval reaches are flagged, not clamped.
+    #[test]
+    fn targets_outside_the_interval_are_named() {
+        let e = grid(101, 1e-3);
+        let a = vec![1.0; e.len()];
+        let total = e.len() as f64;
+        let above = match_fermi_level_checked(&e, &a, total * (1.0 + 1e-9), 300.0);
+        assert_eq!(above.status, FermiLevelStatus::AboveInterval);
+        assert!(above.fermi_level_ev.is_nan());
+        let below = match_fermi_level_checked(&e, &a, 0.0, 300.0);
+        assert_eq!(below.status, FermiLevelStatus::BelowInterval);
+        let none = match_fermi_level_checked(&e, &vec![0.0; e.len()], 1.0, 300.0);
+        assert_eq!(none.status, FermiLevelStatus::NoStates);
+    }
 }

@@ -33,7 +33,9 @@
 //! in the same block form). The values of pair (i, i+1) are reported at
 //! cell i; the last cell has no pair.
 
-use super::fermi_level::{FermiLevelStatus, cell_lattice_temperatures, match_fermi_level_checked};
+use super::fermi_level::{
+    FermiLevelStatus, FermiMatch, cell_lattice_temperatures, match_fermi_level_checked,
+};
 use super::occupation::OCCUPATION_THRESHOLD;
 use crate::C64;
 use crate::leads::{Lead, mode_pencil};
@@ -455,22 +457,14 @@ fn fill_levels(sol: &Solution, weights: &[Vec<Weights>], levels: &mut MoverLevel
         .filter(|v| v.is_finite())
         .fold(0.0f64, f64::max);
     let floor = OCCUPATION_THRESHOLD * largest;
-    for i in 0..levels.status.len() {
-        if levels.status[i] != MoverStatus::Matched {
-            continue;
-        }
-        let mut found = [f64::NAN; 2];
-        let mut status = MoverStatus::Matched;
-        for (side, (ci, ai)) in [(0, 1), (2, 3)].into_iter().enumerate() {
-            let clean = |v: f64| if v.is_finite() { v } else { 0.0 };
-            let a: Vec<f64> = weights.iter().map(|w| clean(w[i][ai])).collect();
-            let filled: f64 = weights.iter().map(|w| clean(w[i][ci])).sum();
-            let map = if side == 0 {
-                &mut levels.occupation_right
-            } else {
-                &mut levels.occupation_left
-            };
-            for (k, w) in weights.iter().enumerate() {
+    let clean = |v: f64| if v.is_finite() { v } else { 0.0 };
+    // The fillings' maps, energy by energy (the weights are energy-major).
+    for (k, w) in weights.iter().enumerate() {
+        for i in (0..levels.status.len()).filter(|&i| levels.status[i] == MoverStatus::Matched) {
+            for (map, (ci, ai)) in [
+                (&mut levels.occupation_right, (0, 1)),
+                (&mut levels.occupation_left, (2, 3)),
+            ] {
                 let (c, s) = (w[i][ci], w[i][ai]);
                 map[(i, k)] = if s.is_finite() && s > floor {
                     c / s
@@ -478,14 +472,34 @@ fn fill_levels(sol: &Solution, weights: &[Vec<Weights>], levels: &mut MoverLevel
                     f64::NAN
                 };
             }
-            let electrons = filled * per_cell;
-            if side == 0 {
-                levels.electrons_right[i] = electrons;
-            } else {
-                levels.electrons_left[i] = electrons;
+        }
+    }
+    // The levels, cell by cell in parallel: each is a density match.
+    let matched: Vec<Option<([FermiMatch; 2], [f64; 2])>> = (0..levels.status.len())
+        .into_par_iter()
+        .map(|i| {
+            if levels.status[i] != MoverStatus::Matched {
+                return None;
             }
-            let m = match_fermi_level_checked(&energies, &a, filled, temps[i]);
-            found[side] = m.fermi_level_ev;
+            let mut found = [FermiMatch {
+                fermi_level_ev: f64::NAN,
+                status: FermiLevelStatus::NoStates,
+            }; 2];
+            let mut filled = [0.0; 2];
+            for (side, (ci, ai)) in [(0, 1), (2, 3)].into_iter().enumerate() {
+                let a: Vec<f64> = weights.iter().map(|w| clean(w[i][ai])).collect();
+                filled[side] = weights.iter().map(|w| clean(w[i][ci])).sum();
+                found[side] = match_fermi_level_checked(&energies, &a, filled[side], temps[i]);
+            }
+            Some((found, filled))
+        })
+        .collect();
+    for (i, m) in matched.into_iter().enumerate() {
+        let Some((found, filled)) = m else { continue };
+        levels.electrons_right[i] = filled[0] * per_cell;
+        levels.electrons_left[i] = filled[1] * per_cell;
+        let mut status = MoverStatus::Matched;
+        for m in &found {
             status = match (status, m.status) {
                 (MoverStatus::Matched, FermiLevelStatus::Matched) => MoverStatus::Matched,
                 (MoverStatus::Matched, FermiLevelStatus::NoStates) => {
@@ -495,8 +509,8 @@ fn fill_levels(sol: &Solution, weights: &[Vec<Weights>], levels: &mut MoverLevel
                 (s, _) => s,
             };
         }
-        levels.right_ev[i] = found[0];
-        levels.left_ev[i] = found[1];
+        levels.right_ev[i] = found[0].fermi_level_ev;
+        levels.left_ev[i] = found[1].fermi_level_ev;
         levels.status[i] = status;
     }
 }
