@@ -15,10 +15,15 @@
 //! can also stop a long solve between Born iterations; a stopped solve
 //! returns [`SessionError::Cancelled`] and has written nothing.
 
+mod curves;
 mod grids;
 mod solve;
 mod tables;
 
+pub use curves::{
+    CoefficientsRun, CoolerRun, GeneratorRun, MAX_CURVE_POINTS, Spelling, check_curve_options,
+    coefficients, cooler, generator,
+};
 pub use grids::{GridKind, GridPlace, GridRun, MAX_GRID_POINTS, grid_run, parse_grid};
 pub use solve::{SolveOptions, Solved, solve, write_failure};
 pub use tables::{BondCurrentMap, columns};
@@ -160,6 +165,27 @@ impl Loaded {
             memory_size(available),
             options.join("\n")
         )))
+    }
+}
+
+/// Refuse, before any work, a run whose energy-resolved arrays (the
+/// memory estimate `estimate_bytes` of its case) exceed 80 % of
+/// `available` bytes (`None`: not known, nothing refused): the check of
+/// coefficients, curves and grids, whose runs each hold one solve's arrays
+/// at a time.
+pub fn refuse_arrays_beyond_memory(
+    estimate_bytes: u64,
+    available: Option<u64>,
+) -> Result<(), SessionError> {
+    match available {
+        Some(avail) if estimate_bytes > avail / 10 * 8 => Err(SessionError::BadInput(format!(
+            "this case needs about {:.1} GiB for its energy-resolved arrays but only {:.1} GiB are available; \
+             use a coarser grid.step_ev, a narrower grid window, fewer cells, or linear mixing (mixing = \"linear\") \
+             which keeps no history",
+            estimate_bytes as f64 / (1u64 << 30) as f64,
+            avail as f64 / (1u64 << 30) as f64
+        ))),
+        _ => Ok(()),
     }
 }
 
