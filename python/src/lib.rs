@@ -1,12 +1,16 @@
 //! qheat from Python: load a case (a TOML file or a dict), check it, solve
-//! it, and get the results as numpy arrays and plain Python values, or
-//! write the same result folder as the command line.
+//! it, compute its coefficients, generator and cooler curves, sweep and
+//! screen it, and get the results as numpy arrays and plain Python values,
+//! or write the same result folder as the command line.
 //!
 //! Every run goes through the library's command-level functions
 //! (`qheat::session`), so the numbers and files are those of the command
-//! line. Solves release the GIL; Ctrl-C stops them between Born
-//! iterations (KeyboardInterrupt, nothing written).
+//! line. Runs release the GIL; Ctrl-C stops them (KeyboardInterrupt,
+//! nothing written): a solve or a coefficient run at its next Born
+//! iteration, a curve after its solve in progress, a sweep or screen
+//! after its points in flight (which stay in its store for the next run).
 
+mod curves;
 mod errors;
 mod observer;
 
@@ -528,6 +532,11 @@ fn _qheat(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<GridResult>()?;
     m.add_function(wrap_pyfunction!(sweep, m)?)?;
     m.add_function(wrap_pyfunction!(screen, m)?)?;
+    m.add_class::<curves::CoefficientsResult>()?;
+    m.add_class::<curves::CurveResult>()?;
+    m.add_function(wrap_pyfunction!(curves::coefficients, m)?)?;
+    m.add_function(wrap_pyfunction!(curves::generator, m)?)?;
+    m.add_function(wrap_pyfunction!(curves::cooler, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

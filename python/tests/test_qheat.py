@@ -259,9 +259,67 @@ def test_screen_and_sweep_match_the_cli(phonon_case, tmp_path):
         qheat.sweep(case, ["bias.voltag=0:1:2"], tmp_path / "bad")
 
 
+def same_folders(cli_dir, py_dir):
+    """The two folders hold the same files with the same bytes."""
+    names = sorted(p.name for p in cli_dir.iterdir())
+    assert names == sorted(p.name for p in py_dir.iterdir())
+    for name in names:
+        assert (cli_dir / name).read_bytes() == (py_dir / name).read_bytes(), name
+
+
+def test_coefficients_match_the_cli(phonon_case, tmp_path):
+    import json
+
+    # With a phonon mode: four finite-difference runs, each a Born loop.
+    cli("coefficients", phonon_case, "-o", tmp_path / "cli")
+    seen = []
+    result = qheat.coefficients(qheat.load(str(phonon_case)), progress=seen.append)
+    assert seen and {r["event"] for r in seen} == {"born iteration"}
+    written = result.write(tmp_path / "py")
+    same_folders(tmp_path / "cli", tmp_path / "py")
+    from_file = json.loads((tmp_path / "cli" / "summary.json").read_text())
+    assert result.summary == from_file == written
+    assert result.coefficients == from_file["coefficients"]
+    assert result.coefficients["seebeck_v_per_k"] != 0.0
+
+
+def test_generator_and_cooler_match_the_cli(tmp_path):
+    import json
+
+    path = DEMO / "thermionic-barrier.toml"
+    case = qheat.load(str(path))
+    cli("generator", path, "--hot", 330, "--cold", 300, "--points", 3, "-o", tmp_path / "cli-g")
+    seen = []
+    curve = qheat.generator(case, 330.0, 300.0, points=3, progress=seen.append)
+    assert curve.kind == "generator" and curve.converged
+    assert {r["event"] for r in seen} == {"curve solve"}
+    assert len(seen) == curve.summary["solves"]
+    curve.write(tmp_path / "py-g")
+    same_folders(tmp_path / "cli-g", tmp_path / "py-g")
+    same_table(read_csv(tmp_path / "cli-g" / "generator.csv"), curve.table, "generator.csv")
+    assert curve.summary == json.loads((tmp_path / "cli-g" / "summary.json").read_text())
+    cli("cooler", path, "--hot", 300, "--cold", 290, "--points", 3, "--cold-lead", "left", "-o", tmp_path / "cli-c")
+    curve = qheat.cooler(case, hot=300.0, cold=290.0, points=3, cold_lead="left")
+    assert curve.kind == "cooler" and curve.converged
+    curve.write(tmp_path / "py-c")
+    same_folders(tmp_path / "cli-c", tmp_path / "py-c")
+    same_table(read_csv(tmp_path / "cli-c" / "cooler.csv"), curve.table, "cooler.csv")
+    # Options are checked as the command line checks them, named as keywords.
+    with pytest.raises(qheat.InputError, match="hot = 300, cold = 330: expected hot > cold"):
+        qheat.generator(case, 300.0, 330.0)
+    with pytest.raises(qheat.InputError, match="points: expected 3 to"):
+        qheat.cooler(case, 300.0, 290.0, points=2)
+    with pytest.raises(qheat.InputError, match="cold_lead"):
+        qheat.cooler(case, 300.0, 290.0, cold_lead="middle")
+
+
 def test_help_and_docstrings():
     assert "progress" in qheat.solve.__doc__ and "KeyboardInterrupt" in qheat.solve.__doc__
     assert qheat.solve.__text_signature__ == "(case, /, *, warm_start=None, progress=None)"
     assert "dict" in qheat.load.__doc__
     assert "write" in qheat.SolveResult.__doc__
+    for run in [qheat.coefficients, qheat.generator, qheat.cooler]:
+        assert "progress" in run.__doc__ and "KeyboardInterrupt" in run.__doc__, run
+    assert qheat.generator.__text_signature__ == "(case, /, hot, cold, *, points=41, progress=None)"
+    assert "table" in qheat.CurveResult.__doc__ and "write" in qheat.CoefficientsResult.__doc__
     assert issubclass(qheat.NotConverged, qheat.SolverError)
