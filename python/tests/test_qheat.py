@@ -323,3 +323,45 @@ def test_help_and_docstrings():
     assert qheat.generator.__text_signature__ == "(case, /, hot, cold, *, points=41, progress=None)"
     assert "table" in qheat.CurveResult.__doc__ and "write" in qheat.CoefficientsResult.__doc__
     assert issubclass(qheat.NotConverged, qheat.SolverError)
+
+
+def test_interrupting_a_sweep_stops_it_and_the_rerun_resumes(phonon_case, tmp_path):
+    # One axis is one line of points, run in order: an interrupt raised by
+    # the callback at the first finished point stops the sweep before the
+    # second, and the points finished stay in the folder's store.
+    case = qheat.load(str(phonon_case))
+    vary = ["bias.voltage_v=0.01:0.04:4"]
+    seen = []
+
+    def stop(record):
+        seen.append(record["index"])
+        raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        qheat.sweep(case, vary, tmp_path / "grid", progress=stop)
+    assert seen == [0]
+    assert not (tmp_path / "grid" / "sweep.csv").exists(), "no result written"
+    events = []
+    grid = qheat.sweep(case, vary, tmp_path / "grid", progress=events.append)
+    assert [(e["index"], e["computed"]) for e in events] == [(0, False), (1, True), (2, True), (3, True)]
+    assert grid.summary["from_earlier_runs"] == 1 and grid.summary["computed_this_run"] == 3
+    cli("sweep", phonon_case, "--vary", vary[0], "-o", tmp_path / "cli")
+    assert (tmp_path / "cli" / "sweep.csv").read_bytes() == (tmp_path / "grid" / "sweep.csv").read_bytes()
+
+
+def test_interrupts_stop_coefficients_and_curves(phonon_case):
+    seen = []
+
+    def stop(record):
+        seen.append(record["event"])
+        raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        qheat.coefficients(qheat.load(str(phonon_case)), progress=stop)
+    assert seen == ["born iteration"]
+    case = qheat.load(str(DEMO / "thermionic-barrier.toml"))
+    for run in [qheat.generator, qheat.cooler]:
+        seen.clear()
+        with pytest.raises(KeyboardInterrupt):
+            run(case, 330.0, 300.0, points=9, progress=stop)
+        assert seen == ["curve solve"], run

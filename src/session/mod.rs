@@ -12,8 +12,11 @@
 //! ends (a Python module, notebooks, scripts) call the same functions.
 //!
 //! Solvers report progress through a [`crate::progress::Observer`], which
-//! can also stop a long solve between Born iterations; a stopped solve
-//! returns [`SessionError::Cancelled`] and has written nothing.
+//! can also stop a long run: a solve or a coefficient run between Born
+//! iterations, a generator or cooler curve between its solves, a sweep or
+//! screen before its next point. A stopped run returns
+//! [`SessionError::Cancelled`] and has written no result (a grid keeps the
+//! points it finished in its store, so it resumes from them).
 
 mod curves;
 mod grids;
@@ -65,8 +68,13 @@ pub enum SessionError {
     /// Reading or writing a grid's point store failed.
     #[error("{0}")]
     Io(String),
-    /// The observer asked the run to stop; nothing was returned or written.
-    #[error("the run was cancelled before it finished; nothing was written")]
+    /// The observer asked the run to stop; nothing was returned and no
+    /// result written (a sweep or screen keeps the points it finished in
+    /// its store, so the same run started again resumes).
+    #[error(
+        "the run was cancelled before it finished; no result was written (a sweep or screen keeps \
+         its finished points for the next run)"
+    )]
     Cancelled,
 }
 
