@@ -92,6 +92,7 @@ def solve(
     *,
     warm_start: Optional[Union[str, os.PathLike[str]]] = None,
     progress: Optional[Progress] = None,
+    ignore_memory_estimate: bool = False,
 ) -> SolveResult: ...
 
 class GridResult:

@@ -315,7 +315,9 @@ def test_generator_and_cooler_match_the_cli(tmp_path):
 
 def test_help_and_docstrings():
     assert "progress" in qheat.solve.__doc__ and "KeyboardInterrupt" in qheat.solve.__doc__
-    assert qheat.solve.__text_signature__ == "(case, /, *, warm_start=None, progress=None)"
+    assert qheat.solve.__text_signature__ == (
+        "(case, /, *, warm_start=None, progress=None, ignore_memory_estimate=False)"
+    )
     assert "dict" in qheat.load.__doc__
     assert "write" in qheat.SolveResult.__doc__
     for run in [qheat.coefficients, qheat.generator, qheat.cooler]:
@@ -365,3 +367,31 @@ def test_interrupts_stop_coefficients_and_curves(phonon_case):
         with pytest.raises(KeyboardInterrupt):
             run(case, 330.0, 300.0, points=9, progress=stop)
         assert seen == ["curve solve"], run
+
+
+def test_solve_refuses_a_case_beyond_the_memory_as_the_cli_does(phonon_case, tmp_path, monkeypatch):
+    # The same budget override the command-line test uses: 1000 bytes is
+    # below any case's estimate.
+    monkeypatch.setenv("QHEAT_MEMORY_LIMIT_BYTES", "1000")
+    out = subprocess.run(
+        [str(binary()), "solve", str(phonon_case), "-o", str(tmp_path / "cli")],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 1 and not (tmp_path / "cli").exists()
+    case = qheat.load(str(phonon_case))
+    with pytest.raises(qheat.InputError) as e:
+        qheat.solve(case, progress=lambda r: pytest.fail("nothing may run"))
+    message = e.value.message
+    assert "needs about" in message
+    # The CLI's message, with the option that runs anyway named as Python names it.
+    assert "ignore_memory_estimate=True" in message
+    cli_message = out.stderr.split("error: ", 1)[1]
+    assert cli_message == message.replace("ignore_memory_estimate=True", "--ignore-memory-estimate") + "\n"
+    # Told to, it runs.
+    assert qheat.solve(case, ignore_memory_estimate=True).converged
+    # Grids and curves check the estimate too, as the command line does.
+    with pytest.raises(qheat.InputError, match="energy-resolved arrays"):
+        qheat.sweep(case, ["bias.voltage_v=0.01:0.02:2"], tmp_path / "grid")
+    with pytest.raises(qheat.InputError, match="energy-resolved arrays"):
+        qheat.coefficients(case)

@@ -147,6 +147,16 @@ impl Loaded {
     /// of `available` bytes (`None`: not known, nothing refused), naming
     /// the settings that would fit with their estimates.
     pub fn refuse_beyond_memory(&self, available: Option<u64>) -> Result<(), SessionError> {
+        self.refuse_beyond_memory_as(available, Spelling::Cli)
+    }
+
+    /// [`Loaded::refuse_beyond_memory`] with the option that runs anyway
+    /// named as `spelling` names options.
+    pub fn refuse_beyond_memory_as(
+        &self,
+        available: Option<u64>,
+        spelling: Spelling,
+    ) -> Result<(), SessionError> {
         let Some(available) = available else {
             return Ok(());
         };
@@ -168,10 +178,14 @@ impl Loaded {
             "this solve needs about {} by the memory estimate (`qheat check` shows it), more \
              than 80 % of the {} available (GiB = 2^30 bytes); nothing was run. Settings that \
              need less:\n{}\nhint: set one of them in the case (or use fewer cells), or pass \
-             --ignore-memory-estimate to run anyway",
+             {} to run anyway",
             memory_size(need),
             memory_size(available),
-            options.join("\n")
+            options.join("\n"),
+            match spelling {
+                Spelling::Cli => "--ignore-memory-estimate",
+                Spelling::Keywords => "ignore_memory_estimate=True",
+            }
         )))
     }
 }
