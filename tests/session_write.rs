@@ -1,8 +1,12 @@
 //! The library's command-level runs (`qheat::session`) give the same
 //! result folder as the command line, byte for byte, and their in-memory
 //! tables hold exactly the numbers of the CSV files; an observer can stop
-//! a solve between Born iterations and nothing is returned.
+//! a solve between Born iterations, a coefficient run at its next Born
+//! iteration and a curve after its solve in progress, and nothing is
+//! returned.
 
+use qheat::leads::Side;
+use qheat::output::OtherFiles;
 use qheat::progress::{IterationRecord, Observer, Silent};
 use qheat::session::{self, Loaded, SessionError, SolveOptions, WriteOptions};
 use std::collections::BTreeMap;
@@ -37,8 +41,16 @@ step_ev = 0.005
 "#;
 
 fn cli_solve(case: &Path, out: &Path) {
+    cli(&["solve"], case, &[], out);
+}
+
+/// `qheat COMMAND CASE EXTRA -o OUT --quiet --threads 1`, which must succeed.
+fn cli(command: &[&str], case: &Path, extra: &[&str], out: &Path) {
     let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
-        .args(["solve", case.to_str().unwrap(), "-o", out.to_str().unwrap()])
+        .args(command)
+        .args([case.to_str().unwrap()])
+        .args(extra)
+        .args(["-o", out.to_str().unwrap()])
         .args(["--quiet", "--threads", "1"])
         .output()
         .unwrap();
@@ -104,6 +116,20 @@ fn same_numbers(a: &[(String, Vec<f64>)], b: &[(&str, Vec<f64>)], file: &str) {
     }
 }
 
+/// The two folders hold the same files with the same bytes.
+fn same_folders(cli: &Path, lib: &Path) -> BTreeMap<String, Vec<u8>> {
+    let (a, b) = (files(cli), files(lib));
+    assert_eq!(
+        a.keys().collect::<Vec<_>>(),
+        b.keys().collect::<Vec<_>>(),
+        "the same files"
+    );
+    for (name, bytes) in &a {
+        assert!(bytes == &b[name], "{name} differs between CLI and library");
+    }
+    a
+}
+
 fn compare(case: &Path) {
     let dir = tempfile::tempdir().unwrap();
     let (cli, lib) = (dir.path().join("cli"), dir.path().join("lib"));
@@ -116,15 +142,7 @@ fn compare(case: &Path) {
     let solved = session::solve(loaded, &options, &mut Silent).unwrap();
     assert!(solved.converged() && solved.not_converged("results").is_none());
     solved.write(&lib, &WriteOptions::default()).unwrap();
-    let (a, b) = (files(&cli), files(&lib));
-    assert_eq!(
-        a.keys().collect::<Vec<_>>(),
-        b.keys().collect::<Vec<_>>(),
-        "the same files"
-    );
-    for (name, bytes) in &a {
-        assert!(bytes == &b[name], "{name} differs between CLI and library");
-    }
+    let a = same_folders(&cli, &lib);
     same_numbers(&csv_columns(&a["sites.csv"]), &solved.sites(), "sites.csv");
     same_numbers(
         &csv_columns(&a["spectrum.csv"]),
@@ -179,4 +197,99 @@ fn an_observer_stops_a_solve_between_born_iterations() {
     let e = qheat::scba::solve(&p.problem, &p.scba, None, &mut stop).unwrap_err();
     assert_eq!(e, qheat::scba::SolveError::Cancelled { iteration: 3 });
     assert_eq!(e.kind(), "cancelled");
+}
+
+fn demo(name: &str) -> std::path::PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("cases-demo")
+        .join(name)
+}
+
+#[test]
+fn library_writes_the_cli_folder_of_coefficients() {
+    // With a phonon mode: the four finite-difference runs and their
+    // response matrix go into summary.json.
+    let dir = tempfile::tempdir().unwrap();
+    let case = dir.path().join("phonon.toml");
+    std::fs::write(&case, PHONON_CASE).unwrap();
+    let (cli_dir, lib) = (dir.path().join("cli"), dir.path().join("lib"));
+    cli(&["coefficients"], &case, &[], &cli_dir);
+    let loaded = Loaded::from_file(&case).unwrap();
+    let run = session::coefficients(loaded, 1, &mut Silent).unwrap();
+    assert!(run.summary.response.get("iterations").is_some());
+    run.write(&lib, OtherFiles::Refuse).unwrap();
+    same_folders(&cli_dir, &lib);
+}
+
+#[test]
+fn library_writes_the_cli_folders_of_generator_and_cooler() {
+    let dir = tempfile::tempdir().unwrap();
+    let case = demo("thermionic-barrier.toml");
+    let (cli_dir, lib) = (dir.path().join("cli-g"), dir.path().join("lib-g"));
+    let temps = ["--hot", "330", "--cold", "300", "--points", "3"];
+    cli(&["generator"], &case, &temps, &cli_dir);
+    let loaded = Loaded::from_file(&case).unwrap();
+    let run = session::generator(loaded.clone(), 330.0, 300.0, 3, &mut Silent).unwrap();
+    assert!(run.not_converged("results").is_none());
+    run.write(&lib, OtherFiles::Refuse).unwrap();
+    let a = same_folders(&cli_dir, &lib);
+    same_numbers(
+        &csv_columns(&a["generator.csv"]),
+        &run.table(),
+        "generator.csv",
+    );
+    let (cli_dir, lib) = (dir.path().join("cli-c"), dir.path().join("lib-c"));
+    let temps = ["--hot", "300", "--cold", "290", "--points", "3"];
+    cli(
+        &["cooler"],
+        &case,
+        &[&temps[..], &["--cold-lead", "left"]].concat(),
+        &cli_dir,
+    );
+    let run = session::cooler(loaded, 300.0, 290.0, 3, Side::Left, &mut Silent).unwrap();
+    run.write(&lib, OtherFiles::Refuse).unwrap();
+    let a = same_folders(&cli_dir, &lib);
+    same_numbers(&csv_columns(&a["cooler.csv"]), &run.table(), "cooler.csv");
+}
+
+/// Stops whatever runs once `after` solves of a curve are done.
+struct StopAfterSolves {
+    after: usize,
+    solves: usize,
+}
+
+impl Observer for StopAfterSolves {
+    fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {
+        self.solves += 1;
+    }
+    fn cancelled(&self) -> bool {
+        self.solves >= self.after
+    }
+}
+
+#[test]
+fn an_observer_stops_coefficients_and_curves() {
+    let loaded = Loaded::from_text(PHONON_CASE, "inline", Path::new(".")).unwrap();
+    let mut stop = StopAfter { after: 2, seen: 0 };
+    let r = session::coefficients(loaded, 1, &mut stop);
+    assert!(matches!(r, Err(SessionError::Cancelled)), "{r:?}");
+    assert_eq!(
+        stop.seen, 2,
+        "stopped right after the second Born iteration"
+    );
+    let loaded = Loaded::from_file(&demo("thermionic-barrier.toml")).unwrap();
+    let mut stop = StopAfterSolves {
+        after: 2,
+        solves: 0,
+    };
+    let r = session::generator(loaded.clone(), 330.0, 300.0, 9, &mut stop);
+    assert!(matches!(r, Err(SessionError::Cancelled)), "{r:?}");
+    assert_eq!(stop.solves, 2, "no solve after the one that asked to stop");
+    let mut stop = StopAfterSolves {
+        after: 1,
+        solves: 0,
+    };
+    let r = session::cooler(loaded, 300.0, 290.0, 9, Side::Right, &mut stop);
+    assert!(matches!(r, Err(SessionError::Cancelled)), "{r:?}");
+    assert_eq!(stop.solves, 1);
 }

@@ -10,6 +10,9 @@ folder as the ``qheat`` command line::
     result.summary["results"]["current_a"]
     result.sites["lattice_power_w"]          # numpy array, one per cell
     result.write("runs/barrier")
+    qheat.coefficients(case).coefficients["seebeck_v_per_k"]
+    curve = qheat.generator(case, 330.0, 300.0, points=21)
+    curve.table["power_w"]                    # numpy array, one per voltage
 
 Errors are subclasses of ``QheatError``: ``CaseError`` (with ``file``,
 ``line``, ``key``), ``InputError``, ``SolverError``, ``NotConverged``
@@ -18,6 +21,8 @@ Errors are subclasses of ``QheatError``: ``CaseError`` (with ``file``,
 
 from ._qheat import (
     Case,
+    CoefficientsResult,
+    CurveResult,
     GridResult,
     CaseError,
     InputError,
@@ -27,6 +32,9 @@ from ._qheat import (
     SolveResult,
     SolverError,
     __version__,
+    coefficients,
+    cooler,
+    generator,
     load,
     screen,
     solve,
@@ -35,6 +43,8 @@ from ._qheat import (
 
 __all__ = [
     "Case",
+    "CoefficientsResult",
+    "CurveResult",
     "GridResult",
     "CaseError",
     "InputError",
@@ -44,6 +54,9 @@ __all__ = [
     "SolveResult",
     "SolverError",
     "__version__",
+    "coefficients",
+    "cooler",
+    "generator",
     "load",
     "screen",
     "solve",

@@ -1,7 +1,7 @@
 """Type hints of the native part of qheat (see the package docstring)."""
 
 import os
-from typing import Any, Callable, Mapping, Optional, Union
+from typing import Any, Callable, Literal, Mapping, Optional, Union
 
 import numpy as np
 import numpy.typing as npt
@@ -38,7 +38,7 @@ class SolverError(QheatError):
 class NotConverged(SolverError):
     """A loop stopped before converging; `result` is the flagged result."""
 
-    result: "SolveResult"
+    result: Union["SolveResult", "GridResult", "CurveResult"]
 
 class OutputError(QheatError):
     """A result folder could not be written or read."""
@@ -92,6 +92,7 @@ def solve(
     *,
     warm_start: Optional[Union[str, os.PathLike[str]]] = None,
     progress: Optional[Progress] = None,
+    ignore_memory_estimate: bool = False,
 ) -> SolveResult: ...
 
 class GridResult:
@@ -128,3 +129,57 @@ def screen(
     overwrite: bool = False,
     progress: Optional[Progress] = None,
 ) -> GridResult: ...
+
+class CoefficientsResult:
+    """Linear-response coefficients of a case (what `qheat coefficients`
+    computes)."""
+
+    @property
+    def summary(self) -> dict[str, Any]: ...
+    @property
+    def coefficients(self) -> dict[str, Any]: ...
+    def write(
+        self, folder: Union[str, os.PathLike[str]], *, overwrite: bool = False
+    ) -> dict[str, Any]: ...
+
+def coefficients(
+    case: Case,
+    /,
+    *,
+    progress: Optional[Progress] = None,
+) -> CoefficientsResult: ...
+
+class CurveResult:
+    """A generator or cooler curve: its table, summary and folder."""
+
+    @property
+    def kind(self) -> Literal["generator", "cooler"]: ...
+    @property
+    def summary(self) -> dict[str, Any]: ...
+    @property
+    def table(self) -> dict[str, Array]: ...
+    @property
+    def converged(self) -> bool: ...
+    def write(
+        self, folder: Union[str, os.PathLike[str]], *, overwrite: bool = False
+    ) -> dict[str, Any]: ...
+
+def generator(
+    case: Case,
+    /,
+    hot: float,
+    cold: float,
+    *,
+    points: int = 41,
+    progress: Optional[Progress] = None,
+) -> CurveResult: ...
+def cooler(
+    case: Case,
+    /,
+    hot: float,
+    cold: float,
+    *,
+    points: int = 41,
+    cold_lead: Literal["left", "right"] = "right",
+    progress: Optional[Progress] = None,
+) -> CurveResult: ...

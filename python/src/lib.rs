@@ -1,12 +1,16 @@
 //! qheat from Python: load a case (a TOML file or a dict), check it, solve
-//! it, and get the results as numpy arrays and plain Python values, or
-//! write the same result folder as the command line.
+//! it, compute its coefficients, generator and cooler curves, sweep and
+//! screen it, and get the results as numpy arrays and plain Python values,
+//! or write the same result folder as the command line.
 //!
 //! Every run goes through the library's command-level functions
 //! (`qheat::session`), so the numbers and files are those of the command
-//! line. Solves release the GIL; Ctrl-C stops them between Born
-//! iterations (KeyboardInterrupt, nothing written).
+//! line. Runs release the GIL; Ctrl-C stops them (KeyboardInterrupt,
+//! nothing written): a solve or a coefficient run at its next Born
+//! iteration, a curve after its solve in progress, a sweep or screen
+//! after its points in flight (which stay in its store for the next run).
 
+mod curves;
 mod errors;
 mod observer;
 
@@ -16,6 +20,7 @@ use observer::PyObserver;
 use pyo3::prelude::*;
 use pyo3::types::{PyBool, PyDict, PyFloat, PyInt, PyList, PyString, PyTuple};
 use qheat::output::OtherFiles;
+use qheat::output::memory::available_memory_bytes;
 use qheat::output::sizes::ResultLimits;
 use qheat::session::{self, Loaded, SessionError, SolveOptions, Solved, WriteOptions};
 use std::path::PathBuf;
@@ -307,17 +312,26 @@ fn write_options(
 /// event (``{"event": "born iteration", "iteration": 3, "residual": ...}``).
 /// The GIL is released while solving; Ctrl-C (KeyboardInterrupt) or an
 /// exception raised by `progress` stops the solve at the next Born
-/// iteration, is raised here, and nothing is written. Raises NotConverged (with `.result`) when a loop did not
-/// converge, SolverError on a numerical fault.
+/// iteration, is raised here, and nothing is written. Raises NotConverged
+/// (with `.result`) when a loop did not converge, SolverError on a
+/// numerical fault, and InputError, before any work, when the case's
+/// memory estimate exceeds 80 % of the memory available (as the command
+/// line does; `ignore_memory_estimate=True` runs anyway).
 #[pyfunction]
-#[pyo3(signature = (case, /, *, warm_start = None, progress = None))]
+#[pyo3(signature = (case, /, *, warm_start = None, progress = None, ignore_memory_estimate = false))]
 fn solve(
     py: Python<'_>,
     case: &Case,
     warm_start: Option<PathBuf>,
     progress: Option<Py<PyAny>>,
+    ignore_memory_estimate: bool,
 ) -> PyResult<SolveResult> {
     let loaded = case.loaded.clone();
+    if !ignore_memory_estimate {
+        loaded
+            .refuse_beyond_memory_as(available_memory_bytes(), session::Spelling::Keywords)
+            .map_err(|e| session_error(py, e, None))?;
+    }
     let mut observer = PyObserver::new(progress);
     let options = SolveOptions {
         warm_start: warm_start.as_deref(),
@@ -407,6 +421,9 @@ fn run_grid(
     progress: Option<Py<PyAny>>,
 ) -> PyResult<GridResult> {
     let loaded = case.loaded.clone();
+    let available = available_memory_bytes();
+    session::refuse_arrays_beyond_memory(loaded.resolved.memory_estimate_bytes(), available)
+        .map_err(|e| session_error(py, e, None))?;
     let mut observer = PyObserver::new(progress);
     let out = py.detach(|| {
         let grid = session::parse_grid(&loaded.case, &vary)?;
@@ -419,7 +436,7 @@ fn run_grid(
                 OtherFiles::Refuse
             },
             threads: rayon::current_num_threads(),
-            memory_budget_bytes: None,
+            memory_budget_bytes: available.map(|b| b / 10 * 8),
             cluster: &cluster,
         };
         session::grid_run(&loaded, grid, kind, &place, &mut observer)
@@ -528,6 +545,11 @@ fn _qheat(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<GridResult>()?;
     m.add_function(wrap_pyfunction!(sweep, m)?)?;
     m.add_function(wrap_pyfunction!(screen, m)?)?;
+    m.add_class::<curves::CoefficientsResult>()?;
+    m.add_class::<curves::CurveResult>()?;
+    m.add_function(wrap_pyfunction!(curves::coefficients, m)?)?;
+    m.add_function(wrap_pyfunction!(curves::generator, m)?)?;
+    m.add_function(wrap_pyfunction!(curves::cooler, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

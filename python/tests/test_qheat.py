@@ -259,9 +259,139 @@ def test_screen_and_sweep_match_the_cli(phonon_case, tmp_path):
         qheat.sweep(case, ["bias.voltag=0:1:2"], tmp_path / "bad")
 
 
+def same_folders(cli_dir, py_dir):
+    """The two folders hold the same files with the same bytes."""
+    names = sorted(p.name for p in cli_dir.iterdir())
+    assert names == sorted(p.name for p in py_dir.iterdir())
+    for name in names:
+        assert (cli_dir / name).read_bytes() == (py_dir / name).read_bytes(), name
+
+
+def test_coefficients_match_the_cli(phonon_case, tmp_path):
+    import json
+
+    # With a phonon mode: four finite-difference runs, each a Born loop.
+    cli("coefficients", phonon_case, "-o", tmp_path / "cli")
+    seen = []
+    result = qheat.coefficients(qheat.load(str(phonon_case)), progress=seen.append)
+    assert seen and {r["event"] for r in seen} == {"born iteration"}
+    written = result.write(tmp_path / "py")
+    same_folders(tmp_path / "cli", tmp_path / "py")
+    from_file = json.loads((tmp_path / "cli" / "summary.json").read_text())
+    assert result.summary == from_file == written
+    assert result.coefficients == from_file["coefficients"]
+    assert result.coefficients["seebeck_v_per_k"] != 0.0
+
+
+def test_generator_and_cooler_match_the_cli(tmp_path):
+    import json
+
+    path = DEMO / "thermionic-barrier.toml"
+    case = qheat.load(str(path))
+    cli("generator", path, "--hot", 330, "--cold", 300, "--points", 3, "-o", tmp_path / "cli-g")
+    seen = []
+    curve = qheat.generator(case, 330.0, 300.0, points=3, progress=seen.append)
+    assert curve.kind == "generator" and curve.converged
+    assert {r["event"] for r in seen} == {"curve solve"}
+    assert len(seen) == curve.summary["solves"]
+    curve.write(tmp_path / "py-g")
+    same_folders(tmp_path / "cli-g", tmp_path / "py-g")
+    same_table(read_csv(tmp_path / "cli-g" / "generator.csv"), curve.table, "generator.csv")
+    assert curve.summary == json.loads((tmp_path / "cli-g" / "summary.json").read_text())
+    cli("cooler", path, "--hot", 300, "--cold", 290, "--points", 3, "--cold-lead", "left", "-o", tmp_path / "cli-c")
+    curve = qheat.cooler(case, hot=300.0, cold=290.0, points=3, cold_lead="left")
+    assert curve.kind == "cooler" and curve.converged
+    curve.write(tmp_path / "py-c")
+    same_folders(tmp_path / "cli-c", tmp_path / "py-c")
+    same_table(read_csv(tmp_path / "cli-c" / "cooler.csv"), curve.table, "cooler.csv")
+    # Options are checked as the command line checks them, named as keywords.
+    with pytest.raises(qheat.InputError, match="hot = 300, cold = 330: expected hot > cold"):
+        qheat.generator(case, 300.0, 330.0)
+    with pytest.raises(qheat.InputError, match="points: expected 3 to"):
+        qheat.cooler(case, 300.0, 290.0, points=2)
+    with pytest.raises(qheat.InputError, match="cold_lead"):
+        qheat.cooler(case, 300.0, 290.0, cold_lead="middle")
+
+
 def test_help_and_docstrings():
     assert "progress" in qheat.solve.__doc__ and "KeyboardInterrupt" in qheat.solve.__doc__
-    assert qheat.solve.__text_signature__ == "(case, /, *, warm_start=None, progress=None)"
+    assert qheat.solve.__text_signature__ == (
+        "(case, /, *, warm_start=None, progress=None, ignore_memory_estimate=False)"
+    )
     assert "dict" in qheat.load.__doc__
     assert "write" in qheat.SolveResult.__doc__
+    for run in [qheat.coefficients, qheat.generator, qheat.cooler]:
+        assert "progress" in run.__doc__ and "KeyboardInterrupt" in run.__doc__, run
+    assert qheat.generator.__text_signature__ == "(case, /, hot, cold, *, points=41, progress=None)"
+    assert "table" in qheat.CurveResult.__doc__ and "write" in qheat.CoefficientsResult.__doc__
     assert issubclass(qheat.NotConverged, qheat.SolverError)
+
+
+def test_interrupting_a_sweep_stops_it_and_the_rerun_resumes(phonon_case, tmp_path):
+    # One axis is one line of points, run in order: an interrupt raised by
+    # the callback at the first finished point stops the sweep before the
+    # second, and the points finished stay in the folder's store.
+    case = qheat.load(str(phonon_case))
+    vary = ["bias.voltage_v=0.01:0.04:4"]
+    seen = []
+
+    def stop(record):
+        seen.append(record["index"])
+        raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        qheat.sweep(case, vary, tmp_path / "grid", progress=stop)
+    assert seen == [0]
+    assert not (tmp_path / "grid" / "sweep.csv").exists(), "no result written"
+    events = []
+    grid = qheat.sweep(case, vary, tmp_path / "grid", progress=events.append)
+    assert [(e["index"], e["computed"]) for e in events] == [(0, False), (1, True), (2, True), (3, True)]
+    assert grid.summary["from_earlier_runs"] == 1 and grid.summary["computed_this_run"] == 3
+    cli("sweep", phonon_case, "--vary", vary[0], "-o", tmp_path / "cli")
+    assert (tmp_path / "cli" / "sweep.csv").read_bytes() == (tmp_path / "grid" / "sweep.csv").read_bytes()
+
+
+def test_interrupts_stop_coefficients_and_curves(phonon_case):
+    seen = []
+
+    def stop(record):
+        seen.append(record["event"])
+        raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        qheat.coefficients(qheat.load(str(phonon_case)), progress=stop)
+    assert seen == ["born iteration"]
+    case = qheat.load(str(DEMO / "thermionic-barrier.toml"))
+    for run in [qheat.generator, qheat.cooler]:
+        seen.clear()
+        with pytest.raises(KeyboardInterrupt):
+            run(case, 330.0, 300.0, points=9, progress=stop)
+        assert seen == ["curve solve"], run
+
+
+def test_solve_refuses_a_case_beyond_the_memory_as_the_cli_does(phonon_case, tmp_path, monkeypatch):
+    # The same budget override the command-line test uses: 1000 bytes is
+    # below any case's estimate.
+    monkeypatch.setenv("QHEAT_MEMORY_LIMIT_BYTES", "1000")
+    out = subprocess.run(
+        [str(binary()), "solve", str(phonon_case), "-o", str(tmp_path / "cli")],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 1 and not (tmp_path / "cli").exists()
+    case = qheat.load(str(phonon_case))
+    with pytest.raises(qheat.InputError) as e:
+        qheat.solve(case, progress=lambda r: pytest.fail("nothing may run"))
+    message = e.value.message
+    assert "needs about" in message
+    # The CLI's message, with the option that runs anyway named as Python names it.
+    assert "ignore_memory_estimate=True" in message
+    cli_message = out.stderr.split("error: ", 1)[1]
+    assert cli_message == message.replace("ignore_memory_estimate=True", "--ignore-memory-estimate") + "\n"
+    # Told to, it runs.
+    assert qheat.solve(case, ignore_memory_estimate=True).converged
+    # Grids and curves check the estimate too, as the command line does.
+    with pytest.raises(qheat.InputError, match="energy-resolved arrays"):
+        qheat.sweep(case, ["bias.voltage_v=0.01:0.02:2"], tmp_path / "grid")
+    with pytest.raises(qheat.InputError, match="energy-resolved arrays"):
+        qheat.coefficients(case)

@@ -1,37 +1,14 @@
 //! `qheat coefficients`: linear-response thermoelectric coefficients.
 
 use super::format::si;
-use super::progress::enabled;
-use super::solve::load;
+use super::progress::{BornProgress, enabled};
+use super::solve::load_case;
 use super::{Common, Failure, check_memory, default_out, folder};
-use qheat::output::phonons::{lattice_summary, write_phonon_files};
-use qheat::output::results::header;
-use qheat::output::schema::summary::{CoefficientsSummary, to_text};
-use qheat::output::{OtherFiles, Staging, manifest::check_folder};
+use qheat::output::{OtherFiles, manifest::check_folder};
+use qheat::session;
+use qheat::thermo::Coefficients;
 use qheat::thermo::common_grid::CommonGrid;
-use qheat::thermo::{Coefficients, of_case};
 use std::path::Path;
-
-/// Linear-response coefficients of a case, with a progress bar: the
-/// coefficients, how they were obtained (as JSON) and the energy grid the
-/// runs shared.
-pub fn case_coefficients(
-    case: &qheat::case::Case,
-    quiet: bool,
-) -> Result<(Coefficients, serde_json::Value, CommonGrid), Failure> {
-    let tol = case.resolve()?.scba.tolerance.min(1e-12);
-    let mut progress = super::progress::BornProgress::new(enabled(quiet), tol, "linear response");
-    let set = of_case::case_coefficients(case, &mut progress).map_err(|e| match e {
-        of_case::CoefficientError::Case(e) => Failure::from(e),
-        other => Failure::Solver(other.to_string()),
-    })?;
-    progress.finish();
-    let detail = match &set.response {
-        Some(m) => serde_json::to_value(m).expect("JSON"),
-        None => serde_json::json!({ "method": "transmission moments" }),
-    };
-    Ok((set.coefficients, detail, set.grid))
-}
 
 /// "common energy grid for the 4 runs: …" (or "for the run" with one).
 pub fn grid_line(grid: &CommonGrid) -> String {
@@ -112,49 +89,29 @@ pub fn coefficients(
     other_files: OtherFiles,
     common: &Common,
 ) -> Result<(), Failure> {
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
+    let loaded = load_case(path, common)?;
+    check_memory(loaded.resolved.memory_estimate_bytes())?;
     let out_dir = out
         .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-coefficients"));
-    let options = folder("coefficients", other_files);
-    check_folder(&out_dir, &options)?;
-    let (c, detail, grid) = case_coefficients(&case, common.quiet)?;
-    let channels = of_case::case_channel_seebeck(&case).map_err(|e| match e {
-        of_case::CoefficientError::Case(e) => Failure::from(e),
-        other => Failure::Solver(format!("channel coefficients: {other}")),
-    })?;
-    let phonons = super::lattice::spectrum(&resolved)?;
-    let lattice = phonons.map(|s| lattice_summary(&resolved, s, c.temperature_k));
-    let summary = CoefficientsSummary {
-        header: header("coefficients", &case.name, &path.display().to_string()),
-        threads: common.threads,
-        coefficients: c.clone(),
-        response: detail,
-        energy_grid: grid.clone(),
-        lattice: lattice.clone(),
-        channels: channels.clone(),
-        warnings: resolved.warnings.clone(),
-        notes: resolved.notes.clone(),
-        resolved_case: case.to_toml_string(),
-    };
-    let text = to_text(&summary);
-    let stage = Staging::with_options(&out_dir, &options)?;
-    stage.write("summary.json", text.as_bytes())?;
-    if let Some(s) = phonons {
-        write_phonon_files(&stage, s, c.temperature_k)?;
-    }
-    stage.commit()?;
+        .unwrap_or_else(|| default_out(&loaded.case.name, "-coefficients"));
+    check_folder(&out_dir, &folder("coefficients", other_files))?;
+    let tol = loaded.resolved.scba.tolerance.min(1e-12);
+    let mut progress = BornProgress::new(enabled(common.quiet), tol, "linear response");
+    let run = session::coefficients(loaded, common.threads, &mut progress);
+    progress.finish();
+    let run = run?;
+    run.write(&out_dir, other_files)?;
+    let summary = &run.summary;
     if common.json {
-        println!("{text}");
+        println!("{}", qheat::output::schema::summary::to_text(summary));
     } else if !common.quiet {
-        print_coefficients(&c);
+        print_coefficients(&summary.coefficients);
         print_electrostatics(&summary.response);
-        if let Some(ch) = &channels {
+        if let Some(ch) = &summary.channels {
             print_channel_seebeck(ch);
         }
-        println!("energy grid       {}", grid_line(&grid));
-        if let Some(l) = &lattice {
+        println!("energy grid       {}", grid_line(&summary.energy_grid));
+        if let Some(l) = &summary.lattice {
             super::lattice::print_lattice(l);
         }
         println!("results           {}", out_dir.display());

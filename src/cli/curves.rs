@@ -3,26 +3,14 @@
 
 use super::format::{number, si};
 use super::progress::{CurveProgress, enabled};
-use super::solve::load;
+use super::solve::load_case;
 use super::{Common, Failure, check_memory, default_out, folder};
 use qheat::leads::Side;
+use qheat::output::OtherFiles;
 use qheat::output::manifest::check_folder;
-use qheat::output::results::header;
-use qheat::output::schema::summary::{CurveSummary, to_text};
-use qheat::output::schema::tables;
-use qheat::output::{FolderOptions, OtherFiles, Staging};
-use qheat::thermo::cooler::{CoolerSettings, cooler as cooler_curve};
-use qheat::thermo::generator::{CurveError, GeneratorSettings, generator as generator_curve};
+use qheat::output::schema::summary::to_text;
+use qheat::session::{self, Spelling};
 use std::path::{Path, PathBuf};
-
-impl From<CurveError> for Failure {
-    fn from(e: CurveError) -> Self {
-        match e {
-            CurveError::Settings(_) | CurveError::Case(_) => Failure::BadInput(e.to_string()),
-            _ => Failure::Solver(e.to_string()),
-        }
-    }
-}
 
 /// `--cold-lead`: the library's sides, by their names.
 pub fn side_parser() -> impl clap::builder::TypedValueParser<Value = Side> {
@@ -35,39 +23,6 @@ pub fn side_parser() -> impl clap::builder::TypedValueParser<Value = Side> {
         .try_map(|s| s.parse::<Side>())
 }
 
-fn write(
-    out_dir: &Path,
-    options: &FolderOptions,
-    csv_name: &str,
-    csv: Vec<u8>,
-    summary: &str,
-    figures: Vec<(&'static str, String)>,
-) -> Result<(), Failure> {
-    let stage = Staging::with_options(out_dir, options)?;
-    stage.write(csv_name, &csv)?;
-    stage.write("summary.json", summary.as_bytes())?;
-    for (name, svg) in figures {
-        stage.write(name, svg.as_bytes())?;
-    }
-    stage.commit()?;
-    Ok(())
-}
-
-fn flag(converged: bool, out_dir: &Path) -> Result<(), Failure> {
-    if converged {
-        Ok(())
-    } else {
-        Err(Failure::Solver(format!(
-            "a Born loop (or a solve of the potential) did not converge; results in {} are flagged (converged = false)",
-            out_dir.display()
-        )))
-    }
-}
-
-/// Most points on one curve: each is a full solve, and curves this fine
-/// show nothing a coarser one does not.
-pub const MAX_CURVE_POINTS: usize = 10_000;
-
 /// Check --hot, --cold and --points before any work. `strict`: the hot lead
 /// must be strictly hotter (a generator needs a temperature difference; a
 /// cooler may also pump at ΔT = 0).
@@ -77,36 +32,22 @@ pub fn check_curve_options(
     points: usize,
     strict: bool,
 ) -> Result<(), Failure> {
-    for (name, t) in [("--hot", hot), ("--cold", cold)] {
-        if !(t.is_finite() && t > 0.0) {
-            return Err(Failure::BadInput(format!(
-                "{name}: expected a lead temperature in K > 0, found {t}"
-            )));
-        }
+    Ok(session::check_curve_options(
+        hot,
+        cold,
+        points,
+        strict,
+        Spelling::Cli,
+    )?)
+}
+
+/// The outcome of a written curve: exit code 2 when a solve did not
+/// converge.
+fn flag(not_converged: Option<String>) -> Result<(), Failure> {
+    match not_converged {
+        Some(message) => Err(Failure::Solver(message)),
+        None => Ok(()),
     }
-    if strict && hot <= cold {
-        let hint = if hot == cold {
-            "a generator needs the hot lead hotter than the cold one"
-        } else {
-            "swap the two values"
-        };
-        return Err(Failure::BadInput(format!(
-            "--hot {hot} --cold {cold}: expected --hot > --cold (the hot lead drives the generator), \
-             found --hot ≤ --cold; hint: {hint}"
-        )));
-    }
-    if !strict && hot < cold {
-        return Err(Failure::BadInput(format!(
-            "--hot {hot} --cold {cold}: expected --hot ≥ --cold (the cooler pumps heat from the cold \
-             lead to the hot one), found --hot < --cold; hint: swap the two values"
-        )));
-    }
-    if !(3..=MAX_CURVE_POINTS).contains(&points) {
-        return Err(Failure::BadInput(format!(
-            "--points: expected 3 to {MAX_CURVE_POINTS} points on the curve, found {points}"
-        )));
-    }
-    Ok(())
 }
 
 /// Terminal lines of a generator curve (all but the results folder).
@@ -171,34 +112,24 @@ pub fn generator(
     common: &Common,
 ) -> Result<(), Failure> {
     check_curve_options(hot, cold, points, true)?;
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let settings = GeneratorSettings::new(hot, cold, points);
+    let loaded = load_case(path, common)?;
+    check_memory(loaded.resolved.memory_estimate_bytes())?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-generator"));
-    let options = folder("generator", other_files);
-    check_folder(&out_dir, &options)?;
-    let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
-    let r = generator_curve(&case, &settings, &mut progress);
+        .unwrap_or_else(|| default_out(&loaded.case.name, "-generator"));
+    check_folder(&out_dir, &folder("generator", other_files))?;
+    let mut progress = CurveProgress::new(enabled(common.quiet), &loaded.case.name);
+    let run = session::generator(loaded, hot, cold, points, &mut progress);
     progress.finish();
-    let r = r?;
-    let csv = tables::generator().csv(&r);
-    let text = to_text(&CurveSummary {
-        result: &r,
-        header: header("generator", &case.name, &path.display().to_string()),
-        conventions: "hot lead = left (lead 1) at T_hot, cold lead = right (lead 2) at T_cold; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; P = -I V delivered to the load; efficiency = P / J_Q,hot".into(),
-        resolved_case: case.to_toml_string(),
-    });
-    let figures = qheat::output::plots::generator_figures(&r)?;
-    write(&out_dir, &options, "generator.csv", csv, &text, figures)?;
+    let run = run?;
+    run.write(&out_dir, other_files)?;
     if common.json {
-        println!("{text}");
+        println!("{}", to_text(&run.summary()));
     } else if !common.quiet {
-        print_generator(&r, hot, cold);
+        print_generator(&run.report, hot, cold);
         println!("results           {}", out_dir.display());
     }
-    flag(r.converged, &out_dir)
+    flag(run.not_converged(&format!("results in {}", out_dir.display())))
 }
 
 /// Terminal lines of a cooler curve (all but the results folder).
@@ -258,42 +189,24 @@ pub fn cooler(
     common: &Common,
 ) -> Result<(), Failure> {
     check_curve_options(hot, cold, points, false)?;
-    let (case, resolved) = load(path, common)?;
-    check_memory(resolved.memory_estimate_bytes())?;
-    let settings = CoolerSettings::new(hot, cold, points)
-        .with_cold_lead(cold_lead)
-        .with_figure_of_merit(true);
+    let loaded = load_case(path, common)?;
+    check_memory(loaded.resolved.memory_estimate_bytes())?;
     let out_dir: PathBuf = out
         .map(Path::to_path_buf)
-        .unwrap_or_else(|| default_out(&case.name, "-cooler"));
-    let options = folder("cooler", other_files);
-    check_folder(&out_dir, &options)?;
-    let mut progress = CurveProgress::new(enabled(common.quiet), &case.name);
-    let r = cooler_curve(&case, &settings, &mut progress);
+        .unwrap_or_else(|| default_out(&loaded.case.name, "-cooler"));
+    check_folder(&out_dir, &folder("cooler", other_files))?;
+    let mut progress = CurveProgress::new(enabled(common.quiet), &loaded.case.name);
+    let run = session::cooler(loaded, hot, cold, points, cold_lead, &mut progress);
     progress.finish();
-    let r = r?;
-    let csv = tables::cooler().csv(&r);
-    let (cold_name, hot_name) = match cold_lead {
-        Side::Left => ("left (lead 1)", "right (lead 2)"),
-        Side::Right => ("right (lead 2)", "left (lead 1)"),
-    };
-    let text = to_text(&CurveSummary {
-        result: &r,
-        header: header("cooler", &case.name, &path.display().to_string()),
-        conventions: format!(
-            "cold lead = {cold_name} at T_cold, hot lead = {hot_name} at T_hot; V = V1 - V2 = -(µ1 - µ2)/e with µ1,2 = µ ∓ eV/2; I = I_1 into the device from lead 1; cooling power = heat current out of the cold lead into the device; input power = I V; COP = cooling power / (I V), NaN where either is not positive"
-        ),
-        resolved_case: case.to_toml_string(),
-    });
-    let figures = qheat::output::plots::cooler_figures(&r)?;
-    write(&out_dir, &options, "cooler.csv", csv, &text, figures)?;
+    let run = run?;
+    run.write(&out_dir, other_files)?;
     if common.json {
-        println!("{text}");
+        println!("{}", to_text(&run.summary()));
     } else if !common.quiet {
-        print_cooler(&r, hot, cold, (cold_name, hot_name));
+        print_cooler(&run.report, hot, cold, run.lead_names());
         println!("results           {}", out_dir.display());
     }
-    flag(r.converged, &out_dir)
+    flag(run.not_converged(&format!("results in {}", out_dir.display())))
 }
 
 /// The line that says the potential was solved at every point of a curve.

@@ -616,37 +616,13 @@ pub fn print_warnings(warnings: &[String], notes: &[String], common: &Common) {
 
 /// Refuse a case whose arrays would not fit in memory, with the estimate.
 pub fn check_memory(estimate_bytes: u64) -> Result<(), Failure> {
-    let available = available_memory_bytes();
-    if let Some(avail) = available
-        && estimate_bytes > avail / 10 * 8
-    {
-        return Err(Failure::BadInput(format!(
-            "this case needs about {:.1} GiB for its energy-resolved arrays but only {:.1} GiB are available; \
-             use a coarser grid.step_ev, a narrower grid window, fewer cells, or linear mixing (mixing = \"linear\") \
-             which keeps no history",
-            estimate_bytes as f64 / (1u64 << 30) as f64,
-            avail as f64 / (1u64 << 30) as f64
-        )));
-    }
-    Ok(())
+    Ok(qheat::session::refuse_arrays_beyond_memory(
+        estimate_bytes,
+        available_memory_bytes(),
+    )?)
 }
 
-/// The memory a run may use: QHEAT_MEMORY_LIMIT_BYTES when set (a budget
-/// override), else MemAvailable from /proc/meminfo (Linux, or MemTotal
-/// where the kernel gives no MemAvailable); `None` elsewhere.
+/// The memory a run may use (see [`qheat::output::memory`]).
 pub fn available_memory_bytes() -> Option<u64> {
-    if let Ok(v) = std::env::var("QHEAT_MEMORY_LIMIT_BYTES")
-        && let Ok(n) = v.parse::<u64>()
-    {
-        return Some(n);
-    }
-    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
-    let field = |name: &str| {
-        text.lines()
-            .find(|l| l.starts_with(name))
-            .and_then(|l| l.split_whitespace().nth(1))
-            .and_then(|kb| kb.parse::<u64>().ok())
-            .map(|kb| kb * 1024)
-    };
-    field("MemAvailable:").or_else(|| field("MemTotal:"))
+    qheat::output::memory::available_memory_bytes()
 }

@@ -3,7 +3,6 @@
 use super::format::{number, residual, si};
 use super::progress::{BornProgress, enabled};
 use super::{Common, Failure, available_memory_bytes, default_out, folder, print_warnings};
-use qheat::case::{Case, Resolved};
 use qheat::observables::Observables;
 use qheat::output::schema::summary::{
     ElectrostaticsSummary, FermiLevelInfo, SelfHeatingSummary, SolveResults, SolveSummary, to_text,
@@ -13,12 +12,6 @@ use qheat::output::{OtherFiles, manifest::check_folder};
 use qheat::scba::Solution;
 use qheat::session::{self, Loaded, SessionError, SolveOptions, WriteOptions, write_failure};
 use std::path::Path;
-
-/// Load and resolve a case, printing its warnings.
-pub fn load(path: &Path, common: &Common) -> Result<(Case, Resolved), Failure> {
-    let loaded = load_case(path, common)?;
-    Ok((loaded.case, loaded.resolved))
-}
 
 /// `qheat check CASE`.
 pub fn check(path: &Path, common: &Common) -> Result<(), Failure> {

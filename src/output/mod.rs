@@ -8,6 +8,7 @@
 //! [`manifest`].
 
 pub mod manifest;
+pub mod memory;
 pub mod phonons;
 pub mod plots;
 pub mod report;

@@ -87,6 +87,7 @@ impl From<SweepError> for SessionError {
                 SessionError::Solver(e.to_string())
             }
             SweepError::Store(_) => SessionError::Io(e.to_string()),
+            SweepError::Cancelled => SessionError::Cancelled,
         }
     }
 }

@@ -12,13 +12,21 @@
 //! ends (a Python module, notebooks, scripts) call the same functions.
 //!
 //! Solvers report progress through a [`crate::progress::Observer`], which
-//! can also stop a long solve between Born iterations; a stopped solve
-//! returns [`SessionError::Cancelled`] and has written nothing.
+//! can also stop a long run: a solve or a coefficient run between Born
+//! iterations, a generator or cooler curve between its solves, a sweep or
+//! screen before its next point. A stopped run returns
+//! [`SessionError::Cancelled`] and has written no result (a grid keeps the
+//! points it finished in its store, so it resumes from them).
 
+mod curves;
 mod grids;
 mod solve;
 mod tables;
 
+pub use curves::{
+    CoefficientsRun, CoolerRun, GeneratorRun, MAX_CURVE_POINTS, Spelling, check_curve_options,
+    coefficients, cooler, generator,
+};
 pub use grids::{GridKind, GridPlace, GridRun, MAX_GRID_POINTS, grid_run, parse_grid};
 pub use solve::{SolveOptions, Solved, solve, write_failure};
 pub use tables::{BondCurrentMap, columns};
@@ -60,8 +68,13 @@ pub enum SessionError {
     /// Reading or writing a grid's point store failed.
     #[error("{0}")]
     Io(String),
-    /// The observer asked the run to stop; nothing was returned or written.
-    #[error("the run was cancelled before it finished; nothing was written")]
+    /// The observer asked the run to stop; nothing was returned and no
+    /// result written (a sweep or screen keeps the points it finished in
+    /// its store, so the same run started again resumes).
+    #[error(
+        "the run was cancelled before it finished; no result was written (a sweep or screen keeps \
+         its finished points for the next run)"
+    )]
     Cancelled,
 }
 
@@ -134,6 +147,16 @@ impl Loaded {
     /// of `available` bytes (`None`: not known, nothing refused), naming
     /// the settings that would fit with their estimates.
     pub fn refuse_beyond_memory(&self, available: Option<u64>) -> Result<(), SessionError> {
+        self.refuse_beyond_memory_as(available, Spelling::Cli)
+    }
+
+    /// [`Loaded::refuse_beyond_memory`] with the option that runs anyway
+    /// named as `spelling` names options.
+    pub fn refuse_beyond_memory_as(
+        &self,
+        available: Option<u64>,
+        spelling: Spelling,
+    ) -> Result<(), SessionError> {
         let Some(available) = available else {
             return Ok(());
         };
@@ -155,11 +178,36 @@ impl Loaded {
             "this solve needs about {} by the memory estimate (`qheat check` shows it), more \
              than 80 % of the {} available (GiB = 2^30 bytes); nothing was run. Settings that \
              need less:\n{}\nhint: set one of them in the case (or use fewer cells), or pass \
-             --ignore-memory-estimate to run anyway",
+             {} to run anyway",
             memory_size(need),
             memory_size(available),
-            options.join("\n")
+            options.join("\n"),
+            match spelling {
+                Spelling::Cli => "--ignore-memory-estimate",
+                Spelling::Keywords => "ignore_memory_estimate=True",
+            }
         )))
+    }
+}
+
+/// Refuse, before any work, a run whose energy-resolved arrays (the
+/// memory estimate `estimate_bytes` of its case) exceed 80 % of
+/// `available` bytes (`None`: not known, nothing refused): the check of
+/// coefficients, curves and grids, whose runs each hold one solve's arrays
+/// at a time.
+pub fn refuse_arrays_beyond_memory(
+    estimate_bytes: u64,
+    available: Option<u64>,
+) -> Result<(), SessionError> {
+    match available {
+        Some(avail) if estimate_bytes > avail / 10 * 8 => Err(SessionError::BadInput(format!(
+            "this case needs about {:.1} GiB for its energy-resolved arrays but only {:.1} GiB are available; \
+             use a coarser grid.step_ev, a narrower grid window, fewer cells, or linear mixing (mixing = \"linear\") \
+             which keeps no history",
+            estimate_bytes as f64 / (1u64 << 30) as f64,
+            avail as f64 / (1u64 << 30) as f64
+        ))),
+        _ => Ok(()),
     }
 }
 

@@ -150,7 +150,9 @@ fn mean_lead_temperature(resolved: &Resolved) -> f64 {
 
 /// The phonon spectrum of the case's lattice (`None` without one),
 /// computed once per lattice.
-fn phonon_spectrum(resolved: &Resolved) -> Result<Option<&PhononSpectrum>, SessionError> {
+pub(super) fn phonon_spectrum(
+    resolved: &Resolved,
+) -> Result<Option<&PhononSpectrum>, SessionError> {
     resolved.phonon_spectrum().transpose().map_err(|e| {
         SessionError::Solver(format!(
             "phonon spectrum of the case's [lattice]: {e}; nothing was written"

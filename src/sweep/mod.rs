@@ -15,6 +15,11 @@
 //! point's inputs are therefore the same whether or not the sweep was
 //! interrupted, and the final table is the same to the last bit.
 //!
+//! The observer can stop a sweep ([`Observer::cancelled`], asked before
+//! each point): the points in flight finish and are stored, no other
+//! starts, and the run returns [`SweepError::Cancelled`]; the same sweep
+//! started again resumes from the store.
+//!
 //! What is computed at each point is a [`PointTask`]: [`ObservablesTask`]
 //! for plain sweeps, [`screen::ScreenTask`] for figure-of-merit screening.
 
@@ -74,6 +79,10 @@ pub enum SweepError {
     /// Storing a point failed.
     #[error(transparent)]
     Store(StoreError),
+    /// The observer asked the sweep to stop ([`Observer::cancelled`]); the
+    /// points finished before are kept in the store for the next run.
+    #[error("the sweep was cancelled; the points finished so far are kept for the next run")]
+    Cancelled,
 }
 
 /// What a task computed at one point.
@@ -341,6 +350,9 @@ impl LineRunner<'_, '_> {
             if self.stop.load(Ordering::Relaxed) {
                 return Ok(());
             }
+            if self.cancelled() {
+                return Err(SweepError::Cancelled);
+            }
             if let Some(row) = self.store.row(index, self.width) {
                 (warm, potential) = (None, None);
                 self.report(index, false, &row);
@@ -419,6 +431,13 @@ impl LineRunner<'_, '_> {
         let mut row = self.grid.values(index);
         row.extend_from_slice(&outcome.values);
         Ok((row, outcome))
+    }
+
+    /// Whether the observer asked the sweep to stop: asked before each
+    /// point, so an interrupt takes effect after the points in flight.
+    fn cancelled(&self) -> bool {
+        let observer = self.observer.lock().unwrap_or_else(|p| p.into_inner());
+        observer.cancelled()
     }
 
     /// Tell the observer that point `index` is stored.
