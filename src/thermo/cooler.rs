@@ -365,7 +365,7 @@ fn cooler_curve(
             cooler_point(dev, v, "curve", cold, observer)?
         });
     }
-    let tol = (REFINE_RELATIVE_WIDTH * end.abs()).max(dev.voltage_resolution());
+    let tol = REFINE_RELATIVE_WIDTH * end.abs();
     let mut sorted = curve.clone();
     sorted.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
     let at_max = refine_max(

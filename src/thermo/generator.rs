@@ -248,15 +248,6 @@ impl BiasedCase {
         &self.grid
     }
 
-    /// The finest voltage difference (V) the curve's solves resolve: 0
-    /// without electrostatics; with it the potential's outer tolerance
-    /// (eV per e), since every point's potential is known only to that,
-    /// and a search for a root or a maximum narrower than it would chase
-    /// the potential's own error.
-    pub fn voltage_resolution(&self) -> f64 {
-        self.es.as_ref().map_or(0.0, |e| e.tolerance_ev)
-    }
-
     /// Make the grid cover |V| ≤ `v_abs`.
     pub fn cover(&mut self, v_abs: f64) -> Result<(), CaseError> {
         if v_abs <= self.covered_v {
@@ -598,8 +589,7 @@ pub struct GeneratorReport {
 /// The open-circuit voltage V_oc, I(V_oc) = 0: the bracket [0, b] grows
 /// from `first_v` (doubling) until I changes sign from I(0) = `i0`, then
 /// Illinois regula falsi narrows it to 1e-13 of V_oc (or |I| to 1e-13 of
-/// |I(0)|; with electrostatics to the potential's tolerance, see
-/// [`BiasedCase::voltage_resolution`]).
+/// |I(0)|).
 fn open_circuit_voltage(
     dev: &mut BiasedCase,
     i0: f64,
@@ -627,10 +617,9 @@ fn open_circuit_voltage(
     // Illinois regula falsi on [a, b].
     let mut side = 0i32;
     let mut voc = b;
-    let resolution = dev.voltage_resolution();
     for _ in 0..200 {
         let width = (b - a).abs();
-        if fb == 0.0 || width <= 1e-13 * b.abs().max(a.abs()) || width <= resolution {
+        if fb == 0.0 || width <= 1e-13 * b.abs().max(a.abs()) {
             break;
         }
         let c = (a * fb - b * fa) / (fb - fa);
@@ -679,7 +668,7 @@ fn load_curve(
         };
         curve.push(LoadPoint::from(&s));
     }
-    let tol = (REFINE_RELATIVE_WIDTH * voc.abs()).max(dev.voltage_resolution());
+    let tol = REFINE_RELATIVE_WIDTH * voc.abs();
     // The curve runs from 0 towards V_oc, whose sign may be negative: sort
     // by voltage for the brackets.
     let mut sorted = curve.clone();
