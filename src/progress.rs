@@ -46,6 +46,29 @@ pub struct LatticeIterationRecord {
     pub lattice_power_w: f64,
 }
 
+/// A solved point of a generator or cooler curve, with what a progress
+/// line needs to say about it.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+#[non_exhaustive]
+pub struct CurvePointRecord {
+    /// What the solve was for ("range", "curve", "open circuit", …).
+    pub stage: &'static str,
+    /// Bias or load voltage V (V).
+    pub voltage_v: f64,
+    /// Current I = I_1 (A).
+    pub current_a: f64,
+    /// Whether the Born loop (and with electrostatics the potential)
+    /// converged.
+    pub converged: bool,
+    /// With electrostatics: outer iterations of the point's potential.
+    pub outer_iterations: Option<usize>,
+    /// With electrostatics: the computed drop φ(first cell) − φ(last
+    /// cell) (V).
+    pub potential_drop_v: Option<f64>,
+    /// Wall time of the solve (s).
+    pub seconds: f64,
+}
+
 /// A finished point of a sweep, reported after the point is stored.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[non_exhaustive]
@@ -76,6 +99,9 @@ pub trait Observer {
     /// A solve of a generator or cooler curve at `voltage_v` (V) finished;
     /// `stage` says what it was for ("open circuit", "curve", …).
     fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {}
+    /// The same solve as [`Observer::curve_solved`] (reported right after
+    /// it), with its current, convergence, potential and wall time.
+    fn curve_point(&mut self, _record: &CurvePointRecord) {}
     /// A sweep point is stored (computed now or found from an earlier run).
     fn point_finished(&mut self, _event: &PointEvent) {}
     /// Whether whoever runs the computation asked it to stop (an interrupt

@@ -505,3 +505,137 @@ fn sites_density_is_the_poisson_count() {
         assert!((d - p).abs() <= 1e-12 * p.abs(), "{l}");
     }
 }
+
+/// [`barrier_text`] with the energy window left to the case (the step
+/// alone given), so that it follows the bias as the curves make it.
+fn barrier_free_window(phonon: bool) -> Case {
+    let text = barrier_text(phonon, true, "").replace("min_ev = -0.1\nmax_ev = 0.6\n", "");
+    assert!(!text.contains("min_ev"));
+    Case::parse(&text, "ops.toml", Path::new(".")).unwrap()
+}
+
+/// The zero-bias current and cold-lead heat current of `case` between the
+/// leads at `temps` (left, right; K), both Fermi levels at `mu`, on the
+/// grid `grid`, solved from nothing.
+fn separate_point(
+    case: &Case,
+    grid: &qheat::thermo::common_grid::CommonGrid,
+    (mu, temps, v): (f64, (f64, f64), f64),
+) -> (f64, f64) {
+    use qheat::leads::Side;
+    let c = case
+        .with(CaseKey::LeadFermiLevel(Side::Left), mu)
+        .unwrap()
+        .with(CaseKey::LeadFermiLevel(Side::Right), mu)
+        .unwrap()
+        .with(CaseKey::LeadTemperature(Side::Left), temps.0)
+        .unwrap()
+        .with(CaseKey::LeadTemperature(Side::Right), temps.1)
+        .unwrap();
+    let c = grid
+        .apply(&c)
+        .unwrap()
+        .with(CaseKey::BiasVoltage, v)
+        .unwrap();
+    let r = c.resolve().unwrap();
+    assert!(grid.matches(&r.problem));
+    let es = r.electrostatics.as_ref();
+    let p = solve_point(&r.problem, es, &r.scba, PointStart::default(), &mut Silent).unwrap();
+    assert!(p.converged());
+    let o = observe(&p.solution);
+    (o.current_a, o.heat_current_right_w)
+}
+
+/// A cooler with the potential solved at every point ends its march out in
+/// bias for a reason it states, with every solve converged: on this small
+/// doped barrier the charge holds the barrier up under bias, so the
+/// cooling power does not fall back by half within the bias limit
+/// (2 Φ0 + 10 kT)/e, and the march ends on the limit or where the cooling
+/// power levels off, never on a solve that did not converge or on the step
+/// limit. The range is whole steps of kT/e within the limit. Its zero-bias
+/// point equals a separate self-consistent solve at 0 V from nothing on
+/// the same grid: the potential of each is known to its outer tolerance
+/// 1e-5 eV, which moves a current over the barrier by about 1e-5 eV/kT ≈
+/// 4e-4 of itself, so 2e-3 relative.
+#[test]
+fn cooler_with_electrostatics_ends_its_march_for_a_stated_reason() {
+    use qheat::thermo::cooler::RangeEnd;
+    let case = barrier_free_window(false);
+    let settings = CoolerSettings::new(300.0, 290.0, 3).with_figure_of_merit(false);
+    let r = cooler(&case, &settings, &mut Silent).unwrap();
+    let range = r.range;
+    eprintln!("{range:?}, {} solves", r.solves);
+    for p in &r.curve {
+        eprintln!(
+            "V {:.4} Q {:.4e} I {:.4e} drop {:?} outer {:?} {}",
+            p.voltage_v,
+            p.cooling_power_w,
+            p.current_a,
+            p.potential_drop_v,
+            p.outer_iterations,
+            p.converged
+        );
+    }
+    assert!(r.converged && r.curve.iter().all(|p| p.converged));
+    assert!(r.electrostatics.is_some_and(|e| e.converged));
+    assert!(
+        matches!(range.reason, RangeEnd::BiasLimit | RangeEnd::LevelledOff),
+        "{range:?}"
+    );
+    assert!(range.not_converged_at_v.is_none());
+    let kt = qheat::units::thermal_energy_ev(295.0);
+    let limit = range.limit_v.expect("a bias limit with electrostatics");
+    assert!((range.end_v.abs() - range.steps as f64 * kt).abs() < 1e-12);
+    assert!(range.end_v.abs() <= limit);
+    if range.reason == RangeEnd::BiasLimit {
+        assert!((range.steps + 1) as f64 * kt > limit);
+    }
+    assert_eq!(r.curve.last().unwrap().voltage_v, range.end_v);
+
+    let mu = r.fermi_level_ev;
+    let (i0, q0) = separate_point(&case, &r.energy_grid, (mu, (300.0, 290.0), 0.0));
+    let zero = &r.curve[0];
+    assert_eq!(zero.voltage_v, 0.0);
+    for (x, y, what) in [
+        (zero.current_a, i0, "I(0)"),
+        (zero.cooling_power_w, q0, "cooling power at 0 V"),
+    ] {
+        assert!(
+            (x - y).abs() <= 2e-3 * y.abs(),
+            "{what}: curve {x:e}, separate {y:e}"
+        );
+    }
+}
+
+/// A generator with the potential solved at every point has its
+/// open-circuit voltage where the current crosses zero: a separate solve
+/// at V_oc from nothing, on the same grid, carries a current below 1 % of
+/// the short-circuit current. The root is located to the potential's
+/// tolerance 1e-5 V (and each solve's potential is known to 1e-5 eV), so
+/// |I(V_oc)| ≲ G·2e-5 V against I(0) = G·V_oc with V_oc of some mV here:
+/// about 2e-5/4e-3 ≈ 5e-3 of I(0) at worst, hence 1e-2.
+#[test]
+fn generator_with_electrostatics_has_zero_current_at_its_open_circuit_voltage() {
+    let case = barrier_free_window(false);
+    let settings = GeneratorSettings::new(320.0, 280.0, 3);
+    let r = generator(&case, &settings, &mut Silent).unwrap();
+    eprintln!(
+        "V_oc {} (estimate {}), I(0) {}, {} solves",
+        r.open_circuit_voltage_v,
+        r.open_circuit_voltage_estimate_v,
+        r.short_circuit_current_a,
+        r.solves
+    );
+    assert!(r.converged && r.electrostatics.is_some_and(|e| e.converged));
+    let voc = r.open_circuit_voltage_v;
+    assert!(voc != 0.0 && voc.signum() == r.open_circuit_voltage_estimate_v.signum());
+    let mu = r.fermi_level_ev;
+    let (i, _) = separate_point(&case, &r.energy_grid, (mu, (320.0, 280.0), voc));
+    let i0 = r.short_circuit_current_a;
+    assert!(i.abs() <= 1e-2 * i0.abs(), "I(V_oc) {i:e}, I(0) {i0:e}");
+    let (j0, _) = separate_point(&case, &r.energy_grid, (mu, (320.0, 280.0), 0.0));
+    assert!(
+        (j0 - i0).abs() <= 2e-3 * i0.abs(),
+        "I(0) {i0:e}, separate {j0:e}"
+    );
+}

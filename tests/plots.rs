@@ -452,3 +452,183 @@ fn solve_figures_are_reachable_one_by_one() {
     }
     assert!(plots::convergence_svg(&sol).unwrap().is_none());
 }
+
+/// A 12 nm doped wire with an undoped 0.1 eV barrier layer in the middle
+/// at a bias of 0.05 V (coherent, 4 meV grid); with `es` its
+/// `[electrostatics]` section (2e18 cm⁻³ outside the barrier).
+fn doped_barrier_text(es: bool) -> String {
+    let mut text = String::from(
+        r#"
+name = "figure-barrier"
+[device]
+kind = "chain"
+spacing_nm = 0.5
+length_nm = 12.0
+effective_mass = 0.07
+[[device.region]]
+from_nm = 4.5
+to_nm = 7.5
+offset_ev = 0.1
+[leads.left]
+fermi_level_ev = 0.03
+temperature_k = 300.0
+[leads.right]
+fermi_level_ev = 0.03
+temperature_k = 300.0
+[bias]
+voltage_v = 0.05
+[grid]
+step_ev = 0.004
+min_ev = -0.15
+max_ev = 0.6
+"#,
+    );
+    if es {
+        text.push_str(
+            "[electrostatics]\npermittivity = 12.0\narea_nm2 = 25.0\ndonors_cm3 = 2e18\n\
+             [[electrostatics.region]]\nfrom_nm = 4.5\nto_nm = 7.5\ndonors_cm3 = 0.0\n",
+        );
+    }
+    text
+}
+
+/// Solve `text` with the program into `out`; return the named columns of
+/// its sites.csv (a column missing from the file is `None`).
+fn cli_sites(text: &str, out: &Path, names: &[&str]) -> Vec<Option<Vec<f64>>> {
+    let case = out.with_extension("toml");
+    std::fs::write(&case, text).unwrap();
+    let run = std::process::Command::new(env!("CARGO_BIN_EXE_qheat"))
+        .args(["--quiet", "--threads", "1", "solve"])
+        .arg(&case)
+        .arg("-o")
+        .arg(out)
+        .output()
+        .unwrap();
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let sites = read(out, "sites.csv");
+    let mut lines = sites.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let rows: Vec<Vec<f64>> = lines
+        .map(|l| l.split(',').map(|x| x.parse().unwrap()).collect())
+        .collect();
+    names
+        .iter()
+        .map(|n| {
+            let c = header.iter().position(|h| h == n)?;
+            Some(rows.iter().map(|r| r[c]).collect())
+        })
+        .collect()
+}
+
+/// Polylines of `colour` with stroke width `width`, as pixel points.
+fn lines_of(doc: &roxmltree::Document<'_>, colour: RGBColor, width: &str) -> Vec<Vec<(f64, f64)>> {
+    let want = hex(colour);
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| n.attribute("stroke-width") == Some(width))
+        .filter(|n| {
+            n.attribute("stroke")
+                .is_some_and(|v| v.eq_ignore_ascii_case(&want))
+        })
+        .map(|n| {
+            n.attribute("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|xy| {
+                    let (x, y) = xy.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// device.svg with `[electrostatics]`: beside the band edge (with the
+/// potential of the device's charge) it draws the band edge without it,
+/// and the legend says which is which. Both curves are read back from the
+/// SVG: the band edge's steps give the figure's energy-to-pixel map (a
+/// straight line, fitted by least squares), and through that map the
+/// second curve is sites.csv's band_edge_imposed_ev, cell by cell, to
+/// 1.5 pixels (SVG coordinates are whole pixels, so each point is off by
+/// up to half a pixel, and the fit by less). The charge moves the band by
+/// several pixels here, so the two curves are told apart. Without
+/// `[electrostatics]` the figure has neither the second curve nor its
+/// legend, and sites.csv has no such column.
+#[test]
+fn device_figure_shows_the_band_edge_with_and_without_the_charges_potential() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("es");
+    let cols = cli_sites(
+        &doped_barrier_text(true),
+        &dir,
+        &["band_edge_ev", "band_edge_imposed_ev"],
+    );
+    let (band, imposed) = (cols[0].clone().unwrap(), cols[1].clone().unwrap());
+    let n = band.len();
+    let text = read(&dir, "device.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    for label in [
+        "band edge with the potential of the device's charge",
+        "band edge without it: band offsets only",
+        "local Fermi level",
+    ] {
+        assert!(has_text(&doc, label), "{label:?}: {:?}", texts(&doc));
+    }
+    let with = lines_of(&doc, style::INK, "3");
+    let with: Vec<_> = with.into_iter().filter(|p| p.len() == 2 * n).collect();
+    let without = lines_of(&doc, style::BAND_EDGE_IMPOSED, "2");
+    assert_eq!(with.len(), 1, "one band edge of {n} steps");
+    assert_eq!(without.len(), 1, "one band edge without the potential");
+    let (with, without) = (&with[0], &without[0]);
+    assert_eq!(without.len(), 2 * n);
+    // Energy → pixel: y = a + b E, fitted on the band edge's steps.
+    let pts: Vec<(f64, f64)> = (0..2 * n).map(|k| (band[k / 2], with[k].1)).collect();
+    let m = pts.len() as f64;
+    let (se, sy) = pts.iter().fold((0.0, 0.0), |s, p| (s.0 + p.0, s.1 + p.1));
+    let (me, my) = (se / m, sy / m);
+    let see: f64 = pts.iter().map(|p| (p.0 - me).powi(2)).sum();
+    let sey: f64 = pts.iter().map(|p| (p.0 - me) * (p.1 - my)).sum();
+    let b = sey / see;
+    let a = my - b * me;
+    for (k, p) in pts.iter().enumerate() {
+        assert!((a + b * p.0 - p.1).abs() <= 1.0, "band edge point {k}");
+    }
+    let mut moved: f64 = 0.0;
+    for k in 0..2 * n {
+        assert_eq!(without[k].0, with[k].0, "same cells");
+        let expected = a + b * imposed[k / 2];
+        assert!(
+            (without[k].1 - expected).abs() <= 1.5,
+            "cell {}: drawn at {} px, band_edge_imposed_ev {} gives {expected} px",
+            k / 2,
+            without[k].1,
+            imposed[k / 2]
+        );
+        moved = moved.max((without[k].1 - with[k].1).abs());
+    }
+    assert!(
+        moved > 5.0,
+        "the charge's potential moves the band edge by {moved} px"
+    );
+
+    let plain = tmp.path().join("plain");
+    let cols = cli_sites(
+        &doped_barrier_text(false),
+        &plain,
+        &["band_edge_imposed_ev"],
+    );
+    assert!(
+        cols[0].is_none(),
+        "no band_edge_imposed_ev without [electrostatics]"
+    );
+    let text = read(&plain, "device.svg");
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    assert!(has_text(&doc, "band edge"));
+    assert!(!has_text(&doc, "without it"), "{:?}", texts(&doc));
+    assert!(!has_text(&doc, "potential of the device's charge"));
+    assert!(lines_of(&doc, style::BAND_EDGE_IMPOSED, "2").is_empty());
+}

@@ -174,7 +174,15 @@ impl Solved {
         if let Some(s) = phonons {
             write_phonon_files(&stage, s, mean_lead_temperature(resolved))?;
         }
-        crate::output::plots::write_solve_plots_within(&stage, sol, o, &options.limits)?;
+        let potential =
+            (summary.electrostatics.as_ref()).map(|e| &e.potential_energy_per_cell_ev[..]);
+        crate::output::plots::write_solve_plots_with_potential(
+            &stage,
+            sol,
+            o,
+            potential,
+            &options.limits,
+        )?;
         stage.commit()?;
         Ok(summary)
     }

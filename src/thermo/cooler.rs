@@ -189,6 +189,9 @@ pub struct CoolerReport {
     /// With electrostatics: the potential solved at every point.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub electrostatics: Option<CurveElectrostatics>,
+    /// The voltage range of the curve and why the march out in bias
+    /// ended there.
+    pub range: CoolerRange,
 }
 
 /// Refuse temperatures and point counts no cooler curve can use.
@@ -219,17 +222,76 @@ fn cooler_point(
     Ok(CoolerPoint::from(&dev.at(v, stage, observer)?, cold))
 }
 
+/// Why the march out in bias that sets the cooler's range ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum RangeEnd {
+    /// Past its maximum the cooling power fell back by half of its rise
+    /// above the zero-bias value.
+    FellBack,
+    /// With electrostatics: the cooling power levelled off, changing by
+    /// less than [`LEVEL_FRACTION`] of its rise over each of the last two
+    /// steps. The charge holds the barrier up under bias, so the current
+    /// over it saturates instead of turning; more bias only adds input
+    /// power, and the COP falls.
+    LevelledOff,
+    /// With electrostatics: the bias reached [`CoolerRange::limit_v`],
+    /// (2 Φ0 + 10 kT)/e with Φ0 the zero-bias barrier top above µ: by
+    /// then a bias split evenly between the two sides of the barrier has
+    /// lowered it to the cold lead's Fermi level, and what flows is no
+    /// longer emission over a barrier.
+    BiasLimit,
+    /// A solve of the march (its Born loop or its potential) did not
+    /// converge: the range ends at the last step before it, and the
+    /// result is flagged.
+    NotConverged,
+    /// 400 steps of kT/e.
+    StepLimit,
+}
+
+/// Fraction of its rise by which the cooling power may change over each
+/// of two steps of kT/e for the march to count it as levelled off (with
+/// electrostatics).
+pub const LEVEL_FRACTION: f64 = 0.01;
+
+/// The voltage range of a cooler curve and why it ends there.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+pub struct CoolerRange {
+    /// End of the range (V): the curve runs from 0 to here.
+    pub end_v: f64,
+    /// Steps of kT/e the march took out from V = 0.
+    pub steps: usize,
+    /// Why the march stopped.
+    pub reason: RangeEnd,
+    /// With electrostatics: the largest |V| the march may reach (V).
+    pub limit_v: Option<f64>,
+    /// The voltage of the solve that did not converge, when that ended the
+    /// march (V).
+    pub not_converged_at_v: Option<f64>,
+}
+
+/// With electrostatics: the largest |V| the march goes to,
+/// (2 Φ0 + 10 kT)/e with Φ0 = (top of the barrier at V = 0) − µ (at
+/// least 0: a device without a barrier above µ gets 10 kT/e).
+fn bias_limit(zero_top_ev: f64, mu_ev: f64, kt_ev: f64) -> f64 {
+    2.0 * (zero_top_ev - mu_ev).max(0.0) + 10.0 * kt_ev
+}
+
 /// The end of the cooler's voltage range: the polarity that cools (±`h`
 /// tried, `h` = kT/e), then steps of `h` out past the maximum of the
 /// cooling power until it has fallen back by half of its rise above the
-/// zero-bias value `q0` (at least 4 and at most 400 steps).
+/// zero-bias value `q0` (at least 4 and at most 400 steps). With
+/// electrostatics (`limit` given, V) the march also ends where the cooling
+/// power levels off, at the limit, or before a solve that did not
+/// converge ([`RangeEnd`]).
 fn march_end(
     dev: &mut BiasedCase,
     q0: f64,
     h: f64,
     cold: Side,
+    limit: Option<f64>,
     observer: &mut dyn Observer,
-) -> Result<f64, CurveError> {
+) -> Result<CoolerRange, CurveError> {
     let up = cooler_point(dev, h, "polarity", cold, observer)?;
     let down = cooler_point(dev, -h, "polarity", cold, observer)?;
     let direction = if up.cooling_power_w >= down.cooling_power_w {
@@ -237,9 +299,16 @@ fn march_end(
     } else {
         -1.0
     };
+    let end = |k: usize, reason, not_converged_at_v| CoolerRange {
+        end_v: direction * h * k as f64,
+        steps: k,
+        reason,
+        limit_v: limit,
+        not_converged_at_v,
+    };
     // March out past the maximum.
-    let mut best = q0;
-    let mut best_k = 0usize;
+    let mut q = vec![q0];
+    let (mut best, mut best_k) = (q0, 0usize);
     let mut k = 1usize;
     Ok(loop {
         let p = if k == 1 {
@@ -247,13 +316,30 @@ fn march_end(
         } else {
             cooler_point(dev, direction * h * k as f64, "range", cold, observer)?
         };
+        if limit.is_some() && !p.converged {
+            break end((k - 1).max(1), RangeEnd::NotConverged, Some(p.voltage_v));
+        }
+        q.push(p.cooling_power_w);
         if p.cooling_power_w > best {
             best = p.cooling_power_w;
             best_k = k;
         }
         let fallen = p.cooling_power_w < best - 0.5 * (best - q0);
-        if (k >= 4 && k > best_k && fallen) || k >= 400 {
-            break direction * h * k as f64;
+        if k >= 4 && k > best_k && fallen {
+            break end(k, RangeEnd::FellBack, None);
+        }
+        if let Some(limit) = limit {
+            let rise = best - q0;
+            let flat = |j: usize| (q[j] - q[j - 1]).abs() <= LEVEL_FRACTION * rise;
+            if k >= 4 && rise > 0.0 && flat(k) && flat(k - 1) {
+                break end(k, RangeEnd::LevelledOff, None);
+            }
+            if h * (k + 1) as f64 > limit {
+                break end(k, RangeEnd::BiasLimit, None);
+            }
+        }
+        if k >= 400 {
+            break end(k, RangeEnd::StepLimit, None);
         }
         k += 1;
     })
@@ -346,7 +432,10 @@ pub fn cooler(
     let zero_solved = dev.at(0.0, "zero bias", observer)?;
     let zero = CoolerPoint::from(&zero_solved, cold);
     let h = crate::units::thermal_energy_ev(tm);
-    let end = march_end(&mut dev, zero.cooling_power_w, h, cold, observer)?;
+    let limit =
+        (dev.electrostatics.is_some()).then(|| bias_limit(zero_solved.highest_band_edge_ev, mu, h));
+    let range = march_end(&mut dev, zero.cooling_power_w, h, cold, limit, observer)?;
+    let end = range.end_v;
     // The curve and the refinements run on the grid that covers the range
     // the march reached; the zero-bias point is solved again if the grid
     // grew since.
@@ -376,5 +465,6 @@ pub fn cooler(
         converged: dev.all_converged,
         solves: dev.solves,
         electrostatics: dev.electrostatics,
+        range,
     })
 }

@@ -35,7 +35,7 @@ use crate::case::{Case, CaseError, CaseKey};
 use crate::electrostatics::Electrostatics;
 use crate::leads::Side;
 use crate::observables::{Observables, observe};
-use crate::progress::{Observer, Silent};
+use crate::progress::{CurvePointRecord, Observer, Silent};
 use crate::scattering::ScatteringSelfEnergy;
 use crate::scba::SolveError;
 
@@ -144,6 +144,9 @@ pub(crate) struct Solved {
     /// With electrostatics: the computed drop (V) and the outer
     /// iterations of the point.
     pub electrostatics: Option<(f64, usize)>,
+    /// Highest band edge of the device at the point, potential included
+    /// (eV): the top of its barrier.
+    pub highest_band_edge_ev: f64,
 }
 
 /// The electrostatics of a generator or cooler curve: the potential of the
@@ -166,13 +169,18 @@ pub struct CurveElectrostatics {
 /// so far. The grid's step depends on the temperatures alone, and over an
 /// interval of voltages the lowest band edge is a concave and the higher
 /// Fermi level a convex function of V, so the ends of the interval bound
-/// the window. When a voltage beyond W is asked for, W grows to at least
+/// the window. With electrostatics the envelope also holds the window of
+/// the zero-bias case with both Fermi levels lowered by W/2, where the band
+/// of a charge-neutral end at the lower Fermi level lies (see
+/// `BiasedCase::lowered`). When a voltage beyond W is asked for, W grows to at least
 /// twice its value (so a search that marches outwards rebuilds the grid a
 /// logarithmic number of times) and the generation counter steps; a
 /// result kept from an earlier generation must be solved again before it
 /// is compared with newer ones.
 pub(crate) struct BiasedCase {
     base: Case,
+    /// The zero-bias Fermi level of both leads (eV).
+    mu_ev: f64,
     fixed: Case,
     grid: CommonGrid,
     covered_v: f64,
@@ -220,6 +228,7 @@ impl BiasedCase {
             heat_leak_w,
             fixed: grid.apply(&base)?,
             base,
+            mu_ev,
             grid,
             covered_v: 0.0,
             generation: 0,
@@ -245,10 +254,13 @@ impl BiasedCase {
             return Ok(());
         }
         let w = v_abs.max(2.0 * self.covered_v);
-        let ends = [-w, 0.0, w]
+        let mut ends = [-w, 0.0, w]
             .iter()
             .map(|&v| self.base.with(CaseKey::BiasVoltage, v))
             .collect::<Result<Vec<_>, _>>()?;
+        if self.es.is_some() {
+            ends.push(self.lowered(0.5 * w)?);
+        }
         let grid = CommonGrid::choose(&ends)?;
         if grid.grid != self.grid.grid || grid.phonon_energies_ev != self.grid.phonon_energies_ev {
             self.fixed = grid.apply(&self.base)?;
@@ -258,6 +270,21 @@ impl BiasedCase {
         self.grid = grid;
         self.covered_v = w;
         Ok(())
+    }
+
+    /// With electrostatics, the energy window must follow the bias: each
+    /// charge-neutral end of the device keeps its band where its lead's
+    /// Fermi level holds the doping, so under a bias V the band of the end
+    /// at the lower Fermi level, µ − eV/2, lies eV/2 below where it is at
+    /// V = 0 (a case's own window, set at the higher Fermi level, does not
+    /// reach it). This is the zero-bias case with both Fermi levels at
+    /// µ − `half_v`: its window (the case's own rule, or the case's own
+    /// `grid.min_ev` when it gives one) reaches that band.
+    fn lowered(&self, half_v: f64) -> Result<Case, CaseError> {
+        self.base
+            .with(CaseKey::BiasVoltage, 0.0)?
+            .with(CaseKey::LeadFermiLevel(Side::Left), self.mu_ev - half_v)?
+            .with(CaseKey::LeadFermiLevel(Side::Right), self.mu_ev - half_v)
     }
 
     /// Solve at voltage `v`.
@@ -280,6 +307,7 @@ impl BiasedCase {
             sigma: self.warm.as_ref(),
             potential_ev: self.potential.as_deref(),
         };
+        let clock = std::time::Instant::now();
         let point = solve_point(&r.problem, self.es.as_ref(), &r.scba, start, &mut Silent)
             .map_err(|source| CurveError::Solve {
                 voltage_v: v,
@@ -299,10 +327,21 @@ impl BiasedCase {
         });
         let sol = point.solution;
         let obs = observe(&sol);
+        let highest_band_edge_ev =
+            (sol.problem.device.band_edge_ev.iter()).fold(f64::NEG_INFINITY, |m, &e| m.max(e));
         if !sol.problem.scattering.is_coherent() {
             self.warm = Some(sol.sigma);
         }
         observer.curve_solved(stage, v);
+        observer.curve_point(&CurvePointRecord {
+            stage,
+            voltage_v: v,
+            current_a: obs.current_a,
+            converged,
+            outer_iterations: electrostatics.map(|e| e.1),
+            potential_drop_v: electrostatics.map(|e| e.0),
+            seconds: clock.elapsed().as_secs_f64(),
+        });
         Ok(Solved {
             voltage_v: v,
             obs,
@@ -310,6 +349,7 @@ impl BiasedCase {
             generation: self.generation,
             heat_leak_w: self.heat_leak_w,
             electrostatics,
+            highest_band_edge_ev,
         })
     }
 
@@ -578,7 +618,8 @@ fn open_circuit_voltage(
     let mut side = 0i32;
     let mut voc = b;
     for _ in 0..200 {
-        if fb == 0.0 || (b - a).abs() <= 1e-13 * b.abs().max(a.abs()) {
+        let width = (b - a).abs();
+        if fb == 0.0 || width <= 1e-13 * b.abs().max(a.abs()) {
             break;
         }
         let c = (a * fb - b * fa) / (fb - fa);

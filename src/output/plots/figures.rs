@@ -132,24 +132,74 @@ impl Span {
 }
 
 /// Top panel of device.svg: band edge, local Fermi level and the lead
-/// Fermi levels (thick in each lead, dashed across the device).
+/// Fermi levels (thick in each lead, dashed across the device); with
+/// self-consistent electrostatics also the band edge without the
+/// potential of the device's charge.
 struct EnergyPanel {
     range: (f64, f64),
     factor: f64,
     unit: &'static str,
     entries: Vec<(Mark, String)>,
+    /// With electrostatics: the band edge of each cell without the
+    /// computed potential (eV).
+    imposed: Option<Vec<f64>>,
 }
 
-fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
+/// The band edge of each cell without the electrostatic potential energy
+/// `potential_ev` the device's charge put there: what the imposed
+/// potential alone (the band offsets; with electrostatics the bias drops
+/// at the contacts) gives. sites.csv writes the same numbers as
+/// `band_edge_imposed_ev`.
+pub fn band_edge_without_potential(band_edge_ev: &[f64], potential_ev: &[f64]) -> Vec<f64> {
+    band_edge_ev
+        .iter()
+        .enumerate()
+        .map(|(i, e)| e - potential_ev.get(i).copied().unwrap_or(f64::NAN))
+        .collect()
+}
+
+/// Legend entries of the band edge: one plain entry, or with
+/// electrostatics one for the band edge with the charge's potential and
+/// one without it, each with the top of its barrier.
+fn band_edge_entries(
+    band_edge_ev: &[f64],
+    imposed: Option<&[f64]>,
+    (factor, unit): (f64, &str),
+) -> Vec<(Mark, String)> {
+    let Some(imposed) = imposed else {
+        return vec![(Mark::Line(INK, false), "band edge".to_string())];
+    };
+    let top = |v: &[f64]| short(v.iter().copied().fold(f64::NEG_INFINITY, f64::max) * factor);
+    vec![
+        (
+            Mark::Line(INK, false),
+            format!(
+                "band edge with the potential of the device's charge (top {} {unit})",
+                top(band_edge_ev)
+            ),
+        ),
+        (
+            Mark::Line(BAND_EDGE_IMPOSED, false),
+            format!(
+                "band edge without it: band offsets only (top {} {unit})",
+                top(imposed)
+            ),
+        ),
+    ]
+}
+
+fn energy_panel(sol: &Solution, o: &Observables, potential_ev: Option<&[f64]>) -> EnergyPanel {
     let s = &o.sites;
     let (mu_l, mu_r) = (
         sol.problem.left.fermi_level_ev,
         sol.problem.right.fermi_level_ev,
     );
     let movers = mover_runs(o, 1.0);
+    let imposed = potential_ev.map(|u| band_edge_without_potential(&s.band_edge_ev, u));
     let levels = || {
         s.band_edge_ev
             .iter()
+            .chain(imposed.iter().flatten())
             .chain(&s.fermi_level_ev)
             .copied()
             .chain([mu_l, mu_r])
@@ -158,8 +208,8 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
     };
     let (factor, unit) = energy_unit(levels());
     let r = finite_range(&levels().collect::<Vec<_>>()).unwrap_or((0.0, 1.0));
-    let entries = vec![
-        (Mark::Line(INK, false), "band edge".to_string()),
+    let mut entries = band_edge_entries(&s.band_edge_ev, imposed.as_deref(), (factor, unit));
+    entries.extend([
         (
             Mark::Line(LOCAL_FERMI, false),
             "local Fermi level".to_string(),
@@ -172,8 +222,7 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
             Mark::Line(RIGHT, false),
             format!("right lead Fermi level {} {unit}", short(mu_r * factor)),
         ),
-    ];
-    let mut entries = entries;
+    ]);
     let movers_legend = [
         (FORWARD, "right-movers' level µ₊"),
         (BACKWARD, "left-movers' level µ₋"),
@@ -194,6 +243,7 @@ fn energy_panel(sol: &Solution, o: &Observables) -> EnergyPanel {
         factor,
         unit,
         entries,
+        imposed,
     }
 }
 
@@ -232,6 +282,14 @@ fn draw_energy_panel(
             6,
             6,
             c.stroke_width(1),
+        ))?;
+    }
+    // The band edge without the charge's potential goes under the one
+    // with it: where the charge moved nothing, the reader sees one line.
+    if let Some(imposed) = &ep.imposed {
+        chart.draw_series(LineSeries::new(
+            steps(&s.x_nm, imposed, span.a, ef),
+            BAND_EDGE_IMPOSED.stroke_width(2),
         ))?;
     }
     chart.draw_series(LineSeries::new(
@@ -516,6 +574,22 @@ fn draw_temperature_panel(
 /// contact temperatures (where the heat piles up). The leads are drawn in neutral greys, heating and cooling in orange and
 /// blue, so no colour stands for two things.
 pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError> {
+    device_svg_with_potential(sol, o, None)
+}
+
+/// [`device_svg`] of a solve with self-consistent electrostatics:
+/// `potential_ev` is the electrostatic potential energy U_es of each cell
+/// that the device's charge put there (included in the solution's band
+/// edge). The top panel then shows the band edge with it and, beside it,
+/// the band edge without it (the band offsets the case imposes), so that a
+/// reader sees how far the charge moved the barrier; the legend says which
+/// is which and gives the top of each. With `None` the figure is
+/// [`device_svg`]'s.
+pub fn device_svg_with_potential(
+    sol: &Solution,
+    o: &Observables,
+    potential_ev: Option<&[f64]>,
+) -> Result<String, OutputError> {
     const FIGURE: &str = "device.svg";
     let p = &sol.problem;
     let s = &o.sites;
@@ -532,7 +606,16 @@ pub fn device_svg(sol: &Solution, o: &Observables) -> Result<String, OutputError
         xb,
         a,
     };
-    let ep = energy_panel(sol, o);
+    if let Some(u) = potential_ev.filter(|u| u.len() != n) {
+        return Err(plot_error(
+            FIGURE,
+            format!(
+                "expected one electrostatic potential value per cell ({n}), found {}",
+                u.len()
+            ),
+        ));
+    }
+    let ep = energy_panel(sol, o, potential_ev);
     let dp = drop_panel(o, a);
     let bottom_entries = power_entries(&s.lattice_power_w);
     let heat = temperature_panel(sol);

@@ -27,8 +27,9 @@ pub mod style;
 
 pub use curves::{cooler_figures, generator_figures, grid_figures, ranking_figure};
 pub use figures::{
-    bond_current_svg, bond_current_svg_within, convergence_svg, device_svg, net_flow,
-    occupation_svg, occupation_svg_within, spectrum_svg,
+    band_edge_without_potential, bond_current_svg, bond_current_svg_within, convergence_svg,
+    device_svg, device_svg_with_potential, net_flow, occupation_svg, occupation_svg_within,
+    spectrum_svg,
 };
 
 use super::sizes::ResultLimits;
@@ -953,8 +954,23 @@ pub fn write_solve_plots_within(
     o: &Observables,
     limits: &ResultLimits,
 ) -> Result<(), OutputError> {
+    write_solve_plots_with_potential(stage, sol, o, None, limits)
+}
+
+/// [`write_solve_plots_within`] for a solve with self-consistent
+/// electrostatics: `potential_ev` is the electrostatic potential energy of
+/// each cell (eV), and device.svg shows the band edge with and without it
+/// ([`device_svg_with_potential`]).
+pub fn write_solve_plots_with_potential(
+    stage: &Staging,
+    sol: &Solution,
+    o: &Observables,
+    potential_ev: Option<&[f64]>,
+    limits: &ResultLimits,
+) -> Result<(), OutputError> {
     let pixels = limits.map_pixels();
-    stage.write("device.svg", device_svg(sol, o)?.as_bytes())?;
+    let device = device_svg_with_potential(sol, o, potential_ev)?;
+    stage.write("device.svg", device.as_bytes())?;
     stage.write("spectrum.svg", spectrum_svg(sol, o)?.as_bytes())?;
     let bond = bond_current_svg_within(sol, o, pixels)?;
     stage.write("bond_current.svg", bond.as_bytes())?;

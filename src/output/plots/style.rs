@@ -54,9 +54,15 @@ pub const CURRENT_CHANGE: RGBColor = RGBColor(0xc2, 0x7c, 0x0e);
 /// from the orange of heating (a power) by lightness and hue.
 pub const LATTICE_TEMPERATURE: RGBColor = RGBColor(0x7a, 0x12, 0x2a);
 
+/// The band edge without the potential of the device's charge (the band
+/// offsets the case imposes), drawn beside the band edge of a solve with
+/// self-consistent electrostatics: an olive green, apart from the teal of
+/// the electrons moving to +x by hue and from the lead greys by colour.
+pub const BAND_EDGE_IMPOSED: RGBColor = RGBColor(0x7d, 0x8c, 0x1e);
+
 /// Every named colour of the solve figures with what it stands for; each
 /// meaning has its own colour, in every figure.
-pub const MEANINGS: [(RGBColor, &str); 16] = [
+pub const MEANINGS: [(RGBColor, &str); 17] = [
     (INK, "axes, text and the band edge"),
     (LEAD_SHADE, "lead regions"),
     (HEATING, "lattice heated"),
@@ -73,6 +79,10 @@ pub const MEANINGS: [(RGBColor, &str); 16] = [
     (CURRENT_CHANGE, "change of the terminal currents"),
     (GRID, "grid lines"),
     (LATTICE_TEMPERATURE, "lattice temperature"),
+    (
+        BAND_EDGE_IMPOSED,
+        "band edge without the potential of the device's charge",
+    ),
 ];
 
 /// Colours of the series of a generic line chart, in order: chosen to stay

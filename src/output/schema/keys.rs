@@ -780,7 +780,7 @@ const CURVE_ES: [Key; 3] = [
     ),
 ];
 
-const COOLER: [Key; 23] = [
+const COOLER: [Key; 28] = [
     ("settings.hot_k", "K", "temperature of the hot lead"),
     ("settings.cold_k", "K", "temperature of the cold lead"),
     ("settings.points", "1", "bias voltages on the curve"),
@@ -844,6 +844,27 @@ const COOLER: [Key; 23] = [
     CURVE_ES[0],
     CURVE_ES[1],
     CURVE_ES[2],
+    (
+        "range.end_v",
+        "V",
+        "end of the bias range the curve covers (it runs from 0 to here), found by a march out in steps of kT/e",
+    ),
+    ("range.steps", "1", "steps of kT/e the march took"),
+    (
+        "range.reason",
+        "-",
+        "why the march stopped: fell_back (past its maximum the cooling power fell back by half of its rise), levelled_off (with [electrostatics]: it changed by less than 1 % of its rise over each of the last two steps), bias_limit (with [electrostatics]: range.limit_v reached), not_converged (a solve of the march did not converge; the range ends before it and the result is flagged) or step_limit (400 steps)",
+    ),
+    (
+        "range.limit_v",
+        "V",
+        "with [electrostatics]: the largest |V| the march may reach, (2 Φ0 + 10 kT)/e with Φ0 the zero-bias barrier top above µ; null without",
+    ),
+    (
+        "range.not_converged_at_v",
+        "V",
+        "the voltage of the march solve that did not converge, when that ended the march; else null",
+    ),
 ];
 
 const ELECTROSTATICS: [Key; 12] = [
