@@ -155,6 +155,27 @@ fn current_change(params: &ScbaParams, now: (f64, f64), before: Option<(f64, f64
 /// 10 took the fewest steps on the 400-cell bench device (of 0.1, 1, 10).
 const POTENTIAL_WEIGHT: f64 = 10.0;
 
+/// The Born record of step `step` (its current change measured against
+/// `previous`, which it updates) and whether it meets the Born tolerances.
+fn born_record(
+    sol: &Solution,
+    params: &ScbaParams,
+    step: usize,
+    previous: &mut Option<(f64, f64)>,
+) -> Result<(IterationRecord, bool), SolveError> {
+    let Some(mut record) = sol.report.history.last().cloned() else {
+        return Err(SolveError::Invalid(
+            "the joint loop needs a Born pass".into(),
+        ));
+    };
+    let currents = (record.current_left_a, record.current_right_a);
+    record.iteration = step;
+    record.current_change = current_change(params, currents, *previous);
+    *previous = Some(currents);
+    let ok = record.residual <= params.tolerance && record.current_change <= 1.0;
+    Ok((record, ok))
+}
+
 /// The mixing state of the joint loop.
 struct JointState {
     layout: SigmaLayout,
@@ -270,16 +291,7 @@ pub(super) fn solve_joint(
             Some(&x),
             &mut steps,
         )?;
-        let Some(mut record) = sol.report.history.last().cloned() else {
-            return Err(SolveError::Invalid(
-                "the joint loop needs a Born pass".into(),
-            ));
-        };
-        let currents = (record.current_left_a, record.current_right_a);
-        record.iteration = step;
-        record.current_change = current_change(params, currents, previous);
-        previous = Some(currents);
-        let born_ok = record.residual <= params.tolerance && record.current_change <= 1.0;
+        let (mut record, born_ok) = born_record(&sol, params, step, &mut previous)?;
         let density = CellDensity::new(&sol, temperature);
         let outer = super::OuterStep::new(&poisson, &u, &density, es.tolerance_ev);
         history.push(OuterRecord {
