@@ -3,19 +3,22 @@
 //! (0.5 nm cells, m* = 0.07, 25 nm², 2e18 cm⁻³ donors with an undoped
 //! 20 nm layer in the middle), one 36 meV phonon (D = 2e-3 eV²) everywhere,
 //! 20 mV bias, 2 meV energy step. The ratio of the two medians is the cost
-//! of the electrostatics; its target is at most 3.
+//! of the electrostatics; its target is at most 3. The setup also runs
+//! both outer schemes once and prints their outer iterations, Born passes
+//! and time (the benchmark times the default scheme).
 //!
 //! Run: `cargo bench --bench electrostatics -- --sample-size 10 --warm-up-time 1 --measurement-time 20`
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use qheat::device;
-use qheat::electrostatics::{self, Boundary, Electrostatics};
+use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics};
 use qheat::grid::EnergyGrid;
 use qheat::leads::{DecimationParams, Lead};
 use qheat::model::{Contact, Problem};
 use qheat::scattering::{PhononMode, Scattering};
 use qheat::scba::{self, ScbaParams, Silent};
 use std::hint::black_box;
+use std::time::Instant;
 
 const CELLS: usize = 400;
 const SPACING_NM: f64 = 0.5;
@@ -72,20 +75,44 @@ fn settings() -> Electrostatics {
         max_iterations: Electrostatics::DEFAULT_MAX_ITERATIONS,
         mixing_depth: Electrostatics::DEFAULT_MIXING_DEPTH,
         mixing_factor: Electrostatics::DEFAULT_MIXING_FACTOR,
+        coupling: Coupling::default(),
     }
 }
 
 fn bench(c: &mut Criterion) {
     let (p, es, params) = (problem(), settings(), ScbaParams::default());
+    // Both outer schemes once, for the record (the benchmark times the
+    // default one).
+    for coupling in [Coupling::Nested, Coupling::Joint] {
+        let es = Electrostatics {
+            coupling,
+            ..es.clone()
+        };
+        let clock = Instant::now();
+        let sc = electrostatics::solve(&p, &es, &params, None, None, &mut Silent).expect("solves");
+        eprintln!(
+            "{}: {} outer iterations, {} Born passes, {:.2} s, converged {}",
+            coupling.name(),
+            sc.report.outer_iterations,
+            sc.report.born_passes,
+            clock.elapsed().as_secs_f64(),
+            sc.report.converged
+        );
+    }
+    let clock = Instant::now();
     let sc = electrostatics::solve(&p, &es, &params, None, None, &mut Silent).expect("solves");
+    let sc_s = clock.elapsed().as_secs_f64();
     assert!(sc.report.converged, "{:?}", sc.report.history);
-    eprintln!(
-        "electrostatics: {} outer iterations, {} Born passes",
-        sc.report.outer_iterations, sc.report.born_passes
-    );
     let frozen = electrostatics::with_potential(&p, &sc.potential_ev);
+    let clock = Instant::now();
     let fixed = scba::solve(&frozen, &params, None, &mut Silent).expect("solves");
-    eprintln!("frozen potential: {} Born passes", fixed.report.iterations);
+    let fixed_s = clock.elapsed().as_secs_f64();
+    eprintln!(
+        "default ({}) {sc_s:.2} s; frozen potential: {} Born passes, {fixed_s:.2} s (ratio {:.2})",
+        es.coupling.name(),
+        fixed.report.iterations,
+        sc_s / fixed_s
+    );
     let mut g = c.benchmark_group("electrostatics_400_cells_one_phonon");
     g.bench_function("self_consistent", |b| {
         b.iter(|| {

@@ -2,7 +2,7 @@
 //! loop, checked against closed forms and conservation laws.
 
 use qheat::device;
-use qheat::electrostatics::{self, Boundary, Electrostatics, VACUUM_PERMITTIVITY};
+use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics, VACUUM_PERMITTIVITY};
 use qheat::grid::EnergyGrid;
 use qheat::leads::{DecimationParams, Lead};
 use qheat::model::{Contact, Problem};
@@ -59,6 +59,7 @@ fn settings(cells: usize, permittivity: f64, area: f64, donors: Vec<f64>) -> Ele
         max_iterations: 100,
         mixing_depth: 5,
         mixing_factor: 0.5,
+        coupling: Coupling::default(),
     }
 }
 
@@ -264,6 +265,7 @@ fn cli_solve_reports_the_computed_potential() {
     let e = &s["electrostatics"];
     assert_eq!(e["computed_drop_replaces_imposed"], true);
     assert_eq!(e["converged"], true);
+    assert_eq!(e["coupling"], "nested", "the default scheme is named: {e}");
     assert!(e["outer_iterations"].as_u64().unwrap() >= 2, "{e}");
     assert!(e["poisson_residual"].as_f64().unwrap() < 1e-3, "{e}");
     assert!(e["born_residual"].as_f64().unwrap() < 1e-6, "{e}");
@@ -299,5 +301,93 @@ fn cli_solve_reports_the_computed_potential() {
         (electrons / donors - 1.0).abs() < 1e-3,
         "electrons {electrons}, donors {donors}"
     );
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+/// The joint scheme (Σ0 and the potential in one Anderson vector, one
+/// Born pass per step) and the nested one (a Born loop at each potential,
+/// its tolerance tied to the outer progress) share their fixed point: on
+/// the doped wire with a phonon under bias they agree on the potential
+/// and the current. Both stop at a Born tolerance of 1e-10 and an outer
+/// tolerance of 1e-10 eV, so each lies within about that of the fixed
+/// point times the error amplification of its loop (≲ 10²); 1e-7 eV and
+/// 1e-7 relative allow for that and still catch a scheme that stops
+/// early (the first steps move U by ~1e-2 eV) or has another fixed point.
+#[test]
+fn joint_and_nested_reach_the_same_point() {
+    let (p, mut es) = doped_wire((0.15, 0.05), true);
+    let params = ScbaParams::default().with_tolerance(1e-10);
+    let mut run = |c: Coupling| {
+        es.coupling = c;
+        let sc = electrostatics::solve(&p, &es, &params, None, None, &mut Silent).unwrap();
+        assert!(sc.report.converged, "{c:?}: {:?}", sc.report.history);
+        assert!(sc.solution.report.converged, "{c:?}");
+        assert_eq!(sc.report.coupling, c);
+        eprintln!(
+            "{c:?}: {} outer iterations, {} Born passes",
+            sc.report.outer_iterations, sc.report.born_passes
+        );
+        sc
+    };
+    let joint = run(Coupling::Joint);
+    let nested = run(Coupling::Nested);
+    let du = joint
+        .potential_ev
+        .iter()
+        .zip(&nested.potential_ev)
+        .fold(0.0, |m: f64, (a, b)| m.max((a - b).abs()));
+    assert!(du < 1e-7, "potentials differ by {du} eV");
+    let (ij, in_) = (
+        observe(&joint.solution).current_a,
+        observe(&nested.solution).current_a,
+    );
+    assert!(ij.abs() > 0.0);
+    assert!((ij - in_).abs() < 1e-7 * ij.abs(), "{ij} A against {in_} A");
+}
+
+/// A run whose outer loop is cut short is flagged, whichever scheme ran,
+/// and the summary names the scheme: `qheat solve` on the demo with
+/// electrostatics.max_iterations = 2 exits with 2 and summary.json says
+/// not converged, for "nested" and "joint" alike.
+#[test]
+fn cli_flags_a_cut_outer_loop_and_names_the_scheme() {
+    let dir = std::env::temp_dir().join(format!("qheat-es-cut-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let demo = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("cases-demo/doped-barrier-cooler.toml"),
+    )
+    .unwrap();
+    for scheme in ["nested", "joint"] {
+        let text = demo.replace(
+            "donors_cm3 = 2e18\n",
+            &format!("donors_cm3 = 2e18\nmax_iterations = 2\ncoupling = \"{scheme}\"\n"),
+        );
+        assert!(
+            text.contains("coupling"),
+            "the demo's [electrostatics] moved"
+        );
+        let case = dir.join(format!("{scheme}.toml"));
+        std::fs::write(&case, text).unwrap();
+        let out = dir.join(scheme);
+        let o = std::process::Command::new(env!("CARGO_BIN_EXE_qheat"))
+            .args(["solve", case.to_str().unwrap(), "-o", out.to_str().unwrap()])
+            .output()
+            .unwrap();
+        let stderr = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{scheme}: {stderr}");
+        assert!(
+            stderr.contains("electrostatics did not converge"),
+            "{stderr}"
+        );
+        let s: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap())
+                .unwrap();
+        let e = &s["electrostatics"];
+        assert_eq!(e["coupling"], scheme, "{e}");
+        assert_eq!(e["converged"], false, "{e}");
+        assert_eq!(e["outer_iterations"], 2, "{e}");
+        assert_eq!(s["converged"], false);
+    }
     std::fs::remove_dir_all(&dir).ok();
 }

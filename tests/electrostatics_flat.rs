@@ -2,7 +2,7 @@
 //! the density of states has the one-dimensional band-edge singularity.
 
 use qheat::device;
-use qheat::electrostatics::{self, Boundary, Electrostatics};
+use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics};
 use qheat::grid::EnergyGrid;
 use qheat::leads::{DecimationParams, Lead};
 use qheat::model::{Contact, Problem};
@@ -52,6 +52,7 @@ fn settings(area: f64, donors: Vec<f64>) -> Electrostatics {
         max_iterations: 80,
         mixing_depth: 5,
         mixing_factor: 0.5,
+        coupling: Coupling::default(),
     }
 }
 

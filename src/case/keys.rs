@@ -8,6 +8,7 @@ use super::check::{choice_name, choice_names, show};
 use super::sections::device::{KindName, SpinMode};
 use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, ResponseSplit};
 use super::spec::DEFAULT_SPIN_DEGENERACY;
+use crate::electrostatics::Coupling;
 use crate::leads::DecimationParams;
 use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 
@@ -187,6 +188,9 @@ fn hermitian_default() -> &'static str {
 }
 fn history_default() -> &'static str {
     choice_name(ScbaParams::default().history)
+}
+fn es_coupling_default() -> &'static str {
+    choice_name(Coupling::default())
 }
 fn order_default() -> &'static str {
     choice_name(ScbaParams::default().energy_order)
@@ -962,6 +966,13 @@ pub static KEYS: &[KeyInfo] = &[
         "",
         Number(es_max_iterations),
         "limit of outer iterations (transport solve, then Newton on the Poisson equation); reaching it is a flagged, non-converged result",
+    ),
+    key(
+        "electrostatics.coupling",
+        ValueType::Choice(choice_names::<Coupling>),
+        "",
+        Word(es_coupling_default),
+        "how the potential and the Born loop iterate together: joint (one Born pass and one Newton solve per step, Σ0 and the potential in one Anderson vector) or nested (the Born loop at each potential, then Newton); both reach the same answer",
     ),
     key(
         "electrostatics.region.#.from_nm",

@@ -257,6 +257,7 @@ pub(crate) struct RawElectrostatics {
     pub gate_length_nm: Opt<f64>,
     pub tolerance_ev: Opt<f64>,
     pub max_iterations: Opt<i64>,
+    pub coupling: Opt<String>,
     pub region: Option<Vec<Spanned<RawElectrostaticsRegion>>>,
 }
 

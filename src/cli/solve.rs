@@ -326,7 +326,8 @@ fn print_electrostatics(e: &ElectrostaticsSummary) {
         e.highest_band_edge_ev
     );
     println!(
-        "                  {} outer iterations, {} Born passes; Poisson residual {:.2e} electrons, Born residual {}, last change {:.2e} eV{}",
+        "                  {} coupling, {} outer iterations, {} Born passes; Poisson residual {:.2e} electrons, Born residual {}, last change {:.2e} eV{}",
+        e.coupling,
         e.outer_iterations,
         e.born_passes,
         e.poisson_residual,

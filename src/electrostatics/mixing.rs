@@ -12,28 +12,56 @@
 //! Numer. Anal. 49, 1715 (2011)). The history is small (one number per
 //! cell), so the least-squares problem is solved by its normal equations
 //! with Gaussian elimination.
+//!
+//! The joint scheme (`joint.rs`) mixes a longer vector, Σ0 and the
+//! potential together, with a factor of its own for each part: β is then
+//! a diagonal matrix B, U_k+1 = U_k + B r_k − Σ_j γ_j (ΔU_j + B Δr_j),
+//! which is Anderson's method on the iteration preconditioned by B. The
+//! dot products run over fixed chunks in parallel and add the chunk sums
+//! in order, so the iterates do not depend on the thread count.
 
+use rayon::prelude::*;
 use std::collections::VecDeque;
 
 /// Mixing state across outer iterations.
 pub(super) struct PotentialMixer {
     depth: usize,
-    beta: f64,
+    /// β of the first `head` entries and of the rest.
+    beta: (f64, f64),
+    head: usize,
     prev: Option<(Vec<f64>, Vec<f64>)>,
     du: VecDeque<Vec<f64>>,
     dr: VecDeque<Vec<f64>>,
 }
 
+/// Entries per chunk of a dot product.
+const CHUNK: usize = 1 << 14;
+
 fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
+    if a.len() <= CHUNK {
+        return a.iter().zip(b).map(|(x, y)| x * y).sum();
+    }
+    let parts: Vec<f64> = a
+        .par_chunks(CHUNK)
+        .zip(b.par_chunks(CHUNK))
+        .map(|(x, y)| x.iter().zip(y).map(|(p, q)| p * q).sum())
+        .collect();
+    parts.iter().sum()
 }
 
 impl PotentialMixer {
     /// History depth `depth` (0: linear) and factor β = `beta`.
     pub(super) fn new(depth: usize, beta: f64) -> Self {
+        Self::split(depth, beta, beta, 0)
+    }
+
+    /// Depth `depth`, factor `beta_head` on the first `head` entries of
+    /// the vector and `beta_tail` on the others.
+    pub(super) fn split(depth: usize, beta_head: f64, beta_tail: f64, head: usize) -> Self {
         Self {
             depth,
-            beta,
+            beta: (beta_head, beta_tail),
+            head,
             prev: None,
             du: VecDeque::new(),
             dr: VecDeque::new(),
@@ -58,11 +86,15 @@ impl PotentialMixer {
             self.dr.clear();
             Vec::new()
         });
-        let mut next: Vec<f64> = u.iter().zip(r).map(|(a, b)| a + self.beta * b).collect();
+        let (head, (bh, bt)) = (self.head, self.beta);
+        let beta = |i: usize| if i < head { bh } else { bt };
+        let mut next: Vec<f64> = (u.iter().zip(r).enumerate())
+            .map(|(i, (a, b))| a + beta(i) * b)
+            .collect();
         for (g, (du, dr)) in gamma.iter().zip(self.du.iter().zip(&self.dr)) {
-            for (i, x) in next.iter_mut().enumerate() {
-                *x -= g * (du[i] + self.beta * dr[i]);
-            }
+            next.par_iter_mut().enumerate().for_each(|(i, x)| {
+                *x -= g * (du[i] + beta(i) * dr[i]);
+            });
         }
         next
     }

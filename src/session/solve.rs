@@ -384,6 +384,7 @@ fn electrostatics_summary(sol: &Solution, r: &EsRun) -> ElectrostaticsSummary {
         poisson_residual: r.report.poisson_residual,
         born_residual: r.report.born_residual,
         converged: r.report.converged,
+        coupling: r.report.coupling.name().into(),
         potential_energy_per_cell_ev: r.potential_ev.clone(),
         electrons_per_cell: r.electrons.clone(),
     }

@@ -8,15 +8,22 @@
 //! values it names there, later entries winning. An end with
 //! `left_potential_v` / `right_potential_v` holds that electrostatic
 //! potential; without it the end is charge-neutral (zero field). A gate
-//! needs both `gate_potential_v` and `gate_length_nm`.
+//! needs both `gate_potential_v` and `gate_length_nm`. `coupling` picks
+//! how the potential and the Born loop are iterated together ("joint",
+//! the default, or "nested").
 
-use super::super::check::Checker;
+use super::super::check::{Checker, Choice};
 use super::super::error::CaseError;
 use super::super::raw::{Opt, RawCase, RawElectrostatics, RawElectrostaticsRegion};
 use super::device::{DeviceKind, DeviceSpec};
-use crate::electrostatics::{Boundary, Electrostatics, Gate};
+use crate::electrostatics::{Boundary, Coupling, Electrostatics, Gate};
 use std::ops::Range;
 use toml::Spanned;
+
+impl Choice for Coupling {
+    const CHOICES: &'static [(&'static str, Self)] =
+        &[("joint", Coupling::Joint), ("nested", Coupling::Nested)];
+}
 
 /// Largest doping accepted (cm⁻³): above the atomic density of any solid.
 const MAX_DOPING_CM3: f64 = 1e24;
@@ -45,6 +52,7 @@ pub(crate) struct ElectrostaticsSpec {
     pub gate: Option<Gate>,
     pub tolerance_ev: f64,
     pub max_iterations: usize,
+    pub coupling: Coupling,
     pub regions: Vec<EsRegion>,
     /// Span of the table.
     pub span: Option<Range<usize>>,
@@ -121,6 +129,9 @@ impl ElectrostaticsSpec {
                     |n| (1..=10_000).contains(&n),
                 )?
                 .unwrap_or(Electrostatics::DEFAULT_MAX_ITERATIONS),
+            coupling: ck
+                .choice(&e.coupling, "electrostatics.coupling")?
+                .unwrap_or_default(),
             regions: regions(e, ck, device, warnings)?,
             span,
         }))
@@ -164,6 +175,7 @@ impl ElectrostaticsSpec {
             max_iterations: self.max_iterations,
             mixing_depth: Electrostatics::DEFAULT_MIXING_DEPTH,
             mixing_factor: Electrostatics::DEFAULT_MIXING_FACTOR,
+            coupling: self.coupling,
         }
     }
 }

@@ -867,7 +867,7 @@ const COOLER: [Key; 28] = [
     ),
 ];
 
-const ELECTROSTATICS: [Key; 12] = [
+const ELECTROSTATICS: [Key; 13] = [
     (
         "computed_drop_replaces_imposed",
         "-",
@@ -896,7 +896,7 @@ const ELECTROSTATICS: [Key; 12] = [
     (
         "outer_iterations",
         "1",
-        "outer iterations: a Born solve at a fixed potential, then Newton on the Poisson equation",
+        "outer iterations: a Born solve at a fixed potential, then Newton on the Poisson equation (joint coupling: one Born pass, then Newton)",
     ),
     (
         "born_passes",
@@ -927,6 +927,11 @@ const ELECTROSTATICS: [Key; 12] = [
         "converged",
         "-",
         "whether the potential and the last Born loop both converged",
+    ),
+    (
+        "coupling",
+        "-",
+        "the outer scheme that ran: joint (one Born pass and one Newton solve per step, one Anderson vector) or nested (a Born loop at each potential)",
     ),
 ];
 

@@ -352,6 +352,8 @@ pub struct ElectrostaticsSummary {
     pub poisson_residual: f64,
     pub born_residual: f64,
     pub converged: bool,
+    #[serde(default)]
+    pub coupling: String,
     /// Electrostatic potential energy U_es of each cell (eV); written to
     /// sites.csv, not to summary.json.
     #[serde(skip, default)]
