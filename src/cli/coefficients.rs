@@ -139,6 +139,9 @@ pub fn coefficients(
         resolved_case: case.to_toml_string(),
     };
     let text = to_text(&summary);
+    if !common.writes {
+        return Ok(());
+    }
     let stage = Staging::with_options(&out_dir, &options)?;
     stage.write("summary.json", text.as_bytes())?;
     if let Some(s) = phonons {
