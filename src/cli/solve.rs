@@ -279,16 +279,7 @@ pub fn solve(
     // What may differ between the ranks (the memory of each machine, the
     // folder as each sees it) is agreed on before the Born loop, whose
     // collectives every rank must reach.
-    let ready = (|| {
-        if !limits.ignore_memory {
-            refuse_beyond_rank_memory(&loaded, cluster)?;
-        }
-        // Refused before the work rather than after it.
-        if cluster.is_root() {
-            check_folder(&out_dir, &folder("solve", other_files))?;
-        }
-        Ok(())
-    })();
+    let ready = ready_to_solve(&loaded, &out_dir, other_files, limits, cluster);
     agreed(cluster, ready)?;
     let mut bar = BornProgress::new(
         enabled(common.quiet),
@@ -335,6 +326,24 @@ pub fn solve(
         Some(message) => Err(Failure::Solver(message)),
         None => Ok(()),
     }
+}
+
+/// The checks before a solve: its memory and (on rank 0, the one that
+/// writes) the result folder, refused before the work rather than after it.
+fn ready_to_solve(
+    loaded: &Loaded,
+    out_dir: &Path,
+    other_files: OtherFiles,
+    limits: &SolveLimits,
+    cluster: &Cluster,
+) -> Result<(), Failure> {
+    if !limits.ignore_memory {
+        refuse_beyond_rank_memory(loaded, cluster)?;
+    }
+    if cluster.is_root() {
+        check_folder(out_dir, &folder("solve", other_files))?;
+    }
+    Ok(())
 }
 
 /// Refuse a solve whose memory estimate exceeds this rank's share of the

@@ -1304,26 +1304,12 @@ impl<'a> BornLoop<'a> {
                 lattice: self.lattice.as_deref(),
                 ..BornMaps::plain(problem, self.leads, &levels, coherent, split.as_deref())
             };
+            let iteration = self.report.iterations + 1;
             let order = self.colour.filter(|_| black_ready);
-            let residual = sweep(
-                &maps,
-                order,
-                &mut x,
-                &mut p,
-                &mut fx,
-                self.report.iterations + 1,
-            )?;
+            let residual = sweep(&maps, order, &mut x, &mut p, &mut fx, iteration)?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
-            let iteration = self.report.iterations + 1;
-            if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
-                return Err(SolveError::Diverged {
-                    iteration,
-                    residual,
-                    current_left_a: il,
-                    current_right_a: ir,
-                });
-            }
+            ensure_not_diverged(iteration, residual, (il, ir))?;
             let current_change = current_change(params, (il, ir), previous);
             previous = Some((il, ir));
             self.report.iterations = iteration;
@@ -1367,6 +1353,24 @@ impl<'a> BornLoop<'a> {
             }
         }
     }
+}
+
+/// Fails when Born iteration `iteration` left a residual or a terminal
+/// current (A) that is not a finite number.
+fn ensure_not_diverged(
+    iteration: usize,
+    residual: f64,
+    (il, ir): (f64, f64),
+) -> Result<(), SolveError> {
+    if residual.is_finite() && il.is_finite() && ir.is_finite() {
+        return Ok(());
+    }
+    Err(SolveError::Diverged {
+        iteration,
+        residual,
+        current_left_a: il,
+        current_right_a: ir,
+    })
 }
 
 /// Largest change of a terminal current since the last iteration, relative
