@@ -100,6 +100,9 @@ pub fn coefficients(
     let run = session::coefficients(loaded, common.threads, &mut progress);
     progress.finish();
     let run = run?;
+    if !common.writes {
+        return Ok(());
+    }
     run.write(&out_dir, other_files)?;
     let summary = &run.summary;
     if common.json {

@@ -282,6 +282,9 @@ pub struct Common {
     pub quiet: bool,
     /// Print JSON on stdout.
     pub json: bool,
+    /// Write result folders: false on every rank but 0 of a command whose
+    /// Born solves share their energies over MPI ranks.
+    pub writes: bool,
 }
 
 /// Parse the command line, run, and map the outcome to an exit code.
@@ -325,11 +328,24 @@ pub fn run() -> ExitCode {
         threads: rayon::current_num_threads(),
         quiet: cli.quiet || !root,
         json: cli.json && root,
+        writes: root,
     };
     let outcome = match &cli.command {
         Command::Sweep { .. } | Command::Screen { .. } => {
             split_points(&cli.command, &common, &cluster)
         }
+        Command::Solve { .. } if cluster.size() > 1 => {
+            split_energies(&cluster, || dispatch(&cli.command, &common, &cluster))
+        }
+        Command::Coefficients {
+            case,
+            out,
+            overwrite,
+        } if cluster.size() > 1 => split_energies(&cluster, || {
+            let ready = coefficients_ready(case, out.as_deref(), others(*overwrite), &cluster);
+            agreed(&cluster, ready)?;
+            dispatch(&cli.command, &common, &cluster)
+        }),
         other => on_root(&cluster, || dispatch(other, &common, &cluster)),
     };
     match outcome {
@@ -354,6 +370,51 @@ fn on_root(
     }
     let outcome = if cluster.is_root() { command() } else { Ok(()) };
     agreed(cluster, outcome)
+}
+
+/// A command whose Born solves share their energies over the ranks (see
+/// `qheat::scba::split`): every rank runs it; its outcome is agreed on so
+/// that every rank ends with the same exit code.
+fn split_energies(
+    cluster: &Cluster,
+    command: impl FnOnce() -> Result<(), Failure>,
+) -> Result<(), Failure> {
+    let split = std::rc::Rc::new(qheat::scba::ClusterSplit::new(cluster.clone()));
+    let outcome = qheat::scba::with_energy_split(split, command);
+    agreed(cluster, outcome)
+}
+
+/// What `qheat coefficients` checks before its runs, checked on every rank
+/// (and agreed on) before any rank starts one, so that no rank waits in a
+/// Born solve for one that stopped: the case, the memory of this rank's
+/// share of the machine and, on rank 0, the result folder.
+fn coefficients_ready(
+    path: &Path,
+    out: Option<&Path>,
+    other_files: qheat::output::OtherFiles,
+    cluster: &Cluster,
+) -> Result<(), Failure> {
+    let loaded = qheat::session::Loaded::from_file(path)?;
+    let here = ranks_on_this_machine(cluster) as u64;
+    check_memory(loaded.resolved.memory_estimate_bytes().saturating_mul(here))?;
+    if cluster.is_root() {
+        let dir = out
+            .map(Path::to_path_buf)
+            .unwrap_or_else(|| default_out(&loaded.case.name, "-coefficients"));
+        qheat::output::manifest::check_folder(&dir, &folder("coefficients", other_files))?;
+    }
+    Ok(())
+}
+
+/// How many ranks of `cluster` the launcher started on this machine (as
+/// Open MPI and MPICH's Hydra tell each process; all of them when it does
+/// not say).
+pub fn ranks_on_this_machine(cluster: &Cluster) -> usize {
+    ["OMPI_COMM_WORLD_LOCAL_SIZE", "MPI_LOCALNRANKS"]
+        .iter()
+        .find_map(|v| std::env::var(v).ok()?.parse::<usize>().ok())
+        .unwrap_or(cluster.size())
+        .clamp(1, cluster.size())
 }
 
 /// `local` where every rank succeeded, else on every rank the failure of
@@ -414,7 +475,17 @@ fn thread_count(asked: Option<usize>) -> Result<usize, String> {
 /// Run one command.
 fn dispatch(command: &Command, common: &Common, cluster: &Cluster) -> Result<(), Failure> {
     match command {
-        Command::Check { case } => solve::check(case, common),
+        Command::Check { case } => {
+            solve::check(case, common)?;
+            if cluster.size() > 1 && !common.quiet && !common.json {
+                println!(
+                    "mpi ranks   {}: each holds every array of a solve, so the memory above is \
+                     per rank (the energy split saves time, not memory)",
+                    cluster.size()
+                );
+            }
+            Ok(())
+        }
         Command::Solve {
             case,
             out,
@@ -433,6 +504,7 @@ fn dispatch(command: &Command, common: &Common, cluster: &Cluster) -> Result<(),
                 ignore_memory: *ignore_memory_estimate,
             },
             common,
+            cluster,
         ),
         Command::Coefficients {
             case,

@@ -2,7 +2,8 @@
 
 use super::format::{number, residual, si};
 use super::progress::{BornProgress, enabled};
-use super::{Common, Failure, available_memory_bytes, default_out, folder, print_warnings};
+use super::{Common, Failure, agreed, available_memory_bytes, default_out, folder, print_warnings};
+use qheat::cluster::Cluster;
 use qheat::observables::Observables;
 use qheat::output::schema::summary::{
     ElectrostaticsSummary, FermiLevelInfo, SelfHeatingSummary, SolveResults, SolveSummary, to_text,
@@ -253,7 +254,8 @@ pub fn result_limits(budget_mb: f64, full_arrays: bool) -> Result<ResultLimits, 
     })
 }
 
-/// `qheat solve CASE`.
+/// `qheat solve CASE`. Under an energy split (`mpirun`) every rank of
+/// `cluster` runs it; rank 0 alone writes and prints.
 pub fn solve(
     path: &Path,
     out: Option<&Path>,
@@ -261,16 +263,17 @@ pub fn solve(
     warm_start: Option<&Path>,
     limits: &SolveLimits,
     common: &Common,
+    cluster: &Cluster,
 ) -> Result<(), Failure> {
     let loaded = load_case(path, common)?;
-    if !limits.ignore_memory {
-        loaded.refuse_beyond_memory(available_memory_bytes())?;
-    }
     let out_dir = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_out(&loaded.case.name, ""));
-    // Refused before the work rather than after it.
-    check_folder(&out_dir, &folder("solve", other_files))?;
+    // What may differ between the ranks (the memory of each machine, the
+    // folder as each sees it) is agreed on before the Born loop, whose
+    // collectives every rank must reach.
+    let ready = ready_to_solve(&loaded, &out_dir, other_files, limits, cluster);
+    agreed(cluster, ready)?;
     let mut bar = BornProgress::new(
         enabled(common.quiet),
         loaded.resolved.scba.tolerance,
@@ -282,10 +285,12 @@ pub fn solve(
     };
     let result = session::solve(loaded, &options, &mut bar);
     bar.finish();
-    let solved = match result {
+    let mut solved = match result {
         Ok(s) => s,
         Err(SessionError::Born { error, failure }) => {
-            write_failure(&out_dir, other_files, &failure)?;
+            if cluster.is_root() {
+                write_failure(&out_dir, other_files, &failure)?;
+            }
             return Err(Failure::Solver(format!(
                 "{error}; nothing trustworthy was computed (summary.json in {} says so)",
                 out_dir.display()
@@ -297,6 +302,13 @@ pub fn solve(
         other_files,
         limits: limits.files,
     };
+    solved.summary.energy_split_ranks = (cluster.size() > 1).then_some(cluster.size());
+    if !cluster.is_root() {
+        return match solved.not_converged("results") {
+            Some(message) => Err(Failure::Solver(message)),
+            None => Ok(()),
+        };
+    }
     let summary = solved.write(&out_dir, &write)?;
     if common.json {
         println!("{}", to_text(&summary));
@@ -307,6 +319,43 @@ pub fn solve(
         Some(message) => Err(Failure::Solver(message)),
         None => Ok(()),
     }
+}
+
+/// The checks before a solve: its memory and (on rank 0, the one that
+/// writes) the result folder, refused before the work rather than after it.
+fn ready_to_solve(
+    loaded: &Loaded,
+    out_dir: &Path,
+    other_files: OtherFiles,
+    limits: &SolveLimits,
+    cluster: &Cluster,
+) -> Result<(), Failure> {
+    if !limits.ignore_memory {
+        refuse_beyond_rank_memory(loaded, cluster)?;
+    }
+    if cluster.is_root() {
+        check_folder(out_dir, &folder("solve", other_files))?;
+    }
+    Ok(())
+}
+
+/// Refuse a solve whose memory estimate exceeds this rank's share of the
+/// machine's memory: under `mpirun` every rank holds every array, so the
+/// ranks started on one machine share its memory.
+fn refuse_beyond_rank_memory(loaded: &Loaded, cluster: &Cluster) -> Result<(), Failure> {
+    let here = super::ranks_on_this_machine(cluster);
+    let share = available_memory_bytes().map(|a| a / here as u64);
+    loaded.refuse_beyond_memory(share).map_err(|e| {
+        let f = Failure::from(e);
+        match here {
+            1 => f,
+            _ => Failure::BadInput(format!(
+                "{} (each of the {here} ranks on this machine holds every array of the solve, \
+                 so each may use 1/{here} of its memory; hint: start fewer ranks per machine)",
+                f.message()
+            )),
+        }
+    })
 }
 
 /// Read and resolve a case for a command, printing its warnings.

@@ -37,11 +37,16 @@ pub struct Fault {
 }
 
 /// The processes running one command, as seen from one of them.
+///
+/// A clone is another handle on the same job (MPI ends when the last one
+/// is dropped), for a part of the program that must keep it, such as the
+/// energy split of a Born solve.
+#[derive(Clone)]
 pub struct Cluster {
     rank: usize,
     size: usize,
     #[cfg(feature = "mpi")]
-    job: Option<mpi_job::Job>,
+    job: Option<std::sync::Arc<mpi_job::Job>>,
 }
 
 impl std::fmt::Debug for Cluster {
@@ -76,7 +81,7 @@ impl Cluster {
             return Self {
                 rank: job.rank(),
                 size: job.size(),
-                job: Some(job),
+                job: Some(std::sync::Arc::new(job)),
             };
         }
         Self::single()

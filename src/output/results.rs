@@ -207,6 +207,7 @@ pub fn solve_summary(sol: &Solution, o: &Observables, info: &RunInfo<'_>) -> Sol
         channels: o.channels.as_ref().map(channel_summary),
         result_files: None,
         contacts: super::schema::summary::ContactSummary::all(p, &o.contacts),
+        energy_split_ranks: None,
     }
 }
 

@@ -72,11 +72,13 @@
 pub mod contacts;
 mod mixing;
 mod params;
+pub mod split;
 mod undetermined;
 
 pub use contacts::ContactFlows;
 pub use mixing::Mixer;
 pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
+pub use split::{ClusterSplit, EnergySplit, with_energy_split};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
 
 use crate::C64;
@@ -1169,7 +1171,11 @@ pub fn solve_in_lattice(
     // Probes depend on G^n: a coherent device with probes iterates too.
     if coherent && !problem.has_floating_contacts() {
         let sigma = sigma_zeros(problem);
-        let pass = pass(problem, leads, &sigma, true)?;
+        let split = split::current();
+        let levels = contacts::given_levels(problem);
+        let maps = BornMaps::plain(problem, leads, &levels, true, split.as_deref());
+        let mut pass = Pass::zeros(problem);
+        pass_part(&maps, &sigma, |_| true, &mut pass)?;
         return Ok(Solution {
             problem: problem.clone(),
             pass,
@@ -1289,35 +1295,21 @@ impl<'a> BornLoop<'a> {
         // The levels of the attached contacts: probes float (see `contacts`).
         let mut levels = contacts::starting_levels(problem);
         let probes = problem.has_floating_contacts();
+        // The energy split in force, if any (see `split`).
+        let split = split::current();
+        let coherent = problem.scattering.is_coherent();
         loop {
             let maps = BornMaps {
-                problem,
-                leads: self.leads,
                 hilbert: self.hilbert.as_ref(),
                 lattice: self.lattice.as_deref(),
-                levels: &levels,
-                transmission: problem.scattering.is_coherent(),
+                ..BornMaps::plain(problem, self.leads, &levels, coherent, split.as_deref())
             };
+            let iteration = self.report.iterations + 1;
             let order = self.colour.filter(|_| black_ready);
-            let residual = sweep(
-                &maps,
-                order,
-                &mut x,
-                &mut p,
-                &mut fx,
-                self.report.iterations + 1,
-            )?;
+            let residual = sweep(&maps, order, &mut x, &mut p, &mut fx, iteration)?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
-            let iteration = self.report.iterations + 1;
-            if !(residual.is_finite() && il.is_finite() && ir.is_finite()) {
-                return Err(SolveError::Diverged {
-                    iteration,
-                    residual,
-                    current_left_a: il,
-                    current_right_a: ir,
-                });
-            }
+            ensure_not_diverged(iteration, residual, (il, ir))?;
             let current_change = current_change(params, (il, ir), previous);
             previous = Some((il, ir));
             self.report.iterations = iteration;
@@ -1363,6 +1355,24 @@ impl<'a> BornLoop<'a> {
     }
 }
 
+/// Fails when Born iteration `iteration` left a residual or a terminal
+/// current (A) that is not a finite number.
+fn ensure_not_diverged(
+    iteration: usize,
+    residual: f64,
+    (il, ir): (f64, f64),
+) -> Result<(), SolveError> {
+    if residual.is_finite() && il.is_finite() && ir.is_finite() {
+        return Ok(());
+    }
+    Err(SolveError::Diverged {
+        iteration,
+        residual,
+        current_left_a: il,
+        current_right_a: ir,
+    })
+}
+
 /// Largest change of a terminal current since the last iteration, relative
 /// to tol·|I| + floor (infinite at the first iteration).
 fn current_change(params: &ScbaParams, now: (f64, f64), previous: Option<(f64, f64)>) -> f64 {
@@ -1390,6 +1400,30 @@ struct BornMaps<'a> {
     /// Also compute the coherent transmission (no scattering: a device
     /// that iterates only for its probes).
     transmission: bool,
+    /// The processes sharing the energies of each pass (see [`split`]);
+    /// `None`: this process computes them all.
+    split: Option<&'a dyn EnergySplit>,
+}
+
+impl<'a> BornMaps<'a> {
+    /// The maps at the bath temperatures without the Hermitian part.
+    fn plain(
+        problem: &'a Problem,
+        leads: &'a LeadTable,
+        levels: &'a [(f64, f64)],
+        transmission: bool,
+        split: Option<&'a dyn EnergySplit>,
+    ) -> Self {
+        Self {
+            problem,
+            leads,
+            hilbert: None,
+            lattice: None,
+            levels,
+            transmission,
+            split,
+        }
+    }
 }
 
 impl BornMaps<'_> {
@@ -1442,13 +1476,12 @@ fn sweep(
     fx: &mut ScatteringSelfEnergy,
     iteration: usize,
 ) -> Result<f64, SolveError> {
-    let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
-    let tr = maps.transmission;
+    let problem = maps.problem;
     let local = p.blocks.is_none() && problem.scattering.row_local();
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
-            pass_rows(problem, leads, x, levels, tr, red, p)?;
+            pass_part(maps, x, red, p)?;
             if local {
                 let bad = maps.rebuild_rows(p, x, |k| !red(k), first_bad);
                 if let Some((idx, part)) = bad.into_iter().flatten().next() {
@@ -1463,9 +1496,9 @@ fn sweep(
                 ensure_finite(fx, problem, iteration)?;
                 copy_rows(fx, x, |k| !red(k));
             }
-            pass_rows(problem, leads, x, levels, tr, |k| !red(k), p)?;
+            pass_part(maps, x, |k| !red(k), p)?;
         }
-        None => pass_rows(problem, leads, x, levels, tr, |_| true, p)?,
+        None => pass_part(maps, x, |_| true, p)?,
     }
     if local {
         let a: &ScatteringSelfEnergy = x;
@@ -1489,6 +1522,30 @@ fn sweep(
     Ok(relative_change(x, fx))
 }
 
+/// [`pass_rows`] at the energies k with `rows(k)` true, Σ0 = `sigma0`.
+/// Under an energy split this process computes its part of them and the
+/// split hands every process the others' rows (every process calls this
+/// for every pass, so a failure on one ends them all alike).
+fn pass_part(
+    maps: &BornMaps<'_>,
+    sigma0: &ScatteringSelfEnergy,
+    rows: impl Fn(usize) -> bool + Sync,
+    p: &mut Pass,
+) -> Result<(), SolveError> {
+    let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
+    let tr = maps.transmission;
+    let Some(split) = maps.split else {
+        return pass_rows(problem, leads, sigma0, levels, tr, rows, p);
+    };
+    let all: Vec<usize> = (0..problem.grid.count).filter(|&k| rows(k)).collect();
+    let mut mine = vec![false; problem.grid.count];
+    all[split.part(all.len())]
+        .iter()
+        .for_each(|&k| mine[k] = true);
+    let local = pass_rows(problem, leads, sigma0, levels, tr, |k| mine[k], p);
+    split.gather_rows(p, &all, local)
+}
+
 /// The Born map as the loop applies it in `order`, at Σ0 = `sigma`: the Σ0
 /// actually used (black rows rebuilt in red-black order) and its image
 /// F(Σ0). The black energies' previous Green's functions are those of
@@ -1509,12 +1566,8 @@ pub fn born_map(
     let colour = red_black_colouring(problem, order).map(|(w, _)| w);
     let levels = contacts::given_levels(problem);
     let maps = BornMaps {
-        problem,
-        leads,
         hilbert: hilbert.as_ref(),
-        lattice: None,
-        levels: &levels,
-        transmission: false,
+        ..BornMaps::plain(problem, leads, &levels, false, None)
     };
     sweep(&maps, colour, &mut x, &mut p, &mut fx, 1)?;
     Ok((x, fx))

@@ -1019,8 +1019,16 @@ fn solve_keys() -> Vec<FieldDoc> {
     keys(&mut f, "channels.", &CHANNELS);
     keys(&mut f, "result_files.", &RESULT_FILES);
     keys(&mut f, "", &CONTACTS);
+    keys(&mut f, "", &ENERGY_SPLIT);
     f
 }
+
+/// How a solve shared its energies between processes (only under MPI).
+const ENERGY_SPLIT: [Key; 1] = [(
+    "energy_split_ranks",
+    "1",
+    "MPI ranks that shared the energies of each Born pass (only under `mpirun` with more than one rank); the results are those of one process, bit for bit",
+)];
 
 /// The `contacts` list of a solve (only with `[[contact]]` entries).
 const CONTACTS: [Key; 15] = [

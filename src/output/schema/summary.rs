@@ -199,6 +199,8 @@ pub struct SolveSummary {
     pub result_files: Option<ResultFiles>,
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub contacts: Vec<ContactSummary>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub energy_split_ranks: Option<usize>,
 }
 
 impl ContactSummary {
