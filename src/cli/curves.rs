@@ -170,10 +170,35 @@ fn print_cooler(
         "subtracted from the cooling power",
     );
     print_electrostatics(r.electrostatics.as_ref(), r.solves);
+    print_range(&r.range);
     println!("energy grid       curve: {}", r.energy_grid.describe());
     if let Some(g) = &r.coefficient_grid {
         println!("                  linear response: {}", g.describe());
     }
+}
+
+/// The cooler's range and why its march out in bias stopped there.
+fn print_range(range: &qheat::thermo::cooler::CoolerRange) {
+    use qheat::thermo::cooler::RangeEnd;
+    let why = match range.reason {
+        RangeEnd::FellBack => "the cooling power fell back by half its rise",
+        RangeEnd::LevelledOff => "the cooling power levelled off",
+        RangeEnd::BiasLimit => "the bias limit",
+        RangeEnd::NotConverged => "a solve past it did not converge",
+        RangeEnd::StepLimit => "the step limit",
+    };
+    let mut line = format!(
+        "range             0 to {} in {} steps of kT/e; stopped at {why}",
+        si(range.end_v, "V", 4),
+        range.steps
+    );
+    if let Some(l) = range.limit_v {
+        line += &format!(" (limit {})", si(l, "V", 4));
+    }
+    if let Some(v) = range.not_converged_at_v {
+        line += &format!(" (not converged at {})", si(v, "V", 4));
+    }
+    println!("{line}");
 }
 
 /// `qheat cooler CASE --hot K --cold K`.
