@@ -44,6 +44,9 @@ pub struct CellDensity {
     pub electrons: Vec<f64>,
     /// Quasi-Fermi level µ_i of each cell (eV).
     pub fermi_level_ev: Vec<f64>,
+    /// Electrons the fitted level gives at zero shift (the fit's rounding
+    /// away from `electrons`).
+    fitted: Vec<f64>,
     kt: f64,
 }
 
@@ -87,12 +90,11 @@ impl CellDensity {
             weight,
             electrons,
             fermi_level_ev: vec![0.0; n],
+            fitted: vec![0.0; n],
             kt,
         };
-        out.fermi_level_ev = (0..n)
-            .into_par_iter()
-            .map(|c| out.fit(c))
-            .collect::<Vec<_>>();
+        let fits: Vec<(f64, f64)> = (0..n).into_par_iter().map(|c| out.fit(c)).collect();
+        (out.fermi_level_ev, out.fitted) = fits.into_iter().unzip();
         out
     }
 
@@ -122,31 +124,58 @@ impl CellDensity {
     }
 
     /// The quasi-Fermi level that reproduces the electron number of the
-    /// cell (bisection; clamped to 60 k_B T beyond the grid when the
-    /// number lies outside what the grid can hold).
-    fn fit(&self, cell: usize) -> f64 {
+    /// cell (clamped to 60 k_B T beyond the grid when the number lies
+    /// outside what the grid can hold), and the count it gives.
+    ///
+    /// The count grows monotonically with µ, so the root is bracketed by
+    /// those ends; each evaluation shrinks the bracket, and the next µ is
+    /// the Newton step (the count's slope comes with it) when that lands
+    /// inside the bracket and at least halves the previous step, the
+    /// bracket's midpoint otherwise (a safeguarded Newton iteration,
+    /// W. H. Press et al., Numerical Recipes, 3rd ed. 2007, §9.4). It
+    /// stops where bisection stopped, once the step is below 1e-14 of
+    /// (1 + |µ|): about ten evaluations instead of fifty.
+    fn fit(&self, cell: usize) -> (f64, f64) {
         let target = self.electrons[cell];
         let first = self.energies.first().copied().unwrap_or(0.0);
         let last = self.energies.last().copied().unwrap_or(0.0);
         let (mut lo, mut hi) = (first - 60.0 * self.kt, last + 60.0 * self.kt);
-        if self.count(cell, lo, 0.0).0 >= target {
-            return lo;
+        let at_lo = self.count(cell, lo, 0.0).0;
+        if at_lo >= target {
+            return (lo, at_lo);
         }
-        if self.count(cell, hi, 0.0).0 <= target {
-            return hi;
+        let at_hi = self.count(cell, hi, 0.0).0;
+        if at_hi <= target {
+            return (hi, at_hi);
         }
+        let mut mu = 0.5 * (lo + hi);
+        let mut last_step = hi - lo;
         for _ in 0..200 {
-            let mid = 0.5 * (lo + hi);
-            if self.count(cell, mid, 0.0).0 < target {
-                lo = mid;
+            // `count` gives the slope against a shift of the states, −dN/dµ.
+            let (n, minus_slope) = self.count(cell, mu, 0.0);
+            if n < target {
+                lo = mu;
             } else {
-                hi = mid;
+                hi = mu;
             }
-            if hi - lo < 1e-14 * (1.0 + mid.abs()) {
+            let newton = mu + (n - target) / minus_slope;
+            let next = if minus_slope < 0.0
+                && newton > lo
+                && newton < hi
+                && (newton - mu).abs() <= 0.5 * last_step
+            {
+                newton
+            } else {
+                0.5 * (lo + hi)
+            };
+            let step = (next - mu).abs();
+            mu = next.clamp(lo, hi);
+            if step < 1e-14 * (1.0 + mu.abs()) || hi - lo < 1e-14 * (1.0 + mu.abs()) {
                 break;
             }
+            last_step = step;
         }
-        0.5 * (lo + hi)
+        (mu, self.count(cell, mu, 0.0).0)
     }
 
     /// Predicted electrons of cell `cell` after its potential energy moved
@@ -154,10 +183,9 @@ impl CellDensity {
     pub fn predict(&self, cell: usize, shift: f64) -> (f64, f64) {
         let (n, dn) = self.count(cell, self.fermi_level_ev[cell], shift);
         // At zero shift the fitted level reproduces the pass to the
-        // bisection's rounding; use the pass's own number there so that a
+        // fit's rounding; use the pass's own number there so that a
         // converged potential sees exactly the transport density.
-        let n0 = self.count(cell, self.fermi_level_ev[cell], 0.0).0;
-        (n + (self.electrons[cell] - n0), dn)
+        (n + (self.electrons[cell] - self.fitted[cell]), dn)
     }
 }
 
