@@ -12,8 +12,10 @@
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
-use std::time::{Duration, Instant};
+#[path = "support/mpi_run.rs"]
+mod mpi_run;
+
+use mpi_run::{alone, ranks, stderr, write};
 
 /// A small phonon case: one mode of 10 grid steps, so the Born loop runs
 /// in red-black order (bands of 10 energies).
@@ -108,63 +110,6 @@ gamma_ev = 0.0005
 mode = "voltage"
 "#;
 
-/// Longest any one command may take before the test calls it a hang.
-const HANG: Duration = Duration::from_secs(120);
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-/// Run a command to its end, killing it (and failing) after [`HANG`].
-fn finish(mut cmd: Command) -> Output {
-    cmd.stdout(Stdio::piped()).stderr(Stdio::piped());
-    cmd.env_remove("RUST_BACKTRACE");
-    let mut child = cmd.spawn().unwrap_or_else(|e| {
-        panic!(
-            "could not start {:?}: {e}; hint: install Open MPI (Debian: apt-get install \
-             openmpi-bin libopenmpi-dev) so that `mpirun` is on PATH",
-            cmd.get_program()
-        )
-    });
-    let start = Instant::now();
-    while child.try_wait().unwrap().is_none() {
-        if start.elapsed() > HANG {
-            let _ = child.kill();
-            panic!("{cmd:?} still ran after {HANG:?}: the ranks hang");
-        }
-        std::thread::sleep(Duration::from_millis(50));
-    }
-    child.wait_with_output().unwrap()
-}
-
-/// qheat alone (no launcher) with `threads` threads.
-fn alone(threads: usize, args: &[&str]) -> Output {
-    let mut c = Command::new(env!("CARGO_BIN_EXE_qheat"));
-    c.arg("--threads").arg(threads.to_string()).args(args);
-    finish(c)
-}
-
-/// qheat on `ranks` ranks of one thread each.
-fn ranks(ranks: usize, args: &[&str]) -> Output {
-    let mut c = Command::new("mpirun");
-    c.args(["--oversubscribe", "-n", &ranks.to_string()])
-        // The test machines and CI run as root; Open MPI refuses root
-        // unless told both of these.
-        .env("OMPI_ALLOW_RUN_AS_ROOT", "1")
-        .env("OMPI_ALLOW_RUN_AS_ROOT_CONFIRM", "1")
-        .arg(env!("CARGO_BIN_EXE_qheat"))
-        .arg("--threads")
-        .arg("1")
-        .args(args);
-    finish(c)
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stderr).into_owned()
-}
-
 /// The fields of summary.json that describe the run, not its results:
 /// they may differ between one process and a split run.
 const RUN_FIELDS: [&str; 2] = ["threads", "energy_split_ranks"];
@@ -240,7 +185,7 @@ fn solve_everywhere(dir: &Path, case: &Path, extra: &[&str]) -> PathBuf {
         let o = if k == 0 {
             alone(1, &args)
         } else {
-            ranks(k, &args)
+            ranks(k, &args, &[])
         };
         assert_eq!(o.status.code(), Some(0), "{k} ranks: {}", stderr(&o));
         o
@@ -284,7 +229,7 @@ fn a_floating_probe_and_a_warm_start_split_to_the_bits_of_one_process() {
     let two = |out: &Path, args: &[&str]| {
         let mut a = vec!["solve", "-o", out.to_str().unwrap()];
         a.extend(args);
-        let o = ranks(2, &a);
+        let o = ranks(2, &a, &[]);
         assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     };
     let lone = |out: &Path, args: &[&str]| {
@@ -330,7 +275,7 @@ fn coefficients_whose_solves_split_write_the_bits_of_one_process() {
         let o = if k == 0 {
             alone(1, &args)
         } else {
-            ranks(k, &args)
+            ranks(k, &args, &[])
         };
         assert_eq!(o.status.code(), Some(0), "{k} ranks: {}", stderr(&o));
     };
@@ -405,7 +350,7 @@ fn a_fault_on_one_ranks_energies_ends_every_rank_with_one_message() {
         let a = args(&one);
         let lone = alone(1, &a.iter().map(String::as_str).collect::<Vec<_>>());
         let b = args(&many);
-        let o = ranks(k, &b.iter().map(String::as_str).collect::<Vec<_>>());
+        let o = ranks(k, &b.iter().map(String::as_str).collect::<Vec<_>>(), &[]);
         let e = stderr(&o);
         assert_eq!(o.status.code(), Some(2), "{tag}: {e}");
         assert_eq!(lone.status.code(), Some(2), "{tag}: {}", stderr(&lone));

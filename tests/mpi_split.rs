@@ -10,8 +10,10 @@
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
-use std::time::{Duration, Instant};
+#[path = "support/mpi_run.rs"]
+mod mpi_run;
+
+use mpi_run::{alone, ranks, stderr, write};
 
 /// A small phonon case: warm starts along a line and stored self-energies
 /// are exercised, and each point is a real Born loop.
@@ -42,66 +44,6 @@ step_ev = 0.004
 [solver]
 tolerance = 1e-9
 "#;
-
-/// Longest any one command may take before the test calls it a hang.
-const HANG: Duration = Duration::from_secs(120);
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-/// Run a command to its end, killing it (and failing) after [`HANG`].
-fn finish(mut cmd: Command) -> Output {
-    cmd.stdout(Stdio::piped()).stderr(Stdio::piped());
-    cmd.env_remove("RUST_BACKTRACE");
-    let mut child = cmd.spawn().unwrap_or_else(|e| {
-        panic!(
-            "could not start {:?}: {e}; hint: install Open MPI (Debian: apt-get install \
-             openmpi-bin libopenmpi-dev) so that `mpirun` is on PATH",
-            cmd.get_program()
-        )
-    });
-    let start = Instant::now();
-    while child.try_wait().unwrap().is_none() {
-        if start.elapsed() > HANG {
-            let _ = child.kill();
-            panic!("{cmd:?} still ran after {HANG:?}: the ranks hang");
-        }
-        std::thread::sleep(Duration::from_millis(50));
-    }
-    child.wait_with_output().unwrap()
-}
-
-/// qheat alone, one thread.
-fn alone(args: &[&str]) -> Output {
-    let mut c = Command::new(env!("CARGO_BIN_EXE_qheat"));
-    c.arg("--threads").arg("1").args(args);
-    finish(c)
-}
-
-/// qheat on `ranks` ranks of one thread each.
-fn ranks(ranks: usize, args: &[&str], env: &[(&str, &str)]) -> Output {
-    let mut c = Command::new("mpirun");
-    c.args(["--oversubscribe", "-n", &ranks.to_string()])
-        // The test machines and CI run as root; Open MPI refuses root
-        // unless told both of these.
-        .env("OMPI_ALLOW_RUN_AS_ROOT", "1")
-        .env("OMPI_ALLOW_RUN_AS_ROOT_CONFIRM", "1")
-        .arg(env!("CARGO_BIN_EXE_qheat"))
-        .arg("--threads")
-        .arg("1")
-        .args(args);
-    for (k, v) in env {
-        c.env(k, v);
-    }
-    finish(c)
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stderr).into_owned()
-}
 
 /// Every result file of a folder (the point store aside) by name, with
 /// summary.json's fields that describe the run rather than the result
@@ -197,7 +139,7 @@ fn sweeps_on_1_2_and_4_ranks_write_the_files_of_one_process() {
     let case = write(tmp.path(), "case.toml", PHONON_CASE);
     let case = case.to_str().unwrap();
     let one = tmp.path().join("one");
-    let o = alone(&sweep_args(case, one.to_str().unwrap()));
+    let o = alone(1, &sweep_args(case, one.to_str().unwrap()));
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert_table_is_the_stored_rows(&one, 12);
     // 3 lines of 4 points: with 2 and 4 ranks the lines are split unevenly
@@ -232,7 +174,7 @@ fn a_screen_split_over_2_ranks_ranks_like_one_process() {
             "--quiet",
         ];
         let o = if k == 0 {
-            alone(&args)
+            alone(1, &args)
         } else {
             ranks(k, &args, &[])
         };
@@ -350,7 +292,7 @@ fn a_sweep_cut_short_on_2_ranks_resumes_on_3_to_the_same_table() {
     let case = write(tmp.path(), "case.toml", PHONON_CASE);
     let case = case.to_str().unwrap();
     let one = tmp.path().join("one");
-    let o = alone(&sweep_args(case, one.to_str().unwrap()));
+    let o = alone(1, &sweep_args(case, one.to_str().unwrap()));
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     let out = tmp.path().join("out");
     // Each rank ends itself (exit 75) after storing its first point.
@@ -398,7 +340,7 @@ fn the_generator_runs_on_rank_0_alone() {
         .collect()
     };
     let a = args(&one);
-    let o = alone(&a.iter().map(String::as_str).collect::<Vec<_>>());
+    let o = alone(1, &a.iter().map(String::as_str).collect::<Vec<_>>());
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     let b = args(&two);
     let o = ranks(2, &b.iter().map(String::as_str).collect::<Vec<_>>(), &[]);
