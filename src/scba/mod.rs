@@ -1467,7 +1467,10 @@ impl BornMaps<'_> {
 /// diagonal layout), the black rows are rebuilt straight into `x`, and the
 /// finiteness check and the relative change are taken on each rebuilt row
 /// while it is in cache: no separate passes over Σ0 and F(Σ0), the same
-/// numbers (the change summed row by row).
+/// numbers (the change summed row by row). When moreover every black row
+/// is built from red Green's functions only, the image of the black rows
+/// is the rows just rebuilt, so they are copied rather than rebuilt again
+/// (see [`image_change_local`]).
 fn sweep(
     maps: &BornMaps<'_>,
     red_black: Option<usize>,
@@ -1501,25 +1504,66 @@ fn sweep(
         None => pass_part(maps, x, |_| true, p)?,
     }
     if local {
-        let a: &ScatteringSelfEnergy = x;
-        let each = |k: usize, r: &[C64], i: &[f64]| (first_bad(k, r, i), change_sums(a, k, r, i));
-        let rows = maps.rebuild_rows(p, fx, |_| true, each);
-        if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
-            return Err(self_energy_fault(problem, fx, iteration, idx, part));
-        }
-        let mut tot = [0.0; 6];
-        for (_, sums) in &rows {
-            for (t, v) in tot.iter_mut().zip(sums) {
-                *t += v;
-            }
-        }
-        return Ok(change_ratio(tot));
+        let black_done = red_black.filter(|&w| black_from_red(problem, w));
+        return image_change_local(maps, black_done, x, p, fx, iteration);
     }
     maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
     // values, the mixer); stop here and say where it appeared.
     ensure_finite(fx, problem, iteration)?;
     Ok(relative_change(x, fx))
+}
+
+/// True when, in red-black order with band width `w`, every black row of
+/// Σ0 is built from red Green's functions only: no dephasing (which reads
+/// G at the row's own energy) and every phonon an odd multiple of w steps.
+fn black_from_red(problem: &Problem, w: usize) -> bool {
+    let scat = &problem.scattering;
+    w > 0
+        && !scat.has_dephasing()
+        && (scat.phonons.iter()).all(|m| m.steps % w == 0 && (m.steps / w) % 2 == 1)
+}
+
+/// The image F(x) of a row-local model into `fx` and the relative change
+/// from `x` to it (see [`relative_change`]), its finiteness checked row by
+/// row. With `black_done = Some(w)` the black rows of `x` were rebuilt in
+/// this sweep from red Green's functions that the black pass did not
+/// touch ([`black_from_red`]): their image is those rows themselves, bit
+/// for bit, so they are copied instead of rebuilt (no reads of G at
+/// E ± ħω for half the grid). The sums are added in row order either way,
+/// so the change is the same number.
+fn image_change_local(
+    maps: &BornMaps<'_>,
+    black_done: Option<usize>,
+    x: &ScatteringSelfEnergy,
+    p: &Pass,
+    fx: &mut ScatteringSelfEnergy,
+    iteration: usize,
+) -> Result<f64, SolveError> {
+    let problem = maps.problem;
+    let red = move |k: usize| black_done.is_none_or(|w| (k / w).is_multiple_of(2));
+    let each = |k: usize, r: &[C64], i: &[f64]| (first_bad(k, r, i), change_sums(x, k, r, i));
+    let rows = maps.rebuild_rows(p, fx, red, each);
+    if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
+        return Err(self_energy_fault(problem, fx, iteration, idx, part));
+    }
+    let copied = match black_done {
+        Some(_) => copy_rows_with(x, fx, |k| !red(k), |k, r, i| change_sums(x, k, r, i)),
+        None => Vec::new(),
+    };
+    let (mut from_red, mut from_black) = (rows.iter().map(|(_, s)| s), copied.iter());
+    let mut tot = [0.0; 6];
+    for k in 0..problem.grid.count {
+        let sums = if red(k) {
+            from_red.next()
+        } else {
+            from_black.next()
+        };
+        for (t, v) in tot.iter_mut().zip(sums.expect("one sum per energy row")) {
+            *t += v;
+        }
+    }
+    Ok(change_ratio(tot))
 }
 
 /// [`pass_rows`] at the energies k with `rows(k)` true, Σ0 = `sigma0`.
@@ -1571,6 +1615,31 @@ pub fn born_map(
     };
     sweep(&maps, colour, &mut x, &mut p, &mut fx, 1)?;
     Ok((x, fx))
+}
+
+/// [`copy_rows`], handing each copied row to `each(k, Σ^r_0 row,
+/// Σ^in_0 row)` while it is in cache; what `each` returns comes back in
+/// row order.
+fn copy_rows_with<R: Send>(
+    src: &ScatteringSelfEnergy,
+    dst: &mut ScatteringSelfEnergy,
+    rows: impl Fn(usize) -> bool + Sync,
+    each: impl Fn(usize, &[C64], &[f64]) -> R + Sync,
+) -> Vec<R> {
+    let ns = src.sites.max(1);
+    dst.retarded
+        .par_chunks_mut(ns)
+        .zip(dst.inscatter.par_chunks_mut(ns))
+        .zip(src.retarded.par_chunks(ns))
+        .zip(src.inscatter.par_chunks(ns))
+        .enumerate()
+        .filter(|(k, _)| rows(*k))
+        .map(|(k, (((dr, di), sr), si))| {
+            dr.copy_from_slice(sr);
+            di.copy_from_slice(si);
+            each(k, dr, di)
+        })
+        .collect()
 }
 
 /// Copy the energy rows `k` of `src` with `rows(k)` true into `dst`.
