@@ -266,13 +266,16 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
         .collect()
 }
 
-/// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed.
+/// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
+/// (the cells in parallel).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
+    use rayon::prelude::*;
     let p = &sol.problem;
     let b = p.device.orbitals;
     let n = p.device.cells();
     let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
     (0..n)
+        .into_par_iter()
         .map(|i| {
             let mut acc = 0.0;
             for k in 0..p.grid.count {
@@ -293,7 +296,34 @@ pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
     let ne = p.grid.count;
     let pairs = n.saturating_sub(1);
     let scale = ELEMENTARY_CHARGE * flow_scale(p);
-    ndarray::Array2::from_shape_fn((pairs, ne), |(i, k)| sol.pass.bond[k * pairs + i] * scale)
+    let bond = &sol.pass.bond;
+    let mut map = ndarray::Array2::zeros((pairs, ne));
+    if let Some(out) = map.as_slice_mut() {
+        par_cell_rows(out, ne, |i, row| {
+            for (k, v) in row.iter_mut().enumerate() {
+                *v = bond[k * pairs + i] * scale;
+            }
+        });
+    }
+    map
+}
+
+/// Fill the rows of a row-major (rows × `ne`) map in parallel, a few rows
+/// per task: the sources are energy-major, so each task reads a few
+/// neighbouring numbers of every energy's row rather than one.
+pub(crate) fn par_cell_rows(out: &mut [f64], ne: usize, fill: impl Fn(usize, &mut [f64]) + Sync) {
+    use rayon::prelude::*;
+    const ROWS_AT_ONCE: usize = 16;
+    if ne == 0 {
+        return;
+    }
+    out.par_chunks_mut(ROWS_AT_ONCE * ne)
+        .enumerate()
+        .for_each(|(t, rows)| {
+            for (r, row) in rows.chunks_mut(ne).enumerate() {
+                fill(t * ROWS_AT_ONCE + r, row);
+            }
+        });
 }
 
 /// Compute every observable of a solution.

@@ -579,7 +579,7 @@ pub fn mover_levels_with(sol: &Solution, maps: bool) -> MoverLevels {
     if !uniform.contains(&true) {
         return levels;
     }
-    let sums = match pair_sums(sol, &uniform, maps) {
+    let sums = match super::timed("movers' kernel pass", || pair_sums(sol, &uniform, maps)) {
         Ok(s) => s,
         Err(_) => {
             for s in levels
@@ -595,7 +595,9 @@ pub fn mover_levels_with(sol: &Solution, maps: bool) -> MoverLevels {
     if let Some(filled) = &sums.filled {
         fill_maps(&sums.states, filled, ne, &mut levels);
     }
-    fill_levels(sol, &sums, &mut levels);
+    super::timed("movers' density matches", || {
+        fill_levels(sol, &sums, &mut levels)
+    });
     levels
 }
 
