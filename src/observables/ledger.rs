@@ -35,6 +35,7 @@ use crate::C64;
 use crate::scattering::{GreenBlocks, PhononMode, add_sandwich, spectral_into, trace_product_re};
 use crate::scba::Solution;
 use crate::units::ELEMENTARY_CHARGE;
+use rayon::prelude::*;
 
 /// Emission and absorption of one phonon mode, from the final Green's
 /// functions.
@@ -74,22 +75,31 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
         .map(|m| {
             let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
+            // Each site's sums over the energies in parallel, then added
+            // up site by site in order (the same sums as one loop).
+            let per_site: Vec<Option<(f64, f64)>> = (0..ns)
+                .into_par_iter()
+                .map(|s| {
+                    if m.coupling_ev2[s] == 0.0 {
+                        return None;
+                    }
+                    let (mut e_s, mut a_s) = (0.0, 0.0);
+                    for k in 0..ne {
+                        let filled = g.filled[k * ns + s];
+                        if k >= w {
+                            e_s += filled * g.empty((k - w) * ns + s);
+                        }
+                        if k + w < ne {
+                            a_s += filled * g.empty((k + w) * ns + s);
+                        }
+                    }
+                    Some((e_s, a_s))
+                })
+                .collect();
             let (mut emit, mut absorb) = (0.0, 0.0);
-            for (s, &n) in occupation.iter().enumerate() {
+            for (s, (&n, sums)) in occupation.iter().zip(&per_site).enumerate() {
+                let Some((e_s, a_s)) = sums else { continue };
                 let d = m.coupling_ev2[s];
-                if d == 0.0 {
-                    continue;
-                }
-                let (mut e_s, mut a_s) = (0.0, 0.0);
-                for k in 0..ne {
-                    let filled = g.filled[k * ns + s];
-                    if k >= w {
-                        e_s += filled * g.empty((k - w) * ns + s);
-                    }
-                    if k + w < ne {
-                        a_s += filled * g.empty((k + w) * ns + s);
-                    }
-                }
                 emit += d * (n + 1.0) * e_s;
                 absorb += d * n * a_s;
             }

@@ -33,7 +33,9 @@ pub use fermi_level::{
     local_electron_temperatures, local_fermi_levels, match_fermi_level_checked,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
-pub use movers::{MoverLevels, MoverStatus, UNIFORM_TOLERANCE_EV, mover_levels, uniform_pairs};
+pub use movers::{
+    MoverLevels, MoverStatus, UNIFORM_TOLERANCE_EV, mover_levels, mover_levels_with, uniform_pairs,
+};
 pub use occupation::{OCCUPATION_THRESHOLD, occupation_map};
 
 use crate::model::Problem;
@@ -100,6 +102,9 @@ pub struct ObserveOptions {
     /// Find the right- and left-movers' levels (one extra kernel pass
     /// with full blocks).
     pub movers: bool,
+    /// With `movers`, also keep the movers' fillings' maps f₊, f₋
+    /// (2 × cells × energies numbers, which no result file holds).
+    pub mover_maps: bool,
 }
 
 /// Every scalar and profile of an operating point.
@@ -157,6 +162,27 @@ pub struct Observables {
     /// (empty for a two-terminal device).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub contacts: Vec<contacts::ContactReading>,
+}
+
+/// Environment variable that makes [`timed`] print the wall time of each
+/// phase of the work around the Born loop to standard error.
+pub const PHASE_TIMES_ENV: &str = "QHEAT_PHASE_TIMES";
+
+/// Run `f`, and when [`PHASE_TIMES_ENV`] is set (to anything but empty or
+/// `0`) print `phase NAME: S s` with its wall time to standard error. A
+/// coarse profile of a solve's phases without a profiler; without the
+/// variable it costs one look-up of the environment per phase.
+pub fn timed<T>(phase: &str, f: impl FnOnce() -> T) -> T {
+    static ON: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+    let on =
+        *ON.get_or_init(|| std::env::var(PHASE_TIMES_ENV).is_ok_and(|v| !v.is_empty() && v != "0"));
+    if !on {
+        return f();
+    }
+    let start = std::time::Instant::now();
+    let out = f();
+    eprintln!("phase {phase}: {:.3} s", start.elapsed().as_secs_f64());
+    out
 }
 
 /// g_s/h in 1/(eV s).
@@ -240,13 +266,16 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
         .collect()
 }
 
-/// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed.
+/// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
+/// (the cells in parallel).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
+    use rayon::prelude::*;
     let p = &sol.problem;
     let b = p.device.orbitals;
     let n = p.device.cells();
     let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
     (0..n)
+        .into_par_iter()
         .map(|i| {
             let mut acc = 0.0;
             for k in 0..p.grid.count {
@@ -267,7 +296,34 @@ pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
     let ne = p.grid.count;
     let pairs = n.saturating_sub(1);
     let scale = ELEMENTARY_CHARGE * flow_scale(p);
-    ndarray::Array2::from_shape_fn((pairs, ne), |(i, k)| sol.pass.bond[k * pairs + i] * scale)
+    let bond = &sol.pass.bond;
+    let mut map = ndarray::Array2::zeros((pairs, ne));
+    if let Some(out) = map.as_slice_mut() {
+        par_cell_rows(out, ne, |i, row| {
+            for (k, v) in row.iter_mut().enumerate() {
+                *v = bond[k * pairs + i] * scale;
+            }
+        });
+    }
+    map
+}
+
+/// Fill the rows of a row-major (rows × `ne`) map in parallel, a few rows
+/// per task: the sources are energy-major, so each task reads a few
+/// neighbouring numbers of every energy's row rather than one.
+pub(crate) fn par_cell_rows(out: &mut [f64], ne: usize, fill: impl Fn(usize, &mut [f64]) + Sync) {
+    use rayon::prelude::*;
+    const ROWS_AT_ONCE: usize = 16;
+    if ne == 0 {
+        return;
+    }
+    out.par_chunks_mut(ROWS_AT_ONCE * ne)
+        .enumerate()
+        .for_each(|(t, rows)| {
+            for (r, row) in rows.chunks_mut(ne).enumerate() {
+                fill(t * ROWS_AT_ONCE + r, row);
+            }
+        });
 }
 
 /// Compute every observable of a solution.
@@ -282,7 +338,7 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let de = grid.step_ev;
     let e_c = ELEMENTARY_CHARGE;
     let (mu1, mu2) = (p.left.fermi_level_ev, p.right.fermi_level_ev);
-    let (spectrum, [n1, n2, e1, e2, gross_e, gross_q]) = flow_sums(sol);
+    let (spectrum, [n1, n2, e1, e2, gross_e, gross_q]) = timed("flow sums", || flow_sums(sol));
     let to_amp = -e_c * de;
     let to_watt = e_c * de;
     let current_left_a = n1 * to_amp;
@@ -291,18 +347,18 @@ pub fn observe_with(sol: &Solution, options: &ObserveOptions) -> Observables {
     let energy_current_right_w = e2 * to_watt;
     let heat_current_left_w = energy_current_left_w - mu1 * n1 * to_watt;
     let heat_current_right_w = energy_current_right_w - mu2 * n2 * to_watt;
-    let lattice = lattice_power(sol);
+    let lattice = timed("lattice power", || lattice_power(sol));
     let lattice_power_w: f64 = lattice.iter().sum();
     let voltage_v = p.voltage_v();
     // The attached contacts' sums (all zero without them).
-    let readings = contacts::contact_readings(sol);
+    let readings = timed("contacts", || contacts::contact_readings(sol));
     let [c_i, c_e, c_q, c_p, c_gross_q, c_gross_e] = contacts::ledger_terms(sol, &readings);
     let electrical_power_w = current_left_a * voltage_v + c_p;
     let charge_a = current_left_a + current_right_a + c_i;
     let energy_w = energy_current_left_w + energy_current_right_w + c_e - lattice_power_w;
     let heat_w =
         lattice_power_w - (electrical_power_w + heat_current_left_w + heat_current_right_w + c_q);
-    let phonon_modes = phonon_side_power(sol);
+    let phonon_modes = timed("phonon-side power", || phonon_side_power(sol));
     let lattice_power_phonon_side_w: f64 = phonon_modes.iter().map(|m| m.power_w).sum();
     let gross_phonon_w: f64 = phonon_modes.iter().map(ModePower::gross_w).sum();
     let heat_scale_w = gross_q * e_c * de + c_gross_q + electrical_power_w.abs();
@@ -365,7 +421,7 @@ fn site_profile(
     current_left_a: f64,
 ) -> SiteProfile {
     let p = &sol.problem;
-    let levels = local_fermi_levels(sol);
+    let levels = timed("local Fermi levels", || local_fermi_levels(sol));
     let n = p.device.cells();
     let mu = &levels.fermi_level_ev;
     let voltage_drop_v: Vec<f64> = (0..n)
@@ -396,8 +452,12 @@ fn site_profile(
         voltage_drop_v,
         electron_temperature_k: options
             .electron_temperature
-            .then(|| local_electron_temperatures(sol)),
-        movers: options.movers.then(|| mover_levels(sol)),
+            .then(|| timed("electron temperatures", || local_electron_temperatures(sol))),
+        movers: options.movers.then(|| {
+            timed("movers' levels", || {
+                mover_levels_with(sol, options.mover_maps)
+            })
+        }),
     }
 }
 

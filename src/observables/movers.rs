@@ -105,7 +105,8 @@ pub struct MoverLevels {
     pub electrons_left: Vec<f64>,
     /// f₊(x, E), shape (cells, energies); NaN where not uniform or the
     /// right-movers' states are below [`OCCUPATION_THRESHOLD`] of the
-    /// largest.
+    /// largest. Empty (0 × 0) when computed without the maps
+    /// ([`mover_levels_with`]).
     #[serde(skip)]
     pub occupation_right: ndarray::Array2<f64>,
     /// f₋(x, E), as `occupation_right`.
@@ -279,16 +280,43 @@ fn pair_form(w: &[C64], di: &Mat<C64>, dj: &Mat<C64>, lower: &Mat<C64>) -> f64 {
     s.re
 }
 
-/// The kernel at energy index k with full blocks: with `spectral` every
-/// source is filled (lead Γ for Σ^in, Γ0 = −2 Im Σ^r_0 for the bath), so
-/// the filled blocks are those of A.
+/// Per-worker scratch of the movers' pass, reused for every energy: the
+/// kernel's workspace, its per-site outputs and the full blocks of the two
+/// solves of an energy ([filled, states]).
+struct Scratch {
+    ws: Workspace,
+    retarded: Vec<C64>,
+    filled: Vec<f64>,
+    bond: Vec<f64>,
+    scatter_in: Vec<f64>,
+    blocks: [FullBlocks; 2],
+}
+
+impl Scratch {
+    fn new(p: &Problem) -> Self {
+        let (n, b) = (p.device.cells(), p.device.orbitals);
+        Self {
+            ws: Workspace::new(n, b),
+            retarded: vec![C64::new(0.0, 0.0); n * b],
+            filled: vec![0.0; n * b],
+            bond: vec![0.0; n.saturating_sub(1)],
+            scatter_in: Vec::with_capacity(n * b),
+            blocks: Default::default(),
+        }
+    }
+}
+
+/// The kernel at energy index k with full blocks, into `s.blocks[0]`, or
+/// with `spectral` into `s.blocks[1]`: then every source is filled (lead Γ
+/// for Σ^in, Γ0 = −2 Im Σ^r_0 for the bath), so the filled blocks are
+/// those of A.
 fn full_blocks(
     sol: &Solution,
     leads: &LeadTable,
     k: usize,
     spectral: bool,
-    ws: &mut Workspace,
-) -> Result<FullBlocks, SolveError> {
+    s: &mut Scratch,
+) -> Result<(), SolveError> {
     let p = &sol.problem;
     let dev = &p.device;
     let ns = p.sites();
@@ -301,10 +329,12 @@ fn full_blocks(
     let inl = broadening(&leads.left[k], fl);
     let inr = broadening(&leads.right[k], fr);
     let retarded = &sol.sigma.retarded[k * ns..(k + 1) * ns];
-    let scatter_in: Vec<f64> = if spectral {
-        retarded.iter().map(|s| -2.0 * s.im).collect()
+    let scatter_in: &[f64] = if spectral {
+        s.scatter_in.clear();
+        s.scatter_in.extend(retarded.iter().map(|x| -2.0 * x.im));
+        &s.scatter_in
     } else {
-        sol.sigma.inscatter[k * ns..(k + 1) * ns].to_vec()
+        &sol.sigma.inscatter[k * ns..(k + 1) * ns]
     };
     let input = EnergyInput {
         energy_ev: e,
@@ -315,21 +345,17 @@ fn full_blocks(
         inscatter_left: &inl,
         inscatter_right: &inr,
         scatter_retarded: retarded,
-        scatter_in: &scatter_in,
+        scatter_in,
         want_transmission: false,
     };
-    let mut full = FullBlocks::default();
-    let mut gr = vec![C64::new(0.0, 0.0); ns];
-    let mut gn = vec![0.0; ns];
-    let mut bond = vec![0.0; dev.cells().saturating_sub(1)];
     let out = EnergyOutput {
-        retarded: &mut gr,
-        filled: &mut gn,
-        bond: &mut bond,
-        full: Some(&mut full),
+        retarded: &mut s.retarded,
+        filled: &mut s.filled,
+        bond: &mut s.bond,
+        full: Some(&mut s.blocks[usize::from(spectral)]),
     };
-    rgf::solve_energy(&input, ws, out)?;
-    Ok(full)
+    rgf::solve_energy(&input, &mut s.ws, out)?;
+    Ok(())
 }
 
 /// Γ f with Γ = i(Σ − Σ†).
@@ -341,28 +367,55 @@ fn broadening(sigma: &Mat<C64>, f: f64) -> Mat<C64> {
     })
 }
 
-/// The movers' weights of every pair at energy index k (zeros for pairs
-/// that are not uniform).
+/// For each pair, the pair whose Bloch modes it is written in (`None`
+/// where not uniform): the first pair of each run of uniform pairs with
+/// equal on-site and coupling blocks. It depends on the device alone, so
+/// it is found once for all energies.
+fn basis_owners(p: &Problem, uniform: &[bool]) -> Vec<Option<usize>> {
+    let dev = &p.device;
+    let mut owner: Option<usize> = None;
+    uniform
+        .iter()
+        .enumerate()
+        .map(|(i, &u)| {
+            if !u {
+                return None;
+            }
+            let fresh = owner.is_none_or(|j| {
+                !(same(&dev.onsite[j], &dev.onsite[i]) && same(&dev.coupling[j], &dev.coupling[i]))
+            });
+            if fresh {
+                owner = Some(i);
+            }
+            owner
+        })
+        .collect()
+}
+
+/// The movers' weights of every pair at energy index k into `out` (zeros
+/// for pairs that are not uniform).
 fn energy_weights(
     sol: &Solution,
     leads: &LeadTable,
-    uniform: &[bool],
+    owners: &[Option<usize>],
     k: usize,
-    ws: &mut Workspace,
-) -> Result<Vec<Weights>, SolveError> {
+    s: &mut Scratch,
+    out: &mut [Weights],
+) -> Result<(), SolveError> {
     let p = &sol.problem;
     let dev = &p.device;
     let e = p.grid.energy(k);
-    let filled = full_blocks(sol, leads, k, false, ws)?;
-    let states = full_blocks(sol, leads, k, true, ws)?;
+    full_blocks(sol, leads, k, false, s)?;
+    full_blocks(sol, leads, k, true, s)?;
+    let [filled, states] = &s.blocks;
     let mut cache: Option<(usize, Option<PairBasis>)> = None;
-    let mut out = vec![[0.0; 4]; uniform.len()];
-    for (i, w) in out.iter_mut().enumerate().filter(|(i, _)| uniform[*i]) {
-        let fresh = cache.as_ref().is_none_or(|(j, _)| {
-            !(same(&dev.onsite[*j], &dev.onsite[i]) && same(&dev.coupling[*j], &dev.coupling[i]))
-        });
-        if fresh {
-            cache = Some((i, pair_basis(e, &dev.onsite[i], &dev.coupling[i])));
+    for (i, w) in out.iter_mut().enumerate() {
+        let Some(j) = owners[i] else {
+            *w = [0.0; 4];
+            continue;
+        };
+        if cache.as_ref().is_none_or(|c| c.0 != j) {
+            cache = Some((j, pair_basis(e, &dev.onsite[j], &dev.coupling[j])));
         }
         let Some(basis) = cache.as_ref().and_then(|c| c.1.as_ref()) else {
             *w = [f64::NAN; 4];
@@ -381,36 +434,133 @@ fn energy_weights(
                 .sum()
         };
         *w = [
-            sum(&basis.right, &filled),
-            sum(&basis.right, &states),
-            sum(&basis.left, &filled),
-            sum(&basis.left, &states),
+            sum(&basis.right, filled),
+            sum(&basis.right, states),
+            sum(&basis.left, filled),
+            sum(&basis.left, states),
         ];
     }
-    Ok(out)
+    Ok(())
 }
 
-/// The movers' weights of every energy, [energy][pair].
-fn all_weights(sol: &Solution, uniform: &[bool]) -> Result<Vec<Vec<Weights>>, SolveError> {
+/// Energies solved together before their weights are folded into the
+/// per-pair rows: enough to keep every thread busy, few enough that the
+/// batch's weights (energies × pairs × 4 numbers) stay small.
+const ENERGY_BATCH: usize = 64;
+
+/// Pairs folded by one task: the batch is energy-major, so a few pairs at
+/// a time read it in whole cache lines.
+const PAIRS_AT_ONCE: usize = 16;
+
+/// The movers' weights gathered per pair over all energies, without ever
+/// holding every weight at once.
+struct PairSums {
+    /// Per pair, a₊(E_k) for every k, then a₋(E_k) (2 × energies numbers;
+    /// NaN counted as 0).
+    states: Vec<f64>,
+    /// Per pair, Σ_k c₊(E_k) and Σ_k c₋(E_k), summed in energy order (NaN
+    /// counted as 0).
+    filled_sum: Vec<[f64; 2]>,
+    /// When the fillings' maps are asked for, c₊ and c₋ per pair and
+    /// energy as computed, laid out as `states`.
+    filled: Option<Vec<f64>>,
+}
+
+fn clean(v: f64) -> f64 {
+    if v.is_finite() { v } else { 0.0 }
+}
+
+/// Fold the weights of energies `k0..` (`batch`, energy-major, `pairs`
+/// per energy) into `sums`.
+fn fold_batch(batch: &[Weights], k0: usize, ne: usize, sums: &mut PairSums) {
+    let pairs = sums.filled_sum.len();
+    let energies = batch.len() / pairs;
+    let rows = 2 * ne * PAIRS_AT_ONCE;
+    sums.states
+        .par_chunks_mut(rows)
+        .zip(sums.filled_sum.par_chunks_mut(PAIRS_AT_ONCE))
+        .enumerate()
+        .for_each(|(t, (states, filled_sum))| {
+            let first = t * PAIRS_AT_ONCE;
+            for j in 0..energies {
+                let row = &batch[j * pairs + first..j * pairs + first + filled_sum.len()];
+                for (c, w) in row.iter().enumerate() {
+                    states[c * 2 * ne + k0 + j] = clean(w[1]);
+                    states[c * 2 * ne + ne + k0 + j] = clean(w[3]);
+                    filled_sum[c][0] += clean(w[0]);
+                    filled_sum[c][1] += clean(w[2]);
+                }
+            }
+        });
+    if let Some(filled) = sums.filled.as_mut() {
+        filled
+            .par_chunks_mut(rows)
+            .enumerate()
+            .for_each(|(t, out)| {
+                let first = t * PAIRS_AT_ONCE;
+                let count = out.len() / (2 * ne);
+                for j in 0..energies {
+                    let row = &batch[j * pairs + first..j * pairs + first + count];
+                    for (c, w) in row.iter().enumerate() {
+                        out[c * 2 * ne + k0 + j] = w[0];
+                        out[c * 2 * ne + ne + k0 + j] = w[2];
+                    }
+                }
+            });
+    }
+}
+
+/// The movers' weights of every energy, folded per pair; the energies are
+/// solved in batches of [`ENERGY_BATCH`] in parallel, each worker reusing
+/// its scratch for every energy it solves.
+fn pair_sums(sol: &Solution, uniform: &[bool], maps: bool) -> Result<PairSums, SolveError> {
     let p = &sol.problem;
     let leads = LeadTable::new(p)?;
-    let (n, b) = (p.device.cells(), p.device.orbitals);
-    (0..p.grid.count)
-        .into_par_iter()
-        .map_init(
-            || Workspace::new(n, b),
-            |ws, k| energy_weights(sol, &leads, uniform, k, ws),
-        )
-        .collect()
+    let ne = p.grid.count;
+    let pairs = uniform.len();
+    let owners = basis_owners(p, uniform);
+    let mut sums = PairSums {
+        states: vec![0.0; 2 * ne * pairs],
+        filled_sum: vec![[0.0; 2]; pairs],
+        filled: maps.then(|| vec![0.0; 2 * ne * pairs]),
+    };
+    let pool = std::sync::Mutex::new(Vec::<Scratch>::new());
+    let mut batch = vec![[0.0; 4]; ENERGY_BATCH * pairs];
+    for k0 in (0..ne).step_by(ENERGY_BATCH) {
+        let count = ENERGY_BATCH.min(ne - k0);
+        let batch = &mut batch[..count * pairs];
+        batch
+            .par_chunks_mut(pairs)
+            .enumerate()
+            .try_for_each(|(j, out)| {
+                let taken = pool.lock().map(|mut v| v.pop()).unwrap_or(None);
+                let mut s = taken.unwrap_or_else(|| Scratch::new(p));
+                let done = energy_weights(sol, &leads, &owners, k0 + j, &mut s, out);
+                if let Ok(mut v) = pool.lock() {
+                    v.push(s);
+                }
+                done
+            })?;
+        fold_batch(batch, k0, ne, &mut sums);
+    }
+    Ok(sums)
 }
 
 /// The right- and left-movers' levels and fillings of a solution (see the
-/// module documentation).
+/// module documentation), with the fillings' maps f₊, f₋.
 pub fn mover_levels(sol: &Solution) -> MoverLevels {
+    mover_levels_with(sol, true)
+}
+
+/// [`mover_levels`]; with `maps` false the fillings' maps are left empty
+/// (0 × 0), which saves holding 2 × cells × energies numbers when only the
+/// levels and the electrons are wanted (what a solve writes).
+pub fn mover_levels_with(sol: &Solution, maps: bool) -> MoverLevels {
     let p = &sol.problem;
     let n = p.device.cells();
     let ne = p.grid.count;
     let uniform = uniform_pairs(p);
+    let shape = if maps { (n, ne) } else { (0, 0) };
     let mut levels = MoverLevels {
         right_ev: vec![f64::NAN; n],
         left_ev: vec![f64::NAN; n],
@@ -423,11 +573,14 @@ pub fn mover_levels(sol: &Solution) -> MoverLevels {
             .collect(),
         electrons_right: vec![f64::NAN; n],
         electrons_left: vec![f64::NAN; n],
-        occupation_right: ndarray::Array2::from_elem((n, ne), f64::NAN),
-        occupation_left: ndarray::Array2::from_elem((n, ne), f64::NAN),
+        occupation_right: ndarray::Array2::from_elem(shape, f64::NAN),
+        occupation_left: ndarray::Array2::from_elem(shape, f64::NAN),
     };
-    let weights = match all_weights(sol, &uniform) {
-        Ok(w) => w,
+    if !uniform.contains(&true) {
+        return levels;
+    }
+    let sums = match super::timed("movers' kernel pass", || pair_sums(sol, &uniform, maps)) {
+        Ok(s) => s,
         Err(_) => {
             for s in levels
                 .status
@@ -439,59 +592,62 @@ pub fn mover_levels(sol: &Solution) -> MoverLevels {
             return levels;
         }
     };
-    fill_levels(sol, &weights, &mut levels);
+    if let Some(filled) = &sums.filled {
+        fill_maps(&sums.states, filled, ne, &mut levels);
+    }
+    super::timed("movers' density matches", || {
+        fill_levels(sol, &sums, &mut levels)
+    });
     levels
 }
 
-/// From the weights per energy and pair: the fillings, the electrons and
-/// the levels of every uniform pair.
-fn fill_levels(sol: &Solution, weights: &[Vec<Weights>], levels: &mut MoverLevels) {
+/// The fillings' maps f± = c±/a± of every uniform pair, NaN where a± is
+/// not above [`OCCUPATION_THRESHOLD`] of the largest a of the whole map.
+fn fill_maps(states: &[f64], filled: &[f64], ne: usize, levels: &mut MoverLevels) {
+    let largest = states.iter().copied().fold(0.0f64, f64::max);
+    let floor = OCCUPATION_THRESHOLD * largest;
+    let status = &levels.status;
+    for (side, map) in [&mut levels.occupation_right, &mut levels.occupation_left]
+        .into_iter()
+        .enumerate()
+    {
+        let map = map.as_slice_mut().expect("a new map is contiguous");
+        map.par_chunks_mut(ne)
+            .enumerate()
+            .filter(|(i, _)| status[*i] == MoverStatus::Matched)
+            .for_each(|(i, row)| {
+                let at = i * 2 * ne + side * ne;
+                let (a, c) = (&states[at..at + ne], &filled[at..at + ne]);
+                for (f, (&s, &c)) in row.iter_mut().zip(a.iter().zip(c)) {
+                    *f = if s > floor { c / s } else { f64::NAN };
+                }
+            });
+    }
+}
+
+/// From the weights folded per pair: the electrons and the levels of every
+/// uniform pair, cell by cell in parallel (each is a density match).
+fn fill_levels(sol: &Solution, sums: &PairSums, levels: &mut MoverLevels) {
     let p = &sol.problem;
+    let ne = p.grid.count;
     let energies = p.grid.energies();
     let temps = cell_lattice_temperatures(sol);
     let per_cell = p.spin_degeneracy * p.grid.step_ev / (2.0 * std::f64::consts::PI) / 2.0;
-    let largest = weights
-        .iter()
-        .flatten()
-        .flat_map(|w| [w[1], w[3]])
-        .filter(|v| v.is_finite())
-        .fold(0.0f64, f64::max);
-    let floor = OCCUPATION_THRESHOLD * largest;
-    let clean = |v: f64| if v.is_finite() { v } else { 0.0 };
-    // The fillings' maps, energy by energy (the weights are energy-major).
-    for (k, w) in weights.iter().enumerate() {
-        for i in (0..levels.status.len()).filter(|&i| levels.status[i] == MoverStatus::Matched) {
-            for (map, (ci, ai)) in [
-                (&mut levels.occupation_right, (0, 1)),
-                (&mut levels.occupation_left, (2, 3)),
-            ] {
-                let (c, s) = (w[i][ci], w[i][ai]);
-                map[(i, k)] = if s.is_finite() && s > floor {
-                    c / s
-                } else {
-                    f64::NAN
-                };
-            }
-        }
-    }
-    // The levels, cell by cell in parallel: each is a density match.
-    let matched: Vec<Option<([FermiMatch; 2], [f64; 2])>> = (0..levels.status.len())
-        .into_par_iter()
-        .map(|i| {
-            if levels.status[i] != MoverStatus::Matched {
+    let status = &levels.status;
+    let matched: Vec<Option<([FermiMatch; 2], [f64; 2])>> = sums
+        .states
+        .par_chunks(2 * ne)
+        .zip(sums.filled_sum.par_iter())
+        .enumerate()
+        .map(|(i, (rows, filled))| {
+            if status[i] != MoverStatus::Matched {
                 return None;
             }
-            let mut found = [FermiMatch {
-                fermi_level_ev: f64::NAN,
-                status: FermiLevelStatus::NoStates,
-            }; 2];
-            let mut filled = [0.0; 2];
-            for (side, (ci, ai)) in [(0, 1), (2, 3)].into_iter().enumerate() {
-                let a: Vec<f64> = weights.iter().map(|w| clean(w[i][ai])).collect();
-                filled[side] = weights.iter().map(|w| clean(w[i][ci])).sum();
-                found[side] = match_fermi_level_checked(&energies, &a, filled[side], temps[i]);
-            }
-            Some((found, filled))
+            let found = [0, 1].map(|side| {
+                let a = &rows[side * ne..(side + 1) * ne];
+                match_fermi_level_checked(&energies, a, filled[side], temps[i])
+            });
+            Some((found, *filled))
         })
         .collect();
     for (i, m) in matched.into_iter().enumerate() {

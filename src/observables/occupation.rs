@@ -13,6 +13,7 @@
 //! is NaN wherever Σ_o A_ii(E) is below [`OCCUPATION_THRESHOLD`] times the
 //! largest Σ_o A_ii of the whole map.
 
+use super::par_cell_rows;
 use crate::scba::Solution;
 
 /// Relative threshold on the cell's spectral weight below which the
@@ -37,19 +38,31 @@ pub fn occupation_map(sol: &Solution) -> ndarray::Array2<f64> {
     let cell_sum = |i: usize, k: usize, value: &dyn Fn(usize) -> f64| -> f64 {
         (0..b).map(|o| value(k * ns + i * b + o)).sum()
     };
-    let spectral =
-        ndarray::Array2::from_shape_fn((n, ne), |(i, k)| cell_sum(i, k, &|x| green.spectral(x)));
-    let largest = spectral
+    let mut map = ndarray::Array2::zeros((n, ne));
+    let Some(out) = map.as_slice_mut() else {
+        return map;
+    };
+    // Σ_o A_ii first (the threshold needs the largest), then the ratio in
+    // place.
+    par_cell_rows(out, ne, |i, row| {
+        for (k, a) in row.iter_mut().enumerate() {
+            *a = cell_sum(i, k, &|x| green.spectral(x));
+        }
+    });
+    let largest = out
         .iter()
         .filter(|a| a.is_finite())
         .fold(0.0f64, |m, &a| m.max(a));
     let floor = OCCUPATION_THRESHOLD * largest;
-    ndarray::Array2::from_shape_fn((n, ne), |(i, k)| {
-        let a = spectral[(i, k)];
-        if largest > 0.0 && a > floor {
-            cell_sum(i, k, &|x| green.filled[x]) / a
-        } else {
-            f64::NAN
+    par_cell_rows(out, ne, |i, row| {
+        for (k, f) in row.iter_mut().enumerate() {
+            let a = *f;
+            *f = if largest > 0.0 && a > floor {
+                cell_sum(i, k, &|x| green.filled[x]) / a
+            } else {
+                f64::NAN
+            };
         }
-    })
+    });
+    map
 }

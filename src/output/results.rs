@@ -11,7 +11,7 @@ use super::{OutputError, Staging, npy_bytes};
 use crate::observables::channels::ChannelObservables;
 use crate::observables::{
     FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables, POWER_SCALE,
-    bond_current_map, occupation_map,
+    bond_current_map, occupation_map, timed,
 };
 use crate::scba::Solution;
 use serde_json::Value;
@@ -275,8 +275,8 @@ pub fn write_solve_files_within(
     summary: &mut SolveSummary,
     limits: &ResultLimits,
 ) -> Result<(), OutputError> {
-    let bond = bond_current_map(sol);
-    let occupation = occupation_map(sol);
+    let bond = timed("bond-current map", || bond_current_map(sol));
+    let occupation = timed("occupation map", || occupation_map(sol));
     let plan = SizePlan::new(sol, &bond, &occupation, limits);
     summary.result_files = plan.report(limits);
     stage.write("summary.json", to_text(summary).as_bytes())?;
@@ -286,22 +286,24 @@ pub fn write_solve_files_within(
         electrostatics: summary.electrostatics.as_ref(),
     };
     for table in [tables::sites(), tables::spectrum(), tables::convergence()] {
-        stage.write(table.file, &table.csv(&point))?;
+        timed(table.file, || stage.write(table.file, &table.csv(&point)))?;
     }
     if o.channels.is_some() {
         for table in [tables::channel_sites(), tables::channel_spectrum()] {
             stage.write(table.file, &table.csv(&point))?;
         }
     }
-    let bond = block_means(&bond, plan.bond);
+    let bond = timed("block means", || block_means(&bond, plan.bond));
     stage.write(
         "bond_current.npy",
         &npy_bytes(&bond.map, &stage.path("bond_current.npy"))?,
     )?;
-    write_bond_current_npz(stage, sol, o, &bond)?;
-    write_occupation_npz(stage, sol, o, &block_means(&occupation, plan.occupation))?;
+    timed("map files", || {
+        write_bond_current_npz(stage, sol, o, &bond)?;
+        write_occupation_npz(stage, sol, o, &block_means(&occupation, plan.occupation))
+    })?;
     if !sol.problem.scattering.is_coherent() && plan.self_energy {
-        write_self_energy(stage, sol)?;
+        timed("self-energy files", || write_self_energy(stage, sol))?;
     }
     if let Some(t) = &sol.lattice_temperature_k {
         let a = ndarray::Array1::from_vec(t.clone());

@@ -23,9 +23,7 @@
 //! G^r and G^n. Every matrix lives in the [`Workspace`]: the loop over cells
 //! does not allocate.
 
-use super::{
-    BlockExchange, EnergyInput, EnergyOutput, FullBlocks, RgfError, TerminalFlows, Workspace,
-};
+use super::{BlockExchange, EnergyInput, EnergyOutput, RgfError, TerminalFlows, Workspace};
 use crate::C64;
 use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
 use faer::linalg::lu::partial_pivoting::{factor, inverse};
@@ -186,7 +184,7 @@ pub(super) fn solve_energy_blocks(
         0.0
     };
     if let Some(f) = out.full.as_deref_mut() {
-        prepare_full(f, n, b);
+        f.prepare(n, b);
     }
     backward_sweep(input, g, gn, s, &mut out)?;
     if let Some(f) = out.full.as_deref_mut() {
@@ -494,11 +492,4 @@ fn write_diagonal(out: &mut EnergyOutput<'_>, i: usize, g: &Mat<C64>, gn: &Mat<C
         out.retarded[i * b + o] = g[(o, o)];
         out.filled[i * b + o] = gn[(o, o)].re;
     }
-}
-
-fn prepare_full(f: &mut FullBlocks, n: usize, b: usize) {
-    f.retarded_diagonal = vec![Mat::zeros(b, b); n];
-    f.filled_diagonal = vec![Mat::zeros(b, b); n];
-    f.retarded_lower = vec![Mat::zeros(b, b); n.saturating_sub(1)];
-    f.filled_lower = vec![Mat::zeros(b, b); n.saturating_sub(1)];
 }

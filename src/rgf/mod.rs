@@ -81,6 +81,25 @@ pub struct FullBlocks {
     pub filled_lower: Vec<Mat<C64>>,
 }
 
+impl FullBlocks {
+    /// Shape the four lists for `n` cells of `b` orbitals, keeping the
+    /// blocks already there when they have that shape: the kernel
+    /// overwrites every block, so a caller that passes the same
+    /// `FullBlocks` for every energy allocates them once.
+    fn prepare(&mut self, n: usize, b: usize) {
+        fn fit(v: &mut Vec<Mat<C64>>, len: usize, b: usize) {
+            if v.len() != len || v.first().is_some_and(|m| m.nrows() != b) {
+                *v = vec![Mat::zeros(b, b); len];
+            }
+        }
+        let lower = n.saturating_sub(1);
+        fit(&mut self.retarded_diagonal, n, b);
+        fit(&mut self.filled_diagonal, n, b);
+        fit(&mut self.retarded_lower, lower, b);
+        fit(&mut self.filled_lower, lower, b);
+    }
+}
+
 /// Terminal traces at one energy (dimensionless; multiply by g_s/h).
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct TerminalFlows {
@@ -154,14 +173,15 @@ impl Workspace {
     }
 }
 
-/// Solve one energy point. Dispatches to the scalar path when b = 1.
+/// Solve one energy point. Dispatches to the scalar path when b = 1 (with
+/// or without full blocks).
 pub fn solve_energy(
     input: &EnergyInput<'_>,
     ws: &mut Workspace,
     out: EnergyOutput<'_>,
 ) -> Result<TerminalFlows, RgfError> {
     let b = input.onsite[0].nrows();
-    if b == 1 && out.full.is_none() {
+    if b == 1 {
         return scalar::solve_energy_scalar(input, ws, out);
     }
     ws.ensure_blocks(b);

@@ -6,7 +6,7 @@ use crate::C64;
 pub(super) fn solve_energy_scalar(
     input: &EnergyInput<'_>,
     ws: &mut Workspace,
-    out: EnergyOutput<'_>,
+    mut out: EnergyOutput<'_>,
 ) -> Result<TerminalFlows, RgfError> {
     let n = input.onsite.len();
     let last = n - 1;
@@ -52,6 +52,11 @@ pub(super) fn solve_energy_scalar(
 
     out.retarded[last] = g[last];
     out.filled[last] = gn[last];
+    if let Some(f) = out.full.as_deref_mut() {
+        f.prepare(n, 1);
+        f.retarded_diagonal[last][(0, 0)] = g[last];
+        f.filled_diagonal[last][(0, 0)] = C64::new(gn[last], 0.0);
+    }
     // G^r_1N for the transmission: G_iN = g_i τ_i G_i+1,N (left-connected g).
     let mut q = g[last];
     for i in (0..last).rev() {
@@ -75,6 +80,14 @@ pub(super) fn solve_energy_scalar(
         }
         out.retarded[i] = gr_full;
         out.filled[i] = gn_full;
+        if let Some(f) = out.full.as_deref_mut() {
+            // G_{i+1,i} = G_{i+1} τ* g_i and G^n_{i+1,i} as in the bond flow.
+            let tc = input.coupling[i][(0, 0)].conj();
+            f.retarded_diagonal[i][(0, 0)] = gr_full;
+            f.filled_diagonal[i][(0, 0)] = C64::new(gn_full, 0.0);
+            f.retarded_lower[i][(0, 0)] = big * tc * gi;
+            f.filled_lower[i][(0, 0)] = tc * (big * gni + bign * gi.conj());
+        }
         g[i] = gr_full;
         gn[i] = gn_full;
     }

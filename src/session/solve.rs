@@ -6,7 +6,7 @@ use super::{Loaded, SessionError, WriteOptions, folder};
 use crate::case::Resolved;
 use crate::electrostatics;
 use crate::lattice::PhononSpectrum;
-use crate::observables::{Observables, ObserveOptions, observe_with};
+use crate::observables::{Observables, ObserveOptions, observe_with, timed};
 use crate::output::phonons::{lattice_summary, write_phonon_files};
 use crate::output::results::{
     LATTICE_TEMPERATURE_FILE, RunInfo, header, read_lattice_temperature, read_self_energy,
@@ -98,7 +98,7 @@ pub fn solve(
             es_run = Some(r);
             (s, None)
         }),
-        None => run_solve(resolved, warm.as_ref(), observer),
+        None => timed("Born loop", || run_solve(resolved, warm.as_ref(), observer)),
     };
     let (sol, heat) = match result {
         Ok(s) => s,
@@ -109,9 +109,11 @@ pub fn solve(
             return Err(SessionError::Born { error, failure });
         }
     };
-    let o = observe_solution(resolved, &sol)?;
+    let o = timed("observables", || observe_solution(resolved, &sol))?;
     let case_toml = loaded.case.to_toml_string();
-    let mut summary = solve_summary(&sol, &o, &run_info(&loaded, &case_toml, options.threads));
+    let mut summary = timed("summary", || {
+        solve_summary(&sol, &o, &run_info(&loaded, &case_toml, options.threads))
+    });
     summary.self_heating = heat.as_ref().map(|h| self_heating_summary(&sol, &o, h));
     summary.electrostatics = es_run.as_ref().map(|r| electrostatics_summary(&sol, r));
     let es_stopped_short = es_run.as_ref().is_some_and(|r| !r.report.converged);
@@ -170,20 +172,24 @@ impl Solved {
         let mut summary = self.summary.clone();
         let stage = Staging::with_options(dir, &folder("solve", options.other_files))?;
         let (sol, o) = (&self.solution, &self.observables);
-        write_solve_files_within(&stage, sol, o, &mut summary, &options.limits)?;
+        timed("result files", || {
+            write_solve_files_within(&stage, sol, o, &mut summary, &options.limits)
+        })?;
         if let Some(s) = phonons {
             write_phonon_files(&stage, s, mean_lead_temperature(resolved))?;
         }
         let potential =
             (summary.electrostatics.as_ref()).map(|e| &e.potential_energy_per_cell_ev[..]);
-        crate::output::plots::write_solve_plots_with_potential(
-            &stage,
-            sol,
-            o,
-            potential,
-            &options.limits,
-        )?;
-        stage.commit()?;
+        timed("figures", || {
+            crate::output::plots::write_solve_plots_with_potential(
+                &stage,
+                sol,
+                o,
+                potential,
+                &options.limits,
+            )
+        })?;
+        timed("commit", || stage.commit())?;
         Ok(summary)
     }
 
@@ -238,11 +244,14 @@ fn observe_solution(resolved: &Resolved, sol: &Solution) -> Result<Observables, 
         &ObserveOptions {
             electron_temperature: resolved.fit_electron_temperature,
             movers: true,
+            mover_maps: false,
         },
     );
     if let Some(set) = &resolved.channels {
-        let split = crate::observables::channels::observe_channels(sol, set)
-            .map_err(|e| SessionError::Solver(format!("splitting the results by channel: {e}")))?;
+        let split = timed("channels", || {
+            crate::observables::channels::observe_channels(sol, set)
+        })
+        .map_err(|e| SessionError::Solver(format!("splitting the results by channel: {e}")))?;
         o.channels = Some(split);
     }
     Ok(o)

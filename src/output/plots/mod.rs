@@ -969,15 +969,18 @@ pub fn write_solve_plots_with_potential(
     limits: &ResultLimits,
 ) -> Result<(), OutputError> {
     let pixels = limits.map_pixels();
-    let device = device_svg_with_potential(sol, o, potential_ev)?;
+    use crate::observables::timed;
+    let device = timed("device.svg", || {
+        device_svg_with_potential(sol, o, potential_ev)
+    })?;
     stage.write("device.svg", device.as_bytes())?;
     stage.write("spectrum.svg", spectrum_svg(sol, o)?.as_bytes())?;
-    let bond = bond_current_svg_within(sol, o, pixels)?;
+    let bond = timed("bond_current.svg", || {
+        bond_current_svg_within(sol, o, pixels)
+    })?;
     stage.write("bond_current.svg", bond.as_bytes())?;
-    stage.write(
-        "occupation.svg",
-        occupation_svg_within(sol, o, pixels)?.as_bytes(),
-    )?;
+    let occupation = timed("occupation.svg", || occupation_svg_within(sol, o, pixels))?;
+    stage.write("occupation.svg", occupation.as_bytes())?;
     if let Some(svg) = convergence_svg(sol)? {
         stage.write("convergence.svg", svg.as_bytes())?;
     }
