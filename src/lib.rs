@@ -121,6 +121,7 @@ pub mod grid;
 pub mod lattice;
 pub mod leads;
 pub mod model;
+pub mod numerics;
 pub mod observables;
 pub mod output;
 pub mod progress;

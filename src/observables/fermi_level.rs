@@ -146,15 +146,10 @@ fn count_and_slope(energies: &[f64], spectral: &[f64], mu: f64, kt: f64) -> (f64
 ///
 /// The occupied weight N(µ) = Σ_k a_k f(E_k; µ, T) grows monotonically with
 /// µ (a_k ≥ 0), so the root of N(µ) = target is bracketed by the search
-/// interval once its ends straddle the target. The bracket [lo, hi] keeps
-/// N(lo) < target ≤ N(hi) and shrinks at every evaluation; the next point
-/// is the Newton step from the last one (N′ is known in closed form) when
-/// that step lands inside the bracket and at least halves the step before
-/// it, and the bracket's midpoint otherwise (a safeguarded Newton
-/// iteration, W. H. Press et al., Numerical Recipes, 3rd ed. 2007, §9.4).
-/// It stops when a step moves µ by no more than a few units in the last
-/// place or the bracket cannot be split further: the same root bisection
-/// reaches, in about ten evaluations of N instead of sixty.
+/// interval once its ends straddle the target, and
+/// [`crate::numerics::bracketed_newton`] finds it (N′ is known in closed
+/// form): the same root bisection reaches, in about ten evaluations of N
+/// instead of sixty.
 pub fn match_fermi_level_checked(
     energies: &[f64],
     spectral: &[f64],
@@ -169,7 +164,7 @@ pub fn match_fermi_level_checked(
         };
     }
     let kt = thermal_energy_ev(temperature_k);
-    let (mut lo, mut hi) = fermi_search_interval(energies, temperature_k);
+    let (lo, hi) = fermi_search_interval(energies, temperature_k);
     let count = |mu: f64| count_and_slope(energies, spectral, mu, kt);
     // The iteration below keeps lo at count < target and hi at
     // count ≥ target; if an end already violates that, the answer is not
@@ -187,30 +182,7 @@ pub fn match_fermi_level_checked(
             status,
         };
     }
-    let mut mu = 0.5 * (lo + hi);
-    let mut last_step = hi - lo;
-    for _ in 0..200 {
-        let (n, dn) = count(mu);
-        if n < target {
-            lo = mu;
-        } else {
-            hi = mu;
-        }
-        let newton = mu - (n - target) / dn;
-        let next =
-            if dn > 0.0 && newton > lo && newton < hi && (newton - mu).abs() <= 0.5 * last_step {
-                newton
-            } else {
-                0.5 * (lo + hi)
-            };
-        let step = (next - mu).abs();
-        if next <= lo || next >= hi || step <= 4.0 * f64::EPSILON * mu.abs().max(kt) {
-            mu = next.clamp(lo, hi);
-            break;
-        }
-        last_step = step;
-        mu = next;
-    }
+    let mu = crate::numerics::bracketed_newton(count, target, (lo, hi), kt);
     FermiMatch {
         fermi_level_ev: mu,
         status: FermiLevelStatus::Matched,
