@@ -391,3 +391,38 @@ fn cli_flags_a_cut_outer_loop_and_names_the_scheme() {
     }
     std::fs::remove_dir_all(&dir).ok();
 }
+
+/// Under a bias V each charge-neutral end keeps its band where its own
+/// lead's Fermi level holds the doping, so the band of the end at the
+/// lower Fermi level, µ − eV/2, lies eV/2 below where it is at V = 0 (the
+/// band bottom of a neutral region sits at a fixed distance from its
+/// Fermi level: common practice). A single solve of the demo starts its
+/// window 5 kT below that band (grid.min_ev not given), so at 0.2 V the
+/// window starts 0.1 eV lower than at 0 V, at either polarity. Both band
+/// bottoms come from the same bisection (to 1e-13 eV) with the same
+/// temperature, so they differ by V/2 to far below 1e-9 eV; a window set
+/// at the higher Fermi level would start 0.1 eV higher instead.
+#[test]
+fn single_solve_window_follows_the_lower_fermi_level() {
+    let case = qheat::case::Case::load(
+        &std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("cases-demo/doped-barrier-cooler.toml"),
+    )
+    .unwrap();
+    let first = |v: f64| {
+        let r = case
+            .with(qheat::case::CaseKey::BiasVoltage, v)
+            .unwrap()
+            .resolve()
+            .unwrap();
+        r.problem.grid.min_ev
+    };
+    let zero = first(0.0);
+    for v in [0.2, -0.2] {
+        let shift = first(v) - zero;
+        assert!(
+            (shift + 0.1).abs() < 1e-9,
+            "at {v} V the window starts {shift} eV from where it does at 0 V"
+        );
+    }
+}

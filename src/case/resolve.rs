@@ -582,8 +582,8 @@ struct WindowInput {
     lead_lows: Vec<f64>,
     /// Largest wide-band Γ.
     gamma_max: f64,
-    /// Lowest band bottom of a charge-neutral doped region, with
-    /// `[electrostatics]`.
+    /// Lowest band bottom of a charge-neutral doped region at the lower
+    /// of the two Fermi levels, with `[electrostatics]`.
     neutral_low: Option<f64>,
 }
 
@@ -963,9 +963,14 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
                 _ => None,
             })
             .fold(0.0, f64::max),
+        // Each charge-neutral end keeps its band where its own lead's
+        // Fermi level holds the doping, so under bias the band of the end
+        // at the lower Fermi level lies lowest: the window starts below
+        // that one (a bias V moves it eV/2 below where it is at V = 0, as
+        // the window of a curve allows for).
         neutral_low: spec.electrostatics.as_ref().and_then(|e| {
             let gs = f64::from(spec.spin_degeneracy);
-            e.lowest_neutral_band_bottom(&spec.device, mu_l.max(mu_r), kt_max, gs)
+            e.lowest_neutral_band_bottom(&spec.device, mu_l.min(mu_r), kt_max, gs)
         }),
     };
     let grid = energy_grid(spec, ctx, &window, &mut remarks)?;

@@ -2,7 +2,7 @@
 //! `--quiet`.
 
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
-use qheat::progress::{IterationRecord, Observer, PointEvent};
+use qheat::progress::{CurvePointRecord, IterationRecord, Observer, PointEvent};
 use std::io::IsTerminal;
 
 /// Whether progress may be drawn.
@@ -133,7 +133,8 @@ impl Drop for PointProgress {
     }
 }
 
-/// A spinner over the solves of a generator or cooler curve.
+/// A spinner over the solves of a generator or cooler curve, with one line
+/// per solved point above it.
 pub struct CurveProgress {
     bar: Option<ProgressBar>,
     solves: usize,
@@ -174,6 +175,32 @@ impl Observer for CurveProgress {
             b.tick();
         }
     }
+
+    fn curve_point(&mut self, r: &CurvePointRecord) {
+        if let Some(b) = &self.bar {
+            b.println(curve_point_line(r));
+        }
+    }
+}
+
+/// The line of one solved curve point: what it was for, V, I, with
+/// electrostatics its outer iterations and computed drop, its time, and a
+/// mark when it did not converge.
+fn curve_point_line(r: &CurvePointRecord) -> String {
+    let mut line = format!(
+        "{:<18} V = {:>10.4} mV  I = {}",
+        r.stage,
+        r.voltage_v * 1e3,
+        super::format::si(r.current_a, "A", 4)
+    );
+    if let (Some(n), Some(d)) = (r.outer_iterations, r.potential_drop_v) {
+        line += &format!("  drop {:.4} mV in {n} outer iterations", d * 1e3);
+    }
+    line += &format!("  {:.1} s", r.seconds);
+    if !r.converged {
+        line += "  NOT converged";
+    }
+    line
 }
 
 impl Drop for CurveProgress {

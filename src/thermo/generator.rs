@@ -169,26 +169,25 @@ pub struct CurveElectrostatics {
 /// so far. The grid's step depends on the temperatures alone, and over an
 /// interval of voltages the lowest band edge is a concave and the higher
 /// Fermi level a convex function of V, so the ends of the interval bound
-/// the window. With electrostatics the envelope also holds the window of
-/// the zero-bias case with both Fermi levels lowered by W/2, where the band
-/// of a charge-neutral end at the lower Fermi level lies (see
-/// `BiasedCase::lowered`). When a voltage beyond W is asked for, W grows to at least
+/// the window. With electrostatics the band of a charge-neutral end at
+/// the lower Fermi level lies eV/2 below where it is at V = 0; a case's
+/// own window at ±W starts below it (it is set at the lower Fermi level),
+/// so the envelope holds it. When a voltage beyond W is asked for, W grows to at least
 /// twice its value (so a search that marches outwards rebuilds the grid a
 /// logarithmic number of times) and the generation counter steps; a
 /// result kept from an earlier generation must be solved again before it
 /// is compared with newer ones.
 pub(crate) struct BiasedCase {
     base: Case,
-    /// The zero-bias Fermi level of both leads (eV).
-    mu_ev: f64,
     fixed: Case,
     grid: CommonGrid,
     covered_v: f64,
     pub generation: usize,
     warm: Option<ScatteringSelfEnergy>,
-    /// With electrostatics: its settings and the last point's potential.
+    /// With electrostatics: its settings, and the potential of every
+    /// converged point (with its voltage) to start a nearby point from.
     es: Option<Electrostatics>,
-    potential: Option<Vec<f64>>,
+    potentials: Vec<(f64, Vec<f64>)>,
     /// With electrostatics: what the curve's solves did.
     pub electrostatics: Option<CurveElectrostatics>,
     pub all_converged: bool,
@@ -224,11 +223,10 @@ impl BiasedCase {
                 converged: true,
             }),
             es,
-            potential: None,
+            potentials: Vec::new(),
             heat_leak_w,
             fixed: grid.apply(&base)?,
             base,
-            mu_ev,
             grid,
             covered_v: 0.0,
             generation: 0,
@@ -254,13 +252,10 @@ impl BiasedCase {
             return Ok(());
         }
         let w = v_abs.max(2.0 * self.covered_v);
-        let mut ends = [-w, 0.0, w]
+        let ends = [-w, 0.0, w]
             .iter()
             .map(|&v| self.base.with(CaseKey::BiasVoltage, v))
             .collect::<Result<Vec<_>, _>>()?;
-        if self.es.is_some() {
-            ends.push(self.lowered(0.5 * w)?);
-        }
         let grid = CommonGrid::choose(&ends)?;
         if grid.grid != self.grid.grid || grid.phonon_energies_ev != self.grid.phonon_energies_ev {
             self.fixed = grid.apply(&self.base)?;
@@ -270,21 +265,6 @@ impl BiasedCase {
         self.grid = grid;
         self.covered_v = w;
         Ok(())
-    }
-
-    /// With electrostatics, the energy window must follow the bias: each
-    /// charge-neutral end of the device keeps its band where its lead's
-    /// Fermi level holds the doping, so under a bias V the band of the end
-    /// at the lower Fermi level, µ − eV/2, lies eV/2 below where it is at
-    /// V = 0 (a case's own window, set at the higher Fermi level, does not
-    /// reach it). This is the zero-bias case with both Fermi levels at
-    /// µ − `half_v`: its window (the case's own rule, or the case's own
-    /// `grid.min_ev` when it gives one) reaches that band.
-    fn lowered(&self, half_v: f64) -> Result<Case, CaseError> {
-        self.base
-            .with(CaseKey::BiasVoltage, 0.0)?
-            .with(CaseKey::LeadFermiLevel(Side::Left), self.mu_ev - half_v)?
-            .with(CaseKey::LeadFermiLevel(Side::Right), self.mu_ev - half_v)
     }
 
     /// Solve at voltage `v`.
@@ -305,7 +285,7 @@ impl BiasedCase {
         }
         let start = PointStart {
             sigma: self.warm.as_ref(),
-            potential_ev: self.potential.as_deref(),
+            potential_ev: self.nearest_potential(v),
         };
         let clock = std::time::Instant::now();
         let point = solve_point(&r.problem, self.es.as_ref(), &r.scba, start, &mut Silent)
@@ -322,7 +302,9 @@ impl BiasedCase {
                 c.converged &= e.report.converged;
             }
             let drop = (e.potential_drop_v(), e.report.outer_iterations);
-            self.potential = Some(e.potential_ev);
+            if e.report.converged {
+                self.potentials.push((v, e.potential_ev));
+            }
             drop
         });
         let sol = point.solution;
@@ -351,6 +333,23 @@ impl BiasedCase {
             electrostatics,
             highest_band_edge_ev,
         })
+    }
+
+    /// The converged potential of the solved voltage nearest to `v` (the
+    /// latest of equally near ones). A curve visits its voltages out of
+    /// order (the cooler tries both polarities before it marches out, a
+    /// bracket search jumps between its ends), and the last point solved
+    /// may lie far from the next: a start that far off costs outer
+    /// iterations and, on a barrier whose charge moves with the bias,
+    /// can leave the outer loop where it does not converge.
+    fn nearest_potential(&self, v: f64) -> Option<&[f64]> {
+        let mut best: Option<&(f64, Vec<f64>)> = None;
+        for p in &self.potentials {
+            if best.is_none_or(|b| (p.0 - v).abs() <= (b.0 - v).abs()) {
+                best = Some(p);
+            }
+        }
+        best.map(|p| p.1.as_slice())
     }
 
     /// `s` itself when it was solved on the present grid, else solved again.
