@@ -28,6 +28,10 @@ use qheat::scattering::Scattering;
 use qheat::scba::{ScbaParams, Silent};
 use qheat::units::ELEMENTARY_CHARGE;
 
+#[path = "support/chain_density.rs"]
+mod chain_density;
+use chain_density::chain_electrons;
+
 const T: f64 = 300.0;
 
 /// A coherent effective-mass chain of `cells` cells of `spacing` nm, mass
@@ -73,27 +77,6 @@ fn settings(permittivity: f64, area: f64, donors: Vec<f64>) -> Electrostatics {
         mixing_factor: 0.5,
         coupling: Coupling::default(),
     }
-}
-
-/// Electrons per cell (spin included) of an infinite chain with band
-/// bottom `edge`, hopping `t`, Fermi level 0, integrated on the energies
-/// `e` with the band-edge-aware weights the transport count uses; the
-/// local density of states of the chain is 1/(π √((E − Ec)(Ec + 4t − E)))
-/// per cell (common practice: the tight-binding chain, e.g. S. Datta,
-/// Quantum Transport: Atom to Transistor, 2005).
-fn chain_electrons(edge: f64, t: f64, e: &[f64], kt: f64) -> f64 {
-    let q = electrostatics::edge_weights(e, &[edge]);
-    e.iter()
-        .zip(&q)
-        .map(|(&en, &w)| {
-            let x = en - edge;
-            if x <= 0.0 || x >= 4.0 * t {
-                return 0.0;
-            }
-            let rho = 1.0 / (std::f64::consts::PI * (x * (4.0 * t - x)).sqrt());
-            2.0 * w * rho / (1.0 + (en / kt).exp())
-        })
-        .sum()
 }
 
 /// The band edge at which [`chain_electrons`] equals `electrons`, by

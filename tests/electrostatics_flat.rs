@@ -9,6 +9,10 @@ use qheat::model::{Contact, Problem};
 use qheat::scattering::Scattering;
 use qheat::scba::{ScbaParams, Silent};
 
+#[path = "support/chain_density.rs"]
+mod chain_density;
+use chain_density::chain_electrons;
+
 const T: f64 = 300.0;
 
 /// An effective-mass chain of `cells` cells of 0.5 nm, mass `mass`, band
@@ -54,28 +58,6 @@ fn settings(area: f64, donors: Vec<f64>) -> Electrostatics {
         mixing_factor: 0.5,
         coupling: Coupling::default(),
     }
-}
-
-/// Electrons per cell (spin included) of an infinite chain with band
-/// bottom `edge`, hopping `t`, Fermi level 0, integrated on the energies
-/// `e` with the same band-edge-aware weights as the transport density:
-/// the local density of states of the chain is
-/// 1/(π √((E − Ec)(Ec + 4t − E))) per cell (common practice: the
-/// tight-binding chain, e.g. S. Datta, Quantum Transport: Atom to
-/// Transistor, 2005).
-fn chain_electrons(edge: f64, t: f64, e: &[f64], kt: f64) -> f64 {
-    let q = electrostatics::edge_weights(e, &[edge]);
-    e.iter()
-        .zip(&q)
-        .map(|(&en, &w)| {
-            let x = en - edge;
-            if x <= 0.0 || x >= 4.0 * t {
-                return 0.0;
-            }
-            let rho = 1.0 / (std::f64::consts::PI * (x * (4.0 * t - x)).sqrt());
-            2.0 * w * rho / (1.0 + (en / kt).exp())
-        })
-        .sum()
 }
 
 /// The band-edge-aware weights make the electrons of a flat band a
