@@ -1648,16 +1648,5 @@ fn copy_rows(
     dst: &mut ScatteringSelfEnergy,
     rows: impl Fn(usize) -> bool + Sync,
 ) {
-    let ns = src.sites.max(1);
-    dst.retarded
-        .par_chunks_mut(ns)
-        .zip(dst.inscatter.par_chunks_mut(ns))
-        .zip(src.retarded.par_chunks(ns))
-        .zip(src.inscatter.par_chunks(ns))
-        .enumerate()
-        .filter(|(k, _)| rows(*k))
-        .for_each(|(_, (((dr, di), sr), si))| {
-            dr.copy_from_slice(sr);
-            di.copy_from_slice(si);
-        });
+    copy_rows_with(src, dst, rows, |_, _, _| ());
 }
