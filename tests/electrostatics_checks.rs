@@ -19,47 +19,13 @@
 //! iterations, potential changes of 1–30 meV), or converges to a profile
 //! that is neither flat nor neutral far from the junction.
 
-use qheat::device;
 use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics, VACUUM_PERMITTIVITY};
-use qheat::grid::EnergyGrid;
-use qheat::leads::{DecimationParams, Lead};
-use qheat::model::{Contact, Problem};
-use qheat::scattering::Scattering;
 use qheat::scba::{ScbaParams, Silent};
 use qheat::units::ELEMENTARY_CHARGE;
 
 #[path = "support/chain_density.rs"]
 mod chain_density;
-use chain_density::chain_electrons;
-
-const T: f64 = 300.0;
-
-/// A coherent effective-mass chain of `cells` cells of `spacing` nm, mass
-/// `mass`, band edge 0, leads continuing it at Fermi level 0 on both
-/// sides (equilibrium), energy grid [lo, hi] with step `step`.
-fn chain(cells: usize, spacing: f64, mass: f64, grid: (f64, f64, f64)) -> Problem {
-    let t = qheat::units::hopping_ev(mass, spacing);
-    let dev = device::chain(spacing, t, 0.0, vec![0.0; cells]);
-    let lead = Lead::Periodic {
-        onsite: dev.onsite[0].clone(),
-        hopping: dev.coupling[0].clone(),
-    };
-    let contact = || Contact {
-        lead: lead.clone(),
-        fermi_level_ev: 0.0,
-        temperature_k: T,
-    };
-    Problem {
-        device: dev,
-        left: contact(),
-        right: contact(),
-        scattering: Scattering::default(),
-        grid: EnergyGrid::covering(grid.0, grid.1, grid.2),
-        spin_degeneracy: 2.0,
-        decimation: DecimationParams::default(),
-        contacts: Vec::new(),
-    }
-}
+use chain_density::{T, chain, chain_electrons};
 
 fn settings(permittivity: f64, area: f64, donors: Vec<f64>) -> Electrostatics {
     let cells = donors.len();

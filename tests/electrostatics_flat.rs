@@ -1,46 +1,12 @@
 //! Self-consistent electrostatics in long, flat, coherent regions, where
 //! the density of states has the one-dimensional band-edge singularity.
 
-use qheat::device;
 use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics};
-use qheat::grid::EnergyGrid;
-use qheat::leads::{DecimationParams, Lead};
-use qheat::model::{Contact, Problem};
-use qheat::scattering::Scattering;
 use qheat::scba::{ScbaParams, Silent};
 
 #[path = "support/chain_density.rs"]
 mod chain_density;
-use chain_density::chain_electrons;
-
-const T: f64 = 300.0;
-
-/// An effective-mass chain of `cells` cells of 0.5 nm, mass `mass`, band
-/// edge 0, with leads continuing it at Fermi level 0 and the energy grid
-/// [lo, hi] with step `step`.
-fn chain(cells: usize, mass: f64, grid: (f64, f64, f64)) -> Problem {
-    let t = qheat::units::hopping_ev(mass, 0.5);
-    let dev = device::chain(0.5, t, 0.0, vec![0.0; cells]);
-    let lead = Lead::Periodic {
-        onsite: dev.onsite[0].clone(),
-        hopping: dev.coupling[0].clone(),
-    };
-    let contact = || Contact {
-        lead: lead.clone(),
-        fermi_level_ev: 0.0,
-        temperature_k: T,
-    };
-    Problem {
-        device: dev,
-        left: contact(),
-        right: contact(),
-        scattering: Scattering::default(),
-        grid: EnergyGrid::covering(grid.0, grid.1, grid.2),
-        spin_degeneracy: 2.0,
-        decimation: DecimationParams::default(),
-        contacts: Vec::new(),
-    }
-}
+use chain_density::{T, chain, chain_electrons};
 
 fn settings(area: f64, donors: Vec<f64>) -> Electrostatics {
     let cells = donors.len();
@@ -116,7 +82,7 @@ fn flat_band_electrons_fall_monotonically_with_the_edge() {
 #[test]
 fn long_flat_coherent_junction_converges() {
     let cells = 80;
-    let p = chain(cells, 0.07, (-0.1507, 0.35, 0.002));
+    let p = chain(cells, 0.5, 0.07, (-0.1507, 0.35, 0.002));
     let donors = (0..cells)
         .map(|i| if i < cells / 2 { 1e18 } else { 4e18 })
         .collect();

@@ -1,8 +1,44 @@
-//! The electron count of an infinite tight-binding chain integrated with
-//! the transport count's band-edge-aware weights, shared by the
-//! electrostatics tests.
+//! Shared by the electrostatics tests: a coherent chain in equilibrium
+//! with leads that continue it, and the electron count of an infinite
+//! tight-binding chain integrated with the transport count's
+//! band-edge-aware weights.
 
+use qheat::device;
 use qheat::electrostatics;
+use qheat::grid::EnergyGrid;
+use qheat::leads::{DecimationParams, Lead};
+use qheat::model::{Contact, Problem};
+use qheat::scattering::Scattering;
+
+/// Temperature of the leads (K).
+pub const T: f64 = 300.0;
+
+/// A coherent effective-mass chain of `cells` cells of `spacing` nm, mass
+/// `mass`, band edge 0, leads continuing it at Fermi level 0 on both
+/// sides (equilibrium), energy grid [lo, hi] with step `step`.
+pub fn chain(cells: usize, spacing: f64, mass: f64, grid: (f64, f64, f64)) -> Problem {
+    let t = qheat::units::hopping_ev(mass, spacing);
+    let dev = device::chain(spacing, t, 0.0, vec![0.0; cells]);
+    let lead = Lead::Periodic {
+        onsite: dev.onsite[0].clone(),
+        hopping: dev.coupling[0].clone(),
+    };
+    let contact = || Contact {
+        lead: lead.clone(),
+        fermi_level_ev: 0.0,
+        temperature_k: T,
+    };
+    Problem {
+        device: dev,
+        left: contact(),
+        right: contact(),
+        scattering: Scattering::default(),
+        grid: EnergyGrid::covering(grid.0, grid.1, grid.2),
+        spin_degeneracy: 2.0,
+        decimation: DecimationParams::default(),
+        contacts: Vec::new(),
+    }
+}
 
 /// Electrons per cell (spin included) of an infinite chain with band
 /// bottom `edge`, hopping `t`, Fermi level 0, integrated on the energies
