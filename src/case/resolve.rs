@@ -915,6 +915,31 @@ fn scattering(
     })
 }
 
+/// The largest broadening (eV) of a wide-band lead, 0 without one: for a
+/// matrix Γ its largest eigenvalue.
+fn widest_wide_band(spec: &CaseSpec) -> f64 {
+    [&spec.leads.left.model, &spec.leads.right.model]
+        .iter()
+        .filter_map(|m| match m {
+            LeadModel::WideBand { gamma_ev } => Some(*gamma_ev),
+            LeadModel::WideBandMatrix { gamma, .. } => Some(-device::lowest_eigenvalue(
+                &Mat::from_fn(gamma.nrows(), gamma.ncols(), |r, c| -gamma[(r, c)]),
+            )),
+            _ => None,
+        })
+        .fold(0.0, f64::max)
+}
+
+/// A zero coupling block cuts the device in two: nothing can pass.
+fn warn_uncoupled(dev: &Device, remarks: &mut Remarks) {
+    if let Some(i) = dev.coupling.iter().position(|c| device::max_abs(c) == 0.0) {
+        remarks.warnings.push(format!(
+            "cells {i} and {} are not coupled (an all-zero coupling block): no current can pass, and a level isolated between zero couplings makes the Green's function singular at its energy",
+            i + 1
+        ));
+    }
+}
+
 /// Build the device, contacts, scattering and grid.
 pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolved, CaseError> {
     let mut remarks = Remarks {
@@ -952,17 +977,7 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
             .flatten()
             .map(|r| r.0)
             .collect(),
-        gamma_max: [&spec.leads.left.model, &spec.leads.right.model]
-            .iter()
-            .filter_map(|m| match m {
-                LeadModel::WideBand { gamma_ev } => Some(*gamma_ev),
-                // The largest eigenvalue of Γ.
-                LeadModel::WideBandMatrix { gamma, .. } => Some(-device::lowest_eigenvalue(
-                    &Mat::from_fn(gamma.nrows(), gamma.ncols(), |r, c| -gamma[(r, c)]),
-                )),
-                _ => None,
-            })
-            .fold(0.0, f64::max),
+        gamma_max: widest_wide_band(spec),
         // Each charge-neutral end keeps its band where its own lead's
         // Fermi level holds the doping, so under bias the band of the end
         // at the lower Fermi level lies lowest: the window starts below
@@ -976,14 +991,8 @@ pub(crate) fn resolve(spec: &CaseSpec, ctx: &ErrorContext<'_>) -> Result<Resolve
     let grid = energy_grid(spec, ctx, &window, &mut remarks)?;
     check_neutral_coverage(spec, ctx, &window, &grid)?;
     dispersion_warning(spec, &built, &grid, &mut remarks);
-    // A zero coupling block cuts the device in two: nothing can pass.
     let dev = &built.dev;
-    if let Some(i) = dev.coupling.iter().position(|c| device::max_abs(c) == 0.0) {
-        remarks.warnings.push(format!(
-            "cells {i} and {} are not coupled (an all-zero coupling block): no current can pass, and a level isolated between zero couplings makes the Green's function singular at its energy",
-            i + 1
-        ));
-    }
+    warn_uncoupled(dev, &mut remarks);
     let scattering = scattering(spec, ctx, dev, &grid, &snapped, &mut remarks)?;
     let contacts = (
         Contact {
@@ -1082,6 +1091,30 @@ fn electrostatics_remarks(spec: &CaseSpec, remarks: &mut Remarks) {
     }
 }
 
+/// The phonon thermal conductance ZT uses (W/K): the given value, else 0
+/// when a [lattice] section will give κ_ph, else 0 as an upper bound of
+/// ZT, with the warning or note that says which.
+fn phonon_conductance(spec: &CaseSpec, has_lattice: bool, remarks: &mut Remarks) -> f64 {
+    match (spec.thermal.phonon_conductance_w_per_k, has_lattice) {
+        (Some(k), true) => {
+            remarks.warnings.push(format!(
+                "thermal.phonon_conductance_w_per_k = {k:e} W/K overrides the κ_ph the [lattice] \
+                 section would give: ZT uses the given value (leave it out to use the lattice)"
+            ));
+            k
+        }
+        (Some(k), false) => k,
+        (None, true) => 0.0,
+        (None, false) => {
+            remarks.notes.push(
+                "neither [lattice] nor thermal.phonon_conductance_w_per_k given: ZT uses κ_ph = 0 (an upper bound)"
+                    .into(),
+            );
+            0.0
+        }
+    }
+}
+
 /// The resolved case from its parts, with the last checks and notes.
 fn assemble(
     spec: &CaseSpec,
@@ -1098,24 +1131,7 @@ fn assemble(
         let at = (ls.span.clone(), spec.device.spacing_nm);
         check_damping_covers_modes(l, &scattering, at, ctx)?;
     }
-    let phonon_conductance = match (spec.thermal.phonon_conductance_w_per_k, &lattice) {
-        (Some(k), Some(_)) => {
-            remarks.warnings.push(format!(
-                "thermal.phonon_conductance_w_per_k = {k:e} W/K overrides the κ_ph the [lattice] \
-                 section would give: ZT uses the given value (leave it out to use the lattice)"
-            ));
-            k
-        }
-        (Some(k), None) => k,
-        (None, Some(_)) => 0.0,
-        (None, None) => {
-            remarks.notes.push(
-                "neither [lattice] nor thermal.phonon_conductance_w_per_k given: ZT uses κ_ph = 0 (an upper bound)"
-                    .into(),
-            );
-            0.0
-        }
-    };
+    let phonon_conductance = phonon_conductance(spec, lattice.is_some(), &mut remarks);
     if built
         .dev
         .potential_ev

@@ -50,6 +50,37 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
         "electrical power  I·V = {}",
         si(r.electrical_power_w, "W", 4)
     );
+    print_lattice_power(sol, r);
+    if let Some(c) = &summary.channels {
+        print_channels(c);
+    }
+    super::contacts::print_contacts(&summary.contacts, sol.report.probe_residual);
+    print_drops(r);
+    print_fermi_level_flags(&summary.local_fermi_level);
+    if let Some(l) = &summary.lattice {
+        super::lattice::print_lattice(l);
+    }
+    if let Some(h) = &summary.self_heating {
+        print_self_heating(h);
+    }
+    if let Some(e) = &summary.electrostatics {
+        print_electrostatics(e);
+    }
+    let l = &o.ledger;
+    println!(
+        "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
+         energy identity {})",
+        residual(l.charge_relative),
+        residual(l.lattice_relative),
+        residual(l.leads_lattice_relative),
+        residual(l.heat_relative),
+        residual(l.energy_relative)
+    );
+    println!("results           {}", out.display());
+}
+/// The lattice power lines: the total by one or both routes, then the
+/// most heated and the most cooled (or least heated) cell.
+fn print_lattice_power(sol: &Solution, r: &qheat::output::schema::summary::SolveResults) {
     if sol.problem.scattering.phonons.is_empty() {
         println!(
             "lattice power     {} in total (electron side)",
@@ -81,33 +112,8 @@ pub fn print_summary(sol: &Solution, o: &Observables, summary: &SolveSummary, ou
             );
         }
     }
-    if let Some(c) = &summary.channels {
-        print_channels(c);
-    }
-    super::contacts::print_contacts(&summary.contacts, sol.report.probe_residual);
-    print_drops(r);
-    print_fermi_level_flags(&summary.local_fermi_level);
-    if let Some(l) = &summary.lattice {
-        super::lattice::print_lattice(l);
-    }
-    if let Some(h) = &summary.self_heating {
-        print_self_heating(h);
-    }
-    if let Some(e) = &summary.electrostatics {
-        print_electrostatics(e);
-    }
-    let l = &o.ledger;
-    println!(
-        "ledger            charge {}  lattice {}  leads-lattice {}  heat {}  (relative residuals; \
-         energy identity {})",
-        residual(l.charge_relative),
-        residual(l.lattice_relative),
-        residual(l.leads_lattice_relative),
-        residual(l.heat_relative),
-        residual(l.energy_relative)
-    );
-    println!("results           {}", out.display());
 }
+
 /// Terminal lines of the results split by channel.
 fn print_channels(c: &qheat::output::schema::summary::ChannelSummary) {
     for (i, name) in c.names.iter().enumerate() {

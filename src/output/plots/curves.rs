@@ -132,86 +132,105 @@ pub fn grid_figures(
     quantities: &[&str],
     prefix: &str,
 ) -> Result<Vec<(String, String)>, OutputError> {
-    let mut out = Vec::new();
     let names: Vec<String> = grid.axes.iter().map(|a| a.name()).collect();
     match grid.axes.len() {
-        1 => {
-            let x = column(table, &names[0]).unwrap_or_default();
-            type Group<'q> = (&'static str, Vec<(&'q str, Vec<f64>)>);
-            let mut by_unit: Vec<Group<'_>> = Vec::new();
-            for q in quantities {
-                let Some(y) = column(table, q) else { continue };
-                let u = unit_of(q);
-                match by_unit.iter_mut().find(|(unit, _)| *unit == u) {
-                    Some((_, v)) => v.push((q, y)),
-                    None => by_unit.push((u, vec![(q, y)])),
-                }
-            }
-            for (unit, group) in by_unit {
-                let all: Vec<f64> = group.iter().flat_map(|(_, y)| y.iter().copied()).collect();
-                let (f, p) = prefix_for(max_abs(&all));
-                let ys: Vec<Vec<f64>> = group
-                    .iter()
-                    .map(|(_, y)| y.iter().map(|v| v * f).collect())
-                    .collect();
-                let series: Vec<Series<'_>> = group
-                    .iter()
-                    .zip(&ys)
-                    .map(|((label, _), y)| Series { label, x: &x, y })
-                    .collect();
-                let stem = if unit.is_empty() {
-                    "value".to_string()
-                } else {
-                    unit.replace('/', "_per_").replace('²', "2")
-                };
-                let svg = line_chart_svg(
-                    &format!(
-                        "{} against {}",
-                        match unit {
-                            "A" => "Currents",
-                            "W" => "Heat currents and powers",
-                            _ => "Results",
-                        },
-                        names[0]
-                    ),
-                    &names[0],
-                    &if group.len() == 1 {
-                        format!("{} ({p}{unit})", group[0].0)
-                    } else {
-                        format!("{p}{unit}")
-                    },
-                    &series,
-                    &[],
-                )?;
-                out.push((format!("{prefix}_{stem}.svg"), svg));
-            }
+        1 => line_figures(table, quantities, prefix, &names[0]),
+        2 => Ok(map_figure(grid, table, quantities, prefix, &names)?
+            .into_iter()
+            .collect()),
+        _ => Ok(Vec::new()),
+    }
+}
+
+/// One line chart per unit of `quantities` against the single axis
+/// `axis`: currents in one, powers in another.
+fn line_figures(
+    table: &SweepTable,
+    quantities: &[&str],
+    prefix: &str,
+    axis: &str,
+) -> Result<Vec<(String, String)>, OutputError> {
+    let mut out = Vec::new();
+    let x = column(table, axis).unwrap_or_default();
+    type Group<'q> = (&'static str, Vec<(&'q str, Vec<f64>)>);
+    let mut by_unit: Vec<Group<'_>> = Vec::new();
+    for q in quantities {
+        let Some(y) = column(table, q) else { continue };
+        let u = unit_of(q);
+        match by_unit.iter_mut().find(|(unit, _)| *unit == u) {
+            Some((_, v)) => v.push((q, y)),
+            None => by_unit.push((u, vec![(q, y)])),
         }
-        2 => {
-            let Some(q) = quantities.iter().find(|q| table.column(q).is_some()) else {
-                return Ok(out);
-            };
-            let (ny, nx) = (grid.axes[0].count, grid.axes[1].count);
-            let x: Vec<f64> = (0..nx).map(|i| grid.axes[1].value(i)).collect();
-            let y: Vec<f64> = (0..ny).map(|i| grid.axes[0].value(i)).collect();
-            let v = column(table, q).unwrap_or_default();
-            let (f, p) = prefix_for(max_abs(&v));
-            let values = ndarray::Array2::from_shape_fn((ny, nx), |(r, c)| v[r * nx + c] * f);
-            let signed = v.iter().any(|x| *x < 0.0) && v.iter().any(|x| *x > 0.0);
-            let svg = heat_map_svg(
-                &format!("{q} over the grid"),
-                &names[1],
-                &names[0],
-                &x,
-                &y,
-                &values,
-                &format!("{q} ({p}{})", unit_of(q)),
-                signed,
-            )?;
-            out.push((format!("{prefix}_map.svg"), svg));
-        }
-        _ => {}
+    }
+    for (unit, group) in by_unit {
+        let all: Vec<f64> = group.iter().flat_map(|(_, y)| y.iter().copied()).collect();
+        let (f, p) = prefix_for(max_abs(&all));
+        let ys: Vec<Vec<f64>> = group
+            .iter()
+            .map(|(_, y)| y.iter().map(|v| v * f).collect())
+            .collect();
+        let series: Vec<Series<'_>> = group
+            .iter()
+            .zip(&ys)
+            .map(|((label, _), y)| Series { label, x: &x, y })
+            .collect();
+        let stem = if unit.is_empty() {
+            "value".to_string()
+        } else {
+            unit.replace('/', "_per_").replace('²', "2")
+        };
+        let what = match unit {
+            "A" => "Currents",
+            "W" => "Heat currents and powers",
+            _ => "Results",
+        };
+        let y_label = if group.len() == 1 {
+            format!("{} ({p}{unit})", group[0].0)
+        } else {
+            format!("{p}{unit}")
+        };
+        let svg = line_chart_svg(
+            &format!("{what} against {axis}"),
+            axis,
+            &y_label,
+            &series,
+            &[],
+        )?;
+        out.push((format!("{prefix}_{stem}.svg"), svg));
     }
     Ok(out)
+}
+
+/// The heat map of the first of `quantities` that the table has, over a
+/// two-axis grid (first axis up, second across); None when it has none.
+fn map_figure(
+    grid: &Grid,
+    table: &SweepTable,
+    quantities: &[&str],
+    prefix: &str,
+    names: &[String],
+) -> Result<Option<(String, String)>, OutputError> {
+    let Some(q) = quantities.iter().find(|q| table.column(q).is_some()) else {
+        return Ok(None);
+    };
+    let (ny, nx) = (grid.axes[0].count, grid.axes[1].count);
+    let x: Vec<f64> = (0..nx).map(|i| grid.axes[1].value(i)).collect();
+    let y: Vec<f64> = (0..ny).map(|i| grid.axes[0].value(i)).collect();
+    let v = column(table, q).unwrap_or_default();
+    let (f, p) = prefix_for(max_abs(&v));
+    let values = ndarray::Array2::from_shape_fn((ny, nx), |(r, c)| v[r * nx + c] * f);
+    let signed = v.iter().any(|x| *x < 0.0) && v.iter().any(|x| *x > 0.0);
+    let svg = heat_map_svg(
+        &format!("{q} over the grid"),
+        &names[1],
+        &names[0],
+        &x,
+        &y,
+        &values,
+        &format!("{q} ({p}{})", unit_of(q)),
+        signed,
+    )?;
+    Ok(Some((format!("{prefix}_map.svg"), svg)))
 }
 
 /// `ranking.svg`: the best points of a screening as bars, best on top.

@@ -838,23 +838,9 @@ pub fn bar_chart_svg(
     values: &[f64],
     value_label: &str,
 ) -> Result<String, OutputError> {
-    if labels.len() != values.len() {
-        return Err(plot_error(
-            title,
-            format!("{} labels but {} values", labels.len(), values.len()),
-        ));
-    }
-    if labels.is_empty() {
-        return Err(plot_error(title, "no bars to draw"));
-    }
+    check_bars(title, labels, values)?;
     let n = labels.len();
-    let label_w = labels
-        .iter()
-        .map(|l| text_width(l, TICK_SIZE))
-        .max()
-        .unwrap_or(0)
-        .clamp(60, 360) as u32
-        + 16;
+    let label_w = bar_label_width(labels);
     let (lo, hi) = bar_value_range(values);
     let width = 900u32;
     let height = 110 + 30 * n as u32;
@@ -920,6 +906,32 @@ pub fn bar_chart_svg(
         )))?;
         Ok(())
     })
+}
+
+/// One value per label and at least one bar.
+fn check_bars(title: &str, labels: &[String], values: &[f64]) -> Result<(), OutputError> {
+    if labels.len() != values.len() {
+        return Err(plot_error(
+            title,
+            format!("{} labels but {} values", labels.len(), values.len()),
+        ));
+    }
+    if labels.is_empty() {
+        return Err(plot_error(title, "no bars to draw"));
+    }
+    Ok(())
+}
+
+/// Room for the bar labels left of the chart (pixels): the widest label,
+/// between 60 and 360, plus a gap.
+fn bar_label_width(labels: &[String]) -> u32 {
+    labels
+        .iter()
+        .map(|l| text_width(l, TICK_SIZE))
+        .max()
+        .unwrap_or(0)
+        .clamp(60, 360) as u32
+        + 16
 }
 
 /// Value axis of a bar chart: the values and zero, with 18 % of room
