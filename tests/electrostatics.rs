@@ -207,6 +207,21 @@ fn doped_wire_obeys_gauss_law_and_carries_no_equilibrium_current() {
     }
 }
 
+/// A coherent device has no Born loop to loosen while the potential
+/// settles: one pass at each potential is its exact answer. Every outer
+/// iteration then reports what ran, a converged transport solve, and the
+/// record of a loop that took several iterations says so for each.
+#[test]
+fn coherent_outer_iterations_report_their_transport_converged() {
+    let (p, es) = doped_wire((0.15, 0.05), false);
+    let sc =
+        electrostatics::solve(&p, &es, &ScbaParams::default(), None, None, &mut Silent).unwrap();
+    let h = &sc.report.history;
+    assert!(sc.report.converged, "{h:?}");
+    assert!(h.len() >= 3, "a loop of several iterations: {h:?}");
+    assert!(h.iter().all(|r| r.born_converged), "{h:?}");
+}
+
 /// Under bias (0.1 V) with an inelastic phonon the self-consistent point
 /// keeps the conservation ledger: charge and energy balance to 1e-8
 /// relative (the Born tolerance 1e-10 here; the ledger holds only at the

@@ -139,17 +139,6 @@ fn image(sol: &Solution, hilbert: Option<&HilbertTransform>) -> ScatteringSelfEn
     out
 }
 
-/// Largest change of a terminal current since the last step, relative to
-/// tol·|I| + floor (infinite at the first step), as the Born loop tests it.
-fn current_change(params: &ScbaParams, now: (f64, f64), before: Option<(f64, f64)>) -> f64 {
-    let Some(b) = before else {
-        return f64::INFINITY;
-    };
-    let rel =
-        |n: f64, b: f64| (n - b).abs() / (params.tolerance * n.abs() + params.current_floor_a);
-    rel(now.0, b.0).max(rel(now.1, b.1))
-}
-
 /// Weight of the potential part against Σ0 (see the module text): an
 /// error δU counts as POTENTIAL_WEIGHT·δU/k_B T. 1 is the plain estimate;
 /// 10 took the fewest steps on the 400-cell bench device (of 0.1, 1, 10).
@@ -170,7 +159,9 @@ fn born_record(
     };
     let currents = (record.current_left_a, record.current_right_a);
     record.iteration = step;
-    record.current_change = current_change(params, currents, *previous);
+    // The same test as the Born loop's, floor tied to the lead flows.
+    let floor = scba::current_floor(params, &sol.problem, &sol.pass.flows);
+    record.current_change = scba::current_change(params, currents, *previous, floor);
     *previous = Some(currents);
     let ok = record.residual <= params.tolerance && record.current_change <= 1.0;
     Ok((record, ok))

@@ -91,8 +91,13 @@ pub enum EnergyOrder {
 pub struct ScbaParams {
     /// Relative tolerance on Σ^in_0 and Σ^out_0 and on the terminal currents.
     pub tolerance: f64,
-    /// Absolute current floor (A) added to tolerance·|I_α|: equilibrium
-    /// currents are zero, so a purely relative test never ends.
+    /// Least absolute current (A) added to tolerance·|I_α| in the current
+    /// test: equilibrium currents are zero, so a purely relative test never
+    /// ends. The Born loop adds the larger of this and the rounding level
+    /// of the current (the number of energies times the machine epsilon
+    /// times the larger one-way flow of the two leads), so that a current
+    /// that is rounding noise of the flows it is the difference of does not
+    /// hold the loop once Σ0 has converged.
     pub current_floor_a: f64,
     /// Iteration limit; reaching it is a flagged, non-converged result.
     pub max_iterations: usize,
