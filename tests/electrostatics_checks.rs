@@ -97,10 +97,6 @@ fn junction_step_is_the_difference_of_the_neutral_levels() {
         spread_left < 1e-6 && spread_right < 1e-6,
         "{spread_left} {spread_right}"
     );
-    eprintln!(
-        "outer {} born passes {}",
-        sc.report.outer_iterations, sc.report.born_passes
-    );
     for i in (0..deep).chain(cells - deep..cells) {
         let excess = sc.electrons[i] - d[i];
         assert!(excess.abs() < 1e-6 * d[i], "cell {i}: {excess} electrons");
@@ -108,6 +104,10 @@ fn junction_step_is_the_difference_of_the_neutral_levels() {
     // µ = 0 on both sides, so µ − Ec = −U deep inside each.
     let step = u_right - u_left;
     let expected = ec_right - ec_left;
+    eprintln!(
+        "outer {}, step {step} eV, neutral levels {expected} eV",
+        sc.report.outer_iterations
+    );
     assert!(
         (step - expected).abs() < 1e-6,
         "step {step} eV, difference of the neutral levels {expected} eV"
