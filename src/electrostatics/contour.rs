@@ -665,16 +665,16 @@ mod tests {
     /// (g_s/π) ∫_0^π f(E(θ)) dθ with E(θ) = edge + 2t(1 − cos θ), by
     /// adaptive Simpson to `tol`.
     fn band_integral(edge: f64, t: f64, mu: f64, kt: f64) -> f64 {
+        /// Simpson on [a, b] (values fa, fb, fm at the ends and the
+        /// middle, `whole` the rule on all of it), halved until the
+        /// halves agree with the whole to `tol` or `depth` runs out.
         fn simpson(
             f: &dyn Fn(f64) -> f64,
-            a: f64,
-            b: f64,
-            fa: f64,
+            (a, fa): (f64, f64),
+            (b, fb): (f64, f64),
             fm: f64,
-            fb: f64,
             whole: f64,
-            tol: f64,
-            depth: u32,
+            (tol, depth): (f64, u32),
         ) -> f64 {
             let m = 0.5 * (a + b);
             let (lm, rm) = (f(0.5 * (a + m)), f(0.5 * (m + b)));
@@ -683,14 +683,15 @@ mod tests {
             if depth == 0 || (left + right - whole).abs() < 15.0 * tol {
                 return left + right + (left + right - whole) / 15.0;
             }
-            simpson(f, a, m, fa, lm, fm, left, 0.5 * tol, depth - 1)
-                + simpson(f, m, b, fm, rm, fb, right, 0.5 * tol, depth - 1)
+            let next = (0.5 * tol, depth - 1);
+            simpson(f, (a, fa), (m, fm), lm, left, next)
+                + simpson(f, (m, fm), (b, fb), rm, right, next)
         }
         let f = |th: f64| exact_fermi((edge + 2.0 * t * (1.0 - th.cos()) - mu) / kt);
         let pi = std::f64::consts::PI;
         let (fa, fm, fb) = (f(0.0), f(0.5 * pi), f(pi));
         let whole = pi / 6.0 * (fa + 4.0 * fm + fb);
-        2.0 / pi * simpson(&f, 0.0, pi, fa, fm, fb, whole, 1e-16, 40)
+        2.0 / pi * simpson(&f, (0.0, fa), (pi, fb), fm, whole, (1e-16, 40))
     }
 
     /// n_eq of a flat coherent chain (leads continuing it) on the contour
