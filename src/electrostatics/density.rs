@@ -60,7 +60,7 @@ impl CellDensity {
     /// For a coherent device whose states all lie on the energy grid the
     /// electron number is the contour count of [`super::contour`]: the
     /// equilibrium part n_eq,i on the complex plane plus the rest,
-    /// (g_s/2π) Σ_k q_ik Σ_o [G^n_oo − A_oo f_ref](E_k), on the grid (zero
+    /// (g_s/2π) Σ_k q_ik Σ_o (G^n_oo − A_oo f_ref)(E_k), on the grid (zero
     /// at equilibrium). Otherwise it is the grid count of G^n. The
     /// quasi-Fermi level is fitted to the grid count either way, and the
     /// predictor is offset by the difference so that n_i(0) is the
