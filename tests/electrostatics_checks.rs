@@ -1,23 +1,17 @@
 //! Self-consistent electrostatics against two closed forms: the built-in
 //! potential of a junction and the Debye screening length.
 //!
-//! Both checks fail today and are ignored (run them with `cargo test
-//! --release --test electrostatics_checks -- --ignored`). In a long
-//! coherent wire, electrons whose energy lies between two band edges of
-//! the profile (the built-in step of a junction, or the step a fixed end
-//! puts on the band) are reflected, and the local density of states away
-//! from the step carries standing waves cos(2k(E)x + φ). Integrated over
-//! energy they decay with the distance x, but on a uniform grid of step
-//! ΔE they do not once 2x·Δk exceeds π between neighbouring nodes, which
-//! near a band bottom (Δk ≈ √(2mΔE)/ħ) happens within x ≈ 15–30 nm for
-//! ΔE = 0.04–2 meV. The band-edge-aware count samples the standing-wave
-//! factor at the first node above each cell's edge and holds it down to
-//! the edge, so a share ≈ 1.1 √(ΔE/k_BT) of the electrons of every far
-//! cell (a few per cent) carries an uncontrolled factor between 0 and 2:
-//! far more than the 1e-6 eV of the junction check or the e^(−6) tail
-//! the Debye fit reads. The outer loop then does not converge (80
-//! iterations, potential changes of 1–30 meV), or converges to a profile
-//! that is neither flat nor neutral far from the junction.
+//! Both devices are long and coherent. Electrons whose energy lies
+//! between two band edges of the profile are reflected, and the local
+//! density of states away from the step carries standing waves
+//! cos(2k(E)x + φ) that a uniform energy grid aliases near a band bottom
+//! (2x·Δk > π between neighbouring grid energies within 15–30 nm for
+//! steps of 0.04–2 meV). For a coherent device the engine therefore counts
+//! the equilibrium part of the electrons on the complex energy plane
+//! (`electrostatics::contour`), where the Green's function is smooth, and
+//! only the non-equilibrium rest (zero here) on the grid: the count of a
+//! cell is then that of the exact density of states, and the references
+//! below are the exact density of states of the infinite chain.
 
 use qheat::electrostatics::{self, Boundary, Coupling, Electrostatics, VACUUM_PERMITTIVITY};
 use qheat::scba::{ScbaParams, Silent};
@@ -25,7 +19,7 @@ use qheat::units::ELEMENTARY_CHARGE;
 
 #[path = "support/chain_density.rs"]
 mod chain_density;
-use chain_density::{T, chain, chain_electrons};
+use chain_density::{T, chain, exact_neutral_edge};
 
 fn settings(permittivity: f64, area: f64, donors: Vec<f64>) -> Electrostatics {
     let cells = donors.len();
@@ -45,23 +39,6 @@ fn settings(permittivity: f64, area: f64, donors: Vec<f64>) -> Electrostatics {
     }
 }
 
-/// The band edge at which [`chain_electrons`] equals `electrons`, by
-/// bisection (the count falls monotonically with the edge).
-fn grid_neutral_edge(electrons: f64, t: f64, e: &[f64], kt: f64) -> f64 {
-    let (mut lo, mut hi) = (-0.5, 0.5);
-    assert!(chain_electrons(lo, t, e, kt) > electrons);
-    assert!(chain_electrons(hi, t, e, kt) < electrons);
-    while hi - lo > 1e-13 {
-        let mid = 0.5 * (lo + hi);
-        if chain_electrons(mid, t, e, kt) > electrons {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-    }
-    0.5 * (lo + hi)
-}
-
 /// The middle and the spread (largest minus smallest) of the potential
 /// energy `u` over the cells `range`.
 fn bulk(u: &[f64], range: std::ops::Range<usize>) -> (f64, f64) {
@@ -73,34 +50,32 @@ fn bulk(u: &[f64], range: std::ops::Range<usize>) -> (f64, f64) {
     (0.5 * (lo + hi), hi - lo)
 }
 
-/// Junction at equilibrium: a 120 nm coherent wire (mass 0.25, cells of
+/// Junction at equilibrium: a 240 nm coherent wire (mass 0.25, cells of
 /// 0.5 nm, 25 nm², ε_r = 12) whose halves carry 1e18 and 4e18 donors per
 /// cm³, leads continuing both ends at Fermi level 0. Deep inside each half
-/// (the 15 nm next to each end, more than 40 nm from the junction, over
-/// ten screening lengths of either side) the band must be flat and the
+/// (the 15 nm next to each end, more than 100 nm from the junction, over
+/// 25 screening lengths of either side: at 120 cells the excess charge of
+/// the 1e18 side's end cells was measured at 1e-6 of the doping, the
+/// tail of the screening cloud, e^(−x/L_D) with L_D = 4.1 nm) the band must be flat and the
 /// charge neutral, and the step of the band across the junction must be
 /// the difference of the neutral-bulk µ − Ec of the two sides (common
 /// practice: the built-in potential of a junction, e.g. S. M. Sze,
 /// Physics of Semiconductor Devices, 1981, ch. 2).
 ///
-/// Which density of states: the engine counts the electrons of a cell by
-/// integrating the device's spectral function on the energy grid with the
-/// band-edge-aware weights; deep in a long flat coherent region that
-/// spectral function is the chain's, so the neutral edge of each side is
-/// computed from the analytic chain density on the same grid with the
-/// same weights ([`chain_electrons`]). The band integral over wave number
-/// (`uniform_band_electrons`) differs from it by the quadrature error of
-/// the grid (0.2–0.7 % of the electrons at 2 meV, ≈ 0.1 meV in the edge),
-/// which is no error of the self-consistency.
+/// Which density of states: deep in a long flat coherent region the
+/// spectral function of a cell is that of the infinite chain, and the
+/// engine's contour count integrates it exactly, so the neutral edge of
+/// each side is that of the chain's exact density of states
+/// ([`exact_neutral_edge`]).
 ///
 /// Tolerance 1e-6 eV: the outer tolerance is 1e-10 eV, the screening
-/// tails reach the bulk cells as e^(−10) of the 36 meV step (< 2e-6 of
-/// it, ≈ 6e-8 eV), and the references are bisected to 1e-13 eV.
+/// tails reach the bulk cells as e^(−25) of the 43 meV step, the contour count and the references are exact to
+/// ~1e-12 relative in the electrons (≈ 3e-14 eV in the edge), and the
+/// references are bisected to 1e-13 eV.
 /// Neutrality: |n_i − D_i| below 1e-6 of the cell's doping.
 #[test]
-#[ignore = "fails: coherent standing waves near the band bottom are aliased by the energy grid (see the file's text)"]
 fn junction_step_is_the_difference_of_the_neutral_levels() {
-    let (cells, a, mass) = (240, 0.5, 0.25);
+    let (cells, a, mass) = (480, 0.5, 0.25);
     let p = chain(cells, a, mass, (-0.1507, 0.45, 0.002));
     let t = qheat::units::hopping_ev(mass, a);
     let kt = qheat::units::thermal_energy_ev(T);
@@ -112,10 +87,9 @@ fn junction_step_is_the_difference_of_the_neutral_levels() {
     let sc =
         electrostatics::solve(&p, &es, &ScbaParams::default(), None, None, &mut Silent).unwrap();
     assert!(sc.report.converged, "{:?}", sc.report.history);
-    let e = p.grid.energies();
     let d = es.net_doping_per_cell(a);
-    let ec_left = grid_neutral_edge(d[0], t, &e, kt);
-    let ec_right = grid_neutral_edge(d[cells - 1], t, &e, kt);
+    let ec_left = exact_neutral_edge(d[0], t, kt);
+    let ec_right = exact_neutral_edge(d[cells - 1], t, kt);
     let deep = 30;
     let (u_left, spread_left) = bulk(&sc.potential_ev, 0..deep);
     let (u_right, spread_right) = bulk(&sc.potential_ev, cells - deep..cells);
@@ -130,6 +104,10 @@ fn junction_step_is_the_difference_of_the_neutral_levels() {
     // µ = 0 on both sides, so µ − Ec = −U deep inside each.
     let step = u_right - u_left;
     let expected = ec_right - ec_left;
+    eprintln!(
+        "outer {}, step {step} eV, neutral levels {expected} eV",
+        sc.report.outer_iterations
+    );
     assert!(
         (step - expected).abs() < 1e-6,
         "step {step} eV, difference of the neutral levels {expected} eV"
@@ -156,9 +134,9 @@ fn junction_step_is_the_difference_of_the_neutral_levels() {
 /// non-locality of the quantum density over the thermal wavelength
 /// (4.3 nm), ħ²/(24 m k_BT L_D²) ≈ 0.1 % (from memory: the leading
 /// gradient correction of a Boltzmann gas); the energy grid (1 meV) in
-/// the count, ≈ 0.1 %.
+/// the count (only the predictor's Jacobian uses the grid; the count is
+/// the contour's), none.
 #[test]
-#[ignore = "fails: coherent standing waves near the band bottom are aliased by the energy grid (see the file's text)"]
 fn weak_perturbation_decays_over_the_debye_length() {
     let (cells, a, mass) = (240, 0.5, 1.0);
     let p = chain(cells, a, mass, (-0.0207, 0.6, 0.001));
@@ -196,6 +174,10 @@ fn weak_perturbation_decays_over_the_debye_length() {
         (s.0 + dx * (p.1.ln() - mean_y), s.1 + dx * dx)
     });
     let fitted = -sxx / sxy;
+    eprintln!(
+        "decay length {fitted} nm, L_D {ld} nm, outer {} and {}",
+        flat.report.outer_iterations, sc.report.outer_iterations
+    );
     assert!(
         (fitted / ld - 1.0).abs() < 0.02,
         "decay length {fitted} nm against L_D = {ld} nm"

@@ -40,12 +40,15 @@ pub struct CellDensity {
     energies: Vec<f64>,
     /// w_ik, cell-major (cells × energies).
     weight: Vec<f64>,
-    /// Electrons per cell from G^n of the pass.
+    /// Electrons per cell of the pass: the contour count for a coherent
+    /// device whose states lie on the grid, the grid count of G^n
+    /// otherwise (see [`CellDensity::new`]).
     pub electrons: Vec<f64>,
     /// Quasi-Fermi level µ_i of each cell (eV).
     pub fermi_level_ev: Vec<f64>,
-    /// Electrons the fitted level gives at zero shift (the fit's rounding
-    /// away from `electrons`).
+    /// Electrons the fitted level gives at zero shift: the grid count of
+    /// the cell up to the fit's rounding (the predictor adds `electrons`
+    /// minus this).
     fitted: Vec<f64>,
     kt: f64,
 }
@@ -53,37 +56,38 @@ pub struct CellDensity {
 impl CellDensity {
     /// Read the electron numbers and spectral weights of a solved point
     /// and fit each cell's quasi-Fermi level at temperature `temperature_k`.
+    ///
+    /// For a coherent device whose states all lie on the energy grid the
+    /// electron number is the contour count of [`super::contour`]: the
+    /// equilibrium part n_eq,i on the complex plane plus the rest,
+    /// (g_s/2π) Σ_k q_ik Σ_o (G^n_oo − A_oo f_ref)(E_k), on the grid (zero
+    /// at equilibrium). Otherwise it is the grid count of G^n. The
+    /// quasi-Fermi level is fitted to the grid count either way, and the
+    /// predictor is offset by the difference so that n_i(0) is the
+    /// electron number.
     pub fn new(sol: &Solution, temperature_k: f64) -> Self {
         let p = &sol.problem;
-        let b = p.device.orbitals;
         let n = p.device.cells();
-        let ns = n * b;
-        let ne = p.grid.count;
-        let scale = p.spin_degeneracy / (2.0 * std::f64::consts::PI);
-        let g = &sol.pass.green;
-        let energies: Vec<f64> = (0..ne).map(|k| p.grid.energy(k)).collect();
+        let energies: Vec<f64> = (0..p.grid.count).map(|k| p.grid.energy(k)).collect();
         let kt = crate::units::thermal_energy_ev(temperature_k);
-        let rows: Vec<(Vec<f64>, f64)> = (0..n)
+        let equilibrium = super::contour::equilibrium_count(p);
+        let reference: Option<Vec<f64>> = equilibrium
+            .as_ref()
+            .map(|eq| energies.iter().map(|&e| eq.occupation(e)).collect());
+        let rows: Vec<CellRow> = (0..n)
             .into_par_iter()
-            .map(|c| {
-                let q = edge_weights(&energies, &cell_band_edges(&p.device, c));
-                let mut w = vec![0.0; ne];
-                let mut filled = 0.0;
-                for (k, wk) in w.iter_mut().enumerate() {
-                    for o in 0..b {
-                        let idx = k * ns + c * b + o;
-                        *wk += scale * q[k] * g.spectral(idx);
-                        filled += scale * q[k] * g.filled[idx];
-                    }
-                }
-                (w, filled)
-            })
+            .map(|c| cell_row(sol, &energies, c, reference.as_deref()))
             .collect();
-        let mut weight = Vec::with_capacity(n * ne);
+        let mut weight = Vec::with_capacity(n * energies.len());
         let mut electrons = Vec::with_capacity(n);
-        for (w, e) in rows {
-            weight.extend(w);
-            electrons.push(e);
+        let mut grid_count = Vec::with_capacity(n);
+        for (c, row) in rows.into_iter().enumerate() {
+            weight.extend(row.weight);
+            grid_count.push(row.filled);
+            electrons.push(match &equilibrium {
+                Some(eq) => eq.electrons[c] + row.rest,
+                None => row.filled,
+            });
         }
         let mut out = Self {
             energies,
@@ -93,7 +97,10 @@ impl CellDensity {
             fitted: vec![0.0; n],
             kt,
         };
-        let fits: Vec<(f64, f64)> = (0..n).into_par_iter().map(|c| out.fit(c)).collect();
+        let fits: Vec<(f64, f64)> = (0..n)
+            .into_par_iter()
+            .map(|c| out.fit(c, grid_count[c]))
+            .collect();
         (out.fermi_level_ev, out.fitted) = fits.into_iter().unzip();
         out
     }
@@ -123,16 +130,15 @@ impl CellDensity {
         (n, dn)
     }
 
-    /// The quasi-Fermi level that reproduces the electron number of the
-    /// cell (clamped to 60 k_B T beyond the grid when the number lies
+    /// The quasi-Fermi level that reproduces `target` electrons in the
+    /// cell with the grid weights (clamped to 60 k_B T beyond the grid when the number lies
     /// outside what the grid can hold), and the count it gives.
     ///
     /// The count grows monotonically with µ, so the root is bracketed by
     /// those ends and [`crate::numerics::bracketed_newton`] finds it (the
     /// count's slope comes with it): about ten evaluations instead of the
     /// fifty of bisection.
-    fn fit(&self, cell: usize) -> (f64, f64) {
-        let target = self.electrons[cell];
+    fn fit(&self, cell: usize, target: f64) -> (f64, f64) {
         let first = self.energies.first().copied().unwrap_or(0.0);
         let last = self.energies.last().copied().unwrap_or(0.0);
         let (lo, hi) = (first - 60.0 * self.kt, last + 60.0 * self.kt);
@@ -157,10 +163,46 @@ impl CellDensity {
     /// by `shift` (eV), and the derivative (electrons per eV, ≤ 0).
     pub fn predict(&self, cell: usize, shift: f64) -> (f64, f64) {
         let (n, dn) = self.count(cell, self.fermi_level_ev[cell], shift);
-        // At zero shift the fitted level reproduces the pass to the
-        // fit's rounding; use the pass's own number there so that a
-        // converged potential sees exactly the transport density.
+        // At zero shift the fitted level reproduces the grid count to the
+        // fit's rounding; offset by the difference to the electron number
+        // of the pass (the contour count where it applies) so that a
+        // converged potential sees exactly that number.
         (n + (self.electrons[cell] - self.fitted[cell]), dn)
+    }
+}
+
+/// One cell's share of a pass: its predictor weights w_ik, its grid
+/// count of G^n and, with a reference occupation f_ref on the grid, the
+/// grid integral of G^n − A f_ref.
+struct CellRow {
+    weight: Vec<f64>,
+    filled: f64,
+    rest: f64,
+}
+
+fn cell_row(sol: &Solution, energies: &[f64], c: usize, reference: Option<&[f64]>) -> CellRow {
+    let p = &sol.problem;
+    let b = p.device.orbitals;
+    let ns = p.device.cells() * b;
+    let scale = p.spin_degeneracy / (2.0 * std::f64::consts::PI);
+    let g = &sol.pass.green;
+    let q = edge_weights(energies, &cell_band_edges(&p.device, c));
+    let mut weight = vec![0.0; energies.len()];
+    let (mut filled, mut rest) = (0.0, 0.0);
+    for (k, wk) in weight.iter_mut().enumerate() {
+        let f = reference.map_or(0.0, |r| r[k]);
+        for o in 0..b {
+            let idx = k * ns + c * b + o;
+            let a = g.spectral(idx);
+            *wk += scale * q[k] * a;
+            filled += scale * q[k] * g.filled[idx];
+            rest += scale * q[k] * (g.filled[idx] - a * f);
+        }
+    }
+    CellRow {
+        weight,
+        filled,
+        rest,
     }
 }
 

@@ -57,8 +57,12 @@
 //! [`edge_weights`]): summed point by point on the uniform grid, the
 //! 1/√(E − Ec) density of states of a flat region makes the electron
 //! number a jagged, non-monotone function of the potential, and the loop
-//! crawls; with the weights it is continuous and monotone.
+//! crawls; with the weights it is continuous and monotone. For a coherent
+//! device the equilibrium part of the count is integrated on the complex
+//! energy plane instead ([`contour`]): there the standing waves of a long
+//! coherent region, which the real grid aliases, are smooth.
 
+pub mod contour;
 mod density;
 mod joint;
 mod mixing;
@@ -323,7 +327,8 @@ pub struct SelfConsistent {
     pub potential_ev: Vec<f64>,
     /// Electrons of each cell as the Poisson equation counts them: G^n of
     /// the solution integrated with the band-edge-aware weights of
-    /// [`edge_weights`].
+    /// [`edge_weights`], its equilibrium part on the complex contour for a
+    /// coherent device ([`contour`]).
     pub electrons: Vec<f64>,
     /// Convergence record.
     pub report: ElectrostaticsReport,
