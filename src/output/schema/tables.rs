@@ -129,10 +129,13 @@ fn electrostatics_columns<'a>() -> Vec<Column<SolvePoint<'a>>> {
             unit: "1",
             meaning: "electrons of the cell (spin included) as the Poisson equation counts \
                       them: G^n integrated over energy with weights that follow the \
-                      (E − Ec)^(−1/2) band edge of the cell between grid points. Its sum \
-                      neutralises the doping (Gauss's law), where G^n summed point by point \
-                      on the grid is off by the sampling error of the band edge (about 1 %); \
-                      electron_density_per_nm is this count divided by the spacing",
+                      (E − Ec)^(−1/2) band edge of the cell between grid points; in a device \
+                      without scattering whose spectrum lies inside the grid, the part filled \
+                      at the lower lead's Fermi level is counted exactly on the complex \
+                      energy plane instead and only the bias window stays on the grid. Its \
+                      sum neutralises the doping (Gauss's law), where G^n summed point by \
+                      point on the grid is off by the sampling error of the band edge (about \
+                      1 %); electron_density_per_nm is this count divided by the spacing",
             only_when: Some((WHEN, present)),
             value: |p, i| {
                 Cell::Num(
@@ -228,7 +231,7 @@ fn electron_density_column<'a>() -> Column<SolvePoint<'a>> {
         "1/nm",
         "electrons per nm, spin included: G^n summed over the energy grid; with \
          [electrostatics] the count the Poisson equation sees, electrons_poisson / spacing \
-         (band-edge-aware energy weights), so both columns agree",
+         (band-edge-aware energy weights, or the complex-plane count), so both columns agree",
         |p, i| {
             Cell::Num(match p.electrostatics {
                 Some(e) => {
