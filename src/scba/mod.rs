@@ -1271,11 +1271,16 @@ impl<'a> BornLoop<'a> {
     }
 
     /// A fresh mixer for this loop (only the red rows when the black ones
-    /// are rebuilt from them before use, see [`red_rows_only`]).
-    fn mixer(&self) -> Mixer {
+    /// are rebuilt from them before use, see [`red_rows_only`]; only this
+    /// process's rows when they are shared).
+    fn mixer(&self, share: Option<&Share<'_>>) -> Mixer {
         let (problem, params) = (self.problem, self.params);
         let red_only = red_rows_only(problem, params.energy_order);
-        Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only)
+        let mut m = Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only);
+        if let Some(s) = share {
+            m.share_rows(s.own().to_vec());
+        }
+        m
     }
 
     /// How the rows are shared after each pass under the energy split
@@ -1306,14 +1311,11 @@ impl<'a> BornLoop<'a> {
         observer: &mut dyn Observer,
     ) -> Result<Solution, SolveError> {
         let (problem, params) = (self.problem, self.params);
-        let mut mixer = self.mixer();
         // The energy split in force, if any (see `split`), and whether the
         // rows are shared after each pass as well.
         let split = split::current();
         let share = self.share(split.as_deref());
-        if let Some(s) = &share {
-            mixer.share_rows(s.own().to_vec());
-        }
+        let mut mixer = self.mixer(share.as_ref());
         let mut previous: Option<(f64, f64)> = None;
         // The Green's functions of the pass and the image F(Σ0) are rebuilt in
         // place every iteration. `black_ready`: the black rows of `p` hold G
@@ -1334,9 +1336,9 @@ impl<'a> BornLoop<'a> {
             let iteration = self.report.iterations + 1;
             let order = self.colour.filter(|_| black_ready);
             let residual = match &share {
-                Some(s) => sweep_shared(&maps, s, order, &mut x, &mut p, &mut fx, iteration)?,
-                None => sweep(&maps, order, &mut x, &mut p, &mut fx, iteration)?,
-            };
+                Some(s) => sweep_shared(&maps, s, order, &mut x, &mut p, &mut fx, iteration),
+                None => sweep(&maps, order, &mut x, &mut p, &mut fx, iteration),
+            }?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
             ensure_not_diverged(iteration, residual, (il, ir))?;
@@ -1356,10 +1358,7 @@ impl<'a> BornLoop<'a> {
                 "final"
             } else {
                 contacts::float_levels(problem, &p, &mut levels);
-                match &share {
-                    Some(s) => mixer.update_shared(&mut x, &fx, &mut |p, w| s.reduce(p, w))?,
-                    None => mixer.update(&mut x, &fx),
-                }
+                mix(&mut mixer, share.as_ref(), &mut x, &fx)?
             };
             let record = IterationRecord {
                 iteration,
@@ -1388,6 +1387,20 @@ impl<'a> BornLoop<'a> {
                 });
             }
         }
+    }
+}
+
+/// The mixer's step from Σ0 `x` with image `fx`, its sums added over the
+/// processes when the rows are shared.
+fn mix(
+    mixer: &mut Mixer,
+    share: Option<&Share<'_>>,
+    x: &mut ScatteringSelfEnergy,
+    fx: &ScatteringSelfEnergy,
+) -> Result<&'static str, SolveError> {
+    match share {
+        Some(s) => mixer.update_shared(x, fx, &mut |parts, width| s.reduce(parts, width)),
+        None => Ok(mixer.update(x, fx)),
     }
 }
 
