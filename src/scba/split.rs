@@ -7,7 +7,7 @@
 //!
 //! For a model whose Σ0 row at E is built from G at E and E ± ħω only,
 //! each process owns a fixed set of energy rows for the whole loop (see
-//! [`Share`]): it runs the recursion, rebuilds Σ0 and mixes there only.
+//! `Share`): it runs the recursion, rebuilds Σ0 and mixes there only.
 //! After each pass the processes exchange the terminal flows and contact
 //! records of every row and G at the rows near the edges of their blocks
 //! that another process reads (the halo); the change of Σ0 is summed row
