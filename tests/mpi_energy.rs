@@ -1,8 +1,10 @@
 //! The binary under `mpirun` (built with the `mpi` feature): one solve's
 //! energy grid shared over 1, 2 and 4 ranks writes the result folder of
-//! one process byte for byte (summary.json aside from `threads` and
-//! `energy_split_ranks`, which describe the run), in red-black and in
-//! simultaneous order, with a warm start and with a floating probe; a
+//! one process (summary.json aside from `threads` and
+//! `energy_split_ranks`, which describe the run), byte for byte with
+//! linear mixing and to 1e-13 with Anderson mixing (see [`RELATIVE`]), in
+//! red-black and in simultaneous order, with a warm start and with a
+//! floating probe; a
 //! numerical fault on one rank's energies ends every rank with one message
 //! and the failed-solve summary of one process.
 //!
@@ -152,8 +154,23 @@ fn folder_files(dir: &Path, ranks: usize) -> BTreeMap<String, Vec<u8>> {
     files
 }
 
-/// The folders hold the same files with the same bytes.
-fn assert_same_folder(one: &Path, many: &Path, ranks: usize) {
+/// How far a number of a split run may stray from one process's: 1e-13 of
+/// the largest magnitude among the numbers it is reported with (its CSV
+/// column, its array, its JSON key across records, its figure). The split
+/// adds the mixer's inner products per process and then across processes,
+/// another order than one process's, so Σ0 moves by rounding (~1e-16
+/// relative) at each Anderson step; the loop contracts such changes, and
+/// 1e-13 leaves a factor of a thousand for their growth over the
+/// iterations. Scaled by the largest of its kind, not by itself, because
+/// some outputs are differences of nearly equal numbers (the residual and
+/// the change of the currents of late iterations, the flow into the bath),
+/// whose own relative rounding is as large as that cancellation.
+const RELATIVE: f64 = 1e-13;
+
+/// The folders hold the same files; those whose bytes differ hold the same
+/// text or arrays with numbers within [`RELATIVE`]. With `bitwise`, every
+/// byte must be the same.
+fn assert_same_folder(one: &Path, many: &Path, ranks: usize, bitwise: bool) {
     let (a, b) = (folder_files(one, 1), folder_files(many, ranks));
     assert_eq!(
         a.keys().collect::<Vec<_>>(),
@@ -163,13 +180,171 @@ fn assert_same_folder(one: &Path, many: &Path, ranks: usize) {
         many.display()
     );
     for (name, bytes) in &a {
-        assert!(
-            bytes == &b[name],
-            "{name} differs between {} and {} ({ranks} ranks)",
-            one.display(),
-            many.display()
+        if bytes == &b[name] {
+            continue;
+        }
+        let what = format!("{name} of {} vs {} ranks", one.display(), ranks);
+        assert!(!bitwise, "{what}: not the same bytes");
+        let (x, y) = (numbers_of(name, bytes), numbers_of(name, &b[name]));
+        assert_eq!(
+            x.text, y.text,
+            "{what}: the text around the numbers differs"
         );
+        assert_eq!(
+            x.groups.len(),
+            y.groups.len(),
+            "{what}: numbers differ in count"
+        );
+        for (g, (u, v)) in x.groups.iter().zip(&y.groups).enumerate() {
+            assert_eq!(u.len(), v.len(), "{what}: group {g}");
+            let scale = u
+                .iter()
+                .chain(v)
+                .filter(|t| t.is_finite())
+                .fold(0.0, |m: f64, t| m.max(t.abs()));
+            for (i, (p, q)) in u.iter().zip(v).enumerate() {
+                let same = p.to_bits() == q.to_bits() || (p - q).abs() <= RELATIVE * scale;
+                assert!(
+                    same,
+                    "{what}: group {g}, number {i}: {p:e} vs {q:e} (scale {scale:e})"
+                );
+            }
+        }
     }
+}
+
+/// The numbers of a result file in groups compared on one scale, and the
+/// text around them (which must match exactly).
+#[derive(Default)]
+struct Numbers {
+    text: Vec<String>,
+    groups: Vec<Vec<f64>>,
+}
+
+/// Split `bytes` of the file `name` into [`Numbers`]: arrays of .npy and
+/// .npz files (one group each), CSV columns, JSON values by key, and the
+/// numbers of any other text file as one group.
+fn numbers_of(name: &str, bytes: &[u8]) -> Numbers {
+    let mut n = Numbers::default();
+    if name.ends_with(".npy") {
+        n.groups.push(npy_numbers(bytes));
+    } else if name.ends_with(".npz") {
+        let mut z = ndarray_npy::NpzReader::new(std::io::Cursor::new(bytes)).unwrap();
+        for array in z.names().unwrap() {
+            let a: ndarray::ArrayD<f64> = z.by_name(&array).unwrap();
+            n.text.push(array);
+            n.groups.push(a.iter().copied().collect());
+        }
+    } else if name.ends_with(".json") {
+        let v: serde_json::Value = serde_json::from_slice(bytes).unwrap();
+        let mut by_key = BTreeMap::new();
+        json_numbers(&v, String::new(), &mut by_key, &mut n.text);
+        n.groups = by_key.into_values().collect();
+    } else {
+        let text = String::from_utf8_lossy(bytes);
+        let csv = name.ends_with(".csv");
+        let mut columns: BTreeMap<usize, Vec<f64>> = BTreeMap::new();
+        for line in text.lines() {
+            let cells: Vec<&str> = if csv {
+                line.split(',').collect()
+            } else {
+                vec![line]
+            };
+            for (c, cell) in cells.iter().enumerate() {
+                for (i, piece) in split_numbers(cell).into_iter().enumerate() {
+                    match piece {
+                        Ok(v) => columns.entry(if csv { c } else { 0 }).or_default().push(v),
+                        Err(t) => n.text.push(format!("{c}:{i}:{t}")),
+                    }
+                }
+            }
+        }
+        n.groups = columns.into_values().collect();
+    }
+    n
+}
+
+/// The numbers of a .npy file of f64 or complex f64 (as pairs).
+fn npy_numbers(bytes: &[u8]) -> Vec<f64> {
+    use ndarray_npy::ReadNpyExt;
+    if let Ok(a) = ndarray::ArrayD::<f64>::read_npy(bytes) {
+        return a.iter().copied().collect();
+    }
+    let a = ndarray::ArrayD::<num_complex::Complex64>::read_npy(bytes).unwrap();
+    a.iter().flat_map(|z| [z.re, z.im]).collect()
+}
+
+/// The numbers of `v` grouped by their key path (array positions left
+/// out), and its other values and keys, in order.
+fn json_numbers(
+    v: &serde_json::Value,
+    path: String,
+    by_key: &mut BTreeMap<String, Vec<f64>>,
+    text: &mut Vec<String>,
+) {
+    use serde_json::Value;
+    match v {
+        Value::Number(x) => by_key.entry(path).or_default().push(x.as_f64().unwrap()),
+        Value::Array(items) => {
+            for item in items {
+                json_numbers(item, format!("{path}[]"), by_key, text);
+            }
+        }
+        Value::Object(o) => {
+            for (k, item) in o {
+                text.push(k.clone());
+                json_numbers(item, format!("{path}.{k}"), by_key, text);
+            }
+        }
+        other => text.push(format!("{path}={other}")),
+    }
+}
+
+/// `text` cut into numbers (Ok) and the text between them (Err).
+fn split_numbers(text: &str) -> Vec<Result<f64, String>> {
+    let b = text.as_bytes();
+    let mut out = Vec::new();
+    let (mut i, mut plain) = (0, String::new());
+    while i < b.len() {
+        let start = i;
+        let mut j = i;
+        if b[j] == b'-' {
+            j += 1;
+        }
+        let digits = j;
+        while j < b.len() && (b[j].is_ascii_digit() || b[j] == b'.') {
+            j += 1;
+        }
+        let starts_number = j > digits && b[digits..j].iter().any(u8::is_ascii_digit);
+        if !starts_number {
+            let c = text[start..].chars().next().unwrap();
+            plain.push(c);
+            i += c.len_utf8();
+            continue;
+        }
+        if j < b.len() && (b[j] == b'e' || b[j] == b'E') {
+            let mut k = j + 1;
+            if k < b.len() && (b[k] == b'-' || b[k] == b'+') {
+                k += 1;
+            }
+            if k < b.len() && b[k].is_ascii_digit() {
+                while k < b.len() && b[k].is_ascii_digit() {
+                    k += 1;
+                }
+                j = k;
+            }
+        }
+        match text[start..j].parse::<f64>() {
+            Ok(v) => {
+                out.push(Err(std::mem::take(&mut plain)));
+                out.push(Ok(v));
+            }
+            Err(_) => plain.push_str(&text[start..j]),
+        }
+        i = j;
+    }
+    out.push(Err(plain));
+    out
 }
 
 fn summary(dir: &Path) -> serde_json::Value {
@@ -197,13 +372,13 @@ fn solve_everywhere(dir: &Path, case: &Path, extra: &[&str]) -> PathBuf {
         let o = run(&out, k);
         let text = String::from_utf8_lossy(&o.stdout);
         assert_eq!(text.matches("results ").count(), 1, "printed once:\n{text}");
-        assert_same_folder(&one, &out, k);
+        assert_same_folder(&one, &out, k, false);
     }
     one
 }
 
 #[test]
-fn a_phonon_solve_in_red_black_order_splits_to_the_bits_of_one_process() {
+fn a_phonon_solve_in_red_black_order_splits_like_one_process() {
     let tmp = tempfile::tempdir().unwrap();
     let case = write(tmp.path(), "case.toml", PHONON_CASE);
     let one = solve_everywhere(tmp.path(), &case, &[]);
@@ -212,8 +387,57 @@ fn a_phonon_solve_in_red_black_order_splits_to_the_bits_of_one_process() {
     assert!(s["scba"]["iterations"].as_u64().unwrap() > 3);
 }
 
+/// With linear mixing no sum runs across the energy rows but the change of
+/// Σ0, which the split adds row by row in the order of one process: every
+/// byte of the result folder is that of one process.
 #[test]
-fn a_dephasing_solve_in_simultaneous_order_splits_to_the_bits_of_one_process() {
+fn a_linearly_mixed_solve_splits_to_the_bits_of_one_process() {
+    let tmp = tempfile::tempdir().unwrap();
+    let text = PHONON_CASE.replace("[solver]\n", "[solver]\nmixing = \"linear\"\n");
+    assert_ne!(text, PHONON_CASE);
+    let case = write(tmp.path(), "case.toml", &text);
+    let (one, two) = (tmp.path().join("one"), tmp.path().join("two"));
+    let args = |out: &Path| {
+        ["solve", case.to_str().unwrap(), "-o", out.to_str().unwrap()].map(String::from)
+    };
+    let o = alone(1, &args(&one).each_ref().map(String::as_str));
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let o = ranks(2, &args(&two).each_ref().map(String::as_str), &[]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert_same_folder(&one, &two, 2, true);
+    assert!(summary(&one)["scba"]["iterations"].as_u64().unwrap() > 3);
+}
+
+/// On a chain of 4096 sites the Anderson mixer takes its sums over chunks
+/// of one energy row, so each rank's rows are whole chunks of one
+/// process's, and the split adds every chunk's sums in the order of one
+/// process: the result folder is byte for byte that of one process.
+#[test]
+fn anderson_mixing_on_a_long_chain_splits_to_the_bits_of_one_process() {
+    let tmp = tempfile::tempdir().unwrap();
+    let text = PHONON_CASE
+        .replace("length_nm = 3.0", "length_nm = 1024.0")
+        .replace("to_nm = 3.0", "to_nm = 1024.0");
+    let case = write(tmp.path(), "case.toml", &text);
+    let one = tmp.path().join("one");
+    let args = |out: &Path| {
+        ["solve", case.to_str().unwrap(), "-o", out.to_str().unwrap()].map(String::from)
+    };
+    let o = alone(1, &args(&one).each_ref().map(String::as_str));
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    for k in [2, 3] {
+        let out = tmp.path().join(format!("ranks{k}"));
+        let o = ranks(k, &args(&out).each_ref().map(String::as_str), &[]);
+        assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+        assert_same_folder(&one, &out, k, true);
+    }
+    let s = summary(&one);
+    assert_eq!(s["scba"]["energy_order"], "red-black", "{}", s["scba"]);
+    assert!(s["scba"]["iterations"].as_u64().unwrap() > 3);
+}
+
+#[test]
+fn a_dephasing_solve_in_simultaneous_order_splits_like_one_process() {
     let tmp = tempfile::tempdir().unwrap();
     let case = write(tmp.path(), "case.toml", DEPHASING_CASE);
     let one = solve_everywhere(tmp.path(), &case, &[]);
@@ -223,7 +447,7 @@ fn a_dephasing_solve_in_simultaneous_order_splits_to_the_bits_of_one_process() {
 }
 
 #[test]
-fn a_floating_probe_and_a_warm_start_split_to_the_bits_of_one_process() {
+fn a_floating_probe_and_a_warm_start_split_like_one_process() {
     let tmp = tempfile::tempdir().unwrap();
     let probe = write(tmp.path(), "probe.toml", PROBE_CASE);
     let two = |out: &Path, args: &[&str]| {
@@ -241,7 +465,7 @@ fn a_floating_probe_and_a_warm_start_split_to_the_bits_of_one_process() {
     let (p1, p2) = (tmp.path().join("probe1"), tmp.path().join("probe2"));
     lone(&p1, &[probe.to_str().unwrap()]);
     two(&p2, &[probe.to_str().unwrap()]);
-    assert_same_folder(&p1, &p2, 2);
+    assert_same_folder(&p1, &p2, 2, false);
     assert!(summary(&p1)["scba"]["iterations"].as_u64().unwrap() > 1);
     // A warm start from a solve with a weaker phonon (the same grid).
     let start = tmp.path().join("start");
@@ -257,12 +481,12 @@ fn a_floating_probe_and_a_warm_start_split_to_the_bits_of_one_process() {
     let (w1, w2) = (tmp.path().join("warm1"), tmp.path().join("warm2"));
     lone(&w1, &warm);
     two(&w2, &warm);
-    assert_same_folder(&w1, &w2, 2);
+    assert_same_folder(&w1, &w2, 2, false);
     assert_eq!(summary(&w1)["scba"]["warm_start"], true);
 }
 
 #[test]
-fn coefficients_whose_solves_split_write_the_bits_of_one_process() {
+fn coefficients_whose_solves_split_write_what_one_process_writes() {
     let tmp = tempfile::tempdir().unwrap();
     let case = write(tmp.path(), "case.toml", PHONON_CASE);
     let run = |out: &Path, k: usize| {
@@ -290,7 +514,7 @@ fn coefficients_whose_solves_split_write_the_bits_of_one_process() {
     for k in [2, 4] {
         let out = tmp.path().join(format!("ranks{k}"));
         run(&out, k);
-        assert_same_folder(&one, &out, k);
+        assert_same_folder(&one, &out, k, false);
     }
 }
 

@@ -28,6 +28,7 @@ use crate::C64;
 use crate::scattering::ScatteringSelfEnergy;
 use rayon::prelude::*;
 use std::collections::VecDeque;
+use std::convert::Infallible;
 
 /// Mixing state across Born iterations.
 ///
@@ -57,7 +58,32 @@ pub struct Mixer {
     rows: Option<Vec<usize>>,
     /// A band width w: only the red rows (⌊k/w⌋ even) are mixed.
     red_only: Option<usize>,
+    /// The rows this process mixes when the rows are shared between
+    /// processes (see [`Mixer::share_rows`]); None: every row.
+    own: Option<Vec<bool>>,
     state: State,
+}
+
+/// Adds up the sums of each chunk of rows (`width` numbers each, chunks
+/// in row order) across the processes that share the rows (see
+/// [`Mixer::update_shared`]).
+pub type Reduce<'a, E> = &'a mut dyn FnMut(&[Vec<f64>], usize) -> Result<Vec<f64>, E>;
+
+/// The sums of `parts` (`width` numbers each), added in order.
+pub fn add_in_order(parts: &[Vec<f64>], width: usize) -> Vec<f64> {
+    let mut tot = vec![0.0; width];
+    for part in parts {
+        for (t, v) in tot.iter_mut().zip(part) {
+            *t += v;
+        }
+    }
+    tot
+}
+
+/// How many energy rows of `sites` values form one chunk of the mixer's
+/// passes (whose sums are taken per chunk and then added in order).
+pub fn rows_per_chunk(sites: usize) -> usize {
+    (CHUNK_SITES / sites.max(1)).max(1)
 }
 
 /// The Anderson history at its storage precision.
@@ -193,8 +219,19 @@ impl Mixer {
             parts: if real_part { 3 } else { 2 },
             rows: None,
             red_only: red_only.filter(|&w| w > 0),
+            own: None,
             state,
         }
+    }
+
+    /// Mix only the energy rows k with `own[k]` true (of those this mixer
+    /// mixes at all), the share of one of several processes that each mix
+    /// their own rows: the history then holds only these rows, and the
+    /// inner products are partial sums that [`Mixer::update_shared`] adds
+    /// up across the processes. Call before the first update.
+    pub fn share_rows(&mut self, own: Vec<bool>) {
+        self.rows = None;
+        self.own = Some(own);
     }
 
     /// Replace `x` by the next input given its image `fx`; returns which
@@ -205,26 +242,50 @@ impl Mixer {
         x: &mut ScatteringSelfEnergy,
         fx: &ScatteringSelfEnergy,
     ) -> &'static str {
-        if let Mixing::Linear { factor } = self.kind {
-            linear_step(x, fx, factor);
-            return "linear";
+        let mut add = |parts: &[Vec<f64>], width| Ok::<_, Infallible>(add_in_order(parts, width));
+        match self.update_shared(x, fx, &mut add) {
+            Ok(step) => step,
+            Err(never) => match never {},
         }
+    }
+
+    /// [`Mixer::update`] on the rows of [`Mixer::share_rows`]: `reduce`
+    /// turns the sums of this process's chunks of rows into their total
+    /// over the processes (once per update), so that every process takes
+    /// the same step; x is changed on this process's rows only. Fails when
+    /// `reduce` does. When each process's rows are whole chunks of one
+    /// process's and the chunk sums are added in row order, the total has
+    /// the bits of one process.
+    pub fn update_shared<E>(
+        &mut self,
+        x: &mut ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+        reduce: Reduce<'_, E>,
+    ) -> Result<&'static str, E> {
+        let (red_only, own) = (self.red_only, self.own.as_deref());
         let ns = x.sites.max(1);
-        let red_only = self.red_only;
+        if let Mixing::Linear { factor } = self.kind {
+            match own {
+                None => linear_step(x, fx, factor),
+                Some(own) => linear_step_rows(x, fx, factor, ns, own),
+            }
+            return Ok("linear");
+        }
         let rows = self.rows.get_or_insert_with(|| {
             (0..x.energies())
                 .filter(|k| red_only.is_none_or(|w| (k / w).is_multiple_of(2)))
+                .filter(|&k| own.is_none_or(|o| o[k]))
                 .collect()
         });
         let lay = Layout {
             ns,
             parts: self.parts,
             rows,
-            per_chunk: (CHUNK_SITES / ns).max(1),
+            per_chunk: rows_per_chunk(ns),
         };
         match &mut self.state {
-            State::Compact(a) => a.update(x, fx, lay),
-            State::Full(a) => a.update(x, fx, lay),
+            State::Compact(a) => a.update(x, fx, lay, reduce),
+            State::Full(a) => a.update(x, fx, lay, reduce),
             State::Linear => unreachable!("linear mixing returned above"),
         }
     }
@@ -257,19 +318,21 @@ impl<T: Stored> Anderson<T> {
         }
     }
 
-    /// One Anderson update of `x` (see [`Mixer::update`]).
-    fn update(
+    /// One Anderson update of `x` (see [`Mixer::update_shared`]).
+    fn update<E>(
         &mut self,
         x: &mut ScatteringSelfEnergy,
         fx: &ScatteringSelfEnergy,
         lay: Layout<'_>,
-    ) -> &'static str {
+        reduce: Reduce<'_, E>,
+    ) -> Result<&'static str, E> {
         let len = lay.rows.len() * lay.ns * lay.parts;
         let mut r_new = self.buffer(len);
         // The last residual becomes ΔR_new, the last step U_new.
         let mut pair = self.last.take().map(|(r, dx)| (dx, r));
         let old = if pair.is_some() { self.dr.len() } else { 0 };
-        let sums = self.residual_pass(x, fx, lay, &mut r_new, pair.as_mut(), old);
+        let parts = self.residual_pass(x, fx, lay, &mut r_new, pair.as_mut(), old);
+        let sums = reduce(&parts, 3 + 2 * old)?;
         let norm = sums[0].sqrt();
         let grew = norm > self.last_norm;
         self.last_norm = norm;
@@ -285,20 +348,20 @@ impl<T: Stored> Anderson<T> {
         let mut dx_new = self.buffer(len);
         self.step_pass(x, fx, lay, &gamma, step, &mut dx_new);
         self.last = Some((r_new, dx_new));
-        if m > 0 {
+        Ok(if m > 0 {
             "anderson"
         } else if grew {
             "restart"
         } else {
             "linear"
-        }
+        })
     }
 
     /// Pass 1, per chunk: r = F(x) − x (f64), stored in `r_new`; with a
     /// previous step also ΔR_new = r − r_prev (in r_prev's buffer) and
     /// U_new = ΔX + β ΔR_new (in the last step's buffer). Returns the sums
     /// ‖r‖², ΔR_new·ΔR_new, ΔR_new·r, then ΔR_j·ΔR_new and ΔR_j·r for each
-    /// of the `old` stored steps j (ΔR as stored).
+    /// of the `old` stored steps j (ΔR as stored), per chunk of rows.
     fn residual_pass(
         &self,
         x: &ScatteringSelfEnergy,
@@ -307,7 +370,7 @@ impl<T: Stored> Anderson<T> {
         r_new: &mut [T],
         pair: Option<&mut (Vec<T>, Vec<T>)>,
         old: usize,
-    ) -> Vec<f64> {
+    ) -> Vec<Vec<f64>> {
         let width = 3 + 2 * old;
         let (dr, beta, cl) = (&self.dr, self.beta, lay.chunk_len());
         let body = |c: usize, rn: &mut [T], pair: Option<(&mut [T], &mut [T])>| {
@@ -350,13 +413,7 @@ impl<T: Stored> Anderson<T> {
                 .map(|(c, rn)| body(c, rn, None))
                 .collect(),
         };
-        let mut tot = vec![0.0; width];
-        for part in &parts {
-            for (t, v) in tot.iter_mut().zip(part) {
-                *t += v;
-            }
-        }
-        tot
+        parts
     }
 
     /// Keep the step just formed (`pair`: U_new and ΔR_new) in the
@@ -505,6 +562,29 @@ fn linear_step(x: &mut ScatteringSelfEnergy, fx: &ScatteringSelfEnergy, factor: 
         .for_each(|((r, i), (fr, fi))| {
             *r += (fr - *r) * factor;
             *i += factor * (fi - *i);
+        });
+}
+
+/// [`linear_step`] on the energy rows k (of `ns` values) with `own[k]`
+/// true.
+fn linear_step_rows(
+    x: &mut ScatteringSelfEnergy,
+    fx: &ScatteringSelfEnergy,
+    factor: f64,
+    ns: usize,
+    own: &[bool],
+) {
+    x.retarded
+        .par_chunks_mut(ns)
+        .zip(x.inscatter.par_chunks_mut(ns))
+        .zip(fx.retarded.par_chunks(ns).zip(fx.inscatter.par_chunks(ns)))
+        .enumerate()
+        .filter(|(k, _)| own.get(*k).copied().unwrap_or(false))
+        .for_each(|(_, ((xr, xi), (fr, fi)))| {
+            for ((r, i), (fr, fi)) in xr.iter_mut().zip(xi.iter_mut()).zip(fr.iter().zip(fi)) {
+                *r += (fr - *r) * factor;
+                *i += factor * (fi - *i);
+            }
         });
 }
 
@@ -776,6 +856,88 @@ mod tests {
                     assert!((a - b).abs() <= 1e-12 * (1.0 + a.abs()), "{a} vs {b}");
                     let (a, b) = (xa.retarded[at(k, s)].im, xr.retarded[at(k, s)].im);
                     assert!((a - b).abs() <= 1e-12 * (1.0 + a.abs()), "{a} vs {b}");
+                }
+            }
+        }
+    }
+
+    /// Two processes, each mixing half of the energy rows and adding their
+    /// partial sums in rank order, take the steps of one mixer of every
+    /// row: the same step names, and iterates equal to rounding (the
+    /// inner products are added in another order, so 1e-12 relative, well
+    /// above the ~1e-15 that reordering a handful of sums can change).
+    #[test]
+    fn rows_shared_by_two_processes_mix_as_one() {
+        let (ne, ns) = (4, 3);
+        let eig: Vec<f64> = (0..ne * ns).map(|i| 0.9 - 0.13 * i as f64).collect();
+        let f = |x: &ScatteringSelfEnergy| {
+            let mut y = x.clone();
+            for i in 0..ne * ns {
+                let v = eig[i] * x.inscatter[i] + 1.0 + i as f64;
+                y.inscatter[i] = v;
+                y.retarded[i] = C64::new(0.0, -0.5 * v + 0.1 * eig[i] * x.retarded[i].im);
+            }
+            y
+        };
+        let kind = Mixing::Anderson {
+            depth: 3,
+            damping: 0.7,
+        };
+        let steps = 10;
+        let mut one = Mixer::with_rows(kind, false, MixerHistory::Full, None);
+        let mut x = ScatteringSelfEnergy::zeros(ne, ns);
+        let mut want = Vec::new();
+        for _ in 0..steps {
+            let fx = f(&x);
+            want.push((one.update(&mut x, &fx), x.clone()));
+        }
+        let (to_one, from_zero) = std::sync::mpsc::channel::<Vec<f64>>();
+        let (to_zero, from_one) = std::sync::mpsc::channel::<Vec<f64>>();
+        let run = |rank: usize,
+                   send: std::sync::mpsc::Sender<Vec<f64>>,
+                   recv: std::sync::mpsc::Receiver<Vec<f64>>| {
+            let mut m = Mixer::with_rows(kind, false, MixerHistory::Full, None);
+            m.share_rows((0..ne).map(|k| (k < 2) == (rank == 0)).collect());
+            let mut x = ScatteringSelfEnergy::zeros(ne, ns);
+            let mut got = Vec::new();
+            for _ in 0..steps {
+                let fx = f(&x);
+                let mut reduce = |parts: &[Vec<f64>], width: usize| -> Result<Vec<f64>, ()> {
+                    let sums = add_in_order(parts, width);
+                    send.send(sums.clone()).map_err(|_| ())?;
+                    let theirs = recv.recv().map_err(|_| ())?;
+                    let (a, b) = if rank == 0 {
+                        (sums, theirs)
+                    } else {
+                        (theirs, sums)
+                    };
+                    Ok(add_in_order(&[a, b], width))
+                };
+                let step = m.update_shared(&mut x, &fx, &mut reduce).unwrap();
+                got.push((step, x.clone()));
+            }
+            got
+        };
+        let (zero, one_) = std::thread::scope(|s| {
+            let a = s.spawn(|| run(0, to_one, from_one));
+            let b = s.spawn(|| run(1, to_zero, from_zero));
+            (a.join().unwrap(), b.join().unwrap())
+        });
+        for (it, (w, (z, o))) in want.iter().zip(zero.iter().zip(&one_)).enumerate() {
+            assert_eq!((w.0, w.0), (z.0, o.0), "step {it}");
+            for k in 0..ne {
+                let mine = if k < 2 { &z.1 } else { &o.1 };
+                for i in k * ns..(k + 1) * ns {
+                    let (a, b) = (w.1.inscatter[i], mine.inscatter[i]);
+                    assert!(
+                        (a - b).abs() <= 1e-12 * a.abs().max(1.0),
+                        "step {it}: {a} vs {b}"
+                    );
+                    let (a, b) = (w.1.retarded[i].im, mine.retarded[i].im);
+                    assert!(
+                        (a - b).abs() <= 1e-12 * a.abs().max(1.0),
+                        "step {it}: {a} vs {b}"
+                    );
                 }
             }
         }

@@ -78,6 +78,7 @@ mod undetermined;
 pub use contacts::ContactFlows;
 pub use mixing::Mixer;
 pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
+use split::Share;
 pub use split::{ClusterSplit, EnergySplit, with_energy_split};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
 
@@ -1270,11 +1271,37 @@ impl<'a> BornLoop<'a> {
     }
 
     /// A fresh mixer for this loop (only the red rows when the black ones
-    /// are rebuilt from them before use, see [`red_rows_only`]).
-    fn mixer(&self) -> Mixer {
+    /// are rebuilt from them before use, see [`red_rows_only`]; only this
+    /// process's rows when they are shared).
+    fn mixer(&self, share: Option<&Share<'_>>) -> Mixer {
         let (problem, params) = (self.problem, self.params);
         let red_only = red_rows_only(problem, params.energy_order);
-        Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only)
+        let mut m = Mixer::with_rows(params.mixing, self.mix_real_part, params.history, red_only);
+        if let Some(s) = share {
+            m.share_rows(s.own().to_vec());
+        }
+        m
+    }
+
+    /// How the rows are shared after each pass under the energy split
+    /// `split` (see [`Share`]): with more than one process, for a
+    /// row-local model whose loop watches no cut-off part (that watch
+    /// reads every row). `None`: every process holds every row after each
+    /// pass and computes the rest of the iteration on all of them.
+    fn share<'s>(&self, split: Option<&'s dyn EnergySplit>) -> Option<Share<'s>> {
+        let problem = self.problem;
+        let scat = &problem.scattering;
+        let shared = scat.row_local() && self.isolation.is_none();
+        let reach = scat.phonons.iter().map(|m| m.steps).collect();
+        // The mixer's chunks run over the red rows or over all rows: align
+        // the processes' blocks with them (not when the mixed rows of one
+        // process interleave red and black bands).
+        let red_only = red_rows_only(problem, self.params.energy_order).is_some();
+        let align =
+            (self.colour.is_none() || red_only).then(|| mixing::rows_per_chunk(problem.sites()));
+        split
+            .filter(|s| s.processes() > 1 && shared)
+            .map(|s| Share::new(s, problem.grid.count, self.colour, reach, align))
     }
 
     /// Iterate from Σ0 = `x` until converged or out of budget.
@@ -1284,7 +1311,11 @@ impl<'a> BornLoop<'a> {
         observer: &mut dyn Observer,
     ) -> Result<Solution, SolveError> {
         let (problem, params) = (self.problem, self.params);
-        let mut mixer = self.mixer();
+        // The energy split in force, if any (see `split`), and whether the
+        // rows are shared after each pass as well.
+        let split = split::current();
+        let share = self.share(split.as_deref());
+        let mut mixer = self.mixer(share.as_ref());
         let mut previous: Option<(f64, f64)> = None;
         // The Green's functions of the pass and the image F(Σ0) are rebuilt in
         // place every iteration. `black_ready`: the black rows of `p` hold G
@@ -1295,8 +1326,6 @@ impl<'a> BornLoop<'a> {
         // The levels of the attached contacts: probes float (see `contacts`).
         let mut levels = contacts::starting_levels(problem);
         let probes = problem.has_floating_contacts();
-        // The energy split in force, if any (see `split`).
-        let split = split::current();
         let coherent = problem.scattering.is_coherent();
         loop {
             let maps = BornMaps {
@@ -1306,7 +1335,10 @@ impl<'a> BornLoop<'a> {
             };
             let iteration = self.report.iterations + 1;
             let order = self.colour.filter(|_| black_ready);
-            let residual = sweep(&maps, order, &mut x, &mut p, &mut fx, iteration)?;
+            let residual = match &share {
+                Some(s) => sweep_shared(&maps, s, order, &mut x, &mut p, &mut fx, iteration),
+                None => sweep(&maps, order, &mut x, &mut p, &mut fx, iteration),
+            }?;
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
             ensure_not_diverged(iteration, residual, (il, ir))?;
@@ -1327,7 +1359,7 @@ impl<'a> BornLoop<'a> {
                 "final"
             } else {
                 contacts::float_levels(problem, &p, &mut levels);
-                mixer.update(&mut x, &fx)
+                mix(&mut mixer, share.as_ref(), &mut x, &fx)?
             };
             let record = IterationRecord {
                 iteration,
@@ -1344,6 +1376,9 @@ impl<'a> BornLoop<'a> {
             }
             if done || out_of_budget {
                 self.report.converged = done;
+                if let Some(s) = &share {
+                    s.gather_all(&mut p, &mut x)?;
+                }
                 return Ok(Solution {
                     problem: contacts::with_levels(problem, &levels),
                     pass: p,
@@ -1353,6 +1388,20 @@ impl<'a> BornLoop<'a> {
                 });
             }
         }
+    }
+}
+
+/// The mixer's step from Σ0 `x` with image `fx`, its sums added over the
+/// processes when the rows are shared.
+fn mix(
+    mixer: &mut Mixer,
+    share: Option<&Share<'_>>,
+    x: &mut ScatteringSelfEnergy,
+    fx: &ScatteringSelfEnergy,
+) -> Result<&'static str, SolveError> {
+    match share {
+        Some(s) => mixer.update_shared(x, fx, &mut |parts, width| s.reduce(parts, width)),
+        None => Ok(mixer.update(x, fx)),
     }
 }
 
@@ -1607,6 +1656,84 @@ fn image_change_local(
         }
     }
     Ok(change_ratio(tot))
+}
+
+/// [`sweep`] with the rows shared between processes ([`Share`]): each
+/// process runs the recursion, rebuilds Σ0 and takes the change only on
+/// the energy rows it owns, with G at the rows of other processes that it
+/// reads (the halo) handed over after each pass. The relative change is
+/// the sum over all rows in row order, the same number as [`sweep`]'s for
+/// the same Σ0. A row-local model only ([`Scattering::row_local`]).
+///
+/// [`Scattering::row_local`]: crate::scattering::Scattering::row_local
+fn sweep_shared(
+    maps: &BornMaps<'_>,
+    share: &Share<'_>,
+    red_black: Option<usize>,
+    x: &mut ScatteringSelfEnergy,
+    p: &mut Pass,
+    fx: &mut ScatteringSelfEnergy,
+    iteration: usize,
+) -> Result<f64, SolveError> {
+    let (problem, own) = (maps.problem, share.own());
+    match red_black {
+        Some(w) => {
+            let red = move |k: usize| (k / w).is_multiple_of(2);
+            pass_shared(maps, share, x, red, p, Ok(()))?;
+            let black = |k: usize| !red(k) && own[k];
+            let bad = maps.rebuild_rows(p, x, black, first_bad);
+            // A non-finite black row travels with the black pass, so that
+            // every process stops with it before any solves on it.
+            let before = match bad.into_iter().flatten().next() {
+                Some((idx, part)) => Err(self_energy_fault(problem, x, iteration, idx, part)),
+                None => Ok(()),
+            };
+            pass_shared(maps, share, x, |k| !red(k), p, before)?;
+        }
+        None => pass_shared(maps, share, x, |_| true, p, Ok(()))?,
+    }
+    let black_done = red_black.filter(|&w| black_from_red(problem, w));
+    let red = move |k: usize| black_done.is_none_or(|w| (k / w).is_multiple_of(2));
+    let each = |k: usize, r: &[C64], i: &[f64]| (k, first_bad(k, r, i), change_sums(x, k, r, i));
+    let rows = maps.rebuild_rows(p, fx, |k| red(k) && own[k], each);
+    let local = match rows.iter().find_map(|(_, bad, _)| *bad) {
+        Some((idx, part)) => Err(self_energy_fault(problem, fx, iteration, idx, part)),
+        None => {
+            let copied = match black_done {
+                Some(_) => copy_rows_with(
+                    x,
+                    fx,
+                    |k| !red(k) && own[k],
+                    |k, r, i| (k, change_sums(x, k, r, i)),
+                ),
+                None => Vec::new(),
+            };
+            Ok(rows.iter().map(|&(k, _, s)| (k, s)).chain(copied).collect())
+        }
+    };
+    Ok(change_ratio(share.row_sums(local)?))
+}
+
+/// The recursion at the energies k with `rows(k)` true that this process
+/// owns (unless `before` already failed here), then the exchange that
+/// hands every process what it needs of the others' rows (see
+/// [`Share::exchange_pass`]).
+fn pass_shared(
+    maps: &BornMaps<'_>,
+    share: &Share<'_>,
+    sigma0: &ScatteringSelfEnergy,
+    rows: impl Fn(usize) -> bool + Sync,
+    p: &mut Pass,
+    before: Result<(), SolveError>,
+) -> Result<(), SolveError> {
+    let (problem, leads, levels) = (maps.problem, maps.leads, maps.levels);
+    let tr = maps.transmission;
+    let local = before.and_then(|()| {
+        let own = share.own();
+        let mine = |k: usize| rows(k) && own[k];
+        pass_rows(problem, leads, sigma0, levels, tr, mine, p)
+    });
+    share.exchange_pass(p, rows, local)
 }
 
 /// [`pass_rows`] at the energies k with `rows(k)` true, Σ0 = `sigma0`.
