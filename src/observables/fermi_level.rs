@@ -156,7 +156,7 @@ const TABLE_SPAN: f64 = 600.0;
 /// evaluation costs one exponential in all, and per energy a multiply, an
 /// add and a division, instead of an exponential and a division per
 /// energy. Where the product could leave the range of normal numbers (a
-/// grid wider than [`TABLE_SPAN`] k_B T, or µ far outside the grid) the
+/// grid wider than 600 k_B T, or µ far outside the grid) the
 /// evaluation falls back to one exponential per energy.
 #[derive(Clone, Debug)]
 pub struct FermiTable {
