@@ -859,36 +859,52 @@ fn fill_levels(sol: &Solution, sums: &PairSums, levels: &mut MoverLevels) {
 mod tests {
     use super::*;
     use crate::progress::Silent;
-    use crate::scba::solve;
+    use crate::scba::{ScbaParams, solve};
 
-    /// A 12 nm chain with a barrier and an optical phonon, under bias.
-    const CASE: &str = r#"
-name = "movers-kernels"
-[device]
-kind = "chain"
-spacing_nm = 0.3
-length_nm = 12.0
-effective_mass = 0.07
-[[device.region]]
-from_nm = 5.4
-to_nm = 6.6
-offset_ev = 0.1
-[leads.left]
-fermi_level_ev = 0.05
-temperature_k = 300.0
-[leads.right]
-fermi_level_ev = 0.05
-temperature_k = 300.0
-[bias]
-voltage_v = -0.08
-[[phonon]]
-energy_ev = 0.036
-coupling_ev2 = 2e-3
-[grid]
-step_ev = 0.004
-[solver]
-tolerance = 1e-8
-"#;
+    /// A 40-cell chain (0.3 nm, m* = 0.07) with a 0.1 eV barrier on cells
+    /// 18..22, periodic leads continuing its ends, Fermi levels 0.09 and
+    /// 0.01 eV at 300 K, and a 36 meV optical phonon on every cell.
+    fn barrier_problem() -> Problem {
+        let t = crate::units::hopping_ev(0.07, 0.3);
+        let u = (0..40)
+            .map(|i| if (18..22).contains(&i) { 0.1 } else { 0.0 })
+            .collect();
+        let device = crate::device::chain(0.3, t, 0.0, u);
+        let n = device.cells();
+        let lead = |i: usize, j: usize| Lead::Periodic {
+            onsite: device.onsite[i].clone(),
+            hopping: device.coupling[j].clone(),
+        };
+        let (left, right) = (lead(0, 0), lead(n - 1, n - 2));
+        let grid = crate::grid::EnergyGrid::covering(0.002, 0.4, 0.004);
+        let steps = grid.steps_for(0.036);
+        let phonon = crate::scattering::PhononMode {
+            requested_energy_ev: 0.036,
+            energy_ev: steps as f64 * grid.step_ev,
+            steps,
+            coupling_ev2: vec![2e-3; n],
+            bath_temperature_k: 300.0,
+            ..Default::default()
+        };
+        let contact = |lead, fermi_level_ev| crate::model::Contact {
+            lead,
+            fermi_level_ev,
+            temperature_k: 300.0,
+        };
+        Problem {
+            device,
+            left: contact(left, 0.09),
+            right: contact(right, 0.01),
+            scattering: crate::scattering::Scattering {
+                phonons: vec![phonon],
+                ..Default::default()
+            },
+            grid,
+            spin_degeneracy: 2.0,
+            decimation: Default::default(),
+            contacts: Vec::new(),
+        }
+    }
 
     /// On one-orbital cells the one-recursion scalar kernel gives the
     /// movers' weights of the two full-block solves bit for bit, at every
@@ -896,11 +912,8 @@ tolerance = 1e-8
     /// kernel the pass takes.
     #[test]
     fn scalar_kernel_gives_the_weights_of_two_full_block_solves() {
-        let loaded =
-            crate::session::Loaded::from_text(CASE, "movers-kernels", std::path::Path::new("."))
-                .unwrap();
-        let r = &loaded.resolved;
-        let sol = solve(&r.problem, &r.scba, None, &mut Silent).unwrap();
+        let problem = barrier_problem();
+        let sol = solve(&problem, &ScbaParams::default(), None, &mut Silent).unwrap();
         let p = &sol.problem;
         assert_eq!(p.device.orbitals, 1);
         let leads = LeadTable::new(p).unwrap();
