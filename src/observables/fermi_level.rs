@@ -141,6 +141,131 @@ fn count_and_slope(energies: &[f64], spectral: &[f64], mu: f64, kt: f64) -> (f64
     (n, dn / kt)
 }
 
+/// A grid spanning more than this many k_B T is not tabulated
+/// ([`FermiTable`]): with µ anywhere in the search interval, E_0 − 60 k_B T
+/// to E_last + 60 k_B T, every exp((E_k − µ)/k_B T) of a tabulated grid
+/// then lies between e^−660 and e^660, far from overflow (e^709) and from
+/// the subnormal numbers (below e^−708).
+const TABLE_SPAN: f64 = 600.0;
+
+/// The Fermi function of one temperature on one energy grid, prepared for
+/// many evaluations of the occupied weight N(µ) = Σ_k a_k f(E_k; µ, T).
+///
+/// exp((E_k − µ)/k_B T) = exp((E_0 − µ)/k_B T) · exp((E_k − E_0)/k_B T):
+/// the second factor does not depend on µ and is tabulated once, so an
+/// evaluation costs one exponential in all, and per energy a multiply, an
+/// add and a division, instead of an exponential and a division per
+/// energy. Where the product could leave the range of normal numbers (a
+/// grid wider than 600 k_B T, or µ far outside the grid) the
+/// evaluation falls back to one exponential per energy.
+#[derive(Clone, Debug)]
+pub struct FermiTable {
+    temperature_k: f64,
+    kt: f64,
+    /// E_0 (eV).
+    first: f64,
+    /// (E_last − E_0)/k_B T.
+    span: f64,
+    /// exp((E_k − E_0)/k_B T); empty when not tabulated.
+    ratio: Vec<f64>,
+}
+
+impl FermiTable {
+    /// The table of `energies` at `temperature_k`.
+    pub fn new(energies: &[f64], temperature_k: f64) -> Self {
+        let kt = thermal_energy_ev(temperature_k);
+        let first = energies.first().copied().unwrap_or(0.0);
+        let span = (energies.last().copied().unwrap_or(0.0) - first) / kt;
+        let ratio = if span.is_finite() && span <= TABLE_SPAN {
+            energies.iter().map(|&e| ((e - first) / kt).exp()).collect()
+        } else {
+            Vec::new()
+        };
+        Self {
+            temperature_k,
+            kt,
+            first,
+            span,
+            ratio,
+        }
+    }
+
+    /// N(µ) and its slope dN/dµ = Σ_k a_k f(1 − f)/k_B T in one pass.
+    fn count_and_slope(&self, energies: &[f64], spectral: &[f64], mu: f64) -> (f64, f64) {
+        let x0 = (self.first - mu) / self.kt;
+        let safe = x0 >= -700.0 && x0 + self.span <= 700.0;
+        if self.ratio.len() != spectral.len() || !safe {
+            return count_and_slope(energies, spectral, mu, self.kt);
+        }
+        let c = x0.exp();
+        let (mut n, mut dn) = (0.0, 0.0);
+        for (&a, &r) in spectral.iter().zip(&self.ratio) {
+            // f = 1/(1 + x), f(1 − f) = x f², with x = exp((E_k − µ)/k_B T);
+            // x f ≤ 1, so x f f does not overflow.
+            let x = c * r;
+            let f = 1.0 / (1.0 + x);
+            n += a * f;
+            dn += a * (x * f * f);
+        }
+        (n, dn / self.kt)
+    }
+}
+
+/// Fermi tables for the cells of a device ([`FermiTable`]): one per
+/// distinct temperature when there are few of them; with many (a
+/// temperature profile) each cell's table is built when it is matched, so
+/// that no more than a few grid-sized tables are ever held.
+pub(crate) struct FermiTables {
+    tables: Vec<FermiTable>,
+    /// Per cell, its table in `tables`; `None` when built on demand.
+    index: Vec<Option<usize>>,
+}
+
+/// At most this many distinct temperatures are tabulated in advance.
+const SHARED_TABLES: usize = 8;
+
+impl FermiTables {
+    /// Tables of `energies` for the cell temperatures `temps` (K).
+    pub(crate) fn new(energies: &[f64], temps: &[f64]) -> Self {
+        let mut distinct: Vec<f64> = Vec::new();
+        let index = temps
+            .iter()
+            .map(|t| {
+                if let Some(j) = distinct.iter().position(|d| d.to_bits() == t.to_bits()) {
+                    return Some(j);
+                }
+                (distinct.len() < SHARED_TABLES).then(|| {
+                    distinct.push(*t);
+                    distinct.len() - 1
+                })
+            })
+            .collect();
+        Self {
+            tables: distinct
+                .iter()
+                .map(|&t| FermiTable::new(energies, t))
+                .collect(),
+            index,
+        }
+    }
+
+    /// The density match of cell `i` ([`match_fermi_level_in`]) at the
+    /// temperature given for it to [`FermiTables::new`].
+    pub(crate) fn match_cell(
+        &self,
+        i: usize,
+        energies: &[f64],
+        spectral: &[f64],
+        target: f64,
+        temperature_k: f64,
+    ) -> FermiMatch {
+        match self.index.get(i).copied().flatten() {
+            Some(j) => match_fermi_level_in(&self.tables[j], energies, spectral, target),
+            None => match_fermi_level_checked(energies, spectral, target, temperature_k),
+        }
+    }
+}
+
 /// Density match with the way it ended: µ (NaN unless matched) and its
 /// [`FermiLevelStatus`].
 ///
@@ -149,23 +274,40 @@ fn count_and_slope(energies: &[f64], spectral: &[f64], mu: f64, kt: f64) -> (f64
 /// interval once its ends straddle the target, and
 /// [`crate::numerics::bracketed_newton`] finds it (N′ is known in closed
 /// form): the same root bisection reaches, in about ten evaluations of N
-/// instead of sixty.
+/// instead of sixty. Each evaluation uses a [`FermiTable`] built for this
+/// match; [`match_fermi_level_in`] takes one built beforehand.
 pub fn match_fermi_level_checked(
     energies: &[f64],
     spectral: &[f64],
     target: f64,
     temperature_k: f64,
 ) -> FermiMatch {
+    let table = FermiTable::new(energies, temperature_k);
+    match_fermi_level_in(&table, energies, spectral, target)
+}
+
+fn no_states(spectral: &[f64]) -> Option<FermiMatch> {
     let total: f64 = spectral.iter().sum();
-    if total <= 0.0 || !total.is_finite() {
-        return FermiMatch {
-            fermi_level_ev: f64::NAN,
-            status: FermiLevelStatus::NoStates,
-        };
+    (total <= 0.0 || !total.is_finite()).then_some(FermiMatch {
+        fermi_level_ev: f64::NAN,
+        status: FermiLevelStatus::NoStates,
+    })
+}
+
+/// [`match_fermi_level_checked`] with the Fermi table of `energies` at the
+/// temperature of the match built beforehand.
+pub fn match_fermi_level_in(
+    table: &FermiTable,
+    energies: &[f64],
+    spectral: &[f64],
+    target: f64,
+) -> FermiMatch {
+    if let Some(none) = no_states(spectral) {
+        return none;
     }
-    let kt = thermal_energy_ev(temperature_k);
-    let (lo, hi) = fermi_search_interval(energies, temperature_k);
-    let count = |mu: f64| count_and_slope(energies, spectral, mu, kt);
+    let kt = table.kt;
+    let (lo, hi) = fermi_search_interval(energies, table.temperature_k);
+    let count = |mu: f64| table.count_and_slope(energies, spectral, mu);
     // The iteration below keeps lo at count < target and hi at
     // count ≥ target; if an end already violates that, the answer is not
     // inside and the bracket would only walk to that end.
@@ -202,6 +344,7 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let cell_t = cell_lattice_temperatures(sol);
     let t = cell_t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let green = &sol.pass.green;
+    let tables = FermiTables::new(&energies, &cell_t);
     // The arrays are energy-major: gather the cells a few at a time so that
     // each energy row is read in whole cache lines, not one number per line.
     const CELLS_AT_ONCE: usize = 16;
@@ -224,10 +367,11 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
             }
             let energies = &energies;
             let cell_t = &cell_t;
+            let tables = &tables;
             (0..cells).map(move |c| {
                 let i = first + c;
                 let row = &a[c * ne..(c + 1) * ne];
-                let mu = match_fermi_level_checked(energies, row, filled[c], cell_t[i]);
+                let mu = tables.match_cell(i, energies, row, filled[c], cell_t[i]);
                 let electrons =
                     p.spin_degeneracy * filled[c] * p.grid.step_ev / (2.0 * std::f64::consts::PI);
                 (mu, electrons)
@@ -366,8 +510,10 @@ mod tests {
         let sparse: Vec<f64> = (0..e.len())
             .map(|k| if k % 97 == 3 { 1.0 + k as f64 } else { 0.0 })
             .collect();
+        // 300 K and 8 K take the tabulated count (the grid spans 15 and
+        // 580 k_B T), 4 K the exponential per energy (1160 k_B T).
         for a in [&smooth, &peaked, &gapped, &sparse] {
-            for t in [300.0, 4.0] {
+            for t in [300.0, 8.0, 4.0] {
                 let total: f64 = a.iter().sum();
                 for frac in [1e-9, 0.01, 0.3, 0.5, 0.77, 0.999] {
                     let target = frac * total;
@@ -405,5 +551,81 @@ mod tests {
         assert_eq!(below.status, FermiLevelStatus::BelowInterval);
         let none = match_fermi_level_checked(&e, &vec![0.0; e.len()], 1.0, 300.0);
         assert_eq!(none.status, FermiLevelStatus::NoStates);
+    }
+
+    /// The tabulated count agrees with one exponential per energy at every
+    /// µ of the search interval and beyond it: each term's
+    /// exp((E_k − µ)/k_B T) differs between the two forms by the rounding
+    /// of an argument of up to 700 (≈ 1e-13 relative), so the counts agree
+    /// to 1e-12 relative. The slope is compared with f(1 − f) written
+    /// without cancellation (the per-energy form's 1 − f loses digits
+    /// where f is near 1; the slope only steers the search). A grid wider than TABLE_SPAN k_B T
+    /// is not tabulated and gives the per-energy numbers exactly.
+    #[test]
+    fn tabulated_count_agrees_with_the_exponential_per_energy() {
+        let e = grid(801, 5e-4);
+        let a: Vec<f64> = e.iter().map(|&x| 1.0 + (40.0 * x).sin().abs()).collect();
+        for t in [300.0, 8.0, 1000.0] {
+            let table = FermiTable::new(&e, t);
+            assert_eq!(table.ratio.len(), e.len(), "T {t} K is tabulated");
+            let kt = thermal_energy_ev(t);
+            let (lo, hi) = fermi_search_interval(&e, t);
+            for j in -20..=120 {
+                let mu = lo + (hi - lo) * j as f64 / 100.0;
+                let (n, dn) = table.count_and_slope(&e, &a, mu);
+                let n0 = count_and_slope(&e, &a, mu, kt).0;
+                // f(1 − f) = q/(1 + q)² with q = exp(−|E − µ|/k_B T), without
+                // the cancellation of 1 − f where f is near 1.
+                let dn0 = e
+                    .iter()
+                    .zip(&a)
+                    .map(|(&x, &w)| {
+                        let q = (-((x - mu) / kt).abs()).exp();
+                        w * q / ((1.0 + q) * (1.0 + q))
+                    })
+                    .sum::<f64>()
+                    / kt;
+                assert!(n.is_finite() && dn.is_finite(), "T {t} K, µ {mu}");
+                assert!(
+                    (n - n0).abs() <= 1e-12 * n0.abs().max(1e-300),
+                    "T {t} K, µ {mu}: {n} vs {n0}"
+                );
+                // Beyond the interval the per-energy form takes over, slope
+                // and all.
+                let inside = (0..=100).contains(&j);
+                assert!(
+                    !inside || (dn - dn0).abs() <= 1e-12 * dn0.abs().max(1e-300),
+                    "T {t} K, µ {mu}: {dn} vs {dn0}"
+                );
+            }
+        }
+        let cold = FermiTable::new(&e, 4.0);
+        assert!(cold.ratio.is_empty());
+        let kt = thermal_energy_ev(4.0);
+        for mu in [-0.3, -0.1, 0.05, 0.3] {
+            assert_eq!(
+                cold.count_and_slope(&e, &a, mu),
+                count_and_slope(&e, &a, mu, kt)
+            );
+        }
+    }
+
+    /// Cells beyond the shared tables (more distinct temperatures than
+    /// SHARED_TABLES) are matched with a table built for them: the same
+    /// numbers as the shared ones.
+    #[test]
+    fn many_cell_temperatures_match_as_few() {
+        let e = grid(401, 1e-3);
+        let a: Vec<f64> = e.iter().map(|&x| (x + 0.25).sqrt()).collect();
+        let temps: Vec<f64> = (0..20).map(|i| 250.0 + 5.0 * i as f64).collect();
+        let tables = FermiTables::new(&e, &temps);
+        assert_eq!(tables.tables.len(), SHARED_TABLES);
+        let target = 0.4 * a.iter().sum::<f64>();
+        for (i, &t) in temps.iter().enumerate() {
+            let m = tables.match_cell(i, &e, &a, target, t);
+            let own = match_fermi_level_in(&FermiTable::new(&e, t), &e, &a, target);
+            assert_eq!(m, own, "cell {i}");
+            assert_eq!(m.status, FermiLevelStatus::Matched);
+        }
     }
 }

@@ -28,9 +28,10 @@ mod ledger;
 mod movers;
 mod occupation;
 pub use fermi_level::{
-    FermiLevelStatus, FermiMatch, LocalFermiLevel, cell_lattice_temperatures,
+    FermiLevelStatus, FermiMatch, FermiTable, LocalFermiLevel, cell_lattice_temperatures,
     fermi_search_interval, fit_fermi_level_and_temperature, lattice_temperature,
     local_electron_temperatures, local_fermi_levels, match_fermi_level_checked,
+    match_fermi_level_in,
 };
 pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_power};
 pub use movers::{

@@ -28,19 +28,24 @@
 //!
 //! This needs the full diagonal and first off-diagonal blocks of G^n and A
 //! at every energy: one extra pass of the kernel at the converged
-//! scattering self-energy, solving each energy twice (once with the true
-//! in-scattering, once with every source filled, which gives A = G^r Γ G^a
-//! in the same block form). The values of pair (i, i+1) are reported at
-//! cell i; the last cell has no pair.
+//! scattering self-energy, with two sets of sources (the true
+//! in-scattering, and every source filled, which gives A = G^r Γ G^a in
+//! the same block form). With one orbital per cell both sets ride on one
+//! recursion, since G^r does not depend on the sources
+//! ([`rgf::solve_two_sources_scalar`]), in plain numbers; larger blocks
+//! solve each energy twice with full blocks. The mode bases are found once
+//! per energy for every distinct uniform stretch. The values of pair
+//! (i, i+1) are reported at cell i; the last cell has no pair.
 
-use super::fermi_level::{
-    FermiLevelStatus, FermiMatch, cell_lattice_temperatures, match_fermi_level_checked,
-};
+use super::fermi_level::{FermiLevelStatus, FermiMatch, FermiTables, cell_lattice_temperatures};
 use super::occupation::OCCUPATION_THRESHOLD;
 use crate::C64;
 use crate::leads::{Lead, mode_pencil};
 use crate::model::Problem;
-use crate::rgf::{self, EnergyInput, EnergyOutput, FullBlocks, Workspace};
+use crate::rgf::{
+    self, EnergyInput, EnergyOutput, FullBlocks, ScalarFilled, ScalarSources, TwoSourceScratch,
+    Workspace,
+};
 use crate::scba::{LeadTable, Solution, SolveError};
 use faer::Mat;
 use faer::linalg::solvers::DenseSolveCore;
@@ -262,28 +267,67 @@ fn pair_basis(e: f64, h: &Mat<C64>, tau: &Mat<C64>) -> Option<PairBasis> {
     })
 }
 
-/// w M w† for a row w and the pair matrix [[D_i, L†], [L, D_i+1]].
-fn pair_form(w: &[C64], di: &Mat<C64>, dj: &Mat<C64>, lower: &Mat<C64>) -> f64 {
-    let b = di.nrows();
-    let at = |r: usize, c: usize| match (r < b, c < b) {
-        (true, true) => di[(r, c)],
-        (false, false) => dj[(r - b, c - b)],
-        (false, true) => lower[(r - b, c)],
-        (true, false) => lower[(c - b, r)].conj(),
-    };
+/// w M w† for a row w and the 2b × 2b pair matrix M given element by
+/// element (`at(r, c)`), summed row by row.
+fn pair_form_at(w: &[C64], at: impl Fn(usize, usize) -> C64) -> f64 {
     let mut s = C64::new(0.0, 0.0);
-    for r in 0..2 * b {
-        for c in 0..2 * b {
+    for r in 0..w.len() {
+        for c in 0..w.len() {
             s += w[r] * at(r, c) * w[c].conj();
         }
     }
     s.re
 }
 
+/// w M w† for a row w and the pair matrix [[D_i, L†], [L, D_i+1]].
+fn pair_form(w: &[C64], di: &Mat<C64>, dj: &Mat<C64>, lower: &Mat<C64>) -> f64 {
+    let b = di.nrows();
+    pair_form_at(w, |r, c| match (r < b, c < b) {
+        (true, true) => di[(r, c)],
+        (false, false) => dj[(r - b, c - b)],
+        (false, true) => lower[(r - b, c)],
+        (true, false) => lower[(c - b, r)].conj(),
+    })
+}
+
+/// [`pair_form`] for one-orbital cells, from the scalar blocks of pair i.
+fn pair_form_scalar(w: &[C64], m: &ScalarFilled, i: usize) -> f64 {
+    let (di, dj) = (
+        C64::new(m.diagonal[i], 0.0),
+        C64::new(m.diagonal[i + 1], 0.0),
+    );
+    let lower = m.lower[i];
+    pair_form_at(w, |r, c| match (r, c) {
+        (0, 0) => di,
+        (1, 1) => dj,
+        (1, 0) => lower,
+        _ => lower.conj(),
+    })
+}
+
 /// Per-worker scratch of the movers' pass, reused for every energy: the
-/// kernel's workspace, its per-site outputs and the full blocks of the two
-/// solves of an energy ([filled, states]).
+/// kernel's scratch and the mode bases of the current energy (one per
+/// basis slot, see [`BasisOwners`]).
 struct Scratch {
+    kernel: Kernel,
+    bases: Vec<Option<PairBasis>>,
+}
+
+/// The kernel's scratch: one-orbital cells take the scalar recursion that
+/// carries both source sets at once; larger blocks take the block kernel
+/// twice with full blocks.
+enum Kernel {
+    Scalar {
+        two: TwoSourceScratch,
+        /// Γ0 = −2 Im Σ^r_0 per cell: the bath's source when filled.
+        filled_bath: Vec<f64>,
+    },
+    Blocks(Box<BlockScratch>),
+}
+
+/// The block kernel's workspace, its per-site outputs and the full blocks
+/// of the two solves of an energy ([filled, states]).
+struct BlockScratch {
     ws: Workspace,
     retarded: Vec<C64>,
     filled: Vec<f64>,
@@ -295,15 +339,80 @@ struct Scratch {
 impl Scratch {
     fn new(p: &Problem) -> Self {
         let (n, b) = (p.device.cells(), p.device.orbitals);
+        let kernel = if b == 1 {
+            Kernel::Scalar {
+                two: TwoSourceScratch::default(),
+                filled_bath: Vec::with_capacity(n),
+            }
+        } else {
+            Kernel::Blocks(Box::new(BlockScratch {
+                ws: Workspace::new(n, b),
+                retarded: vec![C64::new(0.0, 0.0); n * b],
+                filled: vec![0.0; n * b],
+                bond: vec![0.0; n.saturating_sub(1)],
+                scatter_in: Vec::with_capacity(n * b),
+                blocks: Default::default(),
+            }))
+        };
         Self {
-            ws: Workspace::new(n, b),
-            retarded: vec![C64::new(0.0, 0.0); n * b],
-            filled: vec![0.0; n * b],
-            bond: vec![0.0; n.saturating_sub(1)],
-            scatter_in: Vec::with_capacity(n * b),
-            blocks: Default::default(),
+            kernel,
+            bases: Vec::new(),
         }
     }
+}
+
+/// Γ f of a one-orbital lead, as [`broadening`] computes its element.
+fn broadening_scalar(sigma: C64, f: f64) -> f64 {
+    let d = sigma - sigma.conj();
+    -d.im * f
+}
+
+/// Both source sets of energy index k on one-orbital cells in one
+/// recursion ([`rgf::solve_two_sources_scalar`]): the true sources into
+/// `two.filled[0]`, every source filled (G^n = A) into `two.filled[1]`.
+/// The numbers are those of two [`full_blocks`] calls, bit for bit.
+fn scalar_blocks(
+    sol: &Solution,
+    leads: &LeadTable,
+    k: usize,
+    two: &mut TwoSourceScratch,
+    filled_bath: &mut Vec<f64>,
+) -> Result<(), SolveError> {
+    let p = &sol.problem;
+    let dev = &p.device;
+    let ns = p.sites();
+    let e = p.grid.energy(k);
+    let retarded = &sol.sigma.retarded[k * ns..(k + 1) * ns];
+    filled_bath.clear();
+    filled_bath.extend(retarded.iter().map(|x| -2.0 * x.im));
+    let (sl, sr) = (leads.left[k][(0, 0)], leads.right[k][(0, 0)]);
+    let sources = [
+        ScalarSources {
+            left: broadening_scalar(sl, p.left.occupation(e)),
+            right: broadening_scalar(sr, p.right.occupation(e)),
+            scatter_in: &sol.sigma.inscatter[k * ns..(k + 1) * ns],
+        },
+        ScalarSources {
+            left: broadening_scalar(sl, 1.0),
+            right: broadening_scalar(sr, 1.0),
+            scatter_in: filled_bath,
+        },
+    ];
+    let input = EnergyInput {
+        energy_ev: e,
+        onsite: &dev.onsite,
+        coupling: &dev.coupling,
+        sigma_left: &leads.left[k],
+        sigma_right: &leads.right[k],
+        // Not read: the sources are `sources`.
+        inscatter_left: &leads.left[k],
+        inscatter_right: &leads.right[k],
+        scatter_retarded: retarded,
+        scatter_in: sources[0].scatter_in,
+        want_transmission: false,
+    };
+    rgf::solve_two_sources_scalar(&input, sources, two)?;
+    Ok(())
 }
 
 /// The kernel at energy index k with full blocks, into `s.blocks[0]`, or
@@ -315,7 +424,7 @@ fn full_blocks(
     leads: &LeadTable,
     k: usize,
     spectral: bool,
-    s: &mut Scratch,
+    s: &mut BlockScratch,
 ) -> Result<(), SolveError> {
     let p = &sol.problem;
     let dev = &p.device;
@@ -392,12 +501,62 @@ fn basis_owners(p: &Problem, uniform: &[bool]) -> Vec<Option<usize>> {
         .collect()
 }
 
+/// The mode bases an energy needs: one per distinct owner pair
+/// ([`basis_owners`]), where owners whose on-site and coupling blocks are
+/// equal bit for bit (the two sides of a barrier, say) share one basis,
+/// since [`pair_basis`] would give them the same numbers.
+struct BasisOwners {
+    /// The owner pair of each basis slot.
+    owners: Vec<usize>,
+    /// The basis slot of each pair; `None` where not uniform.
+    slot: Vec<Option<usize>>,
+}
+
+impl BasisOwners {
+    fn new(p: &Problem, uniform: &[bool]) -> Self {
+        let dev = &p.device;
+        let identical = |a: usize, b: usize| {
+            let bits = |m: &Mat<C64>| -> Vec<u64> {
+                (0..m.ncols())
+                    .flat_map(|c| (0..m.nrows()).map(move |r| (r, c)))
+                    .flat_map(|rc| [m[rc].re.to_bits(), m[rc].im.to_bits()])
+                    .collect()
+            };
+            bits(&dev.onsite[a]) == bits(&dev.onsite[b])
+                && bits(&dev.coupling[a]) == bits(&dev.coupling[b])
+        };
+        let mut owners: Vec<usize> = Vec::new();
+        let mut last: Option<(usize, usize)> = None;
+        let slot = basis_owners(p, uniform)
+            .into_iter()
+            .map(|owner| {
+                let j = owner?;
+                if let Some((o, s)) = last
+                    && o == j
+                {
+                    return Some(s);
+                }
+                let s = match owners.iter().position(|&o| identical(o, j)) {
+                    Some(s) => s,
+                    None => {
+                        owners.push(j);
+                        owners.len() - 1
+                    }
+                };
+                last = Some((j, s));
+                Some(s)
+            })
+            .collect();
+        Self { owners, slot }
+    }
+}
+
 /// The movers' weights of every pair at energy index k into `out` (zeros
 /// for pairs that are not uniform).
 fn energy_weights(
     sol: &Solution,
     leads: &LeadTable,
-    owners: &[Option<usize>],
+    owners: &BasisOwners,
     k: usize,
     s: &mut Scratch,
     out: &mut [Weights],
@@ -405,42 +564,66 @@ fn energy_weights(
     let p = &sol.problem;
     let dev = &p.device;
     let e = p.grid.energy(k);
-    full_blocks(sol, leads, k, false, s)?;
-    full_blocks(sol, leads, k, true, s)?;
-    let [filled, states] = &s.blocks;
-    let mut cache: Option<(usize, Option<PairBasis>)> = None;
+    match &mut s.kernel {
+        Kernel::Scalar { two, filled_bath } => scalar_blocks(sol, leads, k, two, filled_bath)?,
+        Kernel::Blocks(b) => {
+            full_blocks(sol, leads, k, false, b)?;
+            full_blocks(sol, leads, k, true, b)?;
+        }
+    }
+    s.bases.clear();
+    s.bases.extend(
+        owners
+            .owners
+            .iter()
+            .map(|&j| pair_basis(e, &dev.onsite[j], &dev.coupling[j])),
+    );
     for (i, w) in out.iter_mut().enumerate() {
-        let Some(j) = owners[i] else {
+        let Some(slot) = owners.slot[i] else {
             *w = [0.0; 4];
             continue;
         };
-        if cache.as_ref().is_none_or(|c| c.0 != j) {
-            cache = Some((j, pair_basis(e, &dev.onsite[j], &dev.coupling[j])));
-        }
-        let Some(basis) = cache.as_ref().and_then(|c| c.1.as_ref()) else {
+        let Some(basis) = s.bases[slot].as_ref() else {
             *w = [f64::NAN; 4];
             continue;
         };
-        let sum = |rows: &[Vec<C64>], m: &FullBlocks| -> f64 {
-            rows.iter()
-                .map(|r| {
-                    pair_form(
-                        r,
-                        &m.filled_diagonal[i],
-                        &m.filled_diagonal[i + 1],
-                        &m.filled_lower[i],
-                    )
-                })
-                .sum()
+        *w = match &s.kernel {
+            Kernel::Scalar { two, .. } => {
+                let sum = |rows: &[Vec<C64>], m: &ScalarFilled| -> f64 {
+                    rows.iter().map(|r| pair_form_scalar(r, m, i)).sum()
+                };
+                let [filled, states] = &two.filled;
+                mover_weights(basis, |rows, side| sum(rows, [filled, states][side]))
+            }
+            Kernel::Blocks(b) => {
+                let sum = |rows: &[Vec<C64>], m: &FullBlocks| -> f64 {
+                    rows.iter()
+                        .map(|r| {
+                            pair_form(
+                                r,
+                                &m.filled_diagonal[i],
+                                &m.filled_diagonal[i + 1],
+                                &m.filled_lower[i],
+                            )
+                        })
+                        .sum()
+                };
+                mover_weights(basis, |rows, side| sum(rows, &b.blocks[side]))
+            }
         };
-        *w = [
-            sum(&basis.right, filled),
-            sum(&basis.right, states),
-            sum(&basis.left, filled),
-            sum(&basis.left, states),
-        ];
     }
     Ok(())
+}
+
+/// [c₊, a₊, c₋, a₋] from `sum(rows, 0)` (filled) and `sum(rows, 1)`
+/// (states) over the right- and left-moving rows of `basis`.
+fn mover_weights(basis: &PairBasis, sum: impl Fn(&[Vec<C64>], usize) -> f64) -> Weights {
+    [
+        sum(&basis.right, 0),
+        sum(&basis.right, 1),
+        sum(&basis.left, 0),
+        sum(&basis.left, 1),
+    ]
 }
 
 /// Energies solved together before their weights are folded into the
@@ -518,7 +701,7 @@ fn pair_sums(sol: &Solution, uniform: &[bool], maps: bool) -> Result<PairSums, S
     let leads = LeadTable::new(p)?;
     let ne = p.grid.count;
     let pairs = uniform.len();
-    let owners = basis_owners(p, uniform);
+    let owners = BasisOwners::new(p, uniform);
     let mut sums = PairSums {
         states: vec![0.0; 2 * ne * pairs],
         filled_sum: vec![[0.0; 2]; pairs],
@@ -632,6 +815,7 @@ fn fill_levels(sol: &Solution, sums: &PairSums, levels: &mut MoverLevels) {
     let ne = p.grid.count;
     let energies = p.grid.energies();
     let temps = cell_lattice_temperatures(sol);
+    let tables = FermiTables::new(&energies, &temps);
     let per_cell = p.spin_degeneracy * p.grid.step_ev / (2.0 * std::f64::consts::PI) / 2.0;
     let status = &levels.status;
     let matched: Vec<Option<([FermiMatch; 2], [f64; 2])>> = sums
@@ -645,7 +829,7 @@ fn fill_levels(sol: &Solution, sums: &PairSums, levels: &mut MoverLevels) {
             }
             let found = [0, 1].map(|side| {
                 let a = &rows[side * ne..(side + 1) * ne];
-                match_fermi_level_checked(&energies, a, filled[side], temps[i])
+                tables.match_cell(i, &energies, a, filled[side], temps[i])
             });
             Some((found, *filled))
         })
@@ -668,5 +852,106 @@ fn fill_levels(sol: &Solution, sums: &PairSums, levels: &mut MoverLevels) {
         levels.right_ev[i] = found[0].fermi_level_ev;
         levels.left_ev[i] = found[1].fermi_level_ev;
         levels.status[i] = status;
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::progress::Silent;
+    use crate::scba::{ScbaParams, solve};
+
+    /// A 40-cell chain (0.3 nm, m* = 0.07) with a 0.1 eV barrier on cells
+    /// 18..22, periodic leads continuing its ends, Fermi levels 0.09 and
+    /// 0.01 eV at 300 K, and a 36 meV optical phonon on every cell.
+    fn barrier_problem() -> Problem {
+        let t = crate::units::hopping_ev(0.07, 0.3);
+        let u = (0..40)
+            .map(|i| if (18..22).contains(&i) { 0.1 } else { 0.0 })
+            .collect();
+        let device = crate::device::chain(0.3, t, 0.0, u);
+        let n = device.cells();
+        let lead = |i: usize, j: usize| Lead::Periodic {
+            onsite: device.onsite[i].clone(),
+            hopping: device.coupling[j].clone(),
+        };
+        let (left, right) = (lead(0, 0), lead(n - 1, n - 2));
+        let grid = crate::grid::EnergyGrid::covering(0.002, 0.4, 0.004);
+        let steps = grid.steps_for(0.036);
+        let phonon = crate::scattering::PhononMode {
+            requested_energy_ev: 0.036,
+            energy_ev: steps as f64 * grid.step_ev,
+            steps,
+            coupling_ev2: vec![2e-3; n],
+            bath_temperature_k: 300.0,
+            ..Default::default()
+        };
+        let contact = |lead, fermi_level_ev| crate::model::Contact {
+            lead,
+            fermi_level_ev,
+            temperature_k: 300.0,
+        };
+        Problem {
+            device,
+            left: contact(left, 0.09),
+            right: contact(right, 0.01),
+            scattering: crate::scattering::Scattering {
+                phonons: vec![phonon],
+                ..Default::default()
+            },
+            grid,
+            spin_degeneracy: 2.0,
+            decimation: Default::default(),
+            contacts: Vec::new(),
+        }
+    }
+
+    /// On one-orbital cells the one-recursion scalar kernel gives the
+    /// movers' weights of the two full-block solves bit for bit, at every
+    /// energy: the levels, electrons and maps do not depend on which
+    /// kernel the pass takes.
+    #[test]
+    fn scalar_kernel_gives_the_weights_of_two_full_block_solves() {
+        let problem = barrier_problem();
+        let sol = solve(&problem, &ScbaParams::default(), None, &mut Silent).unwrap();
+        let p = &sol.problem;
+        assert_eq!(p.device.orbitals, 1);
+        let leads = LeadTable::new(p).unwrap();
+        let uniform = uniform_pairs(p);
+        let owners = BasisOwners::new(p, &uniform);
+        // Left and right of the barrier share one basis.
+        assert_eq!(owners.owners.len(), 2, "{:?}", owners.owners);
+        let mut scalar = Scratch::new(p);
+        assert!(matches!(scalar.kernel, Kernel::Scalar { .. }));
+        let n = p.device.cells();
+        let mut blocks = Scratch {
+            kernel: Kernel::Blocks(Box::new(BlockScratch {
+                ws: Workspace::new(n, 1),
+                retarded: vec![C64::new(0.0, 0.0); n],
+                filled: vec![0.0; n],
+                bond: vec![0.0; n - 1],
+                scatter_in: Vec::new(),
+                blocks: Default::default(),
+            })),
+            bases: Vec::new(),
+        };
+        let (mut a, mut b) = (vec![[0.0; 4]; n - 1], vec![[0.0; 4]; n - 1]);
+        let mut propagating = 0;
+        for k in 0..p.grid.count {
+            energy_weights(&sol, &leads, &owners, k, &mut scalar, &mut a).unwrap();
+            energy_weights(&sol, &leads, &owners, k, &mut blocks, &mut b).unwrap();
+            for (i, (x, y)) in a.iter().zip(&b).enumerate() {
+                assert_eq!(
+                    x.map(f64::to_bits),
+                    y.map(f64::to_bits),
+                    "E index {k}, pair {i}"
+                );
+                propagating += usize::from(x[1] > 0.0);
+            }
+        }
+        assert!(
+            propagating > 100,
+            "{propagating} pair-energies with right-moving states"
+        );
     }
 }

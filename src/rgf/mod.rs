@@ -28,6 +28,8 @@ use faer::Mat;
 mod block;
 mod scalar;
 
+pub use scalar::{ScalarFilled, ScalarSources, TwoSourceScratch, solve_two_sources_scalar};
+
 /// Inputs of one energy point.
 #[derive(Clone, Copy)]
 pub struct EnergyInput<'a> {
