@@ -440,13 +440,9 @@ mod tests {
         C64::new(re, im)
     }
 
+    /// The Fermi function 1/(1 + e^x), evaluated without overflow.
     fn exact_fermi(x: f64) -> f64 {
-        if x > 0.0 {
-            let e = (-x).exp();
-            e / (1.0 + e)
-        } else {
-            1.0 / (1.0 + x.exp())
-        }
+        crate::electrostatics::density::logistic(x)
     }
 
     /// Largest |expansion − 1/(1 + e^x)| over |x| ≤ `range`.

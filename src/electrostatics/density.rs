@@ -7,7 +7,7 @@ use rayon::prelude::*;
 
 /// Logistic occupation 1/(1 + e^x) without overflow.
 #[inline]
-fn logistic(x: f64) -> f64 {
+pub(crate) fn logistic(x: f64) -> f64 {
     if x > 0.0 {
         let e = (-x).exp();
         e / (1.0 + e)
