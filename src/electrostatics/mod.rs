@@ -69,7 +69,8 @@ mod mixing;
 mod poisson;
 
 pub use density::{
-    CellDensity, cell_band_edges, edge_weights, neutral_band_edge, uniform_band_electrons,
+    CellDensity, broadened_edge_weights, cell_band_edges, edge_weights, neutral_band_edge,
+    uniform_band_electrons,
 };
 
 use crate::C64;
