@@ -49,7 +49,9 @@ use std::sync::Mutex;
 /// passes (residual, new differences and every inner product in the first;
 /// the update and the new step in the second), in parallel over fixed
 /// chunks of whole energy rows whose partial sums are added in order, so
-/// any thread count gives the same numbers.
+/// any thread count gives the same numbers. The first pass can instead be
+/// taken row by row by whoever builds F(Σ0), each row while it is in
+/// cache ([`Mixer::begin_fused`]).
 pub struct Mixer {
     kind: Mixing,
     /// Numbers mixed per orbital site: 3, or 2 when Re Σ^r_0 is zero for
