@@ -29,6 +29,7 @@ use crate::scattering::ScatteringSelfEnergy;
 use rayon::prelude::*;
 use std::collections::VecDeque;
 use std::convert::Infallible;
+use std::sync::Mutex;
 
 /// Mixing state across Born iterations.
 ///
@@ -48,7 +49,9 @@ use std::convert::Infallible;
 /// passes (residual, new differences and every inner product in the first;
 /// the update and the new step in the second), in parallel over fixed
 /// chunks of whole energy rows whose partial sums are added in order, so
-/// any thread count gives the same numbers.
+/// any thread count gives the same numbers. The first pass can instead be
+/// taken row by row by whoever builds F(Σ0), each row while it is in
+/// cache ([`Mixer::begin_fused`]).
 pub struct Mixer {
     kind: Mixing,
     /// Numbers mixed per orbital site: 3, or 2 when Re Σ^r_0 is zero for
@@ -168,13 +171,19 @@ impl Layout<'_> {
                 &s.retarded[k * ns..(k + 1) * ns],
                 &s.inscatter[k * ns..(k + 1) * ns],
             );
-            for (z, v) in r.iter().zip(i) {
-                if self.parts == 3 {
-                    out.extend_from_slice(&[z.re, z.im, *v]);
-                } else {
-                    out.extend_from_slice(&[z.im, *v]);
-                }
-            }
+            push_row(self.parts, r, i, out);
+        }
+    }
+}
+
+/// The mixed numbers of one energy row (Σ^r_0 row `r`, Σ^in_0 row `i`),
+/// `parts` per orbital site, appended to `out`.
+fn push_row(parts: usize, r: &[C64], i: &[f64], out: &mut Vec<f64>) {
+    for (z, v) in r.iter().zip(i) {
+        if parts == 3 {
+            out.extend_from_slice(&[z.re, z.im, *v]);
+        } else {
+            out.extend_from_slice(&[z.im, *v]);
         }
     }
 }
@@ -271,12 +280,9 @@ impl Mixer {
             }
             return Ok("linear");
         }
-        let rows = self.rows.get_or_insert_with(|| {
-            (0..x.energies())
-                .filter(|k| red_only.is_none_or(|w| (k / w).is_multiple_of(2)))
-                .filter(|&k| own.is_none_or(|o| o[k]))
-                .collect()
-        });
+        let rows = self
+            .rows
+            .get_or_insert_with(|| mixed_rows(x.energies(), red_only, own));
         let lay = Layout {
             ns,
             parts: self.parts,
@@ -287,6 +293,227 @@ impl Mixer {
             State::Compact(a) => a.update(x, fx, lay, reduce),
             State::Full(a) => a.update(x, fx, lay, reduce),
             State::Linear => unreachable!("linear mixing returned above"),
+        }
+    }
+}
+
+/// The energy rows k < `energies` a mixer mixes: the red ones only with
+/// `red_only = Some(w)`, and only those with `own[k]` when given.
+fn mixed_rows(energies: usize, red_only: Option<usize>, own: Option<&[bool]>) -> Vec<usize> {
+    (0..energies)
+        .filter(|k| red_only.is_none_or(|w| (k / w).is_multiple_of(2)))
+        .filter(|&k| own.is_none_or(|o| o[k]))
+        .collect()
+}
+
+/// The buffers of an Anderson update between the start of its first pass
+/// and its step: the new residual, and (after the first update) U_new and
+/// ΔR_new being formed in the last step's and last residual's buffers;
+/// `old` stored steps take part.
+struct Begun<T> {
+    r_new: Vec<T>,
+    pair: Option<(Vec<T>, Vec<T>)>,
+    old: usize,
+}
+
+/// An Anderson update whose first pass (the residual, the new
+/// differences and the inner products, see [`Mixer`])
+/// is taken row by row through a [`RowHook`] while the image F(x) is
+/// being built, each row while it is in cache, instead of in a pass of its
+/// own that reads x and F(x) again. Started by [`Mixer::begin_fused`],
+/// ended by [`Mixer::finish_fused`] (or dropped when no step is taken).
+pub struct FusedUpdate(FusedKind);
+
+enum FusedKind {
+    Compact(Begun<f32>),
+    Full(Begun<f64>),
+}
+
+/// Takes pass 1 of a [`FusedUpdate`] on the rows handed to it: see
+/// [`RowHook::row`].
+pub struct RowHook<'a>(HookKind<'a>);
+
+enum HookKind<'a> {
+    Compact(Hook<'a, f32>),
+    Full(Hook<'a, f64>),
+}
+
+/// What a [`RowHook`] reads and writes: the history, the mixed rows
+/// (one per chunk) and per chunk its slices of the update's buffers.
+struct Hook<'a, T: Stored> {
+    anderson: &'a Anderson<T>,
+    rows: &'a [usize],
+    parts: usize,
+    old: usize,
+    slots: Vec<Mutex<Slot<'a, T>>>,
+}
+
+/// One chunk's slices of r_new, U_new and ΔR_new, and its sums once taken.
+struct Slot<'a, T> {
+    rn: &'a mut [T],
+    pair: Option<(&'a mut [T], &'a mut [T])>,
+    sums: Option<Vec<f64>>,
+}
+
+impl<'a, T: Stored> Hook<'a, T> {
+    fn new(
+        anderson: &'a Anderson<T>,
+        rows: &'a [usize],
+        parts: usize,
+        b: &'a mut Begun<T>,
+    ) -> Self {
+        let cl = b.r_new.len() / rows.len().max(1);
+        let mut pairs: Vec<Option<(&'a mut [T], &'a mut [T])>> = match &mut b.pair {
+            Some((u, d)) => (u.chunks_mut(cl.max(1)))
+                .zip(d.chunks_mut(cl.max(1)))
+                .map(Some)
+                .collect(),
+            None => Vec::new(),
+        };
+        pairs.resize_with(rows.len(), || None);
+        let slots = (b.r_new.chunks_mut(cl.max(1)))
+            .zip(pairs)
+            .map(|(rn, pair)| {
+                let sums = None;
+                Mutex::new(Slot { rn, pair, sums })
+            })
+            .collect();
+        Self {
+            anderson,
+            rows,
+            parts,
+            old: b.old,
+            slots,
+        }
+    }
+
+    fn row(&self, k: usize, x: &ScatteringSelfEnergy, fr: &[C64], fi: &[f64]) {
+        let Ok(c) = self.rows.binary_search(&k) else {
+            return;
+        };
+        let mut slot = self.slots[c]
+            .lock()
+            .expect("no panic while a chunk is mixed");
+        let Slot { rn, pair, sums } = &mut *slot;
+        let ns = fr.len();
+        let (mut r, mut f) = (Vec::with_capacity(rn.len()), Vec::with_capacity(rn.len()));
+        let at = k * ns..(k + 1) * ns;
+        push_row(
+            self.parts,
+            &x.retarded[at.clone()],
+            &x.inscatter[at],
+            &mut r,
+        );
+        push_row(self.parts, fr, fi, &mut f);
+        let pair = pair.as_mut().map(|(u, d)| (&mut **u, &mut **d));
+        let at = c * rn.len();
+        *sums = Some(
+            self.anderson
+                .chunk_sums(at, &mut r, &mut f, rn, pair, self.old),
+        );
+    }
+
+    fn into_sums(self) -> Vec<Option<Vec<f64>>> {
+        (self.slots.into_iter())
+            .map(|m| {
+                m.into_inner()
+                    .expect("no panic while a chunk is mixed")
+                    .sums
+            })
+            .collect()
+    }
+}
+
+impl RowHook<'_> {
+    /// Pass 1 of the update on energy row k, if it is mixed, from x (row k
+    /// is read) and the row of its image F(x) just built (`fr`: Σ^r_0,
+    /// `fi`: Σ^in_0). The same numbers as the separate pass, bit for bit.
+    pub fn row(&self, k: usize, x: &ScatteringSelfEnergy, fr: &[C64], fi: &[f64]) {
+        match &self.0 {
+            HookKind::Compact(h) => h.row(k, x, fr, fi),
+            HookKind::Full(h) => h.row(k, x, fr, fi),
+        }
+    }
+
+    /// The sums of each chunk taken (None: a mixed row never handed over),
+    /// for [`Mixer::finish_fused`].
+    pub fn into_sums(self) -> Vec<Option<Vec<f64>>> {
+        match self.0 {
+            HookKind::Compact(h) => h.into_sums(),
+            HookKind::Full(h) => h.into_sums(),
+        }
+    }
+}
+
+impl Mixer {
+    /// Start an update whose first pass runs through [`Mixer::row_hook`]
+    /// inside the pass that builds the image. `None` when that is not
+    /// possible: linear mixing, rows shared between processes, or chunks
+    /// of more than one energy row (rows of at most 2048 orbital sites,
+    /// whose sums are taken over several rows at once).
+    pub fn begin_fused(&mut self, x: &ScatteringSelfEnergy) -> Option<FusedUpdate> {
+        let ns = x.sites.max(1);
+        if self.own.is_some() || rows_per_chunk(ns) != 1 {
+            return None;
+        }
+        let red_only = self.red_only;
+        let rows = (self.rows).get_or_insert_with(|| mixed_rows(x.energies(), red_only, None));
+        let len = rows.len() * ns * self.parts;
+        match &mut self.state {
+            State::Linear => None,
+            State::Compact(a) => Some(FusedUpdate(FusedKind::Compact(a.begin(len)))),
+            State::Full(a) => Some(FusedUpdate(FusedKind::Full(a.begin(len)))),
+        }
+    }
+
+    /// True when an update reads the image F(x) on the red rows only (see
+    /// [`Mixer::with_rows`]); linear mixing reads every row.
+    pub fn reads_red_rows_only(&self) -> bool {
+        self.red_only.is_some() && !matches!(self.kind, Mixing::Linear { .. })
+    }
+
+    /// The hook that takes pass 1 of `update` row by row.
+    pub fn row_hook<'a>(&'a self, update: &'a mut FusedUpdate) -> RowHook<'a> {
+        let rows = self.rows.as_deref().expect("rows fixed by begin_fused");
+        RowHook(match (&self.state, &mut update.0) {
+            (State::Compact(a), FusedKind::Compact(b)) => {
+                HookKind::Compact(Hook::new(a, rows, self.parts, b))
+            }
+            (State::Full(a), FusedKind::Full(b)) => {
+                HookKind::Full(Hook::new(a, rows, self.parts, b))
+            }
+            _ => unreachable!("an update is begun on its own mixer"),
+        })
+    }
+
+    /// Replace `x` by the next input given its image `fx`, as
+    /// [`Mixer::update`] does, once the hook of `update` has taken pass 1
+    /// on the rows handed to it, leaving `sums` ([`RowHook::into_sums`]);
+    /// any mixed row it was not handed is taken here.
+    pub fn finish_fused(
+        &mut self,
+        update: FusedUpdate,
+        sums: Vec<Option<Vec<f64>>>,
+        x: &mut ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+    ) -> &'static str {
+        let lay = Layout {
+            ns: x.sites.max(1),
+            parts: self.parts,
+            rows: self.rows.as_deref().expect("rows fixed by begin_fused"),
+            per_chunk: 1,
+        };
+        let mut add = |parts: &[Vec<f64>], width| Ok::<_, Infallible>(add_in_order(parts, width));
+        let step = match (&mut self.state, update.0) {
+            (State::Compact(a), FusedKind::Compact(b)) => {
+                a.finish_rows(b, sums, x, fx, lay, &mut add)
+            }
+            (State::Full(a), FusedKind::Full(b)) => a.finish_rows(b, sums, x, fx, lay, &mut add),
+            _ => unreachable!("an update is begun on its own mixer"),
+        };
+        match step {
+            Ok(step) => step,
+            Err(never) => match never {},
         }
     }
 }
@@ -326,12 +553,60 @@ impl<T: Stored> Anderson<T> {
         lay: Layout<'_>,
         reduce: Reduce<'_, E>,
     ) -> Result<&'static str, E> {
-        let len = lay.rows.len() * lay.ns * lay.parts;
-        let mut r_new = self.buffer(len);
+        let mut b = self.begin(lay.rows.len() * lay.ns * lay.parts);
+        let parts = self.residual_pass(x, fx, lay, &mut b.r_new, b.pair.as_mut(), b.old);
+        self.finish(b, parts, x, fx, lay, reduce)
+    }
+
+    /// [`Anderson::finish`] with the sums of pass 1 per chunk in `sums`,
+    /// those missing taken here from `x` and `fx`.
+    fn finish_rows<E>(
+        &mut self,
+        mut b: Begun<T>,
+        sums: Vec<Option<Vec<f64>>>,
+        x: &mut ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+        lay: Layout<'_>,
+        reduce: Reduce<'_, E>,
+    ) -> Result<&'static str, E> {
+        let cl = lay.chunk_len();
+        let mut parts = Vec::with_capacity(sums.len());
+        for (c, s) in sums.into_iter().enumerate() {
+            let s = s.unwrap_or_else(|| {
+                let g = c * cl..(c + 1) * cl;
+                let (mut r, mut f) = (Vec::with_capacity(cl), Vec::with_capacity(cl));
+                lay.gather(x, c, &mut r);
+                lay.gather(fx, c, &mut f);
+                let pair = (b.pair.as_mut()).map(|(u, d)| (&mut u[g.clone()], &mut d[g.clone()]));
+                self.chunk_sums(c * cl, &mut r, &mut f, &mut b.r_new[g.clone()], pair, b.old)
+            });
+            parts.push(s);
+        }
+        self.finish(b, parts, x, fx, lay, reduce)
+    }
+
+    /// The buffers of an update of `len` numbers (see [`Begun`]).
+    fn begin(&mut self, len: usize) -> Begun<T> {
+        let r_new = self.buffer(len);
         // The last residual becomes ΔR_new, the last step U_new.
-        let mut pair = self.last.take().map(|(r, dx)| (dx, r));
+        let pair = self.last.take().map(|(r, dx)| (dx, r));
         let old = if pair.is_some() { self.dr.len() } else { 0 };
-        let parts = self.residual_pass(x, fx, lay, &mut r_new, pair.as_mut(), old);
+        Begun { r_new, pair, old }
+    }
+
+    /// The rest of an update once the first pass has left its sums per
+    /// chunk in `parts`: the history, the least squares and pass 2.
+    fn finish<E>(
+        &mut self,
+        b: Begun<T>,
+        parts: Vec<Vec<f64>>,
+        x: &mut ScatteringSelfEnergy,
+        fx: &ScatteringSelfEnergy,
+        lay: Layout<'_>,
+        reduce: Reduce<'_, E>,
+    ) -> Result<&'static str, E> {
+        let Begun { r_new, pair, old } = b;
+        let len = r_new.len();
         let sums = reduce(&parts, 3 + 2 * old)?;
         let norm = sums[0].sqrt();
         let grew = norm > self.last_norm;
@@ -371,34 +646,12 @@ impl<T: Stored> Anderson<T> {
         pair: Option<&mut (Vec<T>, Vec<T>)>,
         old: usize,
     ) -> Vec<Vec<f64>> {
-        let width = 3 + 2 * old;
-        let (dr, beta, cl) = (&self.dr, self.beta, lay.chunk_len());
+        let cl = lay.chunk_len();
         let body = |c: usize, rn: &mut [T], pair: Option<(&mut [T], &mut [T])>| {
-            let mut acc = vec![0.0; width];
             let (mut r, mut f) = (Vec::with_capacity(rn.len()), Vec::with_capacity(rn.len()));
             lay.gather(x, c, &mut r);
             lay.gather(fx, c, &mut f);
-            for ((ri, fi), t) in r.iter_mut().zip(&f).zip(rn.iter_mut()) {
-                *ri = fi - *ri;
-                *t = T::put(*ri);
-            }
-            acc[0] = dot2(&r, &r, &r).0;
-            if let Some((u, d)) = pair {
-                // `f` now holds ΔR_new as stored.
-                for ((dv, di), ri) in f.iter_mut().zip(d.iter_mut()).zip(&r) {
-                    *di = T::put(ri - di.get());
-                    *dv = di.get();
-                }
-                for (ui, dv) in u.iter_mut().zip(&f) {
-                    *ui = T::put(ui.get() + beta * dv);
-                }
-                (acc[1], acc[2]) = dot2(&f, &f, &r);
-                let g = c * cl..c * cl + rn.len();
-                for (j, drj) in dr.iter().enumerate() {
-                    (acc[3 + 2 * j], acc[4 + 2 * j]) = dot2(&drj[g.clone()], &f, &r);
-                }
-            }
-            acc
+            self.chunk_sums(c * cl, &mut r, &mut f, rn, pair, old)
         };
         let parts: Vec<Vec<f64>> = match pair {
             Some((u, d)) => r_new
@@ -414,6 +667,43 @@ impl<T: Stored> Anderson<T> {
                 .collect(),
         };
         parts
+    }
+
+    /// The arithmetic of pass 1 on one chunk, whose numbers start at `at`
+    /// in the mixed vector: `r` holds x there and becomes r = F(x) − x,
+    /// `f` holds F(x) there (and is overwritten); see
+    /// [`Anderson::residual_pass`] for what is stored and summed.
+    fn chunk_sums(
+        &self,
+        at: usize,
+        r: &mut [f64],
+        f: &mut [f64],
+        rn: &mut [T],
+        pair: Option<(&mut [T], &mut [T])>,
+        old: usize,
+    ) -> Vec<f64> {
+        let mut acc = vec![0.0; 3 + 2 * old];
+        for ((ri, fi), t) in r.iter_mut().zip(&*f).zip(rn.iter_mut()) {
+            *ri = fi - *ri;
+            *t = T::put(*ri);
+        }
+        acc[0] = dot2(&*r, &*r, &*r).0;
+        if let Some((u, d)) = pair {
+            // `f` now holds ΔR_new as stored.
+            for ((dv, di), ri) in f.iter_mut().zip(d.iter_mut()).zip(&*r) {
+                *di = T::put(ri - di.get());
+                *dv = di.get();
+            }
+            for (ui, dv) in u.iter_mut().zip(&*f) {
+                *ui = T::put(ui.get() + self.beta * dv);
+            }
+            (acc[1], acc[2]) = dot2(&*f, &*f, &*r);
+            let g = at..at + rn.len();
+            for (j, drj) in self.dr.iter().enumerate() {
+                (acc[3 + 2 * j], acc[4 + 2 * j]) = dot2(&drj[g.clone()], &*f, &*r);
+            }
+        }
+        acc
     }
 
     /// Keep the step just formed (`pair`: U_new and ΔR_new) in the
@@ -857,6 +1147,62 @@ mod tests {
                     let (a, b) = (xa.retarded[at(k, s)].im, xr.retarded[at(k, s)].im);
                     assert!((a - b).abs() <= 1e-12 * (1.0 + a.abs()), "{a} vs {b}");
                 }
+            }
+        }
+    }
+
+    /// The first pass taken row by row through the hook ([`Mixer::begin_fused`])
+    /// gives the iterates of [`Mixer::update`] bit for bit, for both history
+    /// precisions, with red rows only, and also when some mixed rows are never
+    /// handed to the hook (they are then taken in `finish_fused`). Rows of
+    /// 3000 sites, so that each chunk is one row and the hook applies.
+    #[test]
+    fn the_fused_first_pass_gives_the_same_bits() {
+        let (ne, ns) = (6, 3000);
+        assert_eq!(rows_per_chunk(ns), 1, "the hook needs one row per chunk");
+        let f = |x: &ScatteringSelfEnergy| {
+            let mut y = x.clone();
+            for i in 0..ne * ns {
+                let e = 0.9 - 0.3 * ((i * 7919) % 101) as f64 / 100.0;
+                let v = e * x.inscatter[i] + 0.05 * x.inscatter[i].powi(2) + 1.0 + (i % 13) as f64;
+                y.inscatter[i] = v;
+                y.retarded[i] = C64::new(0.0, -0.5 * v + 0.1 * e * x.retarded[i].im);
+            }
+            y
+        };
+        let kind = Mixing::Anderson {
+            depth: 3,
+            damping: 0.8,
+        };
+        for history in [MixerHistory::Compact, MixerHistory::Full] {
+            for (red_only, skip) in [(None, None), (Some(1), None), (Some(1), Some(2))] {
+                let mut plain = Mixer::with_rows(kind, false, history, red_only);
+                let mut fused = Mixer::with_rows(kind, false, history, red_only);
+                let (mut xp, mut xf) = (
+                    ScatteringSelfEnergy::zeros(ne, ns),
+                    ScatteringSelfEnergy::zeros(ne, ns),
+                );
+                for it in 0..8 {
+                    let (fp, ff) = (f(&xp), f(&xf));
+                    let want = plain.update(&mut xp, &fp);
+                    let mut u = fused.begin_fused(&xf).expect("fusable");
+                    let hook = fused.row_hook(&mut u);
+                    for k in (0..ne).filter(|&k| Some(k) != skip) {
+                        let at = k * ns..(k + 1) * ns;
+                        hook.row(k, &xf, &ff.retarded[at.clone()], &ff.inscatter[at]);
+                    }
+                    let sums = hook.into_sums();
+                    let got = fused.finish_fused(u, sums, &mut xf, &ff);
+                    assert_eq!(want, got, "{history:?} {red_only:?} {skip:?} step {it}");
+                    let bits = |x: &ScatteringSelfEnergy| -> Vec<u64> {
+                        flat(x).iter().map(|v| v.to_bits()).collect()
+                    };
+                    assert!(
+                        bits(&xp) == bits(&xf),
+                        "{history:?} {red_only:?} {skip:?} step {it}"
+                    );
+                }
+                assert_ne!(flat(&xp), flat(&ScatteringSelfEnergy::zeros(ne, ns)));
             }
         }
     }

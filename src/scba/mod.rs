@@ -76,7 +76,7 @@ pub mod split;
 mod undetermined;
 
 pub use contacts::ContactFlows;
-pub use mixing::Mixer;
+pub use mixing::{FusedUpdate, Mixer, RowHook};
 pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
 use split::Share;
 pub use split::{ClusterSplit, EnergySplit, with_energy_split};
@@ -249,6 +249,13 @@ fn change_sums(a: &ScatteringSelfEnergy, k: usize, r: &[C64], i: &[f64]) -> [f64
         &a.retarded[k * ns..(k + 1) * ns],
         &a.inscatter[k * ns..(k + 1) * ns],
     );
+    row_change_sums(ar, ai, r, i)
+}
+
+/// [`change_sums`] from the row (`ar`, `ai`) of Σ0 to the row (`r`, `i`)
+/// of its image.
+fn row_change_sums(ar: &[C64], ai: &[f64], r: &[C64], i: &[f64]) -> [f64; 6] {
+    let ns = r.len();
     let mut acc = [0.0; 6];
     for s in 0..ns {
         let (bi, aiv) = (i[s], ai[s]);
@@ -1327,10 +1334,21 @@ impl<'a> BornLoop<'a> {
         let mut levels = contacts::starting_levels(problem);
         let probes = problem.has_floating_contacts();
         let coherent = problem.scattering.is_coherent();
+        // The black rows of the image are needed only by the cut-off watch
+        // and a mixer that reads them.
+        let image_black = self.isolation.is_some() || !mixer.reads_red_rows_only();
         loop {
+            // The mixer's first pass is taken inside the image pass when it
+            // can be (see `Mixer::begin_fused`), even if no step follows.
+            let mut fused = share.is_none().then(|| mixer.begin_fused(&x)).flatten();
+            let hook = fused.as_mut().map(|u| mixer.row_hook(u));
+            let row_fn =
+                (hook.as_ref()).map(|h| move |k: usize, x: &_, r: &_, i: &_| h.row(k, x, r, i));
             let maps = BornMaps {
                 hilbert: self.hilbert.as_ref(),
                 lattice: self.lattice.as_deref(),
+                image_black,
+                mixer_rows: row_fn.as_ref().map(|f| f as &MixerRows),
                 ..BornMaps::plain(problem, self.leads, &levels, coherent, split.as_deref())
             };
             let iteration = self.report.iterations + 1;
@@ -1339,6 +1357,8 @@ impl<'a> BornLoop<'a> {
                 Some(s) => sweep_shared(&maps, s, order, &mut x, &mut p, &mut fx, iteration),
                 None => sweep(&maps, order, &mut x, &mut p, &mut fx, iteration),
             }?;
+            let sums = hook.map(RowHook::into_sums);
+            let fused = fused.zip(sums);
             black_ready = true;
             let (il, ir) = terminal_currents(problem, &p.flows);
             ensure_not_diverged(iteration, residual, (il, ir))?;
@@ -1359,7 +1379,10 @@ impl<'a> BornLoop<'a> {
                 "final"
             } else {
                 contacts::float_levels(problem, &p, &mut levels);
-                mix(&mut mixer, share.as_ref(), &mut x, &fx)?
+                match fused {
+                    Some((u, sums)) => mixer.finish_fused(u, sums, &mut x, &fx),
+                    None => mix(&mut mixer, share.as_ref(), &mut x, &fx)?,
+                }
             };
             let record = IterationRecord {
                 iteration,
@@ -1495,7 +1518,17 @@ struct BornMaps<'a> {
     /// The processes sharing the energies of each pass (see [`split`]);
     /// `None`: this process computes them all.
     split: Option<&'a dyn EnergySplit>,
+    /// The image F(Σ0) must hold the black rows too (red-black order);
+    /// when false and they are their own image, they are not written.
+    image_black: bool,
+    /// Hands each row of the image built row by row to the mixer as it is
+    /// built (see [`Mixer::begin_fused`]): energy index, Σ0, the row's
+    /// Σ^r_0 and Σ^in_0.
+    mixer_rows: Option<&'a MixerRows<'a>>,
 }
+
+/// What takes each image row to the mixer (see [`BornMaps::mixer_rows`]).
+type MixerRows<'a> = dyn Fn(usize, &ScatteringSelfEnergy, &[C64], &[f64]) + Sync + 'a;
 
 impl<'a> BornMaps<'a> {
     /// The maps at the bath temperatures without the Hermitian part.
@@ -1514,6 +1547,8 @@ impl<'a> BornMaps<'a> {
             levels,
             transmission,
             split,
+            image_black: true,
+            mixer_rows: None,
         }
     }
 }
@@ -1573,19 +1608,27 @@ fn sweep(
 ) -> Result<f64, SolveError> {
     let problem = maps.problem;
     let local = p.blocks.is_none() && problem.scattering.row_local();
+    let mut black_sums = None;
     match red_black {
         Some(w) => {
             let red = move |k: usize| (k / w).is_multiple_of(2);
             pass_part(maps, x, red, p)?;
             if local {
-                let bad = maps.rebuild_rows(p, x, |k| !red(k), first_bad);
-                if let Some((idx, part)) = bad.into_iter().flatten().next() {
+                // Black rows that are their own image and need not be
+                // written there: their change sums are taken here.
+                let own = black_from_red(problem, w) && !maps.image_black;
+                let each = |k: usize, r: &[C64], i: &[f64]| {
+                    (first_bad(k, r, i), own.then(|| row_change_sums(r, i, r, i)))
+                };
+                let rows = maps.rebuild_rows(p, x, |k| !red(k), each);
+                if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
                     // Report it where a rebuild of every row shows it
                     // first (the lowest energy), as the other route does.
                     maps.rebuild(p, fx);
                     ensure_finite(fx, problem, iteration)?;
                     return Err(self_energy_fault(problem, x, iteration, idx, part));
                 }
+                black_sums = own.then(|| rows.into_iter().filter_map(|(_, s)| s).collect());
             } else {
                 maps.rebuild(p, fx);
                 ensure_finite(fx, problem, iteration)?;
@@ -1597,7 +1640,7 @@ fn sweep(
     }
     if local {
         let black_done = red_black.filter(|&w| black_from_red(problem, w));
-        return image_change_local(maps, black_done, x, p, fx, iteration);
+        return image_change_local(maps, black_done, black_sums, x, p, fx, iteration);
     }
     maps.rebuild(p, fx);
     // A non-finite Σ0 would poison the next pass (or, with finite but huge
@@ -1622,11 +1665,15 @@ fn black_from_red(problem: &Problem, w: usize) -> bool {
 /// this sweep from red Green's functions that the black pass did not
 /// touch ([`black_from_red`]): their image is those rows themselves, bit
 /// for bit, so they are copied instead of rebuilt (no reads of G at
-/// E ± ħω for half the grid). The sums are added in row order either way,
-/// so the change is the same number.
+/// E ± ħω for half the grid), or with `black_sums` (their change sums,
+/// taken when they were rebuilt) not written at all. The sums are added
+/// in row order either way, so the change is the same number. Each row
+/// rebuilt is handed to the mixer ([`BornMaps::mixer_rows`]) while in
+/// cache.
 fn image_change_local(
     maps: &BornMaps<'_>,
     black_done: Option<usize>,
+    black_sums: Option<Vec<[f64; 6]>>,
     x: &ScatteringSelfEnergy,
     p: &Pass,
     fx: &mut ScatteringSelfEnergy,
@@ -1634,14 +1681,22 @@ fn image_change_local(
 ) -> Result<f64, SolveError> {
     let problem = maps.problem;
     let red = move |k: usize| black_done.is_none_or(|w| (k / w).is_multiple_of(2));
-    let each = |k: usize, r: &[C64], i: &[f64]| (first_bad(k, r, i), change_sums(x, k, r, i));
+    let mixer_rows = maps.mixer_rows;
+    let each = |k: usize, r: &[C64], i: &[f64]| {
+        let row = (first_bad(k, r, i), change_sums(x, k, r, i));
+        if let Some(mix) = mixer_rows {
+            mix(k, x, r, i);
+        }
+        row
+    };
     let rows = maps.rebuild_rows(p, fx, red, each);
     if let Some((idx, part)) = rows.iter().find_map(|(bad, _)| *bad) {
         return Err(self_energy_fault(problem, fx, iteration, idx, part));
     }
-    let copied = match black_done {
-        Some(_) => copy_rows_with(x, fx, |k| !red(k), |k, r, i| change_sums(x, k, r, i)),
-        None => Vec::new(),
+    let copied = match (black_done, black_sums) {
+        (Some(_), Some(sums)) => sums,
+        (Some(_), None) => copy_rows_with(x, fx, |k| !red(k), |k, r, i| change_sums(x, k, r, i)),
+        (None, _) => Vec::new(),
     };
     let (mut from_red, mut from_black) = (rows.iter().map(|(_, s)| s), copied.iter());
     let mut tot = [0.0; 6];
