@@ -791,4 +791,31 @@ mod tests {
         assert!(caught.is_err());
         assert!(current().is_none(), "restored after a panic");
     }
+
+    /// The decoders' shared reader takes exactly the numbers of a message
+    /// of work, with their bits: a wrong tag, a short message and bytes
+    /// left over are each refused.
+    #[test]
+    fn the_decoders_reader_takes_exactly_the_numbers_of_a_message() {
+        let read_two = |bytes: &[u8]| {
+            let mut numbers = Numbers::new(bytes)?;
+            let mut v = [7.0; 2];
+            for x in &mut v {
+                numbers.read(x);
+            }
+            numbers.finish().map(|()| v)
+        };
+        let mut bytes = vec![0u8];
+        put_f64(&mut bytes, 1.5);
+        put_f64(&mut bytes, -0.1);
+        assert_eq!(read_two(&bytes), Some([1.5, -0.1]));
+        assert_eq!(read_two(&bytes[..9]), None, "short");
+        let mut long = bytes.clone();
+        long.push(0);
+        assert_eq!(read_two(&long), None, "left over");
+        let mut tagged = bytes.clone();
+        tagged[0] = 1;
+        assert_eq!(read_two(&tagged), None, "not work");
+        assert_eq!(read_two(&[]), None, "empty");
+    }
 }
