@@ -15,8 +15,9 @@
 
 use super::Side;
 use crate::C64;
-use faer::Mat;
+use faer::diag::DiagRef;
 use faer::linalg::solvers::DenseSolveCore;
+use faer::{Mat, MatRef};
 
 fn norm(m: &Mat<C64>) -> f64 {
     m.norm_l2()
@@ -72,11 +73,44 @@ pub fn mode_self_energy(
     side: Side,
 ) -> Option<Mat<C64>> {
     let b = h00.nrows();
-    let e = C64::new(energy_ev, 0.0);
-    let zero = C64::new(0.0, 0.0);
     let (a, bm) = mode_pencil(energy_ev, h00, v);
     let eig = a.generalized_eigen(&bm).ok()?;
     let (u, sa, sb) = (eig.U(), eig.S_a(), eig.S_b());
+    let chosen = lead_modes(u, sa, sb, v, side);
+    if chosen.len() != b {
+        return None;
+    }
+    let f = cell_transfer(u, &chosen, side);
+    let vd = v.adjoint().to_owned();
+    let (near, far) = match side {
+        Side::Right => (v, &vd),
+        Side::Left => (&vd, v),
+    };
+    if !solves_quadratic(energy_ev, h00, v, near, far, &f) {
+        return None;
+    }
+    let sigma = near * &f;
+    // Γ must be positive semi-definite: its trace at least.
+    let gamma_trace: f64 = (0..b).map(|i| -2.0 * sigma[(i, i)].im).sum();
+    if gamma_trace.is_nan() || gamma_trace < -1e-10 * norm(&sigma) {
+        return None;
+    }
+    Some(sigma)
+}
+
+/// The modes (column of the eigenvectors `u` of the pencil, λ) that belong
+/// to the lead on `side`, from the generalized eigenvalues λ = α/β
+/// (`sa`, `sb`): those that decay away from the device, and of those with
+/// |λ| = 1 the ones whose particle flow −2 Im(λ u†V u) points away from it.
+fn lead_modes(
+    u: MatRef<'_, C64>,
+    sa: DiagRef<'_, C64>,
+    sb: DiagRef<'_, C64>,
+    v: &Mat<C64>,
+    side: Side,
+) -> Vec<(usize, C64)> {
+    let b = v.nrows();
+    let zero = C64::new(0.0, 0.0);
     let mut chosen: Vec<(usize, C64)> = Vec::with_capacity(b);
     let tol_unit = 1e-8;
     for j in 0..2 * b {
@@ -110,9 +144,15 @@ pub fn mode_self_energy(
             chosen.push((j, lam));
         }
     }
-    if chosen.len() != b {
-        return None;
-    }
+    chosen
+}
+
+/// The cell-to-cell transfer matrix away from the device built from the
+/// `chosen` modes of the pencil eigenvectors `u`: F = U Λ U⁻¹ on the right,
+/// F⁻ = U Λ⁻¹ U⁻¹ on the left (a mode with λ = ∞ contributes 0 there).
+fn cell_transfer(u: MatRef<'_, C64>, chosen: &[(usize, C64)], side: Side) -> Mat<C64> {
+    let b = chosen.len();
+    let zero = C64::new(0.0, 0.0);
     let umat = Mat::from_fn(b, b, |r, c| u[(b + r, chosen[c].0)]);
     let uinv = umat.partial_piv_lu().inverse();
     let factor = |l: C64| match side {
@@ -126,9 +166,22 @@ pub fn mode_self_energy(
         }
     };
     let lam = Mat::from_fn(b, b, |r, c| if r == c { factor(chosen[r].1) } else { zero });
-    let f = &umat * &lam * &uinv;
-    // Check the matrix quadratic: right (E−H00)F − V F² − V† = 0,
-    // left (E−H00)F − V†F² − V = 0.
+    &umat * &lam * &uinv
+}
+
+/// Whether `f` satisfies the matrix quadratic (E − H00) F − near F² − far = 0
+/// to a relative 10⁻⁹ (right lead: near = V, far = V†; left lead the other
+/// way round).
+fn solves_quadratic(
+    energy_ev: f64,
+    h00: &Mat<C64>,
+    v: &Mat<C64>,
+    near: &Mat<C64>,
+    far: &Mat<C64>,
+    f: &Mat<C64>,
+) -> bool {
+    let b = h00.nrows();
+    let e = C64::new(energy_ev, 0.0);
     let ehm = Mat::from_fn(b, b, |r, c| {
         if r == c {
             e - h00[(r, c)]
@@ -136,21 +189,7 @@ pub fn mode_self_energy(
             -h00[(r, c)]
         }
     });
-    let vd = v.adjoint().to_owned();
-    let (near, far) = match side {
-        Side::Right => (v, &vd),
-        Side::Left => (&vd, v),
-    };
-    let res = &ehm * &f - near * &f * &f - far;
-    let scale = (norm(&ehm) + norm(v)) * (1.0 + norm(&f)) * (1.0 + norm(&f));
-    if norm(&res).is_nan() || norm(&res) > 1e-9 * scale {
-        return None;
-    }
-    let sigma = near * &f;
-    // Γ must be positive semi-definite: its trace at least.
-    let gamma_trace: f64 = (0..b).map(|i| -2.0 * sigma[(i, i)].im).sum();
-    if gamma_trace.is_nan() || gamma_trace < -1e-10 * norm(&sigma) {
-        return None;
-    }
-    Some(sigma)
+    let res = &ehm * f - near * f * f - far;
+    let scale = (norm(&ehm) + norm(v)) * (1.0 + norm(f)) * (1.0 + norm(f));
+    !(norm(&res).is_nan() || norm(&res) > 1e-9 * scale)
 }

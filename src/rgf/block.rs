@@ -273,36 +273,8 @@ fn forward_sweep(
     let last = n - 1;
     let [t0, t1, ..] = &mut s.t;
     for i in 0..n {
-        let m = &mut s.m;
-        let sin = &mut *t0;
-        cell_inputs(input, exchange, i, m, sin);
-        if i == 0 {
-            *m -= input.sigma_left;
-            *sin += input.inscatter_left;
-        }
-        if i == last {
-            *m -= input.sigma_right;
-            *sin += input.inscatter_right;
-        }
-        if i > 0 {
-            let tau = input.coupling[i - 1].as_ref();
-            let x = s.x[i - 1].as_ref();
-            mul(m.as_mut(), Accum::Add, Op::H(tau), Op::N(x), MINUS_ONE);
-            mul(
-                t1.as_mut(),
-                Accum::Replace,
-                Op::N(gn[i - 1].as_ref()),
-                Op::N(tau),
-                ONE,
-            );
-            mul(
-                sin.as_mut(),
-                Accum::Add,
-                Op::H(tau),
-                Op::N(t1.as_ref()),
-                ONE,
-            );
-        }
+        let left = (i > 0).then(|| (&s.x[i - 1], &gn[i - 1]));
+        cell_system(input, exchange, i, left, &mut s.m, t0, t1);
         invert_into(
             &mut s.m,
             &mut g[i],
@@ -316,20 +288,7 @@ fn forward_sweep(
                 cell: i,
             });
         }
-        mul(
-            t1.as_mut(),
-            Accum::Replace,
-            Op::N(g[i].as_ref()),
-            Op::N(sin.as_ref()),
-            ONE,
-        );
-        mul(
-            gn[i].as_mut(),
-            Accum::Replace,
-            Op::N(t1.as_ref()),
-            Op::H(g[i].as_ref()),
-            ONE,
-        );
+        filled_into(&g[i], t0, t1, &mut gn[i]);
         if i < last {
             let tau = input.coupling[i].as_ref();
             mul(
@@ -342,6 +301,72 @@ fn forward_sweep(
         }
     }
     Ok(())
+}
+
+/// M_i = E − H_ii − Σ_ii − τ† X_{i−1} and S_i = Σ^in_ii + τ† (g^n_{i−1} τ)
+/// of cell `i` in full: the scattering self-energy, the lead's at either
+/// end, and the left-connected part from `left` = (X_{i−1}, g^n_{i−1})
+/// (`None` for the first cell). `t1` is scratch.
+fn cell_system(
+    input: &EnergyInput<'_>,
+    exchange: Option<&BlockExchange<'_>>,
+    i: usize,
+    left: Option<(&Mat<C64>, &Mat<C64>)>,
+    m: &mut Mat<C64>,
+    sin: &mut Mat<C64>,
+    t1: &mut Mat<C64>,
+) {
+    cell_inputs(input, exchange, i, m, sin);
+    if i == 0 {
+        *m -= input.sigma_left;
+        *sin += input.inscatter_left;
+    }
+    if i == input.onsite.len() - 1 {
+        *m -= input.sigma_right;
+        *sin += input.inscatter_right;
+    }
+    if let Some((x, gn)) = left {
+        let tau = input.coupling[i - 1].as_ref();
+        mul(
+            m.as_mut(),
+            Accum::Add,
+            Op::H(tau),
+            Op::N(x.as_ref()),
+            MINUS_ONE,
+        );
+        mul(
+            t1.as_mut(),
+            Accum::Replace,
+            Op::N(gn.as_ref()),
+            Op::N(tau),
+            ONE,
+        );
+        mul(
+            sin.as_mut(),
+            Accum::Add,
+            Op::H(tau),
+            Op::N(t1.as_ref()),
+            ONE,
+        );
+    }
+}
+
+/// g^n_i = (g_i S_i) g_i† into `gn`, with `sin` = S_i; `t1` is scratch.
+fn filled_into(g: &Mat<C64>, sin: &Mat<C64>, t1: &mut Mat<C64>, gn: &mut Mat<C64>) {
+    mul(
+        t1.as_mut(),
+        Accum::Replace,
+        Op::N(g.as_ref()),
+        Op::N(sin.as_ref()),
+        ONE,
+    );
+    mul(
+        gn.as_mut(),
+        Accum::Replace,
+        Op::N(t1.as_ref()),
+        Op::H(g.as_ref()),
+        ONE,
+    );
 }
 
 /// g ← M⁻¹ by one LU factorisation of `m` (overwritten).

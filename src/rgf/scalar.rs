@@ -270,6 +270,78 @@ mod tests {
         Mat::from_fn(1, 1, |_, _| z)
     }
 
+    /// A chain with uneven on-site energies, complex couplings and a
+    /// scattering self-energy on every cell.
+    struct Chain {
+        onsite: Vec<Mat<C64>>,
+        coupling: Vec<Mat<C64>>,
+        /// Σ^r of the scattering.
+        retarded: Vec<C64>,
+        /// One Σ^in of the scattering.
+        bath_in: Vec<f64>,
+        /// The Σ^in −2 Im Σ^r of a bath that fills every state.
+        bath_filled: Vec<f64>,
+    }
+
+    /// The [`Chain`] of `n` cells every test here uses.
+    fn uneven_chain(n: usize) -> Chain {
+        let retarded: Vec<C64> = (0..n)
+            .map(|i| C64::new(-0.002 * i as f64, -0.003 - 0.001 * (i % 3) as f64))
+            .collect();
+        Chain {
+            onsite: (0..n)
+                .map(|i| one(C64::new(0.1 + 0.013 * (i * i % 5) as f64, 0.0)))
+                .collect(),
+            coupling: (0..n - 1)
+                .map(|i| one(C64::from_polar(0.25 + 0.01 * i as f64, 0.3 * i as f64)))
+                .collect(),
+            bath_in: (0..n).map(|i| 0.004 + 0.0005 * i as f64).collect(),
+            bath_filled: retarded.iter().map(|x| -2.0 * x.im).collect(),
+            retarded,
+        }
+    }
+
+    /// The full blocks of one ordinary call of the general recursion.
+    fn ordinary_blocks(input: &EnergyInput<'_>) -> FullBlocks {
+        let n = input.onsite.len();
+        let mut ws = Workspace::new(n, 1);
+        let (mut r, mut f, mut b) = (vec![C64::new(0.0, 0.0); n], vec![0.0; n], vec![0.0; n - 1]);
+        let mut full = FullBlocks::default();
+        let out = EnergyOutput {
+            retarded: &mut r,
+            filled: &mut f,
+            bond: &mut b,
+            full: Some(&mut full),
+        };
+        solve_energy(input, &mut ws, out).unwrap();
+        full
+    }
+
+    /// `got` holds G^n_ii and G^n_i+1,i of `full` bit for bit (and G^n_ii
+    /// of `full` is real); `what` names the case in a failure.
+    fn assert_same_filled(got: &ScalarFilled, full: &FullBlocks, what: &str) {
+        let n = full.filled_diagonal.len();
+        for i in 0..n {
+            let want = full.filled_diagonal[i][(0, 0)];
+            assert_eq!(want.im, 0.0);
+            assert_eq!(
+                got.diagonal[i].to_bits(),
+                want.re.to_bits(),
+                "{what}, G^n_{i}{i}"
+            );
+        }
+        for i in 0..n - 1 {
+            let want = full.filled_lower[i][(0, 0)];
+            let have = got.lower[i];
+            assert_eq!(
+                (have.re.to_bits(), have.im.to_bits()),
+                (want.re.to_bits(), want.im.to_bits()),
+                "{what}, G^n_{}{i}",
+                i + 1
+            );
+        }
+    }
+
     /// Both source sets of the two-source recursion give, bit for bit, the
     /// full blocks of one ordinary call each: the movers' pass relies on
     /// that to leave its results unchanged. A chain of 7 cells with
@@ -277,24 +349,13 @@ mod tests {
     /// self-energy on every cell, at energies in and outside the band.
     #[test]
     fn two_sources_equal_two_solves_bit_for_bit() {
-        let n = 7;
-        let onsite: Vec<Mat<C64>> = (0..n)
-            .map(|i| one(C64::new(0.1 + 0.013 * (i * i % 5) as f64, 0.0)))
-            .collect();
-        let coupling: Vec<Mat<C64>> = (0..n - 1)
-            .map(|i| one(C64::from_polar(0.25 + 0.01 * i as f64, 0.3 * i as f64)))
-            .collect();
-        let retarded: Vec<C64> = (0..n)
-            .map(|i| C64::new(-0.002 * i as f64, -0.003 - 0.001 * (i % 3) as f64))
-            .collect();
-        let bath_in: Vec<f64> = (0..n).map(|i| 0.004 + 0.0005 * i as f64).collect();
-        let bath_filled: Vec<f64> = retarded.iter().map(|x| -2.0 * x.im).collect();
+        let chain = uneven_chain(7);
         let (sl, sr) = (C64::new(-0.05, -0.12), C64::new(0.02, -0.09));
         let gamma = |s: C64, f: f64| -2.0 * s.im * f;
         for e in [-0.3, 0.05, 0.21, 0.4, 1.7] {
             let sets = [
-                (gamma(sl, 0.8), gamma(sr, 0.3), &bath_in),
-                (gamma(sl, 1.0), gamma(sr, 1.0), &bath_filled),
+                (gamma(sl, 0.8), gamma(sr, 0.3), &chain.bath_in),
+                (gamma(sl, 1.0), gamma(sr, 1.0), &chain.bath_filled),
             ];
             let sources = sets.map(|(left, right, scatter_in)| ScalarSources {
                 left,
@@ -307,27 +368,17 @@ mod tests {
                 let (inl, inr) = (one(C64::new(src.left, 0.0)), one(C64::new(src.right, 0.0)));
                 let input = EnergyInput {
                     energy_ev: e,
-                    onsite: &onsite,
-                    coupling: &coupling,
+                    onsite: &chain.onsite,
+                    coupling: &chain.coupling,
                     sigma_left: &sigma_left,
                     sigma_right: &sigma_right,
                     inscatter_left: &inl,
                     inscatter_right: &inr,
-                    scatter_retarded: &retarded,
+                    scatter_retarded: &chain.retarded,
                     scatter_in: src.scatter_in,
                     want_transmission: false,
                 };
-                let mut ws = Workspace::new(n, 1);
-                let (mut r, mut f, mut b) =
-                    (vec![C64::new(0.0, 0.0); n], vec![0.0; n], vec![0.0; n - 1]);
-                let mut full = FullBlocks::default();
-                let out = EnergyOutput {
-                    retarded: &mut r,
-                    filled: &mut f,
-                    bond: &mut b,
-                    full: Some(&mut full),
-                };
-                solve_energy(&input, &mut ws, out).unwrap();
+                let full = ordinary_blocks(&input);
                 // The other set's sources must not be read from `input`.
                 let other = &sources[1 - set];
                 let (inl2, inr2) = (
@@ -341,26 +392,7 @@ mod tests {
                     ..input
                 };
                 solve_two_sources_scalar(&input, sources, &mut two).unwrap();
-                let got = &two.filled[set];
-                for i in 0..n {
-                    let want = full.filled_diagonal[i][(0, 0)];
-                    assert_eq!(want.im, 0.0);
-                    assert_eq!(
-                        got.diagonal[i].to_bits(),
-                        want.re.to_bits(),
-                        "E {e}, set {set}, G^n_{i}{i}"
-                    );
-                }
-                for i in 0..n - 1 {
-                    let want = full.filled_lower[i][(0, 0)];
-                    let have = got.lower[i];
-                    assert_eq!(
-                        (have.re.to_bits(), have.im.to_bits()),
-                        (want.re.to_bits(), want.im.to_bits()),
-                        "E {e}, set {set}, G^n_{}{i}",
-                        i + 1
-                    );
-                }
+                assert_same_filled(&two.filled[set], &full, &format!("E {e}, set {set}"));
             }
         }
     }

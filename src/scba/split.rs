@@ -308,22 +308,15 @@ impl<'a> Share<'a> {
         q: usize,
         bytes: &[u8],
     ) -> Option<()> {
-        let (&0, body) = bytes.split_first()? else {
-            return None;
-        };
-        let mut r = Reader::new(body);
-        let mut short = false;
-        let mut read = |v: &mut f64| match r.f64() {
-            Some(x) => *v = x,
-            None => short = true,
-        };
+        let mut numbers = Numbers::new(bytes)?;
+        let mut read = |v: &mut f64| numbers.read(v);
         for k in self.rows_of(q).into_iter().filter(|&k| rows(k)) {
             each_flow(pass, k, &mut read);
             if self.read_elsewhere(k, q) {
                 each_green(pass, k, &mut read);
             }
         }
-        (!short && r.is_empty()).then_some(())
+        numbers.finish()
     }
 
     /// The total of every process's chunk sums `parts` (`width` numbers
@@ -533,18 +526,44 @@ fn decode_rows(
     rows: &[usize],
     bytes: &[u8],
 ) -> Option<()> {
-    let (&0, body) = bytes.split_first()? else {
-        return None;
-    };
-    let mut r = Reader::new(body);
-    let mut short = false;
+    let mut numbers = Numbers::new(bytes)?;
     for &k in rows {
-        each_number(pass, sigma.as_deref_mut(), k, &mut |v| match r.f64() {
-            Some(x) => *v = x,
-            None => short = true,
-        });
+        each_number(pass, sigma.as_deref_mut(), k, &mut |v| numbers.read(v));
     }
-    (!short && r.is_empty()).then_some(())
+    numbers.finish()
+}
+
+/// The numbers of a message of work (a 0, then numbers), read in order
+/// into the places the decoders walk; a read past the end is remembered.
+struct Numbers<'a> {
+    reader: Reader<'a>,
+    short: bool,
+}
+
+impl<'a> Numbers<'a> {
+    /// `None` when `bytes` is not a message of work.
+    fn new(bytes: &'a [u8]) -> Option<Self> {
+        let (&0, body) = bytes.split_first()? else {
+            return None;
+        };
+        Some(Self {
+            reader: Reader::new(body),
+            short: false,
+        })
+    }
+
+    /// Write the next number into `v`; past the end, leave `v` as it is.
+    fn read(&mut self, v: &mut f64) {
+        match self.reader.f64() {
+            Some(x) => *v = x,
+            None => self.short = true,
+        }
+    }
+
+    /// `Some` when every read found a number and none is left over.
+    fn finish(self) -> Option<()> {
+        (!self.short && self.reader.is_empty()).then_some(())
+    }
 }
 
 /// The failure to report when some processes sent failures instead of
@@ -771,5 +790,32 @@ mod tests {
         });
         assert!(caught.is_err());
         assert!(current().is_none(), "restored after a panic");
+    }
+
+    /// The decoders' shared reader takes exactly the numbers of a message
+    /// of work, with their bits: a wrong tag, a short message and bytes
+    /// left over are each refused.
+    #[test]
+    fn the_decoders_reader_takes_exactly_the_numbers_of_a_message() {
+        let read_two = |bytes: &[u8]| {
+            let mut numbers = Numbers::new(bytes)?;
+            let mut v = [7.0; 2];
+            for x in &mut v {
+                numbers.read(x);
+            }
+            numbers.finish().map(|()| v)
+        };
+        let mut bytes = vec![0u8];
+        put_f64(&mut bytes, 1.5);
+        put_f64(&mut bytes, -0.1);
+        assert_eq!(read_two(&bytes), Some([1.5, -0.1]));
+        assert_eq!(read_two(&bytes[..9]), None, "short");
+        let mut long = bytes.clone();
+        long.push(0);
+        assert_eq!(read_two(&long), None, "left over");
+        let mut tagged = bytes.clone();
+        tagged[0] = 1;
+        assert_eq!(read_two(&tagged), None, "not work");
+        assert_eq!(read_two(&[]), None, "empty");
     }
 }

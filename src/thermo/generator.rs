@@ -714,6 +714,26 @@ fn check_settings(settings: &GeneratorSettings) -> Result<(), CurveError> {
     Ok(())
 }
 
+/// The linear-response coefficients of `case` with both leads at the mean
+/// temperature `tm` and the Fermi level `mu`, and the grid they were
+/// computed on.
+fn mean_temperature_coefficients(
+    case: &Case,
+    mu: f64,
+    tm: f64,
+) -> Result<(Coefficients, CommonGrid), CurveError> {
+    let mean = BiasedCase::new(
+        case,
+        mu,
+        LeadTemperatures {
+            left_k: tm,
+            right_k: tm,
+        },
+    )?;
+    let set = case_coefficients(mean.case(), &mut Silent)?;
+    Ok((set.coefficients, set.grid))
+}
+
 /// Power and efficiency of the device as a generator between a hot lead 1
 /// and a cold lead 2; see the module notes for conventions.
 pub fn generator(
@@ -725,16 +745,7 @@ pub fn generator(
     let (th, tc) = (settings.hot_k, settings.cold_k);
     let (mu, _) = super::of_case::reference_point(case)?;
     let tm = 0.5 * (th + tc);
-    let mean = BiasedCase::new(
-        case,
-        mu,
-        LeadTemperatures {
-            left_k: tm,
-            right_k: tm,
-        },
-    )?;
-    let set = case_coefficients(mean.case(), &mut Silent)?;
-    let (coefficients, coefficient_grid) = (set.coefficients, set.grid);
+    let (coefficients, coefficient_grid) = mean_temperature_coefficients(case, mu, tm)?;
     let mut dev = BiasedCase::new(
         case,
         mu,
