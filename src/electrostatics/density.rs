@@ -259,12 +259,13 @@ fn edge_broadening(sol: &Solution, energies: &[f64], cell: usize, edges: &[f64])
 }
 
 /// Broadening, in grid steps, below which a band edge is taken as sharp
-/// (the weights of [`edge_weights`] alone) and from which it is taken as
+/// (the weights of [`edge_weights`] alone; zero: only a coherent edge) and
+/// from which it is taken as
 /// resolved by the grid (the plain rule of the grid alone); see
 /// [`broadened_edge_weights`].
-const SHARP_BELOW_STEPS: f64 = 0.25;
+const SHARP_BELOW_STEPS: f64 = 0.0;
 /// See [`SHARP_BELOW_STEPS`].
-const RESOLVED_FROM_STEPS: f64 = 1.0;
+const RESOLVED_FROM_STEPS: f64 = 0.5;
 
 /// Quadrature weights for the electrons of a cell whose band edge is
 /// broadened by η (eV) by scattering.
@@ -283,9 +284,13 @@ const RESOLVED_FROM_STEPS: f64 = 1.0;
 /// against the potential 2.4 times the true one, and kinks where the edge
 /// crosses a node, which stalled the self-consistent loop). The weights
 /// are therefore blended, q = (1 − λ) q_edge + λ q_grid, with λ rising
-/// smoothly (a cubic step) from 0 at η = `SHARP_BELOW_STEPS`·h to 1 at
-/// η = `RESOLVED_FROM_STEPS`·h: continuous in η and in the edges, the
-/// sharp-edge weights unchanged for a coherent device.
+/// smoothly (a cubic step) from 0 at η = `SHARP_BELOW_STEPS`·h (zero: a
+/// coherent cell) to 1 at η = `RESOLVED_FROM_STEPS`·h: continuous in η and
+/// in the edges, the sharp-edge weights unchanged for a coherent device.
+/// On a model broadened edge the plain rule is already the better of the
+/// two at a tenth of a step (see the tests), and on the doped demo cooler
+/// this window let the cooler's march go three times as far as a window
+/// from a quarter to one step.
 pub fn broadened_edge_weights(energies: &[f64], edges: &[f64], eta: f64) -> Vec<f64> {
     let ne = energies.len();
     if ne < 2 {
@@ -508,47 +513,57 @@ mod tests {
     /// under a self-energy −iη (common practice: the retarded Green's
     /// function of a chain near its band bottom goes as (E − c + iη)^(−1/2)),
     /// times a Fermi function. Its electrons, counted with the blended
-    /// weights, match a fine-grid integral and hardly move as the edge
-    /// slides across a grid step; the sharp-edge weights alone are off by
-    /// percents and follow the edge's place on the grid.
+    /// weights with the edge at 20 places across a 2 meV step, match a
+    /// fine-grid integral (400 points per step) far better than the
+    /// sharp-edge weights, which are off by 4–5 % whatever η: measured
+    /// 7.7e-3, 1.6e-3, 3.7e-4 and 1.1e-4 against 4.6e-2 to 4.8e-2 for
+    /// η = 0.5, 0.75, 1 and 1.35 steps. The bounds (a quarter of the sharp
+    /// error; 1e-3 from one step on, where the plain rule's error
+    /// e^(−2πη/h) is below 2e-3 of the edge's share) leave room for
+    /// rounding, not for a return to the sharp model.
     #[test]
     fn broadened_edge_is_counted_smoothly() {
         let (h, kt, mu) = (0.002, 0.0259, 0.01);
-        let eta = 1.35 * h;
         let energies: Vec<f64> = (0..400).map(|k| -0.2 + h * k as f64).collect();
-        let g = |e: f64, c: f64| {
-            let z = num_complex::Complex64::new(e - c, eta);
-            (1.0 / z.sqrt()).re * logistic((e - mu) / kt)
-        };
-        let fine = |c: f64| {
-            let n = 400 * 400;
-            let dh = h / 400.0;
-            (0..n)
-                .map(|j| g(-0.2 + (j as f64 + 0.5) * dh, c) * dh)
-                .sum::<f64>()
-        };
-        let count = |q: &[f64], c: f64| {
-            q.iter()
-                .zip(&energies)
-                .map(|(w, &e)| w * g(e, c))
-                .sum::<f64>()
-        };
-        let (mut new_err, mut old_err) = (0.0f64, 0.0f64);
-        for j in 0..20 {
-            let c = 0.0 + h * j as f64 / 20.0;
-            let exact = fine(c);
-            let blended = count(&broadened_edge_weights(&energies, &[c], eta), c);
-            let sharp = count(&edge_weights(&energies, &[c]), c);
-            new_err = new_err.max((blended / exact - 1.0).abs());
-            old_err = old_err.max((sharp / exact - 1.0).abs());
+        for steps in [0.5, 0.75, 1.0, 1.35] {
+            let eta = steps * h;
+            let g = |e: f64, c: f64| {
+                let z = num_complex::Complex64::new(e - c, eta);
+                (1.0 / z.sqrt()).re * logistic((e - mu) / kt)
+            };
+            let fine = |c: f64| {
+                let dh = h / 400.0;
+                (0..400 * 400)
+                    .map(|j| g(-0.2 + (j as f64 + 0.5) * dh, c) * dh)
+                    .sum::<f64>()
+            };
+            let count = |q: &[f64], c: f64| {
+                q.iter()
+                    .zip(&energies)
+                    .map(|(w, &e)| w * g(e, c))
+                    .sum::<f64>()
+            };
+            let (mut new_err, mut old_err) = (0.0f64, 0.0f64);
+            for j in 0..20 {
+                let c = h * j as f64 / 20.0;
+                let exact = fine(c);
+                let blended = count(&broadened_edge_weights(&energies, &[c], eta), c);
+                let sharp = count(&edge_weights(&energies, &[c]), c);
+                new_err = new_err.max((blended / exact - 1.0).abs());
+                old_err = old_err.max((sharp / exact - 1.0).abs());
+            }
+            assert!(
+                new_err < 0.25 * old_err,
+                "η = {steps} h: {new_err} {old_err}"
+            );
+            if steps >= 1.0 {
+                assert!(new_err < 1e-3, "η = {steps} h: {new_err}");
+            }
         }
-        eprintln!("blended {new_err:.3e} sharp {old_err:.3e}");
-        assert!(new_err < 1e-3, "{new_err}");
-        assert!(old_err > 10.0 * new_err, "{old_err} {new_err}");
     }
 
-    /// The blend is continuous in η: the sharp-edge weights at and below
-    /// a quarter step, the plain grid rule from one step on.
+    /// The blend is continuous in η: the sharp-edge weights at η = 0, the
+    /// plain grid rule from half a step on.
     #[test]
     fn blend_runs_from_sharp_to_grid() {
         let h = 0.001;
@@ -556,16 +571,21 @@ mod tests {
         let edges = [0.0123];
         let sharp = edge_weights(&energies, &edges);
         assert_eq!(broadened_edge_weights(&energies, &edges, 0.0), sharp);
-        assert_eq!(broadened_edge_weights(&energies, &edges, 0.25 * h), sharp);
-        let grid = broadened_edge_weights(&energies, &edges, h);
+        let grid = broadened_edge_weights(&energies, &edges, 0.5 * h);
         assert!(grid[..49].iter().all(|&w| (w - h).abs() < 1e-15) && grid[49] == 0.0);
-        let a = broadened_edge_weights(&energies, &edges, 0.6 * h);
-        let b = broadened_edge_weights(&energies, &edges, 0.6 * h * (1.0 + 1e-9));
+        let a = broadened_edge_weights(&energies, &edges, 0.3 * h);
+        let b = broadened_edge_weights(&energies, &edges, 0.3 * h * (1.0 + 1e-9));
         let jump = a
             .iter()
             .zip(&b)
             .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
-        assert!(jump < 1e-9 * h, "{jump}");
+        assert!(jump < 1e-8 * h, "{jump}");
+        let tiny = broadened_edge_weights(&energies, &edges, 1e-9 * h);
+        let near = tiny
+            .iter()
+            .zip(&sharp)
+            .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
+        assert!(near < 1e-12, "{near}");
     }
 
     /// Deep below the Fermi level a mode holds g_s electrons; far above it,
