@@ -35,10 +35,10 @@ use super::generator::{
     BiasedCase, CurveElectrostatics, CurveError, LeadTemperatures, REFINE_RELATIVE_WIDTH, Solved,
     carnot_cop, ioffe_max_cop, refine_max,
 };
-use super::of_case::{case_coefficients, reference_point};
+use super::of_case::reference_point;
 use crate::case::Case;
 use crate::leads::Side;
-use crate::progress::{Observer, Silent};
+use crate::progress::Observer;
 
 /// Settings of a cooler curve.
 #[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
@@ -415,16 +415,8 @@ pub fn cooler(
     };
     let tm = 0.5 * (th + tc);
     let (coefficients, coefficient_grid) = if settings.figure_of_merit {
-        let mean = BiasedCase::new(
-            case,
-            mu,
-            LeadTemperatures {
-                left_k: tm,
-                right_k: tm,
-            },
-        )?;
-        let set = case_coefficients(mean.case(), &mut Silent)?;
-        (Some(set.coefficients), Some(set.grid))
+        let (c, g) = super::generator::mean_temperature_coefficients(case, mu, tm)?;
+        (Some(c), Some(g))
     } else {
         (None, None)
     };

@@ -717,7 +717,7 @@ fn check_settings(settings: &GeneratorSettings) -> Result<(), CurveError> {
 /// The linear-response coefficients of `case` with both leads at the mean
 /// temperature `tm` and the Fermi level `mu`, and the grid they were
 /// computed on.
-fn mean_temperature_coefficients(
+pub(super) fn mean_temperature_coefficients(
     case: &Case,
     mu: f64,
     tm: f64,
