@@ -1332,7 +1332,6 @@ impl<'a> BornLoop<'a> {
         let mut black_ready = self.black_ready_at_start;
         // The levels of the attached contacts: probes float (see `contacts`).
         let mut levels = contacts::starting_levels(problem);
-        let probes = problem.has_floating_contacts();
         let coherent = problem.scattering.is_coherent();
         // The black rows of the image are needed only by the cut-off watch
         // and a mixer that reads them.
@@ -1360,20 +1359,10 @@ impl<'a> BornLoop<'a> {
             let sums = hook.map(RowHook::into_sums);
             let fused = fused.zip(sums);
             black_ready = true;
-            let (il, ir) = terminal_currents(problem, &p.flows);
-            ensure_not_diverged(iteration, residual, (il, ir))?;
-            let floor = current_floor(params, problem, &p.flows);
-            let current_change = current_change(params, (il, ir), previous, floor);
-            previous = Some((il, ir));
-            self.report.iterations = iteration;
-            let probe = probes.then(|| contacts::probe_residual(problem, &levels, &p));
-            self.report.probe_residual = probe;
-            let done = residual <= params.tolerance
-                && current_change <= 1.0
-                && probe.is_none_or(|r| r <= params.tolerance);
-            if let (Some(watch), false) = (self.isolation.as_mut(), done) {
-                watch.observe(problem, &x, &fx, iteration, residual)?;
-            }
+            let (il, ir, current_change) =
+                pass_currents(params, problem, &p, iteration, residual, &mut previous)?;
+            let measures = (residual, current_change);
+            let done = self.stops(&levels, &p, (&x, &fx), iteration, measures)?;
             let out_of_budget = iteration >= params.max_iterations;
             let step = if done || out_of_budget {
                 "final"
@@ -1392,26 +1381,92 @@ impl<'a> BornLoop<'a> {
                 current_change,
                 step,
             };
-            observer.iteration(&record);
-            self.report.history.push(record);
-            if observer.cancelled() {
-                return Err(SolveError::Cancelled { iteration });
-            }
+            self.record(record, observer)?;
             if done || out_of_budget {
                 self.report.converged = done;
                 if let Some(s) = &share {
                     s.gather_all(&mut p, &mut x)?;
                 }
-                return Ok(Solution {
-                    problem: contacts::with_levels(problem, &levels),
-                    pass: p,
-                    sigma: x,
-                    report: self.report,
-                    lattice_temperature_k: self.lattice,
-                });
+                return Ok(self.solution(&levels, p, x));
             }
         }
     }
+
+    /// Whether the loop has converged after `iteration` (counted in the
+    /// report): the Σ0 residual and the currents' change (in units of
+    /// their tolerance) of `measures`, and the floating probes' residual
+    /// (kept in the report), all within tolerance. While it has not, the
+    /// cut-off watch, if any, sees Σ0 and its image `sigma`.
+    fn stops(
+        &mut self,
+        levels: &[(f64, f64)],
+        p: &Pass,
+        sigma: (&ScatteringSelfEnergy, &ScatteringSelfEnergy),
+        iteration: usize,
+        measures: (f64, f64),
+    ) -> Result<bool, SolveError> {
+        let (problem, params) = (self.problem, self.params);
+        let (residual, current_change) = measures;
+        self.report.iterations = iteration;
+        let probe =
+            (problem.has_floating_contacts()).then(|| contacts::probe_residual(problem, levels, p));
+        self.report.probe_residual = probe;
+        let done = residual <= params.tolerance
+            && current_change <= 1.0
+            && probe.is_none_or(|r| r <= params.tolerance);
+        if let (Some(watch), false) = (self.isolation.as_mut(), done) {
+            watch.observe(problem, sigma.0, sigma.1, iteration, residual)?;
+        }
+        Ok(done)
+    }
+
+    /// Hand an iteration's record to the observer and keep it; a
+    /// cancellation asked for by the observer ends the loop.
+    fn record(
+        &mut self,
+        record: IterationRecord,
+        observer: &mut dyn Observer,
+    ) -> Result<(), SolveError> {
+        observer.iteration(&record);
+        let iteration = record.iteration;
+        self.report.history.push(record);
+        if observer.cancelled() {
+            return Err(SolveError::Cancelled { iteration });
+        }
+        Ok(())
+    }
+
+    /// The solution of the loop: the pass `p` at Σ0 `x`, with the
+    /// contacts' final `levels`.
+    fn solution(self, levels: &[(f64, f64)], p: Pass, x: ScatteringSelfEnergy) -> Solution {
+        Solution {
+            problem: contacts::with_levels(self.problem, levels),
+            pass: p,
+            sigma: x,
+            report: self.report,
+            lattice_temperature_k: self.lattice,
+        }
+    }
+}
+
+/// The terminal currents of pass `p` and their change since `previous`
+/// in units of the current tolerance (see [`current_change`]); `previous`
+/// becomes these currents. A pass whose residual or currents are not
+/// finite ends the loop with the iteration that produced it.
+fn pass_currents(
+    params: &ScbaParams,
+    problem: &Problem,
+    p: &Pass,
+    iteration: usize,
+    residual: f64,
+    previous: &mut Option<(f64, f64)>,
+) -> Result<(f64, f64, f64), SolveError> {
+    let (il, ir) = terminal_currents(problem, &p.flows);
+    ensure_not_diverged(iteration, residual, (il, ir))?;
+    let floor = current_floor(params, problem, &p.flows);
+    let change = current_change(params, (il, ir), *previous, floor);
+    *previous = Some((il, ir));
+    Ok((il, ir, change))
 }
 
 /// The mixer's step from Σ0 `x` with image `fx`, its sums added over the
