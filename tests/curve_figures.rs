@@ -90,6 +90,42 @@ fn sweep_and_cooler_figures() {
     );
     let p = svg_text(&cool.join("cooler_power.svg"));
     assert!(p.contains("cooling power"));
+    // Every point converged: no crosses, no count in the legend.
+    assert!(!p.contains("not converged") && !a.contains("not converged"));
     let c = svg_text(&cool.join("cooler_cop.svg"));
     assert!(c.contains("Carnot COP"));
+}
+
+/// A sweep whose first point is cut off after two Born iterations: that
+/// point is crossed in each figure and counted in its legend, and the
+/// run ends with exit 2 as for any point that did not converge.
+#[test]
+fn sweep_figures_cross_the_points_that_did_not_converge() {
+    let tmp = tempfile::tempdir().unwrap();
+    let out = tmp.path().join("cut");
+    let run = qheat()
+        .args([
+            "sweep",
+            "cases-demo/peltier-barrier.toml",
+            "--quiet",
+            "--vary",
+            "solver.max_iterations=2:40:2",
+            "-o",
+        ])
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(
+        run.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    for figure in ["sweep_A.svg", "sweep_W.svg"] {
+        let text = svg_text(&out.join(figure));
+        assert!(
+            text.contains("not converged (1 of 2 points)"),
+            "{figure} does not count the point cut off"
+        );
+    }
 }

@@ -13,7 +13,8 @@ use qheat::case::Case;
 use qheat::observables::{Observables, bond_current_map, observe};
 use qheat::output::Staging;
 use qheat::output::plots::{
-    self, Series, bar_chart_svg, heat_map_svg, line_chart_svg, style, write_solve_plots,
+    self, Flags, Series, bar_chart_svg, flagged_line_chart_svg, heat_map_svg, line_chart_svg,
+    style, write_solve_plots,
 };
 use qheat::output::results::{RunInfo, solve_summary, write_solve_files};
 use qheat::scba::{Silent, Solution, solve};
@@ -366,6 +367,48 @@ fn line_chart_draws_each_series_and_labelled_reference_lines() {
     .unwrap();
     let doc = roxmltree::Document::parse(&svg).unwrap();
     assert!(has_text(&doc, "no finite values to show"));
+}
+
+#[test]
+fn points_that_did_not_converge_are_crossed_and_counted() {
+    let x = [0.0, 0.1, 0.2, 0.3, 0.4];
+    let p = [0.0, 1.5, 2.0, 1.5, 0.0];
+    let series = [Series {
+        label: "power",
+        x: &x,
+        y: &p,
+    }];
+    let plain = line_chart_svg("Cooler", "current (nA)", "power (nW)", &series, &[]).unwrap();
+    // Nothing flagged: the same figure as the plain chart, byte for byte.
+    let none = flagged_line_chart_svg(
+        "Cooler",
+        "current (nA)",
+        "power (nW)",
+        &series,
+        &[],
+        &Flags::none(),
+    )
+    .unwrap();
+    assert_eq!(plain, none);
+    let doc = roxmltree::Document::parse(&plain).unwrap();
+    assert_eq!(count(&doc, "line", "stroke", style::NOT_CONVERGED), 0);
+    assert!(!has_text(&doc, "not converged"));
+
+    let flags = Flags::where_(&x, &p, |i| i == 1 || i == 3);
+    assert_eq!(flags.points, vec![(0.1, 1.5), (0.3, 1.5)]);
+    let svg = flagged_line_chart_svg("Cooler", "current (nA)", "power (nW)", &series, &[], &flags)
+        .unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    // Two strokes per cross: two points and the legend's mark.
+    assert_eq!(count(&doc, "line", "stroke", style::NOT_CONVERGED), 6);
+    assert!(
+        has_text(&doc, "not converged (2 of 5 points)"),
+        "{:?}",
+        texts(&doc)
+    );
+    // With a flag the single series is named too, so the legend says what
+    // the crosses sit on.
+    assert!(has_text(&doc, "power"));
 }
 
 #[test]

@@ -2,7 +2,7 @@
 //! built on the generic charts of this module.
 
 use super::style::{max_abs, prefix_for};
-use super::{Series, bar_chart_svg, heat_map_svg, line_chart_svg};
+use super::{Flags, Series, bar_chart_svg, flagged_line_chart_svg, heat_map_svg};
 use crate::output::OutputError;
 use crate::sweep::{Grid, SweepTable};
 use crate::thermo::cooler::CoolerReport;
@@ -29,7 +29,8 @@ pub fn generator_figures(r: &GeneratorReport) -> Result<Vec<(&'static str, Strin
     let p: Vec<f64> = r.curve.iter().map(|p| p.power_w).collect();
     let (ps, pu) = scaled(&p, "W");
     let eta: Vec<f64> = r.curve.iter().map(|p| p.efficiency).collect();
-    let power = line_chart_svg(
+    let failed = |i: usize| !r.curve[i].converged;
+    let power = flagged_line_chart_svg(
         "Generator: power delivered to the load",
         &format!("load voltage ({vu})"),
         &format!("power P = −I·V ({pu})"),
@@ -39,8 +40,9 @@ pub fn generator_figures(r: &GeneratorReport) -> Result<Vec<(&'static str, Strin
             y: &ps,
         }],
         &[],
+        &Flags::where_(&vs, &ps, failed),
     )?;
-    let efficiency = line_chart_svg(
+    let efficiency = flagged_line_chart_svg(
         "Generator: efficiency P / J_Q,hot",
         &format!("load voltage ({vu})"),
         "efficiency (1)",
@@ -53,6 +55,7 @@ pub fn generator_figures(r: &GeneratorReport) -> Result<Vec<(&'static str, Strin
             ("Carnot η_C", r.carnot_efficiency),
             ("Curzon-Ahlborn η_CA", r.curzon_ahlborn_efficiency),
         ],
+        &Flags::where_(&vs, &eta, failed),
     )?;
     Ok(vec![
         ("generator_power.svg", power),
@@ -67,7 +70,7 @@ pub fn cooler_figures(r: &CoolerReport) -> Result<Vec<(&'static str, String)>, O
     let (is, iu) = scaled(&i, "A");
     let q: Vec<f64> = r.curve.iter().map(|p| p.cooling_power_w).collect();
     let (qs, qu) = scaled(&q, "W");
-    let power = line_chart_svg(
+    let power = flagged_line_chart_svg(
         "Cooler: heat drawn from the cold lead",
         &format!("current ({iu})"),
         &format!("cooling power ({qu})"),
@@ -77,18 +80,19 @@ pub fn cooler_figures(r: &CoolerReport) -> Result<Vec<(&'static str, String)>, O
             y: &qs,
         }],
         &[],
+        &Flags::where_(&is, &qs, |i| !r.curve[i].converged),
     )?;
     // COP only where it is defined (cooling and power input both positive).
-    let (ci, cop): (Vec<f64>, Vec<f64>) = r
+    let ((ci, cop), ok): ((Vec<f64>, Vec<f64>), Vec<bool>) = r
         .curve
         .iter()
         .zip(&is)
         .filter(|(p, _)| p.cop.is_finite())
-        .map(|(p, x)| (*x, p.cop))
+        .map(|(p, x)| ((*x, p.cop), p.converged))
         .unzip();
     let mut figures = vec![("cooler_power.svg", power)];
     if !ci.is_empty() {
-        let cop_svg = line_chart_svg(
+        let cop_svg = flagged_line_chart_svg(
             "Cooler: coefficient of performance",
             &format!("current ({iu})"),
             "COP = J_Q,cold / (I·V)",
@@ -98,6 +102,7 @@ pub fn cooler_figures(r: &CoolerReport) -> Result<Vec<(&'static str, String)>, O
                 y: &cop,
             }],
             &[("Carnot COP", r.carnot_cop)],
+            &Flags::where_(&ci, &cop, |i| !ok[i]),
         )?;
         figures.push(("cooler_cop.svg", cop_svg));
     }
@@ -143,7 +148,8 @@ pub fn grid_figures(
 }
 
 /// One line chart per unit of `quantities` against the single axis
-/// `axis`: currents in one, powers in another.
+/// `axis`: currents in one, powers in another; the points of the rows
+/// that did not converge are marked.
 fn line_figures(
     table: &SweepTable,
     quantities: &[&str],
@@ -152,6 +158,9 @@ fn line_figures(
 ) -> Result<Vec<(String, String)>, OutputError> {
     let mut out = Vec::new();
     let x = column(table, axis).unwrap_or_default();
+    let failed: Vec<usize> = (table.unconverged().into_iter())
+        .filter(|&i| i < x.len())
+        .collect();
     type Group<'q> = (&'static str, Vec<(&'q str, Vec<f64>)>);
     let mut by_unit: Vec<Group<'_>> = Vec::new();
     for q in quantities {
@@ -189,12 +198,20 @@ fn line_figures(
         } else {
             format!("{p}{unit}")
         };
-        let svg = line_chart_svg(
+        let flags = Flags {
+            points: (ys.iter())
+                .flat_map(|y| failed.iter().map(|&i| (x[i], y[i])))
+                .collect(),
+            count: failed.len(),
+            of: x.len(),
+        };
+        let svg = flagged_line_chart_svg(
             &format!("{what} against {axis}"),
             axis,
             &y_label,
             &series,
             &[],
+            &flags,
         )?;
         out.push((format!("{prefix}_{stem}.svg"), svg));
     }

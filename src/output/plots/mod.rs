@@ -141,6 +141,8 @@ pub(crate) enum Mark {
     Line(RGBColor, bool),
     /// A filled box with an opacity.
     Block(RGBColor, f64),
+    /// A diagonal cross, the mark of a point drawn on top of a line.
+    Cross(RGBColor),
 }
 
 /// Rough text width in pixels: SVG text is laid out by the viewer, so this
@@ -210,6 +212,9 @@ pub(crate) fn draw_legend(
                         c.mix(alpha).filled(),
                     ))?;
                 }
+                Mark::Cross(c) => {
+                    area.draw(&Cross::new((x + 12, y), 6, c.stroke_width(2)))?;
+                }
             }
             area.draw(&Text::new(label.clone(), (x + 30, y), font.clone()))?;
             x += 30 + text_width(label, TICK_SIZE) + 22;
@@ -277,10 +282,66 @@ pub fn line_chart_svg(
     series: &[Series<'_>],
     reference_lines: &[(&str, f64)],
 ) -> Result<String, OutputError> {
+    flagged_line_chart_svg(
+        title,
+        x_label,
+        y_label,
+        series,
+        reference_lines,
+        &Flags::none(),
+    )
+}
+
+/// Points of a line chart to mark with a cross on top of their line, and
+/// how many points the chart has in all (for the legend's "k of n").
+#[derive(Clone, Debug, Default)]
+pub struct Flags {
+    /// The marked points, in the chart's (scaled) units.
+    pub points: Vec<(f64, f64)>,
+    /// Solves they stand for (fewer than the points when several series
+    /// share the solves).
+    pub count: usize,
+    /// Solves of the chart in all.
+    pub of: usize,
+}
+
+impl Flags {
+    /// Nothing marked.
+    pub fn none() -> Self {
+        Self::default()
+    }
+
+    /// The points `(x[i], y[i])` of every `i` with `flagged(i)` true.
+    pub fn where_(x: &[f64], y: &[f64], flagged: impl Fn(usize) -> bool) -> Self {
+        let points: Vec<(f64, f64)> = (0..x.len().min(y.len()))
+            .filter(|&i| flagged(i))
+            .map(|i| (x[i], y[i]))
+            .collect();
+        Self {
+            count: points.len(),
+            points,
+            of: x.len().min(y.len()),
+        }
+    }
+}
+
+/// [`line_chart_svg`] with the points of a solve that did not converge
+/// marked by crosses (colour `NOT_CONVERGED`) and named in the legend
+/// with their count, so a kink that such a point makes in a curve is not
+/// read as physics. With nothing flagged it draws exactly
+/// [`line_chart_svg`]'s figure.
+pub fn flagged_line_chart_svg(
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    series: &[Series<'_>],
+    reference_lines: &[(&str, f64)],
+    flags: &Flags,
+) -> Result<String, OutputError> {
     check_series_lengths(title, series)?;
     let ((x0, x1), (y0, y1), have_data) = line_chart_ranges(series, reference_lines);
     let width = 900u32;
-    let entries = line_chart_legend(series, reference_lines);
+    let entries = line_chart_legend(series, reference_lines, flags);
     let legend_h = legend_height(&entries, (MARGIN_LEFT + Y_AREA) as i32, width as i32);
     let height = 520 + legend_h;
     render(title, (width, height), |root, _| {
@@ -336,6 +397,11 @@ pub fn line_chart_svg(
                 }
             }
         }
+        let marks = flags
+            .points
+            .iter()
+            .filter(|p| p.0.is_finite() && p.1.is_finite());
+        chart.draw_series(marks.map(|&q| Cross::new(q, 7, NOT_CONVERGED.stroke_width(2))))?;
         if !have_data {
             centred_note(&plot, &chart, "no finite values to show")?;
         }
@@ -403,12 +469,14 @@ fn line_chart_ranges(
 }
 
 /// Legend entries of a line chart: the series by name (only when there
-/// are two or more, or reference lines beside them), then the reference
-/// lines with their values. Reference lines are named in the legend:
-/// labels written at the lines collide when two references lie close.
+/// are two or more, or reference lines or flagged points beside them),
+/// then the reference lines with their values, then the flagged points
+/// with their count. Reference lines are named in the legend: labels
+/// written at the lines collide when two references lie close.
 fn line_chart_legend(
     series: &[Series<'_>],
     reference_lines: &[(&str, f64)],
+    flags: &Flags,
 ) -> Vec<(Mark, String)> {
     let mut entries: Vec<(Mark, String)> = series
         .iter()
@@ -421,7 +489,7 @@ fn line_chart_legend(
             )
         })
         .collect();
-    if entries.len() < 2 && reference_lines.is_empty() {
+    if entries.len() < 2 && reference_lines.is_empty() && flags.points.is_empty() {
         entries.clear();
     }
     entries.extend(
@@ -436,6 +504,12 @@ fn line_chart_legend(
                 )
             }),
     );
+    if !flags.points.is_empty() {
+        entries.push((
+            Mark::Cross(NOT_CONVERGED),
+            format!("not converged ({} of {} points)", flags.count, flags.of),
+        ));
+    }
     entries
 }
 

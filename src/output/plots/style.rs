@@ -60,9 +60,13 @@ pub const LATTICE_TEMPERATURE: RGBColor = RGBColor(0x7a, 0x12, 0x2a);
 /// the electrons moving to +x by hue and from the lead greys by colour.
 pub const BAND_EDGE_IMPOSED: RGBColor = RGBColor(0x7d, 0x8c, 0x1e);
 
+/// Crosses on the points of a curve whose solve did not converge: black,
+/// apart from every coloured line and darker than the axes' ink.
+pub const NOT_CONVERGED: RGBColor = RGBColor(0x00, 0x00, 0x00);
+
 /// Every named colour of the solve figures with what it stands for; each
 /// meaning has its own colour, in every figure.
-pub const MEANINGS: [(RGBColor, &str); 17] = [
+pub const MEANINGS: [(RGBColor, &str); 18] = [
     (INK, "axes, text and the band edge"),
     (LEAD_SHADE, "lead regions"),
     (HEATING, "lattice heated"),
@@ -82,6 +86,10 @@ pub const MEANINGS: [(RGBColor, &str); 17] = [
     (
         BAND_EDGE_IMPOSED,
         "band edge without the potential of the device's charge",
+    ),
+    (
+        NOT_CONVERGED,
+        "points whose solve did not converge (crosses)",
     ),
 ];
 
