@@ -590,6 +590,16 @@ fn cooler_with_electrostatics_ends_its_march_for_a_stated_reason() {
     if range.reason == RangeEnd::BiasLimit {
         assert!((range.steps + 1) as f64 * kt > limit);
     }
+    // A maximum at the end of a range cut by the bias limit is a lower
+    // bound and says so; one where the power levelled off, or inside the
+    // range, is not flagged.
+    let at_end = (r.voltage_at_max_v - range.end_v).abs() <= 1e-6 * kt;
+    assert_eq!(
+        r.max_at_range_end,
+        at_end && range.reason == RangeEnd::BiasLimit,
+        "maximum at {} V, range {range:?}",
+        r.voltage_at_max_v
+    );
     assert_eq!(r.curve.last().unwrap().voltage_v, range.end_v);
 
     let mu = r.fermi_level_ev;

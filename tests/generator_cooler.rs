@@ -177,6 +177,8 @@ fn thermionic_cooler_has_one_maximum() {
         }
     }
     assert!(r.max_cooling_power_w >= q[im]);
+    // An interior maximum: a maximum, not a lower bound.
+    assert!(!r.max_at_range_end);
     assert!(r.current_at_max_a * r.voltage_at_max_v > 0.0);
     let l = cool(&case, 300.0, 300.0, Side::Left);
     assert!(rel(l.max_cooling_power_w, r.max_cooling_power_w) < 1e-9);

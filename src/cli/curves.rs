@@ -143,12 +143,22 @@ fn print_cooler(
         "cooler            cold lead {cold_name} at {cold} K, hot lead {hot_name} at {hot} K, µ = {:.4} eV",
         r.fermi_level_ev
     );
-    println!(
-        "maximum cooling   {} at V = {}, I = {}",
-        si(r.max_cooling_power_w, "W", 5),
-        si(r.voltage_at_max_v, "V", 5),
-        si(r.current_at_max_a, "A", 4)
-    );
+    if r.max_at_range_end {
+        println!(
+            "maximum cooling   at least {} at V = {}, I = {}: the end of the range, where the \
+             cooling power was still rising (a higher bias may cool more; see range)",
+            si(r.max_cooling_power_w, "W", 5),
+            si(r.voltage_at_max_v, "V", 5),
+            si(r.current_at_max_a, "A", 4)
+        );
+    } else {
+        println!(
+            "maximum cooling   {} at V = {}, I = {}",
+            si(r.max_cooling_power_w, "W", 5),
+            si(r.voltage_at_max_v, "V", 5),
+            si(r.current_at_max_a, "A", 4)
+        );
+    }
     println!(
         "at zero bias      {} (heat leaking into the cold lead is negative)",
         si(r.cooling_power_at_zero_bias_w, "W", 4)

@@ -157,6 +157,12 @@ pub struct CoolerReport {
     pub voltage_at_max_v: f64,
     /// Current at maximum cooling power (A).
     pub current_at_max_a: f64,
+    /// The maximum lies at the end of the range, and the march did not
+    /// end there because the cooling power fell back or levelled off (a
+    /// solve past it did not converge, or a limit of the march): the
+    /// cooling power was still rising, so the maximum is a lower bound and
+    /// a higher bias may cool more.
+    pub max_at_range_end: bool,
     /// COP at maximum cooling power (NaN when not cooling there).
     pub cop_at_max: f64,
     /// Best COP, refined between curve points (NaN when nothing cools).
@@ -268,6 +274,15 @@ pub struct CoolerRange {
     /// The voltage of the solve that did not converge, when that ended the
     /// march (V).
     pub not_converged_at_v: Option<f64>,
+}
+
+/// Whether the maximum found at `v_max` (V) sits at the end of `range`
+/// (within 1e-6 of a step `h` of kT/e) of a march that did not end because
+/// the cooling power fell back or levelled off, so the curve was still
+/// rising there.
+fn still_rising_at_end(range: &CoolerRange, v_max: f64, h: f64) -> bool {
+    let cut_short = !matches!(range.reason, RangeEnd::FellBack | RangeEnd::LevelledOff);
+    cut_short && (v_max - range.end_v).abs() <= 1e-6 * h
 }
 
 /// With electrostatics: the largest |V| the march goes to,
@@ -436,6 +451,7 @@ pub fn cooler(
     let (curve, at_max, best_cop) =
         cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
+    let max_at_range_end = still_rising_at_end(&range, at_max.voltage_v, h);
     Ok(CoolerReport {
         settings: *settings,
         fermi_level_ev: mu,
@@ -443,6 +459,7 @@ pub fn cooler(
         max_cooling_power_w: at_max.cooling_power_w,
         voltage_at_max_v: at_max.voltage_v,
         current_at_max_a: at_max.current_a,
+        max_at_range_end,
         cop_at_max: at_max.cop,
         max_cop: best_cop.map_or(f64::NAN, |p| p.cop),
         voltage_at_max_cop_v: best_cop.map_or(f64::NAN, |p| p.voltage_v),
@@ -459,4 +476,38 @@ pub fn cooler(
         electrostatics: dev.electrostatics,
         range,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn range(reason: RangeEnd) -> CoolerRange {
+        CoolerRange {
+            end_v: 0.0775,
+            steps: 3,
+            reason,
+            limit_v: Some(0.48),
+            not_converged_at_v: (reason == RangeEnd::NotConverged).then_some(0.1034),
+        }
+    }
+
+    /// Only a range cut short (a solve that did not converge, the bias or
+    /// step limit) with its maximum at its end gives a lower bound.
+    #[test]
+    fn a_maximum_at_a_cut_short_end_is_a_lower_bound() {
+        let h = 0.02585;
+        for (reason, cut) in [
+            (RangeEnd::FellBack, false),
+            (RangeEnd::LevelledOff, false),
+            (RangeEnd::BiasLimit, true),
+            (RangeEnd::NotConverged, true),
+            (RangeEnd::StepLimit, true),
+        ] {
+            let r = range(reason);
+            assert_eq!(still_rising_at_end(&r, 0.0775, h), cut, "{reason:?}");
+            assert_eq!(still_rising_at_end(&r, 0.0775 + 1e-9, h), cut);
+            assert!(!still_rising_at_end(&r, 0.0775 - 1e-4, h), "{reason:?}");
+        }
+    }
 }

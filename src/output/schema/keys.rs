@@ -780,7 +780,7 @@ const CURVE_ES: [Key; 3] = [
     ),
 ];
 
-const COOLER: [Key; 28] = [
+const COOLER: [Key; 29] = [
     ("settings.hot_k", "K", "temperature of the hot lead"),
     ("settings.cold_k", "K", "temperature of the cold lead"),
     ("settings.points", "1", "bias voltages on the curve"),
@@ -814,6 +814,11 @@ const COOLER: [Key; 28] = [
         "current_at_max_a",
         "A",
         "current of the largest cooling power",
+    ),
+    (
+        "max_at_range_end",
+        "-",
+        "true when the largest cooling power lies at the end of a range cut short (a solve past it did not converge, or a limit of the march) while still rising: a lower bound, and a higher bias may cool more",
     ),
     ("cop_at_max", "1", "COP at the largest cooling power"),
     ("max_cop", "1", "largest COP on the curve"),
