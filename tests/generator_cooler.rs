@@ -179,6 +179,12 @@ fn thermionic_cooler_has_one_maximum() {
     assert!(r.max_cooling_power_w >= q[im]);
     // An interior maximum: a maximum, not a lower bound.
     assert!(!r.max_at_range_end);
+    // Equal temperatures: the COP grows without bound as V → 0 (cooling
+    // linear, input power quadratic in V), as the Carnot COP does.
+    assert!(r.max_cop.is_infinite() && r.carnot_cop.is_infinite());
+    assert_eq!(r.voltage_at_max_cop_v, 0.0);
+    let q1 = &r.curve[1];
+    assert!(q1.cop > r.cop_at_max, "COP largest near V = 0: {}", q1.cop);
     assert!(r.current_at_max_a * r.voltage_at_max_v > 0.0);
     let l = cool(&case, 300.0, 300.0, Side::Left);
     assert!(rel(l.max_cooling_power_w, r.max_cooling_power_w) < 1e-9);

@@ -163,11 +163,18 @@ fn print_cooler(
         "at zero bias      {} (heat leaking into the cold lead is negative)",
         si(r.cooling_power_at_zero_bias_w, "W", 4)
     );
+    let best = if r.max_cop.is_infinite() {
+        "unbounded as V → 0 (equal temperatures: nothing leaks at zero bias)".to_string()
+    } else {
+        format!(
+            "{:.4} at best (V = {})",
+            r.max_cop,
+            si(r.voltage_at_max_cop_v, "V", 5)
+        )
+    };
     println!(
-        "COP               {:.4} at maximum cooling, {:.4} at best (V = {}); Carnot {:.4}{}",
+        "COP               {:.4} at maximum cooling, {best}; Carnot {:.4}{}",
         r.cop_at_max,
-        r.max_cop,
-        si(r.voltage_at_max_cop_v, "V", 5),
         r.carnot_cop,
         match (r.ioffe_max_cop, &r.coefficients) {
             (Some(i), Some(c)) => format!(", Ioffe {i:.4} with ZT = {:.4}", c.zt),

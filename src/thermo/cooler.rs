@@ -165,9 +165,12 @@ pub struct CoolerReport {
     pub max_at_range_end: bool,
     /// COP at maximum cooling power (NaN when not cooling there).
     pub cop_at_max: f64,
-    /// Best COP, refined between curve points (NaN when nothing cools).
+    /// Best COP, refined between curve points (NaN when nothing cools;
+    /// infinite at equal temperatures, where the COP grows without bound
+    /// as V → 0).
     pub max_cop: f64,
-    /// Bias at the best COP (V; NaN when nothing cools).
+    /// Bias at the best COP (V; NaN when nothing cools; 0, the limit, at
+    /// equal temperatures).
     pub voltage_at_max_cop_v: f64,
     /// Carnot COP T_c/(T_h − T_c) (infinite at equal temperatures).
     pub carnot_cop: f64,
@@ -452,6 +455,12 @@ pub fn cooler(
         cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     let max_at_range_end = still_rising_at_end(&range, at_max.voltage_v, h);
+    // At equal temperatures nothing leaks at zero bias: the cooling power
+    // rises linearly from 0 (Peltier) while the input power I·V rises
+    // quadratically, so the COP grows without bound as V → 0, as the
+    // Carnot COP is infinite; any finite "best" would only be where the
+    // refinement stopped.
+    let unbounded_cop = th == tc;
     Ok(CoolerReport {
         settings: *settings,
         fermi_level_ev: mu,
@@ -461,8 +470,16 @@ pub fn cooler(
         current_at_max_a: at_max.current_a,
         max_at_range_end,
         cop_at_max: at_max.cop,
-        max_cop: best_cop.map_or(f64::NAN, |p| p.cop),
-        voltage_at_max_cop_v: best_cop.map_or(f64::NAN, |p| p.voltage_v),
+        max_cop: match best_cop {
+            Some(_) if unbounded_cop => f64::INFINITY,
+            Some(p) => p.cop,
+            None => f64::NAN,
+        },
+        voltage_at_max_cop_v: match best_cop {
+            Some(_) if unbounded_cop => 0.0,
+            Some(p) => p.voltage_v,
+            None => f64::NAN,
+        },
         carnot_cop: carnot_cop(th, tc),
         coefficients,
         ioffe_max_cop: ioffe,

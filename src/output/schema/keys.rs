@@ -821,8 +821,16 @@ const COOLER: [Key; 29] = [
         "true when the largest cooling power lies at the end of a range cut short (a solve past it did not converge, or a limit of the march) while still rising: a lower bound, and a higher bias may cool more",
     ),
     ("cop_at_max", "1", "COP at the largest cooling power"),
-    ("max_cop", "1", "largest COP on the curve"),
-    ("voltage_at_max_cop_v", "V", "voltage of the largest COP"),
+    (
+        "max_cop",
+        "1",
+        "largest COP on the curve; null at equal temperatures, where it grows without bound as V → 0",
+    ),
+    (
+        "voltage_at_max_cop_v",
+        "V",
+        "voltage of the largest COP (0, the limit, at equal temperatures)",
+    ),
     ("carnot_cop", "1", "Carnot COP T_cold/(T_hot − T_cold)"),
     (
         "ioffe_max_cop",
