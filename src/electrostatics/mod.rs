@@ -500,6 +500,7 @@ fn solve_nested(
     let mut born_passes = 0;
     let mut mixer = mixing::PotentialMixer::new(es.mixing_depth, es.mixing_factor);
     let mut last_change: Option<f64> = None;
+    let mut levels: Option<Vec<f64>> = None;
     let last = es.max_iterations.max(1);
     for iteration in 1..=last {
         let p = with_potential(problem, &u);
@@ -515,7 +516,7 @@ fn solve_nested(
             observer,
         )?;
         born_passes += sol.report.iterations.max(1);
-        let density = CellDensity::new(&sol, temperature);
+        let density = CellDensity::near(&sol, temperature, levels.as_deref());
         let outer = OuterStep::new(&poisson, &u, &density, es.tolerance_ev);
         history.push(OuterRecord {
             iteration,
@@ -539,6 +540,7 @@ fn solve_nested(
             };
             return Ok(finish(sol, u, density, &outer, end, es));
         }
+        levels = Some(density.fermi_level_ev);
         warm = (!sol.problem.scattering.is_coherent()).then(|| sol.sigma.clone());
         let residual: Vec<f64> = (outer.newton.potential.iter().zip(&u))
             .map(|(a, b)| a - b)
