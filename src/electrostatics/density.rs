@@ -72,9 +72,10 @@ impl CellDensity {
     }
 
     /// [`CellDensity::new`] with each cell's quasi-Fermi level looked for
-    /// first near `levels`, the levels of a nearby point (one per cell; see
-    /// [`CellDensity::fit_near`]): the same levels to the fit's rounding,
-    /// in fewer counts, when an outer loop takes small steps.
+    /// first within a few k_B T of `levels`, the levels of a nearby point
+    /// (one per cell), and solved there to 1e-10 k_B T, the full bracket
+    /// being the fallback: the same levels to that accuracy, in fewer
+    /// counts, when an outer loop takes small steps.
     pub fn near(sol: &Solution, temperature_k: f64, levels: Option<&[f64]>) -> Self {
         let p = &sol.problem;
         let n = p.device.cells();
