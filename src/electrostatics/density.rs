@@ -68,6 +68,15 @@ impl CellDensity {
     /// predictor is offset by the difference so that n_i(0) is the
     /// electron number.
     pub fn new(sol: &Solution, temperature_k: f64) -> Self {
+        Self::near(sol, temperature_k, None)
+    }
+
+    /// [`CellDensity::new`] with each cell's quasi-Fermi level looked for
+    /// first within a few k_B T of `levels`, the levels of a nearby point
+    /// (one per cell), and solved there to 1e-10 k_B T, the full bracket
+    /// being the fallback: the same levels to that accuracy, in fewer
+    /// counts, when an outer loop takes small steps.
+    pub fn near(sol: &Solution, temperature_k: f64, levels: Option<&[f64]>) -> Self {
         let p = &sol.problem;
         let n = p.device.cells();
         let energies: Vec<f64> = (0..p.grid.count).map(|k| p.grid.energy(k)).collect();
@@ -100,9 +109,13 @@ impl CellDensity {
             kt,
             ratio: ((p.grid.step_ev) / kt).exp(),
         };
+        let levels = levels.filter(|l| l.len() == n);
         let fits: Vec<(f64, f64)> = (0..n)
             .into_par_iter()
-            .map(|c| out.fit(c, grid_count[c]))
+            .map(|c| match levels {
+                Some(l) => out.fit_near(c, grid_count[c], l[c]),
+                None => out.fit(c, grid_count[c]),
+            })
             .collect();
         (out.fermi_level_ev, out.fitted) = fits.into_iter().unzip();
         out
@@ -178,6 +191,50 @@ impl CellDensity {
         (mu, self.count(cell, mu, 0.0).0)
     }
 
+    /// [`CellDensity::fit`] started from `guess`: the count at the guess
+    /// says on which side the level lies; when the count a window of
+    /// `FIT_WINDOW_KT` k_B T further on that side passes the target, the
+    /// root is bracketed by the guess and that point and the safeguarded
+    /// Newton iteration starts from the guess (the same stopping test as
+    /// the full fit, so the same level to its rounding); otherwise, or for
+    /// a guess that is not finite, the full fit.
+    fn fit_near(&self, cell: usize, target: f64, guess: f64) -> (f64, f64) {
+        if !guess.is_finite() {
+            return self.fit(cell, target);
+        }
+        let at_guess = self.count(cell, guess, 0.0).0;
+        if at_guess == target {
+            return (guess, at_guess);
+        }
+        let width = FIT_WINDOW_KT * self.kt;
+        let (bracket, other) = if at_guess < target {
+            ((guess, guess + width), guess + width)
+        } else {
+            ((guess - width, guess), guess - width)
+        };
+        let at_other = self.count(cell, other, 0.0).0;
+        let inside = if at_guess < target {
+            at_other >= target
+        } else {
+            at_other < target
+        };
+        if !inside {
+            return self.fit(cell, target);
+        }
+        let slope = |mu: f64| {
+            let (n, minus) = self.count(cell, mu, 0.0);
+            (n, -minus)
+        };
+        let mu = crate::numerics::bracketed_newton_from(
+            slope,
+            target,
+            bracket,
+            guess,
+            FIT_TOLERANCE_KT * self.kt,
+        );
+        (mu, self.count(cell, mu, 0.0).0)
+    }
+
     /// Predicted electrons of cell `cell` after its potential energy moved
     /// by `shift` (eV), and the derivative (electrons per eV, ≤ 0).
     pub fn predict(&self, cell: usize, shift: f64) -> (f64, f64) {
@@ -189,6 +246,20 @@ impl CellDensity {
         (n + (self.electrons[cell] - self.fitted[cell]), dn)
     }
 }
+
+/// Half-width, in k_B T, of the window around a previous quasi-Fermi level
+/// in which [`CellDensity::fit_near`] looks first. A cell's level follows
+/// the contacts' Fermi levels rather than its band, so between outer steps
+/// it moves by much less than the potential; 4 k_B T holds it on the bench
+/// device from the second step on (the full fit is the fallback).
+const FIT_WINDOW_KT: f64 = 4.0;
+/// Accuracy, in k_B T, to which [`CellDensity::fit_near`] solves for a
+/// level. The predictor is offset to the pass's electron number at zero
+/// shift, so the level only sets its slope and curvature, which an error
+/// of 1e-10 k_B T moves by about 1e-10 of themselves; solving to the last
+/// place instead bisects the band of the count's rounding noise (on the
+/// bench device 10 counts per cell instead of 4).
+const FIT_TOLERANCE_KT: f64 = 1e-10;
 
 /// One cell's share of a pass: its predictor weights w_ik, its grid
 /// count of G^n and, with a reference occupation f_ref on the grid, the
@@ -587,6 +658,56 @@ mod tests {
             .zip(&sharp)
             .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
         assert!(near < 1e-12, "{near}");
+    }
+
+    /// The fit started near a previous level finds the level of the full
+    /// bracket, to the warm fit's tolerance (an identity check between the
+    /// two searches, 1e-10 k_B T asked, 2e-10 allowed for the full fit's
+    /// own rounding), from a guess inside the window, from one outside it
+    /// (the fallback), and for a number the grid cannot hold (the clamp).
+    #[test]
+    fn fit_near_a_guess_matches_the_full_fit() {
+        let kt = crate::units::thermal_energy_ev(300.0);
+        let h = 0.002;
+        let energies: Vec<f64> = (0..251).map(|k| -0.15 + h * k as f64).collect();
+        // One cell: the density of states of a chain band from −0.05 eV.
+        let weight = energies
+            .iter()
+            .map(|&e| {
+                if e > -0.05 {
+                    h / (e + 0.05).sqrt()
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        let d = CellDensity {
+            energies,
+            weight,
+            electrons: vec![0.0],
+            fermi_level_ev: vec![0.0],
+            fitted: vec![0.0],
+            kt,
+            ratio: (h / kt).exp(),
+        };
+        let full_count = d.count(0, 0.6, 0.0).0;
+        for mu in [-0.12, -0.03, 0.0, 0.04] {
+            let target = d.count(0, mu, 0.0).0;
+            let (full, _) = d.fit(0, target);
+            for guess in [mu + 0.3 * kt, mu - 2.5 * kt, mu + 9.0 * kt, f64::NAN] {
+                let (near, n) = d.fit_near(0, target, guess);
+                assert!(
+                    (near - full).abs() < 2e-10 * kt,
+                    "{mu} {guess}: {near} {full}"
+                );
+                assert!(
+                    (n / target - 1.0).abs() < 1e-8,
+                    "{mu} {guess}: {n} {target}"
+                );
+            }
+        }
+        let (top, n) = d.fit_near(0, 2.0 * full_count, 0.0);
+        assert_eq!((top, n), d.fit(0, 2.0 * full_count));
     }
 
     /// Deep below the Fermi level a mode holds g_s electrons; far above it,

@@ -266,6 +266,7 @@ pub(super) fn solve_joint(
     let one = params.with_max_iterations(1);
     let (mut history, mut born) = (Vec::new(), Vec::new());
     let mut previous = None;
+    let mut levels: Option<Vec<f64>> = None;
     let last = es.max_iterations.max(1);
     for step in 1..=last {
         let p = with_potential(problem, &u);
@@ -283,7 +284,7 @@ pub(super) fn solve_joint(
             &mut steps,
         )?;
         let (mut record, born_ok) = born_record(&sol, params, step, &mut previous)?;
-        let density = CellDensity::new(&sol, temperature);
+        let density = CellDensity::near(&sol, temperature, levels.as_deref());
         let outer = super::OuterStep::new(&poisson, &u, &density, es.tolerance_ev);
         history.push(OuterRecord {
             iteration: step,
@@ -313,6 +314,7 @@ pub(super) fn solve_joint(
             };
             return Ok(super::finish(sol, u, density, &outer, end, es));
         }
+        levels = Some(density.fermi_level_ev);
         let fx = image(&sol, hilbert.as_ref());
         x = sol.sigma;
         state.next(&mut x, &fx, &mut u, &outer.newton.potential);

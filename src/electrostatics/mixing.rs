@@ -32,6 +32,10 @@ pub(super) struct PotentialMixer {
     prev: Option<(Vec<f64>, Vec<f64>)>,
     du: VecDeque<Vec<f64>>,
     dr: VecDeque<Vec<f64>>,
+    /// Δr_i · Δr_j of the history, row i for the i-th entry of `dr`: each
+    /// difference enters once, so its products are taken once instead of
+    /// at every step while it stays in the history.
+    gram: VecDeque<Vec<f64>>,
 }
 
 /// Entries per chunk of a dot product.
@@ -65,38 +69,63 @@ impl PotentialMixer {
             prev: None,
             du: VecDeque::new(),
             dr: VecDeque::new(),
+            gram: VecDeque::new(),
         }
     }
 
     /// The next potential from the current one `u` and its residual `r`.
     pub(super) fn next(&mut self, u: &[f64], r: &[f64]) -> Vec<f64> {
         if let Some((pu, pr)) = &self.prev {
-            self.du
-                .push_back(u.iter().zip(pu).map(|(a, b)| a - b).collect());
-            self.dr
-                .push_back(r.iter().zip(pr).map(|(a, b)| a - b).collect());
-            if self.dr.len() > self.depth {
-                self.du.pop_front();
-                self.dr.pop_front();
-            }
+            let du = u.iter().zip(pu).map(|(a, b)| a - b).collect();
+            let dr = r.iter().zip(pr).map(|(a, b)| a - b).collect();
+            self.push(du, dr);
         }
         self.prev = Some((u.to_vec(), r.to_vec()));
         let gamma = self.coefficients(r).unwrap_or_else(|| {
             self.du.clear();
             self.dr.clear();
+            self.gram.clear();
             Vec::new()
         });
         let (head, (bh, bt)) = (self.head, self.beta);
         let beta = |i: usize| if i < head { bh } else { bt };
-        let mut next: Vec<f64> = (u.iter().zip(r).enumerate())
-            .map(|(i, (a, b))| a + beta(i) * b)
+        let history: Vec<(f64, &[f64], &[f64])> = (gamma.iter().zip(self.du.iter().zip(&self.dr)))
+            .map(|(&g, (du, dr))| (g, du.as_slice(), dr.as_slice()))
             .collect();
-        for (g, (du, dr)) in gamma.iter().zip(self.du.iter().zip(&self.dr)) {
-            next.par_iter_mut().enumerate().for_each(|(i, x)| {
-                *x -= g * (du[i] + beta(i) * dr[i]);
+        // One pass over the vector; each entry takes its corrections in
+        // the order of the history.
+        let mut next: Vec<f64> = u.to_vec();
+        next.par_iter_mut()
+            .zip(r)
+            .enumerate()
+            .for_each(|(i, (x, b))| {
+                *x += beta(i) * b;
+                for &(g, du, dr) in &history {
+                    *x -= g * (du[i] + beta(i) * dr[i]);
+                }
             });
-        }
         next
+    }
+
+    /// Add the differences `du`, `dr` to the history (dropping the oldest
+    /// beyond the depth) and their products with the others to `gram`.
+    fn push(&mut self, du: Vec<f64>, dr: Vec<f64>) {
+        let mut row: Vec<f64> = self.dr.iter().map(|d| dot(d, &dr)).collect();
+        for (g, &v) in self.gram.iter_mut().zip(&row) {
+            g.push(v);
+        }
+        row.push(dot(&dr, &dr));
+        self.gram.push_back(row);
+        self.du.push_back(du);
+        self.dr.push_back(dr);
+        if self.dr.len() > self.depth {
+            self.du.pop_front();
+            self.dr.pop_front();
+            self.gram.pop_front();
+            for g in &mut self.gram {
+                g.remove(0);
+            }
+        }
     }
 
     /// γ of the least-squares problem (None when the normal equations are
@@ -108,7 +137,7 @@ impl PotentialMixer {
         let mut a = vec![vec![0.0; m + 1]; m];
         for i in 0..m {
             for j in 0..m {
-                a[i][j] = dot(&self.dr[i], &self.dr[j]);
+                a[i][j] = self.gram[i][j];
             }
             a[i][m] = dot(&self.dr[i], r);
         }
@@ -155,5 +184,30 @@ mod tests {
             (u[0] - 1.0).abs() < 1e-10 && (u[1] - 2.0).abs() < 1e-10,
             "{u:?}"
         );
+    }
+
+    /// The products kept from step to step are those of the history held
+    /// (an identity check: the same dot products taken afresh, bit for
+    /// bit), through more steps than the depth so that old rows are
+    /// dropped, on a vector long enough for the chunked dot product.
+    #[test]
+    fn kept_products_match_the_history() {
+        let n = 3 * CHUNK + 7;
+        let mut mixer = PotentialMixer::split(3, 0.3, 0.5, n / 2);
+        let mut u: Vec<f64> = (0..n).map(|i| (i as f64 * 0.37).sin()).collect();
+        for step in 0..7 {
+            let r: Vec<f64> = (u.iter().enumerate())
+                .map(|(i, &x)| (i as f64 * 0.011 + step as f64).cos() - 0.8 * x)
+                .collect();
+            u = mixer.next(&u, &r);
+            assert_eq!(mixer.gram.len(), mixer.dr.len());
+            for (i, row) in mixer.gram.iter().enumerate() {
+                assert_eq!(row.len(), mixer.dr.len());
+                for (j, &v) in row.iter().enumerate() {
+                    assert_eq!(v, dot(&mixer.dr[i], &mixer.dr[j]), "step {step}");
+                }
+            }
+        }
+        assert_eq!(mixer.dr.len(), 3);
     }
 }
