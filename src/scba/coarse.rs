@@ -22,9 +22,9 @@ use crate::scattering::ScatteringSelfEnergy;
 /// Size (energies × orbital sites) from which [`super::CoarseStart::Auto`]
 /// turns the coarse start on. Measured (docs/performance.md, "Coarse
 /// start"): on the 2000-cell, 2001-energy chain (4.0·10⁶) the coarse start
-/// cost 18.6 fine-iteration equivalents against 22 plain, on the
-/// 5000-cell, 2501-energy proxy 27.6 against 52; below that size the loop
-/// needs few iterations and the gain is within the coarse levels' overhead.
+/// cost 17.3 fine-iteration equivalents against 22 plain, on the
+/// 5000-cell, 2501-energy proxy 27.6 against 52. Smaller problems keep the
+/// plain loop: their loops are short and the gain there was not measured.
 pub const AUTO_MIN_VALUES: usize = 4_000_000;
 
 /// A coarse level keeps at least this many of its steps in every phonon
