@@ -1,6 +1,7 @@
 //! The self-consistent Born loop (SCBA).
 //!
-//! 1. Start from Σ0 = 0 or a stored converged Σ0 (warm start).
+//! 1. Start from Σ0 = 0, from Σ0 of the same loop on coarser energy grids
+//!    ([`coarse`]), or from a stored converged Σ0 (warm start).
 //! 2. For every energy (independent, in parallel): RGF → diagonals of G^r,
 //!    G^n, the bond flows and the terminal flows.
 //! 3. Rebuild Σ0 from the local Green's functions on all energies.
