@@ -94,6 +94,10 @@ pub struct PointEvent {
 pub trait Observer {
     /// A Born iteration finished.
     fn iteration(&mut self, _record: &IterationRecord) {}
+    /// The Born loop starts the level on every `factor`-th energy of the
+    /// grid (`energies` of them); 1 is the grid itself. Heard only when
+    /// coarse levels run, before each level.
+    fn born_level(&mut self, _factor: usize, _energies: usize) {}
     /// An outer iteration of the joint electron–lattice loop finished.
     fn lattice_iteration(&mut self, _record: &LatticeIterationRecord) {}
     /// A solve of a generator or cooler curve at `voltage_v` (V) finished;

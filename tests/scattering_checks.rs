@@ -286,6 +286,7 @@ fn recursion_matches_dense_born_loop() {
             warm_start: false,
             energy_order: qheat::scba::EnergyOrder::Simultaneous,
             probe_residual: None,
+            coarse_levels: vec![],
         },
         lattice_temperature_k: None,
     };

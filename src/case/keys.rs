@@ -10,7 +10,7 @@ use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, Response
 use super::spec::DEFAULT_SPIN_DEGENERACY;
 use crate::electrostatics::Coupling;
 use crate::leads::DecimationParams;
-use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
+use crate::scba::{CoarseStart, EnergyOrder, MixerHistory, Mixing, ScbaParams};
 
 /// What a key holds.
 #[derive(Clone, Copy)]
@@ -191,6 +191,9 @@ fn history_default() -> &'static str {
 }
 fn es_coupling_default() -> &'static str {
     choice_name(Coupling::default())
+}
+fn coarse_default() -> &'static str {
+    choice_name(ScbaParams::default().coarse_start)
 }
 fn order_default() -> &'static str {
     choice_name(ScbaParams::default().energy_order)
@@ -705,6 +708,13 @@ pub static KEYS: &[KeyInfo] = &[
         "",
         Word(order_default),
         "order of the energies within a Born iteration",
+    ),
+    key(
+        "solver.coarse_start",
+        ValueType::Choice(choice_names::<CoarseStart>),
+        "",
+        Word(coarse_default),
+        "solve coarser energy grids (every k-th energy) first and start the full grid from their Σ0: \"auto\" (on from 4·10⁶ orbital-site energies with phonons), \"on\" or \"off\"; the fixed point is the same",
     ),
     key(
         "solver.current_floor_a",

@@ -181,6 +181,7 @@ pub(crate) struct RawSolver {
     pub anderson_history: Opt<String>,
     pub hermitian_part: Opt<String>,
     pub energy_order: Opt<String>,
+    pub coarse_start: Opt<String>,
     pub current_floor_a: Opt<f64>,
     pub decimation_eta_ev: Opt<f64>,
     pub decimation_tolerance_ev: Opt<f64>,

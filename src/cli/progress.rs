@@ -15,6 +15,8 @@ pub fn enabled(quiet: bool) -> bool {
 pub struct BornProgress {
     bar: Option<ProgressBar>,
     target_decades: f64,
+    /// Which grid level runs ("" without coarse levels).
+    level: String,
 }
 
 impl BornProgress {
@@ -37,6 +39,7 @@ impl BornProgress {
         Self {
             bar,
             target_decades,
+            level: String::new(),
         }
     }
 
@@ -54,10 +57,18 @@ impl Observer for BornProgress {
             let decades = (-r.residual.max(1e-300).log10()).clamp(0.0, self.target_decades);
             b.set_position((decades * 10.0) as u64);
             b.set_message(format!(
-                "iteration {} residual {:.1e}",
-                r.iteration, r.residual
+                "{}iteration {} residual {:.1e}",
+                self.level, r.iteration, r.residual
             ));
         }
+    }
+
+    fn born_level(&mut self, factor: usize, energies: usize) {
+        self.level = if factor == 1 {
+            format!("full grid ({energies} energies): ")
+        } else {
+            format!("coarse start, every {factor}th energy ({energies}): ")
+        };
     }
 }
 

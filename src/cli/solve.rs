@@ -188,6 +188,15 @@ fn print_born_loop(sol: &Solution) {
             ""
         }
     );
+    if !r.coarse_levels.is_empty() {
+        let levels: Vec<String> = (r.coarse_levels.iter())
+            .map(|l| format!("{} on every {}th energy", l.iterations, l.factor))
+            .collect();
+        println!(
+            "coarse start      iterations before the full grid: {}",
+            levels.join(", ")
+        );
+    }
 }
 
 /// Where the applied voltage goes: into the contacts (including the

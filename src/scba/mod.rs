@@ -1,6 +1,7 @@
 //! The self-consistent Born loop (SCBA).
 //!
-//! 1. Start from Σ0 = 0 or a stored converged Σ0 (warm start).
+//! 1. Start from Σ0 = 0, from Σ0 of the same loop on coarser energy grids
+//!    ([`coarse`]), or from a stored converged Σ0 (warm start).
 //! 2. For every energy (independent, in parallel): RGF → diagonals of G^r,
 //!    G^n, the bond flows and the terminal flows.
 //! 3. Rebuild Σ0 from the local Green's functions on all energies.
@@ -69,6 +70,7 @@
 //!
 //! `Resolved::memory_estimate_bytes` evaluates this formula.
 
+pub mod coarse;
 pub mod contacts;
 mod mixing;
 mod params;
@@ -77,7 +79,7 @@ mod undetermined;
 
 pub use contacts::ContactFlows;
 pub use mixing::{FusedUpdate, Mixer, RowHook};
-pub use params::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
+pub use params::{CoarseStart, EnergyOrder, MixerHistory, Mixing, ScbaParams};
 use split::Share;
 pub use split::{ClusterSplit, EnergySplit, with_energy_split};
 pub use undetermined::{IsolatedPart, UndeterminedOccupation};
@@ -991,6 +993,9 @@ pub struct ScbaReport {
     /// probes.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub probe_residual: Option<f64>,
+    /// The coarse levels run before this loop, coarsest first (empty when
+    /// the loop started from zero or from a given Σ0 without them).
+    pub coarse_levels: Vec<coarse::CoarseLevel>,
 }
 
 /// A solved operating point: the Green's functions and the Σ0 they were
@@ -1165,7 +1170,7 @@ pub fn solve_in_lattice(
     }
     let scat = &problem.scattering;
     let coherent = scat.is_coherent();
-    let report = ScbaReport {
+    let mut report = ScbaReport {
         converged: true,
         iterations: 0,
         history: Vec::new(),
@@ -1174,6 +1179,7 @@ pub fn solve_in_lattice(
         warm_start: warm.is_some() && !coherent,
         energy_order: EnergyOrder::Simultaneous,
         probe_residual: None,
+        coarse_levels: Vec::new(),
     };
     let lattice = lattice_temperature_k.map(<[f64]>::to_vec);
     // Probes depend on G^n: a coherent device with probes iterates too.
@@ -1205,9 +1211,20 @@ pub fn solve_in_lattice(
             }
             w.clone()
         }
-        None => sigma_zeros(problem),
+        None => {
+            let factors = coarse::levels(problem, params);
+            if factors.is_empty() {
+                sigma_zeros(problem)
+            } else {
+                let t = lattice_temperature_k;
+                let (x, done) = coarse::start(problem, leads, t, params, &factors, observer)?;
+                report.coarse_levels = done;
+                x
+            }
+        }
     };
-    let born = BornLoop::new(problem, leads, lattice, params, report, warm.is_some());
+    let nonzero = warm.is_some() || !report.coarse_levels.is_empty();
+    let born = BornLoop::new(problem, leads, lattice, params, report, nonzero);
     born.run(x, observer)
 }
 

@@ -83,6 +83,22 @@ pub enum EnergyOrder {
     RedBlack,
 }
 
+/// Whether a Born loop started from Σ0 = 0 first solves the same problem
+/// on coarser energy grids (see [`crate::scba::coarse`]).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum CoarseStart {
+    /// On for problems with phonons and at least
+    /// [`crate::scba::coarse::AUTO_MIN_VALUES`] orbital-site energies,
+    /// off otherwise.
+    #[default]
+    Auto,
+    /// Never.
+    Off,
+    /// Whenever the grid has a coarser level (any size).
+    On,
+}
+
 /// Parameters of the SCBA loop. Start from [`ScbaParams::default`] and
 /// change what differs with the `with_…` methods (the struct may gain
 /// settings, so it is not built field by field outside the crate).
@@ -107,6 +123,9 @@ pub struct ScbaParams {
     pub energy_order: EnergyOrder,
     /// Storage of the Anderson history.
     pub history: MixerHistory,
+    /// Whether the loop first solves coarser energy grids
+    /// ([`crate::scba::coarse`]).
+    pub coarse_start: CoarseStart,
 }
 
 impl ScbaParams {
@@ -127,6 +146,7 @@ impl Default for ScbaParams {
             mixing: Mixing::default(),
             energy_order: EnergyOrder::Auto,
             history: MixerHistory::default(),
+            coarse_start: CoarseStart::default(),
         }
     }
 }
@@ -161,6 +181,14 @@ impl ScbaParams {
     /// These settings with the Anderson history stored as `history`.
     pub fn with_history(self, history: MixerHistory) -> Self {
         Self { history, ..self }
+    }
+
+    /// These settings with coarse start `coarse_start`.
+    pub fn with_coarse_start(self, coarse_start: CoarseStart) -> Self {
+        Self {
+            coarse_start,
+            ..self
+        }
     }
 
     /// These settings with energy order `energy_order`.

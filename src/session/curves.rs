@@ -357,6 +357,9 @@ impl Observer for StopBetweenSolves<'_> {
     fn iteration(&mut self, record: &IterationRecord) {
         self.inner.iteration(record);
     }
+    fn born_level(&mut self, factor: usize, energies: usize) {
+        self.inner.born_level(factor, energies);
+    }
     fn lattice_iteration(&mut self, record: &LatticeIterationRecord) {
         self.inner.lattice_iteration(record);
     }

@@ -5,7 +5,7 @@ use super::super::check::{At, Checker, Choice, MAX_ENERGY_EV};
 use super::super::error::CaseError;
 use super::super::raw::{RawCase, RawSolver};
 use crate::leads::DecimationParams;
-use crate::scba::{EnergyOrder, MixerHistory, Mixing, ScbaParams};
+use crate::scba::{CoarseStart, EnergyOrder, MixerHistory, Mixing, ScbaParams};
 use toml::Spanned;
 
 /// A validated `[grid]` table: what the file gives; the rest is derived
@@ -125,6 +125,14 @@ impl Choice for EnergyOrder {
     ];
 }
 
+impl Choice for CoarseStart {
+    const CHOICES: &'static [(&'static str, Self)] = &[
+        ("auto", CoarseStart::Auto),
+        ("off", CoarseStart::Off),
+        ("on", CoarseStart::On),
+    ];
+}
+
 /// A validated `[solver]` table.
 #[derive(Clone, Debug)]
 pub(crate) struct SolverSpec {
@@ -170,6 +178,9 @@ impl SolverSpec {
         }
         if let Some(o) = ck.choice(&s.energy_order, "solver.energy_order")? {
             out.scba.energy_order = o;
+        }
+        if let Some(c) = ck.choice(&s.coarse_start, "solver.coarse_start")? {
+            out.scba.coarse_start = c;
         }
         if let Some(h) = ck.choice(&s.anderson_history, "solver.anderson_history")? {
             out.scba.history = h;

@@ -372,7 +372,7 @@ const LEDGER: [Key; 19] = [
     ),
 ];
 
-const SOLVE_TAIL: [Key; 23] = [
+const SOLVE_TAIL: [Key; 25] = [
     (
         "ledger.worst_relative_of",
         "-",
@@ -474,6 +474,16 @@ const SOLVE_TAIL: [Key; 23] = [
         "scba.energy_order",
         "-",
         "energy order used: simultaneous or red-black",
+    ),
+    (
+        "scba.params.coarse_start",
+        "-",
+        "coarse start setting: auto, on or off",
+    ),
+    (
+        "scba.coarse_levels",
+        "-",
+        "coarse levels run before the full grid, coarsest first: factor (every k-th energy), energies, iterations, converged",
     ),
     (
         "grid",
