@@ -279,6 +279,20 @@ pub struct CoolerRange {
     pub not_converged_at_v: Option<f64>,
 }
 
+/// The best COP and its bias: NaN without cooling; at equal temperatures
+/// (`equal`) infinite at V = 0, since nothing leaks at zero bias, the
+/// cooling power rises linearly from 0 (Peltier) while the input power
+/// I·V rises quadratically, and the COP grows without bound as V → 0 (as
+/// the Carnot COP is infinite): a finite "best" would only be where the
+/// refinement stopped.
+fn best_cop_of(best: Option<&CoolerPoint>, equal: bool) -> (f64, f64) {
+    match best {
+        None => (f64::NAN, f64::NAN),
+        Some(_) if equal => (f64::INFINITY, 0.0),
+        Some(p) => (p.cop, p.voltage_v),
+    }
+}
+
 /// Whether the maximum found at `v_max` (V) sits at the end of `range`
 /// (within 1e-6 of a step `h` of kT/e) of a march that did not end because
 /// the cooling power fell back or levelled off, so the curve was still
@@ -455,12 +469,7 @@ pub fn cooler(
         cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     let max_at_range_end = still_rising_at_end(&range, at_max.voltage_v, h);
-    // At equal temperatures nothing leaks at zero bias: the cooling power
-    // rises linearly from 0 (Peltier) while the input power I·V rises
-    // quadratically, so the COP grows without bound as V → 0, as the
-    // Carnot COP is infinite; any finite "best" would only be where the
-    // refinement stopped.
-    let unbounded_cop = th == tc;
+    let (max_cop, voltage_at_max_cop_v) = best_cop_of(best_cop.as_ref(), th == tc);
     Ok(CoolerReport {
         settings: *settings,
         fermi_level_ev: mu,
@@ -470,16 +479,8 @@ pub fn cooler(
         current_at_max_a: at_max.current_a,
         max_at_range_end,
         cop_at_max: at_max.cop,
-        max_cop: match best_cop {
-            Some(_) if unbounded_cop => f64::INFINITY,
-            Some(p) => p.cop,
-            None => f64::NAN,
-        },
-        voltage_at_max_cop_v: match best_cop {
-            Some(_) if unbounded_cop => 0.0,
-            Some(p) => p.voltage_v,
-            None => f64::NAN,
-        },
+        max_cop,
+        voltage_at_max_cop_v,
         carnot_cop: carnot_cop(th, tc),
         coefficients,
         ioffe_max_cop: ioffe,
