@@ -436,6 +436,28 @@ fn anderson_mixing_on_a_long_chain_splits_to_the_bits_of_one_process() {
     assert!(s["scba"]["iterations"].as_u64().unwrap() > 3);
 }
 
+/// The coarse start: a 32-step phonon on a 256-step grid gives one coarse
+/// level of every 4th energy (8 phonon steps, 65 energies). The coarse
+/// solves go through the same split of the energy rows as the full grid's,
+/// so 1, 2 and 4 ranks write what one process writes.
+#[test]
+fn a_coarse_start_splits_like_one_process() {
+    let tmp = tempfile::tempdir().unwrap();
+    let text = PHONON_CASE
+        .replace("energy_ev = 0.04", "energy_ev = 0.032")
+        .replace(
+            "step_ev = 0.004",
+            "step_ev = 0.001\nmin_ev = -0.05\nmax_ev = 0.206",
+        )
+        .replace("[solver]\n", "[solver]\ncoarse_start = \"on\"\n");
+    let case = write(tmp.path(), "case.toml", &text);
+    let one = solve_everywhere(tmp.path(), &case, &[]);
+    let s = summary(&one);
+    let levels = s["scba"]["coarse_levels"].as_array().unwrap();
+    assert_eq!(levels.len(), 1, "{}", s["scba"]);
+    assert!(s["scba"]["iterations"].as_u64().unwrap() > 3);
+}
+
 #[test]
 fn a_dephasing_solve_in_simultaneous_order_splits_like_one_process() {
     let tmp = tempfile::tempdir().unwrap();
