@@ -110,6 +110,12 @@ fn cooling_curve(
     }))
 }
 
+/// Whether point `i`'s largest cooling power is only a lower bound: its
+/// curve was still rising at the end of its range.
+fn at_range_end(table: &SweepTable, i: usize) -> bool {
+    (table.column("max_at_range_end")).is_some_and(|c| table.rows[i][c] == 1.0)
+}
+
 /// Terminal lines: the five best points and where the ranking is.
 fn print_ranking(
     grid: &Grid,
@@ -137,6 +143,10 @@ fn print_ranking(
         let shown = match rank {
             Rank::Zt => format!("ZT = {score:.4}"),
             Rank::PowerFactor => format!("S²G = {}", si(score, "W/K²", 4)),
+            Rank::Cooling if at_range_end(table, i) => format!(
+                "cooling power ≥ {} (still rising at the range end)",
+                si(score, "W", 4)
+            ),
             Rank::Cooling => format!("cooling power = {}", si(score, "W", 4)),
         };
         println!(

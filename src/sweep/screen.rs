@@ -145,13 +145,14 @@ const COEFFICIENT_COLUMNS: [&str; 10] = [
     "converged",
 ];
 
-const COOLING_COLUMNS: [&str; 7] = [
+const COOLING_COLUMNS: [&str; 8] = [
     "fermi_level_ev",
     "max_cooling_power_w",
     "voltage_at_max_v",
     "current_at_max_a",
     "cop_at_max",
     "carnot_cop",
+    "max_at_range_end",
     "converged",
 ];
 
@@ -166,14 +167,15 @@ impl PointTask for ScreenTask {
 
     fn describe(&self) -> String {
         // ZT and power factor share their columns, so they share points
-        // (κph joined the columns: stores written before it are not reused).
+        // (κph joined the columns, and the range-end flag the cooling
+        // columns: stores written before them are not reused).
         let d = match self.cooling {
             None => "screen coefficients with phonon conductance".to_string(),
             Some(CoolingCurve {
                 hot_k,
                 cold_k,
                 points,
-            }) => format!("screen cooling {hot_k:e} {cold_k:e} {points}"),
+            }) => format!("screen cooling {hot_k:e} {cold_k:e} {points} with the range-end flag"),
         };
         match self.electrostatics {
             true => format!("{d} with the potential solved at every run"),
@@ -237,6 +239,7 @@ impl PointTask for ScreenTask {
                     r.current_at_max_a,
                     r.cop_at_max,
                     r.carnot_cop,
+                    if r.max_at_range_end { 1.0 } else { 0.0 },
                     if r.converged { 1.0 } else { 0.0 },
                 ]
             }

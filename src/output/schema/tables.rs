@@ -683,7 +683,7 @@ pub fn cooler() -> Table<CoolerReport> {
 pub type GridColumn = (&'static str, &'static str, CellKind, &'static str);
 
 /// Every result column a grid table can hold, after its axis columns.
-pub const GRID_COLUMNS: [GridColumn; 36] = [
+pub const GRID_COLUMNS: [GridColumn; 37] = [
     (
         "rank",
         "1",
@@ -882,6 +882,12 @@ pub const GRID_COLUMNS: [GridColumn; 36] = [
         "1",
         CellKind::Num,
         "Carnot COP of the two lead temperatures (screen, by cooling)",
+    ),
+    (
+        "max_at_range_end",
+        "-",
+        CellKind::Bool,
+        "whether the largest cooling power sits at the end of the curve's range, still rising: a lower bound (screen, by cooling)",
     ),
     (
         "converged",
