@@ -154,6 +154,15 @@ fn cool(case: &Case, hot: f64, cold: f64, lead: Side) -> CoolerReport {
     .unwrap()
 }
 
+/// The stages of the solves a curve runs, in order.
+#[derive(Default)]
+struct Stages(Vec<&'static str>);
+impl qheat::progress::Observer for Stages {
+    fn curve_solved(&mut self, stage: &'static str, _voltage_v: f64) {
+        self.0.push(stage);
+    }
+}
+
 /// Thermionic barrier at equal temperatures: no cooling at zero current
 /// (exactly: j(E) ∝ f1 − f2 = 0), a single maximum inside the swept range,
 /// the source doing work there (I·V > 0). The mirror device cools either
@@ -183,6 +192,16 @@ fn thermionic_cooler_has_one_maximum() {
     // linear, input power quadratic in V), as the Carnot COP does.
     assert!(r.max_cop.is_infinite() && r.carnot_cop.is_infinite());
     assert_eq!(r.voltage_at_max_cop_v, 0.0);
+    // That answer needs no solve: none is spent refining the best COP at
+    // equal temperatures, while a temperature difference refines it.
+    let stages = |hot: f64| {
+        let mut seen = Stages::default();
+        let settings = CoolerSettings::new(hot, 300.0, 31).with_figure_of_merit(false);
+        cooler(&case, &settings, &mut seen).unwrap();
+        seen.0
+    };
+    assert!(!stages(300.0).contains(&"best COP"));
+    assert!(stages(301.0).contains(&"best COP"));
     let q1 = &r.curve[1];
     assert!(q1.cop > r.cop_at_max, "COP largest near V = 0: {}", q1.cop);
     assert!(r.current_at_max_a * r.voltage_at_max_v > 0.0);

@@ -379,12 +379,14 @@ fn march_end(
 
 /// The cooler curve of `n` voltages from 0 (the solved `zero`) to `end`,
 /// its point of maximum cooling power and its best COP (if anything
-/// cools), each refined between curve points.
+/// cools), each refined between curve points. At equal lead temperatures
+/// (`equal`) the best COP is not refined: it is unbounded as V → 0 (see
+/// [`best_cop_of`]), so any cooling sample stands for it and no solve is
+/// spent on it.
 fn cooler_curve(
     dev: &mut BiasedCase,
     zero: CoolerPoint,
-    end: f64,
-    n: usize,
+    (end, n, equal): (f64, usize, bool),
     cold: Side,
     observer: &mut dyn Observer,
 ) -> Result<(Vec<CoolerPoint>, CoolerPoint, Option<CoolerPoint>), CurveError> {
@@ -414,13 +416,20 @@ fn cooler_curve(
     samples.push(at_max);
     samples.sort_by(|p, q| p.voltage_v.total_cmp(&q.voltage_v));
     samples.dedup_by(|p, q| p.voltage_v == q.voltage_v);
-    let best_cop = refine_max(
-        &samples,
-        &|p: &CoolerPoint| p.voltage_v,
-        &|p: &CoolerPoint| p.cop,
-        tol,
-        &mut |v| cooler_point(dev, v, "best COP", cold, observer),
-    )?;
+    let best_cop = if equal {
+        let cop = |p: &&CoolerPoint| p.cop;
+        (samples.iter().filter(|p| cop(p).is_finite()))
+            .max_by(|p, q| cop(p).total_cmp(&cop(q)))
+            .copied()
+    } else {
+        refine_max(
+            &samples,
+            &|p: &CoolerPoint| p.voltage_v,
+            &|p: &CoolerPoint| p.cop,
+            tol,
+            &mut |v| cooler_point(dev, v, "best COP", cold, observer),
+        )?
+    };
     Ok((curve, at_max, best_cop))
 }
 
@@ -465,8 +474,13 @@ pub fn cooler(
     // grew since.
     let zero = CoolerPoint::from(&dev.current(zero_solved, "zero bias", observer)?, cold);
     let q0 = zero.cooling_power_w;
-    let (curve, at_max, best_cop) =
-        cooler_curve(&mut dev, zero, end, settings.points, cold, observer)?;
+    let (curve, at_max, best_cop) = cooler_curve(
+        &mut dev,
+        zero,
+        (end, settings.points, th == tc),
+        cold,
+        observer,
+    )?;
     let ioffe = coefficients.as_ref().map(|c| ioffe_max_cop(c.zt, th, tc));
     let max_at_range_end = still_rising_at_end(&range, at_max.voltage_v, h);
     let (max_cop, voltage_at_max_cop_v) = best_cop_of(best_cop.as_ref(), th == tc);
