@@ -252,15 +252,20 @@ fn library_writes_the_cli_folders_of_generator_and_cooler() {
     same_numbers(&csv_columns(&a["cooler.csv"]), &run.table(), "cooler.csv");
 }
 
-/// Stops whatever runs once `after` solves of a curve are done.
+/// Stops whatever runs once `after` solves of a curve are done; counts the
+/// solves and their records (each solve reports both).
 struct StopAfterSolves {
     after: usize,
     solves: usize,
+    records: usize,
 }
 
 impl Observer for StopAfterSolves {
     fn curve_solved(&mut self, _stage: &'static str, _voltage_v: f64) {
         self.solves += 1;
+    }
+    fn curve_point(&mut self, _record: &qheat::progress::CurvePointRecord) {
+        self.records += 1;
     }
     fn cancelled(&self) -> bool {
         self.solves >= self.after
@@ -281,13 +286,16 @@ fn an_observer_stops_coefficients_and_curves() {
     let mut stop = StopAfterSolves {
         after: 2,
         solves: 0,
+        records: 0,
     };
     let r = session::generator(loaded.clone(), 330.0, 300.0, 9, &mut stop);
     assert!(matches!(r, Err(SessionError::Cancelled)), "{r:?}");
     assert_eq!(stop.solves, 2, "no solve after the one that asked to stop");
+    assert_eq!(stop.records, 2, "each solve's record reaches the observer");
     let mut stop = StopAfterSolves {
         after: 1,
         solves: 0,
+        records: 0,
     };
     let r = session::cooler(loaded, 300.0, 290.0, 9, Side::Right, &mut stop);
     assert!(matches!(r, Err(SessionError::Cancelled)), "{r:?}");

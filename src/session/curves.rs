@@ -18,7 +18,9 @@ use crate::output::results::header;
 use crate::output::schema::summary::{CoefficientsSummary, CurveSummary, to_text};
 use crate::output::schema::tables;
 use crate::output::{OtherFiles, Staging};
-use crate::progress::{IterationRecord, LatticeIterationRecord, Observer, PointEvent};
+use crate::progress::{
+    CurvePointRecord, IterationRecord, LatticeIterationRecord, Observer, PointEvent,
+};
 use crate::thermo::cooler::{CoolerReport, CoolerSettings, cooler as cooler_curve};
 use crate::thermo::generator::{
     CurveError, GeneratorReport, GeneratorSettings, generator as generator_curve,
@@ -347,7 +349,7 @@ fn write_curve(
 struct Stopped;
 
 /// Passes every event on to the caller's observer; after a solve of the
-/// curve, when that observer asks to stop, unwinds the curve (without the
+/// curve (its record heard), when that observer asks to stop, unwinds the curve (without the
 /// panic hook, so nothing is printed) up to [`between_solves`].
 struct StopBetweenSolves<'a> {
     inner: &'a mut dyn Observer,
@@ -365,6 +367,11 @@ impl Observer for StopBetweenSolves<'_> {
     }
     fn curve_solved(&mut self, stage: &'static str, voltage_v: f64) {
         self.inner.curve_solved(stage, voltage_v);
+    }
+    /// The last event of a solve (right after its `curve_solved`): the
+    /// place to stop, once the caller has heard all of the solve.
+    fn curve_point(&mut self, record: &CurvePointRecord) {
+        self.inner.curve_point(record);
         if self.inner.cancelled() {
             std::panic::resume_unwind(Box::new(Stopped));
         }
