@@ -37,7 +37,7 @@ pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_po
 pub use movers::{
     MoverLevels, MoverStatus, UNIFORM_TOLERANCE_EV, mover_levels, mover_levels_with, uniform_pairs,
 };
-pub use occupation::{OCCUPATION_THRESHOLD, occupation_map};
+pub use occupation::{OCCUPATION_THRESHOLD, Occupation, occupation_map};
 
 use crate::model::Problem;
 use crate::scba::Solution;
@@ -289,20 +289,54 @@ pub fn lattice_power(sol: &Solution) -> Vec<f64> {
         .collect()
 }
 
+/// The energy-resolved bond current read straight from a solution, value
+/// by value: what [`bond_current_map`] holds, without storing it.
+#[derive(Clone, Copy)]
+pub struct BondCurrent<'a> {
+    bond: &'a [f64],
+    /// Bonds (cells − 1).
+    pub pairs: usize,
+    /// Energies of the grid.
+    pub energies: usize,
+    scale: f64,
+}
+
+impl<'a> BondCurrent<'a> {
+    /// The bond current of `sol`.
+    pub fn of(sol: &'a Solution) -> Self {
+        let p = &sol.problem;
+        Self {
+            bond: &sol.pass.bond,
+            pairs: p.device.cells().saturating_sub(1),
+            energies: p.grid.count,
+            scale: ELEMENTARY_CHARGE * flow_scale(p),
+        }
+    }
+
+    /// The current between cells i and i + 1 at energy index k (A/eV).
+    pub fn value(&self, i: usize, k: usize) -> f64 {
+        self.bond[k * self.pairs + i] * self.scale
+    }
+
+    /// Every bond's current at energy index k, in the order of the bonds.
+    pub fn at_energy(&self, k: usize) -> impl Iterator<Item = f64> + '_ {
+        let scale = self.scale;
+        self.bond[k * self.pairs..(k + 1) * self.pairs]
+            .iter()
+            .map(move |b| b * scale)
+    }
+}
+
 /// Energy-resolved bond current as an electron flow per unit energy times e
 /// (A/eV), positive for electrons moving to +x: shape (cells − 1) × energies.
 pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
-    let p = &sol.problem;
-    let n = p.device.cells();
-    let ne = p.grid.count;
-    let pairs = n.saturating_sub(1);
-    let scale = ELEMENTARY_CHARGE * flow_scale(p);
-    let bond = &sol.pass.bond;
+    let bond = BondCurrent::of(sol);
+    let (pairs, ne) = (bond.pairs, bond.energies);
     let mut map = ndarray::Array2::zeros((pairs, ne));
     if let Some(out) = map.as_slice_mut() {
         par_cell_rows(out, ne, |i, row| {
             for (k, v) in row.iter_mut().enumerate() {
-                *v = bond[k * pairs + i] * scale;
+                *v = bond.value(i, k);
             }
         });
     }
