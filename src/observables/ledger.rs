@@ -58,6 +58,10 @@ impl ModePower {
     }
 }
 
+/// Sites one task of [`phonon_side_power`] sums: the arrays are
+/// energy-major, so neighbouring sites share each row's cache lines.
+const SITES_AT_ONCE: usize = 16;
+
 /// Emission, absorption and lattice power of every phonon mode, computed
 /// from the Green's functions of the last pass alone (module docs).
 pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
@@ -75,31 +79,35 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
         .map(|m| {
             let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
-            // Each site's sums over the energies in parallel, then added
-            // up site by site in order (the same sums as one loop).
-            let per_site: Vec<Option<(f64, f64)>> = (0..ns)
-                .into_par_iter()
-                .map(|s| {
-                    if m.coupling_ev2[s] == 0.0 {
-                        return None;
-                    }
-                    let (mut e_s, mut a_s) = (0.0, 0.0);
-                    for k in 0..ne {
-                        let filled = g.filled[k * ns + s];
+            // Each site's sums over the energies in order, a few
+            // neighbouring sites per task in parallel (whole cache lines of
+            // the energy-major rows), then added up site by site in order
+            // (the same sums as one loop).
+            let sums = |first: usize, out: &mut [(f64, f64)]| {
+                for k in 0..ne {
+                    let row = k * ns + first;
+                    for (c, (e_s, a_s)) in out.iter_mut().enumerate() {
+                        let filled = g.filled[row + c];
                         if k >= w {
-                            e_s += filled * g.empty((k - w) * ns + s);
+                            *e_s += filled * g.empty(row - w * ns + c);
                         }
                         if k + w < ne {
-                            a_s += filled * g.empty((k + w) * ns + s);
+                            *a_s += filled * g.empty(row + w * ns + c);
                         }
                     }
-                    Some((e_s, a_s))
-                })
-                .collect();
+                }
+            };
+            let mut per_site = vec![(0.0, 0.0); ns];
+            per_site
+                .par_chunks_mut(SITES_AT_ONCE)
+                .enumerate()
+                .for_each(|(t, out)| sums(t * SITES_AT_ONCE, out));
             let (mut emit, mut absorb) = (0.0, 0.0);
-            for (s, (&n, sums)) in occupation.iter().zip(&per_site).enumerate() {
-                let Some((e_s, a_s)) = sums else { continue };
+            for (s, (&n, &(e_s, a_s))) in occupation.iter().zip(&per_site).enumerate() {
                 let d = m.coupling_ev2[s];
+                if d == 0.0 {
+                    continue;
+                }
                 emit += d * (n + 1.0) * e_s;
                 absorb += d * n * a_s;
             }

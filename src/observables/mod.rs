@@ -268,25 +268,43 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
 }
 
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
-/// (the cells in parallel).
+/// (the cells in parallel, [`CELLS_AT_ONCE`] at a time so that each
+/// energy-major row is read in whole cache lines; each cell's sum runs
+/// over the energies in order).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
-    use rayon::prelude::*;
     let p = &sol.problem;
     let b = p.device.orbitals;
-    let n = p.device.cells();
     let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
-    (0..n)
-        .into_par_iter()
-        .map(|i| {
-            let mut acc = 0.0;
-            for k in 0..p.grid.count {
-                let e = p.grid.energy(k);
+    per_cell_sums(p.device.cells(), |first, acc| {
+        for k in 0..p.grid.count {
+            let e = p.grid.energy(k);
+            for (c, a) in acc.iter_mut().enumerate() {
+                let i = first + c;
                 let t: f64 = (0..b).map(|o| bath_trace(sol, k, i * b + o)).sum();
-                acc += e * t;
+                *a += e * t;
             }
-            acc * scale
-        })
-        .collect()
+        }
+        for a in acc.iter_mut() {
+            *a *= scale;
+        }
+    })
+}
+
+/// Cells (or sites) one task of [`per_cell_sums`] takes: the arrays are
+/// energy-major, so neighbouring cells share the cache lines of each
+/// energy's row.
+pub(crate) const CELLS_AT_ONCE: usize = 16;
+
+/// One number per cell, `n` cells, computed [`CELLS_AT_ONCE`] at a time in
+/// parallel: `fill(first, acc)` receives zeros for cells `first..` and
+/// leaves each cell's number in them.
+pub(crate) fn per_cell_sums(n: usize, fill: impl Fn(usize, &mut [f64]) + Sync) -> Vec<f64> {
+    use rayon::prelude::*;
+    let mut out = vec![0.0; n];
+    out.par_chunks_mut(CELLS_AT_ONCE)
+        .enumerate()
+        .for_each(|(t, acc)| fill(t * CELLS_AT_ONCE, acc));
+    out
 }
 
 /// The energy-resolved bond current read straight from a solution, value
@@ -500,6 +518,7 @@ fn site_profile(
 /// [Σ j_1, Σ j_2, Σ E j_1, Σ E j_2, the gross energy exchange, the gross
 /// heat exchange of the leads].
 fn flow_sums(sol: &Solution) -> (Spectrum, [f64; 6]) {
+    use rayon::prelude::*;
     let p = &sol.problem;
     let grid = &p.grid;
     let ns = p.sites();
@@ -513,14 +532,24 @@ fn flow_sums(sol: &Solution) -> (Spectrum, [f64; 6]) {
         flow_bath: Vec::with_capacity(grid.count),
         transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
     };
+    // The bath's sums over the sites of each energy (in site order), the
+    // energies in parallel; the sums over energies below stay in order.
+    let bath: Vec<(f64, f64)> = (0..sol.pass.flows.len())
+        .into_par_iter()
+        .map(|k| {
+            let net = (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
+            let gross = (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+            (net, gross)
+        })
+        .collect();
     let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
     let (mut gross_e, mut gross_q) = (0.0, 0.0);
-    for (k, f) in sol.pass.flows.iter().enumerate() {
+    for (k, (f, &(net, gross))) in sol.pass.flows.iter().zip(&bath).enumerate() {
         let e = grid.energy(k);
         let j1 = js * f.left;
         let j2 = js * f.right;
-        let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
-        let j0_gross: f64 = js * (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+        let j0: f64 = js * net;
+        let j0_gross: f64 = js * gross;
         let g1 = js * f.left_gross;
         let g2 = js * f.right_gross;
         spectrum.flow_left.push(j1);
