@@ -58,10 +58,6 @@ impl ModePower {
     }
 }
 
-/// Sites one task of [`phonon_side_power`] sums: the arrays are
-/// energy-major, so neighbouring sites share each row's cache lines.
-const SITES_AT_ONCE: usize = 16;
-
 /// Emission, absorption and lattice power of every phonon mode, computed
 /// from the Green's functions of the last pass alone (module docs).
 pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
@@ -79,9 +75,9 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
         .map(|m| {
             let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
-            // Each site's sums over the energies in order, a few
-            // neighbouring sites per task in parallel (whole cache lines of
-            // the energy-major rows), then added up site by site in order
+            // Each site's sums over the energies in order, neighbouring
+            // sites per task in parallel (whole pages of the energy-major
+            // rows), then added up site by site in order
             // (the same sums as one loop).
             let sums = |first: usize, out: &mut [(f64, f64)]| {
                 for k in 0..ne {
@@ -98,10 +94,11 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
                 }
             };
             let mut per_site = vec![(0.0, 0.0); ns];
+            let at_once = super::cells_per_task(ns);
             per_site
-                .par_chunks_mut(SITES_AT_ONCE)
+                .par_chunks_mut(at_once)
                 .enumerate()
-                .for_each(|(t, out)| sums(t * SITES_AT_ONCE, out));
+                .for_each(|(t, out)| sums(t * at_once, out));
             let (mut emit, mut absorb) = (0.0, 0.0);
             for (s, (&n, &(e_s, a_s))) in occupation.iter().zip(&per_site).enumerate() {
                 let d = m.coupling_ev2[s];

@@ -268,9 +268,9 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
 }
 
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
-/// (the cells in parallel, [`CELLS_AT_ONCE`] at a time so that each
-/// energy-major row is read in whole cache lines; each cell's sum runs
-/// over the energies in order).
+/// (the cells in parallel, [`cells_per_task`] at a time so that each
+/// energy-major row is read in whole pages; each cell's sum runs over the
+/// energies in order).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
     let p = &sol.problem;
     let b = p.device.orbitals;
@@ -290,20 +290,25 @@ pub fn lattice_power(sol: &Solution) -> Vec<f64> {
     })
 }
 
-/// Cells (or sites) one task of [`per_cell_sums`] takes: the arrays are
-/// energy-major, so neighbouring cells share the cache lines of each
-/// energy's row.
-pub(crate) const CELLS_AT_ONCE: usize = 16;
+/// Cells (or sites) one task of a per-cell pass over the energy-major
+/// arrays takes, out of `n`: at most 256, so that each energy's row is read
+/// a whole page at a time (one number per cache line, or a page for 16
+/// numbers, was what such passes waited on at 10⁴ cells), and at least 16,
+/// with about 32 tasks for a few thousand cells to keep every thread busy.
+pub(crate) fn cells_per_task(n: usize) -> usize {
+    (n / 32).clamp(16, 256)
+}
 
-/// One number per cell, `n` cells, computed [`CELLS_AT_ONCE`] at a time in
+/// One number per cell, `n` cells, [`cells_per_task`] at a time in
 /// parallel: `fill(first, acc)` receives zeros for cells `first..` and
 /// leaves each cell's number in them.
 pub(crate) fn per_cell_sums(n: usize, fill: impl Fn(usize, &mut [f64]) + Sync) -> Vec<f64> {
     use rayon::prelude::*;
     let mut out = vec![0.0; n];
-    out.par_chunks_mut(CELLS_AT_ONCE)
+    let at_once = cells_per_task(n);
+    out.par_chunks_mut(at_once)
         .enumerate()
-        .for_each(|(t, acc)| fill(t * CELLS_AT_ONCE, acc));
+        .for_each(|(t, acc)| fill(t * at_once, acc));
     out
 }
 
