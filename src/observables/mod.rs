@@ -268,7 +268,7 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
 }
 
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
-/// (the cells in parallel, [`cells_per_task`] at a time so that each
+/// (the cells in parallel, up to 256 neighbouring cells at a time so that each
 /// energy-major row is read in whole pages; each cell's sum runs over the
 /// energies in order).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {

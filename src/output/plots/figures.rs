@@ -975,7 +975,6 @@ pub fn bond_current_svg_within(
     max_pixels: usize,
 ) -> Result<String, OutputError> {
     const FIGURE: &str = "bond_current.svg";
-    use rayon::prelude::*;
     let p = &sol.problem;
     let s = &o.sites;
     let bond = BondCurrent::of(sol);
@@ -993,26 +992,14 @@ pub fn bond_current_svg_within(
     let x: Vec<f64> = s.x_nm[..pairs].iter().map(|xi| xi + 0.5 * a).collect();
     let energies = &o.spectrum.energy_ev;
     let (ef, eu) = energy_unit(energies.iter().copied());
-    // Per energy, the largest magnitude (the busy window's weight) and the
-    // largest finite one (the colour unit's): maxima, so the energies in
-    // parallel give the numbers of one pass over the map.
-    let (weight, finite): (Vec<f64>, Vec<f64>) = (0..ne)
-        .into_par_iter()
-        .map(|k| {
-            let row = bond.at_energy(k);
-            row.fold((0.0f64, 0.0f64), |(m, f), v| {
-                let f = if v.is_finite() { f.max(v.abs()) } else { f };
-                (m.max(v.abs()), f)
-            })
-        })
-        .unzip();
+    let (weight, largest) = bond_weights(&bond);
     let keep = [p.left.fermi_level_ev, p.right.fermi_level_ev];
     let (e0, e1) = busy_window(energies, &weight, &keep);
     let rows: Vec<usize> = (0..ne)
         .filter(|&k| energies[k] >= e0 && energies[k] <= e1)
         .collect();
     let y: Vec<f64> = rows.iter().map(|&k| energies[k] * ef).collect();
-    let (vf, vp) = prefix_for(finite.iter().copied().fold(0.0, f64::max));
+    let (vf, vp) = prefix_for(largest);
     let fill = |r: usize, out: &mut [f64]| {
         for (v, b) in out.iter_mut().zip(bond.at_energy(rows[r])) {
             *v = b * vf;
@@ -1049,6 +1036,25 @@ pub fn bond_current_svg_within(
         size: (WIDTH, 640),
         max_pixels,
     })
+}
+
+/// Per energy the largest magnitude of the bond current (the busy
+/// window's weight), and the largest finite magnitude of all (the colour
+/// unit's): maxima, so the energies in parallel give the numbers of one
+/// pass over the map.
+fn bond_weights(bond: &BondCurrent<'_>) -> (Vec<f64>, f64) {
+    use rayon::prelude::*;
+    let (weight, finite): (Vec<f64>, Vec<f64>) = (0..bond.energies)
+        .into_par_iter()
+        .map(|k| {
+            let row = bond.at_energy(k);
+            row.fold((0.0f64, 0.0f64), |(m, f), v| {
+                let f = if v.is_finite() { f.max(v.abs()) } else { f };
+                (m.max(v.abs()), f)
+            })
+        })
+        .unzip();
+    (weight, finite.iter().copied().fold(0.0, f64::max))
 }
 
 /// The band edge (solid) and the local Fermi level (dashed) drawn over a
