@@ -96,6 +96,88 @@ fn check_shows_memory_and_a_time_guess() {
     assert_eq!(v["iteration_guess"], resolved.iteration_guess());
 }
 
+/// With the coarse start on (auto on the 10⁴ × 10⁴ scale case), `qheat
+/// check` names the coarse levels it assumes, counts each level of every
+/// k-th energy at 1/k of a full-grid iteration, and says that the counts
+/// are guesses; turned off, the same case is guessed as a plain loop.
+/// (Consistency of the estimate's own parts, no outside reference.)
+#[test]
+fn check_counts_the_coarse_levels_at_their_cost() {
+    let case = Path::new(env!("CARGO_MANIFEST_DIR")).join("benches/cases/scale-chain.toml");
+    let run = |args: &[&str], case: &Path| {
+        let o = Command::new(env!("CARGO_BIN_EXE_qheat"))
+            .args(["--threads", "2"])
+            .args(args)
+            .arg("check")
+            .arg(case)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        String::from_utf8_lossy(&o.stdout).into_owned()
+    };
+    let text = run(&[], &case);
+    let time = text
+        .lines()
+        .find(|l| l.starts_with("time "))
+        .expect("a time line");
+    let resolved = Case::load(&case).unwrap().resolve().unwrap();
+    let levels = resolved.coarse_iteration_guess();
+    // 10⁴ steps and 720 per phonon share 80: levels of every 80th, 16th
+    // and 4th energy (the rule of src/scba/coarse.rs).
+    assert_eq!(levels.iter().map(|l| l.0).collect::<Vec<_>>(), [80, 16, 4]);
+    for (k, it) in &levels {
+        assert!(
+            time.contains(&format!("{it} on every {k}th energy")),
+            "{time}"
+        );
+    }
+    assert!(time.contains("guessed before the run"), "{time}");
+    let fine = resolved.iteration_guess();
+    assert!(
+        time.contains(&format!("then {fine} on the full grid")),
+        "{time}"
+    );
+    let equivalents = resolved.iteration_equivalents_guess();
+    let want = fine as f64
+        + levels
+            .iter()
+            .map(|&(k, it)| it as f64 / k as f64)
+            .sum::<f64>();
+    assert_eq!(equivalents, want);
+    assert!(
+        time.contains(&format!("{equivalents:.1} full-grid iteration(s)")),
+        "{time}"
+    );
+    let v: serde_json::Value = serde_json::from_str(&run(&["--json"], &case)).unwrap();
+    assert_eq!(v["iteration_equivalents_guess"], equivalents);
+    assert_eq!(v["coarse_levels_guess"][0]["factor"], 80);
+    assert_eq!(v["iteration_guess"], fine);
+    let t = v["time_estimate_s"].as_f64().unwrap();
+    let per = resolved.iteration_time_estimate_seconds(2);
+    assert!((t - equivalents * per).abs() <= 1e-12 * t, "{t}");
+
+    // Off: no levels, the plain guess, and fewer equivalents than a plain
+    // loop would be guessed to need with the coarse start on.
+    let dir = tempfile::tempdir().unwrap();
+    let off = dir.path().join("off.toml");
+    let text = std::fs::read_to_string(&case).unwrap();
+    let off_text = text.replace("[solver]", "[solver]\ncoarse_start = \"off\"");
+    assert_ne!(off_text, text);
+    std::fs::write(&off, off_text).unwrap();
+    let plain = Case::load(&off).unwrap().resolve().unwrap();
+    assert!(plain.coarse_iteration_guess().is_empty());
+    assert!(plain.iteration_guess() > fine);
+    assert_eq!(
+        plain.iteration_equivalents_guess(),
+        plain.iteration_guess() as f64
+    );
+    assert!(equivalents < plain.iteration_equivalents_guess());
+    let time = run(&[], &off);
+    let time = time.lines().find(|l| l.starts_with("time ")).unwrap();
+    assert!(time.contains("a count guessed before the run"), "{time}");
+    assert!(!time.contains("coarse"), "{time}");
+}
+
 /// The time estimate is linear in the energies and the cells (the
 /// recursion and the mixing are), grows as b³ for wide cells, and assumes
 /// no more iterations than the limit.

@@ -335,12 +335,45 @@ impl Resolved {
         let threads = rayon::current_num_threads();
         let _ = writeln!(
             s,
-            "time        about {} on {threads} thread(s) (a guess: {} iteration(s) of about {} each)",
+            "time        about {} on {threads} thread(s) (a guess: {} of about {} each)",
             duration(self.time_estimate_seconds(threads)),
-            self.iteration_guess(),
+            self.iterations_guessed(),
             duration(self.iteration_time_estimate_seconds(threads))
         );
     }
+
+    /// The iterations of the time estimate in words: the full grid's, or
+    /// with a coarse start each level's and their full-grid equivalents,
+    /// saying that the counts are guesses.
+    fn iterations_guessed(&self) -> String {
+        let fine = self.iteration_guess();
+        let coarse = self.coarse_iteration_guess();
+        if coarse.is_empty() {
+            return format!("{fine} iteration(s), a count guessed before the run,");
+        }
+        let levels: Vec<String> = (coarse.iter())
+            .map(|&(k, it)| format!("{it} on every {} energy", ordinal(k)))
+            .collect();
+        format!(
+            "iteration counts guessed before the run: {}, then {fine} on the full grid (coarse \
+             start), {:.1} full-grid iteration(s) in all, a level of every k-th energy costing \
+             1/k of one,",
+            levels.join(", "),
+            self.iteration_equivalents_guess()
+        )
+    }
+}
+
+/// 4th, 21st, 32nd, 113th.
+fn ordinal(k: usize) -> String {
+    let suffix = match (k % 10, k % 100) {
+        (_, 11..=13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{k}{suffix}")
 }
 
 /// A duration in s, min or h with two or three significant digits.

@@ -1265,11 +1265,25 @@ impl Resolved {
         mixed * values * parts * a * q
     }
 
-    /// How many Born iterations the time estimate assumes: 1 without
-    /// scattering; otherwise a guess from the mixing (Anderson mixing
-    /// typically converges in 10–30 iterations on the cases measured,
-    /// linear mixing can need hundreds), never more than the limit.
+    /// How many Born iterations the time estimate assumes on the full
+    /// grid: 1 without scattering; otherwise a guess from the mixing
+    /// (Anderson mixing typically converges in 10–30 iterations on the
+    /// cases measured, linear mixing can need hundreds), two thirds of that
+    /// after a coarse start ([`Self::coarse_iteration_guess`]), never more
+    /// than the limit.
     pub fn iteration_guess(&self) -> usize {
+        let plain = self.plain_iteration_guess();
+        if self.coarse_iteration_guess().is_empty() {
+            return plain;
+        }
+        // After the coarse levels the full grid needed 14, 22 and 23
+        // iterations on the three cases measured (docs/performance.md,
+        // "Coarse start"), against 22, 52 and 93 from zero.
+        (2 * plain).div_ceil(3).max(1)
+    }
+
+    /// The guess from the mixing alone (see [`Self::iteration_guess`]).
+    fn plain_iteration_guess(&self) -> usize {
         if self.problem.scattering.is_coherent() {
             return 1;
         }
@@ -1278,6 +1292,30 @@ impl Resolved {
             Mixing::Linear { .. } => 100,
         };
         guess.min(self.scba.max_iterations.max(1))
+    }
+
+    /// The coarse levels a solve from Σ0 = 0 runs before the full grid
+    /// (`solver.coarse_start`), coarsest first, each as (k, iterations
+    /// guessed) for the grid of every k-th energy: the plain guess of
+    /// [`Self::iteration_guess`] per level (a level is the same Born
+    /// problem on fewer energies; 10–41 were measured). Empty when no
+    /// coarse level runs.
+    pub fn coarse_iteration_guess(&self) -> Vec<(usize, usize)> {
+        let guess = self.plain_iteration_guess();
+        crate::scba::coarse::levels(&self.problem, &self.scba)
+            .into_iter()
+            .map(|k| (k, guess))
+            .collect()
+    }
+
+    /// The iterations the time estimate assumes, in full-grid iterations:
+    /// [`Self::iteration_guess`] plus, for each coarse level of every k-th
+    /// energy, its iterations over k (it solves 1/k of the energies).
+    pub fn iteration_equivalents_guess(&self) -> f64 {
+        let coarse: f64 = (self.coarse_iteration_guess().iter())
+            .map(|&(k, it)| it as f64 / k as f64)
+            .sum();
+        self.iteration_guess() as f64 + coarse
     }
 
     /// Estimated wall time of one Born iteration on `threads` threads (s):
@@ -1301,12 +1339,13 @@ impl Resolved {
         ns * 1e-9 / (0.9 * threads.max(1) as f64)
     }
 
-    /// Estimated wall time of the solve (s): [`Self::iteration_guess`]
-    /// iterations of [`Self::iteration_time_estimate_seconds`]. A guess:
-    /// the iteration count is not known before the run, and the cost per
-    /// iteration varies with the machine by a factor of about two.
+    /// Estimated wall time of the solve (s):
+    /// [`Self::iteration_equivalents_guess`] full-grid iterations of
+    /// [`Self::iteration_time_estimate_seconds`]. A guess: the iteration
+    /// count is not known before the run, and the cost per iteration varies
+    /// with the machine by a factor of about two.
     pub fn time_estimate_seconds(&self, threads: usize) -> f64 {
-        self.iteration_guess() as f64 * self.iteration_time_estimate_seconds(threads)
+        self.iteration_equivalents_guess() * self.iteration_time_estimate_seconds(threads)
     }
 
     /// Settings that need less memory than these, each as the case keys to

@@ -345,14 +345,14 @@ pub fn local_fermi_levels(sol: &Solution) -> LocalFermiLevel {
     let t = cell_t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let green = &sol.pass.green;
     let tables = FermiTables::new(&energies, &cell_t);
-    // The arrays are energy-major: gather the cells a few at a time so that
-    // each energy row is read in whole cache lines, not one number per line.
-    const CELLS_AT_ONCE: usize = 16;
-    let per_cell: Vec<(FermiMatch, f64)> = (0..n.div_ceil(CELLS_AT_ONCE))
+    // The arrays are energy-major: gather neighbouring cells together so
+    // that each energy row is read in whole pages, not one number per line.
+    let at_once = super::cells_per_task(n);
+    let per_cell: Vec<(FermiMatch, f64)> = (0..n.div_ceil(at_once))
         .into_par_iter()
         .flat_map_iter(|chunk| {
-            let first = chunk * CELLS_AT_ONCE;
-            let cells = CELLS_AT_ONCE.min(n - first);
+            let first = chunk * at_once;
+            let cells = at_once.min(n - first);
             let mut a = vec![0.0; cells * ne];
             let mut filled = vec![0.0; cells];
             for k in 0..ne {

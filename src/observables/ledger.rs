@@ -75,31 +75,36 @@ pub fn phonon_side_power(sol: &Solution) -> Vec<ModePower> {
         .map(|m| {
             let occupation = m.site_occupations(ns, sol.lattice_temperature_k.as_deref());
             let w = m.steps;
-            // Each site's sums over the energies in parallel, then added
-            // up site by site in order (the same sums as one loop).
-            let per_site: Vec<Option<(f64, f64)>> = (0..ns)
-                .into_par_iter()
-                .map(|s| {
-                    if m.coupling_ev2[s] == 0.0 {
-                        return None;
-                    }
-                    let (mut e_s, mut a_s) = (0.0, 0.0);
-                    for k in 0..ne {
-                        let filled = g.filled[k * ns + s];
+            // Each site's sums over the energies in order, neighbouring
+            // sites per task in parallel (whole pages of the energy-major
+            // rows), then added up site by site in order
+            // (the same sums as one loop).
+            let sums = |first: usize, out: &mut [(f64, f64)]| {
+                for k in 0..ne {
+                    let row = k * ns + first;
+                    for (c, (e_s, a_s)) in out.iter_mut().enumerate() {
+                        let filled = g.filled[row + c];
                         if k >= w {
-                            e_s += filled * g.empty((k - w) * ns + s);
+                            *e_s += filled * g.empty(row - w * ns + c);
                         }
                         if k + w < ne {
-                            a_s += filled * g.empty((k + w) * ns + s);
+                            *a_s += filled * g.empty(row + w * ns + c);
                         }
                     }
-                    Some((e_s, a_s))
-                })
-                .collect();
+                }
+            };
+            let mut per_site = vec![(0.0, 0.0); ns];
+            let at_once = super::cells_per_task(ns);
+            per_site
+                .par_chunks_mut(at_once)
+                .enumerate()
+                .for_each(|(t, out)| sums(t * at_once, out));
             let (mut emit, mut absorb) = (0.0, 0.0);
-            for (s, (&n, sums)) in occupation.iter().zip(&per_site).enumerate() {
-                let Some((e_s, a_s)) = sums else { continue };
+            for (s, (&n, &(e_s, a_s))) in occupation.iter().zip(&per_site).enumerate() {
                 let d = m.coupling_ev2[s];
+                if d == 0.0 {
+                    continue;
+                }
                 emit += d * (n + 1.0) * e_s;
                 absorb += d * n * a_s;
             }

@@ -37,7 +37,7 @@ pub use ledger::{LEDGER_COMPARES, Ledger, ModePower, POWER_SCALE, phonon_side_po
 pub use movers::{
     MoverLevels, MoverStatus, UNIFORM_TOLERANCE_EV, mover_levels, mover_levels_with, uniform_pairs,
 };
-pub use occupation::{OCCUPATION_THRESHOLD, occupation_map};
+pub use occupation::{OCCUPATION_THRESHOLD, Occupation, occupation_map};
 
 use crate::model::Problem;
 use crate::scba::Solution;
@@ -268,41 +268,98 @@ pub fn lattice_power_per_site(sol: &Solution) -> Vec<f64> {
 }
 
 /// Lattice power per cell (W): −∫ E j_0,i dE, orbitals of a cell summed
-/// (the cells in parallel).
+/// (the cells in parallel, up to 256 neighbouring cells at a time so that each
+/// energy-major row is read in whole pages; each cell's sum runs over the
+/// energies in order).
 pub fn lattice_power(sol: &Solution) -> Vec<f64> {
-    use rayon::prelude::*;
     let p = &sol.problem;
     let b = p.device.orbitals;
-    let n = p.device.cells();
     let scale = -ELEMENTARY_CHARGE * flow_scale(p) * p.grid.step_ev;
-    (0..n)
-        .into_par_iter()
-        .map(|i| {
-            let mut acc = 0.0;
-            for k in 0..p.grid.count {
-                let e = p.grid.energy(k);
+    per_cell_sums(p.device.cells(), |first, acc| {
+        for k in 0..p.grid.count {
+            let e = p.grid.energy(k);
+            for (c, a) in acc.iter_mut().enumerate() {
+                let i = first + c;
                 let t: f64 = (0..b).map(|o| bath_trace(sol, k, i * b + o)).sum();
-                acc += e * t;
+                *a += e * t;
             }
-            acc * scale
-        })
-        .collect()
+        }
+        for a in acc.iter_mut() {
+            *a *= scale;
+        }
+    })
+}
+
+/// Cells (or sites) one task of a per-cell pass over the energy-major
+/// arrays takes, out of `n`: at most 256, so that each energy's row is read
+/// a whole page at a time (one number per cache line, or a page for 16
+/// numbers, was what such passes waited on at 10⁴ cells), and at least 16,
+/// with about 32 tasks for a few thousand cells to keep every thread busy.
+pub(crate) fn cells_per_task(n: usize) -> usize {
+    (n / 32).clamp(16, 256)
+}
+
+/// One number per cell, `n` cells, [`cells_per_task`] at a time in
+/// parallel: `fill(first, acc)` receives zeros for cells `first..` and
+/// leaves each cell's number in them.
+pub(crate) fn per_cell_sums(n: usize, fill: impl Fn(usize, &mut [f64]) + Sync) -> Vec<f64> {
+    use rayon::prelude::*;
+    let mut out = vec![0.0; n];
+    let at_once = cells_per_task(n);
+    out.par_chunks_mut(at_once)
+        .enumerate()
+        .for_each(|(t, acc)| fill(t * at_once, acc));
+    out
+}
+
+/// The energy-resolved bond current read straight from a solution, value
+/// by value: what [`bond_current_map`] holds, without storing it.
+#[derive(Clone, Copy)]
+pub struct BondCurrent<'a> {
+    bond: &'a [f64],
+    /// Bonds (cells − 1).
+    pub pairs: usize,
+    /// Energies of the grid.
+    pub energies: usize,
+    scale: f64,
+}
+
+impl<'a> BondCurrent<'a> {
+    /// The bond current of `sol`.
+    pub fn of(sol: &'a Solution) -> Self {
+        let p = &sol.problem;
+        Self {
+            bond: &sol.pass.bond,
+            pairs: p.device.cells().saturating_sub(1),
+            energies: p.grid.count,
+            scale: ELEMENTARY_CHARGE * flow_scale(p),
+        }
+    }
+
+    /// The current between cells i and i + 1 at energy index k (A/eV).
+    pub fn value(&self, i: usize, k: usize) -> f64 {
+        self.bond[k * self.pairs + i] * self.scale
+    }
+
+    /// Every bond's current at energy index k, in the order of the bonds.
+    pub fn at_energy(&self, k: usize) -> impl Iterator<Item = f64> + '_ {
+        let scale = self.scale;
+        self.bond[k * self.pairs..(k + 1) * self.pairs]
+            .iter()
+            .map(move |b| b * scale)
+    }
 }
 
 /// Energy-resolved bond current as an electron flow per unit energy times e
 /// (A/eV), positive for electrons moving to +x: shape (cells − 1) × energies.
 pub fn bond_current_map(sol: &Solution) -> ndarray::Array2<f64> {
-    let p = &sol.problem;
-    let n = p.device.cells();
-    let ne = p.grid.count;
-    let pairs = n.saturating_sub(1);
-    let scale = ELEMENTARY_CHARGE * flow_scale(p);
-    let bond = &sol.pass.bond;
+    let bond = BondCurrent::of(sol);
+    let (pairs, ne) = (bond.pairs, bond.energies);
     let mut map = ndarray::Array2::zeros((pairs, ne));
     if let Some(out) = map.as_slice_mut() {
         par_cell_rows(out, ne, |i, row| {
             for (k, v) in row.iter_mut().enumerate() {
-                *v = bond[k * pairs + i] * scale;
+                *v = bond.value(i, k);
             }
         });
     }
@@ -466,6 +523,7 @@ fn site_profile(
 /// [Σ j_1, Σ j_2, Σ E j_1, Σ E j_2, the gross energy exchange, the gross
 /// heat exchange of the leads].
 fn flow_sums(sol: &Solution) -> (Spectrum, [f64; 6]) {
+    use rayon::prelude::*;
     let p = &sol.problem;
     let grid = &p.grid;
     let ns = p.sites();
@@ -479,14 +537,24 @@ fn flow_sums(sol: &Solution) -> (Spectrum, [f64; 6]) {
         flow_bath: Vec::with_capacity(grid.count),
         transmission: coherent.then(|| sol.pass.flows.iter().map(|f| f.transmission).collect()),
     };
+    // The bath's sums over the sites of each energy (in site order), the
+    // energies in parallel; the sums over energies below stay in order.
+    let bath: Vec<(f64, f64)> = (0..sol.pass.flows.len())
+        .into_par_iter()
+        .map(|k| {
+            let net = (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
+            let gross = (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+            (net, gross)
+        })
+        .collect();
     let (mut n1, mut n2, mut e1, mut e2) = (0.0, 0.0, 0.0, 0.0);
     let (mut gross_e, mut gross_q) = (0.0, 0.0);
-    for (k, f) in sol.pass.flows.iter().enumerate() {
+    for (k, (f, &(net, gross))) in sol.pass.flows.iter().zip(&bath).enumerate() {
         let e = grid.energy(k);
         let j1 = js * f.left;
         let j2 = js * f.right;
-        let j0: f64 = js * (0..ns).map(|s| bath_trace(sol, k, s)).sum::<f64>();
-        let j0_gross: f64 = js * (0..ns).map(|s| bath_gross(sol, k, s)).sum::<f64>();
+        let j0: f64 = js * net;
+        let j0_gross: f64 = js * gross;
         let g1 = js * f.left_gross;
         let g2 = js * f.right_gross;
         spectrum.flow_left.push(j1);

@@ -24,45 +24,86 @@ use crate::scba::Solution;
 /// deep under a barrier (many decades weaker) are masked.
 pub const OCCUPATION_THRESHOLD: f64 = 1e-8;
 
+/// The occupation of a solution read straight from its Green's functions,
+/// value by value: what [`occupation_map`] holds, without storing it. The
+/// largest Σ_o A_ii of the whole map (for the threshold) is found once,
+/// energies in parallel.
+#[derive(Clone, Copy)]
+pub struct Occupation<'a> {
+    sol: &'a Solution,
+    /// Cells.
+    pub cells: usize,
+    /// Energies of the grid.
+    pub energies: usize,
+    largest: f64,
+    floor: f64,
+}
+
+impl<'a> Occupation<'a> {
+    /// The occupation of `sol`.
+    pub fn of(sol: &'a Solution) -> Self {
+        use rayon::prelude::*;
+        let p = &sol.problem;
+        let (cells, energies) = (p.device.cells(), p.grid.count);
+        let mut o = Self {
+            sol,
+            cells,
+            energies,
+            largest: 0.0,
+            floor: 0.0,
+        };
+        // The largest finite value: a maximum, so the same whatever the
+        // order in which it is taken.
+        o.largest = (0..energies)
+            .into_par_iter()
+            .map(|k| {
+                (0..cells)
+                    .map(|i| o.states(i, k))
+                    .filter(|a| a.is_finite())
+                    .fold(0.0f64, f64::max)
+            })
+            .reduce(|| 0.0, f64::max);
+        o.floor = OCCUPATION_THRESHOLD * o.largest;
+        o
+    }
+
+    /// Σ_o over the orbitals of cell i at energy index k of `value(site)`.
+    fn cell_sum(&self, i: usize, k: usize, value: impl Fn(usize) -> f64) -> f64 {
+        let b = self.sol.problem.device.orbitals;
+        let at = k * self.cells * b + i * b;
+        (0..b).map(|o| value(at + o)).sum()
+    }
+
+    /// Σ_o A_ii,oo of cell i at energy index k.
+    fn states(&self, i: usize, k: usize) -> f64 {
+        self.cell_sum(i, k, |x| self.sol.pass.green.spectral(x))
+    }
+
+    /// The occupation of cell i at energy index k (NaN without states).
+    pub fn value(&self, i: usize, k: usize) -> f64 {
+        let a = self.states(i, k);
+        if self.largest > 0.0 && a > self.floor {
+            self.cell_sum(i, k, |x| self.sol.pass.green.filled[x]) / a
+        } else {
+            f64::NAN
+        }
+    }
+}
+
 /// The occupation map of a solution: shape (cells, energies), axis 0 the
 /// cell (its position is `Problem::device.x_nm`), axis 1 the energy of the
 /// grid; dimensionless, NaN where the cell has negligible states (see
 /// [`OCCUPATION_THRESHOLD`]).
 pub fn occupation_map(sol: &Solution) -> ndarray::Array2<f64> {
-    let p = &sol.problem;
-    let b = p.device.orbitals;
-    let n = p.device.cells();
-    let ne = p.grid.count;
-    let ns = n * b;
-    let green = &sol.pass.green;
-    let cell_sum = |i: usize, k: usize, value: &dyn Fn(usize) -> f64| -> f64 {
-        (0..b).map(|o| value(k * ns + i * b + o)).sum()
-    };
+    let occupation = Occupation::of(sol);
+    let (n, ne) = (occupation.cells, occupation.energies);
     let mut map = ndarray::Array2::zeros((n, ne));
-    let Some(out) = map.as_slice_mut() else {
-        return map;
-    };
-    // Σ_o A_ii first (the threshold needs the largest), then the ratio in
-    // place.
-    par_cell_rows(out, ne, |i, row| {
-        for (k, a) in row.iter_mut().enumerate() {
-            *a = cell_sum(i, k, &|x| green.spectral(x));
-        }
-    });
-    let largest = out
-        .iter()
-        .filter(|a| a.is_finite())
-        .fold(0.0f64, |m, &a| m.max(a));
-    let floor = OCCUPATION_THRESHOLD * largest;
-    par_cell_rows(out, ne, |i, row| {
-        for (k, f) in row.iter_mut().enumerate() {
-            let a = *f;
-            *f = if largest > 0.0 && a > floor {
-                cell_sum(i, k, &|x| green.filled[x]) / a
-            } else {
-                f64::NAN
-            };
-        }
-    });
+    if let Some(out) = map.as_slice_mut() {
+        par_cell_rows(out, ne, |i, row| {
+            for (k, f) in row.iter_mut().enumerate() {
+                *f = occupation.value(i, k);
+            }
+        });
+    }
     map
 }

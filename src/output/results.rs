@@ -6,12 +6,14 @@ use super::schema::summary::{
     to_text,
 };
 use super::schema::tables::{self, SolvePoint};
-use super::sizes::{BlockMeans, ResultLimits, axis_means, block_means, block_sizes};
+use super::sizes::{
+    BlockMeans, ResultLimits, axis_means, block_means, block_means_of, block_sizes,
+};
 use super::{OutputError, Staging, npy_bytes};
 use crate::observables::channels::ChannelObservables;
 use crate::observables::{
-    FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables, POWER_SCALE,
-    bond_current_map, occupation_map, timed,
+    BondCurrent, FermiLevelStatus, LEDGER_COMPARES, Ledger, MoverLevels, MoverStatus, Observables,
+    Occupation, POWER_SCALE, timed,
 };
 use crate::scba::Solution;
 use serde_json::Value;
@@ -275,9 +277,15 @@ pub fn write_solve_files_within(
     summary: &mut SolveSummary,
     limits: &ResultLimits,
 ) -> Result<(), OutputError> {
-    let bond = timed("bond-current map", || bond_current_map(sol));
-    let occupation = timed("occupation map", || occupation_map(sol));
-    let plan = SizePlan::new(sol, &bond, &occupation, limits);
+    let bond = BondCurrent::of(sol);
+    let occupation = timed("occupation threshold", || Occupation::of(sol));
+    let bond_shape = [bond.pairs, bond.energies];
+    let plan = SizePlan::new(
+        sol,
+        bond_shape,
+        [occupation.cells, occupation.energies],
+        limits,
+    );
     summary.result_files = plan.report(limits);
     stage.write("summary.json", to_text(summary).as_bytes())?;
     let point = SolvePoint {
@@ -293,15 +301,19 @@ pub fn write_solve_files_within(
             stage.write(table.file, &table.csv(&point))?;
         }
     }
-    let bond = timed("block means", || block_means(&bond, plan.bond));
+    let bond = timed("bond-current means", || {
+        map_means(bond_shape, plan.bond, |i, k| bond.value(i, k))
+    });
     stage.write(
         "bond_current.npy",
         &npy_bytes(&bond.map, &stage.path("bond_current.npy"))?,
     )?;
-    timed("map files", || {
-        write_bond_current_npz(stage, sol, o, &bond)?;
-        write_occupation_npz(stage, sol, o, &block_means(&occupation, plan.occupation))
-    })?;
+    write_bond_current_npz(stage, sol, o, &bond)?;
+    let shape = [occupation.cells, occupation.energies];
+    let occupation = timed("occupation means", || {
+        map_means(shape, plan.occupation, |i, k| occupation.value(i, k))
+    });
+    write_occupation_npz(stage, sol, o, &occupation)?;
     if !sol.problem.scattering.is_coherent() && plan.self_energy {
         timed("self-energy files", || write_self_energy(stage, sol))?;
     }
@@ -313,6 +325,29 @@ pub fn write_solve_files_within(
         )?;
     }
     Ok(())
+}
+
+/// The block means of a map given value by value, straight from the
+/// values when it is reduced; a map written whole is stored first (the
+/// same numbers either way, see [`block_means_of`]).
+fn map_means(
+    shape: [usize; 2],
+    blocks: [usize; 2],
+    value: impl Fn(usize, usize) -> f64 + Sync,
+) -> BlockMeans {
+    if blocks != [1, 1] {
+        return block_means_of(shape, blocks, value);
+    }
+    let [n0, n1] = shape;
+    let mut map = ndarray::Array2::zeros((n0, n1));
+    if let Some(out) = map.as_slice_mut() {
+        crate::observables::par_cell_rows(out, n1, |i, row| {
+            for (k, v) in row.iter_mut().enumerate() {
+                *v = value(i, k);
+            }
+        });
+    }
+    block_means(&map, blocks)
 }
 
 /// What of the arrays of a solve is written whole, reduced or left out.
@@ -332,12 +367,11 @@ struct SizePlan {
 impl SizePlan {
     fn new(
         sol: &Solution,
-        bond: &ndarray::Array2<f64>,
-        occupation: &ndarray::Array2<f64>,
+        bond: [usize; 2],
+        occupation: [usize; 2],
         limits: &ResultLimits,
     ) -> Self {
-        let fit = |m: &ndarray::Array2<f64>| -> [usize; 2] {
-            let (n0, n1) = m.dim();
+        let fit = |[n0, n1]: [usize; 2]| -> [usize; 2] {
             if limits.full_arrays {
                 return [1, 1];
             }
@@ -351,9 +385,9 @@ impl SizePlan {
         let scattering = !sol.problem.scattering.is_coherent();
         Self {
             bond: fit(bond),
-            bond_shape: bond.dim().into(),
+            bond_shape: bond,
             occupation: fit(occupation),
-            occupation_shape: occupation.dim().into(),
+            occupation_shape: occupation,
             self_energy: limits.full_arrays || self_energy_bytes <= limits.array_bytes(),
             self_energy_bytes: if scattering { self_energy_bytes } else { 0 },
         }

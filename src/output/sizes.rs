@@ -111,24 +111,51 @@ pub fn block_sizes(shape: [usize; 2], max_values: usize) -> [usize; 2] {
 /// (the last block of an axis may be shorter; its mean is over the values
 /// it has). NaN values make their block's mean NaN.
 pub fn block_means(map: &Array2<f64>, blocks: [usize; 2]) -> BlockMeans {
-    let (n0, n1) = map.dim();
-    let [k0, k1] = [blocks[0].max(1), blocks[1].max(1)];
-    if [k0, k1] == [1, 1] {
+    if blocks.map(|k| k.max(1)) == [1, 1] {
         // The map itself, bit for bit (−0.0 stays −0.0).
         return BlockMeans {
             map: map.clone(),
             blocks: [1, 1],
         };
     }
-    let mut out = Array2::zeros((n0.div_ceil(k0), n1.div_ceil(k1)));
-    for ((i, j), v) in map.indexed_iter() {
-        out[(i / k0, j / k1)] += v;
-    }
-    for ((bi, bj), v) in out.indexed_iter_mut() {
-        let rows = k0.min(n0 - bi * k0);
-        let cols = k1.min(n1 - bj * k1);
-        *v /= (rows * cols) as f64;
-    }
+    let (n0, n1) = map.dim();
+    block_means_of([n0, n1], blocks, |i, j| map[(i, j)])
+}
+
+/// [`block_means`] of an n₀ × n₁ map given value by value, `value(i, j)`,
+/// without storing it: the rows of blocks in parallel. Each block is
+/// summed over its rows in order and over each row's values in order, the
+/// order of a serial pass over the map in row-major order, so the means
+/// are the same bits as [`block_means`] of the stored map gives.
+pub fn block_means_of(
+    shape: [usize; 2],
+    blocks: [usize; 2],
+    value: impl Fn(usize, usize) -> f64 + Sync,
+) -> BlockMeans {
+    use rayon::prelude::*;
+    let [n0, n1] = shape;
+    let [k0, k1] = [blocks[0].max(1), blocks[1].max(1)];
+    let (m0, m1) = (n0.div_ceil(k0), n1.div_ceil(k1));
+    let mut out = Array2::zeros((m0, m1));
+    let Some(flat) = out.as_slice_mut().filter(|_| m1 > 0) else {
+        return BlockMeans {
+            map: out,
+            blocks: [k0, k1],
+        };
+    };
+    flat.par_chunks_mut(m1).enumerate().for_each(|(bi, row)| {
+        let rows = bi * k0..(bi * k0 + k0).min(n0);
+        // Block by block: a block's k₀ × k₁ values are read close together.
+        for (bj, v) in row.iter_mut().enumerate() {
+            let cols = bj * k1..(bj * k1 + k1).min(n1);
+            for i in rows.clone() {
+                for j in cols.clone() {
+                    *v += value(i, j);
+                }
+            }
+            *v /= (rows.len() * cols.len()) as f64;
+        }
+    });
     BlockMeans {
         map: out,
         blocks: [k0, k1],
@@ -149,6 +176,41 @@ pub fn axis_means(values: &[f64], k: usize) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn block_means_of_values_give_the_bits_of_a_serial_pass() {
+        // Magnitudes over many decades, so that another order of the sums
+        // would show in the last bits.
+        let map = Array2::from_shape_fn((103, 251), |(i, j)| {
+            let x = ((i * 251 + j) as f64 * 0.754_877_666).fract();
+            (x - 0.4) * 10f64.powi((j % 11) as i32 - 5)
+        });
+        for blocks in [[3, 4], [7, 1], [1, 9], [103, 251], [50, 200]] {
+            // The serial pass block_means used to make: every value added
+            // to its block in row-major order.
+            let (m0, m1) = (103usize.div_ceil(blocks[0]), 251usize.div_ceil(blocks[1]));
+            let mut want = Array2::<f64>::zeros((m0, m1));
+            for ((i, j), v) in map.indexed_iter() {
+                want[(i / blocks[0], j / blocks[1])] += v;
+            }
+            for ((bi, bj), v) in want.indexed_iter_mut() {
+                let rows = blocks[0].min(103 - bi * blocks[0]);
+                let cols = blocks[1].min(251 - bj * blocks[1]);
+                *v /= (rows * cols) as f64;
+            }
+            for got in [
+                block_means(&map, blocks).map,
+                block_means_of([103, 251], blocks, |i, j| map[(i, j)]).map,
+            ] {
+                assert_eq!(got.dim(), want.dim());
+                assert!(
+                    got.iter()
+                        .zip(&want)
+                        .all(|(a, b)| a.to_bits() == b.to_bits())
+                );
+            }
+        }
+    }
 
     #[test]
     fn block_means_keep_the_sum_of_every_block() {

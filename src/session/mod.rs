@@ -32,7 +32,7 @@ pub use solve::{SolveOptions, Solved, solve, write_failure};
 pub use tables::{BondCurrentMap, columns};
 
 use crate::case::{Case, CaseError, Resolved};
-use crate::output::schema::summary::{CheckOutput, CheckPhonon};
+use crate::output::schema::summary::{CheckCoarseLevel, CheckOutput, CheckPhonon};
 use crate::output::sizes::ResultLimits;
 use crate::output::{FolderOptions, OtherFiles, OutputError};
 use std::path::Path;
@@ -140,6 +140,10 @@ impl Loaded {
             notes: resolved.notes.clone(),
             time_estimate_s: resolved.time_estimate_seconds(threads),
             iteration_guess: resolved.iteration_guess(),
+            coarse_levels_guess: (resolved.coarse_iteration_guess().into_iter())
+                .map(|(factor, iterations)| CheckCoarseLevel { factor, iterations })
+                .collect(),
+            iteration_equivalents_guess: resolved.iteration_equivalents_guess(),
         }
     }
 

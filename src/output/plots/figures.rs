@@ -1,12 +1,13 @@
 //! The figures of a solved operating point.
 
+use super::raster::MapValues;
 use super::style::*;
 use super::{
     Area, DrawError, MARGIN_LEFT, MARGIN_RIGHT, MapScale, MapSpec, Mark, Overlay, Y_AREA,
     centred_note, desc_font, draw_legend, heat_map, legend_height, plot_error, render, short,
     tick_font, title_font,
 };
-use crate::observables::{Observables, Spectrum, bond_current_map, occupation_map};
+use crate::observables::{BondCurrent, Observables, Occupation, Spectrum};
 use crate::output::OutputError;
 use crate::output::sizes::ResultLimits;
 use crate::scba::Solution;
@@ -976,8 +977,8 @@ pub fn bond_current_svg_within(
     const FIGURE: &str = "bond_current.svg";
     let p = &sol.problem;
     let s = &o.sites;
-    let map = bond_current_map(sol);
-    let (pairs, ne) = map.dim();
+    let bond = BondCurrent::of(sol);
+    let (pairs, ne) = (bond.pairs, bond.energies);
     if pairs == 0 || ne == 0 {
         return Err(plot_error(
             FIGURE,
@@ -991,18 +992,23 @@ pub fn bond_current_svg_within(
     let x: Vec<f64> = s.x_nm[..pairs].iter().map(|xi| xi + 0.5 * a).collect();
     let energies = &o.spectrum.energy_ev;
     let (ef, eu) = energy_unit(energies.iter().copied());
-    let weight: Vec<f64> = (0..ne)
-        .map(|k| map.column(k).iter().fold(0.0f64, |m, v| m.max(v.abs())))
-        .collect();
+    let (weight, largest) = bond_weights(&bond);
     let keep = [p.left.fermi_level_ev, p.right.fermi_level_ev];
     let (e0, e1) = busy_window(energies, &weight, &keep);
     let rows: Vec<usize> = (0..ne)
         .filter(|&k| energies[k] >= e0 && energies[k] <= e1)
         .collect();
     let y: Vec<f64> = rows.iter().map(|&k| energies[k] * ef).collect();
-    let (vf, vp) = prefix_for(max_abs(map.iter()));
-    let values =
-        ndarray::Array2::from_shape_fn((rows.len(), pairs), |(r, c)| map[(c, rows[r])] * vf);
+    let (vf, vp) = prefix_for(largest);
+    let fill = |r: usize, out: &mut [f64]| {
+        for (v, b) in out.iter_mut().zip(bond.at_energy(rows[r])) {
+            *v = b * vf;
+        }
+    };
+    let values = MapValues::Rows {
+        dim: (rows.len(), pairs),
+        fill: &fill,
+    };
     let band = steps(&s.x_nm, &s.band_edge_ev, a, ef);
     let fermi: Vec<(f64, f64)> = s
         .x_nm
@@ -1021,7 +1027,7 @@ pub fn bond_current_svg_within(
         y_label: &format!("energy E ({eu})"),
         x: &x,
         y: &y,
-        values: &values,
+        values,
         colour_label: &colour_label,
         scale: MapScale::SignedLog {
             decades: SIGNED_LOG_DECADES,
@@ -1030,6 +1036,25 @@ pub fn bond_current_svg_within(
         size: (WIDTH, 640),
         max_pixels,
     })
+}
+
+/// Per energy the largest magnitude of the bond current (the busy
+/// window's weight), and the largest finite magnitude of all (the colour
+/// unit's): maxima, so the energies in parallel give the numbers of one
+/// pass over the map.
+fn bond_weights(bond: &BondCurrent<'_>) -> (Vec<f64>, f64) {
+    use rayon::prelude::*;
+    let (weight, finite): (Vec<f64>, Vec<f64>) = (0..bond.energies)
+        .into_par_iter()
+        .map(|k| {
+            let row = bond.at_energy(k);
+            row.fold((0.0f64, 0.0f64), |(m, f), v| {
+                let f = if v.is_finite() { f.max(v.abs()) } else { f };
+                (m.max(v.abs()), f)
+            })
+        })
+        .unzip();
+    (weight, finite.iter().copied().fold(0.0, f64::max))
 }
 
 /// The band edge (solid) and the local Fermi level (dashed) drawn over a
@@ -1070,10 +1095,11 @@ pub fn occupation_svg_within(
     max_pixels: usize,
 ) -> Result<String, OutputError> {
     const FIGURE: &str = "occupation.svg";
+    use rayon::prelude::*;
     let p = &sol.problem;
     let s = &o.sites;
-    let map = occupation_map(sol);
-    let (n, ne) = map.dim();
+    let occupation = Occupation::of(sol);
+    let (n, ne) = (occupation.cells, occupation.energies);
     if n == 0 || ne == 0 {
         return Err(plot_error(
             FIGURE,
@@ -1086,6 +1112,7 @@ pub fn occupation_svg_within(
     let (ef, eu) = energy_unit(energies.iter().copied());
     let ns = sol.pass.green.sites;
     let weight: Vec<f64> = (0..ne)
+        .into_par_iter()
         .map(|k| {
             sol.pass.green.filled[k * ns..(k + 1) * ns]
                 .iter()
@@ -1098,7 +1125,15 @@ pub fn occupation_svg_within(
         .filter(|&k| energies[k] >= e0 && energies[k] <= e1)
         .collect();
     let y: Vec<f64> = rows.iter().map(|&k| energies[k] * ef).collect();
-    let values = ndarray::Array2::from_shape_fn((rows.len(), n), |(r, c)| map[(c, rows[r])]);
+    let fill = |r: usize, out: &mut [f64]| {
+        for (c, f) in out.iter_mut().enumerate() {
+            *f = occupation.value(c, rows[r]);
+        }
+    };
+    let values = MapValues::Rows {
+        dim: (rows.len(), n),
+        fill: &fill,
+    };
     let a = p.device.spacing_nm;
     let band = steps(&s.x_nm, &s.band_edge_ev, a, ef);
     let fermi: Vec<(f64, f64)> = s
@@ -1113,7 +1148,7 @@ pub fn occupation_svg_within(
         y_label: &format!("energy E ({eu})"),
         x: &s.x_nm,
         y: &y,
-        values: &values,
+        values,
         colour_label: "occupation f (0 empty, 1 full)",
         scale: MapScale::Bounded { lo: 0.0, hi: 1.0 },
         overlays: band_and_fermi(&band, &fermi),

@@ -609,6 +609,43 @@ impl ColourScale {
         ColourScale { scale, lo, hi }
     }
 
+    /// [`ColourScale::of`] the values of a map: the largest magnitude of
+    /// rows given by a function is taken row by row in parallel (the same
+    /// number as a serial pass: a maximum does not depend on the order),
+    /// a sequential scale's range row by row in order.
+    fn of_map(scale: MapScale, values: &raster::MapValues<'_>) -> Self {
+        use rayon::prelude::*;
+        let (ny, nx) = values.dim();
+        match (values, scale) {
+            (raster::MapValues::Dense(v), _) => Self::of(scale, v.iter()),
+            (_, MapScale::Bounded { .. }) => Self::of(scale, std::iter::empty()),
+            (_, MapScale::Sequential) => {
+                let mut row = vec![0.0; nx];
+                let mut range: Option<(f64, f64)> = None;
+                for r in 0..ny {
+                    values.fill_row(r, &mut row);
+                    let edge = range.map(|(lo, hi)| [lo, hi]);
+                    range = finite_range(edge.iter().flatten().chain(&row));
+                }
+                let (lo, hi) = range.unwrap_or((0.0, 1.0));
+                Self::of(scale, [lo, hi].iter())
+            }
+            (_, MapScale::Diverging | MapScale::SignedLog { .. }) => {
+                let m = (0..ny)
+                    .into_par_iter()
+                    .map_init(
+                        || vec![0.0; nx],
+                        |row, r| {
+                            values.fill_row(r, row);
+                            max_abs(row.iter())
+                        },
+                    )
+                    .reduce(|| 0.0, f64::max);
+                Self::of(scale, [m].iter())
+            }
+        }
+    }
+
     /// Ends of the colour bar's axis.
     fn bar_range(&self) -> (f64, f64) {
         match self.scale {
@@ -686,7 +723,7 @@ pub(crate) struct MapSpec<'a> {
     pub y_label: &'a str,
     pub x: &'a [f64],
     pub y: &'a [f64],
-    pub values: &'a ndarray::Array2<f64>,
+    pub values: raster::MapValues<'a>,
     pub colour_label: &'a str,
     pub scale: MapScale,
     pub overlays: Vec<Overlay<'a>>,
@@ -723,7 +760,7 @@ fn check_map(spec: &MapSpec<'_>) -> Result<(), OutputError> {
 /// Draw a heat map with its colour bar into a figure.
 pub(crate) fn heat_map(spec: &MapSpec<'_>) -> Result<String, OutputError> {
     check_map(spec)?;
-    let scale = ColourScale::of(spec.scale, spec.values.iter());
+    let scale = ColourScale::of_map(spec.scale, &spec.values);
     let entries: Vec<(Mark, String)> = spec
         .overlays
         .iter()
@@ -771,18 +808,19 @@ fn map_panel(
             [(x0, y1), (x1, y0)],
             RASTER_MARK.filled(),
         )))?;
-        let pixels = raster::pixel_means(spec.values, spec.max_pixels);
+        let pixels = raster::pixel_means_of(&spec.values, spec.max_pixels);
         let (py, px) = pixels.dim();
         rasters.push(raster_uri(px, py, |r, c| {
             scale.colour(pixels[(py - 1 - r, c)])
         }));
     } else {
+        let values = spec.values.to_array();
         chart.draw_series((0..ny).flat_map(|r| {
-            let (xe, ye) = (&xe, &ye);
+            let (xe, ye, values) = (&xe, &ye, &values);
             (0..nx).map(move |c| {
                 Rectangle::new(
                     [(xe[c], ye[r + 1]), (xe[c + 1], ye[r])],
-                    scale.colour(spec.values[(r, c)]).filled(),
+                    scale.colour(values[(r, c)]).filled(),
                 )
             })
         }))?;
@@ -891,7 +929,7 @@ pub fn heat_map_svg(
         y_label,
         x,
         y,
-        values,
+        values: raster::MapValues::Dense(values),
         colour_label,
         scale: if diverging {
             MapScale::Diverging

@@ -83,6 +83,61 @@ pub fn png_rgb(width: usize, height: usize, rgb: &[u8]) -> Vec<u8> {
     out
 }
 
+/// The values of a heat map, rows × columns (row r at the r-th y
+/// coordinate): an array, or a function that fills one row at a time, so
+/// that a map read straight from a solution's energy-major arrays is
+/// never stored whole nor transposed.
+pub(crate) enum MapValues<'a> {
+    /// The values as an array.
+    Dense(&'a ndarray::Array2<f64>),
+    /// `fill(r, row)` writes the `dim.1` values of row r; rows may be
+    /// filled in any order and from several threads.
+    Rows {
+        /// (rows, columns).
+        dim: (usize, usize),
+        /// Writes one row.
+        fill: &'a (dyn Fn(usize, &mut [f64]) + Sync),
+    },
+}
+
+impl MapValues<'_> {
+    /// (rows, columns).
+    pub fn dim(&self) -> (usize, usize) {
+        match self {
+            MapValues::Dense(v) => v.dim(),
+            MapValues::Rows { dim, .. } => *dim,
+        }
+    }
+
+    /// Write row `r` into `out` (`dim().1` values).
+    pub fn fill_row(&self, r: usize, out: &mut [f64]) {
+        match self {
+            MapValues::Dense(v) => out.copy_from_slice(
+                v.row(r)
+                    .as_slice()
+                    .expect("a heat map's values are in standard (row-major) order"),
+            ),
+            MapValues::Rows { fill, .. } => fill(r, out),
+        }
+    }
+
+    /// Every value as an array (rows filled in parallel).
+    pub fn to_array(&self) -> ndarray::Array2<f64> {
+        use rayon::prelude::*;
+        if let MapValues::Dense(v) = self {
+            return (*v).clone();
+        }
+        let (ny, nx) = self.dim();
+        let mut out = ndarray::Array2::zeros((ny, nx));
+        if let Some(flat) = out.as_slice_mut().filter(|_| nx > 0) {
+            flat.par_chunks_mut(nx)
+                .enumerate()
+                .for_each(|(r, row)| self.fill_row(r, row));
+        }
+        out
+    }
+}
+
 /// A map of at most `max_pixels` values for a raster image of `values`:
 /// the map itself when it is small enough, otherwise each pixel the mean
 /// of the finite values of the block of rows × columns it covers (NaN
@@ -91,9 +146,18 @@ pub fn png_rgb(width: usize, height: usize, rgb: &[u8]) -> Vec<u8> {
 /// pixel stands for nearly the same width and height and the image keeps
 /// its geometry to within one value of the map.
 pub fn pixel_means(values: &ndarray::Array2<f64>, max_pixels: usize) -> ndarray::Array2<f64> {
+    pixel_means_of(&MapValues::Dense(values), max_pixels)
+}
+
+/// [`pixel_means`] of rows given by [`MapValues`]: the rows of pixels in
+/// parallel, each pixel summed over its rows in order and over each row's
+/// columns in order, so every pixel is the same sum (the same bits) as a
+/// serial pass over the map in row-major order gives.
+pub(crate) fn pixel_means_of(values: &MapValues<'_>, max_pixels: usize) -> ndarray::Array2<f64> {
+    use rayon::prelude::*;
     let (ny, nx) = values.dim();
     if ny * nx <= max_pixels.max(1) {
-        return values.clone();
+        return values.to_array();
     }
     let [ky, kx] = crate::output::sizes::block_sizes([ny, nx], max_pixels);
     let (py, px) = (ny.div_ceil(ky), nx.div_ceil(kx));
@@ -101,15 +165,25 @@ pub fn pixel_means(values: &ndarray::Array2<f64>, max_pixels: usize) -> ndarray:
     let owner = |n: usize, m: usize| -> Vec<usize> { (0..n).map(|i| i * m / n).collect() };
     let (row_of, col_of) = (owner(ny, py), owner(nx, px));
     let mut sum = ndarray::Array2::<f64>::zeros((py, px));
-    let mut count = ndarray::Array2::<u32>::zeros((py, px));
-    for ((r, c), v) in values.indexed_iter() {
-        if v.is_finite() {
-            sum[(row_of[r], col_of[c])] += v;
-            count[(row_of[r], col_of[c])] += 1;
+    let flat = sum.as_slice_mut().expect("a new array is contiguous");
+    flat.par_chunks_mut(px).enumerate().for_each(|(p, out)| {
+        let mut count = vec![0u32; px];
+        let mut row = vec![0.0; nx];
+        // The value rows this pixel row covers (row_of is non-decreasing).
+        let first = row_of.partition_point(|&o| o < p);
+        let end = row_of.partition_point(|&o| o <= p);
+        for r in first..end {
+            values.fill_row(r, &mut row);
+            for (&v, &c) in row.iter().zip(&col_of) {
+                if v.is_finite() {
+                    out[c] += v;
+                    count[c] += 1;
+                }
+            }
         }
-    }
-    ndarray::Zip::from(&mut sum).and(&count).for_each(|s, &n| {
-        *s = if n > 0 { *s / f64::from(n) } else { f64::NAN };
+        for (s, &n) in out.iter_mut().zip(&count) {
+            *s = if n > 0 { *s / f64::from(n) } else { f64::NAN };
+        }
     });
     sum
 }
@@ -170,6 +244,71 @@ mod tests {
         assert_eq!(q[(0, 0)], (want * 9.0) / 8.0);
         let nan = ndarray::Array2::from_elem((4, 4), f64::NAN);
         assert!(pixel_means(&nan, 4).iter().all(|x| x.is_nan()));
+    }
+
+    /// The serial pass the parallel [`pixel_means_of`] replaced: every
+    /// value added to its pixel in row-major order.
+    fn serial_pixel_means(
+        values: &ndarray::Array2<f64>,
+        max_pixels: usize,
+    ) -> ndarray::Array2<f64> {
+        let (ny, nx) = values.dim();
+        let [ky, kx] = crate::output::sizes::block_sizes([ny, nx], max_pixels);
+        let (py, px) = (ny.div_ceil(ky), nx.div_ceil(kx));
+        let mut sum = ndarray::Array2::<f64>::zeros((py, px));
+        let mut count = ndarray::Array2::<u32>::zeros((py, px));
+        for ((r, c), v) in values.indexed_iter() {
+            if v.is_finite() {
+                sum[(r * py / ny, c * px / nx)] += v;
+                count[(r * py / ny, c * px / nx)] += 1;
+            }
+        }
+        ndarray::Zip::from(&mut sum).and(&count).for_each(|s, &n| {
+            *s = if n > 0 { *s / f64::from(n) } else { f64::NAN };
+        });
+        sum
+    }
+
+    #[test]
+    fn pixel_means_of_rows_give_the_bits_of_a_serial_pass() {
+        // Values of many magnitudes, so that a different order of the sums
+        // would change the last bits; some NaN.
+        let v = ndarray::Array2::from_shape_fn((203, 517), |(r, c)| {
+            let x = ((r * 517 + c) as f64 * 0.618_033_988_7).fract();
+            if (r + 3 * c) % 97 == 0 {
+                f64::NAN
+            } else {
+                (x - 0.3) * 10f64.powi((c % 13) as i32 - 6)
+            }
+        });
+        let fill = |r: usize, row: &mut [f64]| row.copy_from_slice(v.row(r).as_slice().unwrap());
+        let rows = MapValues::Rows {
+            dim: v.dim(),
+            fill: &fill,
+        };
+        for max_pixels in [1000, 4321, 20_000] {
+            let want = serial_pixel_means(&v, max_pixels);
+            for got in [
+                pixel_means(&v, max_pixels),
+                pixel_means_of(&rows, max_pixels),
+            ] {
+                assert_eq!(got.dim(), want.dim());
+                for (a, b) in got.iter().zip(&want) {
+                    assert!(
+                        a.to_bits() == b.to_bits() || (a.is_nan() && b.is_nan()),
+                        "{a} {b}"
+                    );
+                }
+            }
+        }
+        // Small enough: the values themselves.
+        let small = pixel_means_of(&rows, v.len());
+        assert!(
+            small
+                .iter()
+                .zip(&v)
+                .all(|(a, b)| a.to_bits() == b.to_bits())
+        );
     }
 
     #[test]

@@ -500,8 +500,23 @@ pub struct CheckOutput {
     pub notes: Vec<String>,
     /// Estimated wall time of the solve (s): a guess.
     pub time_estimate_s: f64,
-    /// Born iterations the time estimate assumes.
+    /// Born iterations the time estimate assumes on the full grid.
     pub iteration_guess: usize,
+    /// Coarse levels the time estimate assumes before the full grid,
+    /// coarsest first (empty without a coarse start).
+    pub coarse_levels_guess: Vec<CheckCoarseLevel>,
+    /// All iterations the time estimate assumes, in full-grid iterations
+    /// (a coarse level of every k-th energy counts 1/k per iteration).
+    pub iteration_equivalents_guess: f64,
+}
+
+/// A coarse level as `qheat check --json` guesses it.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct CheckCoarseLevel {
+    /// Every `factor`-th energy of the grid.
+    pub factor: usize,
+    /// Born iterations guessed for the level.
+    pub iterations: usize,
 }
 
 /// A phonon mode as `qheat check --json` lists it.
