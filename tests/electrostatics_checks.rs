@@ -183,3 +183,69 @@ fn weak_perturbation_decays_over_the_debye_length() {
         "decay length {fitted} nm against L_D = {ld} nm"
     );
 }
+
+/// Ohmic ends: each end cell is held where it, continued as its lead is,
+/// is a charge-neutral bulk at its lead's Fermi level. The same junction
+/// as above, half as long, first at equilibrium and then with the leads'
+/// Fermi levels at ±10 mV (a coherent device under bias).
+///
+/// Checks: the end cells sit at the exact neutral edge of their doping
+/// (from the chain's exact density of states, [`exact_neutral_edge`],
+/// an independent path: the engine's end value comes from its own
+/// midpoint rule over the band, 4000 points of a smooth periodic
+/// integrand, exact to rounding) plus their lead's Fermi level, to 1e-9
+/// eV (the references are bisected to 1e-13 eV; the rest is rounding of
+/// the two counts); and at equilibrium the cells deep in each half (30
+/// cells, more than 60 nm from the junction, 15 screening lengths of the
+/// 1e18 side) agree with the zero-field solve of the same device to 1e-6
+/// eV, where both are the neutral bulk (the tolerance of the junction
+/// check above: the screening tails reach those cells as e^(−15) of the
+/// 43 meV step, 1.3e-8 eV).
+#[test]
+fn ohmic_ends_hold_the_neutral_bulk_levels_of_their_leads() {
+    let (cells, a, mass) = (240, 0.5, 0.25);
+    let t = qheat::units::hopping_ev(mass, a);
+    let kt = qheat::units::thermal_energy_ev(T);
+    let donors: Vec<f64> = (0..cells)
+        .map(|i| if i < cells / 2 { 1e18 } else { 4e18 })
+        .collect();
+    let zero_field = settings(12.0, 25.0, donors);
+    let ohmic = Electrostatics {
+        left: Boundary::Ohmic,
+        right: Boundary::Ohmic,
+        ..zero_field.clone()
+    };
+    let d = ohmic.net_doping_per_cell(a);
+    let edges = (
+        exact_neutral_edge(d[0], t, kt),
+        exact_neutral_edge(d[cells - 1], t, kt),
+    );
+    let solve = |es: &Electrostatics, mu: (f64, f64)| {
+        let mut p = chain(cells, a, mass, (-0.1507, 0.45, 0.002));
+        (p.left.fermi_level_ev, p.right.fermi_level_ev) = mu;
+        let sc =
+            electrostatics::solve(&p, es, &ScbaParams::default(), None, None, &mut Silent).unwrap();
+        assert!(sc.report.converged, "{:?}", sc.report.history);
+        sc.potential_ev
+    };
+    for mu in [(0.0, 0.0), (0.01, -0.01)] {
+        let u = solve(&ohmic, mu);
+        let (left, right) = (u[0] - (edges.0 + mu.0), u[cells - 1] - (edges.1 + mu.1));
+        eprintln!("µ {mu:?}: end cells off their neutral levels by {left:e}, {right:e} eV");
+        assert!(
+            left.abs() < 1e-9 && right.abs() < 1e-9,
+            "{left:e} {right:e}"
+        );
+        if mu.0 == 0.0 {
+            let floating = solve(&zero_field, mu);
+            let deep = 30;
+            for i in (0..deep).chain(cells - deep..cells) {
+                let gap = u[i] - floating[i];
+                assert!(
+                    gap.abs() < 1e-6,
+                    "cell {i}: {gap:e} eV from the zero-field solve"
+                );
+            }
+        }
+    }
+}

@@ -8,7 +8,7 @@ use super::check::{choice_name, choice_names, show};
 use super::sections::device::{KindName, SpinMode};
 use super::sections::settings::{HermitianPart, MixingKind, ProfileMode, ResponseSplit};
 use super::spec::DEFAULT_SPIN_DEGENERACY;
-use crate::electrostatics::Coupling;
+use crate::electrostatics::{Coupling, Ends};
 use crate::leads::DecimationParams;
 use crate::scba::{CoarseStart, EnergyOrder, MixerHistory, Mixing, ScbaParams};
 
@@ -191,6 +191,9 @@ fn history_default() -> &'static str {
 }
 fn es_coupling_default() -> &'static str {
     choice_name(Coupling::default())
+}
+fn es_ends_default() -> &'static str {
+    choice_name(Ends::default())
 }
 fn coarse_default() -> &'static str {
     choice_name(ScbaParams::default().coarse_start)
@@ -983,6 +986,13 @@ pub static KEYS: &[KeyInfo] = &[
         "",
         Word(es_coupling_default),
         "how the potential and the Born loop iterate together: joint (one Born pass and one Newton solve per step, Σ0 and the potential in one Anderson vector) or nested (the Born loop at each potential, then Newton); both reach the same answer",
+    ),
+    key(
+        "electrostatics.ends",
+        ValueType::Choice(choice_names::<Ends>),
+        "",
+        Word(es_ends_default),
+        "how an end without a given potential is held: zero-field (zero field at the end; its potential floats with the charge) or ohmic (the end cell held where it, continued as its lead, is a charge-neutral bulk at the lead's Fermi level and temperature; needs net donors there)",
     ),
     key(
         "electrostatics.region.#.from_nm",

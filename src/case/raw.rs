@@ -259,6 +259,7 @@ pub(crate) struct RawElectrostatics {
     pub tolerance_ev: Opt<f64>,
     pub max_iterations: Opt<i64>,
     pub coupling: Opt<String>,
+    pub ends: Opt<String>,
     pub region: Option<Vec<Spanned<RawElectrostaticsRegion>>>,
 }
 

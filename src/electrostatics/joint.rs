@@ -251,7 +251,7 @@ pub(super) fn solve_joint(
     sigma: Option<&ScatteringSelfEnergy>,
     observer: &mut dyn Observer,
 ) -> Result<SelfConsistent, SolveError> {
-    let poisson: Poisson = es.poisson(problem.device.spacing_nm);
+    let poisson: Poisson = es.poisson(problem)?;
     let temperature = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
     let kt = crate::units::thermal_energy_ev(temperature);
     let (ne, dev) = (problem.grid.count, &problem.device);

@@ -75,7 +75,7 @@ pub use density::{
 
 use crate::C64;
 use crate::leads::Lead;
-use crate::model::Problem;
+use crate::model::{Contact, Problem};
 use crate::scattering::ScatteringSelfEnergy;
 use crate::scba::{self, LeadTable, Observer, ScbaParams, Solution, SolveError};
 use poisson::Poisson;
@@ -101,6 +101,36 @@ pub enum Boundary {
         /// φ at the end cell (V); U_es = −e φ.
         potential_v: f64,
     },
+    /// An ohmic end: the end cell is held at the potential at which it,
+    /// continued periodically as its lead is, would be a charge-neutral
+    /// bulk at the lead's Fermi level and temperature (its electrons per
+    /// cell equal to its net doping). The lead then is the neutral
+    /// reservoir a long doped contact region ends in, and its band edge
+    /// stays where neutrality puts it while the outer loop iterates.
+    Ohmic,
+}
+
+/// How both ends of the device are held, as a case file names it.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Ends {
+    /// Zero field at each end: the ends float with the charge
+    /// ([`Boundary::Neutral`]).
+    #[default]
+    ZeroField,
+    /// Each end held at its lead's neutral-bulk potential
+    /// ([`Boundary::Ohmic`]).
+    Ohmic,
+}
+
+impl Ends {
+    /// The boundary of one end.
+    pub fn boundary(self) -> Boundary {
+        match self {
+            Ends::ZeroField => Boundary::Neutral,
+            Ends::Ohmic => Boundary::Ohmic,
+        }
+    }
 }
 
 /// A gate that screens the potential towards its own.
@@ -216,8 +246,10 @@ impl Electrostatics {
             .any(|&d| d != 0.0)
     }
 
-    /// The discrete Poisson problem on cells of spacing `spacing_nm`.
-    fn poisson(&self, spacing_nm: f64) -> Poisson {
+    /// The discrete Poisson problem of `problem`'s cells (its imposed
+    /// potential and its leads' Fermi levels set the ohmic ends).
+    fn poisson(&self, problem: &Problem) -> Result<Poisson, SolveError> {
+        let spacing_nm = problem.device.spacing_nm;
         let e = crate::units::ELEMENTARY_CHARGE;
         let area = self.area_nm2 * 1e-18;
         let a = spacing_nm * 1e-9;
@@ -239,18 +271,58 @@ impl Electrostatics {
             }
             None => (vec![0.0; self.permittivity.len()], 0.0),
         };
-        let fixed = |b: Boundary| match b {
-            Boundary::Neutral => None,
-            Boundary::Fixed { potential_v } => Some(-potential_v),
+        let doping = self.net_doping_per_cell(spacing_nm);
+        let last = doping.len() - 1;
+        let fixed = |b: Boundary, cell: usize, contact: &Contact| match b {
+            Boundary::Neutral => Ok(None),
+            Boundary::Fixed { potential_v } => Ok(Some(-potential_v)),
+            Boundary::Ohmic => ohmic_potential(problem, doping[cell], cell, contact).map(Some),
         };
-        Poisson {
+        let ends = (
+            fixed(self.left, 0, &problem.left)?,
+            fixed(self.right, last, &problem.right)?,
+        );
+        Ok(Poisson {
             coupling,
             screening,
             gate_ev,
-            doping: self.net_doping_per_cell(spacing_nm),
-            fixed: (fixed(self.left), fixed(self.right)),
-        }
+            doping,
+            fixed: ends,
+        })
     }
+}
+
+/// The potential energy U_es (eV) of an ohmic end ([`Boundary::Ohmic`]):
+/// with the end cell's subband bottoms E_m (imposed potential included)
+/// and hopping t, the uniform band E_m + U + 2t(1 − cos θ) holds
+/// `electrons` (its net doping) per cell at the Fermi level and
+/// temperature of `contact` ([`neutral_band_edge`]); U is the shift that
+/// puts the lowest bottom there.
+fn ohmic_potential(
+    problem: &Problem,
+    electrons: f64,
+    cell: usize,
+    contact: &Contact,
+) -> Result<f64, SolveError> {
+    let dev = &problem.device;
+    let mut edges = cell_band_edges(dev, cell);
+    edges.sort_by(f64::total_cmp);
+    let hop = (dev.coupling.get(cell)).or_else(|| dev.coupling.get(cell.wrapping_sub(1)));
+    let t = hop.map_or(0.0, |h| -h[(0, 0)].re);
+    let modes: Vec<f64> = edges.iter().map(|e| e - edges[0]).collect();
+    let kt = crate::units::thermal_energy_ev(contact.temperature_k);
+    let gs = problem.spin_degeneracy;
+    let edge = (t > 0.0)
+        .then(|| neutral_band_edge(electrons, t, &modes, contact.fermi_level_ev, kt, gs))
+        .flatten()
+        .ok_or_else(|| {
+            SolveError::Invalid(format!(
+                "an ohmic end needs net donors in its end cell that the band can hold; cell \
+                 {cell} has {electrons:e} net donors per cell (hint: dope the contact region, \
+                 or use zero-field ends)"
+            ))
+        })?;
+    Ok(edge - edges[0])
 }
 
 /// The transport problem with the electrostatic potential energy `u` (eV,
@@ -342,6 +414,21 @@ pub struct SelfConsistent {
     pub report: ElectrostaticsReport,
 }
 
+/// The first potential of a solve from scratch: zero with floating ends;
+/// with held ends (fixed or ohmic) their values carried inside, a straight
+/// line between two held ends or the value of one. Starting the inside at
+/// zero with held ends put a step of tens of meV next to each end, and
+/// the first Newton steps of a coherent junction overshot by volts from
+/// it and never settled.
+fn held_ends_start(poisson: &Poisson, cells: usize) -> Vec<f64> {
+    let last = cells.saturating_sub(1).max(1) as f64;
+    match poisson.fixed {
+        (None, None) => vec![0.0; cells],
+        (Some(a), None) | (None, Some(a)) => vec![a; cells],
+        (Some(a), Some(b)) => (0..cells).map(|i| a + (b - a) * i as f64 / last).collect(),
+    }
+}
+
 /// Put the fixed end values into `u`.
 fn pin_fixed_ends(u: &mut [f64], poisson: &Poisson) {
     let n = u.len();
@@ -389,11 +476,11 @@ pub fn solve_warm(
 ) -> Result<SelfConsistent, SolveError> {
     let cells = problem.device.cells();
     es.check(cells)?;
-    let poisson = es.poisson(problem.device.spacing_nm);
+    let poisson = es.poisson(problem)?;
     let mut u = match start {
         Some(s) if s.len() == cells => s.to_vec(),
         Some(_) => return Err(SolveError::Invalid("start potential length".into())),
-        None => vec![0.0; cells],
+        None => held_ends_start(&poisson, cells),
     };
     pin_fixed_ends(&mut u, &poisson);
     // Floating probes are set by the Born loop's own iteration, and a
@@ -503,7 +590,7 @@ fn solve_nested(
     observer: &mut dyn Observer,
 ) -> Result<SelfConsistent, SolveError> {
     let (mut u, loose_first) = start;
-    let poisson = es.poisson(problem.device.spacing_nm);
+    let poisson = es.poisson(problem)?;
     let temperature = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
     let kt = crate::units::thermal_energy_ev(temperature);
     let mut history = Vec::new();

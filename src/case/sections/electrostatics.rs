@@ -16,13 +16,18 @@ use super::super::check::{Checker, Choice};
 use super::super::error::CaseError;
 use super::super::raw::{Opt, RawCase, RawElectrostatics, RawElectrostaticsRegion};
 use super::device::{DeviceKind, DeviceSpec};
-use crate::electrostatics::{Boundary, Coupling, Electrostatics, Gate};
+use crate::electrostatics::{Boundary, Coupling, Electrostatics, Ends, Gate};
 use std::ops::Range;
 use toml::Spanned;
 
 impl Choice for Coupling {
     const CHOICES: &'static [(&'static str, Self)] =
         &[("joint", Coupling::Joint), ("nested", Coupling::Nested)];
+}
+
+impl Choice for Ends {
+    const CHOICES: &'static [(&'static str, Self)] =
+        &[("zero-field", Ends::ZeroField), ("ohmic", Ends::Ohmic)];
 }
 
 /// Largest doping accepted (cm⁻³): above the atomic density of any solid.
@@ -53,6 +58,7 @@ pub(crate) struct ElectrostaticsSpec {
     pub tolerance_ev: f64,
     pub max_iterations: usize,
     pub coupling: Coupling,
+    pub ends: Ends,
     pub regions: Vec<EsRegion>,
     /// Span of the table.
     pub span: Option<Range<usize>>,
@@ -104,7 +110,7 @@ impl ElectrostaticsSpec {
                 x.abs() <= 100.0
             })
         };
-        Ok(Some(Self {
+        let spec = Self {
             permittivity,
             area_nm2,
             donors_cm3: doping(ck, &e.donors_cm3, "electrostatics.donors_cm3")?.unwrap_or(0.0),
@@ -132,9 +138,45 @@ impl ElectrostaticsSpec {
             coupling: ck
                 .choice(&e.coupling, "electrostatics.coupling")?
                 .unwrap_or_default(),
+            ends: ck.choice(&e.ends, "electrostatics.ends")?.unwrap_or_default(),
             regions: regions(e, ck, device, warnings)?,
             span,
-        }))
+        };
+        spec.check_ohmic_ends(ck, device)?;
+        Ok(Some(spec))
+    }
+
+    /// An ohmic end needs net donors in its end cell: its potential is
+    /// where the band holds them at the lead's Fermi level, and a cell
+    /// without them has no such place (the model has no holes).
+    fn check_ohmic_ends(&self, ck: &Checker<'_>, device: &DeviceSpec) -> Result<(), CaseError> {
+        if self.ends != Ends::Ohmic {
+            return Ok(());
+        }
+        let es = self.build(device);
+        let doping = es.net_doping_per_cell(device.spacing_nm);
+        let ends = [
+            ("left", 0, self.left_potential_v),
+            ("right", device.cells - 1, self.right_potential_v),
+        ];
+        for (side, cell, given) in ends {
+            if given.is_none() && doping[cell] <= 0.0 {
+                return Err(ck.ctx.invalid(
+                    self.span.clone(),
+                    "electrostatics.ends",
+                    &format!(
+                        "net donors in the {side} end cell for ends = \"ohmic\" (hint: dope the \
+                         contact region, give electrostatics.{side}_potential_v, or use \
+                         ends = \"zero-field\")"
+                    ),
+                    format!(
+                        "{:e} net donors per cm³ there",
+                        es.donors_cm3[cell] - es.acceptors_cm3[cell]
+                    ),
+                ));
+            }
+        }
+        Ok(())
     }
 
     /// The electrostatics of the device's cells.
@@ -161,7 +203,7 @@ impl ElectrostaticsSpec {
         }
         let end = |v: Option<f64>| match v {
             Some(potential_v) => Boundary::Fixed { potential_v },
-            None => Boundary::Neutral,
+            None => self.ends.boundary(),
         };
         Electrostatics {
             permittivity: eps,
