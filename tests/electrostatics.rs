@@ -277,6 +277,9 @@ fn cli_solve_reports_the_computed_potential() {
     );
     let stdout = String::from_utf8_lossy(&o.stdout);
     assert!(stdout.contains("replaces the imposed one"), "{stdout}");
+    // The note says how the ends are held.
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(stderr.contains("float with zero field"), "{stderr}");
     let s: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
     let e = &s["electrostatics"];

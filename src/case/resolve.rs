@@ -1076,13 +1076,21 @@ fn check_damping_covers_modes(
 /// With `[electrostatics]`: the note that the drop is computed, and a
 /// warning when the file also asks for a linear drop.
 fn electrostatics_remarks(spec: &CaseSpec, remarks: &mut Remarks) {
-    if spec.electrostatics.is_none() {
+    let Some(es) = &spec.electrostatics else {
         return;
-    }
+    };
     {
-        remarks.notes.push(
-            "[electrostatics]: the potential inside the device is solved with the transport; the bias drop is computed from the charge, not imposed".into(),
-        );
+        let ends = match es.ends {
+            crate::electrostatics::Ends::ZeroField => {
+                "ends without a given potential float with zero field"
+            }
+            crate::electrostatics::Ends::Ohmic => {
+                "ends without a given potential are ohmic, held at their leads' neutral-bulk levels"
+            }
+        };
+        remarks.notes.push(format!(
+            "[electrostatics]: the potential inside the device is solved with the transport; the bias drop is computed from the charge, not imposed; {ends}"
+        ));
         if let BiasDrop::Linear { .. } = spec.bias.drop {
             remarks.warnings.push(
                 "bias.drop = { linear = … } is not used with [electrostatics]: the computed drop replaces it".into(),
