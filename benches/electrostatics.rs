@@ -3,8 +3,8 @@
 //! (0.5 nm cells, m* = 0.07, 25 nm², 2e18 cm⁻³ donors with an undoped
 //! 20 nm layer in the middle), one 36 meV phonon (D = 2e-3 eV²) everywhere,
 //! 20 mV bias, 2 meV energy step, ohmic ends (each end cell held at its
-//! lead's neutral-bulk potential; with zero-field ends the family below
-//! stalls at 10 and 40 mV). The ratio of the two medians is the cost
+//! lead's neutral-bulk potential; with zero-field ends two biases of the
+//! family below, 10 and 20 mV, stall). The ratio of the two medians is the cost
 //! of the electrostatics; its target is at most 3. The setup also runs
 //! both outer schemes once and prints their outer iterations, Born passes
 //! and time (the benchmark times the default scheme), then the default

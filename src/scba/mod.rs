@@ -1428,8 +1428,9 @@ impl<'a> BornLoop<'a> {
         let probe =
             (problem.has_floating_contacts()).then(|| contacts::probe_residual(problem, levels, p));
         self.report.probe_residual = probe;
+        let currents_settled = current_change <= 1.0 || !params.settle_currents;
         let done = residual <= params.tolerance
-            && current_change <= 1.0
+            && currents_settled
             && probe.is_none_or(|r| r <= params.tolerance);
         if let (Some(watch), false) = (self.isolation.as_mut(), done) {
             watch.observe(problem, sigma.0, sigma.1, iteration, residual)?;

@@ -126,6 +126,15 @@ pub struct ScbaParams {
     /// Whether the loop first solves coarser energy grids
     /// ([`crate::scba::coarse`]).
     pub coarse_start: CoarseStart,
+    /// Whether the loop also waits for the terminal currents to settle
+    /// (true unless a caller turns it off): a Born solve whose only use is
+    /// its density, such as an outer electrostatics iteration at a
+    /// potential that is itself still moving, stops on the Σ0 residual
+    /// alone. The current is the small difference of large one-way flows,
+    /// so its relative change can stay above a loose tolerance long after
+    /// Σ0, and with it the density, is as close as that tolerance asks.
+    #[serde(skip)]
+    pub settle_currents: bool,
 }
 
 impl ScbaParams {
@@ -147,6 +156,7 @@ impl Default for ScbaParams {
             energy_order: EnergyOrder::Auto,
             history: MixerHistory::default(),
             coarse_start: CoarseStart::default(),
+            settle_currents: true,
         }
     }
 }
@@ -155,6 +165,15 @@ impl ScbaParams {
     /// These settings with relative tolerance `tolerance`.
     pub fn with_tolerance(self, tolerance: f64) -> Self {
         Self { tolerance, ..self }
+    }
+
+    /// These settings with the current test on or off (see
+    /// [`ScbaParams::settle_currents`]).
+    pub fn with_settle_currents(self, settle_currents: bool) -> Self {
+        Self {
+            settle_currents,
+            ..self
+        }
     }
 
     /// These settings with absolute current floor `current_floor_a` (A).
