@@ -148,8 +148,11 @@ pub struct Gate {
 pub enum Coupling {
     /// Each outer iteration runs the Born loop at a fixed potential (to a
     /// tolerance that tightens as the potential settles), then one Newton
-    /// solve; Anderson mixing over the potentials (the default: fewer
-    /// passes and less time than the joint scheme on every device measured).
+    /// solve; Anderson mixing over the potentials (the default: it can take
+    /// more Born passes than the joint scheme, 276 against 215 on the bench
+    /// device at six biases, but less time, 0.17 s against 0.33 s at its
+    /// 20 mV, and it converges where the joint scheme does not: 29 of 30
+    /// biases of the doped demo from 0 to 290 mV, against 24).
     #[default]
     Nested,
     /// One Born pass and one Newton solve per step, Σ0 and the potential
