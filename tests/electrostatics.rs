@@ -400,6 +400,15 @@ fn cli_flags_a_cut_outer_loop_and_names_the_scheme() {
             stderr.contains("electrostatics did not converge"),
             "{stderr}"
         );
+        // The hint says what the last change means, where the known stalls
+        // are described, and names the step a user can change.
+        for hint in [
+            "how far the potential",
+            "Known problem",
+            "grid.step_ev (2.0e-3 eV now)",
+        ] {
+            assert!(stderr.contains(hint), "{hint}: {stderr}");
+        }
         let s: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap())
                 .unwrap();

@@ -208,8 +208,16 @@ impl Solved {
             return Some(format!(
                 "the electrostatics did not converge in {} outer iterations (last potential change \
                  {:.3e} eV against a tolerance of {:.1e} eV, Poisson residual {:.3e} electrons); \
-                 {results} are flagged as not converged",
-                r.outer_iterations, r.potential_change_ev, r.tolerance_ev, r.poisson_residual,
+                 {results} are flagged as not converged (hint: the last potential change is about how far the potential may still be from \
+                 self-consistent; docs/electrostatics.md (\"Known problem\") describes the stalls known \
+                 so far, such as a cell's electron count that jumps by a few per cent as a band \
+                 edge crosses a grid energy; a smaller grid.step_ev ({:.1e} eV now) makes that \
+                 ripple smaller)",
+                r.outer_iterations,
+                r.potential_change_ev,
+                r.tolerance_ev,
+                r.poisson_residual,
+                self.solution.problem.grid.step_ev,
             ));
         }
         if let Some(h) = self.heat.as_ref().filter(|h| !h.report.converged) {
