@@ -239,19 +239,20 @@ impl JointState {
     }
 }
 
-/// The joint loop (see the module text). `u` is the first potential (its
-/// fixed ends already in place), `sigma` an optional first Σ0; the device
-/// scatters and has no floating contacts.
+/// The joint loop (see the module text). `start` holds the first potential
+/// (its fixed ends already in place) and the discrete Poisson problem,
+/// `sigma` an optional first Σ0; the device scatters and has no floating
+/// contacts.
 pub(super) fn solve_joint(
     problem: &Problem,
     es: &Electrostatics,
     params: &ScbaParams,
     lattice_temperature_k: Option<&[f64]>,
-    mut u: Vec<f64>,
+    start: (Vec<f64>, Poisson),
     sigma: Option<&ScatteringSelfEnergy>,
     observer: &mut dyn Observer,
 ) -> Result<SelfConsistent, SolveError> {
-    let poisson: Poisson = es.poisson(problem)?;
+    let (mut u, poisson) = start;
     let temperature = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
     let kt = crate::units::thermal_energy_ev(temperature);
     let (ne, dev) = (problem.grid.count, &problem.device);

@@ -501,7 +501,7 @@ pub fn solve_warm(
             es,
             params,
             lattice_temperature_k,
-            u,
+            (u, poisson),
             sigma,
             observer,
         );
@@ -514,7 +514,7 @@ pub fn solve_warm(
         es,
         params,
         lattice_temperature_k,
-        (u, loose_first),
+        (u, poisson, loose_first),
         sigma,
         observer,
     )
@@ -585,18 +585,19 @@ fn finish(
 /// The nested loop: a Born solve at each potential (to a tolerance tied to
 /// the outer progress, see [`inner_params`]), then Newton, the potentials
 /// mixed by Anderson. `start.0` is the first potential with its fixed ends
-/// in place; `start.1` lets the first Born solve stop early.
+/// in place, `start.1` the discrete Poisson problem (built once: an ohmic
+/// end's potential takes a search of its own); `start.2` lets the first
+/// Born solve stop early.
 fn solve_nested(
     problem: &Problem,
     es: &Electrostatics,
     params: &ScbaParams,
     lattice_temperature_k: Option<&[f64]>,
-    start: (Vec<f64>, bool),
+    start: (Vec<f64>, Poisson, bool),
     sigma: Option<&ScatteringSelfEnergy>,
     observer: &mut dyn Observer,
 ) -> Result<SelfConsistent, SolveError> {
-    let (mut u, loose_first) = start;
-    let poisson = es.poisson(problem)?;
+    let (mut u, poisson, loose_first) = start;
     let temperature = 0.5 * (problem.left.temperature_k + problem.right.temperature_k);
     let kt = crate::units::thermal_energy_ev(temperature);
     let mut history = Vec::new();
