@@ -617,12 +617,12 @@ fn solve_nested(
         };
         let inner = inner_params(params, es, progress, kt, &p);
         let full = inner.tolerance <= params.tolerance;
-        let sol = scba::solve_in_lattice(
+        let sol = scba::solve_in_lattice_owned(
             &p,
             &leads,
             lattice_temperature_k,
             &inner,
-            warm.as_ref(),
+            warm.take(),
             observer,
         )?;
         born_passes += sol.report.iterations.max(1);
@@ -651,7 +651,7 @@ fn solve_nested(
             return Ok(finish(sol, u, density, &outer, end, es));
         }
         levels = Some(density.fermi_level_ev);
-        warm = (!sol.problem.scattering.is_coherent()).then(|| sol.sigma.clone());
+        warm = (!sol.problem.scattering.is_coherent()).then_some(sol.sigma);
         let residual: Vec<f64> = (outer.newton.potential.iter().zip(&u))
             .map(|(a, b)| a - b)
             .collect();

@@ -1163,6 +1163,48 @@ pub fn solve_in_lattice(
     warm: Option<&ScatteringSelfEnergy>,
     observer: &mut dyn Observer,
 ) -> Result<Solution, SolveError> {
+    let warm = warm.map(std::borrow::Cow::Borrowed);
+    born_solve(
+        problem,
+        leads,
+        lattice_temperature_k,
+        params,
+        warm,
+        observer,
+    )
+}
+
+/// [`solve_in_lattice`] started from a Σ0 the caller gives away: the loop
+/// iterates it in place instead of a copy (an outer loop that hands each
+/// Born solve the Σ0 of the last one spares a copy of Σ0 per solve).
+pub fn solve_in_lattice_owned(
+    problem: &Problem,
+    leads: &LeadTable,
+    lattice_temperature_k: Option<&[f64]>,
+    params: &ScbaParams,
+    warm: Option<ScatteringSelfEnergy>,
+    observer: &mut dyn Observer,
+) -> Result<Solution, SolveError> {
+    let warm = warm.map(std::borrow::Cow::Owned);
+    born_solve(
+        problem,
+        leads,
+        lattice_temperature_k,
+        params,
+        warm,
+        observer,
+    )
+}
+
+/// The Born loop of [`solve_in_lattice`], its warm start borrowed or owned.
+fn born_solve(
+    problem: &Problem,
+    leads: &LeadTable,
+    lattice_temperature_k: Option<&[f64]>,
+    params: &ScbaParams,
+    warm: Option<std::borrow::Cow<'_, ScatteringSelfEnergy>>,
+    observer: &mut dyn Observer,
+) -> Result<Solution, SolveError> {
     let ne = problem.grid.count;
     let ns = problem.sites();
     if let Some(t) = lattice_temperature_k {
@@ -1198,9 +1240,10 @@ pub fn solve_in_lattice(
             lattice_temperature_k: lattice,
         });
     }
+    let warm_given = warm.is_some();
     let x = match warm {
         Some(w) => {
-            check_layout(problem, w).map_err(|e| match e {
+            check_layout(problem, &w).map_err(|e| match e {
                 SolveError::Invalid(m) => SolveError::Invalid(format!("warm start: {m}")),
                 other => other,
             })?;
@@ -1209,7 +1252,7 @@ pub fn solve_in_lattice(
                     "warm-start self-energy does not match this grid and device".into(),
                 ));
             }
-            w.clone()
+            w.into_owned()
         }
         None => {
             let factors = coarse::levels(problem, params);
@@ -1223,7 +1266,7 @@ pub fn solve_in_lattice(
             }
         }
     };
-    let nonzero = warm.is_some() || !report.coarse_levels.is_empty();
+    let nonzero = warm_given || !report.coarse_levels.is_empty();
     let born = BornLoop::new(problem, leads, lattice, params, report, nonzero);
     born.run(x, observer)
 }
