@@ -617,12 +617,12 @@ fn solve_nested(
         };
         let inner = inner_params(params, es, progress, kt, &p);
         let full = inner.tolerance <= params.tolerance;
-        let sol = scba::solve_in_lattice_owned(
+        let sol = scba::born_solve(
             &p,
             &leads,
             lattice_temperature_k,
             &inner,
-            warm.take(),
+            warm.take().map(std::borrow::Cow::Owned),
             observer,
         )?;
         born_passes += sol.report.iterations.max(1);

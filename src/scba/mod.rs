@@ -1174,30 +1174,10 @@ pub fn solve_in_lattice(
     )
 }
 
-/// [`solve_in_lattice`] started from a Σ0 the caller gives away: the loop
-/// iterates it in place instead of a copy (an outer loop that hands each
-/// Born solve the Σ0 of the last one spares a copy of Σ0 per solve).
-pub fn solve_in_lattice_owned(
-    problem: &Problem,
-    leads: &LeadTable,
-    lattice_temperature_k: Option<&[f64]>,
-    params: &ScbaParams,
-    warm: Option<ScatteringSelfEnergy>,
-    observer: &mut dyn Observer,
-) -> Result<Solution, SolveError> {
-    let warm = warm.map(std::borrow::Cow::Owned);
-    born_solve(
-        problem,
-        leads,
-        lattice_temperature_k,
-        params,
-        warm,
-        observer,
-    )
-}
-
-/// The Born loop of [`solve_in_lattice`], its warm start borrowed or owned.
-fn born_solve(
+/// The Born loop of [`solve_in_lattice`], its warm start borrowed or
+/// owned: an outer loop that hands each Born solve the Σ0 of the last one
+/// gives it away, and the loop iterates it in place instead of a copy.
+pub(crate) fn born_solve(
     problem: &Problem,
     leads: &LeadTable,
     lattice_temperature_k: Option<&[f64]>,
